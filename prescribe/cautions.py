@@ -1,0 +1,27 @@
+"""The cautions every output carries: plans, screenings, handouts and the app."""
+
+from __future__ import annotations
+
+#: Shown on every screen, plan and handout (common practice for exercise prescription;
+#: wording ours).
+STANDARD_CAUTIONS: tuple[str, ...] = (
+    "This tool supports and does not replace clinical judgment: a licensed clinician "
+    "must review every screening result and program before it is used.",
+    "Stop exercising and seek advice on new or worsening pain, chest pain or tightness, "
+    "unusual breathlessness, dizziness or feeling faint, or after a fall.",
+    "Follow your local clinical guidelines and the scope of your licensed practice; "
+    "where they differ from this tool, they take precedence.",
+)
+
+#: One line for page footers.
+SHORT_CAUTION = ("Decision support only: review by a licensed clinician is required. "
+                 "Stop and seek advice on new or worsening pain, chest pain, dizziness or a fall.")
+
+
+def with_standard(extra: list[str] | tuple[str, ...] = ()) -> list[str]:
+    """The standard cautions followed by ``extra`` ones, without duplicates, order kept."""
+    out: list[str] = []
+    for text in (*STANDARD_CAUTIONS, *extra):
+        if text and text not in out:
+            out.append(text)
+    return out

@@ -1,0 +1,129 @@
+"""The error hierarchy of prescribe.
+
+Bad input is an exception whose message names the field, the value and what is
+allowed.  A clinical finding is never an exception: it is a returned flag.
+
+Every error carries ``exit_code``: the command line exits 2 for bad input and 1
+for any other failure.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Any
+
+
+class PrescribeError(Exception):
+    """Base of every error prescribe raises on purpose."""
+
+    exit_code = 1
+
+
+@dataclass(frozen=True)
+class FieldProblem:
+    """One bad field: where it is, what it held and what is allowed."""
+
+    field: str
+    value: Any
+    allowed: str
+    kind: str = "invalid"  # invalid | missing | unknown_field
+
+    @property
+    def message(self) -> str:
+        if self.kind == "missing":
+            return f"{self.field} is required: {self.allowed}."
+        if self.kind == "unknown_field":
+            return f"{self.field} is not a field here; allowed: {self.allowed}."
+        return f"{self.field} must be {self.allowed}, not {_show(self.value)}."
+
+    def as_dict(self) -> dict:
+        return {"field": self.field, "value": _jsonable(self.value), "allowed": self.allowed,
+                "kind": self.kind, "message": self.message}
+
+
+class InputError(PrescribeError, ValueError):
+    """Bad input: one or more fields that break the documented contract."""
+
+    exit_code = 2
+
+    def __init__(self, problems: list[FieldProblem] | FieldProblem, source: str | None = None):
+        if isinstance(problems, FieldProblem):
+            problems = [problems]
+        self.problems = list(problems)
+        self.source = source
+        head = f"{source}: " if source else ""
+        if len(self.problems) == 1:
+            text = head + self.problems[0].message
+        else:
+            text = head + f"{len(self.problems)} fields are not valid:\n" + "\n".join(
+                "  - " + p.message for p in self.problems)
+        super().__init__(text)
+
+    @classmethod
+    def single(cls, field: str, value: Any, allowed: str, source: str | None = None) -> "InputError":
+        return cls([FieldProblem(field, value, allowed)], source=source)
+
+
+class RuleFileError(PrescribeError):
+    """A screening rule file is malformed: names the file, the rule and the problem."""
+
+    def __init__(self, file: str, rule_id: str | None, problem: str):
+        self.file, self.rule_id, self.problem = file, rule_id, problem
+        where = f"{file}" + (f", rule {rule_id!r}" if rule_id else "")
+        super().__init__(f"{where}: {problem}")
+
+
+class CatalogueError(PrescribeError):
+    """The exercise catalogue is malformed: names the entry, the field and the problem."""
+
+    def __init__(self, entry: str | None, field: str | None, problem: str, file: str | None = None):
+        self.entry, self.field, self.problem, self.file = entry, field, problem, file
+        parts = [p for p in (file, f"exercise {entry!r}" if entry else None,
+                             f"field {field!r}" if field else None) if p]
+        super().__init__(", ".join(parts) + f": {problem}")
+
+
+class PlanRequestRefused(PrescribeError):
+    """A clinician's request to the planner would break a safety rule."""
+
+    exit_code = 2
+
+    def __init__(self, rule: str, reason: str, field: str | None = None, value: Any = None):
+        self.rule, self.reason, self.field, self.value = rule, reason, field, value
+        super().__init__(f"refused ({rule}): {reason}")
+
+
+class PlanFileError(InputError):
+    """A plan file is malformed or from an incompatible version."""
+
+
+class StoreError(PrescribeError):
+    """The record store cannot be opened or used."""
+
+
+class ConflictError(StoreError):
+    """A save was based on an older version than the one stored."""
+
+    exit_code = 1
+
+
+class NotFoundError(StoreError):
+    """No such person or program in the store."""
+
+
+def _jsonable(value: Any) -> Any:
+    if value is None or isinstance(value, (bool, int, float, str)):
+        return value
+    if isinstance(value, (list, tuple)):
+        return [_jsonable(v) for v in value]
+    if isinstance(value, dict):
+        return {str(k): _jsonable(v) for k, v in value.items()}
+    return repr(value)
+
+
+def _show(value: Any) -> str:
+    if isinstance(value, str):
+        text = repr(value)
+    else:
+        text = repr(_jsonable(value))
+    return text if len(text) <= 80 else text[:77] + "..."
