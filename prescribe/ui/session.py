@@ -1,0 +1,322 @@
+"""The clinic app's state and actions, with no widgets: unit-testable in plain Python.
+
+A :class:`ClinicSession` holds one person's record, their screening, the planner
+options the clinician chose, the program built from them and the messages to show.
+The views in :mod:`prescribe.ui.views` read it and call its methods; nothing here
+imports ipywidgets or bqplot.
+
+Expected problems never raise out of the session: bad input becomes per-field
+messages (``problems``), an unsafe request becomes ``refusal`` (the planner's own
+reason) and a stale save becomes ``notice``.  Anything else is raised for the view
+to show in its error area.
+"""
+
+from __future__ import annotations
+
+import importlib
+from dataclasses import dataclass
+from typing import Any
+
+from ..cautions import with_standard
+from ..errors import ConflictError, InputError, NotFoundError, PlanRequestRefused, PrescribeError
+from ..records import PatientRecord, parse_record
+
+#: Our impact scale (PRODUCT.md): level -> plain label.
+IMPACT_LABELS: dict[int, str] = {0: "0 - no impact", 1: "1 - low impact", 2: "2 - moderate impact",
+                                 3: "3 - high impact"}
+
+
+class EngineMissing(PrescribeError):
+    """A part of the library the app needs is not installed in this version."""
+
+
+def _api(module: str, name: str):
+    """``prescribe.<module>.<name>``, or :class:`EngineMissing` when that part is not there."""
+    try:
+        mod = importlib.import_module(f"prescribe.{module}")
+    except ModuleNotFoundError as exc:
+        if exc.name and exc.name.startswith(f"prescribe.{module}"):
+            raise EngineMissing(f"this version of prescribe has no {module} module yet") from None
+        raise
+    try:
+        return getattr(mod, name)
+    except AttributeError:
+        raise EngineMissing(f"prescribe.{module} has no {name} yet") from None
+
+
+@dataclass
+class ChartSeries:
+    """Per-week numbers the program charts draw (plain lists, one item a week)."""
+
+    week: list[int]
+    impacts_per_session: list[int]
+    impact_level: list[int]
+    osteogenic_index: list[float]
+    weak_window: list[bool]
+
+
+class ClinicSession:
+    """One person's visit: record -> screening -> program -> handout -> store."""
+
+    def __init__(self, store_url: str | None = None, clinician: str = ""):
+        self.store_url = store_url
+        self.clinician = clinician
+        self._store = None
+        self.reset()
+
+    # -- state ------------------------------------------------------------
+    def reset(self) -> None:
+        """Start a new person: forget everything but the store and the clinician."""
+        self.record: PatientRecord | None = None
+        self.problems: dict[str, str] = {}
+        self.screening = None
+        self.options: dict[str, Any] = {}
+        self.swaps: list[tuple[str, str]] = []
+        self.plan = None
+        self.refusal: str | None = None
+        self.notice: str | None = None
+        self.saved_version: int | None = None
+
+    @property
+    def cautions(self) -> list[str]:
+        """The standard cautions plus those of the screening and the plan."""
+        extra: list[str] = []
+        if self.screening is not None:
+            extra += list(self.screening.cautions)
+        if self.plan is not None:
+            extra += list(self.plan.cautions)
+        return with_standard(extra)
+
+    # -- intake and screening ----------------------------------------------
+    def submit(self, data: dict) -> bool:
+        """Validate the record, screen it and build the first program.
+
+        Returns False (and fills ``problems``, one message per field) when the record is
+        not valid; nothing else changes then.
+        """
+        try:
+            record = parse_record(data)
+        except InputError as err:
+            self.problems = {p.field: p.message for p in err.problems}
+            return False
+        self.problems = {}
+        if self.record is None or self.record.patient_id != record.patient_id:
+            self.options, self.swaps, self.saved_version = {}, [], None
+        self.record = record
+        self.screening = _api("screening", "screen")(record)
+        self.plan = None
+        self.build()
+        return True
+
+    # -- the program ----------------------------------------------------------
+    def build(self, **changes: Any) -> bool:
+        """Rebuild the program with ``changes`` to the planner options.
+
+        A request the planner refuses leaves the current program and options as they
+        were and sets ``refusal`` to the planner's reason.
+        """
+        if self.record is None:
+            self.refusal = "Enter and check the person's details first."
+            return False
+        build_plan, plan_options = _api("planner", "build_plan"), _api("planner", "PlanOptions")
+        replace, check = _api("planner", "replace_exercise"), _api("planner", "check_plan")
+        options = {**self.options, **changes}
+        try:
+            plan = build_plan(self.record, self.screening, plan_options(**options))
+            for old, new in self.swaps:
+                plan = replace(plan, old, new)
+        except PlanRequestRefused as exc:
+            self.refusal = f"Refused ({exc.rule}): {exc.reason}"
+            return False
+        except InputError as exc:
+            self.refusal = str(exc)
+            return False
+        problems = list(check(plan, self.screening))
+        if problems:  # the planner's own safety check disagrees: keep the old program
+            self.refusal = "Refused: " + "; ".join(problems)
+            return False
+        self.options, self.plan, self.refusal = options, plan, None
+        return True
+
+    def swap(self, old_id: str, new_id: str) -> bool:
+        """Put exercise ``new_id`` in place of ``old_id`` everywhere in the program."""
+        if self.plan is None:
+            self.refusal = "Build a program first."
+            return False
+        replace = _api("planner", "replace_exercise")
+        try:
+            plan = replace(self.plan, old_id, new_id)
+        except PlanRequestRefused as exc:
+            self.refusal = f"Refused ({exc.rule}): {exc.reason}"
+            return False
+        except InputError as exc:
+            self.refusal = str(exc)
+            return False
+        self.swaps.append((old_id, new_id))
+        self.plan, self.refusal = plan, None
+        return True
+
+    def exclude(self, exercise_id: str) -> bool:
+        """Leave ``exercise_id`` out of the program (the planner picks what replaces it)."""
+        excluded = list(self.options.get("exclude", []))
+        if exercise_id not in excluded:
+            excluded.append(exercise_id)
+        return self.build(exclude=excluded)
+
+    def plan_exercises(self) -> list[tuple[str, str]]:
+        """(exercise_id, name) of every exercise in the program, first appearance order."""
+        seen: dict[str, str] = {}
+        for week in (self.plan.weeks if self.plan else []):
+            for session in week.sessions:
+                for ex in session.exercises:
+                    seen.setdefault(ex.exercise_id, ex.name)
+        return list(seen.items())
+
+    def swap_candidates(self, exercise_id: str) -> list[tuple[str, str]]:
+        """(exercise_id, name) of catalogue entries of the same category, within the impact cap."""
+        if self.plan is None or self.screening is None:
+            return []
+        catalogue = _api("catalogue", "default_catalogue")()
+        current = catalogue.get(exercise_id)
+        cap = self.screening.max_impact_level
+        avoid = set(self.screening.avoid)
+        out = []
+        for entry in catalogue.all():
+            if entry.exercise_id == exercise_id or getattr(entry, "category", None) != current.category:
+                continue
+            if getattr(entry, "impact_level", 0) > cap or avoid & set(getattr(entry, "patterns", []) or []):
+                continue
+            out.append((entry.exercise_id, entry.name))
+        return out
+
+    def chart_series(self) -> ChartSeries:
+        """The per-week numbers of the program (empty lists before a program exists)."""
+        weeks = self.plan.weeks if self.plan else []
+        def extra(w, name, default):
+            value = getattr(w, name, None)
+            if value is None and w.model_extra:
+                value = w.model_extra.get(name)
+            return default if value is None else value
+        return ChartSeries(
+            week=[w.week for w in weeks],
+            impacts_per_session=[w.impacts_per_session for w in weeks],
+            impact_level=[w.impact_level for w in weeks],
+            osteogenic_index=[float(extra(w, "weekly_osteogenic_index",
+                                          sum(s.osteogenic_index for s in w.sessions))) for w in weeks],
+            weak_window=[bool(extra(w, "weak_window", False)) for w in weeks],
+        )
+
+    def week_rows(self) -> list[dict]:
+        """One row a week for the program table."""
+        if self.plan is None:
+            return []
+        try:
+            frame = _api("planner", "weekly_summary")(self.plan)
+            return frame.to_dict(orient="records")
+        except (EngineMissing, AttributeError):
+            s = self.chart_series()
+            return [{"week": w, "impact_level": lv, "impacts_per_session": n, "weekly_osteogenic_index": round(oi, 1)}
+                    for w, lv, n, oi in zip(s.week, s.impact_level, s.impacts_per_session, s.osteogenic_index)]
+
+    def dose_figures(self) -> dict[str, float]:
+        """Headline dose figures of the program (for the line under the charts)."""
+        s = self.chart_series()
+        if not s.week:
+            return {}
+        return {"weeks": len(s.week), "highest_impact_level": max(s.impact_level),
+                "most_impacts_per_session": max(s.impacts_per_session),
+                "total_osteogenic_index": round(sum(s.osteogenic_index), 1),
+                "last_week_osteogenic_index": round(s.osteogenic_index[-1], 1)}
+
+    # -- handout ----------------------------------------------------------------
+    def handout(self, fmt: str = "html", audience: str = "patient", paper: str = "A4") -> bytes:
+        """The handout of the current program as HTML (UTF-8 bytes) or PDF bytes."""
+        if self.plan is None:
+            raise InputError.single("program", None, "a built program (check the person's details first)")
+        if fmt == "pdf":
+            return _api("handout", "render_pdf")(self.plan, audience=audience, paper=paper)
+        html = _api("handout", "render_html")(self.plan, audience=audience, paper=paper)
+        return html.encode("utf-8") if isinstance(html, str) else html
+
+    # -- store ------------------------------------------------------------------
+    @property
+    def store(self):
+        if self._store is None:
+            self._store = _api("store", "open_store")(self.store_url)
+        return self._store
+
+    def save(self, clinician: str | None = None) -> int | None:
+        """Save the person (with their screening) and, if built, the program as a new version.
+
+        Returns the program's new version number (None when there is no program).  A save
+        based on an older version than the stored one is refused with ``notice`` set and the
+        program kept in the session, so nothing is lost.
+        """
+        if self.record is None:
+            raise InputError.single("record", None, "a checked patient record (press Check first)")
+        who = (clinician if clinician is not None else self.clinician) or "unnamed clinician"
+        self.store.save_patient(self.record, self.screening, who)
+        self.notice = None
+        if self.plan is None:
+            return None
+        try:
+            version = self.store.save_program(self.record.patient_id, self.plan.model_dump(mode="json"), who,
+                                              self.saved_version)
+        except ConflictError as exc:
+            self.notice = (f"Not saved: {exc} Reload the person to see the newer version; "
+                           "this program stays open here.")
+            return None
+        self.saved_version = int(version)
+        return self.saved_version
+
+    def saved_people(self) -> list[str]:
+        """Patient ids in the store (empty when the store is not there yet)."""
+        rows = self.store.list_patients()
+        out = []
+        for row in rows:
+            out.append(row if isinstance(row, str) else _get(row, "patient_id"))
+        return out
+
+    def versions(self) -> list[dict]:
+        """The program's version history for the current person (newest last)."""
+        if self.record is None:
+            return []
+        try:
+            rows = self.store.program_versions(self.record.patient_id)
+        except NotFoundError:
+            return []
+        return [r if isinstance(r, dict) else _as_dict(r) for r in rows]
+
+    def load(self, patient_id: str) -> None:
+        """Open a saved person: their record, a fresh screening and their latest program."""
+        found = self.store.get_patient(patient_id)
+        record_data = _get(found, "record", found)
+        if isinstance(record_data, PatientRecord):
+            record_data = record_data.model_dump(mode="json")
+        self.reset()
+        self.submit(dict(record_data))
+        try:
+            stored = self.store.get_program(patient_id)
+        except NotFoundError:
+            return
+        if stored is None:
+            return
+        plan_data = _get(stored, "plan", stored)
+        version = _get(stored, "version", None)
+        from ..plan_schema import parse_plan
+        self.plan = parse_plan(plan_data if isinstance(plan_data, dict) else plan_data.model_dump(mode="json"))
+        self.saved_version = int(version) if version is not None else None
+
+
+def _get(obj: Any, name: str, default: Any = None) -> Any:
+    if isinstance(obj, dict):
+        return obj.get(name, default)
+    return getattr(obj, name, default)
+
+
+def _as_dict(obj: Any) -> dict:
+    if hasattr(obj, "model_dump"):
+        return obj.model_dump(mode="json")
+    if hasattr(obj, "_asdict"):
+        return obj._asdict()
+    return dict(vars(obj))

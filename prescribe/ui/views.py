@@ -1,0 +1,564 @@
+"""The clinic app's widgets: five sections over one :class:`ClinicSession`.
+
+Person -> Screening -> Program -> Handout -> Save.  Every section shows the cautions;
+every callback is guarded so an error appears in the page (Voila hides tracebacks)
+and never vanishes.  Widgets carry stable CSS classes (``pr-...``) for browser tests.
+"""
+
+from __future__ import annotations
+
+import base64
+import functools
+import html
+import logging
+import os
+import sys
+import traceback
+from typing import Any, Callable
+
+import ipywidgets as w
+
+from ..cautions import STANDARD_CAUTIONS
+from ..errors import InputError, PrescribeError
+from ..records import SEVERITIES
+from . import form_spec
+from .charts import ProgramCharts
+from .session import IMPACT_LABELS, ClinicSession, EngineMissing
+
+log = logging.getLogger("prescribe.ui")
+
+STYLE = """
+<style>
+.pr-app { max-width: 1100px; font-size: 14px; }
+.pr-app h2 { font-size: 18px; margin: 18px 0 6px 0; border-bottom: 2px solid #1f3b57; color: #1f3b57; }
+.pr-msg { color: #a4161a; font-size: 13px; }
+.pr-cautions { background: #fff8e6; border-left: 4px solid #b35c00; padding: 4px 10px; margin: 6px 0;
+               font-size: 12.5px; }
+.pr-error-box { background: #fde8e8; border: 1px solid #a4161a; padding: 6px 10px; }
+.pr-refusal-box { background: #fde8e8; border-left: 4px solid #a4161a; padding: 4px 10px; }
+.pr-notice-box { background: #e8f1fb; border-left: 4px solid #1f3b57; padding: 4px 10px; }
+.pr-app table.pr-table { border-collapse: collapse; font-size: 13px; }
+.pr-app table.pr-table td, .pr-app table.pr-table th { border: 1px solid #ccd; padding: 2px 6px; text-align: left; }
+.pr-flag-clear_first { border-left: 4px solid #a4161a; padding-left: 6px; margin: 4px 0; }
+.pr-flag-adapt { border-left: 4px solid #b35c00; padding-left: 6px; margin: 4px 0; }
+.pr-flag-note { border-left: 4px solid #6b7785; padding-left: 6px; margin: 4px 0; }
+</style>
+"""
+
+
+def _esc(value: Any) -> str:
+    return html.escape(str(value), quote=True)
+
+
+def cautions_box(extra: list[str] | None = None) -> w.HTML:
+    """The standard cautions (and ``extra`` ones) as a box; every section has one."""
+    items = list(extra) if extra else list(STANDARD_CAUTIONS)
+    box = w.HTML(_cautions_html(items))
+    box.add_class("pr-cautions-box")
+    return box
+
+
+def _cautions_html(items: list[str]) -> str:
+    return ('<div class="pr-cautions"><b>Cautions</b><ul>' +
+            "".join(f"<li>{_esc(c)}</li>" for c in items) + "</ul></div>")
+
+
+def table_html(rows: list[dict], columns: list[str] | None = None, css: str = "") -> str:
+    if not rows:
+        return "<p><i>Nothing yet.</i></p>"
+    columns = columns or list(rows[0])
+    head = "".join(f"<th>{_esc(c.replace('_', ' '))}</th>" for c in columns)
+    body = "".join("<tr>" + "".join(f"<td>{_esc(_cell(r.get(c)))}</td>" for c in columns) + "</tr>" for r in rows)
+    return f'<table class="pr-table {css}"><thead><tr>{head}</tr></thead><tbody>{body}</tbody></table>'
+
+
+def _cell(v: Any) -> str:
+    if v is None:
+        return ""
+    if isinstance(v, bool):
+        return "yes" if v else ""
+    if isinstance(v, float):
+        return f"{v:.1f}"
+    if isinstance(v, (list, tuple)):
+        return ", ".join(str(x) for x in v)
+    return str(v)
+
+
+class ErrorArea:
+    """Where every failure of a callback is shown, in plain words."""
+
+    def __init__(self) -> None:
+        self.widget = w.HTML("")
+        self.widget.add_class("pr-error")
+        self.last: str = ""
+
+    def show(self, text: str) -> None:
+        self.last = text
+        self.widget.value = f'<div class="pr-error-box" role="alert">{_esc(text)}</div>'
+
+    def clear(self) -> None:
+        self.last = ""
+        self.widget.value = ""
+
+
+def guarded(action: str) -> Callable:
+    """Decorate a callback: any exception becomes a readable message in the error area."""
+    def wrap(fn: Callable) -> Callable:
+        @functools.wraps(fn)
+        def inner(self, *args, **kwargs):
+            try:
+                result = fn(self, *args, **kwargs)
+            except EngineMissing as exc:
+                self.errors.show(f"{action}: not available yet ({exc}).")
+            except PrescribeError as exc:
+                self.errors.show(f"{action}: {exc}")
+            except Exception as exc:  # noqa: BLE001 - shown, logged, never lost
+                log.error("%s failed:\n%s", action, traceback.format_exc())
+                if os.environ.get("PRESCRIBE_DEBUG"):
+                    traceback.print_exc(file=sys.stderr)
+                self.errors.show(f"{action} failed ({exc.__class__.__name__}: {exc}). "
+                                 "Nothing was saved by this step; please report it.")
+            else:
+                self.errors.clear()
+                return result
+        return inner
+    return wrap
+
+
+def _text_input(spec: form_spec.FieldSpec) -> w.Widget:
+    if spec.kind == "choice":
+        options = ([("- choose -", None)] if spec.required else [("not given", None)]) + [(c, c) for c in spec.choices]
+        return w.Dropdown(options=options, value=None, layout=w.Layout(width="160px"))
+    return w.Text(value="", placeholder=spec.placeholder, layout=w.Layout(width="160px"), continuous_update=True)
+
+
+class IntakeForm:
+    """The person's details, generated from the record's own field metadata."""
+
+    def __init__(self, errors: ErrorArea) -> None:
+        self.errors = errors
+        self.inputs: dict[str, w.Widget] = {}
+        self.messages: dict[str, w.HTML] = {}
+        rows = []
+        for spec in form_spec.intake_fields():
+            if spec.key == "glucocorticoids.mg_per_day":
+                self.gluco_taken = w.Checkbox(value=False, description="Takes oral glucocorticoids",
+                                              indent=False)
+                self.gluco_taken.add_class("pr-intake-glucocorticoids")
+                rows.append(self.gluco_taken)
+            rows.append(self._row(spec))
+        self.conditions: dict[str, w.Checkbox] = {}
+        cond_boxes = []
+        for code, meaning in form_spec.condition_choices():
+            box = w.Checkbox(value=False, description=code.replace("_", " "), indent=False,
+                             description_tooltip=meaning, layout=w.Layout(width="260px"))
+            box.add_class(f"pr-intake-condition-{code}")
+            self.conditions[code] = box
+            cond_boxes.append(box)
+        self.messages["conditions"] = self._msg("conditions")
+        self.fracture_rows: list[dict[str, w.Widget]] = []
+        self.fracture_box = w.VBox([])
+        self.add_fracture_button = w.Button(description="Add a fracture", icon="plus")
+        self.add_fracture_button.add_class("pr-intake-add-fracture")
+        self.add_fracture_button.on_click(lambda _b: self.add_fracture())
+        self.messages["fractures"] = self._msg("fractures")
+        self.widget = w.VBox([
+            w.HTML("<p>Every box is checked against the record's limits when you press "
+                   "<b>Check and screen</b>. Numbers are typed, never clipped.</p>"),
+            *rows,
+            w.HTML(f"<b>Fractures</b> <small>({_esc(form_spec.fracture_fields()[0].help)} Sites: "
+                   + _esc(", ".join(s for s, _ in form_spec.fracture_sites())) + ")</small>"),
+            self.fracture_box, self.add_fracture_button, self.messages["fractures"],
+            w.HTML("<b>Conditions</b> <small>(hover for what each means)</small>"),
+            w.GridBox(cond_boxes, layout=w.Layout(grid_template_columns="repeat(3, 270px)")),
+            self.messages["conditions"],
+        ])
+        self.widget.add_class("pr-intake")
+
+    def _msg(self, key: str) -> w.HTML:
+        msg = w.HTML("")
+        msg.add_class("pr-msg")
+        msg.add_class(f"pr-msg-{key.replace('.', '-')}")
+        return msg
+
+    def _row(self, spec: form_spec.FieldSpec) -> w.Widget:
+        widget = _text_input(spec)
+        widget.add_class(f"pr-intake-{spec.key.replace('.', '-')}")
+        widget.description_allow_html = False
+        widget.tooltip = spec.help
+        self.inputs[spec.key] = widget
+        self.messages[spec.key] = self._msg(spec.key)
+        unit = f" ({spec.unit})" if spec.unit else ""
+        star = " *" if spec.required else ""
+        label = w.HTML(f'<span title="{_esc(spec.help)}">{_esc(spec.label)}{_esc(unit)}{star}</span>',
+                       layout=w.Layout(width="230px"))
+        help_text = w.HTML(f"<small>{_esc(spec.help)}</small>", layout=w.Layout(width="330px"))
+        return w.HBox([label, widget, help_text, self.messages[spec.key]])
+
+    def add_fracture(self, site: str | None = None, months_ago: Any = "", low_trauma: bool = True) -> None:
+        index = len(self.fracture_rows)
+        row = {
+            "site": w.Dropdown(options=[("- site -", None)] + [(s, s) for s, _ in form_spec.fracture_sites()],
+                               value=site, layout=w.Layout(width="140px")),
+            "months_ago": w.Text(value=str(months_ago), placeholder="months ago", layout=w.Layout(width="110px")),
+            "low_trauma": w.Checkbox(value=low_trauma, description="low trauma (fragility)", indent=False),
+        }
+        for key, widget in row.items():
+            widget.add_class(f"pr-intake-fracture-{index}-{key}")
+        remove = w.Button(description="Remove", layout=w.Layout(width="80px"))
+        box = w.HBox([row["site"], row["months_ago"], row["low_trauma"], remove])
+        row["_box"] = box
+
+        def _remove(_b, row=row):
+            self.fracture_rows.remove(row)
+            self.fracture_box.children = [r["_box"] for r in self.fracture_rows]
+        remove.on_click(_remove)
+        self.fracture_rows.append(row)
+        self.fracture_box.children = [r["_box"] for r in self.fracture_rows]
+
+    def data(self) -> dict:
+        """The record dict from what is in the boxes (validated by the session)."""
+        values = {k: v.value for k, v in self.inputs.items()}
+        fractures = [{k: v.value for k, v in row.items() if not k.startswith("_")} for row in self.fracture_rows]
+        conditions = [c for c, box in self.conditions.items() if box.value]
+        return form_spec.record_data(values, fractures, conditions, self.gluco_taken.value)
+
+    def show_problems(self, problems: dict[str, str]) -> None:
+        """Each message beside its field; fields without a box of their own go to the nearest one."""
+        shown = {k: [] for k in self.messages}
+        for field, message in problems.items():
+            key = field if field in shown else field.split("[")[0].split(".")[0]
+            if key == "glucocorticoids":
+                key = "glucocorticoids.mg_per_day"
+            if key == "t_scores":
+                key = "t_scores.lumbar_spine"
+            shown.setdefault(key, []).append(message)
+        for key, msgs in shown.items():
+            if key in self.messages:
+                self.messages[key].value = "<br>".join(_esc(m) for m in msgs)
+            elif msgs:
+                self.errors.show(" ".join(msgs))
+
+    def fill(self, record: dict) -> None:
+        """Show a saved record in the boxes."""
+        for key, value in form_spec.form_values(record).items():
+            self.inputs[key].value = value if value is not None else None if isinstance(
+                self.inputs[key], w.Dropdown) else ""
+        self.gluco_taken.value = bool(record.get("glucocorticoids"))
+        self.fracture_rows.clear()
+        self.fracture_box.children = []
+        for fx in record.get("fractures") or []:
+            self.add_fracture(fx["site"], fx["months_ago"], fx["low_trauma"])
+        for code, box in self.conditions.items():
+            box.value = code in (record.get("conditions") or [])
+        self.show_problems({})
+
+    def clear(self) -> None:
+        for widget in self.inputs.values():
+            widget.value = None if isinstance(widget, w.Dropdown) else ""
+        self.gluco_taken.value = False
+        self.fracture_rows.clear()
+        self.fracture_box.children = []
+        for box in self.conditions.values():
+            box.value = False
+        self.show_problems({})
+
+
+def screening_html(screening) -> str:
+    """The screening at a glance, then every flag with its reason and source."""
+    if screening is None:
+        return "<p><i>Check the person's details to see the screening.</i></p>"
+    s = screening
+    t = "" if s.lowest_t_score is None else f" (lowest T-score {s.lowest_t_score:g}" + (
+        f" at {_esc(s.lowest_t_score_site.replace('_', ' '))})" if s.lowest_t_score_site else ")")
+    glance = [
+        ("Bone density category", s.bone_density_category.replace("_", " ") + t),
+        ("Falls risk", "yes" if s.falls_risk else "no"),
+        ("Highest impact level allowed", IMPACT_LABELS.get(s.max_impact_level, s.max_impact_level)),
+        ("Movement patterns to avoid", ", ".join(p.replace("_", " ") for p in s.avoid) or "none"),
+        ("Clinician clearance needed before loading", "YES" if s.refer else "no"),
+        ("Balance work first", "yes" if s.balance_first else "no"),
+        ("Supervised sessions", "yes" if s.supervision else "no"),
+    ]
+    rows = "".join(f'<tr class="pr-glance-{i}"><th>{_esc(k)}</th><td>{_esc(v)}</td></tr>' for i, (k, v) in enumerate(glance))
+    flags = "".join(
+        f'<div class="pr-flag pr-flag-{_esc(f.severity)}" data-rule="{_esc(f.rule)}"><b>{_esc(f.title or f.rule)}</b> '
+        f'<small>[{_esc(SEVERITIES.get(f.severity, f.severity))}]</small><br>{_esc(f.message)}'
+        f'<br><small>Source: {_esc(f.source)}</small></div>' for f in s.flags) or "<p>No rule fired.</p>"
+    version = f"<p><small>Rule set {_esc(s.ruleset_version)}</small></p>" if s.ruleset_version else ""
+    return (f'<table class="pr-table pr-glance">{rows}</table><h3>Flags ({len(s.flags)})</h3>'
+            f'<div class="pr-flags">{flags}</div>{version}')
+
+
+class ClinicApp:
+    """The whole app: build it, then display ``.widget`` (the last cell of apps/clinic.ipynb)."""
+
+    def __init__(self, session: ClinicSession | None = None) -> None:
+        self.session = session or ClinicSession()
+        self.errors = ErrorArea()
+        self._syncing = False
+        self.intake = IntakeForm(self.errors)
+        self._build_person_section()
+        self._build_screening_section()
+        self._build_program_section()
+        self._build_handout_section()
+        self._build_store_section()
+        title = w.HTML("<h1 style='font-size:22px;margin:4px 0'>prescribe: bone-loading program builder</h1>"
+                       "<p>Decision support for clinicians. Work down the page: person, screening, program, "
+                       "handout, save.</p>")
+        self.widget = w.VBox([w.HTML(STYLE), title, self.errors.widget, cautions_box(),
+                              self.person_section, self.screening_section, self.program_section,
+                              self.handout_section, self.store_section])
+        self.widget.add_class("pr-app")
+        self.refresh()
+
+    @classmethod
+    def from_environment(cls) -> "ClinicApp":
+        """The app over the store named by ``PRESCRIBE_DB`` (see prescribe.settings)."""
+        from ..settings import db_url
+        return cls(ClinicSession(store_url=db_url()))
+
+    # -- building ------------------------------------------------------------------
+    @staticmethod
+    def _section(title: str, css: str, children: list) -> w.VBox:
+        box = w.VBox([w.HTML(f"<h2>{_esc(title)}</h2>"), *children, cautions_box()])
+        box.add_class(css)
+        return box
+
+    @staticmethod
+    def _button(text: str, css: str, style: str = "") -> w.Button:
+        button = w.Button(description=text, button_style=style, layout=w.Layout(width="auto"))
+        button.add_class(css)
+        return button
+
+    def _build_person_section(self) -> None:
+        self.submit_button = self._button("Check and screen", "pr-intake-submit", "primary")
+        self.submit_button.on_click(lambda _b: self.on_submit())
+        self.new_button = self._button("New person", "pr-new-person")
+        self.new_button.on_click(lambda _b: self.on_new())
+        self.load_select = w.Dropdown(options=[], description="Saved people", layout=w.Layout(width="340px"))
+        self.load_select.add_class("pr-load-select")
+        self.load_button = self._button("Open", "pr-load-button")
+        self.load_button.on_click(lambda _b: self.on_load())
+        self.intake_status = w.HTML("")
+        self.intake_status.add_class("pr-intake-status")
+        self.person_section = self._section("1. Person", "pr-section-person", [
+            w.HBox([self.load_select, self.load_button, self.new_button]),
+            self.intake.widget, w.HBox([self.submit_button, self.intake_status])])
+
+    def _build_screening_section(self) -> None:
+        self.screening_view = w.HTML("")
+        self.screening_view.add_class("pr-screening")
+        self.screening_section = self._section("2. Screening", "pr-section-screening", [self.screening_view])
+
+    def _build_program_section(self) -> None:
+        self.start_level = w.Dropdown(options=[(v, k) for k, v in IMPACT_LABELS.items()], value=None,
+                                      description="Start level", style={"description_width": "90px"})
+        self.start_level.add_class("pr-option-start_level")
+        self.weeks = w.Text(value="", placeholder="weeks", description="Weeks",
+                            continuous_update=False, layout=w.Layout(width="170px"))
+        self.weeks.add_class("pr-option-weeks")
+        self.sessions: dict[str, w.Dropdown] = {}
+        for kind in ("impact", "resistance", "balance"):
+            dd = w.Dropdown(options=[("default", None)] + [(str(n), n) for n in range(0, 8)], value=None,
+                            description=f"{kind.capitalize()} sessions / week",
+                            style={"description_width": "170px"}, layout=w.Layout(width="260px"))
+            dd.add_class(f"pr-option-{kind}_sessions_per_week")
+            self.sessions[kind] = dd
+        for control in (self.start_level, *self.sessions.values()):
+            control.observe(lambda ch: self.on_option_change(), names="value")
+        self.weeks.observe(lambda ch: self.on_option_change(), names="value")
+        self.exercise_select = w.Dropdown(options=[], description="Exercise", layout=w.Layout(width="360px"))
+        self.exercise_select.add_class("pr-exercise-select")
+        self.exercise_select.observe(lambda ch: self._refresh_swap_candidates(), names="value")
+        self.replacement_select = w.Dropdown(options=[], description="Swap for", layout=w.Layout(width="360px"))
+        self.replacement_select.add_class("pr-replacement-select")
+        self.swap_button = self._button("Swap", "pr-swap-button")
+        self.swap_button.on_click(lambda _b: self.on_swap())
+        self.exclude_button = self._button("Leave out", "pr-exclude-button")
+        self.exclude_button.on_click(lambda _b: self.on_exclude())
+        self.refusal = w.HTML("")
+        self.refusal.add_class("pr-refusal")
+        self.charts = ProgramCharts()
+        self.dose = w.HTML("")
+        self.dose.add_class("pr-dose")
+        self.week_table = w.HTML("")
+        self.week_table.add_class("pr-week-table")
+        self.program_section = self._section("3. Program", "pr-section-program", [
+            w.HBox([self.start_level, self.weeks]),
+            w.HBox(list(self.sessions.values())),
+            w.HBox([self.exercise_select, self.replacement_select, self.swap_button, self.exclude_button]),
+            self.refusal, self.dose, *self.charts.figures, self.week_table])
+
+    def _build_handout_section(self) -> None:
+        self.audience = w.Dropdown(options=[("for the person", "patient"), ("for the clinician", "clinician")],
+                                   value="patient", description="Handout")
+        self.audience.add_class("pr-handout-audience")
+        self.paper = w.Dropdown(options=["A4", "letter"], value="A4", description="Paper")
+        self.paper.add_class("pr-handout-paper")
+        self.preview_button = self._button("Preview", "pr-handout-preview")
+        self.preview_button.on_click(lambda _b: self.on_preview())
+        self.pdf_button = self._button("Prepare PDF", "pr-handout-make-pdf")
+        self.pdf_button.on_click(lambda _b: self.on_prepare("pdf"))
+        self.html_button = self._button("Prepare HTML", "pr-handout-make-html")
+        self.html_button.on_click(lambda _b: self.on_prepare("html"))
+        self.download = w.HTML("")
+        self.download.add_class("pr-handout-download")
+        self.preview = w.HTML("")
+        self.preview.add_class("pr-handout-frame")
+        self.handout_section = self._section("4. Handout", "pr-section-handout", [
+            w.HBox([self.audience, self.paper]),
+            w.HBox([self.preview_button, self.pdf_button, self.html_button, self.download]), self.preview])
+
+    def _build_store_section(self) -> None:
+        self.clinician = w.Text(value=self.session.clinician, description="Clinician",
+                                placeholder="your name or initials")
+        self.clinician.add_class("pr-store-clinician")
+        self.save_button = self._button("Save person and program", "pr-store-save", "success")
+        self.save_button.on_click(lambda _b: self.on_save())
+        self.store_status = w.HTML("")
+        self.store_status.add_class("pr-store-status")
+        self.history = w.HTML("")
+        self.history.add_class("pr-store-history")
+        self.store_section = self._section("5. Save and history", "pr-section-store", [
+            w.HBox([self.clinician, self.save_button]), self.store_status,
+            w.HTML("<b>Program versions</b>"), self.history])
+
+    # -- callbacks -------------------------------------------------------------------
+    @guarded("Checking the details")
+    def on_submit(self) -> bool:
+        ok = self.session.submit(self.intake.data())
+        self.intake.show_problems(self.session.problems)
+        n = len(self.session.problems)
+        self.intake_status.value = (f'<span class="pr-msg">{n} field{"s" if n != 1 else ""} to correct '
+                                    f'(see the messages beside them). Nothing was screened or saved.</span>'
+                                    if not ok else "<span>Details checked; screening and program below.</span>")
+        self.refresh()
+        return ok
+
+    @guarded("Starting a new person")
+    def on_new(self) -> None:
+        self.session.reset()
+        self.intake.clear()
+        self.intake_status.value = ""
+        self.store_status.value = ""
+        self.refresh()
+
+    @guarded("Opening the saved person")
+    def on_load(self) -> None:
+        patient_id = self.load_select.value
+        if not patient_id:
+            raise InputError.single("saved person", patient_id, "a person chosen from the list")
+        self.session.load(patient_id)
+        self.intake.fill(self.session.record.model_dump(mode="json"))
+        self.intake_status.value = f"<span>Opened {_esc(patient_id)}.</span>"
+        self.refresh()
+
+    @guarded("Changing the program")
+    def on_option_change(self) -> None:
+        if self._syncing or self.session.record is None:
+            return
+        changes: dict[str, Any] = {}
+        if self.start_level.value is not None:
+            changes["start_level"] = self.start_level.value
+        weeks = form_spec.convert_text(self.weeks.value, "integer")
+        if weeks is not None:
+            changes["weeks"] = weeks
+        for kind, dd in self.sessions.items():
+            if dd.value is not None:
+                changes[f"{kind}_sessions_per_week"] = dd.value
+        self.session.build(**changes)
+        self.refresh()
+
+    @guarded("Swapping the exercise")
+    def on_swap(self) -> None:
+        if not self.exercise_select.value or not self.replacement_select.value:
+            raise InputError.single("swap", None, "an exercise and a replacement chosen from the lists")
+        self.session.swap(self.exercise_select.value, self.replacement_select.value)
+        self.refresh()
+
+    @guarded("Leaving the exercise out")
+    def on_exclude(self) -> None:
+        if not self.exercise_select.value:
+            raise InputError.single("exercise", None, "an exercise chosen from the list")
+        self.session.exclude(self.exercise_select.value)
+        self.refresh()
+
+    @guarded("Previewing the handout")
+    def on_preview(self) -> None:
+        doc = self.session.handout("html", self.audience.value, self.paper.value).decode("utf-8")
+        self.preview.value = (f'<iframe class="pr-handout-iframe" title="handout preview" srcdoc="{_esc(doc)}" '
+                              'style="width:100%;height:640px;border:1px solid #ccd;background:white"></iframe>')
+
+    @guarded("Preparing the handout")
+    def on_prepare(self, fmt: str) -> None:
+        data = self.session.handout(fmt, self.audience.value, self.paper.value)
+        mime = "application/pdf" if fmt == "pdf" else "text/html"
+        name = f"handout-{self.session.record.patient_id}.{fmt}"
+        link = (f'<a class="pr-download-{fmt}" download="{_esc(name)}" '
+                f'href="data:{mime};base64,{base64.b64encode(data).decode("ascii")}">Download {fmt.upper()} '
+                f'({len(data) // 1024 + 1} kB)</a>')
+        self.download.value = link
+
+    @guarded("Saving")
+    def on_save(self) -> None:
+        version = self.session.save(self.clinician.value.strip())
+        pid = self.session.record.patient_id
+        if self.session.notice:
+            self.store_status.value = f'<div class="pr-notice-box">{_esc(self.session.notice)}</div>'
+        else:
+            what = f"program version {version}" if version else "record (no program yet)"
+            self.store_status.value = f'<div class="pr-notice-box">Saved {_esc(pid)}: {what}.</div>'
+        self.refresh()
+
+    # -- redraw ------------------------------------------------------------------------
+    def refresh(self) -> None:
+        """Make every section show the session's current state."""
+        s = self.session
+        self.screening_view.value = screening_html(s.screening)
+        self.refusal.value = (f'<div class="pr-refusal-box" role="alert">{_esc(s.refusal)}</div>'
+                              if s.refusal else "")
+        self._syncing = True
+        try:
+            first_level = s.plan.weeks[0].impact_level if s.plan else None
+            self.start_level.value = s.options.get("start_level", first_level)
+            self.weeks.value = str(s.options.get("weeks", len(s.plan.weeks) if s.plan else ""))
+            for kind, dd in self.sessions.items():
+                dd.value = s.options.get(f"{kind}_sessions_per_week")
+            self.exercise_select.options = [(f"{n} ({i})", i) for i, n in s.plan_exercises()]
+        finally:
+            self._syncing = False
+        self._refresh_swap_candidates()
+        self.charts.update(s.chart_series())
+        figures = s.dose_figures()
+        self.dose.value = ("<p>" + " &middot; ".join(f"{_esc(k.replace('_', ' '))}: <b>{_esc(v)}</b>"
+                                                     for k, v in figures.items()) + "</p>") if figures else ""
+        self.week_table.value = table_html(s.week_rows(), css="pr-weeks")
+        if s.plan is None:
+            self.preview.value = ""
+            self.download.value = ""
+        self._refresh_store()
+
+    def _refresh_swap_candidates(self) -> None:
+        try:
+            current = self.exercise_select.value
+            self.replacement_select.options = ([(f"{n} ({i})", i) for i, n in self.session.swap_candidates(current)]
+                                               if current else [])
+        except EngineMissing:
+            self.replacement_select.options = []
+
+    def _refresh_store(self) -> None:
+        try:
+            people = self.session.saved_people()
+            versions = self.session.versions()
+        except EngineMissing:
+            self.history.value = "<p><i>The store is not available in this version.</i></p>"
+            return
+        except PrescribeError as exc:
+            self.history.value = f'<p class="pr-msg">The store could not be read: {_esc(exc)}</p>'
+            return
+        current = self.load_select.value
+        self.load_select.options = [("- choose -", None)] + [(p, p) for p in people]
+        if current in people:
+            self.load_select.value = current
+        self.history.value = table_html(versions)
