@@ -67,7 +67,7 @@ def _nested(def_name: str, prop: str) -> dict:
 
 def _spec_from_node(key: str, node: dict, loc: tuple, required: bool) -> FieldSpec:
     kind = "choice" if "enum" in node else node.get("type", "string")
-    label = node.get("label") or node.get("title") or key
+    label = node.get("label") or f"{FIELD_META[loc[0]]['label']} - {str(loc[-1]).replace('_', ' ')}"
     soft = node.get("soft_range")
     return FieldSpec(key=key, label=label, kind=kind, unit=node.get("unit"), help=node.get("description", ""),
                      allowed=describe_allowed(loc), required=required,

@@ -32,8 +32,9 @@ STYLE = """
 .pr-app { max-width: 1100px; font-size: 14px; }
 .pr-app h2 { font-size: 18px; margin: 18px 0 6px 0; border-bottom: 2px solid #1f3b57; color: #1f3b57; }
 .pr-msg { color: #a4161a; font-size: 13px; }
-.pr-cautions { background: #fff8e6; border-left: 4px solid #b35c00; padding: 4px 10px; margin: 6px 0;
-               font-size: 12.5px; }
+.pr-cautions { background: #fff8e6; border-left: 4px solid #b35c00; padding: 2px 10px; margin: 6px 0;
+               font-size: 12px; line-height: 1.35; }
+.pr-cautions ul { margin: 2px 0; padding-left: 18px; }
 .pr-error-box { background: #fde8e8; border: 1px solid #a4161a; padding: 6px 10px; }
 .pr-refusal-box { background: #fde8e8; border-left: 4px solid #a4161a; padding: 4px 10px; }
 .pr-notice-box { background: #e8f1fb; border-left: 4px solid #1f3b57; padding: 4px 10px; }
