@@ -1,0 +1,94 @@
+"""``prescribe screen``: screen one person (JSON record) or a caseload (CSV)."""
+
+from __future__ import annotations
+
+import sys
+from collections import Counter
+
+from ..cautions import with_standard
+from ..errors import InputError
+from ..records import load_record
+from .output import emit_json, emit_table
+
+_CATEGORIES = ("normal", "osteopenia", "osteoporosis", "severe_osteoporosis", "unknown")
+
+
+def register(sub) -> None:
+    p = sub.add_parser(
+        "screen", help="screen a patient record (or a caseload CSV) against the rule library",
+        description="Screen a patient record against the rule library and print the result as JSON. "
+                    "With --batch, screen every row of a caseload CSV and write one result row a person. "
+                    "Decision support only: a licensed clinician reviews every result.")
+    p.add_argument("patient", nargs="?", metavar="PATIENT.json", help="the patient record (JSON)")
+    p.add_argument("--table", action="store_true", help="print a readable table of the flags instead of JSON")
+    p.add_argument("--batch", metavar="IN.csv", help="caseload CSV, one person a row (see docs/rules.md)")
+    p.add_argument("--out", metavar="OUT.csv", help="where --batch writes the results CSV")
+    p.set_defaults(func=run)
+
+
+def run(args) -> int:
+    if args.batch:
+        if args.patient:
+            raise InputError.single("PATIENT.json", args.patient, "no patient file together with --batch")
+        if not args.out:
+            raise InputError.single("--out", None, "a path for the results CSV (required with --batch)")
+        return _run_batch(args.batch, args.out)
+    if args.out:
+        raise InputError.single("--out", args.out, "used only together with --batch")
+    if not args.patient:
+        raise InputError.single("PATIENT.json", None, "a patient record file, or --batch IN.csv --out OUT.csv")
+    from ..screening import screen
+
+    result = screen(load_record(args.patient))
+    if args.table:
+        _print_table(result)
+    else:
+        emit_json(result)
+    return 0
+
+
+def _print_table(result) -> None:
+    out = sys.stdout
+    out.write(f"Patient {result.patient_id}  (rule set {result.ruleset_version})\n")
+    lowest = "not measured" if result.lowest_t_score is None else \
+        f"{result.lowest_t_score:g} at {result.lowest_t_score_site.replace('_', ' ')}"
+    out.write(f"Bone density: {result.bone_density_category.replace('_', ' ')}  (lowest T-score: {lowest})\n")
+    out.write(f"Highest impact level allowed: {result.max_impact_level}\n")
+    out.write(f"Falls risk: {'yes' if result.falls_risk else 'no'}   "
+              f"Balance first: {'yes' if result.balance_first else 'no'}   "
+              f"Supervision: {'yes' if result.supervision else 'no'}   "
+              f"Clearance/referral before loading: {'YES' if result.refer else 'no'}\n")
+    out.write(f"Avoid: {', '.join(result.avoid) if result.avoid else 'nothing listed'}\n\n")
+    if result.flags:
+        emit_table([{"severity": f.severity, "rule": f.rule, "cap": f.max_impact_level, "title": f.title}
+                    for f in result.flags], ["severity", "rule", "cap", "title"], out)
+        out.write("\n")
+        for f in result.flags:
+            out.write(f"- {f.rule}: {f.message}\n  Source: {f.source}\n")
+    else:
+        out.write("No rule fired.\n")
+    out.write("\nCautions:\n")
+    for c in result.cautions:
+        out.write(f"- {c}\n")
+
+
+def _run_batch(in_path: str, out_path: str) -> int:
+    from ..batch_io import read_batch_csv, write_results_csv
+    from ..screening import RULESET_VERSION, screen_batch
+
+    frame = read_batch_csv(in_path)          # raises InputError before anything is written
+    results = screen_batch(frame)
+    write_results_csv(results, out_path)     # atomic: whole file or nothing
+    counts = Counter(results["bone_density_category"].tolist())
+    emit_json({
+        "input": in_path,
+        "output": out_path,
+        "patients": int(len(results)),
+        "ruleset_version": RULESET_VERSION,
+        "by_category": {c: int(counts.get(c, 0)) for c in _CATEGORIES},
+        "refer": int(results["refer"].sum()),
+        "falls_risk": int(results["falls_risk"].sum()),
+        "by_max_impact_level": {str(k): int((results["max_impact_level"] == k).sum()) for k in range(4)},
+        "cautions": with_standard(),
+    })
+    return 0
