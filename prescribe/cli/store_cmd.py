@@ -1,0 +1,144 @@
+"""``prescribe db init | db backup``, ``prescribe save``, ``prescribe export`` and ``prescribe import``.
+
+Input is checked completely before the store is opened, so bad input (exit 2)
+writes nothing, not even a new empty store.  A person who is not in the store is
+bad input too (exit 2, naming the id); a conflict with what is stored exits 1
+with a message naming the versions.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import sys
+import tempfile
+from pathlib import Path
+
+from ..errors import InputError, NotFoundError
+from ..records import load_record, read_json_file
+from .output import emit_json
+
+DB_HELP = ("the store: a file path or a database URL (default: $PRESCRIBE_DB, else "
+           "~/.local/share/prescribe/prescribe.db)")
+
+
+def register(sub) -> None:
+    db = sub.add_parser("db", help="create, migrate or back up the record store")
+    db_sub = db.add_subparsers(dest="db_command", metavar="DB_COMMAND")
+    db_sub.required = True
+    p = db_sub.add_parser("init", help="create the store, or migrate an older one to this version")
+    p.add_argument("--db", help=DB_HELP)
+    p.set_defaults(func=run_init)
+    p = db_sub.add_parser("backup", help="a consistent copy of the store, safe while the app is in use")
+    p.add_argument("file", metavar="FILE", help="where to write the copy (must not exist unless --force)")
+    p.add_argument("--force", action="store_true", help="replace FILE if it exists")
+    p.add_argument("--db", help=DB_HELP)
+    p.set_defaults(func=run_backup)
+
+    p = sub.add_parser("save", help="store a person's record and its screening")
+    p.add_argument("patient_file", metavar="PATIENT.json", help="the patient record (JSON)")
+    p.add_argument("--clinician", default="", help="who is saving (free text, for the audit log)")
+    p.add_argument("--db", help=DB_HELP)
+    p.set_defaults(func=run_save)
+
+    p = sub.add_parser("export", help="a person with all screenings and program versions, as one JSON bundle")
+    p.add_argument("patient_id", metavar="PATIENT_ID")
+    p.add_argument("--out", help="write the bundle to this file instead of stdout")
+    p.add_argument("--db", help=DB_HELP)
+    p.set_defaults(func=run_export)
+
+    p = sub.add_parser("import", help="add a person from a bundle written by `prescribe export`")
+    p.add_argument("bundle_file", metavar="BUNDLE.json")
+    p.add_argument("--db", help=DB_HELP)
+    p.set_defaults(func=run_import)
+
+
+def _open(args, create: bool = True):
+    from ..store import open_store  # SQLAlchemy loads only for the store's commands
+    return open_store(args.db, create=create)
+
+
+def run_init(args) -> int:
+    from ..store import HEAD_REVISION
+    with _open(args) as store:
+        emit_json({"db": store.where, "revision": store.revision(), "head_revision": HEAD_REVISION,
+                   "people": len(store.list_patients())})
+    return 0
+
+
+def run_backup(args) -> int:
+    with _open(args, create=False) as store:
+        emit_json(store.backup(args.file, force=args.force))
+    return 0
+
+
+def run_save(args) -> int:
+    record = load_record(args.patient_file)  # bad input stops here, before the store is touched
+    screening, note = _screen(record)
+    with _open(args) as store:
+        saved = store.save_patient(record, screening, clinician=args.clinician)
+    out = {**saved, "db": store.where}
+    if screening is not None:
+        out["screening"] = {k: getattr(screening, k) for k in (
+            "bone_density_category", "falls_risk", "max_impact_level", "avoid", "refer", "ruleset_version")}
+        out["screening"]["flags"] = [f.rule for f in screening.flags]
+        out["cautions"] = list(screening.cautions)
+    else:
+        from ..cautions import with_standard
+        out["screening"] = None
+        out["cautions"] = with_standard()
+        print(f"prescribe save: {note}", file=sys.stderr)
+    emit_json(out)
+    return 0
+
+
+def _screen(record):
+    """Screen the record with the rules, when the screening engine is installed."""
+    try:
+        from ..screening import screen
+    except ImportError as exc:
+        if exc.name not in ("prescribe.screening",):
+            raise
+        return None, "the screening engine is not available: the record was stored without a screening"
+    return screen(record), ""
+
+
+def run_export(args) -> int:
+    with _open(args, create=False) as store:
+        try:
+            bundle = store.export_patient(args.patient_id)
+        except NotFoundError:
+            raise InputError.single("PATIENT_ID", args.patient_id,
+                                    f"the id of a person in the store at {store.where}") from None
+    if args.out:
+        _write_atomically(Path(args.out), json.dumps(bundle, indent=2, ensure_ascii=False) + "\n")
+        emit_json({"patient_id": args.patient_id, "out": args.out, "screenings": len(bundle["screenings"]),
+                   "program_versions": len(bundle["programs"])})
+    else:
+        emit_json(bundle)
+    return 0
+
+
+def run_import(args) -> int:
+    from ..store import parse_bundle
+    data = read_json_file(args.bundle_file, "bundle file")
+    bundle = parse_bundle(data, source=args.bundle_file)  # bad input stops here, before the store is touched
+    with _open(args) as store:
+        result = store.import_bundle(bundle)
+        result["db"] = store.where
+    emit_json(result)
+    return 0
+
+
+def _write_atomically(path: Path, text: str) -> None:
+    try:
+        fd, tmp = tempfile.mkstemp(prefix=path.name + ".", suffix=".partial", dir=path.parent or ".")
+    except OSError as exc:
+        raise InputError.single("--out", str(path), f"a file in a writable folder ({exc.strerror})") from None
+    try:
+        with os.fdopen(fd, "w", encoding="utf-8") as fh:
+            fh.write(text)
+        os.replace(tmp, path)
+    finally:
+        if os.path.exists(tmp):
+            os.unlink(tmp)

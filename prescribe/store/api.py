@@ -1,0 +1,742 @@
+"""The clinic record store: people, screenings, program versions and an audit log.
+
+SQLAlchemy 2 (Core) over SQLite by default; the same code runs on PostgreSQL
+given its URL.  Every save is one transaction.  On SQLite each connection runs
+in WAL mode with foreign keys on, a 10 s busy timeout and ``synchronous=FULL``,
+and write transactions start with ``BEGIN IMMEDIATE`` so that two writers queue
+for the lock instead of failing with "database is locked" when a read lock is
+upgraded.  Schema migrations (Alembic, shipped in ``migrations/``) run on open;
+a database already at the newest revision skips Alembic entirely.
+
+A file that is not a prescribe store (random bytes, another program's SQLite
+database, a store from a newer version) is refused with :class:`StoreError`
+before anything is written to it.
+
+Nothing is ever overwritten silently: a program save names the version it was
+based on and is refused (:class:`ConflictError`) when that is not the latest.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import sqlite3
+import tempfile
+from contextlib import contextmanager
+from datetime import date, datetime, timezone
+from pathlib import Path
+from typing import Any, Iterator
+
+from sqlalchemy import create_engine, event, func, select, text
+from sqlalchemy.engine import Connection, Engine, make_url
+from sqlalchemy.exc import ArgumentError, DBAPIError, IntegrityError, NoSuchModuleError, OperationalError
+
+from .. import __version__
+from ..cautions import STANDARD_CAUTIONS
+from ..errors import ConflictError, FieldProblem, InputError, NotFoundError, StoreError
+from ..plan_schema import parse_plan
+from ..records import PatientRecord, ScreeningResult, parse_record
+from ..settings import db_url
+from . import models as m
+from .bundle import BUNDLE_FORMAT_VERSION, BUNDLE_KIND, parse_bundle
+
+#: The newest schema revision this version knows (a test checks it against Alembic's head).
+HEAD_REVISION = "0002"
+#: Every revision this version can open, oldest first, with the tables each has.
+KNOWN_REVISIONS: dict[str, tuple[str, ...]] = {"0001": m.TABLES_0001, "0002": m.TABLES_0002}
+MIGRATIONS_DIR = Path(__file__).with_name("migrations")
+
+#: SQLite settings on every connection (see docs/store.md for why FULL).
+BUSY_TIMEOUT_MS = 10_000
+SQLITE_SYNCHRONOUS = "FULL"
+SQLITE_MAGIC = b"SQLite format 3\x00"
+
+#: Audit actions; "bundle_imported" rows describe this store, not the person, so an
+#: export leaves them out (export(import(export(x))) == export(x)).
+LOCAL_ONLY_ACTIONS = ("bundle_imported",)
+TEMPLATE_STATUSES = ("draft", "approved")
+
+
+def now_utc() -> str:
+    """The current time as ISO 8601 text in UTC with microseconds."""
+    return datetime.now(timezone.utc).isoformat(timespec="microseconds")
+
+
+def open_store(url: str | None = None, *, create: bool = True) -> "Store":
+    """Open (and, if needed, create or migrate) the store.
+
+    Parameters
+    ----------
+    url
+        A path or an SQLAlchemy URL; None uses ``PRESCRIBE_DB`` then the default
+        location (:func:`prescribe.settings.db_url`).
+    create
+        When False, a SQLite file that does not exist is an error instead of
+        being created (for read-only commands such as ``prescribe export``).
+    """
+    return Store(db_url(url), create=create)
+
+
+class Store:
+    """One clinic's records.  Open it with :func:`open_store`; close it with :meth:`close`."""
+
+    def __init__(self, url: str, *, create: bool = True):
+        try:
+            self._url = make_url(url)
+        except ArgumentError:
+            raise InputError.single("db", url, "a file path or a database URL such as "
+                                    "sqlite:////path/to/prescribe.db or postgresql+psycopg://user@host/db") from None
+        self.url = self._url.render_as_string(hide_password=True)
+        self.is_sqlite = self._url.get_backend_name() == "sqlite"
+        self.path: Path | None = None
+        revision: str | None | bool = False  # False: not known before connecting
+        if self.is_sqlite:
+            database = self._url.database
+            if database and database != ":memory:" and not database.startswith("file:"):
+                self.path = Path(database)
+                revision = _check_sqlite_file(self.path, create)
+        self.engine = self._make_engine()
+        try:
+            self._migrate(revision)
+        except BaseException:
+            self.engine.dispose()
+            raise
+
+    # -- plumbing -------------------------------------------------------------------
+
+    @property
+    def where(self) -> str:
+        return str(self.path) if self.path else self.url
+
+    def _make_engine(self) -> Engine:
+        try:
+            if not self.is_sqlite:
+                return create_engine(self._url, pool_pre_ping=True)
+            engine = create_engine(self._url, connect_args={"timeout": BUSY_TIMEOUT_MS / 1000})
+        except (NoSuchModuleError, ModuleNotFoundError, ImportError) as exc:
+            raise StoreError(f"cannot use the database {self.url}: its driver is not installed ({exc}). "
+                             "See docs/store.md for PostgreSQL.") from None
+
+        @event.listens_for(engine, "connect")
+        def _sqlite_settings(dbapi_conn, _record):
+            # pysqlite's own BEGIN handling off: we emit BEGIN ourselves (below).
+            dbapi_conn.isolation_level = None
+            cur = dbapi_conn.cursor()
+            cur.execute(f"PRAGMA busy_timeout = {BUSY_TIMEOUT_MS}")
+            if self.path is not None:
+                cur.execute("PRAGMA journal_mode = WAL")
+            cur.execute("PRAGMA foreign_keys = ON")
+            cur.execute(f"PRAGMA synchronous = {SQLITE_SYNCHRONOUS}")
+            cur.close()
+
+        @event.listens_for(engine, "begin")
+        def _sqlite_begin(conn):
+            # IMMEDIATE takes the write lock at BEGIN (waiting up to the busy timeout),
+            # so a writer never fails on upgrading a read lock.
+            write = conn.get_execution_options().get("prescribe_write", False)
+            conn.exec_driver_sql("BEGIN IMMEDIATE" if write else "BEGIN")
+
+        return engine
+
+    @contextmanager
+    def _errors(self) -> Iterator[None]:
+        """Turn the database's errors into StoreError with a plain message."""
+        try:
+            yield
+        except IntegrityError as exc:
+            raise ConflictError(f"the store at {self.where} refused the save because another save changed the "
+                                f"same rows at the same moment; nothing was overwritten; reload and try again "
+                                f"({exc.orig})") from None
+        except OperationalError as exc:
+            if "locked" in str(exc.orig) or "busy" in str(exc.orig):
+                raise StoreError(f"the store at {self.where} stayed busy for more than "
+                                 f"{BUSY_TIMEOUT_MS // 1000} s (another program is writing to it); "
+                                 "nothing was saved; try again") from None
+            raise StoreError(f"the store at {self.where} could not be used: {exc.orig}") from None
+        except DBAPIError as exc:
+            raise StoreError(f"the store at {self.where} could not be used: {exc.orig}") from None
+
+    @contextmanager
+    def _write(self) -> Iterator[Connection]:
+        """One write transaction (BEGIN IMMEDIATE on SQLite): all of it commits or none."""
+        with self._errors(), self.engine.connect() as conn:
+            conn.execution_options(prescribe_write=True)
+            with conn.begin():
+                yield conn
+
+    @contextmanager
+    def _read(self) -> Iterator[Connection]:
+        """One read transaction: a consistent snapshot."""
+        with self._errors(), self.engine.connect() as conn, conn.begin():
+            yield conn
+
+    def _migrate(self, revision: str | None | bool) -> None:
+        if revision is False:  # not a SQLite file: look before taking the write lock
+            with self._read() as conn:
+                revision = _classify(self.where, set(_table_names(conn)), _read_revision(conn))
+        if revision == HEAD_REVISION:
+            return  # fast path: no Alembic import, no write
+        with self._write() as conn:
+            if self._url.get_backend_name() == "postgresql":
+                # One migrator at a time across processes (released at commit).
+                conn.execute(text("SELECT pg_advisory_xact_lock(7011990)"))
+            revision = _classify(self.where, set(_table_names(conn)), _read_revision(conn))
+            if revision == HEAD_REVISION:
+                return
+            from alembic import command
+            from alembic.config import Config
+
+            cfg = Config()
+            cfg.set_main_option("script_location", str(MIGRATIONS_DIR))
+            cfg.attributes["connection"] = conn
+            command.upgrade(cfg, HEAD_REVISION)
+
+    def revision(self) -> str | None:
+        """The schema revision of the open store."""
+        with self._read() as conn:
+            return _read_revision(conn)
+
+    def close(self) -> None:
+        self.engine.dispose()
+
+    def __enter__(self) -> "Store":
+        return self
+
+    def __exit__(self, *exc) -> None:
+        self.close()
+
+    # -- people and screenings ---------------------------------------------------------
+
+    def save_patient(self, record: PatientRecord, screening: ScreeningResult | None = None,
+                     clinician: str = "") -> dict:
+        """Create or update a person and, if given, append a screening; one transaction.
+
+        Returns ``{patient_id, status (created | updated | unchanged), created, updated,
+        changed_fields, screening_id}``.
+        """
+        if not isinstance(record, PatientRecord):
+            raise InputError.single("record", record, "a validated PatientRecord (prescribe.records.parse_record)")
+        clinician = _clinician(clinician, required=False)
+        if screening is not None:
+            if not isinstance(screening, ScreeningResult):
+                raise InputError.single("screening", screening, "a ScreeningResult or None")
+            if screening.patient_id != record.patient_id:
+                raise InputError.single("screening.patient_id", screening.patient_id,
+                                        f"the record's patient_id {record.patient_id!r}")
+        pid = record.patient_id
+        record_dict = record.model_dump(mode="json")
+        record_json = _dumps(record_dict, "record")
+        at = now_utc()
+        with self._write() as conn:
+            row = conn.execute(select(m.people).where(m.people.c.patient_id == pid).with_for_update()).first()
+            changed: list[str] = []
+            if row is None:
+                status, created, updated = "created", at, at
+                conn.execute(m.people.insert().values(patient_id=pid, record_json=record_json,
+                                                      created=at, updated=at))
+                _audit(conn, at, "person_created", pid, clinician, {})
+            elif row.record_json != record_json:
+                old = json.loads(row.record_json)
+                changed = [k for k in record_dict if old.get(k) != record_dict[k]]
+                status, created, updated = "updated", row.created, at
+                conn.execute(m.people.update().where(m.people.c.patient_id == pid)
+                             .values(record_json=record_json, updated=at))
+                _audit(conn, at, "person_updated", pid, clinician, {"changed_fields": changed})
+            else:
+                status, created, updated = "unchanged", row.created, row.updated
+            screening_id = None
+            if screening is not None:
+                screening_id = _insert_screening(conn, pid, at, clinician, screening.model_dump(mode="json"))
+                _audit(conn, at, "screening_saved", pid, clinician,
+                       {"screening_id": screening_id, "ruleset_version": screening.ruleset_version,
+                        "bone_density_category": screening.bone_density_category})
+        return {"patient_id": pid, "status": status, "created": created, "updated": updated,
+                "changed_fields": changed, "screening_id": screening_id}
+
+    def get_patient(self, patient_id: str) -> PatientRecord:
+        """The stored record of one person (NotFoundError naming the id)."""
+        with self._read() as conn:
+            row = _person(conn, patient_id)
+        return parse_record(json.loads(row.record_json), source=f"store record {patient_id!r}")
+
+    def has_patient(self, patient_id: str) -> bool:
+        with self._read() as conn:
+            return conn.execute(select(m.people.c.patient_id).where(m.people.c.patient_id == patient_id)).first() is not None
+
+    def list_patients(self) -> list[dict]:
+        """Everyone in the store, most recently updated first, with the latest screening
+        category and program version."""
+        with self._read() as conn:
+            latest_screen = (select(m.screenings.c.patient_id, func.max(m.screenings.c.id).label("sid"))
+                             .group_by(m.screenings.c.patient_id).subquery())
+            latest_prog = (select(m.program_versions.c.patient_id,
+                                  func.max(m.program_versions.c.version).label("version"))
+                           .group_by(m.program_versions.c.patient_id).subquery())
+            query = (select(m.people.c.patient_id, m.people.c.created, m.people.c.updated,
+                            m.screenings.c.bone_density_category, m.screenings.c.created.label("screened"),
+                            latest_prog.c.version)
+                     .select_from(m.people)
+                     .outerjoin(latest_screen, latest_screen.c.patient_id == m.people.c.patient_id)
+                     .outerjoin(m.screenings, m.screenings.c.id == latest_screen.c.sid)
+                     .outerjoin(latest_prog, latest_prog.c.patient_id == m.people.c.patient_id)
+                     .order_by(m.people.c.updated.desc(), m.people.c.patient_id))
+            rows = conn.execute(query).all()
+        return [{"patient_id": r.patient_id, "created": r.created, "updated": r.updated,
+                 "latest_category": r.bone_density_category, "latest_screening": r.screened,
+                 "latest_program_version": r.version} for r in rows]
+
+    def screenings(self, patient_id: str) -> list[dict]:
+        """Every screening of one person, oldest first."""
+        with self._read() as conn:
+            _person(conn, patient_id)
+            rows = conn.execute(select(m.screenings).where(m.screenings.c.patient_id == patient_id)
+                                .order_by(m.screenings.c.created, m.screenings.c.id)).all()
+        return [{"screening_id": r.id, "created": r.created, "ruleset_version": r.ruleset_version,
+                 "clinician": r.clinician, "result": json.loads(r.result_json)} for r in rows]
+
+    # -- programs -------------------------------------------------------------------------
+
+    def save_program(self, patient_id: str, plan: dict, clinician: str, based_on_version: int | None,
+                     note: str = "") -> int:
+        """Save a new version of a person's program and return its number.
+
+        ``based_on_version`` is the version the clinician started from (None for the
+        first version).  When it is not the latest stored version the save is refused
+        with :class:`ConflictError` naming both versions: nothing is overwritten.
+        """
+        clinician = _clinician(clinician, required=True)
+        note = _text(note, "note")
+        if based_on_version is not None and (isinstance(based_on_version, bool)
+                                             or not isinstance(based_on_version, int) or based_on_version < 1):
+            raise InputError.single("based_on_version", based_on_version,
+                                    "a program version number (1 or more) or None for the first version")
+        parsed = parse_plan(plan, source="program")
+        if parsed.patient_id != patient_id:
+            raise InputError.single("plan.patient_id", parsed.patient_id, f"the person's id {patient_id!r}")
+        plan_json = _dumps(plan, "plan")
+        summary_json = _dumps(plan_summary(plan), "plan")
+        at = now_utc()
+        with self._write() as conn:
+            _person(conn, patient_id, lock=True)
+            latest = conn.execute(select(m.program_versions.c.version, m.program_versions.c.clinician,
+                                         m.program_versions.c.created)
+                                  .where(m.program_versions.c.patient_id == patient_id)
+                                  .order_by(m.program_versions.c.version.desc()).limit(1)).first()
+            latest_version = latest.version if latest else None
+            if based_on_version != latest_version:
+                raise _conflict(patient_id, based_on_version, latest)
+            version = (latest_version or 0) + 1
+            conn.execute(m.program_versions.insert().values(
+                patient_id=patient_id, version=version, based_on_version=based_on_version, created=at,
+                clinician=clinician, note=note, summary_json=summary_json, plan_json=plan_json))
+            _audit(conn, at, "program_saved", patient_id, clinician,
+                   {"version": version, "based_on_version": based_on_version, "note": note})
+        return version
+
+    def program_versions(self, patient_id: str) -> list[dict]:
+        """Every saved version of a person's program, oldest first (without the plans)."""
+        with self._read() as conn:
+            _person(conn, patient_id)
+            rows = conn.execute(select(m.program_versions).where(m.program_versions.c.patient_id == patient_id)
+                                .order_by(m.program_versions.c.version)).all()
+        return [{"version": r.version, "based_on_version": r.based_on_version, "clinician": r.clinician,
+                 "created": r.created, "note": r.note, "summary": json.loads(r.summary_json)} for r in rows]
+
+    def latest_program_version(self, patient_id: str) -> int | None:
+        with self._read() as conn:
+            _person(conn, patient_id)
+            return conn.execute(select(func.max(m.program_versions.c.version))
+                                .where(m.program_versions.c.patient_id == patient_id)).scalar()
+
+    def get_program(self, patient_id: str, version: int | None = None) -> dict:
+        """The plan JSON of one version (the latest when ``version`` is None)."""
+        with self._read() as conn:
+            _person(conn, patient_id)
+            query = select(m.program_versions.c.plan_json).where(m.program_versions.c.patient_id == patient_id)
+            if version is None:
+                query = query.order_by(m.program_versions.c.version.desc()).limit(1)
+            else:
+                query = query.where(m.program_versions.c.version == version)
+            row = conn.execute(query).first()
+        if row is None:
+            what = "no saved program" if version is None else f"no program version {version}"
+            raise NotFoundError(f"{patient_id!r} has {what} in the store")
+        return json.loads(row.plan_json)
+
+    # -- session logs and clinic templates (built on by later features) -------------------
+
+    def add_session_log(self, patient_id: str, session_date: str | date, done: Any, *,
+                        program_version: int | None = None, rpe: int | None = None, pain: int | None = None,
+                        notes: str = "", clinician: str = "") -> int:
+        """Record what a person did in one session; returns the log's id.
+
+        ``rpe`` is the session rating of perceived exertion on the 0-10 (CR10) scale
+        (Borg 1982, Med Sci Sports Exerc 14:377-381); ``pain`` is 0-10.
+        """
+        day = _iso_date(session_date, "session_date")
+        for name, value in (("rpe", rpe), ("pain", pain)):
+            if value is not None and (isinstance(value, bool) or not isinstance(value, int) or not 0 <= value <= 10):
+                raise InputError.single(name, value, "a whole number from 0 to 10, or None")
+        done_json = _dumps(done, "done")
+        notes, clinician = _text(notes, "notes"), _clinician(clinician, required=False)
+        at = now_utc()
+        with self._write() as conn:
+            _person(conn, patient_id, lock=True)
+            if program_version is not None and conn.execute(
+                    select(m.program_versions.c.id).where(m.program_versions.c.patient_id == patient_id,
+                                                          m.program_versions.c.version == program_version)).first() is None:
+                raise NotFoundError(f"{patient_id!r} has no program version {program_version} in the store")
+            log_id = conn.execute(m.session_logs.insert().values(
+                patient_id=patient_id, program_version=program_version, session_date=day, done_json=done_json,
+                rpe=rpe, pain=pain, notes=notes, clinician=clinician, created=at)).inserted_primary_key[0]
+            _audit(conn, at, "session_logged", patient_id, clinician,
+                   {"session_log_id": log_id, "session_date": day, "program_version": program_version})
+        return int(log_id)
+
+    def session_logs(self, patient_id: str) -> list[dict]:
+        with self._read() as conn:
+            _person(conn, patient_id)
+            rows = conn.execute(select(m.session_logs).where(m.session_logs.c.patient_id == patient_id)
+                                .order_by(m.session_logs.c.session_date, m.session_logs.c.id)).all()
+        return [_session_row(r) for r in rows]
+
+    def add_template(self, name: str, body: dict, created_by: str) -> int:
+        """Save a new draft version of a clinic template; returns its version number."""
+        name = _text(name, "name", required=True, max_len=120)
+        created_by = _clinician(created_by, required=True)
+        if not isinstance(body, dict):
+            raise InputError.single("body", body, "a JSON object (the template)")
+        body_json = _dumps(body, "body")
+        at = now_utc()
+        with self._write() as conn:
+            latest = conn.execute(select(func.max(m.clinic_templates.c.version))
+                                  .where(m.clinic_templates.c.name == name)).scalar()
+            version = (latest or 0) + 1
+            conn.execute(m.clinic_templates.insert().values(name=name, version=version, body_json=body_json,
+                                                            status="draft", created=at, created_by=created_by))
+            _audit(conn, at, "template_saved", None, created_by, {"name": name, "version": version})
+        return version
+
+    def approve_template(self, name: str, version: int, approved_by: str) -> None:
+        """Mark one template version approved by a named clinician (once)."""
+        approved_by = _clinician(approved_by, required=True)
+        at = now_utc()
+        with self._write() as conn:
+            row = conn.execute(select(m.clinic_templates).where(m.clinic_templates.c.name == name,
+                                                                m.clinic_templates.c.version == version)).first()
+            if row is None:
+                raise NotFoundError(f"no clinic template {name!r} version {version} in the store")
+            if row.status == "approved":
+                raise ConflictError(f"clinic template {name!r} version {version} was already approved by "
+                                    f"{row.approved_by} at {row.approved_at}")
+            conn.execute(m.clinic_templates.update().where(m.clinic_templates.c.id == row.id)
+                         .values(status="approved", approved_by=approved_by, approved_at=at))
+            _audit(conn, at, "template_approved", None, approved_by, {"name": name, "version": version})
+
+    def templates(self, name: str | None = None) -> list[dict]:
+        with self._read() as conn:
+            query = select(m.clinic_templates).order_by(m.clinic_templates.c.name, m.clinic_templates.c.version)
+            if name is not None:
+                query = query.where(m.clinic_templates.c.name == name)
+            rows = conn.execute(query).all()
+        return [{"name": r.name, "version": r.version, "status": r.status, "created": r.created,
+                 "created_by": r.created_by, "approved_by": r.approved_by, "approved_at": r.approved_at,
+                 "body": json.loads(r.body_json)} for r in rows]
+
+    # -- audit, export, import, backup -----------------------------------------------------
+
+    def audit(self, patient_id: str | None = None) -> list[dict]:
+        """The audit log (of one person when ``patient_id`` is given), oldest first."""
+        with self._read() as conn:
+            query = select(m.audit_log).order_by(m.audit_log.c.id)
+            if patient_id is not None:
+                query = query.where(m.audit_log.c.patient_id == patient_id)
+            rows = conn.execute(query).all()
+        return [{"id": r.id, "at": r.at, "action": r.action, "patient_id": r.patient_id,
+                 "clinician": r.clinician, "detail": json.loads(r.detail_json)} for r in rows]
+
+    def export_patient(self, patient_id: str) -> dict:
+        """A person with every screening, program version, session log and audit entry."""
+        with self._read() as conn:
+            return _export(conn, patient_id)
+
+    def import_bundle(self, bundle: dict) -> dict:
+        """Add a person from an exported bundle, timestamps and version numbers kept.
+
+        All or nothing.  A malformed bundle is an :class:`InputError`; a person who is
+        already here with different content is a :class:`ConflictError` (nothing is
+        changed); the same content again is reported ``unchanged``.
+        """
+        b = parse_bundle(bundle)
+        pid = b["person"]["patient_id"]
+        at = now_utc()
+        with self._write() as conn:
+            exists = conn.execute(select(m.people.c.patient_id).where(m.people.c.patient_id == pid)
+                                  .with_for_update()).first()
+            if exists is not None:
+                if _comparable(_export(conn, pid)) == _comparable(b):
+                    return {"patient_id": pid, "status": "unchanged", **_counts(b)}
+                raise ConflictError(
+                    f"{pid!r} is already in the store at {self.where} with different content; importing "
+                    "would overwrite it, so nothing was imported. Export the stored person first, or "
+                    "import into another store.")
+            person = b["person"]
+            conn.execute(m.people.insert().values(patient_id=pid, record_json=_dumps(person["record"], "record"),
+                                                  created=person["created"], updated=person["updated"]))
+            for s in b["screenings"]:
+                _insert_screening(conn, pid, s["created"], s["clinician"], s["result"])
+            for p in b["programs"]:
+                conn.execute(m.program_versions.insert().values(
+                    patient_id=pid, version=p["version"], based_on_version=p["based_on_version"],
+                    created=p["created"], clinician=p["clinician"], note=p["note"],
+                    summary_json=_dumps(plan_summary(p["plan"]), "plan"), plan_json=_dumps(p["plan"], "plan")))
+            for s in b["session_logs"]:
+                conn.execute(m.session_logs.insert().values(
+                    patient_id=pid, program_version=s["program_version"], session_date=s["session_date"],
+                    done_json=_dumps(s["done"], "done"), rpe=s["rpe"], pain=s["pain"], notes=s["notes"],
+                    clinician=s["clinician"], created=s["created"]))
+            for a in b["audit"]:
+                _audit(conn, a["at"], a["action"], pid, a["clinician"], a["detail"])
+            _audit(conn, at, "bundle_imported", pid, "", {"bundle_format_version": b["bundle_format_version"],
+                                                          "tool_version": b["tool_version"], **_counts(b)})
+        return {"patient_id": pid, "status": "imported", **_counts(b)}
+
+    def backup(self, path: str | os.PathLike, force: bool = False) -> dict:
+        """A consistent copy of the store while others keep writing (SQLite's online backup).
+
+        Refuses to replace an existing file unless ``force``.  The copy is written
+        to a temporary file beside the target, checked with ``PRAGMA integrity_check``
+        and then moved into place, so a failed backup never leaves a half file.
+        """
+        if not self.is_sqlite or self.path is None:
+            raise StoreError(f"backup copies SQLite stores only; back up {self.url} with the database's own tools "
+                             "(for PostgreSQL, pg_dump)")
+        target = Path(path).expanduser()
+        if target.resolve() == self.path.resolve():
+            raise InputError.single("backup file", str(path), "a file other than the store itself")
+        if target.exists() and not force:
+            raise InputError.single("backup file", str(path), "a file that does not exist yet (or pass --force)")
+        if target.is_dir():
+            raise InputError.single("backup file", str(path), "a file name, not a directory")
+        try:
+            target.parent.mkdir(parents=True, exist_ok=True)
+            fd, tmp = tempfile.mkstemp(prefix=target.name + ".", suffix=".partial", dir=target.parent)
+            os.close(fd)
+        except OSError as exc:
+            raise StoreError(f"cannot write the backup {target}: {exc}") from None
+        try:
+            with self._errors():
+                raw = self.engine.raw_connection()
+                try:
+                    dst = sqlite3.connect(tmp)
+                    try:
+                        raw.driver_connection.backup(dst)
+                        check = dst.execute("PRAGMA integrity_check").fetchone()[0]
+                        people = dst.execute("SELECT count(*) FROM people").fetchone()[0]
+                        versions = dst.execute("SELECT count(*) FROM program_versions").fetchone()[0]
+                    finally:
+                        dst.close()
+                finally:
+                    raw.close()
+            if check != "ok":
+                raise StoreError(f"the backup copy failed its integrity check ({check}); {target} was not written")
+            os.replace(tmp, target)
+        finally:
+            if os.path.exists(tmp):
+                os.unlink(tmp)
+        return {"backup": str(target), "bytes": target.stat().st_size, "integrity_check": check,
+                "people": people, "program_versions": versions, "revision": HEAD_REVISION}
+
+
+# ---------------------------------------------------------------------------------------
+# helpers
+# ---------------------------------------------------------------------------------------
+
+def _check_sqlite_file(path: Path, create: bool) -> str | None:
+    """Make sure ``path`` is a prescribe store (or nothing yet) without writing to it.
+
+    Returns the schema revision found (None for a new or empty file).
+    """
+    if path.is_dir():
+        raise StoreError(f"{path} is a directory, not a prescribe store file")
+    if not path.exists():
+        if not create:
+            raise StoreError(f"there is no store at {path}; create it with `prescribe db init` "
+                             "(or set PRESCRIBE_DB / --db to the right file)")
+        try:
+            path.parent.mkdir(parents=True, exist_ok=True)
+        except OSError as exc:
+            raise StoreError(f"cannot create the folder for the store {path}: {exc}") from None
+        return None
+    try:
+        with open(path, "rb") as fh:
+            head = fh.read(len(SQLITE_MAGIC))
+    except OSError as exc:
+        raise StoreError(f"cannot read the store {path}: {exc}") from None
+    if not head:
+        return None  # an empty file is an empty SQLite database
+    if head != SQLITE_MAGIC:
+        raise StoreError(f"{path} is not a prescribe store: it is not an SQLite database "
+                         "(it may be corrupted, or another kind of file). It was left unchanged.")
+    try:
+        conn = sqlite3.connect(f"{path.resolve().as_uri()}?mode=ro", uri=True, timeout=BUSY_TIMEOUT_MS / 1000)
+        try:
+            tables = {r[0] for r in conn.execute("SELECT name FROM sqlite_master WHERE type = 'table'")}
+            revision = None
+            if "alembic_version" in tables:
+                row = conn.execute("SELECT version_num FROM alembic_version").fetchone()
+                revision = row[0] if row else None
+        finally:
+            conn.close()
+    except sqlite3.DatabaseError as exc:
+        raise StoreError(f"{path} is not a readable prescribe store ({exc}); it may be corrupted. "
+                         "It was left unchanged.") from None
+    return _classify(str(path), tables, revision)
+
+
+def _classify(where: str, tables: set[str], revision: str | None) -> str | None:
+    """The revision of a database with these tables, or StoreError when it is not ours."""
+    tables = {t for t in tables if not t.startswith("sqlite_")}
+    if not tables:
+        return None
+    if revision is not None and revision not in KNOWN_REVISIONS:
+        raise StoreError(f"{where} is a prescribe store of a newer or unknown schema revision ({revision!r}; this "
+                         f"version of prescribe knows up to {HEAD_REVISION!r}). Upgrade prescribe to open it. "
+                         "It was left unchanged.")
+    if revision is None or not set(KNOWN_REVISIONS[revision]) <= tables:
+        shown = ", ".join(sorted(tables)[:8])
+        raise StoreError(f"{where} is not a prescribe store: it holds other tables ({shown}). "
+                         "It was left unchanged; give --db or PRESCRIBE_DB another file.")
+    return revision
+
+
+def _table_names(conn: Connection) -> list[str]:
+    from sqlalchemy import inspect
+    return inspect(conn).get_table_names()
+
+
+def _read_revision(conn: Connection) -> str | None:
+    if "alembic_version" not in _table_names(conn):
+        return None
+    return conn.execute(text("SELECT version_num FROM alembic_version")).scalar()
+
+
+def _person(conn: Connection, patient_id: str, lock: bool = False):
+    query = select(m.people).where(m.people.c.patient_id == patient_id)
+    row = conn.execute(query.with_for_update() if lock else query).first()
+    if row is None:
+        raise NotFoundError(f"no person with patient_id {patient_id!r} in the store")
+    return row
+
+
+def _insert_screening(conn: Connection, pid: str, at: str, clinician: str, result: dict) -> int:
+    return int(conn.execute(m.screenings.insert().values(
+        patient_id=pid, created=at, ruleset_version=str(result.get("ruleset_version") or ""),
+        bone_density_category=str(result.get("bone_density_category") or "unknown"),
+        clinician=clinician, result_json=_dumps(result, "screening"))).inserted_primary_key[0])
+
+
+def _audit(conn: Connection, at: str, action: str, pid: str | None, clinician: str, detail: dict) -> None:
+    conn.execute(m.audit_log.insert().values(at=at, action=action, patient_id=pid, clinician=clinician,
+                                             detail_json=_dumps(detail, "audit detail")))
+
+
+def _conflict(pid: str, based_on: int | None, latest) -> ConflictError:
+    if latest is None:
+        msg = (f"the program of {pid!r} has no saved version yet, but this save was based on version "
+               f"{based_on}; save it as the first version (based on none)")
+    else:
+        by = f"version {latest.version} (saved by {latest.clinician or 'an unnamed clinician'} at {latest.created})"
+        start = "as a first version" if based_on is None else f"on version {based_on}"
+        msg = (f"the program of {pid!r} is now at {by}, but this save was based {start}. "
+               f"Nothing was overwritten: reload version {latest.version}, reapply your changes and save again")
+    err = ConflictError(msg)
+    err.patient_id, err.based_on_version = pid, based_on
+    err.latest_version = latest.version if latest is not None else None
+    return err
+
+
+def plan_summary(plan: dict) -> dict:
+    """The few plan figures a version list shows."""
+    weeks = plan.get("weeks") or []
+    levels = [w.get("impact_level", 0) for w in weeks if isinstance(w, dict)]
+    return {"weeks": len(weeks), "max_impact_level": max(levels) if levels else None,
+            "ruleset_version": plan.get("ruleset_version"), "plan_created": plan.get("created"),
+            "plan_format_version": plan.get("plan_format_version")}
+
+
+def _session_row(r) -> dict:
+    return {"session_log_id": r.id, "program_version": r.program_version, "session_date": r.session_date,
+            "done": json.loads(r.done_json), "rpe": r.rpe, "pain": r.pain, "notes": r.notes,
+            "clinician": r.clinician, "created": r.created}
+
+
+def _export(conn: Connection, pid: str) -> dict:
+    person = _person(conn, pid)
+    screenings = conn.execute(select(m.screenings).where(m.screenings.c.patient_id == pid)
+                              .order_by(m.screenings.c.created, m.screenings.c.id)).all()
+    programs = conn.execute(select(m.program_versions).where(m.program_versions.c.patient_id == pid)
+                            .order_by(m.program_versions.c.version)).all()
+    sessions = conn.execute(select(m.session_logs).where(m.session_logs.c.patient_id == pid)
+                            .order_by(m.session_logs.c.session_date, m.session_logs.c.id)).all()
+    audit = conn.execute(select(m.audit_log).where(m.audit_log.c.patient_id == pid,
+                                                   m.audit_log.c.action.not_in(LOCAL_ONLY_ACTIONS))
+                         .order_by(m.audit_log.c.id)).all()
+    return {
+        "bundle_format_version": BUNDLE_FORMAT_VERSION,
+        "kind": BUNDLE_KIND,
+        "tool_version": __version__,
+        "cautions": list(STANDARD_CAUTIONS),
+        "person": {"patient_id": person.patient_id, "created": person.created, "updated": person.updated,
+                   "record": json.loads(person.record_json)},
+        "screenings": [{"created": s.created, "ruleset_version": s.ruleset_version, "clinician": s.clinician,
+                        "result": json.loads(s.result_json)} for s in screenings],
+        "programs": [{"version": p.version, "based_on_version": p.based_on_version, "created": p.created,
+                      "clinician": p.clinician, "note": p.note, "plan": json.loads(p.plan_json)}
+                     for p in programs],
+        "session_logs": [{k: v for k, v in _session_row(s).items() if k != "session_log_id"} for s in sessions],
+        "audit": [{"at": a.at, "action": a.action, "clinician": a.clinician, "detail": json.loads(a.detail_json)}
+                  for a in audit],
+    }
+
+
+def _comparable(bundle: dict) -> dict:
+    return {k: v for k, v in bundle.items() if k not in ("tool_version", "cautions")}
+
+
+def _counts(b: dict) -> dict:
+    return {"screenings": len(b["screenings"]), "program_versions": len(b["programs"]),
+            "session_logs": len(b["session_logs"]), "audit_entries": len(b["audit"])}
+
+
+def _dumps(value: Any, field: str) -> str:
+    try:
+        return json.dumps(value, ensure_ascii=False, allow_nan=False)
+    except (TypeError, ValueError) as exc:
+        raise InputError([FieldProblem(field, value, f"plain JSON data without NaN or infinity ({exc})")]) from None
+
+
+def _text(value: Any, field: str, required: bool = False, max_len: int = 10_000) -> str:
+    if not isinstance(value, str) or len(value) > max_len or (required and not value.strip()):
+        need = "non-blank text" if required else "text"
+        raise InputError.single(field, value, f"{need} of at most {max_len} characters")
+    return value
+
+
+def _clinician(value: Any, required: bool) -> str:
+    try:
+        return _text(value, "clinician", required=required, max_len=200)
+    except InputError:
+        need = "the name or initials of the clinician (free text, 1 to 200 characters)"
+        raise InputError.single("clinician", value, need if required else "free text of at most 200 characters") from None
+
+
+def _iso_date(value: Any, field: str) -> str:
+    if isinstance(value, date) and not isinstance(value, datetime):
+        return value.isoformat()
+    if isinstance(value, str):
+        try:
+            return date.fromisoformat(value).isoformat()
+        except ValueError:
+            pass
+    raise InputError.single(field, value, "a date as YYYY-MM-DD")
