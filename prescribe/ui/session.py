@@ -118,8 +118,12 @@ class ClinicSession:
         if self.record is None:
             self.refusal = "Enter and check the person's details first."
             return False
-        build_plan, plan_options = _api("planner", "build_plan"), _api("planner", "PlanOptions")
-        replace, check = _api("planner", "replace_exercise"), _api("planner", "check_plan")
+        try:
+            build_plan, plan_options = _api("planner", "build_plan"), _api("planner", "PlanOptions")
+            replace, check = _api("planner", "replace_exercise"), _api("planner", "check_plan")
+        except EngineMissing as exc:
+            self.refusal = f"The program cannot be built here: {exc}."
+            return False
         options = {**self.options, **changes}
         try:
             plan = build_plan(self.record, self.screening, plan_options(**options))
@@ -253,8 +257,11 @@ class ClinicSession:
         program kept in the session, so nothing is lost.
         """
         if self.record is None:
-            raise InputError.single("record", None, "a checked patient record (press Check first)")
-        who = (clinician if clinician is not None else self.clinician) or "unnamed clinician"
+            raise InputError.single("record", None, "a checked patient record (press Check and screen first)")
+        who = (clinician if clinician is not None else self.clinician).strip()
+        if not who:
+            raise InputError.single("clinician", who, "your name or initials (saved with every version)")
+        self.clinician = who
         self.store.save_patient(self.record, self.screening, who)
         self.notice = None
         if self.plan is None:
@@ -263,60 +270,41 @@ class ClinicSession:
             version = self.store.save_program(self.record.patient_id, self.plan.model_dump(mode="json"), who,
                                               self.saved_version)
         except ConflictError as exc:
-            self.notice = (f"Not saved: {exc} Reload the person to see the newer version; "
-                           "this program stays open here.")
+            self.notice = f"Not saved: {exc}. This program stays open here."
             return None
         self.saved_version = int(version)
         return self.saved_version
 
     def saved_people(self) -> list[str]:
-        """Patient ids in the store (empty when the store is not there yet)."""
-        rows = self.store.list_patients()
-        out = []
-        for row in rows:
-            out.append(row if isinstance(row, str) else _get(row, "patient_id"))
-        return out
+        """Patient ids in the store, most recently updated first."""
+        return [row["patient_id"] for row in self.store.list_patients()]
 
     def versions(self) -> list[dict]:
-        """The program's version history for the current person (newest last)."""
+        """The program's version history for the current person (oldest first), one flat row each."""
         if self.record is None:
             return []
         try:
             rows = self.store.program_versions(self.record.patient_id)
         except NotFoundError:
             return []
-        return [r if isinstance(r, dict) else _as_dict(r) for r in rows]
+        out = []
+        for row in rows:
+            summary = row.get("summary") or {}
+            out.append({"version": row["version"], "based_on_version": row.get("based_on_version"),
+                        "clinician": row.get("clinician"), "saved": row.get("created"),
+                        "weeks": summary.get("weeks"), "max_impact_level": summary.get("max_impact_level"),
+                        "note": row.get("note")})
+        return out
 
-    def load(self, patient_id: str) -> None:
-        """Open a saved person: their record, a fresh screening and their latest program."""
-        found = self.store.get_patient(patient_id)
-        record_data = _get(found, "record", found)
-        if isinstance(record_data, PatientRecord):
-            record_data = record_data.model_dump(mode="json")
+    def load(self, patient_id: str, version: int | None = None) -> None:
+        """Open a saved person: their record, a fresh screening and their program (latest by default)."""
+        record = self.store.get_patient(patient_id)
         self.reset()
-        self.submit(dict(record_data))
-        try:
-            stored = self.store.get_program(patient_id)
-        except NotFoundError:
+        self.submit(record.model_dump(mode="json"))
+        latest = self.store.latest_program_version(patient_id)
+        if latest is None:
             return
-        if stored is None:
-            return
-        plan_data = _get(stored, "plan", stored)
-        version = _get(stored, "version", None)
         from ..plan_schema import parse_plan
-        self.plan = parse_plan(plan_data if isinstance(plan_data, dict) else plan_data.model_dump(mode="json"))
-        self.saved_version = int(version) if version is not None else None
-
-
-def _get(obj: Any, name: str, default: Any = None) -> Any:
-    if isinstance(obj, dict):
-        return obj.get(name, default)
-    return getattr(obj, name, default)
-
-
-def _as_dict(obj: Any) -> dict:
-    if hasattr(obj, "model_dump"):
-        return obj.model_dump(mode="json")
-    if hasattr(obj, "_asdict"):
-        return obj._asdict()
-    return dict(vars(obj))
+        self.plan = parse_plan(self.store.get_program(patient_id, version), source=f"saved program of {patient_id}")
+        self.saved_version = int(latest)
+        self.refusal = None

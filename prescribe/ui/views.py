@@ -152,7 +152,7 @@ class IntakeForm:
         cond_boxes = []
         for code, meaning in form_spec.condition_choices():
             box = w.Checkbox(value=False, description=code.replace("_", " "), indent=False,
-                             description_tooltip=meaning, layout=w.Layout(width="260px"))
+                             tooltip=meaning, layout=w.Layout(width="260px"))
             box.add_class(f"pr-intake-condition-{code}")
             self.conditions[code] = box
             cond_boxes.append(box)
@@ -412,7 +412,7 @@ class ClinicApp:
             w.HBox([self.preview_button, self.pdf_button, self.html_button, self.download]), self.preview])
 
     def _build_store_section(self) -> None:
-        self.clinician = w.Text(value=self.session.clinician, description="Clinician",
+        self.clinician = w.Text(value=self.session.clinician, description="Clinician *",
                                 placeholder="your name or initials")
         self.clinician.add_class("pr-store-clinician")
         self.save_button = self._button("Save person and program", "pr-store-save", "success")
