@@ -1,0 +1,285 @@
+"""Charts for printed handouts, drawn as plain inline SVG by our own code.
+
+bqplot cannot export an image without a browser, so the handout draws its own:
+dark marks on white, text labels on the axes, hatching (not colour) for the weak
+window after each step-up, a legend, and ``<title>``/``<desc>`` for screen readers.
+Every piece of text is escaped.
+"""
+
+from __future__ import annotations
+
+import math
+from html import escape
+from typing import Sequence
+
+from ..plan_schema import Plan
+from .content import WeekFacts, week_facts
+
+WIDTH, HEIGHT = 760, 420
+LEFT, RIGHT, TOP, BOTTOM = 70, 80, 58, 130
+FONT = "DejaVu Sans, Liberation Sans, Arial, sans-serif"
+INK, GRID, BAR = "#000000", "#bdbdbd", "#8c8c8c"
+
+
+def _coerce(plan) -> Plan:
+    if isinstance(plan, Plan):
+        return plan
+    from ..plan_schema import parse_plan
+    return parse_plan(plan)
+
+
+def _nice_max(value: float) -> tuple[float, float]:
+    """An axis maximum at or above ``value`` and a tick step giving at most 6 ticks."""
+    value = max(value, 1.0)
+    for step in (1, 2, 5, 10, 20, 25, 50, 100, 200, 250, 500, 1000):
+        top = math.ceil(value / step) * step
+        if top / step <= 6:
+            return float(top), float(step)
+    step = 10 ** math.ceil(math.log10(value / 6))
+    return float(math.ceil(value / step) * step), float(step)
+
+
+def _week_tick_every(n: int) -> int:
+    for k in (1, 2, 4, 8):
+        if n / k <= 13:
+            return k
+    return math.ceil(n / 13)
+
+
+def _text(x: float, y: float, text: str, size: int = 13, anchor: str = "middle", weight: str = "normal",
+          rotate: float | None = None) -> str:
+    transform = f' transform="rotate({rotate:g} {x:.1f} {y:.1f})"' if rotate is not None else ""
+    return (f'<text x="{x:.1f}" y="{y:.1f}" font-size="{size}" text-anchor="{anchor}" '
+            f'font-weight="{weight}" fill="{INK}"{transform}>{escape(text)}</text>')
+
+
+def _hatch_pattern(pid: str) -> str:
+    # Diagonal lines; a tile drawn with paths only (no patternTransform) renders the same everywhere.
+    return (f'<pattern id="{pid}" patternUnits="userSpaceOnUse" width="8" height="8">'
+            f'<rect width="8" height="8" fill="#ffffff"/>'
+            f'<path d="M-2,2 l4,-4 M0,8 l8,-8 M6,10 l4,-4" stroke="#444444" stroke-width="1.4"/></pattern>')
+
+
+def _runs(flags: Sequence[bool]) -> list[tuple[int, int]]:
+    """(start, end) index runs where ``flags`` is true."""
+    runs, start = [], None
+    for i, flag in enumerate([*flags, False]):
+        if flag and start is None:
+            start = i
+        elif not flag and start is not None:
+            runs.append((start, i - 1))
+            start = None
+    return runs
+
+
+def _span_text(facts: list[WeekFacts], runs: list[tuple[int, int]]) -> str:
+    return ", ".join(f"{facts[a].week}-{facts[b].week}" if a != b else f"{facts[a].week}" for a, b in runs)
+
+
+class _Frame:
+    """The shared frame: week axis, weak-window hatching, step-up marks, legend."""
+
+    def __init__(self, facts: list[WeekFacts], chart_id: str, title: str, desc: str):
+        self.facts, self.id = facts, chart_id
+        self.n = len(facts)
+        self.pw, self.ph = WIDTH - LEFT - RIGHT, HEIGHT - TOP - BOTTOM
+        self.band = self.pw / max(self.n, 1)
+        self.parts = [
+            f'<svg xmlns="http://www.w3.org/2000/svg" class="chart" viewBox="0 0 {WIDTH} {HEIGHT}" '
+            f'width="100%" role="img" aria-labelledby="{chart_id}-title {chart_id}-desc" '
+            f'font-family="{FONT}">',
+            f'<title id="{chart_id}-title">{escape(title)}</title>',
+            f'<desc id="{chart_id}-desc">{escape(desc)}</desc>',
+            f'<defs>{_hatch_pattern(chart_id + "-hatch")}</defs>',
+            f'<rect x="0" y="0" width="{WIDTH}" height="{HEIGHT}" fill="#ffffff"/>',
+            _text(WIDTH / 2, 24, title, size=17, weight="bold"),
+        ]
+
+    def x(self, i: int) -> float:
+        return LEFT + i * self.band
+
+    def y(self, value: float, top: float) -> float:
+        return TOP + self.ph * (1 - value / top)
+
+    def weak_windows(self) -> None:
+        for a, b in _runs([f.weak_window for f in self.facts]):
+            x0, x1 = self.x(a), self.x(b + 1)
+            self.parts.append(f'<rect x="{x0:.1f}" y="{TOP}" width="{x1 - x0:.1f}" height="{self.ph}" '
+                              f'fill="url(#{self.id}-hatch)" stroke="#444444" stroke-width="1"/>')
+            if x1 - x0 >= 34:
+                self.parts.append(f'<rect x="{(x0 + x1) / 2 - 17:.1f}" y="{TOP + 3}" width="34" height="16" '
+                                  f'fill="#ffffff"/>')
+                self.parts.append(_text((x0 + x1) / 2, TOP + 15, "hold", size=11, weight="bold"))
+
+    def left_axis(self, top: float, step: float, label: str, fmt=lambda v: f"{v:g}") -> None:
+        v = 0.0
+        while v <= top + 1e-9:
+            yy = self.y(v, top)
+            self.parts.append(f'<line x1="{LEFT}" y1="{yy:.1f}" x2="{LEFT + self.pw}" y2="{yy:.1f}" '
+                              f'stroke="{GRID}" stroke-width="0.8"/>')
+            self.parts.append(_text(LEFT - 8, yy + 4, fmt(v), anchor="end"))
+            v += step
+        self.parts.append(_text(20, TOP + self.ph / 2, label, size=13, rotate=-90))
+
+    def week_axis(self) -> None:
+        base = TOP + self.ph
+        self.parts.append(f'<line x1="{LEFT}" y1="{base}" x2="{LEFT + self.pw}" y2="{base}" '
+                          f'stroke="{INK}" stroke-width="1.5"/>')
+        self.parts.append(f'<line x1="{LEFT}" y1="{TOP}" x2="{LEFT}" y2="{base}" stroke="{INK}" '
+                          f'stroke-width="1.5"/>')
+        every = _week_tick_every(self.n)
+        for i, f in enumerate(self.facts):
+            if f.week == 1 or f.week % every == 0:
+                cx = self.x(i) + self.band / 2
+                self.parts.append(f'<line x1="{cx:.1f}" y1="{base}" x2="{cx:.1f}" y2="{base + 5}" '
+                                  f'stroke="{INK}"/>')
+                self.parts.append(_text(cx, base + 20, str(f.week)))
+        self.parts.append(_text(LEFT + self.pw / 2, base + 40, "week of the program"))
+
+    def step_marks(self) -> None:
+        for i, f in enumerate(self.facts):
+            if f.step_up:
+                cx = self.x(i) + self.band / 2
+                self.parts.append(f'<path d="M{cx - 7:.1f},{TOP - 4} L{cx + 7:.1f},{TOP - 4} L{cx:.1f},'
+                                  f'{TOP - 16} Z" fill="{INK}"><title>step-up in week {f.week}</title></path>')
+
+    def legend(self, items: list[tuple[str, str]]) -> None:
+        """Items of (swatch svg at 0,0 of a 26x14 box, label), laid out in one or two rows."""
+        x, y = LEFT, TOP + self.ph + 64
+        for swatch, label in items:
+            width = 34 + 7.0 * len(label)
+            if x + width > WIDTH - 10:
+                x, y = LEFT, y + 22
+            self.parts.append(f'<g transform="translate({x:.1f} {y - 11})">{swatch}</g>')
+            self.parts.append(_text(x + 32, y + 1, label, size=12, anchor="start"))
+            x += width + 14
+
+    def weak_legend(self) -> list[tuple[str, str]]:
+        items = []
+        if any(f.weak_window for f in self.facts):
+            items.append((f'<rect width="26" height="14" fill="url(#{self.id}-hatch)" stroke="#444444"/>',
+                          "hatched = hold: bone briefly weaker (weeks 3-5 after a step-up)"))
+        if any(f.step_up for f in self.facts):
+            items.append((f'<path d="M6,14 L20,14 L13,2 Z" fill="{INK}"/>', "step-up in impact level"))
+        return items
+
+    def svg(self) -> str:
+        return "".join(self.parts) + "</svg>"
+
+
+def _describe_weeks(facts: list[WeekFacts]) -> str:
+    weak = _runs([f.weak_window for f in facts])
+    steps = [str(f.week) for f in facts if f.step_up]
+    text = []
+    if steps:
+        text.append(f"Step-ups in week {', '.join(steps)}.")
+    if weak:
+        text.append(f"Hold weeks (weak window): {_span_text(facts, weak)}.")
+    return " ".join(text)
+
+
+def impacts_chart_svg(plan) -> str:
+    """Impacts per session (bars) and impact level (stepped line) week by week.
+
+    Weeks in the weak window (weeks 3-5 after a step-up: Eriksen 1986, Endocr Rev
+    7:379) are hatched and labelled, step-ups carry a triangle.
+    """
+    facts = week_facts(_coerce(plan))
+    first, last = facts[0], facts[-1]
+    desc = (f"Impacts per session go from {first.impacts_per_session} in week {first.week} to "
+            f"{last.impacts_per_session} in week {last.week}, at most "
+            f"{max(f.impacts_per_session for f in facts)}; impact level from {first.impact_level} "
+            f"to {last.impact_level} on a scale of 0 to 3. " + _describe_weeks(facts))
+    frame = _Frame(facts, "chart-impacts", "Landings (impacts) per session, week by week", desc)
+    top, step = _nice_max(max(f.impacts_per_session for f in facts) * 1.05)
+    frame.weak_windows()
+    frame.left_axis(top, step, "impacts per session")
+    bar_w = frame.band * 0.62
+    for i, f in enumerate(facts):
+        if f.impacts_per_session:
+            yy = frame.y(f.impacts_per_session, top)
+            frame.parts.append(
+                f'<rect x="{frame.x(i) + (frame.band - bar_w) / 2:.1f}" y="{yy:.1f}" width="{bar_w:.1f}" '
+                f'height="{TOP + frame.ph - yy:.1f}" fill="{BAR}" stroke="{INK}" stroke-width="0.8">'
+                f'<title>week {f.week}: {f.impacts_per_session} impacts per session</title></rect>')
+    # Impact level on the right-hand axis, 0-3, as a stepped line with square markers.
+    for level in range(4):
+        yy = frame.y(level, 3)
+        frame.parts.append(_text(LEFT + frame.pw + 10, yy + 4, str(level), anchor="start"))
+    frame.parts.append(f'<line x1="{LEFT + frame.pw}" y1="{TOP}" x2="{LEFT + frame.pw}" '
+                       f'y2="{TOP + frame.ph}" stroke="{INK}" stroke-width="1.5"/>')
+    frame.parts.append(_text(WIDTH - 22, TOP + frame.ph / 2, "impact level (0-3)", rotate=90))
+    points = []
+    for i, f in enumerate(facts):
+        yy = frame.y(f.impact_level, 3)
+        points += [f"{frame.x(i):.1f},{yy:.1f}", f"{frame.x(i + 1):.1f},{yy:.1f}"]
+    frame.parts.append(f'<polyline points="{" ".join(points)}" fill="none" stroke="#ffffff" '
+                       f'stroke-width="6"/>')
+    frame.parts.append(f'<polyline points="{" ".join(points)}" fill="none" stroke="{INK}" '
+                       f'stroke-width="3" stroke-dasharray="9 4"/>')
+    for i, f in enumerate(facts):
+        if i == 0 or f.impact_level != facts[i - 1].impact_level:
+            cx, yy = frame.x(i) + frame.band / 2, frame.y(f.impact_level, 3)
+            frame.parts.append(f'<rect x="{cx - 5:.1f}" y="{yy - 5:.1f}" width="10" height="10" '
+                               f'fill="#ffffff" stroke="{INK}" stroke-width="2"/>')
+            frame.parts.append(_text(cx + 8, yy - 9, f"level {f.impact_level}", size=12,
+                                     anchor="start", weight="bold"))
+    frame.week_axis()
+    frame.step_marks()
+    frame.legend([
+        (f'<rect x="4" y="0" width="18" height="14" fill="{BAR}" stroke="{INK}"/>', "impacts per session"),
+        (f'<line x1="0" y1="7" x2="26" y2="7" stroke="{INK}" stroke-width="3" stroke-dasharray="9 4"/>',
+         "impact level (right-hand scale)"),
+        *frame.weak_legend(),
+    ])
+    return frame.svg()
+
+
+def intensity_chart_svg(plan) -> str:
+    """Resistance intensity (% of one-repetition maximum) week by week.
+
+    Weeks without a % 1RM load leave a gap; weak windows are hatched as on the
+    impacts chart.
+    """
+    facts = week_facts(_coerce(plan))
+    values = [f.resistance_pct_1rm for f in facts]
+    known = [v for v in values if v is not None]
+    if known:
+        desc = (f"Resistance load from {known[0]:g}% to {known[-1]:g}% of the one-repetition maximum, "
+                f"highest {max(known):g}%. " + _describe_weeks(facts))
+    else:
+        desc = "This program has no resistance work with a load given as a percentage of 1RM."
+    frame = _Frame(facts, "chart-intensity", "Strength exercise load, week by week", desc)
+    frame.weak_windows()
+    top = 100.0
+    frame.left_axis(top, 20, "% of one-repetition maximum", fmt=lambda v: f"{v:g}%")
+    if not known:
+        frame.parts.append(_text(LEFT + frame.pw / 2, TOP + frame.ph / 2,
+                                 "No strength load given as % 1RM in this program.", size=15))
+    run: list[str] = []
+    segments = []
+    for i, v in enumerate([*values, None]):
+        if v is not None:
+            run.append(f"{frame.x(i) + frame.band / 2:.1f},{frame.y(v, top):.1f}")
+        elif run:
+            segments.append(run)
+            run = []
+    for seg in segments:
+        frame.parts.append(f'<polyline points="{" ".join(seg)}" fill="none" stroke="{INK}" stroke-width="3"/>')
+    for i, v in enumerate(values):
+        if v is None:
+            continue
+        cx, yy = frame.x(i) + frame.band / 2, frame.y(v, top)
+        frame.parts.append(f'<circle cx="{cx:.1f}" cy="{yy:.1f}" r="4" fill="#ffffff" stroke="{INK}" '
+                           f'stroke-width="2"><title>week {facts[i].week}: {v:g}% 1RM</title></circle>')
+        if i == 0 or values[i - 1] != v:
+            frame.parts.append(_text(cx, yy - 10, f"{v:g}%", size=12, weight="bold"))
+    frame.week_axis()
+    frame.step_marks()
+    frame.legend([
+        (f'<g><line x1="0" y1="7" x2="26" y2="7" stroke="{INK}" stroke-width="3"/>'
+         f'<circle cx="13" cy="7" r="4" fill="#ffffff" stroke="{INK}" stroke-width="2"/></g>',
+         "load (% 1RM)"),
+        *frame.weak_legend(),
+    ])
+    return frame.svg()

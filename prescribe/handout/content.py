@@ -1,0 +1,486 @@
+"""What a handout says, worked out from a plan (no HTML here).
+
+The templates only lay out what these functions return, so the wording and the
+numbers can be tested without rendering.  Fields the planner may add (``phase``,
+``step_up``, ``weak_window``, ``resistance_intensity_pct_1rm``,
+``weekly_osteogenic_index``; per exercise ``rest_s``, ``bout_gap_hours``,
+``notes``) are used when present and derived when absent.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import re
+from dataclasses import dataclass, field
+from typing import Any
+
+from ..cautions import with_standard
+from ..plan_schema import Plan, PlannedExercise, PlannedWeek
+
+DAY_NAMES = ("Monday", "Tuesday", "Wednesday", "Thursday", "Friday", "Saturday", "Sunday")
+DAY_SHORT = ("Mon", "Tue", "Wed", "Thu", "Fri", "Sat", "Sun")
+
+#: Our impact scale (PRODUCT.md), in plain words for the person.
+LEVEL_WORDS = {0: "no impact (feet stay on the floor)", 1: "low impact (like brisk walking)",
+               2: "moderate impact (like skipping or gentle stamps)", 3: "high impact (like jumps and hops)"}
+LEVEL_LABELS = {0: "no impact", 1: "low impact", 2: "moderate impact", 3: "high impact"}
+
+#: Weeks after a step-up (the step-up week counts as week 1) when bone is transiently
+#: weaker because resorption runs ahead of formation: weeks 3 to 5.  Remodelling
+#: sequence: Eriksen 1986, Endocr Rev 7:379 (resorption about 3 weeks); remodelling
+#: transient: Heaney, Yates & Santora 1997, J Bone Miner Res 12:1143.
+WEAK_WINDOW_OFFSETS = (2, 3, 4)
+
+#: Hours between bouts that restore mechanosensitivity: Robling, Burr & Turner 2001,
+#: J Exp Biol 204:3389-3399 ("approximately 8 h of recovery was sufficient").
+DEFAULT_BOUT_GAP_HOURS = 8
+
+_PCT_1RM = re.compile(r"(\d+(?:\.\d+)?)\s*%\s*(?:of\s+)?1\s*RM", re.IGNORECASE)
+
+METHOD_SOURCES = (
+    "Turner CH, Robling AG 2003. Designing exercise regimens to increase bone strength. "
+    "Exerc Sport Sci Rev 31(1):45-50 (osteogenic index = peak GRF x ln(cycles + 1)).",
+    "Robling AG, Burr DB, Turner CH 2001. Recovery periods restore mechanosensitivity to dynamically "
+    "loaded bone. J Exp Biol 204:3389-3399 (about 8 h between bouts).",
+    "Eriksen EF 1986. Normal and pathological remodeling of human trabecular bone. Endocr Rev 7:379 "
+    "(resorption about 3 weeks before formation: the weak window).",
+)
+
+
+def extra(model: Any, name: str, default: Any = None) -> Any:
+    """An optional field the planner may add (kept by the plan schema as an extra)."""
+    extras = getattr(model, "model_extra", None) or {}
+    return extras.get(name, default)
+
+
+def has_extra(model: Any, name: str) -> bool:
+    return name in (getattr(model, "model_extra", None) or {})
+
+
+def pct_1rm(intensity: str) -> float | None:
+    """The ``NN`` of an intensity such as ``"80% 1RM"``, or None."""
+    match = _PCT_1RM.search(intensity or "")
+    return float(match.group(1)) if match else None
+
+
+@dataclass(frozen=True)
+class WeekFacts:
+    """One week of the plan as the charts and tables need it."""
+
+    week: int
+    impact_level: int
+    impacts_per_session: int
+    step_up: bool
+    weak_window: bool
+    resistance_pct_1rm: float | None
+    reassessment: bool
+    phase: str
+    weekly_oi: float
+    max_session_oi: float
+    peak_grf_bw: float
+    directions: tuple[str, ...]
+    sessions: int
+
+
+def week_facts(plan: Plan) -> list[WeekFacts]:
+    """Per-week figures, with the weak window and resistance load derived when absent.
+
+    A step-up is a week whose impact level is higher than the week before (or a
+    week the planner marked ``step_up``).  Without the planner's ``weak_window``
+    flag, weeks 3 to 5 counted from each step-up (the step-up week is week 1) are
+    the weak window.
+    """
+    weeks = sorted(plan.weeks, key=lambda w: w.week)
+    steps: list[bool] = []
+    previous = None
+    for wk in weeks:
+        if has_extra(wk, "step_up"):
+            steps.append(bool(extra(wk, "step_up")))
+        else:
+            steps.append(previous is not None and wk.impact_level > previous)
+        previous = wk.impact_level
+    step_weeks = [wk.week for wk, s in zip(weeks, steps) if s]
+    derived_weak = {s + k for s in step_weeks for k in WEAK_WINDOW_OFFSETS}
+    out = []
+    for wk, step in zip(weeks, steps):
+        weak = bool(extra(wk, "weak_window")) if has_extra(wk, "weak_window") else wk.week in derived_weak
+        if has_extra(wk, "resistance_intensity_pct_1rm"):
+            value = extra(wk, "resistance_intensity_pct_1rm")
+            pct = float(value) if isinstance(value, (int, float)) else None
+        else:
+            found = [p for ex in _exercises(wk) if (p := pct_1rm(ex.intensity)) is not None]
+            pct = max(found) if found else None
+        session_oi = [s.osteogenic_index for s in wk.sessions]
+        weekly = extra(wk, "weekly_osteogenic_index")
+        weekly = float(weekly) if isinstance(weekly, (int, float)) else float(sum(session_oi))
+        loading = [ex for ex in _exercises(wk) if ex.impact_level >= 1]
+        directions = sorted({d for ex in loading for d in ex.directions})
+        out.append(WeekFacts(
+            week=wk.week, impact_level=wk.impact_level, impacts_per_session=wk.impacts_per_session,
+            step_up=step, weak_window=weak, resistance_pct_1rm=pct, reassessment=wk.reassessment,
+            phase=str(extra(wk, "phase") or ""), weekly_oi=weekly,
+            max_session_oi=max(session_oi, default=0.0),
+            peak_grf_bw=max((ex.peak_grf_bw for ex in loading), default=0.0),
+            directions=tuple(directions), sessions=len(wk.sessions)))
+    return out
+
+
+def _exercises(week: PlannedWeek):
+    for session in week.sessions:
+        yield from session.exercises
+
+
+def week_range(first: int, last: int) -> str:
+    return f"Week {first}" if first == last else f"Weeks {first}-{last}"
+
+
+def days_text(days: tuple[int, ...]) -> str:
+    names = ", ".join(DAY_SHORT[d - 1] for d in days)
+    times = len(days)
+    return f"{names} ({'once' if times == 1 else f'{times} times'} a week)"
+
+
+def dose_text(ex: PlannedExercise) -> str:
+    """What and how many, in plain words: "40 landings in 2 bouts of 20"."""
+    parts = []
+    if ex.impacts:
+        if ex.bouts > 1:
+            per = ex.impacts / ex.bouts
+            per_text = f"{per:g}" if per == int(per) else f"about {round(per)}"
+            parts.append(f"{ex.impacts} landings in {ex.bouts} bouts of {per_text}")
+        else:
+            parts.append(f"{ex.impacts} landings")
+    if ex.sets and ex.reps:
+        parts.append(f"{ex.sets} sets of {ex.reps}")
+    elif ex.reps:
+        parts.append(f"{ex.reps} repetitions")
+    elif ex.sets:
+        parts.append(f"{ex.sets} sets")
+    if ex.minutes:
+        parts.append(f"{ex.minutes:g} minutes")
+    if not ex.impacts and ex.bouts > 1:
+        parts.append(f"in {ex.bouts} bouts")
+    text = ", ".join(parts) or "as shown by your clinician"
+    if ex.intensity:
+        text += f" at {ex.intensity}"
+    return text
+
+
+@dataclass(frozen=True)
+class Line:
+    """One exercise as prescribed in a week: what, how many, how often."""
+
+    exercise_id: str
+    name: str
+    dose: str
+    days: str
+
+
+@dataclass
+class WeekGroup:
+    """Consecutive weeks with the same program (shown as one row, e.g. "Weeks 3-5")."""
+
+    first: int
+    last: int
+    facts: WeekFacts
+    lines: list[Line]
+    key: tuple = field(repr=False, default=())
+
+    @property
+    def label(self) -> str:
+        return week_range(self.first, self.last)
+
+    @property
+    def notes(self) -> list[str]:
+        f = self.facts
+        notes = []
+        if f.step_up:
+            notes.append(f"Step up: new level, {LEVEL_LABELS.get(f.impact_level, f.impact_level)}. "
+                         "Start gently.")
+        if f.weak_window:
+            notes.append("Hold steady: do not add more this week. Bone is briefly weaker while it rebuilds.")
+        if f.reassessment:
+            notes.append("Review with your clinician this week.")
+        return notes
+
+
+def week_lines(week: PlannedWeek) -> list[Line]:
+    """The week's exercises, identical prescriptions on several days merged."""
+    by_key: dict[tuple, list[int]] = {}
+    first: dict[tuple, PlannedExercise] = {}
+    for session in sorted(week.sessions, key=lambda s: s.day):
+        for ex in session.exercises:
+            key = (ex.exercise_id, ex.sets, ex.reps, ex.impacts, ex.minutes, ex.bouts, ex.intensity)
+            first.setdefault(key, ex)
+            days = by_key.setdefault(key, [])
+            if session.day not in days:
+                days.append(session.day)
+    return [Line(ex.exercise_id, ex.name, dose_text(ex), days_text(tuple(by_key[key])))
+            for key, ex in first.items()]
+
+
+def week_groups(plan: Plan) -> list[WeekGroup]:
+    """Group identical consecutive weeks so a 52-week plan stays a few pages long."""
+    groups: list[WeekGroup] = []
+    facts = {f.week: f for f in week_facts(plan)}
+    for wk in sorted(plan.weeks, key=lambda w: w.week):
+        f = facts[wk.week]
+        lines = week_lines(wk)
+        key = (tuple(lines), f.step_up, f.weak_window, f.reassessment, f.phase)
+        last = groups[-1] if groups else None
+        # A step-up or a review starts its own row; the rows after it may merge.
+        if last is not None and last.key == key and not f.step_up and not f.reassessment \
+                and last.last == wk.week - 1:
+            last.last = wk.week
+        else:
+            groups.append(WeekGroup(wk.week, wk.week, f, lines, key))
+    return groups
+
+
+@dataclass(frozen=True)
+class DayLine:
+    """Exercises done on the same days: "Mon, Wed, Fri: stamps ..., heel drops ..."."""
+
+    days: str
+    lines: tuple[Line, ...]
+
+
+def day_lines(lines: list[Line]) -> list[DayLine]:
+    order: dict[str, list[Line]] = {}
+    for line in lines:
+        order.setdefault(line.days, []).append(line)
+    return [DayLine(days, tuple(items)) for days, items in order.items()]
+
+
+@dataclass(frozen=True)
+class WeekTable:
+    """The week-by-week table: what stays the same every week, then what changes."""
+
+    every_week: list[DayLine]
+    rows: list[tuple[WeekGroup, list[DayLine]]]
+
+
+def week_table(plan: Plan) -> WeekTable:
+    """Rows of grouped weeks, with exercises prescribed identically in every week pulled out."""
+    groups = week_groups(plan)
+    common: set[Line] = set()
+    if len(groups) > 1:
+        common = set(groups[0].lines).intersection(*(g.lines for g in groups[1:]))
+    every = [line for line in groups[0].lines if line in common]
+    rows = [(g, day_lines([line for line in g.lines if line not in common])) for g in groups]
+    return WeekTable(day_lines(every), rows)
+
+
+def dose_rows(plan: Plan) -> list[tuple[str, WeekFacts]]:
+    """Consecutive weeks with the same dose figures merged, for the clinician page."""
+    rows: list[tuple[int, int, WeekFacts]] = []
+
+    def figures(f: WeekFacts) -> tuple:
+        return (f.impact_level, f.impacts_per_session, round(f.max_session_oi, 1), round(f.weekly_oi, 1),
+                round(f.peak_grf_bw, 2), f.directions, f.resistance_pct_1rm, f.weak_window, f.phase)
+
+    for f in week_facts(plan):
+        if rows and figures(rows[-1][2]) == figures(f) and not f.step_up and not f.reassessment \
+                and not rows[-1][2].reassessment and rows[-1][1] == f.week - 1:
+            rows[-1] = (rows[-1][0], f.week, rows[-1][2])
+        else:
+            rows.append((f.week, f.week, f))
+    return [(f"{a}" if a == b else f"{a}-{b}", f) for a, b, f in rows]
+
+
+def review_weeks(plan: Plan) -> list[tuple[int, str | None]]:
+    """(week, date or None) of every review the plan asks for."""
+    try:
+        start = dt.date.fromisoformat(str(plan.created)[:10])
+    except ValueError:
+        start = None
+    out = []
+    for wk in sorted(plan.weeks, key=lambda w: w.week):
+        if wk.reassessment:
+            when = start + dt.timedelta(weeks=wk.week - 1) if start else None
+            out.append((wk.week, when.strftime("%d %B %Y").lstrip("0") if when else None))
+    return out
+
+
+def all_cautions(plan: Plan) -> list[str]:
+    """The standard cautions first, then the plan's and the screening's own."""
+    return with_standard([*plan.cautions, *plan.screening.cautions])
+
+
+def goals(plan: Plan) -> list[str]:
+    """The plan's ``goals`` when the planner gives them, else plain goals from its content."""
+    given = extra(plan, "goals")
+    if isinstance(given, list) and all(isinstance(g, str) for g in given) and given:
+        return list(given)
+    kinds = {s.kind for w in plan.weeks for s in w.sessions}
+    out = []
+    if plan.screening.max_impact_level >= 2 and any(w.impacts_per_session for w in plan.weeks):
+        out.append("Make your hip and spine bones stronger with short bursts of landings (impacts), "
+                   "built up slowly.")
+    if kinds & {"resistance", "mixed"}:
+        out.append("Build muscle strength with strength exercises two or three times a week, "
+                   "which also loads your bones.")
+    if plan.screening.falls_risk or "balance" in kinds:
+        out.append("Improve your balance and leg strength to lower your chance of a fall.")
+    if {"loaded_spinal_flexion", "loaded_spinal_twisting"} & set(plan.screening.avoid):
+        out.append("Protect your spine: do not bend forward or twist while lifting, carrying or straining.")
+    out.append("Exercise safely on your own, and know when to stop and ask for advice.")
+    return out
+
+
+@dataclass(frozen=True)
+class AtAGlance:
+    weeks: int
+    sessions_per_week: int
+    start_level: str
+    top_level: str
+    most_impacts: int
+    resistance_range: str | None
+    reviews: str
+
+
+def at_a_glance(plan: Plan, facts: list[WeekFacts]) -> AtAGlance:
+    counts = [f.sessions for f in facts]
+    typical = max(set(counts), key=counts.count)
+    pcts = [f.resistance_pct_1rm for f in facts if f.resistance_pct_1rm is not None]
+    reviews = review_weeks(plan)
+    return AtAGlance(
+        weeks=len(facts), sessions_per_week=typical,
+        start_level=f"{facts[0].impact_level}: {LEVEL_WORDS.get(facts[0].impact_level, '')}",
+        top_level=f"{max(f.impact_level for f in facts)}: "
+                  f"{LEVEL_WORDS.get(max(f.impact_level for f in facts), '')}",
+        most_impacts=max(f.impacts_per_session for f in facts),
+        resistance_range=(f"{min(pcts):g}% to {max(pcts):g}% of your one-repetition maximum"
+                          if pcts else None),
+        reviews=", ".join(f"week {w}" for w, _ in reviews) or "as arranged with your clinician",
+    )
+
+
+def bout_advice(plan: Plan) -> list[str]:
+    """How to split landings into bouts, from the plan's own numbers."""
+    gaps = {extra(ex, "bout_gap_hours") for w in plan.weeks for ex in _exercises(w) if ex.bouts > 1}
+    gaps = {g for g in gaps if isinstance(g, (int, float)) and g > 0} or {DEFAULT_BOUT_GAP_HOURS}
+    rests = {extra(ex, "rest_s") for w in plan.weeks for ex in _exercises(w) if ex.impacts}
+    rests = sorted(r for r in rests if isinstance(r, (int, float)) and r > 0)
+    gap = min(gaps)
+    out = [f"When a day has more than one bout, leave at least {gap:g} hours between bouts "
+           "(for example one in the morning and one in the evening). Bone responds better to "
+           "several short bouts than to one long one."]
+    if rests:
+        out.append(f"Between landings, pause for about {rests[0]:g} seconds: stand tall, then land again.")
+    example = next(((w.week, ex) for w in sorted(plan.weeks, key=lambda w: w.week)
+                    for ex in _exercises(w) if ex.impacts and ex.bouts > 1), None)
+    if example:
+        week, ex = example
+        out.append(f"Example from week {week}: {ex.name}, {dose_text(ex)}.")
+    return out
+
+
+def next_review(plan: Plan) -> str:
+    reviews = review_weeks(plan)
+    if not reviews:
+        return "Your clinician will tell you when your next review is. If you have not heard by the end " \
+               "of the program, call the clinic."
+    week, when = reviews[0]
+    text = f"Your next review is in week {week}"
+    return text + (f" (around {when})." if when else ".")
+
+
+# ---------------------------------------------------------------------------
+# Exercise guides: from the exercise catalogue, else from the plan itself
+# ---------------------------------------------------------------------------
+
+#: Fallback wording when the catalogue has no entry (common practice; wording ours).
+_FEEL_FALLBACK = {
+    "impact": "Firm, quick landings that you feel through your heels and hips, but that do not hurt. "
+              "You may be a little out of breath.",
+    "resistance": "The last two repetitions of each set feel hard, but you can still keep good form "
+                  "and breathe normally.",
+    "balance": "A little wobbly but in control. Stand next to a kitchen counter or a wall you can hold.",
+}
+_FEEL_DEFAULT = "Comfortable effort: you can still talk in short sentences."
+_IF_HARD_FALLBACK = ("Do fewer, or go back to last week's amount. Make the movement smaller and slower. "
+                     "If it still hurts or you feel unsteady, stop and call the clinic.")
+
+
+def _get(entry: Any, *names: str) -> Any:
+    for name in names:
+        value = entry.get(name) if isinstance(entry, dict) else getattr(entry, name, None)
+        if value not in (None, "", [], ()):
+            return value
+    return None
+
+
+def _as_text(value: Any) -> str | None:
+    if value is None:
+        return None
+    if isinstance(value, (list, tuple)):
+        return " ".join(str(v).strip() for v in value if str(v).strip()) or None
+    return str(value)
+
+
+def _catalogue_lookup():
+    """A function id -> entry or None; never raises (the catalogue may be absent or broken)."""
+    try:
+        from ..catalogue import default_catalogue
+        catalogue = default_catalogue()
+    except Exception:  # noqa: BLE001 - the handout must still print without a catalogue
+        return lambda _id: None
+
+    def lookup(exercise_id: str):
+        try:
+            return catalogue.get(exercise_id)
+        except Exception:  # noqa: BLE001 - unknown id: fall back to the plan's own fields
+            return None
+    return lookup
+
+
+@dataclass(frozen=True)
+class ExerciseGuide:
+    exercise_id: str
+    name: str
+    category: str
+    level: str
+    how_to: str
+    feel: str
+    if_hard: str
+    notes: tuple[str, ...]
+
+
+def exercise_guides(plan: Plan, lookup=None) -> list[ExerciseGuide]:
+    """One guide per exercise of the plan, in order of first appearance."""
+    lookup = lookup or _catalogue_lookup()
+    seen: dict[str, ExerciseGuide] = {}
+    notes: dict[str, list[str]] = {}
+    for wk in sorted(plan.weeks, key=lambda w: w.week):
+        for ex in _exercises(wk):
+            note = extra(ex, "notes")
+            for text in (note if isinstance(note, list) else [note]):
+                if isinstance(text, str) and text and text not in notes.setdefault(ex.exercise_id, []):
+                    notes[ex.exercise_id].append(text)
+            if ex.exercise_id in seen:
+                continue
+            entry = lookup(ex.exercise_id)
+            how = _as_text(_get(entry, "instructions", "how_to", "cues")) if entry is not None else None
+            feel = _as_text(_get(entry, "should_feel", "feel", "how_it_should_feel")) if entry is not None else None
+            if_hard = None
+            if entry is not None:
+                reg_id = _get(entry, "regression", "regression_id", "easier")
+                reg = lookup(reg_id) if isinstance(reg_id, str) else None
+                if reg is not None:
+                    reg_name = _get(reg, "name") or reg_id
+                    reg_how = _as_text(_get(reg, "instructions", "how_to"))
+                    if_hard = f"Do {reg_name} instead" + (f": {reg_how}" if reg_how else ".")
+                    if not if_hard.endswith("."):
+                        if_hard += "."
+                elif isinstance(reg_id, str):
+                    if_hard = f"Do the easier version your clinician showed you ({reg_id.replace('_', ' ')})."
+            category = ex.category.lower()
+            seen[ex.exercise_id] = ExerciseGuide(
+                exercise_id=ex.exercise_id, name=ex.name, category=ex.category,
+                level=f"{ex.impact_level}: {LEVEL_LABELS.get(ex.impact_level, '')}",
+                how_to=how or f"As your clinician showed you. {ex.name}: {dose_text(ex)}.",
+                feel=feel or _FEEL_FALLBACK.get(category, _FEEL_DEFAULT),
+                if_hard=(if_hard + " " if if_hard else "") + _IF_HARD_FALLBACK,
+                notes=())
+    return [ExerciseGuide(**{**g.__dict__, "notes": tuple(notes.get(i, ()))}) for i, g in seen.items()]

@@ -1,0 +1,131 @@
+"""Render a plan as a printable handout: HTML through Jinja2, PDF through WeasyPrint.
+
+The templates autoescape everything; the charts escape their own text; the few
+values that go into print CSS (page headers) are escaped as CSS strings.
+"""
+
+from __future__ import annotations
+
+import os
+import tempfile
+from functools import lru_cache
+from pathlib import Path
+from typing import Any
+
+from jinja2 import Environment, FileSystemLoader, StrictUndefined
+from markupsafe import Markup
+
+from .. import __version__
+from ..cautions import SHORT_CAUTION
+from ..errors import InputError
+from ..plan_schema import PLAN_FORMAT_VERSION, Plan, parse_plan
+from ..settings import Clinic, clinic as clinic_from_settings
+from . import charts, content
+
+AUDIENCES = ("person", "clinician", "both")
+#: Paper names as the command line takes them -> CSS page size.
+PAPERS = {"a4": "A4", "letter": "letter"}
+SUFFIXES = (".html", ".pdf")
+TEMPLATES = Path(__file__).with_name("templates")
+
+
+def check_options(audience: str, paper: str, names: tuple[str, str] = ("audience", "paper")) -> None:
+    """Refuse an unknown audience or paper size with an :class:`InputError` naming the option."""
+    if audience not in AUDIENCES:
+        raise InputError.single(names[0], audience, "one of " + ", ".join(AUDIENCES))
+    if paper not in PAPERS:
+        raise InputError.single(names[1], paper, "one of " + ", ".join(PAPERS))
+
+
+def as_plan(plan: Plan | dict | Any, source: str | None = None) -> Plan:
+    """A validated :class:`Plan` (a dict is checked with :func:`parse_plan`)."""
+    return plan if isinstance(plan, Plan) else parse_plan(plan, source)
+
+
+def css_string(value: Any) -> Markup:
+    """A double-quoted CSS string; anything but plain letters, digits and punctuation is hex-escaped."""
+    safe = set("abcdefghijklmnopqrstuvwxyzABCDEFGHIJKLMNOPQRSTUVWXYZ0123456789 .,:;-_()")
+    body = "".join(ch if ch in safe else f"\\{ord(ch):06x}" for ch in str(value))
+    return Markup(f'"{body}"')
+
+
+@lru_cache(maxsize=1)
+def _environment() -> Environment:
+    env = Environment(loader=FileSystemLoader(str(TEMPLATES)), autoescape=True,
+                      undefined=StrictUndefined, trim_blocks=True, lstrip_blocks=True)
+    env.filters["css_string"] = css_string
+    return env
+
+
+def handout_context(plan: Plan, audience: str, paper: str, clinic: Clinic) -> dict:
+    """Everything the template shows, worked out from the plan."""
+    facts = content.week_facts(plan)
+    return {
+        "plan": plan, "audience": audience, "paper": paper, "page_size": PAPERS[paper],
+        "person": audience in ("person", "both"), "clinician": audience in ("clinician", "both"),
+        "clinic": clinic, "short_caution": SHORT_CAUTION, "cautions": content.all_cautions(plan),
+        "goals": content.goals(plan), "glance": content.at_a_glance(plan, facts),
+        "next_review": content.next_review(plan), "reviews": content.review_weeks(plan),
+        "table": content.week_table(plan), "dose_rows": content.dose_rows(plan), "guides": content.exercise_guides(plan), "bouts": content.bout_advice(plan),
+        "impacts_svg": Markup(charts.impacts_chart_svg(plan)),
+        "intensity_svg": Markup(charts.intensity_chart_svg(plan)),
+        "screening": plan.screening, "level_labels": content.LEVEL_LABELS,
+        "method_sources": content.METHOD_SOURCES,
+        "versions": [("Tool version (plan)", plan.tool_version), ("Rule-set version", plan.ruleset_version),
+                     ("Plan format", plan.plan_format_version), ("Plan created", plan.created),
+                     ("Handout made by", f"prescribe {__version__}, plan format {PLAN_FORMAT_VERSION}")],
+        "has_weak": any(f.weak_window for f in facts),
+    }
+
+
+def render_html(plan: Plan | dict, audience: str = "both", paper: str = "a4",
+                clinic: Clinic | None = None) -> str:
+    """The handout as one self-contained HTML page (print CSS and inline SVG charts).
+
+    ``audience`` is person, clinician or both; ``paper`` is a4 or letter.  The
+    clinic's name and contact come from :func:`prescribe.settings.clinic` unless given.
+    """
+    check_options(audience, paper)
+    plan = as_plan(plan)
+    clinic = clinic if clinic is not None else clinic_from_settings()
+    return _environment().get_template("handout.html.j2").render(
+        **handout_context(plan, audience, paper, clinic))
+
+
+def render_pdf(plan: Plan | dict, audience: str = "both", paper: str = "a4",
+               clinic: Clinic | None = None) -> bytes:
+    """The handout as PDF bytes (WeasyPrint), with page numbers and the short caution on every page."""
+    html = render_html(plan, audience=audience, paper=paper, clinic=clinic)
+    from weasyprint import HTML  # imported here: it takes about half a second
+
+    return HTML(string=html, base_url=str(TEMPLATES)).write_pdf()
+
+
+def write_handout(plan: Plan | dict, out_path: str | os.PathLike, audience: str = "both",
+                  paper: str = "a4", clinic: Clinic | None = None) -> Path:
+    """Write the handout as HTML or PDF, chosen by the suffix of ``out_path``.
+
+    The file is written to a temporary name first and then renamed, so an existing
+    file is never left half written.
+    """
+    out = Path(out_path)
+    suffix = out.suffix.lower()
+    if suffix not in SUFFIXES:
+        raise InputError.single("--out", str(out_path), "a file name ending in " + " or ".join(SUFFIXES))
+    check_options(audience, paper, ("--audience", "--paper"))
+    if suffix == ".pdf":
+        data = render_pdf(plan, audience=audience, paper=paper, clinic=clinic)
+    else:
+        data = render_html(plan, audience=audience, paper=paper, clinic=clinic).encode("utf-8")
+    directory = out.parent if str(out.parent) else Path(".")
+    if not directory.is_dir():
+        raise InputError.single("--out", str(out_path), "a file in an existing folder")
+    fd, tmp = tempfile.mkstemp(prefix=".handout-", suffix=suffix, dir=directory)
+    try:
+        with os.fdopen(fd, "wb") as fh:
+            fh.write(data)
+        os.replace(tmp, out)
+    except BaseException:
+        Path(tmp).unlink(missing_ok=True)
+        raise
+    return out
