@@ -31,8 +31,10 @@ def checked(name: str, value: Any, *, low: float | None = None, high: float | No
     if whole:
         bad |= np.isfinite(arr) & (arr != np.round(arr))
     if np.any(bad):
-        first = arr[bad].flat[0] if arr.ndim else arr.item()
-        raise InputError.single(name, float(first), allowed or _describe(low, high, low_open, whole))
+        original = np.asarray(value)
+        first = (original[bad] if original.ndim else original).flat[0]
+        first = first.item() if hasattr(first, "item") else first
+        raise InputError.single(name, first, allowed or _describe(low, high, low_open, whole))
     return arr
 
 
