@@ -233,7 +233,7 @@ class ClinicSession:
                 "last_week_osteogenic_index": round(s.osteogenic_index[-1], 1)}
 
     # -- handout ----------------------------------------------------------------
-    def handout(self, fmt: str = "html", audience: str = "patient", paper: str = "A4") -> bytes:
+    def handout(self, fmt: str = "html", audience: str = "both", paper: str = "a4") -> bytes:
         """The handout of the current program as HTML (UTF-8 bytes) or PDF bytes."""
         if self.plan is None:
             raise InputError.single("program", None, "a built program (check the person's details first)")

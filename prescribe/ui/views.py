@@ -392,10 +392,11 @@ class ClinicApp:
             self.refusal, self.dose, *self.charts.figures, self.week_table])
 
     def _build_handout_section(self) -> None:
-        self.audience = w.Dropdown(options=[("for the person", "patient"), ("for the clinician", "clinician")],
-                                   value="patient", description="Handout")
+        self.audience = w.Dropdown(options=[("for the person and the clinician", "both"),
+                                            ("for the person", "person"), ("for the clinician", "clinician")],
+                                   value="both", description="Handout", layout=w.Layout(width="360px"))
         self.audience.add_class("pr-handout-audience")
-        self.paper = w.Dropdown(options=["A4", "letter"], value="A4", description="Paper")
+        self.paper = w.Dropdown(options=[("A4", "a4"), ("US letter", "letter")], value="a4", description="Paper")
         self.paper.add_class("pr-handout-paper")
         self.preview_button = self._button("Preview", "pr-handout-preview")
         self.preview_button.on_click(lambda _b: self.on_preview())

@@ -162,5 +162,6 @@ def type_into(page, css_class: str, text: str) -> None:
     box.press("Tab")
 
 
-def choose(page, css_class: str, value: str) -> None:
-    page.locator(f".{css_class} select, select.{css_class}").first.select_option(value)
+def choose(page, css_class: str, label: str) -> None:
+    """Pick a dropdown entry by the text it shows (ipywidgets options carry their labels)."""
+    page.locator(f".{css_class} select, select.{css_class}").first.select_option(label=label)
