@@ -1,0 +1,233 @@
+"""The store under stress: writers killed with SIGKILL mid-save, four processes
+writing at once, and concurrent clinicians racing on one program.
+
+A save that a writer reported as committed must be in the store afterwards, the
+file must pass ``PRAGMA integrity_check``, and no writer may fail with
+"database is locked".  All people here are invented.
+"""
+
+from __future__ import annotations
+
+import os
+import random
+import signal
+import sqlite3
+import subprocess
+import time
+from collections import defaultdict
+from pathlib import Path
+
+import pytest
+
+from prescribe.store import open_store
+from test_store_support import PYTHON, python_env
+
+TESTS = Path(__file__).resolve().parent
+
+#: A writer process: saves program versions for one person in a loop (forever when
+#: COUNT is 0) and prints "committed PID VERSION" after each commit returns.
+WRITER = r"""
+import sys
+from prescribe.errors import ConflictError
+from prescribe.store import open_store
+from test_store_support import plan, record, screening
+
+db, pid, count, mode = sys.argv[1], sys.argv[2], int(sys.argv[3]), sys.argv[4]
+store = open_store(db)
+if not store.has_patient(pid):
+    store.save_patient(record(pid), screening(pid), clinician=pid)
+done = conflicts = 0
+while count == 0 or done < count:
+    if mode == "shared":  # also append a screening to one person every writer shares
+        store.save_patient(record("SHARED-1"), screening("SHARED-1"), clinician=pid)
+    latest = store.latest_program_version(pid)
+    try:
+        version = store.save_program(pid, plan(pid, marker=f"{pid}:{done}"), pid, latest)
+    except ConflictError:
+        conflicts += 1
+        continue
+    done += 1
+    print(f"committed {pid} {version}", flush=True)
+print(f"conflicts {conflicts}", flush=True)
+"""
+
+
+def _env() -> dict:
+    env = python_env()
+    env["PYTHONPATH"] = str(TESTS) + os.pathsep + env["PYTHONPATH"]
+    return env
+
+
+def _start(db: Path, pid: str, count: int, out: Path, mode: str = "own") -> subprocess.Popen:
+    return subprocess.Popen([PYTHON, "-c", WRITER, str(db), pid, str(count), mode],
+                            stdout=open(out, "w"), stderr=open(out.with_suffix(".err"), "w"), env=_env())
+
+
+def _committed(out: Path) -> list[tuple[str, int]]:
+    rows = []
+    for line in out.read_text().splitlines():
+        parts = line.split()
+        if len(parts) == 3 and parts[0] == "committed":  # a line cut by the kill has no newline-ended twin
+            rows.append((parts[1], int(parts[2])))
+    return rows
+
+
+def _integrity(db: Path) -> str:
+    conn = sqlite3.connect(db)
+    try:
+        return conn.execute("PRAGMA integrity_check").fetchone()[0]
+    finally:
+        conn.close()
+
+
+def _alive(proc) -> bool:
+    return proc.poll() is None if isinstance(proc, subprocess.Popen) else proc.is_alive()
+
+
+def _err_text(out: Path) -> str:
+    for err in (out.with_suffix(".err"), Path(str(out) + ".err")):
+        if err.exists():
+            return err.read_text()
+    return ""
+
+
+def _wait_for_first_commit(procs_outs, timeout_s: float = 30.0) -> None:
+    deadline = time.monotonic() + timeout_s
+    pending = list(procs_outs)
+    while pending and time.monotonic() < deadline:
+        for proc, out in list(pending):
+            if out.exists() and "committed" in out.read_text():
+                pending.remove((proc, out))
+            elif not _alive(proc):
+                pytest.fail(f"writer exited early: {_err_text(out)}")
+        time.sleep(0.01)
+    assert not pending, "writers did not commit within the time limit"
+
+
+def _forked_writer(db: str, pid: str, out: str) -> None:
+    """Body of a forked writer: the same loop as WRITER, reporting through a file.
+
+    Forking (rather than starting a new interpreter) lets each round begin saving
+    within milliseconds, so many kill rounds fit in a few seconds.  The engine is
+    created in the child, never shared with the parent.
+    """
+    fd = os.open(out, os.O_WRONLY | os.O_CREAT | os.O_APPEND)
+    try:
+        from test_store_support import plan
+        store = open_store(db)
+        done = 0
+        while True:
+            latest = store.latest_program_version(pid)
+            version = store.save_program(pid, plan(pid, marker=f"{pid}:{done}"), pid, latest)
+            done += 1
+            os.write(fd, f"committed {pid} {version}\n".encode())  # one write: a whole line or nothing
+    except BaseException as exc:  # reported to the parent through the .err file
+        with open(out + ".err", "w") as fh:
+            fh.write(f"{type(exc).__name__}: {exc}")
+        os._exit(1)
+
+
+@pytest.mark.slow
+def test_writers_killed_with_sigkill_lose_no_reported_commit(tmp_path):
+    import multiprocessing
+
+    from test_store_support import record, screening
+    db = tmp_path / "kill.db"
+    writers, rounds = 2, 25
+    with open_store(str(db)) as store:
+        for w in range(writers):
+            store.save_patient(record(f"KILL-{w}"), screening(f"KILL-{w}"))
+    fork = multiprocessing.get_context("fork")
+    rng = random.Random(5150)
+    reported: dict[str, set[int]] = defaultdict(set)
+    for rnd in range(rounds):
+        runs = []
+        for w in range(writers):
+            out = tmp_path / f"r{rnd}-w{w}.out"
+            proc = fork.Process(target=_forked_writer, args=(str(db), f"KILL-{w}", str(out)), daemon=True)
+            proc.start()
+            runs.append((proc, out))
+        _wait_for_first_commit(runs)
+        time.sleep(rng.uniform(0.0, 0.2))  # a random moment in the save loop
+        for proc, _ in runs:
+            os.kill(proc.pid, signal.SIGKILL)
+        for proc, out in runs:
+            proc.join(timeout=30)
+            assert proc.exitcode == -signal.SIGKILL, Path(str(out) + ".err").read_text()
+            for pid, version in _committed(out):
+                reported[pid].add(version)
+    assert _integrity(db) == "ok"
+    with open_store(str(db)) as store:
+        for pid, versions in reported.items():
+            stored = [v["version"] for v in store.program_versions(pid)]
+            assert stored == list(range(1, len(stored) + 1)), "versions are numbered without gaps"
+            assert versions <= set(stored), f"reported commits missing for {pid}"
+            # At most one save per round can commit without being reported (killed before printing).
+            assert len(stored) - max(versions) <= rounds
+            assert store.get_program(pid)["patient_id"] == pid
+    assert sum(len(v) for v in reported.values()) >= rounds * writers
+
+
+@pytest.mark.slow
+def test_a_fresh_store_killed_while_being_created_still_opens(tmp_path):
+    """Migrations run in one transaction: a kill during creation leaves nothing half-made."""
+    rng = random.Random(77)
+    for rnd in range(4):
+        db = tmp_path / f"new-{rnd}.db"
+        proc = subprocess.Popen([PYTHON, "-c", "import sys; from prescribe.store import open_store; "
+                                 "open_store(sys.argv[1]).close()", str(db)], env=_env(),
+                                stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+        time.sleep(rng.uniform(0.3, 1.0))
+        proc.send_signal(signal.SIGKILL)
+        proc.wait(timeout=30)
+        with open_store(str(db)) as store:
+            assert store.list_patients() == []
+        assert _integrity(db) == "ok"
+
+
+def test_four_processes_writing_at_once_lose_nothing(tmp_path):
+    db = tmp_path / "four.db"
+    open_store(str(db)).close()
+    n = 40
+    runs = [(_start(db, f"FOUR-{w}", n, tmp_path / f"w{w}.out", mode="shared"), tmp_path / f"w{w}.out")
+            for w in range(4)]
+    for proc, out in runs:
+        assert proc.wait(timeout=120) == 0, out.with_suffix(".err").read_text()
+        err = out.with_suffix(".err").read_text()
+        assert "locked" not in err and "Traceback" not in err, err
+        assert [v for _, v in _committed(out)] == list(range(1, n + 1))
+    with open_store(str(db)) as store:
+        for w in range(4):
+            assert [v["version"] for v in store.program_versions(f"FOUR-{w}")] == list(range(1, n + 1))
+        assert len(store.screenings("SHARED-1")) == 4 * n
+        # each writer: its person and screening, then a shared screening and a program a loop;
+        # plus the shared person once
+        assert len(store.audit()) == 4 * (2 + 2 * n) + 1
+    assert _integrity(db) == "ok"
+
+
+def test_four_clinicians_racing_on_one_program_never_overwrite(tmp_path):
+    """Every process saves versions of the SAME program, each based on the latest it
+    read; racing saves are refused (ConflictError) and retried, so every version
+    number is given exactly once and none is lost."""
+    db = tmp_path / "race.db"
+    with open_store(str(db)) as store:
+        from test_store_support import record, screening
+        store.save_patient(record("RACE-1"), screening("RACE-1"))
+    m = 20
+    outs = [tmp_path / f"c{w}.out" for w in range(4)]
+    procs = [subprocess.Popen([PYTHON, "-c", WRITER.replace("pid, latest)", "f'clin{sys.argv[5]}', latest)"),
+                               str(db), "RACE-1", str(m), "own", str(w)],
+                              stdout=open(out, "w"), stderr=open(out.with_suffix(".err"), "w"), env=_env())
+             for w, out in enumerate(outs)]
+    versions: list[int] = []
+    for proc, out in zip(procs, outs):
+        assert proc.wait(timeout=120) == 0, out.with_suffix(".err").read_text()
+        assert "locked" not in out.with_suffix(".err").read_text()
+        versions += [v for _, v in _committed(out)]
+    assert sorted(versions) == list(range(1, 4 * m + 1))
+    with open_store(str(db)) as store:
+        stored = store.program_versions("RACE-1")
+        assert [v["version"] for v in stored] == list(range(1, 4 * m + 1))
+        assert all(v["based_on_version"] == v["version"] - 1 or v["version"] == 1 for v in stored)
+        assert {v["clinician"] for v in stored} == {f"clin{w}" for w in range(4)}
