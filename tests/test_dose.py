@@ -247,3 +247,22 @@ def test_dose_module_does_not_import_widgets():
     code = "import prescribe.dose, prescribe.mechanics, prescribe.catalogue, sys; print('ipywidgets' in sys.modules, 'bqplot' in sys.modules)"
     res = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True)
     assert res.stdout.strip() == "False False"
+
+
+# ------------------------------------------------------------------ properties of the recovery model
+from hypothesis import given, settings  # noqa: E402
+from hypothesis import strategies as st  # noqa: E402
+
+
+@settings(max_examples=150, deadline=None)
+@given(grf=st.floats(0.0, 6.0), cycles=st.integers(0, 2000), bouts=st.integers(1, 6),
+       gap_a=st.floats(0.0, 24.0), gap_b=st.floats(0.0, 24.0))
+def test_daily_index_between_its_limits_and_monotone_in_gap(grf, cycles, bouts, gap_a, gap_b):
+    # Documented limits of the recovery model (Robling, Burr & Turner 2001 motivate it):
+    # never below one continuous session, never above separate fresh sessions.
+    one = osteogenic_index(grf, cycles)
+    separate = sum(osteogenic_index(grf, int(n)) for n in split_cycles(cycles, bouts))
+    short, long_ = sorted((gap_a, gap_b))
+    a = daily_osteogenic_index(grf, cycles, bouts, short)
+    b = daily_osteogenic_index(grf, cycles, bouts, long_)
+    assert one - 1e-9 <= a <= b + 1e-9 <= separate + 2e-9
