@@ -35,7 +35,7 @@ import pandas as pd
 from .batch_io import FRACTURES_ALLOWED, RECORD_COLUMNS, REQUIRED_COLUMNS, parse_fractures, records_to_frame
 from .cautions import with_standard
 from .errors import FieldProblem, InputError
-from .records import CONDITIONS, T_SCORE_SITES, Flag, PatientRecord, ScreeningResult
+from .records import CONDITIONS, FRACTURE_SITES, T_SCORE_SITES, Flag, PatientRecord, ScreeningResult
 from .rules import (BOOL, CATEGORY_RANK, FEATURES, NUMBER, SEVERITY_RANK, AllOf, AnyOf, Condition, Not, Rule,
                     RuleSet, Test, load_rules)
 
@@ -164,42 +164,95 @@ def _column(df: pd.DataFrame, name: str, n: int) -> np.ndarray:
     """A numeric column as float64 (NaN for absent); all NaN when the column is missing."""
     if name not in df.columns:
         return np.full(n, np.nan)
+    col = df[name]
+    if pd.api.types.is_numeric_dtype(col.dtype) and not pd.api.types.is_bool_dtype(col.dtype):
+        return col.to_numpy(dtype="float64", na_value=np.nan)
     try:
-        return pd.to_numeric(df[name], errors="raise").to_numpy(dtype="float64", na_value=np.nan)
+        return pd.to_numeric(col, errors="raise").to_numpy(dtype="float64", na_value=np.nan)
     except (ValueError, TypeError):
         raise InputError.single(name, "non-numeric cells", "numbers, or empty when absent") from None
 
 
 def _text_column(df: pd.DataFrame, name: str, n: int) -> np.ndarray:
+    """A text column as an object array ('' for absent)."""
     if name not in df.columns:
         return np.full(n, "", dtype=object)
-    col = df[name]
-    return col.astype(object).where(col.notna(), "").to_numpy(dtype=object)
+    return df[name].to_numpy(dtype=object, na_value="")
 
 
-def _fracture_features(cells: np.ndarray) -> dict[str, np.ndarray]:
-    """Fracture features for a column of compact fracture cells (each distinct cell parsed once)."""
-    codes, uniques = pd.factorize(cells)
+def _fracture_aggregates_slow(uniques: list[str]) -> tuple[np.ndarray, ...]:
+    """Per distinct cell: low-trauma count, low-trauma vertebral, hip, most recent months.
+
+    Validating fallback for cells the fast path does not take (spaces, bad items); raises
+    InputError naming the bad cell.
+    """
     k = len(uniques)
-    count = np.zeros(k, dtype="float64")
-    vert = np.zeros(k, dtype=bool)
-    hip = np.zeros(k, dtype=bool)
-    last = np.full(k, np.nan)
+    count, vert = np.zeros(k), np.zeros(k, dtype=bool)
+    hip, last = np.zeros(k, dtype=bool), np.full(k, np.nan)
     for j, text in enumerate(uniques):
         try:
             items = parse_fractures(text)
         except ValueError as exc:
             raise InputError.single("fractures", text, f"{FRACTURES_ALLOWED} ({exc})") from None
         for site, months, low_trauma in items:
-            if low_trauma:
-                count[j] += 1
-                vert[j] |= site == "vertebra"
+            count[j] += low_trauma
+            vert[j] |= low_trauma and site == "vertebra"
             hip[j] |= site == "hip"
             if np.isnan(last[j]) or months < last[j]:
                 last[j] = months
-    return {"low_trauma_fracture_count": count[codes], "low_trauma_fracture": count[codes] > 0,
-            "low_trauma_vertebral_fracture": vert[codes], "hip_fracture": hip[codes],
-            "months_since_last_fracture": last[codes]}
+    return count, vert, hip, last
+
+
+def _fracture_aggregates_fast(uniques: list[str]) -> tuple[np.ndarray, ...] | None:
+    """The same aggregates as the slow path, parsing all cells at once with C-level string
+    and numpy operations; None when any cell is unusual (the slow path then judges it)."""
+    k = len(uniques)
+    filled = np.flatnonzero(np.fromiter(map(len, uniques), dtype=np.int64, count=k) > 0)
+    count, vert = np.zeros(k), np.zeros(k, dtype=bool)
+    hip, last = np.zeros(k, dtype=bool), np.full(k, np.nan)
+    if not len(filled):
+        return count, vert, hip, last
+    cells = [uniques[j] for j in filled]
+    big = "\n".join(cells)
+    try:
+        raw = np.frombuffer(big.encode("ascii"), dtype=np.uint8)
+    except UnicodeEncodeError:
+        return None
+    starts = np.concatenate(([0], np.flatnonzero(raw == 10) + 1))
+    items_per = np.add.reduceat((raw == 59).astype(np.int64), starts) + 1  # ';' separates items
+    tokens = ":".join(big.replace("\n", ";").split(";")).split(":")
+    if len(tokens) != 3 * items_per.sum():
+        return None
+    sites, months_text, marks = tokens[0::3], tokens[1::3], tokens[2::3]
+    if not (set(sites) <= FRACTURE_SITES.keys() and set(marks) <= {"y", "n"}):
+        return None
+    try:
+        months = np.array(months_text).astype(np.float64)
+    except ValueError:
+        return None
+    if not (np.isfinite(months).all() and (months >= 0).all() and (months <= 1200).all()):
+        return None
+    sites_arr = np.array(sites, dtype=object)
+    low = np.array(marks, dtype=object) == "y"
+    row = np.repeat(np.arange(len(cells)), items_per)
+    m = len(cells)
+    count[filled] = np.bincount(row, weights=low, minlength=m)
+    vert[filled] = np.bincount(row, weights=low & (sites_arr == "vertebra"), minlength=m) > 0
+    hip[filled] = np.bincount(row, weights=sites_arr == "hip", minlength=m) > 0
+    first = np.concatenate(([0], np.cumsum(items_per)[:-1]))
+    last[filled] = np.minimum.reduceat(months, first)
+    return count, vert, hip, last
+
+
+def _fracture_features(cells: np.ndarray) -> dict[str, np.ndarray]:
+    """Fracture features for a column of compact fracture cells (each distinct cell parsed once)."""
+    codes, uniques = pd.factorize(cells)
+    uniques = [str(u) for u in uniques]
+    agg = _fracture_aggregates_fast(uniques) or _fracture_aggregates_slow(uniques)
+    count, vert, hip, last = (a[codes] for a in agg)
+    return {"low_trauma_fracture_count": count, "low_trauma_fracture": count > 0,
+            "low_trauma_vertebral_fracture": vert, "hip_fracture": hip,
+            "months_since_last_fracture": last}
 
 
 def _condition_features(cells: np.ndarray) -> dict[str, np.ndarray]:
@@ -348,6 +401,42 @@ def evaluate_vector(cond: Condition, feats: dict[str, np.ndarray]) -> np.ndarray
 # The engine
 # ---------------------------------------------------------------------------
 
+def _unique_rows(matrix: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Distinct rows of a boolean matrix and, for each row, the index of its distinct row."""
+    n, c = matrix.shape
+    if n == 0:
+        return np.zeros((0, c), dtype=bool), np.zeros(0, dtype=np.intp)
+    if c <= 62:
+        keys = matrix.astype(np.int64) @ np.left_shift(np.int64(1), np.arange(c, dtype=np.int64))
+        uniq, inverse = np.unique(keys, return_inverse=True)
+        rows = ((uniq[:, None] >> np.arange(c, dtype=np.int64)) & 1).astype(bool)
+        return rows, np.asarray(inverse).reshape(-1)
+    rows, inverse = np.unique(matrix, axis=0, return_inverse=True)
+    return rows, np.asarray(inverse).reshape(-1)
+
+
+@lru_cache(maxsize=64)
+def _chunk_table(labels: tuple[str, ...], sep: str) -> np.ndarray:
+    """For up to 8 labels: the joined text of every subset, indexed by its bit pattern."""
+    return np.array([sep.join(lab for j, lab in enumerate(labels) if v >> j & 1) for v in range(1 << len(labels))],
+                    dtype=object)
+
+
+def _join_rows(rows: np.ndarray, labels: list[str], sep: str) -> np.ndarray:
+    """Per row of a boolean matrix, the labels of its true columns joined by ``sep``, in column order.
+
+    Works eight columns at a time through a table of every subset's text, so the cost is a few
+    array operations per eight labels, not a Python loop per row.
+    """
+    text = np.full(len(rows), "", dtype=object)
+    for c0 in range(0, len(labels), 8):
+        chunk = tuple(labels[c0:c0 + 8])
+        code = rows[:, c0:c0 + len(chunk)].astype(np.int64) @ (1 << np.arange(len(chunk), dtype=np.int64))
+        part = _chunk_table(chunk, sep)[code]
+        text = np.where(text == "", part, np.where(part == "", text, text + sep + part))
+    return text
+
+
 @dataclass(frozen=True)
 class Outcome:
     """What a set of fired rules means, before the per-person fields are added."""
@@ -381,6 +470,17 @@ class Engine:
         self._flags = {r.id: Flag(rule=r.id, severity=r.severity, message=r.message, source=r.source,
                                   title=r.title, max_impact_level=r.effect.max_impact_level,
                                   avoid=list(r.effect.avoid)) for r in self.rules}
+        # Effects as arrays, for the vectorised evaluator.
+        self._caps = np.array([3 if r.effect.max_impact_level is None else r.effect.max_impact_level
+                               for r in self.rules], dtype=np.int8)
+        self._cat_rank = np.array([CATEGORY_RANK[r.effect.category] if r.effect.category else -1
+                                   for r in self.rules], dtype=np.int8)
+        self._effect_flag = {k: np.array([getattr(r.effect, k) for r in self.rules], dtype=bool)
+                             for k in ("falls_risk", "refer", "balance_first", "supervision")}
+        self._avoid_codes = sorted({a for r in self.rules for a in r.effect.avoid})
+        self._avoid_matrix = np.array([[a in r.effect.avoid for a in self._avoid_codes] for r in self.rules],
+                                      dtype=np.float32).reshape(len(self.rules), len(self._avoid_codes))
+        self._caution_idx = np.array([i for i, r in enumerate(self.rules) if r.effect.caution], dtype=np.intp)
 
     # -- shared: fired rules -> outcome ------------------------------------------------
     def outcome(self, mask: int) -> Outcome:
@@ -451,43 +551,46 @@ class Engine:
         return out
 
     def screen_frame(self, df: pd.DataFrame) -> pd.DataFrame:
+        """The vectorised evaluator: one result row per input row (see :func:`screen_batch`).
+
+        Effects are combined once per distinct pattern of fired rules (a caseload has far fewer
+        patterns than people), then spread back to the rows.
+        """
         n = len(df)
         fired = self.fired_matrix(df)
-        if len(self.rules) <= 62:
-            weights = np.left_shift(np.int64(1), np.arange(len(self.rules), dtype=np.int64))
-            masks = (fired.astype(np.int64) * weights).sum(axis=1) if n else np.empty(0, dtype=np.int64)
-            uniq, inverse = np.unique(masks, return_inverse=True)
-            patterns = [int(m) for m in uniq]
-        else:  # very large rule sets: unique boolean rows instead of integer masks
-            uniq_rows, inverse = np.unique(fired, axis=0, return_inverse=True)
-            patterns = [sum(1 << i for i in np.flatnonzero(row)) for row in uniq_rows]
-        inverse = np.asarray(inverse).reshape(-1)
-        outcomes = [self.outcome(m) for m in patterns]
-
-        def per_pattern(getter, dtype=object):
-            arr = np.array([getter(o) for o in outcomes], dtype=dtype) if outcomes else np.empty(0, dtype=dtype)
-            return arr[inverse] if n else np.empty(0, dtype=dtype)
-
+        rows, inverse = _unique_rows(fired)
         lowest, site = _lowest_site_vec(df)
-        category = per_pattern(lambda o: o.category or "")
-        default = np.where(np.isnan(lowest), "unknown", "normal").astype(object)
-        category = np.where(category == "", default, category)
-        pid = _text_column(df, "patient_id", n)
+        rank = np.where(rows, self._cat_rank, np.int8(-1)).max(axis=1, initial=-1).astype(np.int64)[inverse]
+        category = np.array(["", *CATEGORY_RANK], dtype=object)[rank + 1]
+        none = rank < 0
+        category[none] = np.where(np.isnan(lowest[none]), "unknown", "normal")
+        avoid = (rows.astype(np.float32) @ self._avoid_matrix) > 0.5
+        any_effect = {k: (rows & v).any(axis=1)[inverse] for k, v in self._effect_flag.items()}
         return pd.DataFrame({
-            "patient_id": pid,
+            "patient_id": _text_column(df, "patient_id", n),
             "bone_density_category": category,
-            "falls_risk": per_pattern(lambda o: o.falls_risk, bool),
-            "max_impact_level": per_pattern(lambda o: o.max_impact_level, np.int64),
-            "avoid": per_pattern(lambda o: LIST_SEP.join(o.avoid)),
-            "refer": per_pattern(lambda o: o.refer, bool),
-            "balance_first": per_pattern(lambda o: o.balance_first, bool),
-            "supervision": per_pattern(lambda o: o.supervision, bool),
-            "flags": per_pattern(lambda o: LIST_SEP.join(o.rules)),
+            "falls_risk": any_effect["falls_risk"],
+            "max_impact_level": np.where(rows, self._caps, np.int8(3)).min(axis=1, initial=3).astype(np.int64)[inverse],
+            "avoid": _join_rows(avoid, self._avoid_codes, LIST_SEP)[inverse],
+            "refer": any_effect["refer"],
+            "balance_first": any_effect["balance_first"],
+            "supervision": any_effect["supervision"],
+            "flags": _join_rows(rows, [r.id for r in self.rules], LIST_SEP)[inverse],
             "lowest_t_score": lowest,
             "lowest_t_score_site": site,
             "ruleset_version": np.full(n, self.version, dtype=object),
-            "cautions": per_pattern(lambda o: CAUTION_SEP.join(o.cautions)),
+            "cautions": self._caution_text(rows)[inverse],
         }, columns=list(RESULT_COLUMNS), index=df.index)
+
+    def _caution_text(self, rows: np.ndarray) -> np.ndarray:
+        """The cautions cell for each distinct fired-rule pattern (standard ones first)."""
+        texts = [self.rules[i].effect.caution for i in self._caution_idx]
+        head = CAUTION_SEP.join(with_standard())
+        if len(set(texts)) == len(texts) and not set(texts) & set(with_standard()):
+            extra = _join_rows(rows[:, self._caution_idx], texts, CAUTION_SEP)
+            return np.where(extra == "", head, head + CAUTION_SEP + extra)
+        return np.array([CAUTION_SEP.join(with_standard([texts[j] for j in np.flatnonzero(row)]))
+                         for row in rows[:, self._caution_idx]], dtype=object)
 
     def results_from_frame(self, out: pd.DataFrame) -> list[ScreeningResult]:
         """ScreeningResult objects from the frame :meth:`screen_frame` returned."""

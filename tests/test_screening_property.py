@@ -1,0 +1,49 @@
+"""Properties: the vectorised evaluator gives exactly the per-record result, and the
+batch CSV row format round-trips every valid record."""
+
+from __future__ import annotations
+
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
+
+from prescribe.batch_io import frame_to_records, record_to_row, records_to_frame, rows_to_records
+from prescribe.screening import results_from_frame, screen, screen_batch, screen_many
+
+from strategies import valid_records
+
+SETTINGS = settings(max_examples=80, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+
+
+@SETTINGS
+@given(st.lists(valid_records(), min_size=1, max_size=12, unique_by=lambda r: r.patient_id))
+def test_batch_gives_exactly_the_single_person_result(records):
+    single = [screen(r) for r in records]
+    batch = results_from_frame(screen_batch(records_to_frame(records)))
+    # Every field, the flag list and its order, the cautions and their order.
+    assert [b.model_dump() for b in batch] == [s.model_dump() for s in single]
+    assert screen_many(records) == single
+
+
+@SETTINGS
+@given(valid_records())
+def test_csv_row_round_trips_every_field(record):
+    assert rows_to_records([record_to_row(record)]) == [record]
+
+
+@SETTINGS
+@given(st.lists(valid_records(), max_size=6, unique_by=lambda r: r.patient_id))
+def test_frame_round_trips_every_field(records):
+    assert frame_to_records(records_to_frame(records)) == records
+
+
+@SETTINGS
+@given(valid_records())
+def test_result_is_always_bounded_and_cautioned(record):
+    result = screen(record)
+    assert 0 <= result.max_impact_level <= 3
+    assert result.avoid == sorted(set(result.avoid))
+    caps = [f.max_impact_level for f in result.flags if f.max_impact_level is not None]
+    assert result.max_impact_level == min(caps, default=3)
+    assert result.refer == any(f.severity == "clear_first" for f in result.flags) or result.refer
+    assert result.cautions[:3] and all(c for c in result.cautions)
+    assert (result.bone_density_category == "unknown") == (result.lowest_t_score is None)
