@@ -14,6 +14,7 @@ to show in its error area.
 from __future__ import annotations
 
 import importlib
+import threading
 from dataclasses import dataclass
 from typing import Any
 
@@ -62,6 +63,7 @@ class ClinicSession:
         self.store_url = store_url
         self.clinician = clinician
         self._store = None
+        self._store_lock = threading.Lock()
         self.reset()
 
     # -- state ------------------------------------------------------------
@@ -245,8 +247,9 @@ class ClinicSession:
     # -- store ------------------------------------------------------------------
     @property
     def store(self):
-        if self._store is None:
-            self._store = _api("store", "open_store")(self.store_url)
+        with self._store_lock:  # the app may read the store from its warm-up thread too
+            if self._store is None:
+                self._store = _api("store", "open_store")(self.store_url)
         return self._store
 
     def save(self, clinician: str | None = None) -> int | None:

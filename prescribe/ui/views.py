@@ -13,6 +13,7 @@ import html
 import logging
 import os
 import sys
+import threading
 import traceback
 from typing import Any, Callable
 
@@ -22,7 +23,6 @@ from ..cautions import STANDARD_CAUTIONS
 from ..errors import InputError, PrescribeError
 from ..records import SEVERITIES
 from . import form_spec
-from .charts import ProgramCharts
 from .session import IMPACT_LABELS, ClinicSession, EngineMissing
 
 log = logging.getLogger("prescribe.ui")
@@ -294,8 +294,15 @@ def screening_html(screening) -> str:
 class ClinicApp:
     """The whole app: build it, then display ``.widget`` (the last cell of apps/clinic.ipynb)."""
 
-    def __init__(self, session: ClinicSession | None = None) -> None:
+    def __init__(self, session: ClinicSession | None = None, warm_up: bool = False) -> None:
+        """Build the widgets over ``session``.
+
+        With ``warm_up`` the slow parts (the charting library, the screening and planning
+        engines, the store's list of people) load in a background thread after the form
+        is shown, so the intake form is usable at once; without it they load here.
+        """
         self.session = session or ClinicSession()
+        self.charts = None
         self.errors = ErrorArea()
         self._syncing = False
         self.intake = IntakeForm(self.errors)
@@ -311,13 +318,39 @@ class ClinicApp:
                               self.person_section, self.screening_section, self.program_section,
                               self.handout_section, self.store_section])
         self.widget.add_class("pr-app")
-        self.refresh()
+        self.warm_thread: threading.Thread | None = None
+        if warm_up:
+            self.refresh(store=False)
+            self.warm_thread = threading.Thread(target=self.warm_up, name="prescribe-warm-up", daemon=True)
+            self.warm_thread.start()
+        else:
+            self.warm_up()
 
     @classmethod
     def from_environment(cls) -> "ClinicApp":
         """The app over the store named by ``PRESCRIBE_DB`` (see prescribe.settings)."""
         from ..settings import db_url
-        return cls(ClinicSession(store_url=db_url()))
+        return cls(ClinicSession(store_url=db_url()), warm_up=True)
+
+    @guarded("Preparing the app")
+    def warm_up(self) -> None:
+        """Load the charts, the engines and the list of saved people."""
+        import importlib
+        for module in ("prescribe.screening", "prescribe.planner"):
+            try:
+                importlib.import_module(module)
+            except ModuleNotFoundError:
+                pass  # shown as "not available yet" when used
+        self._ensure_charts()
+        self.refresh()
+
+    def _ensure_charts(self):
+        with self._charts_lock:
+            if self.charts is None:
+                from .charts import ProgramCharts
+                self.charts = ProgramCharts()
+                self.chart_box.children = self.charts.figures
+        return self.charts
 
     # -- building ------------------------------------------------------------------
     @staticmethod
@@ -337,7 +370,8 @@ class ClinicApp:
         self.submit_button.on_click(lambda _b: self.on_submit())
         self.new_button = self._button("New person", "pr-new-person")
         self.new_button.on_click(lambda _b: self.on_new())
-        self.load_select = w.Dropdown(options=[], description="Saved people", layout=w.Layout(width="340px"))
+        self.load_select = w.Dropdown(options=[], description="Saved people", layout=w.Layout(width="380px"),
+                                      style={"description_width": "100px"})
         self.load_select.add_class("pr-load-select")
         self.load_button = self._button("Open", "pr-load-button")
         self.load_button.on_click(lambda _b: self.on_load())
@@ -380,7 +414,9 @@ class ClinicApp:
         self.exclude_button.on_click(lambda _b: self.on_exclude())
         self.refusal = w.HTML("")
         self.refusal.add_class("pr-refusal")
-        self.charts = ProgramCharts()
+        self._charts_lock = threading.Lock()
+        self.chart_box = w.VBox([])
+        self.chart_box.add_class("pr-charts")
         self.dose = w.HTML("")
         self.dose.add_class("pr-dose")
         self.week_table = w.HTML("")
@@ -389,7 +425,7 @@ class ClinicApp:
             w.HBox([self.start_level, self.weeks]),
             w.HBox(list(self.sessions.values())),
             w.HBox([self.exercise_select, self.replacement_select, self.swap_button, self.exclude_button]),
-            self.refusal, self.dose, *self.charts.figures, self.week_table])
+            self.refusal, self.dose, self.chart_box, self.week_table])
 
     def _build_handout_section(self) -> None:
         self.audience = w.Dropdown(options=[("for the person and the clinician", "both"),
@@ -514,8 +550,8 @@ class ClinicApp:
         self.refresh()
 
     # -- redraw ------------------------------------------------------------------------
-    def refresh(self) -> None:
-        """Make every section show the session's current state."""
+    def refresh(self, store: bool = True) -> None:
+        """Make every section show the session's current state (``store``: re-read the saved people)."""
         s = self.session
         self.screening_view.value = screening_html(s.screening)
         self.refusal.value = (f'<div class="pr-refusal-box" role="alert">{_esc(s.refusal)}</div>'
@@ -531,7 +567,8 @@ class ClinicApp:
         finally:
             self._syncing = False
         self._refresh_swap_candidates()
-        self.charts.update(s.chart_series())
+        if s.plan is not None or self.charts is not None:
+            self._ensure_charts().update(s.chart_series())
         figures = s.dose_figures()
         self.dose.value = ("<p>" + " &middot; ".join(f"{_esc(k.replace('_', ' '))}: <b>{_esc(v)}</b>"
                                                      for k, v in figures.items()) + "</p>") if figures else ""
@@ -539,7 +576,8 @@ class ClinicApp:
         if s.plan is None:
             self.preview.value = ""
             self.download.value = ""
-        self._refresh_store()
+        if store:
+            self._refresh_store()
 
     def _refresh_swap_candidates(self) -> None:
         try:

@@ -148,11 +148,18 @@ def open_app(page, app_server) -> None:
     page.locator(".pr-intake-submit").wait_for(state="visible", timeout=PAGE_TIMEOUT_MS)
 
 
-def shot(page, name: str) -> Path:
-    """Keep a full-page screenshot of this step as a test artefact."""
+def shot(page, name: str, of: str | None = None) -> Path:
+    """Keep a screenshot of this step as a test artefact: the element ``of`` (CSS), else the view.
+
+    Voila scrolls inside its own container, so a full-page shot shows only the top: name the
+    section to keep.
+    """
     SHOTS.mkdir(parents=True, exist_ok=True)
     path = SHOTS / f"{name}.png"
-    page.screenshot(path=str(path), full_page=True)
+    if of:
+        page.locator(of).first.screenshot(path=str(path))
+    else:
+        page.screenshot(path=str(path))
     return path
 
 

@@ -51,25 +51,25 @@ def test_new_person_to_printed_program_saved_and_reopened(app_page, app_server, 
     assert "osteoporosis" in glance
     assert "Source:" in page.locator(".pr-flags").inner_text()
     assert "does not replace clinical judgment" in page.locator(".pr-section-screening").inner_text()
-    shot(page, "11-screening-flags")
+    shot(page, "11-screening-flags", of=".pr-section-screening")
 
     # 3. The program is built: the week table and the charts are drawn.
     _wait_text(page, ".pr-week-table", "impacts per session")
     page.wait_for_function(f"({LEVEL_LINE_JS})().length > 20")
     before = page.evaluate(LEVEL_LINE_JS)
-    shot(page, "12-program-built")
+    shot(page, "12-program-built", of=".pr-section-program")
 
     # 4. Changing the start level redraws the chart.
     choose(page, "pr-option-start_level", "2 - moderate impact")
     page.wait_for_function(f"(before) => ({LEVEL_LINE_JS})() !== before", arg=before)
     assert page.locator(".pr-refusal").inner_text().strip() == ""
-    shot(page, "13-start-level-changed")
+    shot(page, "13-start-level-changed", of=".pr-section-program")
 
     # A start level above the screening's cap is refused with the reason shown.
     choose(page, "pr-option-start_level", "3 - high impact")
     reason = _wait_text(page, ".pr-refusal", "Refused")
     assert "max_impact_level" in reason or "cap" in reason
-    shot(page, "14-unsafe-change-refused")
+    shot(page, "14-unsafe-change-refused", of=".pr-section-program")
 
     # 5. The handout: preview, then a PDF that is a real PDF.
     page.locator(".pr-handout-preview").click()
@@ -85,14 +85,14 @@ def test_new_person_to_printed_program_saved_and_reopened(app_page, app_server, 
     assert data.startswith(b"%PDF") and len(data) > 5_000
     text = subprocess.run(["pdftotext", str(pdf), "-"], capture_output=True, text=True, check=True).stdout
     assert PERSON in text
-    shot(page, "15-handout-ready")
+    shot(page, "15-handout-ready", of=".pr-section-handout")
 
     # 6. Saved with a version number and visible history.
     type_into(page, "pr-store-clinician", "AB")
     page.locator(".pr-store-save").click()
     _wait_text(page, ".pr-store-status", f"Saved {PERSON}: program version 1")
     _wait_text(page, ".pr-store-history", "AB")
-    shot(page, "16-saved")
+    shot(page, "16-saved", of=".pr-section-store")
     page.close()
 
     # 7. A fresh page (a new kernel) reopens the person with their program and history.
@@ -106,4 +106,4 @@ def test_new_person_to_printed_program_saved_and_reopened(app_page, app_server, 
     assert page2.locator(".pr-intake-t_scores-femoral_neck input").input_value() == "-2.6"
     _wait_text(page2, ".pr-week-table", "impacts per session")
     _wait_text(page2, ".pr-store-history", "AB")
-    shot(page2, "17-reopened")
+    shot(page2, "17-reopened", of=".pr-app")

@@ -46,7 +46,7 @@ def test_bad_input_shows_the_fields_message_and_saves_nothing(app_page, app_serv
     assert page.locator(".pr-msg-body_mass_kg").inner_text().strip() == ""
     # Nothing screened, nothing saved.
     assert "Check the person's details" in page.locator(".pr-screening").inner_text()
-    shot(page, "02-intake-bad-input")
+    shot(page, "02-intake-bad-input", of=".pr-section-person")
     page.locator(".pr-store-save").click()
     page.wait_for_function("document.querySelector('.pr-error').innerText.length > 0")
     assert "record" in page.locator(".pr-error").inner_text()
