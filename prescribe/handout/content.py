@@ -135,9 +135,8 @@ def week_range(first: int, last: int) -> str:
 
 
 def days_text(days: tuple[int, ...]) -> str:
-    names = ", ".join(DAY_SHORT[d - 1] for d in days)
-    times = len(days)
-    return f"{names} ({'once' if times == 1 else f'{times} times'} a week)"
+    """"Mon, Wed, Fri" (the days of the week an exercise is done)."""
+    return ", ".join(DAY_SHORT[d - 1] for d in days)
 
 
 def dose_text(ex: PlannedExercise) -> str:
@@ -162,7 +161,8 @@ def dose_text(ex: PlannedExercise) -> str:
         parts.append(f"in {ex.bouts} bouts")
     text = ", ".join(parts) or "as shown by your clinician"
     if ex.intensity:
-        text += f" at {ex.intensity}"
+        scale = ex.intensity[:1].isdigit() or ex.intensity.upper().startswith("RPE") or "%" in ex.intensity
+        text += f" at {ex.intensity}" if scale else f", {ex.intensity}"
     return text
 
 
@@ -174,6 +174,7 @@ class Line:
     name: str
     dose: str
     days: str
+    column: str = "impact"
 
 
 @dataclass
@@ -195,12 +196,11 @@ class WeekGroup:
         f = self.facts
         notes = []
         if f.step_up:
-            notes.append(f"Step up: new level, {LEVEL_LABELS.get(f.impact_level, f.impact_level)}. "
-                         "Start gently.")
+            notes.append(f"Step up to level {f.impact_level}")
         if f.weak_window:
-            notes.append("Hold steady: do not add more this week. Bone is briefly weaker while it rebuilds.")
+            notes.append("Hold: add nothing")
         if f.reassessment:
-            notes.append("Review with your clinician this week.")
+            notes.append("Review")
         return notes
 
 
@@ -215,8 +215,21 @@ def week_lines(week: PlannedWeek) -> list[Line]:
             days = by_key.setdefault(key, [])
             if session.day not in days:
                 days.append(session.day)
-    return [Line(ex.exercise_id, ex.name, dose_text(ex), days_text(tuple(by_key[key])))
+    return [Line(ex.exercise_id, ex.name, dose_text(ex), days_text(tuple(by_key[key])), column_of(ex))
             for key, ex in first.items()]
+
+
+#: Columns of the week-by-week table: (key, heading).
+COLUMNS = (("impact", "Impact and walking"), ("resistance", "Strength"), ("balance", "Balance and posture"))
+
+
+def column_of(ex: PlannedExercise) -> str:
+    category = ex.category.lower()
+    if category == "resistance":
+        return "resistance"
+    if category == "impact" or ex.impact_level >= 1 or ex.impacts:
+        return "impact"
+    return "balance"
 
 
 def week_groups(plan: Plan) -> list[WeekGroup]:
@@ -238,37 +251,108 @@ def week_groups(plan: Plan) -> list[WeekGroup]:
 
 
 @dataclass(frozen=True)
-class DayLine:
-    """Exercises done on the same days: "Mon, Wed, Fri: stamps ..., heel drops ..."."""
+class Cell:
+    """Part of a table cell: exercises done on the same days, identical doses merged."""
 
     days: str
-    lines: tuple[Line, ...]
+    items: tuple[tuple[str, str], ...]  # (names, or "" where the routine table names them; dose)
 
 
-def day_lines(lines: list[Line]) -> list[DayLine]:
-    order: dict[str, list[Line]] = {}
+def cells(lines: list[Line], names: bool = True) -> list[Cell]:
+    """Lines grouped by days, then by dose.
+
+    With ``names=False``, the largest set of exercises of a day group sharing one dose
+    is not named (the routine table names them, grouped by the same days): "3 sets of
+    10 at 60% 1RM, each of the other 4 exercises".
+    """
+    by_days: dict[str, dict[str, list[str]]] = {}
     for line in lines:
-        order.setdefault(line.days, []).append(line)
-    return [DayLine(days, tuple(items)) for days, items in order.items()]
+        group = by_days.setdefault(line.days, {}).setdefault(line.dose, [])
+        if line.name not in group:
+            group.append(line.name)
+    out = []
+    for days, doses in by_days.items():
+        items = []
+        # Without names, the largest group sharing a dose is named only by its count.
+        largest = max(doses, key=lambda d: len(doses[d])) if not names else None
+        if largest is not None and len(doses[largest]) < 2:
+            largest = None
+        for dose, group in doses.items():
+            if dose != largest:
+                items.append((", ".join(group), dose))
+        if largest is not None:
+            count = len(doses[largest])
+            who = f"each of the {count} exercises" if len(doses) == 1 else f"each of the other {count} exercises"
+            items.append(("", f"{largest}, {who}"))
+        out.append(Cell(days, tuple(items)))
+    return out
+
+
+@dataclass(frozen=True)
+class TableRow:
+    label: str
+    notes: tuple[str, ...]
+    weak_window: bool
+    columns: tuple[tuple[Cell, ...], ...]  # one entry per COLUMNS
+    impacts_per_session: int = 0
 
 
 @dataclass(frozen=True)
 class WeekTable:
-    """The week-by-week table: what stays the same every week, then what changes."""
+    """The routine (which exercises on which days) and the week-by-week doses."""
 
-    every_week: list[DayLine]
-    rows: list[tuple[WeekGroup, list[DayLine]]]
+    routine: list[TableRow]
+    every_week: TableRow | None
+    rows: list[TableRow]
+
+    @property
+    def columns(self) -> tuple[tuple[str, str], ...]:
+        return COLUMNS
+
+
+def _row(label: str, notes, weak: bool, lines: list[Line], names: bool, impacts: int = 0) -> TableRow:
+    return TableRow(label, tuple(notes), weak,
+                    tuple(tuple(cells([ln for ln in lines if ln.column == key], names)) for key, _ in COLUMNS),
+                    impacts)
+
+
+def routine_rows(plan: Plan) -> list[TableRow]:
+    """Spans of weeks with the same exercises on the same days: names only, no doses."""
+    spans: list[tuple[int, int, tuple]] = []
+    for wk in sorted(plan.weeks, key=lambda w: w.week):
+        key = tuple(dict.fromkeys((ln.exercise_id, ln.name, ln.days, ln.column) for ln in week_lines(wk)))
+        if spans and spans[-1][2] == key and spans[-1][1] == wk.week - 1:
+            spans[-1] = (spans[-1][0], wk.week, key)
+        else:
+            spans.append((wk.week, wk.week, key))
+    rows = []
+    for first, last, key in spans:
+        columns = []
+        for col, _ in COLUMNS:
+            by_days: dict[str, list[str]] = {}
+            for _id, name, days, column in key:
+                if column == col and name not in by_days.setdefault(days, []):
+                    by_days[days].append(name)
+            columns.append(tuple(Cell(days, tuple((n, "") for n in names)) for days, names in by_days.items()
+                                 if names))
+        rows.append(TableRow(week_range(first, last), (), False, tuple(columns)))
+    return rows
 
 
 def week_table(plan: Plan) -> WeekTable:
-    """Rows of grouped weeks, with exercises prescribed identically in every week pulled out."""
+    """The routine, then rows of grouped weeks with their doses.
+
+    Exercises prescribed identically in every week are pulled out into one
+    "Every week" row.
+    """
     groups = week_groups(plan)
     common: set[Line] = set()
     if len(groups) > 1:
         common = set(groups[0].lines).intersection(*(g.lines for g in groups[1:]))
     every = [line for line in groups[0].lines if line in common]
-    rows = [(g, day_lines([line for line in g.lines if line not in common])) for g in groups]
-    return WeekTable(day_lines(every), rows)
+    rows = [_row(g.label, g.notes, g.facts.weak_window, [ln for ln in g.lines if ln not in common], False,
+                 g.facts.impacts_per_session) for g in groups]
+    return WeekTable(routine_rows(plan), _row("Every week", (), False, every, True) if every else None, rows)
 
 
 def dose_rows(plan: Plan) -> list[tuple[str, WeekFacts]]:
@@ -445,6 +529,14 @@ class ExerciseGuide:
     feel: str
     if_hard: str
     notes: tuple[str, ...]
+    weeks: str
+
+
+#: At most this many of the planner's notes are shown per exercise.
+MAX_NOTES = 1
+
+#: Shown once above the exercise guides (common practice; wording ours).
+IF_HARD_GENERAL = _IF_HARD_FALLBACK
 
 
 def exercise_guides(plan: Plan, lookup=None) -> list[ExerciseGuide]:
@@ -470,7 +562,7 @@ def exercise_guides(plan: Plan, lookup=None) -> list[ExerciseGuide]:
                 if reg is not None:
                     reg_name = _get(reg, "name") or reg_id
                     reg_how = _as_text(_get(reg, "instructions", "how_to"))
-                    if_hard = f"Do {reg_name} instead" + (f": {reg_how}" if reg_how else ".")
+                    if_hard = f"Do this instead: {reg_name}" + (f". {reg_how}" if reg_how else ".")
                     if not if_hard.endswith("."):
                         if_hard += "."
                 elif isinstance(reg_id, str):
@@ -481,6 +573,23 @@ def exercise_guides(plan: Plan, lookup=None) -> list[ExerciseGuide]:
                 level=f"{ex.impact_level}: {LEVEL_LABELS.get(ex.impact_level, '')}",
                 how_to=how or f"As your clinician showed you. {ex.name}: {dose_text(ex)}.",
                 feel=feel or _FEEL_FALLBACK.get(category, _FEEL_DEFAULT),
-                if_hard=(if_hard + " " if if_hard else "") + _IF_HARD_FALLBACK,
-                notes=())
-    return [ExerciseGuide(**{**g.__dict__, "notes": tuple(notes.get(i, ()))}) for i, g in seen.items()]
+                if_hard=if_hard or _IF_HARD_FALLBACK, notes=(), weeks="")
+    used: dict[str, list[int]] = {}
+    for wk in plan.weeks:
+        for ex in _exercises(wk):
+            if wk.week not in used.setdefault(ex.exercise_id, []):
+                used[ex.exercise_id].append(wk.week)
+    return [ExerciseGuide(**{**g.__dict__, "notes": tuple(notes.get(i, ())[:MAX_NOTES]),
+                             "weeks": week_spans(used[i])}) for i, g in seen.items()]
+
+
+def week_spans(weeks: list[int]) -> str:
+    """"weeks 1-7, 12" from a list of week numbers."""
+    spans: list[list[int]] = []
+    for w in sorted(set(weeks)):
+        if spans and spans[-1][1] == w - 1:
+            spans[-1][1] = w
+        else:
+            spans.append([w, w])
+    text = ", ".join(f"{a}" if a == b else f"{a}-{b}" for a, b in spans)
+    return ("week " if len(spans) == 1 and spans[0][0] == spans[0][1] else "weeks ") + text
