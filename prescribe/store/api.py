@@ -544,7 +544,7 @@ class Store:
         finally:
             if os.path.exists(tmp):
                 os.unlink(tmp)
-        return {"backup": str(target), "bytes": target.stat().st_size, "integrity_check": check,
+        return {"backup": str(target.resolve()), "bytes": target.stat().st_size, "integrity_check": check,
                 "people": people, "program_versions": versions, "revision": HEAD_REVISION}
 
 

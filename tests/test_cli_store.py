@@ -1,0 +1,175 @@
+"""The store's commands end to end: db init, db backup, save, export, import.
+
+Bad input exits 2 and writes nothing; a conflict exits 1 naming what conflicts;
+never a traceback.  The person here is invented."""
+
+from __future__ import annotations
+
+import json
+import sqlite3
+
+import pytest
+
+from conftest import run_cli
+from prescribe.cli import main
+from prescribe.store import open_store
+from test_store_support import plan, sha256
+
+
+class _Result:
+    def __init__(self, returncode, stdout, stderr):
+        self.returncode, self.stdout, self.stderr = returncode, stdout, stderr
+
+
+@pytest.fixture
+def cli_here(capsys):
+    """The same command line, run in this process (a new interpreter per call is slow);
+    the tests marked "subprocess" run the installed entry point itself."""
+    def run(*args):
+        capsys.readouterr()
+        try:
+            code = main(list(args))
+        except SystemExit as exc:  # argparse usage errors
+            code = exc.code
+        out, err = capsys.readouterr()
+        return _Result(code, out, err)
+    return run
+
+PERSON = {"patient_id": "CLI-0001", "age_years": 72, "sex": "female", "body_mass_kg": 58.0, "height_cm": 160.0,
+          "t_scores": {"lumbar_spine": -2.7, "total_hip": -2.2}, "falls_past_year": 1, "timed_up_and_go_s": 11.0}
+
+
+@pytest.fixture
+def person_file(tmp_path):
+    path = tmp_path / "person.json"
+    path.write_text(json.dumps(PERSON))
+    return path
+
+
+def _ok(result):
+    assert result.returncode == 0, result.stderr
+    assert "Traceback" not in result.stderr
+    return json.loads(result.stdout)
+
+
+def _fails(result, code, *words):
+    assert result.returncode == code, (result.returncode, result.stdout, result.stderr)
+    assert "Traceback" not in result.stderr and result.stdout == ""
+    for word in words:
+        assert word in result.stderr, result.stderr
+
+
+def test_db_init_creates_and_is_repeatable(cli_here, tmp_db):
+    first = _ok(cli_here("db", "init"))
+    assert first["revision"] == first["head_revision"] == "0002" and first["db"] == tmp_db
+    assert _ok(cli_here("db", "init"))["people"] == 0
+
+
+def test_save_screens_stores_and_prints_cautions(tmp_db, person_file):
+    out = _ok(run_cli("save", str(person_file), "--clinician", "Demo Physio (invented)"))
+    assert out["patient_id"] == "CLI-0001" and out["status"] == "created" and out["screening_id"] == 1
+    assert out["screening"]["bone_density_category"] == "osteoporosis"  # lowest T-score -2.7 (WHO 1994 cut-off -2.5)
+    assert any("clinical judgment" in c for c in out["cautions"])
+    with open_store(tmp_db) as store:
+        [screen] = store.screenings("CLI-0001")
+        assert screen["ruleset_version"] == out["screening"]["ruleset_version"] != ""
+        assert store.audit("CLI-0001")[0]["clinician"] == "Demo Physio (invented)"
+    assert _ok(run_cli("save", str(person_file)))["status"] == "unchanged"
+
+
+@pytest.mark.parametrize("content, words", [
+    ({**PERSON, "age_years": 12}, ["age_years must be a whole number from 18 to 110", "not 12"]),
+    ("{not json", ["well-formed JSON"]),
+    ({**PERSON, "conditions": ["flu"]}, ["conditions"]),
+])
+def test_save_with_bad_input_exits_2_and_writes_nothing(tmp_path, content, words):
+    bad = tmp_path / "bad.json"
+    bad.write_text(content if isinstance(content, str) else json.dumps(content))
+    db = tmp_path / "never.db"
+    _fails(run_cli("save", str(bad), "--db", str(db)), 2, *words)
+    assert not db.exists()
+
+
+def test_export_then_import_round_trips_exactly(cli_here, tmp_path, tmp_db, person_file):
+    _ok(cli_here("save", str(person_file), "--clinician", "AB"))
+    with open_store(tmp_db) as store:
+        store.save_program("CLI-0001", plan("CLI-0001", marker="<b>v1</b>"), "AB", None, note="start")
+        store.save_program("CLI-0001", plan("CLI-0001", weeks=3), "CD", 1, note="'); DROP TABLE people;--")
+    bundle = _ok(cli_here("export", "CLI-0001"))
+    assert [p["version"] for p in bundle["programs"]] == [1, 2] and bundle["cautions"]
+    bundle_file = tmp_path / "bundle.json"
+    assert _ok(cli_here("export", "CLI-0001", "--out", str(bundle_file)))["program_versions"] == 2
+    assert json.loads(bundle_file.read_text()) == bundle
+    other = tmp_path / "other.db"
+    assert _ok(cli_here("import", str(bundle_file), "--db", str(other)))["status"] == "imported"
+    assert _ok(cli_here("export", "CLI-0001", "--db", str(other))) == bundle
+    assert _ok(cli_here("import", str(bundle_file), "--db", str(other)))["status"] == "unchanged"
+
+
+def test_export_of_an_unknown_person_exits_2_naming_the_id(cli_here, tmp_db, person_file):
+    _ok(cli_here("save", str(person_file)))
+    _fails(cli_here("export", "NOBODY-42"), 2, "PATIENT_ID", "NOBODY-42")
+
+
+def test_export_from_a_missing_store_does_not_create_it(cli_here, tmp_path):
+    db = tmp_path / "absent.db"
+    _fails(cli_here("export", "X", "--db", str(db)), 1, "prescribe db init")
+    assert not db.exists()
+
+
+def test_import_over_a_different_person_exits_1_and_changes_nothing(cli_here, tmp_path, tmp_db, person_file):
+    _ok(cli_here("save", str(person_file), "--clinician", "AB"))
+    bundle_file = tmp_path / "bundle.json"
+    _ok(cli_here("export", "CLI-0001", "--out", str(bundle_file)))
+    changed = tmp_path / "changed.json"
+    changed.write_text(json.dumps({**PERSON, "falls_past_year": 3}))
+    other = tmp_path / "other.db"
+    _ok(cli_here("save", str(changed), "--db", str(other)))
+    before = _ok(cli_here("export", "CLI-0001", "--db", str(other)))
+    _fails(cli_here("import", str(bundle_file), "--db", str(other)), 1, "CLI-0001", "already in the store")
+    assert _ok(cli_here("export", "CLI-0001", "--db", str(other))) == before
+
+
+def test_import_of_a_malformed_bundle_exits_2_and_writes_nothing(cli_here, tmp_path, tmp_db, person_file):
+    _ok(cli_here("save", str(person_file)))
+    bundle = _ok(cli_here("export", "CLI-0001"))
+    bundle["screenings"][0]["created"] = "last Tuesday"
+    bad = tmp_path / "bad.json"
+    bad.write_text(json.dumps(bundle))
+    db = tmp_path / "never.db"
+    _fails(cli_here("import", str(bad), "--db", str(db)), 2, "screenings[0].created")
+    assert not db.exists()
+
+
+def test_backup_copies_and_refuses_to_overwrite(cli_here, tmp_path, tmp_db, person_file):
+    _ok(cli_here("save", str(person_file)))
+    target = tmp_path / "copy.db"
+    out = _ok(cli_here("db", "backup", str(target)))
+    assert out["integrity_check"] == "ok" and out["people"] == 1
+    conn = sqlite3.connect(target)
+    assert conn.execute("SELECT patient_id FROM people").fetchall() == [("CLI-0001",)]
+    conn.close()
+    before = sha256(target)
+    _fails(cli_here("db", "backup", str(target)), 2, "--force")
+    assert sha256(target) == before
+    assert _ok(cli_here("db", "backup", str(target), "--force"))["people"] == 1
+
+
+@pytest.mark.parametrize("kind", ["random bytes", "foreign sqlite"])
+def test_a_file_that_is_not_a_store_gives_a_clear_message(cli_here, tmp_path, person_file, kind):
+    db = tmp_path / "given.db"
+    if kind == "random bytes":
+        db.write_bytes(bytes((i * 37 + 11) % 256 for i in range(8192)))
+    else:
+        conn = sqlite3.connect(db)
+        conn.execute("CREATE TABLE recipes (id INTEGER PRIMARY KEY, title TEXT)")
+        conn.commit()
+        conn.close()
+    before = sha256(db)
+    _fails(run_cli("db", "init", "--db", str(db)), 1, "not a prescribe store", "left unchanged")
+    for args in (["save", str(person_file)], ["export", "CLI-0001"], ["import", str(person_file)]):
+        result = cli_here(*args, "--db", str(db))
+        assert result.returncode in (1, 2) and result.stdout == ""
+        if args[0] != "import":  # import refuses the person file itself first (not a bundle)
+            assert result.returncode == 1 and "not a prescribe store" in result.stderr
+    assert sha256(db) == before
