@@ -26,6 +26,10 @@ _IMPACT_EXERCISES = {
 
 
 def _impact_exercises(level: int, impacts: int, bouts: int) -> list[dict]:
+    if level <= 1:  # low impact work is prescribed in minutes, not impacts (PRODUCT.md)
+        return [{"exercise_id": "brisk_walking", "name": "Brisk walking", "category": "impact", "minutes": 20,
+                 "intensity": "RPE 4", "impact_level": 1, "peak_grf_bw": 1.3,
+                 "directions": ["vertical", "forward_back"], "patterns": []}]
     chosen = _IMPACT_EXERCISES[level]
     share = impacts // len(chosen)
     out = []
@@ -61,6 +65,8 @@ def make_plan(weeks: int = 26, step_ups: Iterable[int] | None = None, *, patient
         if step:
             level += 1
             impacts = 20  # a new, larger stimulus starts at a low count
+        elif w == 1:
+            impacts = 20
             since_step = 0
         else:
             since_step += 1
@@ -69,6 +75,8 @@ def make_plan(weeks: int = 26, step_ups: Iterable[int] | None = None, *, patient
         # (roughly 60-100 impacts a session is the usual practical target: common practice).
         if not step and not weak and since_step % 2 == 0 and w > 1:
             impacts = min(80, impacts + 10)
+        if level <= 1:
+            impacts = 0
         bouts = 2 if impacts >= 40 else 1
         pct = min(pct_hi, pct_lo + 5 * ((w - 1) // 4))
         impact_ex = [{"exercise_id": "marching_on_spot", "name": "Marching on the spot", "category": "impact",
