@@ -193,6 +193,7 @@ class RuleSet:
 # Loading and validation
 # ---------------------------------------------------------------------------
 
+_YEAR = re.compile(r"\b(19|20)\d\d\b")
 _RULE_ID = re.compile(r"^[a-z][a-z0-9_]*(\.[a-z0-9_]+)+$")
 _FILE_KEYS = {"family", "title", "description", "rules"}
 _RULE_KEYS = {"id", "title", "severity", "when", "effect", "message", "source", "certainty"}
@@ -299,8 +300,12 @@ def _parse_rule(entry: Any, family: str, file: str) -> Rule:
     effect = _parse_effect(entry.get("effect", {}))
     if severity == "clear_first" and not effect.refer:
         raise _Bad("a clear_first rule must set effect.refer = true")
+    source = _text(entry, "source")
+    if not (_YEAR.search(source) or "common practice" in source.lower()):
+        raise _Bad("'source' must be a citation with its year (authors, year, title or journal) "
+                   f"or say 'common practice', not {source!r}")
     return Rule(id=rid, family=family, title=_text(entry, "title"), severity=severity, when=when,
-                effect=effect, message=_text(entry, "message"), source=_text(entry, "source"),
+                effect=effect, message=_text(entry, "message"), source=source,
                 certainty=certainty, file=file, features=tuple(dict.fromkeys(used)))
 
 
