@@ -1,0 +1,988 @@
+"""The graded progression planner: a person's record and screening -> a weekly program.
+
+The planner turns a :class:`~prescribe.records.PatientRecord` and its
+:class:`~prescribe.records.ScreeningResult` into a :class:`~prescribe.plan_schema.Plan`:
+week by week, impact, resistance and balance sessions, progressed the way bone
+adapts.  The plan format is documented in ``docs/plan.md``.
+
+The progression rules, each enforced here and checked by :func:`check_plan`:
+
+1. Never above the screening's ``max_impact_level``; never an exercise whose
+   movement patterns are in the screening's ``avoid`` list.
+2. Impact work starts at or below the person's tolerance and steps up one impact
+   level at a time, only after the current level has been held at full volume
+   (common practice).
+3. The weak window: counting a step-up week as week 1, weeks 3, 4 and 5 carry no
+   higher impact level and no more impacts a session than week 2 (resorption
+   precedes formation after a new stimulus: Eriksen 1986, Endocr Rev 7:379;
+   Heaney, Yates & Santora 1997, J Bone Miner Res 12:1143).  The first week of
+   the program counts as a step-up from no impact training.
+4. Impacts a session build toward 50-100 and stay at or below 100 unless a
+   template says otherwise with a reason; more than 50 in a day are split into
+   bouts at least 4 h apart (Robling, Burr & Turner 2001, J Exp Biol
+   204:3389-3399: about 8 h restores mechanosensitivity).
+5. From moderate impact (level 2) on, each week's impact work loads the skeleton
+   in at least two directions (Turner 1998, Bone 23:399-407: unusual strain
+   distributions are more osteogenic).
+6. Resistance work begins with a technique phase and, where screening allows,
+   progresses toward 5 x 5 at 80-85% 1RM (Watson et al. 2018, J Bone Miner Res
+   33:211-220; Beck et al. 2017, J Sci Med Sport 20(5):438-445); after a
+   vertebral fracture or with high vertebral risk it keeps spine-sparing
+   variants and moderate loads (Giangregorio et al. 2014, Osteoporos Int
+   25:821-835).
+7. Balance work at least twice a week, first and more when falls risk is flagged
+   (Giangregorio et al. 2014).
+
+Session counts default to 3 impact, 3 balance and 2 resistance sessions a week
+(Kohrt et al. 2004, Med Sci Sports Exerc 36:1985-1996; Beck et al. 2017).
+
+This is decision support: every plan carries the standard cautions and must be
+reviewed by a licensed clinician.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from datetime import datetime, timezone
+from functools import lru_cache
+from typing import Any, Iterable
+
+import pandas as pd
+from pydantic import BaseModel, ConfigDict, Field, ValidationError
+
+from . import __version__
+from .cautions import with_standard
+from .dose import daily_osteogenic_index, osteogenic_index
+from .errors import FieldProblem, InputError, PlanRequestRefused
+from .plan_schema import PLAN_FORMAT_VERSION, Plan, PlannedExercise, PlannedSession, PlannedWeek
+from .planner_rules import IMPACTS_CEILING, ResistancePhase, Template, load_template, template_names
+from .records import PatientRecord, ScreeningResult
+
+__all__ = ["PlanOptions", "build_plan", "weekly_summary", "check_plan", "replace_exercise",
+           "reassessment_weeks", "IMPACT_LABELS", "SUMMARY_COLUMNS"]
+
+IMPACT_LABELS: dict[int, str] = {0: "no impact", 1: "low impact", 2: "moderate impact", 3: "high impact"}
+
+#: Columns of :func:`weekly_summary`, in order.
+SUMMARY_COLUMNS: list[str] = ["week", "phase", "impact_level", "impacts_per_session", "sessions",
+                              "weekly_osteogenic_index", "weak_window", "reassessment",
+                              "resistance_intensity_pct_1rm"]
+
+# --- sources the plan cites (only those actually used go into plan.sources) --------------
+SRC_KOHRT = "Kohrt et al. 2004, Med Sci Sports Exerc 36:1985-1996 (ACSM position stand: weight-bearing 3-5 and resistance 2-3 times a week)"
+SRC_BECK = "Beck, Daly, Fiatarone Singh & Taaffe 2017, J Sci Med Sport 20(5):438-445 (ESSA position statement: impact plus progressive resistance training; loaded spine flexion not recommended)"
+SRC_WATSON = "Watson et al. 2018, J Bone Miner Res 33:211-220 (LIFTMOR: 5 x 5 at 80-85% 1RM after a technique phase)"
+SRC_GIANG = "Giangregorio et al. 2014, Osteoporos Int 25:821-835 (spine-sparing technique after vertebral fracture; balance training; 8-12 repetitions)"
+SRC_ROBLING = "Robling, Burr & Turner 2001, J Exp Biol 204:3389-3399 (about 8 h of recovery restores mechanosensitivity; rest between loading cycles)"
+SRC_REMODEL = "Eriksen 1986, Endocr Rev 7:379 (resorption about 3 weeks precedes formation) and Heaney, Yates & Santora 1997, J Bone Miner Res 12:1143 (remodelling transient): no escalation in weeks 3-5 after a step-up"
+SRC_TURNER_OI = "Turner & Robling 2003, Exerc Sport Sci Rev 31(1):45-50 (osteogenic index = peak GRF x ln(cycles + 1))"
+SRC_TURNER_DIR = "Turner 1998, Bone 23:399-407 (bone responds to dynamic, unusual loading: at least two loading directions)"
+SRC_BROOKE = "Brooke-Wavell et al. 2022, Br J Sports Med 56:837-846 (strength 2-3 days a week; moderate impact; after vertebral fracture impact no more than brisk walking)"
+SRC_CADENCE = "Walking cadence of about 100 steps a minute, used to count loading cycles of minutes-based work (from memory)"
+
+#: Loading cycles a minute of walking-type work (from memory; see SRC_CADENCE).
+STEPS_PER_MINUTE = 100.0
+#: Impacts a set of impact work, and the rest between sets [s] (common practice,
+#: informed by Robling, Burr & Turner 2001: rest between cycles adds to the response).
+IMPACTS_PER_SET = 10
+IMPACT_REST_S = 15
+#: Minimum documented gap between bouts of impact work [h] (issue rule 4).
+MIN_BOUT_GAP_H = 4.0
+#: Weeks of the balance-first phase when falls risk is flagged: no step-up above
+#: low impact before it ends (Giangregorio et al. 2014; length common practice).
+BALANCE_FIRST_WEEKS = 4
+#: Weeks between balance-difficulty steps (common practice); longer with falls risk.
+BALANCE_STAGE_WEEKS = 6
+BALANCE_STAGE_WEEKS_FALLS = 8
+#: Resistance exercises a session drawn from progression chains, plus one back extensor.
+RESISTANCE_CHAINS_MAX = 5
+#: Patterns the planner never chooses for resistance work, whatever the screening says:
+#: loaded spine flexion is not recommended (Beck et al. 2017); twisting under load
+#: likewise (Giangregorio et al. 2014).
+NEVER_IN_RESISTANCE = frozenset({"loaded_spinal_flexion", "loaded_spinal_twisting"})
+
+_BALANCE_RANK = {"none": 0, "low": 1, "moderate": 2, "high": 3}
+
+# Day layouts (1 = Monday).  Resistance on non-consecutive days, across the week end too.
+_IMPACT_DAYS = {1: (1,), 2: (1, 4), 3: (1, 3, 5), 4: (1, 3, 5, 7), 5: (1, 2, 3, 5, 6),
+                6: (1, 2, 3, 4, 5, 6), 7: (1, 2, 3, 4, 5, 6, 7)}
+_RESISTANCE_DAYS = {1: (2,), 2: (2, 6), 3: (2, 4, 6)}
+_EXTRA_BALANCE_DAY_ORDER = (7, 2, 4, 6, 1, 3, 5)
+
+
+# =========================================================================================
+# Options
+# =========================================================================================
+
+_OPTION_ALLOWED = {
+    "weeks": "a whole number of weeks from 8 to 52",
+    "start_level": "an impact level 0, 1, 2 or 3, or null to let the planner choose",
+    "impact_sessions_per_week": "a whole number from 1 to 7",
+    "resistance_sessions_per_week": "a whole number from 1 to 3 (on non-consecutive days)",
+    "balance_sessions_per_week": "a whole number from 2 to 7 (balance work at least twice a week), or null for the default",
+    "exclude": "a list of exercise ids from the catalogue",
+    "include": "a list of exercise ids from the catalogue",
+    "template": "one of " + ", ".join(template_names()) + ", or null for the default",
+}
+
+
+class PlanOptions(BaseModel):
+    """What the clinician fixes for a plan.  Bad values raise :class:`InputError`.
+
+    ``balance_sessions_per_week`` left as None means 3 a week, or the template's
+    ``sessions_falls_risk`` (4 in the bundled ones) when falls risk is flagged.
+    ``include`` lists exercises the clinician prefers: the planner picks them first
+    where their level and category fit; one that breaks rule 1 is refused.
+    """
+
+    model_config = ConfigDict(extra="forbid", frozen=True, strict=True)
+
+    weeks: int = Field(26, ge=8, le=52)
+    start_level: int | None = Field(None, ge=0, le=3)
+    impact_sessions_per_week: int = Field(3, ge=1, le=7)
+    resistance_sessions_per_week: int = Field(2, ge=1, le=3)
+    balance_sessions_per_week: int | None = Field(None, ge=2, le=7)
+    exclude: tuple[str, ...] = ()
+    include: tuple[str, ...] = ()
+    template: str | None = None
+
+    def __init__(self, **data: Any):
+        for key in ("exclude", "include"):
+            if isinstance(data.get(key), list):
+                data[key] = tuple(data[key])
+        try:
+            super().__init__(**data)
+        except ValidationError as err:
+            problems = []
+            for e in err.errors(include_url=False):
+                field = str(e["loc"][0]) if e["loc"] else "options"
+                if e["type"] == "extra_forbidden":
+                    problems.append(FieldProblem(field, e.get("input"), "a known option (" +
+                                                 ", ".join(type(self).model_fields) + ")", kind="unknown_field"))
+                elif field not in {p.field for p in problems}:
+                    problems.append(FieldProblem(field, e.get("input"), _OPTION_ALLOWED.get(field, "a valid value")))
+            raise InputError(problems) from None
+        if self.template is not None and self.template not in template_names():
+            raise InputError.single("template", self.template, _OPTION_ALLOWED["template"])
+
+
+# =========================================================================================
+# Exercise views and choice
+# =========================================================================================
+
+@dataclass(frozen=True)
+class _Ex:
+    """The planner's view of one catalogue entry (read once per catalogue)."""
+
+    exercise_id: str
+    name: str
+    category: str
+    impact_level: int
+    peak_grf_bw: float
+    directions: tuple[str, ...]
+    patterns: frozenset[str]
+    balance_rank: int
+    dose_unit: str
+    progression: str | None
+    regression: str | None
+    spine_sparing: bool
+    loaded_by_1rm: bool
+    external_load: bool
+    order: int
+    source: str
+
+
+def _views(catalogue) -> list[_Ex]:
+    cached = getattr(catalogue, "_planner_views", None)
+    if cached is not None:
+        return cached
+    out = []
+    for i, e in enumerate(catalogue.all()):
+        equipment = " ".join(getattr(e, "equipment", ()) or ()).lower()
+        out.append(_Ex(
+            exercise_id=e.exercise_id, name=e.name, category=e.category,
+            impact_level=int(e.impact_level), peak_grf_bw=float(e.peak_grf_bw),
+            directions=tuple(e.directions), patterns=frozenset(e.patterns),
+            balance_rank=_BALANCE_RANK.get(getattr(e, "balance_demand", "low"), 1),
+            dose_unit=getattr(e, "dose_unit", "reps"),
+            progression=getattr(e, "progression", None), regression=getattr(e, "regression", None),
+            spine_sparing=bool(getattr(e, "spine_sparing", False)),
+            loaded_by_1rm=bool(getattr(e, "loaded_by_1rm", False)),
+            external_load=bool(getattr(e, "grf_plus_external_load", False))
+            or any(w in equipment for w in ("dumbbell", "kettlebell", "barbell", "band", "plates")),
+            order=i, source=str(getattr(e, "source", "")),
+        ))
+    try:
+        object.__setattr__(catalogue, "_planner_views", out)
+    except (AttributeError, TypeError):
+        pass
+    return out
+
+
+def _pick_impact(pool: list[_Ex], level: int, prefer: frozenset[str]) -> list[_Ex] | None:
+    """Exercises for a week of impact work at ``level`` (2 or 3), covering >= 2 directions.
+
+    The main exercise is the steadiest (lowest balance demand) at the level; others are
+    added when they bring a new loading direction (rule 5).  None when rule 5 cannot be
+    met with the exercises allowed.
+    """
+    def key(e: _Ex):
+        return (e.exercise_id not in prefer, e.balance_rank, e.order)
+
+    at_level = sorted((e for e in pool if e.impact_level == level), key=key)
+    if not at_level:
+        return None
+    chosen = [at_level[0]]
+    dirs = set(at_level[0].directions)
+    for e in at_level[1:]:
+        if len(chosen) == 3:
+            break
+        if set(e.directions) - dirs:
+            chosen.append(e)
+            dirs |= set(e.directions)
+    if len(dirs) < 2:
+        lower = sorted((e for e in pool if 2 <= e.impact_level < level), key=key)
+        for e in lower:
+            if set(e.directions) - dirs:
+                chosen.append(e)
+                dirs |= set(e.directions)
+                break
+    return chosen if len(dirs) >= 2 else None
+
+
+def _chains(pool: list[_Ex], allowed: set[str]) -> list[list[_Ex]]:
+    """Resistance progression chains (regression -> progression), in catalogue order."""
+    by_id = {e.exercise_id: e for e in pool if e.category == "resistance" and e.dose_unit == "reps"}
+    targets = {e.progression for e in by_id.values()}
+    chains = []
+    for e in sorted(by_id.values(), key=lambda x: x.order):
+        if e.exercise_id in targets:
+            continue
+        chain, cur, seen = [], e, set()
+        while cur is not None and cur.exercise_id not in seen:
+            seen.add(cur.exercise_id)
+            chain.append(cur)
+            cur = by_id.get(cur.progression) if cur.progression else None
+        chain = [c for c in chain if c.exercise_id in allowed]
+        if chain:
+            chains.append(chain)
+    return chains
+
+
+# =========================================================================================
+# Dose
+# =========================================================================================
+
+# =========================================================================================
+# The plan
+# =========================================================================================
+
+def reassessment_weeks(weeks: int) -> list[int]:
+    """Review weeks: evenly spaced, at most 8 weeks apart, the last week included.
+
+    Plans of 12 weeks or more get reviews every 6 to 8 weeks (issue 4; common practice).
+    """
+    k = max(1, math.ceil(weeks / 8))
+    return sorted({int(math.floor(i * weeks / k + 0.5)) for i in range(1, k + 1)})
+
+
+def _spine_sparing(record: PatientRecord, screening: ScreeningResult, tpl: Template) -> tuple[bool, str]:
+    if tpl.spine_sparing:
+        return True, f"template {tpl.name}"
+    if any(f.site == "vertebra" for f in record.fractures):
+        return True, "vertebral fracture on record"
+    if screening.bone_density_category == "severe_osteoporosis":
+        return True, "severe osteoporosis"
+    if sum(1 for f in record.fractures if f.low_trauma) >= 2:
+        return True, "two or more fragility fractures (high vertebral risk)"
+    if "thoracic_kyphosis" in record.conditions:
+        return True, "marked thoracic kyphosis"
+    if {"loaded_spinal_flexion", "loaded_spinal_twisting"} <= set(screening.avoid) and \
+            screening.bone_density_category in ("osteoporosis", "severe_osteoporosis"):
+        return True, "osteoporosis with spinal loading patterns to avoid"
+    return False, ""
+
+
+def _phase_at(phases: tuple[ResistancePhase, ...], week: int) -> ResistancePhase:
+    start = 1
+    for ph in phases:
+        if ph.weeks == 0 or week < start + ph.weeks:
+            return ph
+        start += ph.weeks
+    return phases[-1]
+
+
+def _rpe_for(pct: float | None, fallback: str) -> str:
+    """Borg CR10 effort matching a %1RM band for unloaded work (common practice, from memory)."""
+    if pct is None:
+        return fallback
+    if pct < 60:
+        return "RPE 4-5"
+    if pct < 70:
+        return "RPE 5-6"
+    if pct < 80:
+        return "RPE 6-7"
+    return "RPE 7-8"
+
+
+def _exercise(e: _Ex, **kw) -> dict:
+    d = {"exercise_id": e.exercise_id, "name": e.name, "category": e.category,
+         "sets": None, "reps": None, "impacts": 0, "minutes": None, "bouts": 1, "intensity": "",
+         "impact_level": e.impact_level, "peak_grf_bw": e.peak_grf_bw,
+         "directions": list(e.directions), "patterns": sorted(e.patterns),
+         "rest_s": None, "bout_gap_hours": None, "notes": ""}
+    d.update(kw)
+    return d
+
+
+def _session_oi(exercises: list[dict]) -> float:
+    """Turner's osteogenic index of a session: the sum over its exercises [BW].
+
+    Level 2-3 impacts use :func:`prescribe.dose.daily_osteogenic_index` with the
+    documented bouts and gap; minutes of walking-type work count
+    :data:`STEPS_PER_MINUTE` cycles a minute; repetitions count one cycle each;
+    balance holds are static and count none (Turner 1998: bone responds to dynamic load).
+    """
+    total = 0.0
+    for x in exercises:
+        if x["impacts"]:
+            total += _oi(x["peak_grf_bw"], x["impacts"], x["bouts"], x["bout_gap_hours"] or 8.0)
+        elif x["category"] == "impact" and x["minutes"]:
+            total += _oi(x["peak_grf_bw"], int(x["minutes"] * STEPS_PER_MINUTE))
+        elif x["sets"] and x["reps"] and x["category"] != "balance":
+            total += _oi(x["peak_grf_bw"], x["sets"] * x["reps"])
+    return round(total, 2)
+
+
+@lru_cache(maxsize=4096)
+def _oi(peak_grf_bw: float, cycles: int, bouts: int = 1, gap_hours: float = 8.0) -> float:
+    """:func:`prescribe.dose.daily_osteogenic_index` as a float, remembered (plans repeat doses)."""
+    if bouts == 1:
+        return float(osteogenic_index(peak_grf_bw, cycles))
+    return float(daily_osteogenic_index(peak_grf_bw, cycles, bouts, gap_hours))
+
+
+class _Builder:
+    """Holds one plan's choices; :meth:`weeks` lays them out week by week."""
+
+    def __init__(self, record: PatientRecord, screening: ScreeningResult, options: PlanOptions,
+                 catalogue, tpl: Template):
+        self.record, self.screening, self.options, self.tpl = record, screening, options, tpl
+        self.cautions: list[str] = []
+        self.sources: list[str] = [SRC_KOHRT, SRC_BECK, SRC_REMODEL, SRC_TURNER_OI]
+        views = _views(catalogue)
+        by_id = {e.exercise_id: e for e in views}
+        for field in ("exclude", "include"):
+            unknown = [x for x in getattr(options, field) if x not in by_id]
+            if unknown:
+                raise InputError.single(field, unknown[0] if len(unknown) == 1 else unknown,
+                                        "exercise ids from the catalogue (list them with `prescribe exercises`)")
+        self.screen_cap = int(screening.max_impact_level)
+        self.cap = min(self.screen_cap, tpl.impact["max_level"])
+        self.avoid = frozenset(screening.avoid)
+        for x in options.include:
+            e = by_id[x]
+            bad = sorted(e.patterns & self.avoid)
+            if bad:
+                raise PlanRequestRefused("rule 1", f"exercise {x!r} involves {', '.join(bad)}, which the "
+                                         "screening asks to avoid", field="include", value=x)
+            if e.impact_level > self.cap:
+                raise PlanRequestRefused("rule 1", f"exercise {x!r} is impact level {e.impact_level}, above "
+                                         f"the level {self.cap} allowed for this person", field="include", value=x)
+        if options.start_level is not None and options.start_level > self.cap:
+            why = ("the screening's max_impact_level" if options.start_level > self.screen_cap
+                   else f"the {tpl.name} template's max_level")
+            raise PlanRequestRefused("rule 1", f"start_level {options.start_level} is above {why} "
+                                     f"({self.cap}); the plan may not exceed it", field="start_level",
+                                     value=options.start_level)
+        self.falls = bool(screening.falls_risk or screening.balance_first)
+        excluded = set(options.exclude)
+        self.prefer = frozenset(options.include)
+        self.pool = [e for e in views if e.exercise_id not in excluded and not (e.patterns & self.avoid)
+                     and e.impact_level <= self.cap]
+        self._choose_impact()
+        self._choose_resistance()
+        self._choose_balance()
+
+    # --- choices -----------------------------------------------------------------------
+    def _choose_impact(self) -> None:
+        pool = [e for e in self.pool if e.category == "impact"
+                and not (self.falls and e.balance_rank >= 3)]
+        pool_l23 = [e for e in pool if e.impact_level >= 2 and e.dose_unit == "impacts"]
+        level1 = sorted((e for e in pool if e.impact_level == 1 and e.dose_unit == "minutes"),
+                        key=lambda e: (e.exercise_id not in self.prefer, e.balance_rank, -e.peak_grf_bw, e.order))
+        level0 = sorted((e for e in self.pool if e.category == "resistance" and e.impact_level == 0
+                         and e.dose_unit == "reps" and e.peak_grf_bw >= 1.0 and not e.external_load
+                         and e.balance_rank <= 1),
+                        key=lambda e: (e.exercise_id not in self.prefer, -e.peak_grf_bw, e.order))
+        self.sets_by_level: dict[int, list[_Ex]] = {0: level0[:2], 1: level1[:1]}
+        for lv in (2, 3):
+            picked = _pick_impact(pool_l23, lv, self.prefer)
+            if picked:
+                self.sets_by_level[lv] = picked
+        default_start = min(self.cap, self.tpl.impact["default_start_level"])
+        start = self.options.start_level if self.options.start_level is not None else default_start
+        while start > 0 and not self.sets_by_level.get(start):
+            start -= 1
+        if self.options.start_level is not None and start < self.options.start_level:
+            self.cautions.append(f"The start level was lowered from {self.options.start_level} to {start}: "
+                                 "too few allowed exercises at that level to load in two directions.")
+        top = start
+        while top + 1 <= self.cap and self.sets_by_level.get(top + 1):
+            top += 1
+        if top < self.cap:
+            self.cautions.append(f"Impact work stops at level {top} ({IMPACT_LABELS[top]}), below the allowed "
+                                 f"{self.cap}: too few allowed exercises above it to load the skeleton in at "
+                                 "least two directions.")
+        self.start, self.top = start, top
+
+    def _choose_resistance(self) -> None:
+        self.spine_sparing, why = _spine_sparing(self.record, self.screening, self.tpl)
+        self.phases = self.tpl.spine_sparing_phases if self.spine_sparing else self.tpl.resistance_phases
+        allowed = {e.exercise_id for e in self.pool
+                   if not (e.patterns & NEVER_IN_RESISTANCE) and e.impact_level == 0
+                   and (e.spine_sparing or not self.spine_sparing)
+                   and not (self.falls and e.balance_rank >= 2)}
+        self.chains = _chains(self.pool, allowed)
+        self.chains.sort(key=lambda ch: (not any(c.exercise_id in self.prefer for c in ch), ch[0].order))
+        self.chains = self.chains[:RESISTANCE_CHAINS_MAX]
+        self.back = [e for e in self.pool if e.category == "back_extensor" and e.exercise_id in allowed]
+        self.posture = [e for e in self.pool if e.category == "posture" and e.dose_unit == "reps"] \
+            if (self.spine_sparing or "thoracic_kyphosis" in self.record.conditions) else []
+        if self.spine_sparing:
+            self.sources.append(SRC_GIANG)
+            self.cautions.append(f"Spine-sparing program ({why}): keep the spine long and neutral; no loaded "
+                                 "or repeated forward bending or twisting of the spine, and moderate loads only.")
+        if any(ph.pct_1rm is not None and ph.pct_1rm >= 80 for ph in self.phases):
+            self.sources.append(SRC_WATSON)
+        self.sources.append(SRC_BROOKE)
+
+    def _choose_balance(self) -> None:
+        self.balance_pool = sorted((e for e in self.pool if e.category == "balance"),
+                                   key=lambda e: (e.balance_rank, e.exercise_id not in self.prefer, e.order))
+        if self.falls:
+            self.sources.append(SRC_GIANG)
+            self.cautions.append("Falls risk: balance work comes first in each session and is practised "
+                                 "next to a stable support, supervised at first; impact work stays at low "
+                                 f"impact for the first {BALANCE_FIRST_WEEKS} weeks.")
+
+    def _balance_set(self, week: int) -> list[_Ex]:
+        stage_len = BALANCE_STAGE_WEEKS_FALLS if self.falls else BALANCE_STAGE_WEEKS
+        stage = (week - 1) // stage_len
+        ceiling = min((1 if self.falls else 2) + stage, 3)
+        fit = [e for e in self.balance_pool if e.balance_rank <= ceiling]
+        fit.sort(key=lambda e: (-e.balance_rank, e.exercise_id not in self.prefer, e.order))
+        return fit[:3]
+
+    # --- progression of impact work ----------------------------------------------------
+    def _volume(self, level: int) -> tuple[int, int, int]:
+        imp = self.tpl.impact
+        if level == 0:
+            return imp["level0_reps_start"], imp["level0_reps_step"], imp["level0_reps_full"]
+        if level == 1:
+            return imp["level1_minutes_start"], imp["level1_minutes_step"], imp["level1_minutes_full"]
+        target = self.tpl.impacts_target(level)
+        return min(imp["impacts_start"], target), imp["impacts_step"], target
+
+    def impact_schedule(self) -> list[tuple[int, int, bool, bool, str]]:
+        """Per week: (level, volume, step_up, weak_window, impact phase text)."""
+        out = []
+        hold = self.tpl.impact["hold_weeks_at_full"]
+        level, (vol, _, _) = self.start, self._volume(self.start)
+        window_start = 1 if level > 0 else None
+        at_full = 0
+        for w in range(1, self.options.weeks + 1):
+            step_up = False
+            if w > 1:
+                pos = w - window_start + 1 if window_start else 0
+                if 3 <= pos <= 5:
+                    pass  # weak window: hold level and volume of window week 2 (rule 3)
+                else:
+                    _, step, full = self._volume(level)
+                    blocked = self.falls and w <= BALANCE_FIRST_WEEKS and level + 1 >= 2
+                    if vol >= full and at_full >= hold and level < self.top and not blocked:
+                        level += 1
+                        vol = self._volume(level)[0]
+                        window_start, step_up, at_full = w, True, 0
+                    else:
+                        vol = min(vol + step, full)
+            else:
+                step_up = level > 0
+            full = self._volume(level)[2]
+            at_full = at_full + 1 if vol >= full else 0
+            pos = w - window_start + 1 if window_start else 0
+            weak = 3 <= pos <= 5
+            label = IMPACT_LABELS[level]
+            if weak:
+                text = f"consolidate {label} (remodelling window: no increase)"
+            elif step_up:
+                text = f"start {label}" if w == 1 else f"step up to {label}"
+            elif vol >= full:
+                text = f"full volume at {label}"
+            else:
+                text = f"build {label}"
+            out.append((level, vol, step_up, weak, text))
+        return out
+
+    # --- sessions ----------------------------------------------------------------------
+    def impact_exercises(self, level: int, vol: int) -> list[dict]:
+        chosen = self.sets_by_level.get(level, [])
+        if level == 0:
+            return [_exercise(e, sets=2, reps=vol, rest_s=60, intensity="RPE 3-4",
+                              notes="Weight-bearing, feet on the ground; hold a support if needed.")
+                    for e in chosen]
+        if level == 1:
+            return [_exercise(e, minutes=float(vol), intensity="RPE 3-4",
+                              notes="Steady pace; firm, even footfalls.") for e in chosen]
+        split = self.tpl.impact["bout_split_above"]
+        bouts = max(1, math.ceil(vol / split))
+        gap = self.tpl.impact["bout_gap_hours"] if bouts > 1 else None
+        k = min(len(chosen), vol)
+        base, extra = divmod(vol, k)
+        out = []
+        for i, e in enumerate(chosen[:k]):
+            n = base + (1 if i < extra else 0)
+            note = (f"Sets of about {IMPACTS_PER_SET} with {IMPACT_REST_S} s rest; land with control.")
+            if bouts > 1:
+                note += (f" Split into {bouts} bouts at least {MIN_BOUT_GAP_H:g} h apart "
+                         f"(about {gap:g} h is best).")
+            out.append(_exercise(e, sets=math.ceil(n / IMPACTS_PER_SET), reps=None, impacts=n, bouts=bouts,
+                                 intensity="maximal controlled effort" if e.impact_level == 3 else "RPE 5-6",
+                                 rest_s=IMPACT_REST_S, bout_gap_hours=gap, notes=note))
+        return out
+
+    def resistance_exercises(self, week: int) -> tuple[list[dict], ResistancePhase]:
+        ph = _phase_at(self.phases, week)
+        heavy = ph.pct_1rm is not None and ph.pct_1rm >= 70
+        rest = 60 if ph.pct_1rm is None else (90 if ph.pct_1rm < 80 else 150)
+        out = []
+        for chain in self.chains:
+            usable = [c for c in chain if heavy or not c.loaded_by_1rm] or chain[:1]
+            e = usable[-1]
+            sets, reps, pct = ph.sets, ph.reps, ph.pct_1rm
+            if pct is not None and pct >= 80 and not e.loaded_by_1rm:
+                # 5 x 5 at 80-85% 1RM is for the main barbell lifts (Watson et al. 2018);
+                # accessory work stays at 3 x 8 (Brooke-Wavell et al. 2022).
+                sets, reps, pct = 3, 8, 70.0
+            if pct is not None and (e.loaded_by_1rm or e.external_load):
+                intensity = f"{pct:g}% 1RM"
+            else:
+                intensity = _rpe_for(pct, ph.intensity)
+            out.append(_exercise(e, sets=sets, reps=reps, intensity=intensity, rest_s=rest,
+                                 notes=f"{ph.name} phase: smooth, controlled lifting; breathe out on effort."))
+        extra = []
+        if self.back:
+            extra.append(self.back[0] if ph.name == "technique" or len(self.back) == 1 else self.back[1])
+        if self.posture:
+            extra.append(self.posture[0])
+        for e in extra:
+            out.append(_exercise(e, sets=2, reps=8 if ph.name == "technique" else 10,
+                                 intensity="RPE 3-4" if ph.name == "technique" else "RPE 5-6", rest_s=60,
+                                 notes="Spine long and neutral throughout."))
+        return out, ph
+
+    def balance_exercises(self, week: int, minutes: float) -> list[dict]:
+        chosen = self._balance_set(week)
+        if not chosen:
+            return []
+        each = max(1.0, round(2 * minutes / len(chosen)) / 2)
+        return [_exercise(e, minutes=each, rest_s=30, intensity="challenging but safe",
+                          notes="Near a counter or stable support; hold 10-30 s at a time.") for e in chosen]
+
+    def build(self, created: str) -> dict:
+        opts, tpl = self.options, self.tpl
+        k_i, k_r = opts.impact_sessions_per_week, opts.resistance_sessions_per_week
+        k_b = opts.balance_sessions_per_week
+        if k_b is None:
+            k_b = tpl.balance["sessions_falls_risk"] if self.falls else 3
+        bal_minutes = tpl.balance["minutes_falls_risk"] if self.falls else None
+        impact_days = _IMPACT_DAYS[k_i]
+        res_days = _RESISTANCE_DAYS[k_r]
+        bal_days = list(impact_days[:k_b])
+        for d in _EXTRA_BALANCE_DAY_ORDER:
+            if len(bal_days) >= k_b:
+                break
+            if d not in bal_days:
+                bal_days.append(d)
+        review = set(reassessment_weeks(opts.weeks))
+        weeks = []
+        c_imp: dict[tuple, tuple] = {}
+        c_res: dict[ResistancePhase, tuple] = {}
+        c_bal: dict[tuple, tuple] = {}
+        used_l23 = False
+        schedule = self.impact_schedule()
+        for w, (level, vol, step_up, weak, text) in enumerate(schedule, start=1):
+            ph = _phase_at(self.phases, w)
+            b_stage = (w - 1) // (BALANCE_STAGE_WEEKS_FALLS if self.falls else BALANCE_STAGE_WEEKS)
+            minutes = bal_minutes or min(tpl.balance["minutes_start"] + 5 * ((w - 1) // 4), tpl.balance["minutes_full"])
+            if (level, vol) not in c_imp:
+                imp = self.impact_exercises(level, vol)
+                c_imp[level, vol] = (imp, _session_oi(imp),
+                                     sum(x["impacts"] for x in imp if x["impact_level"] >= 2))
+            if ph not in c_res:
+                res = self.resistance_exercises(w)[0]
+                c_res[ph] = (res, _session_oi(res))
+            if (b_stage, minutes) not in c_bal:
+                bal = self.balance_exercises(w, minutes)
+                c_bal[b_stage, minutes] = (bal, _session_oi(bal))
+            imp, oi_i, n_imp = c_imp[level, vol]
+            res, oi_r = c_res[ph]
+            bal, oi_b = c_bal[b_stage, minutes]
+            used_l23 = used_l23 or n_imp > 0
+            sessions = []
+            for d in sorted(set(impact_days) | set(bal_days) | set(res_days)):
+                if d in impact_days:
+                    has_bal = d in bal_days
+                    exs = ((bal, imp) if self.falls else (imp, bal)) if has_bal else imp
+                    sessions.append({"day": d, "kind": "mixed" if has_bal and bal else "impact",
+                                     "exercises": exs, "impacts": n_imp,
+                                     "osteogenic_index": round(oi_i + (oi_b if has_bal else 0.0), 2)})
+                elif d in bal_days:
+                    sessions.append({"day": d, "kind": "balance", "exercises": bal, "impacts": 0,
+                                     "osteogenic_index": oi_b})
+                if d in res_days:
+                    sessions.append({"day": d, "kind": "resistance", "exercises": res, "impacts": 0,
+                                     "osteogenic_index": oi_r})
+            weeks.append({
+                "week": w,
+                "impact_level": max([x["impact_level"] for x in (*imp, *res, *bal)], default=0),
+                "impacts_per_session": n_imp,
+                "reassessment": w in review,
+                "sessions": sessions,
+                "phase": f"{'balance first; ' if self.falls and w <= BALANCE_FIRST_WEEKS else ''}{text}; "
+                         f"resistance {ph.name}",
+                "impact_phase": text,
+                "resistance_phase": ph.name,
+                "weak_window": weak,
+                "step_up": step_up,
+                "resistance_intensity_pct_1rm": ph.pct_1rm,
+                "weekly_osteogenic_index": round(sum(s["osteogenic_index"] for s in sessions), 2),
+                "impact_volume": vol,
+                "impact_volume_unit": {0: "reps", 1: "minutes"}.get(level, "impacts"),
+                "balance_minutes_per_session": minutes,
+            })
+        if used_l23:
+            self.sources.append(SRC_TURNER_DIR)
+            if any(w["impacts_per_session"] > tpl.impact["bout_split_above"] for w in weeks):
+                self.sources.append(SRC_ROBLING)
+        if any(w["impact_volume_unit"] == "minutes" for w in weeks):
+            self.sources.append(SRC_CADENCE)
+        self.cautions.append("Weeks 3 to 5 after each step up in impact (and after the start) are a "
+                             "consolidation window: do not add impacts or raise the level then.")
+        if used_l23:
+            self.cautions.append("Impact work: land with control on a firm, non-slip surface in supportive "
+                                 "shoes; more than 50 impacts in a day are split into bouts at least 4 h apart.")
+        if self.screening.refer:
+            self.cautions.insert(0, "Screening asks that a clinician clear this person before any loading: "
+                                    "do not start this program until then.")
+        if self.screening.supervision:
+            self.cautions.append("Supervised sessions are advised for this person, at least at first.")
+        used_ids = {x["exercise_id"] for lst in (*c_imp.values(), *c_res.values(), *c_bal.values())
+                    for x in lst[0]}
+        ex_sources = [e.source for e in _views_by_id(self.pool, used_ids)]
+        sources = []
+        tpl_sources = [t for t in tpl.source_list() if not t.lower().startswith("common practice")]
+        for s in (*self.sources, *tpl_sources, *ex_sources):
+            if s and s not in sources:
+                sources.append(s)
+        fixed = sorted(opts.model_fields_set)
+        return {
+            "plan_format_version": PLAN_FORMAT_VERSION,
+            "patient_id": self.record.patient_id,
+            "created": created,
+            "tool_version": __version__,
+            "ruleset_version": self.screening.ruleset_version or _ruleset_version(),
+            "screening": self.screening,
+            "cautions": with_standard([*self.screening.cautions, *self.cautions]),
+            "sources": sources,
+            "weeks": weeks,
+            "options": {**opts.model_dump(mode="json"), "template": tpl.name, "fixed": fixed,
+                        "balance_sessions_per_week": k_b},
+            "template": {"name": tpl.name, "title": tpl.title, "summary": tpl.summary},
+            "max_impacts_per_session": tpl.impact["max_impacts_per_session"],
+            "max_impacts_reason": tpl.max_impacts_reason,
+            "start_level": self.start,
+            "top_level": self.top,
+            "max_impact_level": self.cap,
+            "avoid": sorted(self.avoid),
+            "spine_sparing": self.spine_sparing,
+        }
+
+
+def _views_by_id(pool: Iterable[_Ex], ids: set[str]) -> list[_Ex]:
+    return [e for e in pool if e.exercise_id in ids]
+
+
+@lru_cache(maxsize=1)
+def _ruleset_version() -> str:
+    try:
+        from .screening import RULESET_VERSION
+    except ImportError:  # the screening engine is optional for a caller giving a screening
+        return "unknown"
+    return str(RULESET_VERSION)
+
+
+def _default_template(record: PatientRecord) -> str:
+    """post_vertebral_fracture after a vertebral fracture (Brooke-Wavell et al. 2022), else standard."""
+    return "post_vertebral_fracture" if any(f.site == "vertebra" for f in record.fractures) else "standard"
+
+
+def build_plan(record: PatientRecord, screening: ScreeningResult | None = None,
+               options: PlanOptions | None = None, catalogue=None, created: str | None = None,
+               validate: bool = True) -> Plan:
+    """Build the graded program for one person.
+
+    Parameters
+    ----------
+    record : PatientRecord
+        The validated record.
+    screening : ScreeningResult, optional
+        The screening it is built from; screened here with
+        :func:`prescribe.screening.screen` when omitted.
+    options : PlanOptions, optional
+        What the clinician fixed (weeks, start level, sessions, exclusions, template).
+    catalogue : Catalogue, optional
+        The exercise catalogue; the packaged one by default.
+    created : str, optional
+        ISO 8601 timestamp to stamp (default: now, UTC).
+    validate : bool
+        Validate the whole plan with pydantic (default).  False builds it with
+        ``model_construct`` at every level, for speed; the content is the same.
+
+    Returns
+    -------
+    Plan
+
+    Raises
+    ------
+    InputError
+        An option names an unknown exercise or template.
+    PlanRequestRefused
+        The request would break rule 1 (a start level above the cap; an included
+        exercise above the cap or in the avoid list).
+
+    References
+    ----------
+    Kohrt et al. 2004, Med Sci Sports Exerc 36:1985-1996; Beck et al. 2017, J Sci Med
+    Sport 20(5):438-445; Watson et al. 2018, J Bone Miner Res 33:211-220;
+    Giangregorio et al. 2014, Osteoporos Int 25:821-835; Robling, Burr & Turner 2001,
+    J Exp Biol 204:3389-3399; Turner & Robling 2003, Exerc Sport Sci Rev 31(1):45-50.
+    """
+    options = options or PlanOptions()
+    if screening is None:
+        from .screening import screen
+        screening = screen(record)
+    if catalogue is None:
+        from .catalogue import default_catalogue
+        catalogue = default_catalogue()
+    tpl = load_template(options.template or _default_template(record))
+    created = created or datetime.now(timezone.utc).replace(microsecond=0).isoformat()
+    data = _Builder(record, screening, options, catalogue, tpl).build(created)
+    return _assemble(data, validate)
+
+
+def _assemble(data: dict, validate: bool) -> Plan:
+    """The Plan model from the builder's dicts.
+
+    Each distinct exercise dict (the builder shares them between the sessions of a
+    week and between weeks) becomes one model; sessions, weeks and the plan are
+    then built around those models.  With ``validate`` every level goes through
+    pydantic validation (instances are accepted as they are), which is what makes a
+    plan fast enough to build interactively; without it ``model_construct`` is used.
+    """
+    make_ex = PlannedExercise.model_validate if validate else (lambda d: PlannedExercise.model_construct(**d))
+    make_s = PlannedSession.model_validate if validate else (lambda d: PlannedSession.model_construct(**d))
+    make_w = PlannedWeek.model_validate if validate else (lambda d: PlannedWeek.model_construct(**d))
+    ex_cache: dict[int, list] = {}
+
+    def exercises(lst: list[dict]) -> list:
+        got = ex_cache.get(id(lst))
+        if got is None:
+            got = ex_cache[id(lst)] = [make_ex(x) for x in lst]
+        return list(got)
+
+    s_cache: dict[tuple, Any] = {}
+    weeks = []
+    for w in data["weeks"]:
+        sessions = []
+        for s in w["sessions"]:
+            exs = s["exercises"]
+            ids = tuple(map(id, exs)) if isinstance(exs, tuple) else id(exs)
+            key = (ids, s["kind"], s["impacts"], s["osteogenic_index"])
+            proto = s_cache.get(key)
+            if proto is None:
+                if isinstance(exs, tuple):  # a mixed session: (first list, second list)
+                    models = exercises(exs[0]) + exercises(exs[1])
+                else:
+                    models = exercises(exs)
+                proto = s_cache[key] = make_s({**s, "exercises": models})
+                sessions.append(proto)
+            else:
+                sessions.append(make_s({**s, "exercises": list(proto.exercises)}))
+        weeks.append(make_w({**w, "sessions": sessions}))
+    if validate:
+        return Plan.model_validate({**data, "weeks": weeks})
+    return Plan.model_construct(**{**data, "weeks": weeks})
+
+
+# =========================================================================================
+# Reading and checking plans
+# =========================================================================================
+
+def weekly_summary(plan: Plan) -> pd.DataFrame:
+    """One row a week: the columns of :data:`SUMMARY_COLUMNS` (``sessions`` is a count)."""
+    rows = []
+    for w in plan.weeks:
+        extra = w.model_extra or {}
+        rows.append({
+            "week": w.week, "phase": extra.get("phase", ""), "impact_level": w.impact_level,
+            "impacts_per_session": w.impacts_per_session, "sessions": len(w.sessions),
+            "weekly_osteogenic_index": extra.get("weekly_osteogenic_index",
+                                                 round(sum(s.osteogenic_index for s in w.sessions), 2)),
+            "weak_window": bool(extra.get("weak_window", False)), "reassessment": w.reassessment,
+            "resistance_intensity_pct_1rm": extra.get("resistance_intensity_pct_1rm"),
+        })
+    return pd.DataFrame(rows, columns=SUMMARY_COLUMNS)
+
+
+def _extra(model, key, default=None):
+    extra = getattr(model, "model_extra", None) or {}
+    return extra.get(key, default)
+
+
+def check_plan(plan: Plan, screening: ScreeningResult | None = None) -> list[str]:
+    """Violations of rules 1, 2 (one level at a time), 3, 4 and 5; empty when the plan is safe.
+
+    Works on any plan, also one edited by hand, so the app can refuse unsafe edits.
+    Each message starts with the rule, e.g. ``"rule 3: week 9 ..."``.
+
+    Parameters
+    ----------
+    plan : Plan
+    screening : ScreeningResult, optional
+        The screening to hold the plan to (default: the one stored in the plan).
+    """
+    screening = screening or plan.screening
+    cap, avoid = screening.max_impact_level, set(screening.avoid)
+    max_imp = _extra(plan, "max_impacts_per_session", IMPACTS_CEILING)
+    reason = _extra(plan, "max_impacts_reason", "")
+    if max_imp > IMPACTS_CEILING and not reason:
+        max_imp = IMPACTS_CEILING
+    out: list[str] = []
+    levels, counts = [], []
+    for wk in plan.weeks:
+        w = wk.week
+        ex_levels = [x.impact_level for s in wk.sessions for x in s.exercises]
+        top = max(ex_levels, default=0)
+        if wk.impact_level > cap or top > cap:
+            out.append(f"rule 1: week {w} reaches impact level {max(top, wk.impact_level)}, above the "
+                       f"screening's max_impact_level {cap}")
+        if top != wk.impact_level:
+            out.append(f"rule 1: week {w} says impact level {wk.impact_level} but its exercises reach {top}")
+        session_max, by_day = 0, {}
+        dirs: set[str] = set()
+        for s in wk.sessions:
+            n = 0
+            for x in s.exercises:
+                bad = sorted(set(x.patterns) & avoid)
+                if bad:
+                    out.append(f"rule 1: week {w} day {s.day}: {x.exercise_id} involves {', '.join(bad)}, "
+                               "which the screening asks to avoid")
+                if x.impact_level >= 2:
+                    n += x.impacts
+                    dirs.update(x.directions)
+            if n != s.impacts:
+                out.append(f"rule 4: week {w} day {s.day}: session impacts {s.impacts} do not add up to the "
+                           f"exercises' level 2-3 impacts {n}")
+            session_max = max(session_max, n)
+            by_day.setdefault(s.day, []).append(s)
+        if session_max != wk.impacts_per_session:
+            out.append(f"rule 4: week {w}: impacts_per_session {wk.impacts_per_session} is not the largest "
+                       f"session's {session_max}")
+        if session_max > max_imp:
+            out.append(f"rule 4: week {w}: {session_max} impacts in a session, above the {max_imp} allowed")
+        for day, sessions in by_day.items():
+            impact_ex = [x for s in sessions for x in s.exercises if x.impact_level >= 2 and x.impacts > 0]
+            total = sum(x.impacts for x in impact_ex)
+            if total > 50:
+                need = math.ceil(total / 50)
+                for x in impact_ex:
+                    gap = _extra(x, "bout_gap_hours")
+                    if x.bouts < need or gap is None or gap < MIN_BOUT_GAP_H:
+                        out.append(f"rule 4: week {w} day {day}: {total} impacts in the day need at least {need} "
+                                   f"bouts at least {MIN_BOUT_GAP_H:g} h apart ({x.exercise_id} has "
+                                   f"{x.bouts} bout(s), gap {gap} h)")
+        if top >= 2 and len(dirs) < 2:
+            out.append(f"rule 5: week {w} loads at impact level {top} in {len(dirs)} direction(s); "
+                       "at least two are required from moderate impact on")
+        levels.append(top)
+        counts.append(session_max)
+    for i in range(1, len(levels)):  # week 1 is the start level the clinician or planner chose
+        if levels[i] > levels[i - 1] + 1:
+            out.append(f"rule 2: week {i + 1} steps up from impact level {levels[i - 1]} to {levels[i]}; "
+                       "one level at a time")
+    for i, lv in enumerate(levels):
+        if lv > (levels[i - 1] if i else 0):
+            for j in (i + 2, i + 3, i + 4):  # window weeks 3, 4, 5 against window week 2 (index i + 1)
+                if j >= len(levels):
+                    break
+                if levels[j] > levels[i + 1]:
+                    out.append(f"rule 3: week {j + 1} raises the impact level to {levels[j]} inside the window "
+                               f"after the step-up in week {i + 1} (week 2 of it had level {levels[i + 1]})")
+                if counts[j] > counts[i + 1]:
+                    out.append(f"rule 3: week {j + 1} has {counts[j]} impacts a session inside the window after "
+                               f"the step-up in week {i + 1}, more than the {counts[i + 1]} of its week 2")
+    return out
+
+
+def replace_exercise(plan: Plan, old_id: str, new_id: str, catalogue=None) -> Plan:
+    """A copy of ``plan`` with every use of ``old_id`` swapped for ``new_id``.
+
+    The new exercise keeps the old one's dose (sets, reps, impacts, minutes, bouts,
+    intensity) and brings its own level, force, directions and patterns; the week
+    and session figures are recomputed.
+
+    Raises
+    ------
+    InputError
+        ``old_id`` is not in the plan or ``new_id`` is not in the catalogue.
+    PlanRequestRefused
+        The swapped plan would break a rule (1 to 5) of :func:`check_plan`.
+    """
+    if catalogue is None:
+        from .catalogue import default_catalogue
+        catalogue = default_catalogue()
+    by_id = {e.exercise_id: e for e in _views(catalogue)}
+    if new_id not in by_id:
+        raise InputError.single("new_id", new_id, "an exercise id from the catalogue")
+    new = by_id[new_id]
+    data = plan.model_dump(mode="python")
+    found = False
+    for w in data["weeks"]:
+        for s in w["sessions"]:
+            for i, x in enumerate(s["exercises"]):
+                if x["exercise_id"] != old_id:
+                    continue
+                found = True
+                x.update(exercise_id=new.exercise_id, name=new.name, category=new.category,
+                         impact_level=new.impact_level, peak_grf_bw=new.peak_grf_bw,
+                         directions=list(new.directions), patterns=sorted(new.patterns))
+                if new.impact_level >= 2 and not x["impacts"]:
+                    x["impacts"] = int(x.get("reps") or 0) * int(x.get("sets") or 1)
+                if new.impact_level < 2:
+                    x["impacts"] = 0
+            s["impacts"] = sum(x["impacts"] for x in s["exercises"] if x["impact_level"] >= 2)
+            s["osteogenic_index"] = _session_oi(s["exercises"])
+        w["impact_level"] = max((x["impact_level"] for s in w["sessions"] for x in s["exercises"]), default=0)
+        w["impacts_per_session"] = max((s["impacts"] for s in w["sessions"]), default=0)
+        w["weekly_osteogenic_index"] = round(sum(s["osteogenic_index"] for s in w["sessions"]), 2)
+    if not found:
+        raise InputError.single("old_id", old_id, "an exercise id used in this plan")
+    new_plan = Plan.model_validate(data)
+    problems = check_plan(new_plan)
+    if problems:
+        rule = problems[0].split(":", 1)[0]
+        raise PlanRequestRefused(rule, f"replacing {old_id} with {new_id} would break it: {problems[0]}",
+                                 field="new_id", value=new_id)
+    return new_plan
