@@ -188,7 +188,7 @@ def test_a_fresh_store_killed_while_being_created_still_opens(tmp_path):
 def test_four_processes_writing_at_once_lose_nothing(tmp_path):
     db = tmp_path / "four.db"
     open_store(str(db)).close()
-    n = 40
+    n = 25
     runs = [(_start(db, f"FOUR-{w}", n, tmp_path / f"w{w}.out", mode="shared"), tmp_path / f"w{w}.out")
             for w in range(4)]
     for proc, out in runs:
@@ -214,7 +214,7 @@ def test_four_clinicians_racing_on_one_program_never_overwrite(tmp_path):
     with open_store(str(db)) as store:
         from test_store_support import record, screening
         store.save_patient(record("RACE-1"), screening("RACE-1"))
-    m = 20
+    m = 12
     outs = [tmp_path / f"c{w}.out" for w in range(4)]
     procs = [subprocess.Popen([PYTHON, "-c", WRITER.replace("pid, latest)", "f'clin{sys.argv[5]}', latest)"),
                                str(db), "RACE-1", str(m), "own", str(w)],
@@ -231,3 +231,65 @@ def test_four_clinicians_racing_on_one_program_never_overwrite(tmp_path):
         assert [v["version"] for v in stored] == list(range(1, 4 * m + 1))
         assert all(v["based_on_version"] == v["version"] - 1 or v["version"] == 1 for v in stored)
         assert {v["clinician"] for v in stored} == {f"clin{w}" for w in range(4)}
+
+
+def _fork_run(target, *args):
+    import multiprocessing
+    proc = multiprocessing.get_context("fork").Process(target=target, args=args, daemon=True)
+    proc.start()
+    return proc
+
+
+def _open_and_save(db: str, pid: str, out: str) -> None:
+    """Open a store that may not exist yet and save one person and two program versions."""
+    try:
+        from test_store_support import plan, record, screening
+        with open_store(db) as store:
+            store.save_patient(record(pid), screening(pid), clinician=pid)
+            store.save_program(pid, plan(pid), pid, None)
+            store.save_program(pid, plan(pid), pid, 1)
+        Path(out).write_text("ok")
+    except BaseException as exc:
+        Path(out).write_text(f"{type(exc).__name__}: {exc}")
+        os._exit(1)
+
+
+def test_four_processes_creating_the_same_new_store_at_once(tmp_path):
+    """All four find no file, race to create and migrate it: one migrates, the others
+    wait for the lock, see the new schema and carry on; nobody sees "locked"."""
+    for attempt in range(3):
+        db = tmp_path / f"fresh-{attempt}" / "store.db"
+        outs = [tmp_path / f"fresh-{attempt}-{w}.out" for w in range(4)]
+        procs = [_fork_run(_open_and_save, str(db), f"NEW-{w}", str(out)) for w, out in enumerate(outs)]
+        for proc, out in zip(procs, outs):
+            proc.join(timeout=60)
+            assert proc.exitcode == 0 and out.read_text() == "ok", out.read_text()
+        with open_store(str(db)) as store:
+            assert sorted(p["patient_id"] for p in store.list_patients()) == [f"NEW-{w}" for w in range(4)]
+            assert store.revision() == "0002"
+        assert _integrity(db) == "ok"
+
+
+def test_backups_taken_while_a_writer_saves_are_consistent(tmp_path):
+    from test_store_support import record, screening
+    db = tmp_path / "live.db"
+    with open_store(str(db)) as store:
+        store.save_patient(record("LIVE-1"), screening("LIVE-1"))
+    out = tmp_path / "live.out"
+    writer = _fork_run(_forked_writer, str(db), "LIVE-1", str(out))
+    try:
+        _wait_for_first_commit([(writer, out)])
+        with open_store(str(db)) as store:
+            for i in range(3):
+                time.sleep(0.1)
+                info = store.backup(tmp_path / f"backup-{i}.db")
+                assert info["integrity_check"] == "ok"
+                with open_store(str(tmp_path / f"backup-{i}.db")) as copy:
+                    versions = [v["version"] for v in copy.program_versions("LIVE-1")]
+                    assert versions == list(range(1, len(versions) + 1)) and len(versions) == info["program_versions"]
+                    # the person and its screening, then one entry a version: nothing half-copied
+                    assert len(copy.audit("LIVE-1")) == 2 + len(versions)
+    finally:
+        os.kill(writer.pid, signal.SIGKILL)
+        writer.join(timeout=30)
+    assert max(v for _, v in _committed(out)) >= info["program_versions"] > 0
