@@ -368,3 +368,19 @@ def test_store_does_not_load_ui_libraries(tmp_path):
             "print('ipywidgets' in sys.modules, 'bqplot' in sys.modules)")
     out = subprocess.run([sys.executable, "-c", code, str(tmp_path / "l.db")], capture_output=True, text=True)
     assert out.stdout.split() == ["False", "False"], out.stderr
+
+
+def test_one_store_object_can_be_shared_by_threads(store):
+    """The app reads and writes one Store from more than one thread."""
+    from concurrent.futures import ThreadPoolExecutor
+    for i in range(4):
+        store.save_patient(record(f"THREAD-{i}"), None)
+
+    def work(i):
+        pid = f"THREAD-{i}"
+        for v in range(10):
+            store.save_program(pid, plan(pid), "AB", v or None)
+        return [x["version"] for x in store.program_versions(pid)]
+
+    with ThreadPoolExecutor(4) as pool:
+        assert list(pool.map(work, range(4))) == [list(range(1, 11))] * 4
