@@ -27,6 +27,10 @@ from .session import IMPACT_LABELS, ClinicSession, EngineMissing
 
 log = logging.getLogger("prescribe.ui")
 
+#: Seconds after the page is built before the charts and engines load in the background
+#: (sooner if the clinician starts typing), so they do not slow the first render.
+WARM_UP_DELAY_S = 2.0
+
 STYLE = """
 <style>
 .pr-app { max-width: 1100px; font-size: 14px; }
@@ -298,8 +302,9 @@ class ClinicApp:
         """Build the widgets over ``session``.
 
         With ``warm_up`` the slow parts (the charting library, the screening and planning
-        engines, the store's list of people) load in a background thread after the form
-        is shown, so the intake form is usable at once; without it they load here.
+        engines, the store's list of people) load in a background thread once the clinician
+        starts typing or ``WARM_UP_DELAY_S`` after the form is built, so the intake form is
+        usable at once; without it they load here.
         """
         self.session = session or ClinicSession()
         self.charts = None
@@ -319,12 +324,24 @@ class ClinicApp:
                               self.handout_section, self.store_section])
         self.widget.add_class("pr-app")
         self.warm_thread: threading.Thread | None = None
+        self._warm_lock = threading.Lock()
         if warm_up:
             self.refresh(store=False)
-            self.warm_thread = threading.Thread(target=self.warm_up, name="prescribe-warm-up", daemon=True)
-            self.warm_thread.start()
+            # Start loading once the clinician starts typing, or shortly after the page is shown.
+            for widget in self.intake.inputs.values():
+                widget.observe(lambda _ch: self.start_warm_up(), names="value")
+            timer = threading.Timer(WARM_UP_DELAY_S, self.start_warm_up)
+            timer.daemon = True
+            timer.start()
         else:
             self.warm_up()
+
+    def start_warm_up(self) -> None:
+        """Run :meth:`warm_up` in a background thread, once."""
+        with self._warm_lock:
+            if self.warm_thread is None:
+                self.warm_thread = threading.Thread(target=self.warm_up, name="prescribe-warm-up", daemon=True)
+                self.warm_thread.start()
 
     @classmethod
     def from_environment(cls) -> "ClinicApp":
@@ -563,7 +580,11 @@ class ClinicApp:
             self.weeks.value = str(s.options.get("weeks", len(s.plan.weeks) if s.plan else ""))
             for kind, dd in self.sessions.items():
                 dd.value = s.options.get(f"{kind}_sessions_per_week")
-            self.exercise_select.options = [(f"{n} ({i})", i) for i, n in s.plan_exercises()]
+            exercises = s.plan_exercises()
+            keep = self.exercise_select.value
+            self.exercise_select.options = [(f"{n} ({i})", i) for i, n in exercises]
+            ids = [i for i, _ in exercises]
+            self.exercise_select.value = keep if keep in ids else (ids[0] if ids else None)
         finally:
             self._syncing = False
         self._refresh_swap_candidates()
@@ -582,8 +603,9 @@ class ClinicApp:
     def _refresh_swap_candidates(self) -> None:
         try:
             current = self.exercise_select.value
-            self.replacement_select.options = ([(f"{n} ({i})", i) for i, n in self.session.swap_candidates(current)]
-                                               if current else [])
+            options = [(f"{n} ({i})", i) for i, n in self.session.swap_candidates(current)] if current else []
+            self.replacement_select.options = options
+            self.replacement_select.value = options[0][1] if options else None
         except EngineMissing:
             self.replacement_select.options = []
 

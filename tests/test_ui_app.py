@@ -1,0 +1,172 @@
+"""The app's panels without a browser: build the widgets, set values, click, assert on the results.
+
+People here are invented.  Clinical numbers are the engines' business (tested against their
+sources in the screening and planner tests); these tests check that the app shows them,
+refuses what the engines refuse and loses nothing.
+"""
+
+from __future__ import annotations
+
+import base64
+import html
+import re
+
+import pytest
+
+from prescribe.ui import ClinicApp, ClinicSession
+
+# An invented woman of 62 with a femoral-neck T-score of -2.6: osteoporosis by the WHO
+# categories (WHO 1994, Technical Report Series 843: T-score -2.5 or below).
+PERSON = {"patient_id": "DEMO-UI-1", "age_years": "62", "sex": "female", "body_mass_kg": "64",
+          "height_cm": "163", "t_scores.femoral_neck": "-2.6"}
+
+
+def make_app(db: str) -> ClinicApp:
+    return ClinicApp(ClinicSession(store_url=db))
+
+
+def type_person(app: ClinicApp, person: dict = PERSON) -> None:
+    for key, value in person.items():
+        app.intake.inputs[key].value = value
+    app.submit_button.click()
+    assert app.errors.last == "", app.errors.last
+
+
+@pytest.fixture
+def app(tmp_db):
+    app = make_app(tmp_db)
+    type_person(app)
+    return app
+
+
+def test_screening_shows_category_cap_and_every_flag_with_its_source(app):
+    s = app.session.screening
+    text = html.unescape(app.screening_view.value)
+    assert s.bone_density_category == "osteoporosis"  # WHO 1994 (see PERSON)
+    assert "osteoporosis (lowest T-score -2.6 at femoral neck)" in text
+    assert f"{s.max_impact_level} - " in text
+    assert len(s.flags) >= 1
+    for flag in s.flags:
+        assert flag.message in text and f"Source: {flag.source}" in text
+
+
+def test_program_table_and_charts_follow_the_plan(app):
+    plan = app.session.plan
+    assert app.charts is not None
+    assert list(app.charts.level_line.y) == [w.impact_level for w in plan.weeks]
+    assert list(app.charts.impact_bars.y) == [w.impacts_per_session for w in plan.weeks]
+    weak = [bool((w.model_extra or {}).get("weak_window")) for w in plan.weeks]
+    assert [bool(v) for v in app.charts.shade2.y] == weak
+    assert app.week_table.value.count("<tr>") == len(plan.weeks) + 1
+    assert f"weeks: <b>{len(plan.weeks)}</b>" in app.dose.value
+
+
+def test_changing_the_start_level_rebuilds_the_program_and_charts_at_once(app):
+    cap = app.session.screening.max_impact_level
+    first = app.session.plan.weeks[0].impact_level
+    new = next(level for level in range(cap + 1) if level != first)
+    app.start_level.value = new
+    assert app.session.refusal is None
+    assert app.session.plan.weeks[0].impact_level == new
+    assert app.charts.level_line.y[0] == new
+
+
+def test_an_unsafe_start_level_is_refused_with_the_reason_and_the_program_kept(app):
+    cap = app.session.screening.max_impact_level
+    if cap >= 3:
+        pytest.fail("the invented person should have an impact cap below 3")
+    before = app.session.plan
+    app.start_level.value = cap + 1
+    refusal = html.unescape(app.refusal.value)
+    assert "Refused" in refusal and str(cap) in refusal
+    assert app.session.plan is before
+    assert app.start_level.value == before.weeks[0].impact_level  # the control shows what is in force
+
+
+def test_bad_weeks_are_refused_naming_the_option(app):
+    before = app.session.plan
+    app.weeks.value = "5"
+    assert "weeks must be" in html.unescape(app.refusal.value) and "not 5" in app.refusal.value
+    assert app.session.plan is before
+
+
+def test_sessions_per_week_change_the_program(app):
+    app.sessions["impact"].value = 2
+    assert app.session.refusal is None
+    assert app.session.options["impact_sessions_per_week"] == 2
+
+
+def test_swap_and_leave_out_an_exercise(app):
+    ids = [i for i, _ in app.session.plan_exercises()]
+    swappable = next(i for i in ids if app.session.swap_candidates(i))
+    app.exercise_select.value = swappable
+    replacement = app.replacement_select.options[0][1]
+    app.swap_button.click()
+    assert app.errors.last == "" and app.session.refusal is None, app.session.refusal
+    now = [i for i, _ in app.session.plan_exercises()]
+    assert swappable not in now and replacement in now
+    # Leave one out: the planner rebuilds without it.
+    target = now[-1]
+    app.exercise_select.value = target
+    app.exclude_button.click()
+    if app.session.refusal is None:
+        assert target not in [i for i, _ in app.session.plan_exercises()]
+    else:  # the planner may refuse (nothing left to replace it): the reason is shown
+        assert app.refusal.value
+
+
+def test_handout_preview_and_pdf_download_link(app):
+    app.preview_button.click()
+    assert "pr-handout-iframe" in app.preview.value and "DEMO-UI-1" in html.unescape(app.preview.value)
+    app.pdf_button.click()
+    match = re.search(r'href="data:application/pdf;base64,([^"]+)"', app.download.value)
+    assert match, app.errors.last
+    assert base64.b64decode(match.group(1)).startswith(b"%PDF")
+    assert 'download="handout-DEMO-UI-1.pdf"' in app.download.value
+
+
+def test_save_needs_a_clinician_then_keeps_every_version(app, tmp_db):
+    app.save_button.click()
+    assert "clinician" in app.errors.last
+    app.clinician.value = "AB"
+    app.save_button.click()
+    assert "program version 1" in app.store_status.value
+    app.start_level.value = 0
+    app.save_button.click()
+    assert "program version 2" in app.store_status.value
+    rows = app.session.versions()
+    assert [r["version"] for r in rows] == [1, 2] and rows[1]["based_on_version"] == 1
+    assert app.history.value.count("<tr>") == 3
+    # A new app over the same store lists and reopens the person with the latest program.
+    other = make_app(tmp_db)
+    assert "DEMO-UI-1" in [v for _, v in other.load_select.options]
+    other.load_select.value = "DEMO-UI-1"
+    other.load_button.click()
+    assert other.intake.inputs["t_scores.femoral_neck"].value == "-2.6"
+    assert other.intake.inputs["sex"].value == "female"
+    assert other.session.saved_version == 2
+    assert other.session.plan.weeks[0].impact_level == 0
+
+
+def test_a_stale_save_is_refused_and_the_program_stays_open(app, tmp_db):
+    app.clinician.value = "AB"
+    app.save_button.click()
+    other = make_app(tmp_db)
+    other.load_select.value = "DEMO-UI-1"
+    other.load_button.click()
+    other.clinician.value = "CD"
+    other.save_button.click()                 # version 2, by CD
+    app.start_level.value = 0
+    kept = app.session.plan
+    app.save_button.click()                   # AB's save was based on version 1
+    assert "Not saved" in html.unescape(app.store_status.value)
+    assert app.session.plan is kept
+    assert [r["clinician"] for r in app.session.versions()] == ["AB", "CD"]
+
+
+def test_new_person_clears_the_form_and_the_program(app):
+    app.new_button.click()
+    assert app.session.record is None and app.session.plan is None
+    assert app.intake.inputs["patient_id"].value == ""
+    assert "Check the person's details" in app.screening_view.value
+    assert list(app.charts.level_line.y) == []
