@@ -130,3 +130,20 @@ def make_plan(weeks: int = 26, step_ups: Iterable[int] | None = None, *, patient
     }
     Plan.model_validate(plan)  # the factory must only ever build valid plans
     return plan
+
+
+#: An invented person (no real record): 67, osteoporosis at the lumbar spine, no fractures.
+DEMO_RECORD = {
+    "patient_id": "NTC-0042", "age_years": 67, "sex": "female", "body_mass_kg": 61, "height_cm": 162,
+    "t_scores": {"lumbar_spine": -2.7, "femoral_neck": -2.2}, "fractures": [], "falls_past_year": 0,
+    "timed_up_and_go_s": 9.5, "conditions": [], "pain_score": 1,
+}
+
+
+def planner_plan(weeks: int, record: dict | None = None):
+    """A real plan from the planner for the invented demo person."""
+    from prescribe.planner import PlanOptions, build_plan
+    from prescribe.records import parse_record
+
+    return build_plan(parse_record(record or DEMO_RECORD), options=PlanOptions(weeks=weeks),
+                      created="2026-03-02T09:00:00+00:00")

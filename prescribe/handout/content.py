@@ -186,6 +186,7 @@ class WeekGroup:
     facts: WeekFacts
     lines: list[Line]
     key: tuple = field(repr=False, default=())
+    reviews: list[int] = field(default_factory=list)
 
     @property
     def label(self) -> str:
@@ -199,8 +200,9 @@ class WeekGroup:
             notes.append(f"Step up to level {f.impact_level}")
         if f.weak_window:
             notes.append("Hold: add nothing")
-        if f.reassessment:
-            notes.append("Review")
+        if self.reviews:
+            notes.append(("Review: week " if len(self.reviews) == 1 else "Review: weeks ")
+                         + ", ".join(str(w) for w in self.reviews))
         return notes
 
 
@@ -239,14 +241,16 @@ def week_groups(plan: Plan) -> list[WeekGroup]:
     for wk in sorted(plan.weeks, key=lambda w: w.week):
         f = facts[wk.week]
         lines = week_lines(wk)
-        key = (tuple(lines), f.step_up, f.weak_window, f.reassessment, f.phase)
+        key = (tuple(lines), f.step_up, f.weak_window)
         last = groups[-1] if groups else None
-        # A step-up or a review starts its own row; the rows after it may merge.
-        if last is not None and last.key == key and not f.step_up and not f.reassessment \
-                and last.last == wk.week - 1:
+        # A step-up starts its own row; reviews are noted on the row they fall in.
+        if last is not None and last.key == key and not f.step_up and last.last == wk.week - 1:
             last.last = wk.week
         else:
-            groups.append(WeekGroup(wk.week, wk.week, f, lines, key))
+            last = WeekGroup(wk.week, wk.week, f, lines, key)
+            groups.append(last)
+        if f.reassessment:
+            last.reviews.append(wk.week)
     return groups
 
 
@@ -361,11 +365,10 @@ def dose_rows(plan: Plan) -> list[tuple[str, WeekFacts]]:
 
     def figures(f: WeekFacts) -> tuple:
         return (f.impact_level, f.impacts_per_session, round(f.max_session_oi, 1), round(f.weekly_oi, 1),
-                round(f.peak_grf_bw, 2), f.directions, f.resistance_pct_1rm, f.weak_window, f.phase)
+                round(f.peak_grf_bw, 2), f.directions, f.resistance_pct_1rm, f.weak_window)
 
     for f in week_facts(plan):
-        if rows and figures(rows[-1][2]) == figures(f) and not f.step_up and not f.reassessment \
-                and not rows[-1][2].reassessment and rows[-1][1] == f.week - 1:
+        if rows and figures(rows[-1][2]) == figures(f) and not f.step_up and rows[-1][1] == f.week - 1:
             rows[-1] = (rows[-1][0], f.week, rows[-1][2])
         else:
             rows.append((f.week, f.week, f))

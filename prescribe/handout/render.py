@@ -75,6 +75,7 @@ def handout_context(plan: Plan, audience: str, paper: str, clinic: Clinic) -> di
                      ("Plan format", plan.plan_format_version), ("Plan created", plan.created),
                      ("Handout made by", f"prescribe {__version__}, plan format {PLAN_FORMAT_VERSION}")],
         "has_weak": any(f.weak_window for f in facts),
+        "minutes_only": any(f.impact_level >= 1 and not f.impacts_per_session for f in facts),
     }
 
 

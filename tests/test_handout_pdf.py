@@ -1,0 +1,110 @@
+"""Handout PDFs: text, page counts, pages not blank, escaping (poppler's pdftotext/pdftoppm)."""
+
+from __future__ import annotations
+
+import re
+import subprocess
+from functools import lru_cache
+from pathlib import Path
+
+import pytest
+from PIL import Image
+
+from handout_fixtures import make_plan, planner_plan
+from prescribe.cautions import SHORT_CAUTION, STANDARD_CAUTIONS
+from prescribe.handout import render_pdf
+from prescribe.settings import Clinic
+
+DEMO_CLINIC = Clinic("Riverside Bone Health Clinic (demo)", "555-0100")
+
+#: Pages for both audiences: the person pages (cover, charts, routine and week-by-week
+#: tables, one guide per exercise, safety) and the clinician pages (flags, dose table,
+#: evidence, versions, sign-off).  Grouped weeks keep a year's plan about as long as
+#: two months' (13 pages for 8 weeks and 14 for 52 when this bound was set).
+PAGE_BOUNDS = {8: (6, 14), 26: (6, 15), 52: (6, 16)}
+
+
+@lru_cache(maxsize=None)
+def _pdf(weeks: int, paper: str = "a4") -> bytes:
+    return render_pdf(planner_plan(weeks), audience="both", paper=paper, clinic=DEMO_CLINIC)
+
+
+def _write(tmp_path: Path, data: bytes, name: str = "h.pdf") -> Path:
+    path = tmp_path / name
+    path.write_bytes(data)
+    return path
+
+
+def _text(path: Path) -> str:
+    out = subprocess.run(["pdftotext", "-enc", "UTF-8", str(path), "-"], capture_output=True, text=True, check=True)
+    return out.stdout
+
+
+def _flat(text: str) -> str:
+    return " ".join(text.split())
+
+
+def _pages(path: Path) -> int:
+    info = subprocess.run(["pdfinfo", str(path)], capture_output=True, text=True, check=True).stdout
+    return int(re.search(r"^Pages:\s+(\d+)", info, re.M).group(1))
+
+
+@pytest.mark.parametrize("weeks", [8, 26, 52])
+def test_page_count_is_sane(tmp_path, weeks):
+    pages = _pages(_write(tmp_path, _pdf(weeks)))
+    low, high = PAGE_BOUNDS[weeks]
+    assert low <= pages <= high, f"{weeks}-week plan gave {pages} pages"
+
+
+def test_pdf_text_holds_cautions_every_exercise_and_the_counts(tmp_path):
+    plan = planner_plan(26)
+    path = _write(tmp_path, _pdf(26))
+    text = _flat(_text(path))
+    for caution in STANDARD_CAUTIONS:
+        assert _flat(caution) in text
+    pages = _text(path).split("\f")[:_pages(path)]
+    for number, page in enumerate(pages, start=1):  # the footer of every page
+        assert _flat(SHORT_CAUTION) in _flat(page), f"page {number} has no caution"
+        assert f"page {number} of {len(pages)}" in _flat(page)
+    assert f"page 1 of {_pages(path)}" in text
+    names = {e.name for w in plan.weeks for s in w.sessions for e in s.exercises}
+    for name in names:
+        assert name in text, name
+    for count in {w.impacts_per_session for w in plan.weeks if w.impacts_per_session}:
+        assert f"{count} landings a session" in text
+    assert "Riverside Bone Health Clinic (demo)" in text and "555-0100" in text
+    assert "Clinician page" in text and "Clinician's name" in text
+    assert f"week {next(w.week for w in plan.weeks if w.reassessment)}" in text.lower()
+
+
+def test_letter_and_a4_page_sizes(tmp_path):
+    a4 = subprocess.run(["pdfinfo", str(_write(tmp_path, _pdf(8), "a4.pdf"))], capture_output=True, text=True).stdout
+    letter = subprocess.run(["pdfinfo", str(_write(tmp_path, _pdf(8, "letter"), "l.pdf"))],
+                            capture_output=True, text=True).stdout
+    assert re.search(r"Page size:\s+595\.\d* x 841\.\d* pts", a4)  # ISO 216 A4, 210 x 297 mm
+    assert re.search(r"Page size:\s+612 x 792 pts", letter)  # US Letter, 8.5 x 11 in
+
+
+def test_every_page_has_ink_and_one_is_kept_for_review(tmp_path, artifacts_dir):
+    path = _write(tmp_path, _pdf(26))
+    subprocess.run(["pdftoppm", "-r", "24", "-gray", "-png", str(path), str(tmp_path / "page")], check=True)
+    pngs = sorted(tmp_path.glob("page-*.png"))
+    assert len(pngs) == _pages(path)
+    for png in pngs:
+        img = Image.open(png).convert("L")
+        dark = sum(img.histogram()[:200])
+        share = dark / (img.width * img.height)
+        assert share > 0.01, f"{png.name} is nearly blank ({share:.2%} ink)"
+    keep = artifacts_dir / "handout-26-weeks-page-2.png"
+    subprocess.run(["pdftoppm", "-r", "80", "-png", "-f", "2", "-l", "2", "-singlefile", str(path),
+                    str(keep.with_suffix(""))], check=True)
+    assert keep.exists() and keep.stat().st_size > 10_000
+    print(f"handout page 2 (charts) rendered to {keep}")
+
+
+def test_markup_in_id_and_notes_is_printed_literally(tmp_path):
+    data = make_plan(weeks=8, patient_id="<script>alert(1)</script>", note="<b>bold</b>")
+    path = _write(tmp_path, render_pdf(data, audience="both", clinic=DEMO_CLINIC))
+    text = _text(path)
+    assert "<script>alert(1)</script>" in text
+    assert "<b>bold</b>" in text
