@@ -203,53 +203,96 @@ def _fracture_aggregates_slow(uniques: list[str]) -> tuple[np.ndarray, ...]:
     return count, vert, hip, last
 
 
-def _fracture_aggregates_fast(uniques: list[str]) -> tuple[np.ndarray, ...] | None:
-    """The same aggregates as the slow path, parsing all cells at once with C-level string
-    and numpy operations; None when any cell is unusual (the slow path then judges it)."""
-    k = len(uniques)
-    filled = np.flatnonzero(np.fromiter(map(len, uniques), dtype=np.int64, count=k) > 0)
+_SITE_BYTES = {site: np.frombuffer(site.encode("ascii"), dtype=np.uint8) for site in FRACTURE_SITES}
+_POW10 = 10.0 ** np.arange(23)
+_MAX_DIGITS = 15  # a mantissa of up to 15 digits is exact in float64
+
+
+def _fracture_aggregates_fast(cells: list[str]) -> tuple[np.ndarray, ...] | None:
+    """The same aggregates as the slow path, parsing every cell at once on its bytes with numpy.
+
+    Handles the plain form ``site:digits[.digits]:y|n``; returns None when any cell has anything
+    else (spaces, exponents, bad items), and the slow path then parses or rejects it.  A number of
+    at most 15 digits is read as an exact integer divided by an exact power of ten, which IEEE
+    division rounds correctly: the same float as Python's ``float(text)``.
+    """
+    k = len(cells)
     count, vert = np.zeros(k), np.zeros(k, dtype=bool)
     hip, last = np.zeros(k, dtype=bool), np.full(k, np.nan)
+    filled = np.flatnonzero(np.fromiter(map(len, cells), dtype=np.int64, count=k) > 0)
     if not len(filled):
         return count, vert, hip, last
-    cells = [uniques[j] for j in filled]
-    big = "\n".join(cells)
     try:
-        raw = np.frombuffer(big.encode("ascii"), dtype=np.uint8)
+        raw = np.frombuffer("\n".join([cells[j] for j in filled]).encode("ascii"), dtype=np.uint8)
     except UnicodeEncodeError:
         return None
-    starts = np.concatenate(([0], np.flatnonzero(raw == 10) + 1))
-    items_per = np.add.reduceat((raw == 59).astype(np.int64), starts) + 1  # ';' separates items
-    tokens = ":".join(big.replace("\n", ";").split(";")).split(":")
-    if len(tokens) != 3 * items_per.sum():
+    size = raw.size
+    is_sep = (raw == 59) | (raw == 10)                      # ';' between items, newline between cells
+    seps = np.flatnonzero(is_sep)
+    start = np.concatenate(([0], seps + 1))
+    end = np.concatenate((seps, [size]))
+    cell = np.concatenate(([0], np.cumsum(raw[seps] == 10)))  # which filled cell each item is in
+    colons = np.flatnonzero(raw == 58)
+    if len(colons) != 2 * len(start):
         return None
-    sites, months_text, marks = tokens[0::3], tokens[1::3], tokens[2::3]
-    if not (set(sites) <= FRACTURE_SITES.keys() and set(marks) <= {"y", "n"}):
+    c1, c2 = colons[0::2], colons[1::2]
+    if not ((c1 > start).all() and (c2 > c1 + 1).all() and (end == c2 + 2).all()):
+        return None                                         # each item: site, ':', number, ':', one mark
+    mark = raw[c2 + 1]
+    if not np.isin(mark, (ord("y"), ord("n"))).all():
         return None
-    try:
-        months = np.array(months_text).astype(np.float64)
-    except ValueError:
+    site_len = c1 - start
+    is_vertebra = np.zeros(len(start), dtype=bool)
+    is_hip = np.zeros(len(start), dtype=bool)
+    known = np.zeros(len(start), dtype=bool)
+    for name, code in _SITE_BYTES.items():
+        cand = np.flatnonzero(site_len == len(code))
+        same = np.ones(len(cand), dtype=bool)
+        for j, byte in enumerate(code):
+            same &= raw[start[cand] + j] == byte
+        known[cand[same]] = True
+        if name == "vertebra":
+            is_vertebra[cand[same]] = True
+        elif name == "hip":
+            is_hip[cand[same]] = True
+    if not known.all():
         return None
-    if not (np.isfinite(months).all() and (months >= 0).all() and (months <= 1200).all()):
+    # The number between the colons: digits with at most one '.'.
+    num_len = c2 - c1 - 1
+    item_of = np.repeat(np.arange(len(start)), num_len)
+    pos = np.repeat(c1 + 1 - np.concatenate(([0], np.cumsum(num_len)[:-1])), num_len) + np.arange(num_len.sum())
+    b = raw[pos]
+    digit = (b >= 48) & (b <= 57)
+    dot = b == 46
+    if not (digit | dot).all():
         return None
-    sites_arr = np.array(sites, dtype=object)
-    low = np.array(marks, dtype=object) == "y"
-    row = np.repeat(np.arange(len(cells)), items_per)
-    m = len(cells)
-    count[filled] = np.bincount(row, weights=low, minlength=m)
-    vert[filled] = np.bincount(row, weights=low & (sites_arr == "vertebra"), minlength=m) > 0
-    hip[filled] = np.bincount(row, weights=sites_arr == "hip", minlength=m) > 0
-    first = np.concatenate(([0], np.cumsum(items_per)[:-1]))
+    n_digits = np.bincount(item_of, weights=digit, minlength=len(start))
+    if (n_digits < 1).any() or (n_digits > _MAX_DIGITS).any() or \
+            (np.bincount(item_of, weights=dot, minlength=len(start)) > 1).any():
+        return None
+    after = np.cumsum(digit[::-1])[::-1] - digit              # digits after each byte, across all items
+    last_pos = np.cumsum(num_len) - 1
+    right = after - after[last_pos][item_of]                  # ... within its own item
+    mantissa = np.bincount(item_of[digit], weights=(b[digit] - 48) * _POW10[right[digit]], minlength=len(start))
+    frac = np.zeros(len(start), dtype=np.int64)
+    frac[item_of[dot]] = right[dot]
+    months = mantissa / _POW10[frac]
+    if (months > 1200).any():
+        return None
+    low = mark == ord("y")
+    m = len(filled)
+    count[filled] = np.bincount(cell, weights=low, minlength=m)
+    vert[filled] = np.bincount(cell, weights=low & is_vertebra, minlength=m) > 0
+    hip[filled] = np.bincount(cell, weights=is_hip, minlength=m) > 0
+    first = np.flatnonzero(np.concatenate(([True], cell[1:] != cell[:-1])))
     last[filled] = np.minimum.reduceat(months, first)
     return count, vert, hip, last
 
 
 def _fracture_features(cells: np.ndarray) -> dict[str, np.ndarray]:
-    """Fracture features for a column of compact fracture cells (each distinct cell parsed once)."""
-    codes, uniques = pd.factorize(cells)
-    uniques = [str(u) for u in uniques]
-    agg = _fracture_aggregates_fast(uniques) or _fracture_aggregates_slow(uniques)
-    count, vert, hip, last = (a[codes] for a in agg)
+    """Fracture features for a column of compact fracture cells, parsed in bulk."""
+    texts = cells.tolist()
+    count, vert, hip, last = _fracture_aggregates_fast(texts) or _fracture_aggregates_slow(texts)
     return {"low_trauma_fracture_count": count, "low_trauma_fracture": count > 0,
             "low_trauma_vertebral_fracture": vert, "hip_fracture": hip,
             "months_since_last_fracture": last}
@@ -417,24 +460,32 @@ def _unique_rows(matrix: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
 
 @lru_cache(maxsize=64)
 def _chunk_table(labels: tuple[str, ...], sep: str) -> np.ndarray:
-    """For up to 8 labels: the joined text of every subset, indexed by its bit pattern."""
-    return np.array([sep.join(lab for j, lab in enumerate(labels) if v >> j & 1) for v in range(1 << len(labels))],
-                    dtype=object)
+    """For up to 8 labels: the text of every subset, indexed by its bit pattern, each label
+    preceded by ``sep`` (so chunks join by plain concatenation)."""
+    return np.array(["".join(sep + lab for j, lab in enumerate(labels) if v >> j & 1)
+                     for v in range(1 << len(labels))], dtype=object)
 
 
-def _join_rows(rows: np.ndarray, labels: list[str], sep: str) -> np.ndarray:
+def _join_rows(rows: np.ndarray, labels: list[str], sep: str, distinct: bool = False) -> np.ndarray:
     """Per row of a boolean matrix, the labels of its true columns joined by ``sep``, in column order.
 
     Works eight columns at a time through a table of every subset's text, so the cost is a few
-    array operations per eight labels, not a Python loop per row.
+    array operations per eight labels plus one string join per distinct row.  Pass
+    ``distinct=True`` when the rows are already distinct.
     """
-    text = np.full(len(rows), "", dtype=object)
+    if not distinct:
+        uniq, inverse = _unique_rows(rows)
+        return _join_rows(uniq, labels, sep, distinct=True)[inverse]
+    parts = []
     for c0 in range(0, len(labels), 8):
         chunk = tuple(labels[c0:c0 + 8])
         code = rows[:, c0:c0 + len(chunk)].astype(np.int64) @ (1 << np.arange(len(chunk), dtype=np.int64))
-        part = _chunk_table(chunk, sep)[code]
-        text = np.where(text == "", part, np.where(part == "", text, text + sep + part))
-    return text
+        parts.append(_chunk_table(chunk, sep)[code].tolist())
+    cut = len(sep)
+    joined = [text[cut:] for text in map("".join, zip(*parts))] if parts else [""] * len(rows)
+    out = np.empty(len(rows), dtype=object)
+    out[:] = joined
+    return out
 
 
 @dataclass(frozen=True)
@@ -575,10 +626,10 @@ class Engine:
             "refer": any_effect["refer"],
             "balance_first": any_effect["balance_first"],
             "supervision": any_effect["supervision"],
-            "flags": _join_rows(rows, [r.id for r in self.rules], LIST_SEP)[inverse],
+            "flags": _join_rows(rows, [r.id for r in self.rules], LIST_SEP, distinct=True)[inverse],
             "lowest_t_score": lowest,
             "lowest_t_score_site": site,
-            "ruleset_version": np.full(n, self.version, dtype=object),
+            "ruleset_version": pd.Series(self.version, index=df.index, dtype=object),
             "cautions": self._caution_text(rows)[inverse],
         }, columns=list(RESULT_COLUMNS), index=df.index)
 
