@@ -1,0 +1,86 @@
+"""`prescribe handout PLAN.json --out FILE.pdf|FILE.html [--paper] [--audience]` end to end."""
+
+from __future__ import annotations
+
+import json
+
+import pytest
+
+from handout_fixtures import make_plan, planner_plan
+
+DEMO_ENV = {"PRESCRIBE_CLINIC_NAME": "Riverside Bone Health Clinic (demo)", "PRESCRIBE_CLINIC_CONTACT": "555-0100"}
+
+
+@pytest.fixture
+def plan_file(tmp_path):
+    path = tmp_path / "plan.json"
+    path.write_text(json.dumps(planner_plan(8).model_dump(mode="json")), encoding="utf-8")
+    return path
+
+
+def _no_traceback(result):
+    assert "Traceback" not in result.stderr
+
+
+def test_pdf_handout(cli, plan_file, tmp_path):
+    out = tmp_path / "handout.pdf"
+    result = cli("handout", str(plan_file), "--out", str(out), "--paper", "letter", env=DEMO_ENV)
+    assert result.returncode == 0, result.stderr
+    report = json.loads(result.stdout)
+    assert report["out"] == str(out) and report["format"] == "pdf" and report["paper"] == "letter"
+    assert report["patient_id"] == "NTC-0042" and report["weeks"] == 8 and report["cautions"]
+    assert out.read_bytes().startswith(b"%PDF-") and report["bytes"] == out.stat().st_size
+
+
+def test_html_handout_for_the_person_only(cli, plan_file, tmp_path):
+    out = tmp_path / "handout.html"
+    result = cli("handout", str(plan_file), "--out", str(out), "--audience", "person", env=DEMO_ENV)
+    assert result.returncode == 0, result.stderr
+    html = out.read_text(encoding="utf-8")
+    assert "Riverside Bone Health Clinic (demo)" in html and "555-0100" in html
+    assert "Your goals" in html and "Clinician page" not in html
+
+
+@pytest.mark.parametrize("args, message", [
+    (["--out", "{tmp}/h.docx"], "--out must be a file name ending in .html or .pdf, not '{tmp}/h.docx'."),
+    (["--out", "{tmp}/h.pdf", "--paper", "a5"], "--paper must be one of a4, letter, not 'a5'."),
+    (["--out", "{tmp}/h.pdf", "--audience", "family"],
+     "--audience must be one of person, clinician, both, not 'family'."),
+])
+def test_bad_options_exit_2_naming_the_option(cli, plan_file, tmp_path, args, message):
+    result = cli("handout", str(plan_file), *[a.format(tmp=tmp_path) for a in args])
+    assert result.returncode == 2
+    assert message.format(tmp=tmp_path) in result.stderr
+    _no_traceback(result)
+    assert not list(tmp_path.glob("h.*"))
+
+
+def test_plan_from_another_major_version_exits_2(cli, tmp_path):
+    data = make_plan(weeks=4)
+    data["plan_format_version"] = "2.0"
+    path = tmp_path / "future.json"
+    path.write_text(json.dumps(data))
+    result = cli("handout", str(path), "--out", str(tmp_path / "h.html"))
+    assert result.returncode == 2
+    assert "plan_format_version must be a plan of format version 1.x" in result.stderr
+    assert "not '2.0'" in result.stderr
+    _no_traceback(result)
+
+
+def test_malformed_plan_files_exit_2_and_keep_an_existing_handout(cli, tmp_path):
+    out = tmp_path / "h.html"
+    out.write_text("the handout printed last week")
+    broken = tmp_path / "broken.json"
+    broken.write_text('{"patient_id": ')
+    result = cli("handout", str(broken), "--out", str(out))
+    assert result.returncode == 2 and "PLAN.json must be well-formed JSON" in result.stderr
+    bad = make_plan(weeks=4)
+    bad["weeks"][0]["impacts_per_session"] = -5
+    wrong = tmp_path / "wrong.json"
+    wrong.write_text(json.dumps(bad))
+    result = cli("handout", str(wrong), "--out", str(out))
+    assert result.returncode == 2 and "impacts_per_session" in result.stderr
+    result = cli("handout", str(tmp_path / "missing.json"), "--out", str(out))
+    assert result.returncode == 2 and "an existing, readable file" in result.stderr
+    _no_traceback(result)
+    assert out.read_text() == "the handout printed last week"
