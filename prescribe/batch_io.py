@@ -171,29 +171,24 @@ def row_to_dict(row: dict[str, str]) -> tuple[dict, list[FieldProblem]]:
     for col in _TEXT_COLUMNS[:2]:
         if cell(col):
             data[col] = cell(col)
-    for col in _INT_COLUMNS:
+    numbers: dict[str, float] = {}
+    for col in _INT_COLUMNS + _FLOAT_COLUMNS:
         text = cell(col)
         if not text:
             continue
-        try:
-            number = float(text)
-            if not number.is_integer():
-                raise ValueError
-            data[col] = int(number)
-        except (ValueError, OverflowError):
-            problems.append(FieldProblem(col, text, "a whole number, or empty when absent"))
-    floats: dict[str, float] = {}
-    for col in _FLOAT_COLUMNS:
-        text = cell(col)
-        if not text:
-            continue
+        whole = col in _INT_COLUMNS
         try:
             value = float(text)
-            if not math.isfinite(value):
+            if not math.isfinite(value) or (whole and not value.is_integer()):
                 raise ValueError
-            floats[col] = value
         except ValueError:
-            problems.append(FieldProblem(col, text, "a finite number, or empty when absent"))
+            problems.append(FieldProblem(col, text, ("a whole number" if whole else "a finite number")
+                                         + ", or empty when absent"))
+            continue
+        numbers[col] = value
+        if whole:
+            data[col] = int(value)
+    floats = {c: v for c, v in numbers.items() if c in _FLOAT_COLUMNS}
     for col in ("body_mass_kg", "height_cm", "timed_up_and_go_s", "tandem_stance_s"):
         if col in floats:
             data[col] = floats[col]
