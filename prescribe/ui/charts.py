@@ -26,13 +26,17 @@ def _shade(series: ChartSeries) -> tuple[np.ndarray, np.ndarray]:
     return x, y
 
 
+def _headroom(top: float) -> float:
+    return max(1.0, float(top) * 1.15)
+
+
 class ProgramCharts:
     """Two figures that follow a :class:`ChartSeries`."""
 
     def __init__(self) -> None:
         self.x = bq.LinearScale()
         # Figure 1: impacts per session, by week.
-        y_impacts = bq.LinearScale(min=0.0)
+        self.y_impacts = y_impacts = bq.LinearScale(min=0.0, max=1.0)
         shade_scale1 = bq.LinearScale(min=0.0, max=1.0)
         self.shade1 = bq.Bars(x=[], y=[], scales={"x": self.x, "y": shade_scale1}, colors=[SHADE],
                               opacities=[0.35], padding=0.0, stroke=None)
@@ -50,7 +54,7 @@ class ProgramCharts:
 
         # Figure 2: impact level (left axis) and weekly osteogenic index (right axis).
         y_level = bq.LinearScale(min=0.0, max=3.0)
-        y_oi = bq.LinearScale(min=0.0)
+        self.y_oi = y_oi = bq.LinearScale(min=0.0, max=1.0)
         shade_scale2 = bq.LinearScale(min=0.0, max=1.0)
         self.shade2 = bq.Bars(x=[], y=[], scales={"x": self.x, "y": shade_scale2}, colors=[SHADE],
                               opacities=[0.35], padding=0.0, stroke=None)
@@ -83,6 +87,9 @@ class ProgramCharts:
         sx, sy = _shade(series)
         if len(weeks):
             self.x.min, self.x.max = float(weeks.min()) - 0.5, float(weeks.max()) + 0.5
+            # Headroom above the highest value so bars and markers are not cut at the top.
+            self.y_impacts.max = _headroom(max(series.impacts_per_session, default=0))
+            self.y_oi.max = _headroom(max(series.osteogenic_index, default=0.0))
         for mark, y in ((self.shade1, sy), (self.shade2, sy),
                         (self.impact_bars, np.asarray(series.impacts_per_session, dtype=float)),
                         (self.level_line, np.asarray(series.impact_level, dtype=float)),

@@ -30,6 +30,8 @@ log = logging.getLogger("prescribe.ui")
 #: Seconds after the page is built before the charts and engines load in the background
 #: (sooner if the clinician starts typing), so they do not slow the first render.
 WARM_UP_DELAY_S = 2.0
+#: A session-count control left to the planner.
+AUTO = "auto"
 
 STYLE = """
 <style>
@@ -83,7 +85,7 @@ def _cell(v: Any) -> str:
     if isinstance(v, bool):
         return "yes" if v else ""
     if isinstance(v, float):
-        return f"{v:.1f}"
+        return "" if v != v else f"{v:.1f}"  # NaN: not applicable that week
     if isinstance(v, (list, tuple)):
         return ", ".join(str(x) for x in v)
     return str(v)
@@ -412,9 +414,9 @@ class ClinicApp:
         self.weeks.add_class("pr-option-weeks")
         self.sessions: dict[str, w.Dropdown] = {}
         for kind in ("impact", "resistance", "balance"):
-            dd = w.Dropdown(options=[("default", None)] + [(str(n), n) for n in range(0, 8)], value=None,
-                            description=f"{kind.capitalize()} sessions / week",
-                            style={"description_width": "170px"}, layout=w.Layout(width="260px"))
+            dd = w.Dropdown(options=[("planner's choice", AUTO)] + [(str(n), n) for n in range(1, 8)], value=AUTO,
+                            description=f"{kind.capitalize()} sessions a week",
+                            style={"description_width": "initial"}, layout=w.Layout(width="330px"))
             dd.add_class(f"pr-option-{kind}_sessions_per_week")
             self.sessions[kind] = dd
         for control in (self.start_level, *self.sessions.values()):
@@ -436,7 +438,7 @@ class ClinicApp:
         self.chart_box.add_class("pr-charts")
         self.dose = w.HTML("")
         self.dose.add_class("pr-dose")
-        self.week_table = w.HTML("")
+        self.week_table = w.HTML("", layout=w.Layout(max_height="420px", overflow="auto"))
         self.week_table.add_class("pr-week-table")
         self.program_section = self._section("3. Program", "pr-section-program", [
             w.HBox([self.start_level, self.weeks]),
@@ -520,7 +522,7 @@ class ClinicApp:
         if weeks is not None:
             changes["weeks"] = weeks
         for kind, dd in self.sessions.items():
-            if dd.value is not None:
+            if dd.value != AUTO:
                 changes[f"{kind}_sessions_per_week"] = dd.value
         self.session.build(**changes)
         self.refresh()
@@ -579,7 +581,7 @@ class ClinicApp:
             self.start_level.value = s.options.get("start_level", first_level)
             self.weeks.value = str(s.options.get("weeks", len(s.plan.weeks) if s.plan else ""))
             for kind, dd in self.sessions.items():
-                dd.value = s.options.get(f"{kind}_sessions_per_week")
+                dd.value = s.options.get(f"{kind}_sessions_per_week", AUTO)
             exercises = s.plan_exercises()
             keep = self.exercise_select.value
             self.exercise_select.options = [(f"{n} ({i})", i) for i, n in exercises]
