@@ -102,6 +102,12 @@ def chair_stand_norm_low(age_years: int, sex: str) -> float | None:
 # Derived features: scalar (one record) and vector (a frame)
 # ---------------------------------------------------------------------------
 
+def _bmi(mass_kg, height_cm):
+    """Body mass index [kg/m^2] of scalars or arrays (one formula, identical rounding for both)."""
+    metres = height_cm / 100.0
+    return mass_kg / (metres * metres)
+
+
 def record_features(rec: dict) -> dict[str, Any]:
     """The derived features of one record given as a dict (``PatientRecord.model_dump()`` shape).
 
@@ -136,7 +142,7 @@ def record_features(rec: dict) -> dict[str, Any]:
         "age_years": age,
         "sex": sex,
         "body_mass_kg": mass,
-        "bmi": mass / (height / 100.0) ** 2,
+        "bmi": _bmi(mass, height),
         "lowest_t_score": lowest,
         "t_score_measured": lowest is not None,
         "low_trauma_fracture": lt_count > 0,
@@ -341,7 +347,7 @@ def frame_features(df: pd.DataFrame) -> dict[str, np.ndarray]:
         "age_years": age,
         "sex": sex,
         "body_mass_kg": mass,
-        "bmi": mass / (height / 100.0) ** 2,
+        "bmi": _bmi(mass, height),
         "lowest_t_score": lowest,
         "t_score_measured": ~np.isnan(lowest),
         "falls_past_year": np.nan_to_num(falls, nan=0.0),

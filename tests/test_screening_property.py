@@ -47,3 +47,26 @@ def test_result_is_always_bounded_and_cautioned(record):
     assert result.refer == any(f.severity == "clear_first" for f in result.flags) or result.refer
     assert result.cautions[:3] and all(c for c in result.cautions)
     assert (result.bone_density_category == "unknown") == (result.lowest_t_score is None)
+
+
+@SETTINGS
+@given(st.lists(valid_records(), min_size=1, max_size=8, unique_by=lambda r: r.patient_id))
+def test_every_feature_is_the_same_in_both_evaluators(records):
+    # Stronger than equal results: each derived feature a rule may test is computed identically
+    # (missing = None for one person, NaN in the arrays), so a future rule cannot diverge.
+    import math
+
+    from prescribe.rules import FEATURES
+    from prescribe.screening import frame_features, record_features
+
+    arrays = frame_features(records_to_frame(records))
+    assert set(arrays) == set(FEATURES)
+    for i, record in enumerate(records):
+        single = record_features(record.model_dump())
+        assert set(single) == set(FEATURES)
+        for name, value in single.items():
+            got = arrays[name][i]
+            if value is None:
+                assert isinstance(got, float) and math.isnan(got), name
+            else:
+                assert got == value and type(value)(got) == value, (name, value, got)
