@@ -161,3 +161,31 @@ def test_bad_batch_keeps_an_earlier_output_untouched(cli, tmp_path):
     proc = cli("screen", "--batch", str(in_csv), "--out", str(out_csv))
     assert proc.returncode == 2 and "column body_mass_kg is required" in proc.stderr
     assert out_csv.read_text(encoding="utf-8") == "earlier results\n"
+
+
+def test_draft_rules_rescreen_a_caseload(cli, tmp_path):
+    # A clinic lead tries a draft library: the TUG cut-off moved from 12 s (CDC STEADI) to 15 s.
+    import shutil
+
+    from prescribe.rules import DEFAULT_RULES_DIR
+    draft = tmp_path / "draft"
+    shutil.copytree(DEFAULT_RULES_DIR, draft)
+    path = draft / "falls_balance.toml"
+    path.write_text(path.read_text(encoding="utf-8").replace(
+        'op = ">=", value = 12.0', 'op = ">=", value = 15.0'), encoding="utf-8")
+    shipped = screen_json(cli, "NTC-0033.json")
+    proc = cli("screen", str(PATIENTS / "NTC-0033.json"), "--rules", str(draft))
+    assert proc.returncode == 0, proc.stderr
+    drafted = json.loads(proc.stdout)
+    assert "falls.timed_up_and_go" in rules(shipped) and "falls.timed_up_and_go" not in rules(drafted)
+    assert drafted["ruleset_version"] != shipped["ruleset_version"]
+
+
+def test_malformed_draft_rules_fail_naming_file_and_rule(cli, tmp_path):
+    (tmp_path / "bad.toml").write_text(
+        'family = "x"\n[[rules]]\nid = "x.y"\ntitle = "t"\nseverity = "loud"\nwhen = { feature = "age_years", '
+        'op = ">", value = 1 }\nmessage = "m"\nsource = "common practice"\n', encoding="utf-8")
+    proc = cli("screen", str(PATIENTS / "NTC-0012.json"), "--rules", str(tmp_path))
+    assert proc.returncode == 1
+    assert "bad.toml, rule 'x.y': severity must be one of" in proc.stderr
+    assert proc.stdout == "" and "Traceback" not in proc.stderr

@@ -23,6 +23,9 @@ def register(sub) -> None:
     p.add_argument("--table", action="store_true", help="print a readable table of the flags instead of JSON")
     p.add_argument("--batch", metavar="IN.csv", help="caseload CSV, one person a row (see docs/rules.md)")
     p.add_argument("--out", metavar="OUT.csv", help="where --batch writes the results CSV")
+    p.add_argument("--rules", metavar="DIR", help="screen with the rule files in DIR instead of the shipped "
+                                                  "library (for example a draft, to see how a change re-screens "
+                                                  "a caseload)")
     p.set_defaults(func=run)
 
 
@@ -32,19 +35,29 @@ def run(args) -> int:
             raise InputError.single("PATIENT.json", args.patient, "no patient file together with --batch")
         if not args.out:
             raise InputError.single("--out", None, "a path for the results CSV (required with --batch)")
-        return _run_batch(args.batch, args.out)
+        return _run_batch(args.batch, args.out, _rules(args))
     if args.out:
         raise InputError.single("--out", args.out, "used only together with --batch")
     if not args.patient:
         raise InputError.single("PATIENT.json", None, "a patient record file, or --batch IN.csv --out OUT.csv")
     from ..screening import screen
 
-    result = screen(load_record(args.patient))
+    record = load_record(args.patient)
+    result = screen(record, _rules(args))
     if args.table:
         _print_table(result)
     else:
         emit_json(result)
     return 0
+
+
+def _rules(args):
+    """The rule set named by --rules (validated; RuleFileError names file, rule and problem), or None."""
+    if not args.rules:
+        return None
+    from ..rules import load_rules
+
+    return load_rules(args.rules)
 
 
 def _print_table(result) -> None:
@@ -72,19 +85,19 @@ def _print_table(result) -> None:
         out.write(f"- {c}\n")
 
 
-def _run_batch(in_path: str, out_path: str) -> int:
+def _run_batch(in_path: str, out_path: str, rules=None) -> int:
     from ..batch_io import read_batch_csv, write_results_csv
     from ..screening import RULESET_VERSION, screen_batch
 
     frame = read_batch_csv(in_path)          # raises InputError before anything is written
-    results = screen_batch(frame)
+    results = screen_batch(frame, rules)
     write_results_csv(results, out_path)     # atomic: whole file or nothing
     counts = Counter(results["bone_density_category"].tolist())
     emit_json({
         "input": in_path,
         "output": out_path,
         "patients": int(len(results)),
-        "ruleset_version": RULESET_VERSION,
+        "ruleset_version": rules.version if rules is not None else RULESET_VERSION,
         "by_category": {c: int(counts.get(c, 0)) for c in _CATEGORIES},
         "refer": int(results["refer"].sum()),
         "falls_risk": int(results["falls_risk"].sum()),
