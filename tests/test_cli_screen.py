@@ -189,3 +189,18 @@ def test_malformed_draft_rules_fail_naming_file_and_rule(cli, tmp_path):
     assert proc.returncode == 1
     assert "bad.toml, rule 'x.y': severity must be one of" in proc.stderr
     assert proc.stdout == "" and "Traceback" not in proc.stderr
+
+
+def test_batch_table_lists_each_patient_and_the_cautions(cli, tmp_path):
+    in_csv, out_csv = tmp_path / "in.csv", tmp_path / "out.csv"
+    in_csv.write_text("patient_id,age_years,sex,body_mass_kg,height_cm,t_score_femoral_neck,pain_score\n"
+                      "NTC-0201,66,female,58,161,-2.6,7\nNTC-0202,61,male,77,178,-0.5,0\n", encoding="utf-8")
+    proc = cli("screen", "--batch", str(in_csv), "--out", str(out_csv), "--table")
+    assert proc.returncode == 0, proc.stderr
+    lines = proc.stdout.splitlines()
+    # Thomee 1997 pain model: above 5/10 needs assessment first (refer); WHO 1994: -2.6 = osteoporosis.
+    assert any(l.startswith("NTC-0201") and "osteoporosis" in l and "YES" in l and "pain.severe" in l
+               for l in lines)
+    assert any(l.startswith("NTC-0202") and "normal" in l and " 3 " in l for l in lines)
+    assert STANDARD_CAUTIONS[0] in proc.stdout
+    assert out_csv.exists()

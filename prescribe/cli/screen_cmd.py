@@ -35,7 +35,7 @@ def run(args) -> int:
             raise InputError.single("PATIENT.json", args.patient, "no patient file together with --batch")
         if not args.out:
             raise InputError.single("--out", None, "a path for the results CSV (required with --batch)")
-        return _run_batch(args.batch, args.out, _rules(args))
+        return _run_batch(args.batch, args.out, _rules(args), args.table)
     if args.out:
         raise InputError.single("--out", args.out, "used only together with --batch")
     if not args.patient:
@@ -85,13 +85,23 @@ def _print_table(result) -> None:
         out.write(f"- {c}\n")
 
 
-def _run_batch(in_path: str, out_path: str, rules=None) -> int:
+def _run_batch(in_path: str, out_path: str, rules=None, table: bool = False) -> int:
     from ..batch_io import read_batch_csv, write_results_csv
     from ..screening import RULESET_VERSION, screen_batch
 
     frame = read_batch_csv(in_path)          # raises InputError before anything is written
     results = screen_batch(frame, rules)
     write_results_csv(results, out_path)     # atomic: whole file or nothing
+    if table:
+        emit_table([{"patient_id": r.patient_id, "category": r.bone_density_category,
+                     "max_level": r.max_impact_level, "refer": "YES" if r.refer else "no",
+                     "falls_risk": "yes" if r.falls_risk else "no", "flags": r.flags.replace(";", ", ")}
+                    for r in results.itertuples()],
+                   ["patient_id", "category", "max_level", "refer", "falls_risk", "flags"])
+        sys.stdout.write(f"\n{len(results)} patients written to {out_path}\nCautions:\n")
+        for c in with_standard():
+            sys.stdout.write(f"- {c}\n")
+        return 0
     counts = Counter(results["bone_density_category"].tolist())
     emit_json({
         "input": in_path,
