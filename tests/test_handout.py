@@ -222,9 +222,9 @@ def test_impacts_chart_is_accessible_and_hatches_each_weak_window():
     root = _svg(charts.impacts_chart_svg(plan))
     assert root.find(f"{SVG}title").text.startswith("Landings (impacts) per session")
     assert "Hold weeks (weak window): 7-9, 17-19." in root.find(f"{SVG}desc").text
-    assert root.find(f".//{SVG}pattern") is not None
-    hatched = [r for r in root.iter(f"{SVG}rect") if "url(#chart-impacts-hatch)" in (r.get("fill") or "")]
+    hatched = [p for p in root.iter(f"{SVG}path") if p.get("class") == "hatch"]
     assert len(hatched) == 2 + 1  # two windows and the legend swatch
+    assert all(p.get("d").count("M") >= 3 for p in hatched)  # lines, not a colour fill
     texts = [t.text for t in root.iter(f"{SVG}text")]
     assert "impacts per session" in texts and "week of the program" in texts
     assert "impact level (0-3)" in texts and "hold" in texts
@@ -254,3 +254,13 @@ def test_chart_text_is_escaped():
     svg = frame.svg()
     assert "<b>" not in svg and "<script>" not in svg and "a &lt;b&gt; &amp; c" in svg
     _svg(svg)
+
+
+def test_evidence_lists_plan_sources_once_and_adds_only_uncited_method_sources():
+    data = make_plan(weeks=4)
+    data["sources"] = data["sources"] + [data["sources"][0]]
+    listed = content.evidence(parse_plan(data))
+    assert listed.count(data["sources"][0]) == 1
+    # The fixture cites Turner & Robling 2003 itself, so the handout does not add it again.
+    assert sum("Exerc Sport Sci Rev 31(1):45-50" in s for s in listed) == 1
+    assert any("J Exp Biol 204:3389-3399" in s for s in listed)  # Robling, Burr & Turner 2001

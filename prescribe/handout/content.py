@@ -37,14 +37,36 @@ DEFAULT_BOUT_GAP_HOURS = 8
 
 _PCT_1RM = re.compile(r"(\d+(?:\.\d+)?)\s*%\s*(?:of\s+)?1\s*RM", re.IGNORECASE)
 
-METHOD_SOURCES = (
+METHOD_SOURCES_BY_PAGES = {
+    "Exerc Sport Sci Rev 31(1):45-50":
     "Turner CH, Robling AG 2003. Designing exercise regimens to increase bone strength. "
     "Exerc Sport Sci Rev 31(1):45-50 (osteogenic index = peak GRF x ln(cycles + 1)).",
+    "J Exp Biol 204:3389-3399":
     "Robling AG, Burr DB, Turner CH 2001. Recovery periods restore mechanosensitivity to dynamically "
     "loaded bone. J Exp Biol 204:3389-3399 (about 8 h between bouts).",
+    "Endocr Rev 7:379":
     "Eriksen EF 1986. Normal and pathological remodeling of human trabecular bone. Endocr Rev 7:379 "
     "(resorption about 3 weeks before formation: the weak window).",
-)
+}
+METHOD_SOURCES = tuple(METHOD_SOURCES_BY_PAGES.values())
+
+
+def evidence(plan: Plan) -> list[str]:
+    """The plan's sources, then the handout's own method sources the plan does not cite.
+
+    Exact repeats are dropped; a method source counts as cited when the plan cites
+    the same journal pages (for example "J Exp Biol 204:3389-3399").
+    """
+    out: list[str] = []
+    for text in plan.sources:
+        text = " ".join(str(text).split())
+        if text and text not in out:
+            out.append(text)
+    cited = " ".join(out)
+    for pages, text in METHOD_SOURCES_BY_PAGES.items():
+        if pages not in cited:
+            out.append(text)
+    return out
 
 
 def extra(model: Any, name: str, default: Any = None) -> Any:

@@ -70,7 +70,7 @@ def handout_context(plan: Plan, audience: str, paper: str, clinic: Clinic) -> di
         "impacts_svg": Markup(charts.impacts_chart_svg(plan)),
         "intensity_svg": Markup(charts.intensity_chart_svg(plan)),
         "screening": plan.screening, "level_labels": content.LEVEL_LABELS,
-        "method_sources": content.METHOD_SOURCES, "if_hard_general": content.IF_HARD_GENERAL,
+        "evidence": content.evidence(plan), "if_hard_general": content.IF_HARD_GENERAL,
         "versions": [("Tool version (plan)", plan.tool_version), ("Rule-set version", plan.ruleset_version),
                      ("Plan format", plan.plan_format_version), ("Plan created", plan.created),
                      ("Handout made by", f"prescribe {__version__}, plan format {PLAN_FORMAT_VERSION}")],

@@ -1,0 +1,84 @@
+"""Benchmark: rendering the handout of a 26-week plan, as HTML and as PDF.
+
+In one run this script builds a 26-week plan with the planner for an invented person,
+then times (a) ``render_html`` and (b) ``render_pdf`` for both audiences, and (c) a
+baseline: WeasyPrint turning a trivial one-paragraph HTML page into PDF.  Runs
+alternate so machine load hits all three alike.  It prints best and median times,
+the PDF's page count, the ratio of the handout PDF to the baseline, and the goal
+(issue 6): the PDF in under 1.5 s.  CPU time is printed too, because wall time on a
+shared machine includes other processes' work.  Exits 0 either way (a benchmark, not
+a test).  Run: ``.venv/bin/python benchmarks/bench_handout.py [--runs 7] [--weeks 26]``.
+"""
+
+from __future__ import annotations
+
+import argparse
+import statistics
+import sys
+import time
+from pathlib import Path
+
+ROOT = Path(__file__).resolve().parents[1]
+sys.path.insert(0, str(ROOT))
+
+from prescribe.handout import render_html, render_pdf  # noqa: E402
+from prescribe.planner import PlanOptions, build_plan  # noqa: E402
+from prescribe.records import parse_record  # noqa: E402
+from prescribe.settings import Clinic  # noqa: E402
+
+GOAL_PDF_S = 1.5
+CLINIC = Clinic("Riverside Bone Health Clinic (demo)", "555-0100")
+#: An invented person; no real record.
+RECORD = {"patient_id": "NTC-0042", "age_years": 67, "sex": "female", "body_mass_kg": 61, "height_cm": 162,
+          "t_scores": {"lumbar_spine": -2.7, "femoral_neck": -2.2}, "fractures": [], "falls_past_year": 0,
+          "timed_up_and_go_s": 9.5, "conditions": [], "pain_score": 1}
+TRIVIAL = "<!DOCTYPE html><html><body><p>One paragraph of plain text for the baseline.</p></body></html>"
+
+
+def _timed(fn):
+    wall, cpu = time.perf_counter(), time.process_time()
+    result = fn()
+    return result, time.perf_counter() - wall, time.process_time() - cpu
+
+
+def main() -> int:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--runs", type=int, default=7)
+    parser.add_argument("--weeks", type=int, default=26)
+    args = parser.parse_args()
+
+    from weasyprint import HTML
+
+    plan = build_plan(parse_record(RECORD), options=PlanOptions(weeks=args.weeks),
+                      created="2026-03-02T09:00:00+00:00")
+    # Warm-up: imports, fonts, template compilation and the catalogue load once per process.
+    pdf = render_pdf(plan, clinic=CLINIC)
+    HTML(string=TRIVIAL).write_pdf()
+
+    times: dict[str, list[float]] = {"html": [], "pdf": [], "baseline": []}
+    cpu: dict[str, list[float]] = {"html": [], "pdf": [], "baseline": []}
+    for _ in range(args.runs):
+        for name, fn in (("html", lambda: render_html(plan, clinic=CLINIC)),
+                         ("pdf", lambda: render_pdf(plan, clinic=CLINIC)),
+                         ("baseline", lambda: HTML(string=TRIVIAL).write_pdf())):
+            _, wall, used = _timed(fn)
+            times[name].append(wall)
+            cpu[name].append(used)
+
+    pages = pdf.count(b"/Type /Page\n") or pdf.count(b"/Type /Page") - pdf.count(b"/Type /Pages")
+    print(f"handout of a {args.weeks}-week plan, both audiences, A4 ({pages} pages, {len(pdf) / 1024:.0f} KiB); "
+          f"{args.runs} runs each")
+    for name, label in (("html", "render_html"), ("pdf", "render_pdf"), ("baseline", "trivial HTML -> PDF")):
+        print(f"  {label:22s} best {min(times[name]):6.3f} s   median {statistics.median(times[name]):6.3f} s"
+              f"   (CPU median {statistics.median(cpu[name]):6.3f} s)")
+    pdf_median = statistics.median(times["pdf"])
+    ratio = pdf_median / statistics.median(times["baseline"])
+    print(f"  handout PDF / baseline (medians): {ratio:.1f} x")
+    verdict = "meets" if pdf_median < GOAL_PDF_S else "misses"
+    print(f"  goal: PDF under {GOAL_PDF_S} s -> median {pdf_median:.3f} s {verdict} it "
+          f"(best {min(times['pdf']):.3f} s, CPU median {statistics.median(cpu['pdf']):.3f} s)")
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
