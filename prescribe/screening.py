@@ -5,8 +5,9 @@ evaluated either for one person (:func:`screen`, a plain per-record evaluator) o
 for a whole caseload at once (:func:`screen_batch`, a vectorised numpy/pandas
 evaluator over a DataFrame of flattened records).  Both compute the same derived
 features (one function each, :func:`record_features` and :func:`frame_features`),
-test the same compiled conditions, and turn the set of fired rules into a result
-through one shared function, so a person gets the same result either way.
+test the same conditions and combine the fired rules' effects by the rules below,
+so a person gets the same result either way (a property test checks every feature
+and every result field of random records both ways).
 
 How fired rules combine
 -----------------------
@@ -411,8 +412,10 @@ def compile_scalar(cond: Condition) -> Callable[[dict], bool]:
     if isinstance(cond, AnyOf):
         parts = [compile_scalar(p) for p in cond.parts]
         return lambda f: any(p(f) for p in parts)
-    inner = compile_scalar(cond.part)
-    return lambda f: not inner(f)
+    if isinstance(cond, Not):
+        inner = compile_scalar(cond.part)
+        return lambda f: not inner(f)
+    raise TypeError(f"not a condition: {cond!r}")
 
 
 def evaluate_vector(cond: Condition, feats: dict[str, np.ndarray]) -> np.ndarray:
@@ -443,7 +446,9 @@ def evaluate_vector(cond: Condition, feats: dict[str, np.ndarray]) -> np.ndarray
         for p in cond.parts[1:]:
             out = out | evaluate_vector(p, feats)
         return out
-    return ~evaluate_vector(cond.part, feats)
+    if isinstance(cond, Not):
+        return ~evaluate_vector(cond.part, feats)
+    raise TypeError(f"not a condition: {cond!r}")
 
 
 # ---------------------------------------------------------------------------

@@ -3,10 +3,12 @@ batch CSV row format round-trips every valid record."""
 
 from __future__ import annotations
 
+import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from prescribe.batch_io import frame_to_records, record_to_row, records_to_frame, rows_to_records
+from prescribe.rules import load_rules
 from prescribe.screening import results_from_frame, screen, screen_batch, screen_many
 
 from strategies import valid_records
@@ -70,3 +72,65 @@ def test_every_feature_is_the_same_in_both_evaluators(records):
                 assert isinstance(got, float) and math.isnan(got), name
             else:
                 assert got == value and type(value)(got) == value, (name, value, got)
+
+
+EVERY_OPERATOR = '''
+family = "operators"
+
+[[rules]]
+id = "ops.any_not"
+title = "any / not"
+severity = "note"
+when = { any = [ { not = { feature = "sex", op = "==", value = "female" } },
+                 { all = [ { feature = "bmi", op = "<", value = 20.5 }, { feature = "age_years", op = ">", value = 75 } ] } ] }
+effect = { max_impact_level = 2, avoid = ["single_leg_stance"] }
+message = "m"
+source = "common practice"
+
+[[rules]]
+id = "ops.in_and_ne"
+title = "in / !="
+severity = "adapt"
+when = { all = [ { feature = "falls_past_year", op = "in", value = [1, 3, 4] },
+                 { feature = "pain_score", op = "!=", value = 0 } ] }
+effect = { refer = false, supervision = true, category = "osteopenia" }
+message = "m"
+source = "common practice"
+
+[[rules]]
+id = "ops.present_missing"
+title = "present / missing"
+severity = "clear_first"
+when = { all = [ { feature = "timed_up_and_go_s", op = "present" }, { feature = "tandem_stance_s", op = "missing" },
+                 { feature = "lowest_t_score", op = "!=", value = -2.5 } ] }
+effect = { refer = true, max_impact_level = 0, caution = "c1" }
+message = "m"
+source = "common practice"
+
+[[rules]]
+id = "ops.text_in_and_bools"
+title = "text in / bools"
+severity = "note"
+when = { any = [ { feature = "sex", op = "in", value = ["male"] },
+                 { feature = "has_condition:hip_replacement", op = "==", value = true },
+                 { feature = "chair_stand_below_norm", op = "!=", value = false },
+                 { feature = "months_since_last_fracture", op = "<=", value = 3 },
+                 { feature = "chair_stand_norm_low", op = ">=", value = 12 } ] }
+effect = { falls_risk = true, balance_first = true, category = "severe_osteoporosis", caution = "c2" }
+message = "m"
+source = "common practice"
+'''
+
+
+@pytest.fixture(scope="module")
+def operator_rules(tmp_path_factory):
+    folder = tmp_path_factory.mktemp("ops")
+    (folder / "ops.toml").write_text(EVERY_OPERATOR, encoding="utf-8")
+    return load_rules(folder)
+
+
+@SETTINGS
+@given(records=st.lists(valid_records(), min_size=1, max_size=10, unique_by=lambda r: r.patient_id))
+def test_every_operator_and_combinator_agrees_in_both_evaluators(operator_rules, records):
+    single = [screen(r, operator_rules) for r in records]
+    assert screen_many(records, operator_rules) == single
