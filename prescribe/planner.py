@@ -729,8 +729,7 @@ def _default_template(record: PatientRecord) -> str:
 
 
 def build_plan(record: PatientRecord, screening: ScreeningResult | None = None,
-               options: PlanOptions | None = None, catalogue=None, created: str | None = None,
-               validate: bool = True) -> Plan:
+               options: PlanOptions | None = None, catalogue=None, created: str | None = None) -> Plan:
     """Build the graded program for one person.
 
     Parameters
@@ -746,10 +745,6 @@ def build_plan(record: PatientRecord, screening: ScreeningResult | None = None,
         The exercise catalogue; the packaged one by default.
     created : str, optional
         ISO 8601 timestamp to stamp (default: now, UTC).
-    validate : bool
-        Validate the whole plan with pydantic (default).  False builds it with
-        ``model_construct`` at every level, for speed; the content is the same.
-
     Returns
     -------
     Plan
@@ -779,51 +774,36 @@ def build_plan(record: PatientRecord, screening: ScreeningResult | None = None,
     tpl = load_template(options.template or _default_template(record))
     created = created or datetime.now(timezone.utc).replace(microsecond=0).isoformat()
     data = _Builder(record, screening, options, catalogue, tpl).build(created)
-    return _assemble(data, validate)
+    return _assemble(data)
 
 
-def _assemble(data: dict, validate: bool) -> Plan:
-    """The Plan model from the builder's dicts.
+def _assemble(data: dict) -> Plan:
+    """The validated Plan model from the builder's dicts.
 
-    Each distinct exercise dict (the builder shares them between the sessions of a
-    week and between weeks) becomes one model; sessions, weeks and the plan are
-    then built around those models.  With ``validate`` every level goes through
-    pydantic validation (instances are accepted as they are), which is what makes a
-    plan fast enough to build interactively; without it ``model_construct`` is used.
+    The builder shares each exercise dict between the sessions of a week and between
+    weeks; each distinct one is validated once and its model shared in the same way.
+    Sessions, weeks and the plan are validated around those models (pydantic accepts
+    the instances as they are).  This keeps a plan fast enough to rebuild on every
+    change in the app.  Treat a plan as a value: edit it through
+    :func:`replace_exercise` or a deep ``model_copy``, not in place.
     """
-    make_ex = PlannedExercise.model_validate if validate else (lambda d: PlannedExercise.model_construct(**d))
-    make_s = PlannedSession.model_validate if validate else (lambda d: PlannedSession.model_construct(**d))
-    make_w = PlannedWeek.model_validate if validate else (lambda d: PlannedWeek.model_construct(**d))
     ex_cache: dict[int, list] = {}
 
     def exercises(lst: list[dict]) -> list:
         got = ex_cache.get(id(lst))
         if got is None:
-            got = ex_cache[id(lst)] = [make_ex(x) for x in lst]
-        return list(got)
+            got = ex_cache[id(lst)] = [PlannedExercise.model_validate(x) for x in lst]
+        return got
 
-    s_cache: dict[tuple, Any] = {}
     weeks = []
     for w in data["weeks"]:
         sessions = []
         for s in w["sessions"]:
             exs = s["exercises"]
-            ids = tuple(map(id, exs)) if isinstance(exs, tuple) else id(exs)
-            key = (ids, s["kind"], s["impacts"], s["osteogenic_index"])
-            proto = s_cache.get(key)
-            if proto is None:
-                if isinstance(exs, tuple):  # a mixed session: (first list, second list)
-                    models = exercises(exs[0]) + exercises(exs[1])
-                else:
-                    models = exercises(exs)
-                proto = s_cache[key] = make_s({**s, "exercises": models})
-                sessions.append(proto)
-            else:
-                sessions.append(make_s({**s, "exercises": list(proto.exercises)}))
-        weeks.append(make_w({**w, "sessions": sessions}))
-    if validate:
-        return Plan.model_validate({**data, "weeks": weeks})
-    return Plan.model_construct(**{**data, "weeks": weeks})
+            models = exercises(exs[0]) + exercises(exs[1]) if isinstance(exs, tuple) else list(exercises(exs))
+            sessions.append(PlannedSession.model_validate({**s, "exercises": models}))
+        weeks.append(PlannedWeek.model_validate({**w, "sessions": sessions}))
+    return Plan.model_validate({**data, "weeks": weeks})
 
 
 # =========================================================================================
@@ -873,37 +853,41 @@ def check_plan(plan: Plan, screening: ScreeningResult | None = None) -> list[str
     levels, counts = [], []
     for wk in plan.weeks:
         w = wk.week
-        ex_levels = [x.impact_level for s in wk.sessions for x in s.exercises]
-        top = max(ex_levels, default=0)
+        top, session_max = 0, 0
+        dirs: set[str] = set()
+        by_day: dict[int, list] = {}
+        for s in wk.sessions:
+            n = 0
+            day_ex = by_day.setdefault(s.day, [])
+            for x in s.exercises:
+                lv = x.impact_level
+                if lv > top:
+                    top = lv
+                if avoid and not avoid.isdisjoint(x.patterns):
+                    out.append(f"rule 1: week {w} day {s.day}: {x.exercise_id} involves "
+                               f"{', '.join(sorted(avoid.intersection(x.patterns)))}, which the screening "
+                               "asks to avoid")
+                if lv >= 2:
+                    n += x.impacts
+                    dirs.update(x.directions)
+                    if x.impacts > 0:
+                        day_ex.append(x)
+            if n != s.impacts:
+                out.append(f"rule 4: week {w} day {s.day}: session impacts {s.impacts} do not add up to the "
+                           f"exercises' level 2-3 impacts {n}")
+            if n > session_max:
+                session_max = n
         if wk.impact_level > cap or top > cap:
             out.append(f"rule 1: week {w} reaches impact level {max(top, wk.impact_level)}, above the "
                        f"screening's max_impact_level {cap}")
         if top != wk.impact_level:
             out.append(f"rule 1: week {w} says impact level {wk.impact_level} but its exercises reach {top}")
-        session_max, by_day = 0, {}
-        dirs: set[str] = set()
-        for s in wk.sessions:
-            n = 0
-            for x in s.exercises:
-                bad = sorted(set(x.patterns) & avoid)
-                if bad:
-                    out.append(f"rule 1: week {w} day {s.day}: {x.exercise_id} involves {', '.join(bad)}, "
-                               "which the screening asks to avoid")
-                if x.impact_level >= 2:
-                    n += x.impacts
-                    dirs.update(x.directions)
-            if n != s.impacts:
-                out.append(f"rule 4: week {w} day {s.day}: session impacts {s.impacts} do not add up to the "
-                           f"exercises' level 2-3 impacts {n}")
-            session_max = max(session_max, n)
-            by_day.setdefault(s.day, []).append(s)
         if session_max != wk.impacts_per_session:
             out.append(f"rule 4: week {w}: impacts_per_session {wk.impacts_per_session} is not the largest "
                        f"session's {session_max}")
         if session_max > max_imp:
             out.append(f"rule 4: week {w}: {session_max} impacts in a session, above the {max_imp} allowed")
-        for day, sessions in by_day.items():
-            impact_ex = [x for s in sessions for x in s.exercises if x.impact_level >= 2 and x.impacts > 0]
+        for day, impact_ex in by_day.items():
             total = sum(x.impacts for x in impact_ex)
             if total > 50:
                 need = math.ceil(total / 50)
