@@ -156,3 +156,13 @@ def test_rule_without_an_id_is_named_by_position(tmp_path):
     with pytest.raises(RuleFileError) as caught:
         load_rules(tmp_path)
     assert caught.value.rule_id == "#1 (no id)"
+
+
+def test_every_falls_risk_rule_puts_balance_first_caps_impact_and_supervises():
+    # CDC STEADI (2017, 2019) screening plus Brooke-Wavell et al. 2022 (Br J Sports Med 56:837-846):
+    # people at risk of falling train balance first, with impact limited and supervised at first.
+    falls = [r for r in load_rules() if r.effect.falls_risk]
+    assert len(falls) >= 5
+    for rule in falls:
+        assert rule.effect.balance_first and rule.effect.supervision, rule.id
+        assert rule.effect.max_impact_level is not None and rule.effect.max_impact_level <= 2, rule.id
