@@ -65,7 +65,7 @@ def main() -> int:
             times[name].append(wall)
             cpu[name].append(used)
 
-    pages = pdf.count(b"/Type /Page\n") or pdf.count(b"/Type /Page") - pdf.count(b"/Type /Pages")
+    pages = len(HTML(string=render_html(plan, clinic=CLINIC)).render().pages)
     print(f"handout of a {args.weeks}-week plan, both audiences, A4 ({pages} pages, {len(pdf) / 1024:.0f} KiB); "
           f"{args.runs} runs each")
     for name, label in (("html", "render_html"), ("pdf", "render_pdf"), ("baseline", "trivial HTML -> PDF")):
