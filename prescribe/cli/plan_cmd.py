@@ -63,8 +63,13 @@ def _options(args):
     try:
         return PlanOptions(**kwargs)
     except InputError as exc:
-        raise InputError([FieldProblem(_OPTION_OF.get(p.field, p.field), p.value, p.allowed, p.kind)
-                          for p in exc.problems]) from None
+        raise _named_as_options(exc) from None
+
+
+def _named_as_options(exc: InputError) -> InputError:
+    """The same problems, each naming the command-line option rather than the field."""
+    return InputError([FieldProblem(_OPTION_OF.get(p.field, p.field), p.value, p.allowed, p.kind)
+                       for p in exc.problems], exc.source)
 
 
 def run(args) -> int:
@@ -76,8 +81,7 @@ def run(args) -> int:
     try:
         plan = build_plan(record, screen(record), options)
     except InputError as exc:
-        raise InputError([FieldProblem(_OPTION_OF.get(p.field, p.field), p.value, p.allowed, p.kind)
-                          for p in exc.problems]) from None
+        raise _named_as_options(exc) from None
     if not args.table:
         emit_json(plan)
         return 0
