@@ -2,8 +2,6 @@
 
 from __future__ import annotations
 
-from pathlib import Path
-
 from ..cautions import STANDARD_CAUTIONS
 from ..plan_schema import parse_plan
 from ..records import read_json_file
@@ -27,11 +25,9 @@ def register(sub) -> None:
 
 def run(args) -> int:
     # Imported here so `prescribe --help` stays quick (the renderer pulls in Jinja2).
-    from ..handout.render import SUFFIXES, check_options, write_handout
-    from ..errors import InputError
+    from ..handout.render import check_options, check_out_path, write_handout
 
-    if Path(args.out).suffix.lower() not in SUFFIXES:
-        raise InputError.single("--out", args.out, "a file name ending in " + " or ".join(SUFFIXES))
+    check_out_path(args.out)  # refuse a bad --out before reading the plan
     check_options(args.audience, args.paper, ("--audience", "--paper"))
     plan = parse_plan(read_json_file(args.plan, "PLAN.json"), source=args.plan)
     out = write_handout(plan, args.out, audience=args.audience, paper=args.paper)

@@ -37,6 +37,14 @@ def check_options(audience: str, paper: str, names: tuple[str, str] = ("audience
         raise InputError.single(names[1], paper, "one of " + ", ".join(PAPERS))
 
 
+def check_out_path(out_path: str | os.PathLike) -> Path:
+    """The output path, if its suffix is one we write; else an :class:`InputError` naming ``--out``."""
+    out = Path(out_path)
+    if out.suffix.lower() not in SUFFIXES:
+        raise InputError.single("--out", str(out_path), "a file name ending in " + " or ".join(SUFFIXES))
+    return out
+
+
 def as_plan(plan: Plan | dict | Any, source: str | None = None) -> Plan:
     """A validated :class:`Plan` (a dict is checked with :func:`parse_plan`)."""
     return plan if isinstance(plan, Plan) else parse_plan(plan, source)
@@ -109,10 +117,8 @@ def write_handout(plan: Plan | dict, out_path: str | os.PathLike, audience: str 
     The file is written to a temporary name first and then renamed, so an existing
     file is never left half written.
     """
-    out = Path(out_path)
+    out = check_out_path(out_path)
     suffix = out.suffix.lower()
-    if suffix not in SUFFIXES:
-        raise InputError.single("--out", str(out_path), "a file name ending in " + " or ".join(SUFFIXES))
     check_options(audience, paper, ("--audience", "--paper"))
     if suffix == ".pdf":
         data = render_pdf(plan, audience=audience, paper=paper, clinic=clinic)
