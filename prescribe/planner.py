@@ -124,6 +124,7 @@ _OPTION_ALLOWED = {
     "exclude": "a list of exercise ids from the catalogue",
     "include": "a list of exercise ids from the catalogue",
     "template": "one of " + ", ".join(template_names()) + ", or null for the default",
+    "step_up_weeks": "a list of week numbers (whole numbers) where the clinician wants the impact level raised",
 }
 
 
@@ -134,6 +135,9 @@ class PlanOptions(BaseModel):
     ``sessions_falls_risk`` (4 in the bundled ones) when falls risk is flagged.
     ``include`` lists exercises the clinician prefers: the planner picks them first
     where their level and category fit; one that breaks rule 1 is refused.
+    ``step_up_weeks`` fixes the weeks where the impact level rises (then only there);
+    a week that would break rule 1, 2 or 3 (already at the cap, the level not yet held
+    at full volume, or inside weeks 3-5 after the previous step-up) is refused.
     """
 
     model_config = ConfigDict(extra="forbid", frozen=True, strict=True)
@@ -146,9 +150,10 @@ class PlanOptions(BaseModel):
     exclude: tuple[str, ...] = ()
     include: tuple[str, ...] = ()
     template: str | None = None
+    step_up_weeks: tuple[int, ...] = ()
 
     def __init__(self, **data: Any):
-        for key in ("exclude", "include"):
+        for key in ("exclude", "include", "step_up_weeks"):
             if isinstance(data.get(key), list):
                 data[key] = tuple(data[key])
         try:
@@ -165,6 +170,10 @@ class PlanOptions(BaseModel):
             raise InputError(problems) from None
         if self.template is not None and self.template not in template_names():
             raise InputError.single("template", self.template, _OPTION_ALLOWED["template"])
+        late = [w for w in self.step_up_weeks if not 2 <= w <= self.weeks]
+        if late:
+            raise InputError.single("step_up_weeks", late[0] if len(late) == 1 else late,
+                                    f"weeks from 2 to the plan's last week ({self.weeks})")
 
 
 # =========================================================================================
@@ -489,6 +498,7 @@ class _Builder:
         """Per week: (level, volume, step_up, weak_window, impact phase text)."""
         out = []
         hold = self.tpl.impact["hold_weeks_at_full"]
+        requested = set(self.options.step_up_weeks) if self.options.step_up_weeks else None
         level, (vol, _, _) = self.start, self._volume(self.start)
         window_start = 1 if level > 0 else None
         at_full = 0
@@ -496,12 +506,29 @@ class _Builder:
             step_up = False
             if w > 1:
                 pos = w - window_start + 1 if window_start else 0
+                asked = requested is not None and w in requested
                 if 3 <= pos <= 5:
-                    pass  # weak window: hold level and volume of window week 2 (rule 3)
+                    if asked:
+                        self._refuse_step(w, "rule 3", f"week {w} is week {pos} after the step-up in week "
+                                          f"{window_start}: weeks 3 to 5 after a step-up carry no higher level "
+                                          "(resorption precedes formation; Eriksen 1986)")
+                    # weak window: hold level and volume of window week 2 (rule 3)
                 else:
                     _, step, full = self._volume(level)
                     blocked = self.falls and w <= BALANCE_FIRST_WEEKS and level + 1 >= 2
-                    if vol >= full and at_full >= hold and level < self.top and not blocked:
+                    ready = vol >= full and at_full >= hold
+                    if asked:
+                        if level >= self.top:
+                            self._refuse_step(w, "rule 1", f"week {w} is already at impact level {level}, the "
+                                              f"highest allowed for this person with these exercises")
+                        if blocked:
+                            self._refuse_step(w, "rule 7", f"falls risk: balance comes first, so impact stays at "
+                                              f"low impact until week {BALANCE_FIRST_WEEKS + 1}")
+                        if not ready:
+                            self._refuse_step(w, "rule 2", f"impact level {level} has not been held at full "
+                                              f"volume for {hold} weeks by week {w}")
+                    go = asked if requested is not None else (ready and level < self.top and not blocked)
+                    if go:
                         level += 1
                         vol = self._volume(level)[0]
                         window_start, step_up, at_full = w, True, 0
@@ -524,6 +551,10 @@ class _Builder:
                 text = f"build {label}"
             out.append((level, vol, step_up, weak, text))
         return out
+
+    def _refuse_step(self, week: int, rule: str, reason: str) -> None:
+        raise PlanRequestRefused(rule, f"a step up in week {week} was asked for, but {reason}",
+                                 field="step_up_weeks", value=week)
 
     # --- sessions ----------------------------------------------------------------------
     def impact_exercises(self, level: int, vol: int) -> list[dict]:

@@ -100,6 +100,14 @@ def test_start_level_above_the_cap_is_refused_with_exit_2(patient):
     assert "refused (rule 1)" in done.stderr and "start_level 3" in done.stderr
 
 
+def test_step_up_inside_the_weak_window_is_refused_with_exit_2(patient, capsys):
+    # Weeks 3-5 after a step-up carry no higher level (Eriksen 1986; Heaney et al. 1997).
+    code = main(["plan", patient(OSTEOPENIA), "--step-up-weeks", "8", "10"])
+    out, err = capsys.readouterr()
+    assert code == 2 and out == ""
+    assert "refused (rule 3)" in err and "week 10" in err
+
+
 def test_bad_record_and_missing_file_exit_2(patient, tmp_path):
     done = run_cli("plan", patient({**OSTEOPENIA, "age_years": 12}))
     assert done.returncode == 2 and "age_years" in done.stderr and "12" in done.stderr

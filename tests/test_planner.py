@@ -332,6 +332,28 @@ def test_including_an_avoided_or_too_high_exercise_is_refused():
         build_plan(_record(), _screening(max_impact_level=2), PlanOptions(include=["heel_drop_forceful"]))
 
 
+def test_clinician_step_up_weeks_are_kept_or_refused_with_the_rule():
+    rec, scr = _record(), _screening()
+    plan = build_plan(rec, scr, PlanOptions(step_up_weeks=[10]), created=CREATED)
+    levels = [w.impact_level for w in plan.weeks]
+    assert levels[8] == 1 and levels[9] == 2 and max(levels) == 2  # only where asked
+    assert check_plan(plan) == []
+    # Inside weeks 3-5 after the previous step-up: refused (rule 3; Eriksen 1986).
+    with pytest.raises(PlanRequestRefused) as info:
+        build_plan(rec, scr, PlanOptions(step_up_weeks=[8, 10]))
+    assert info.value.rule == "rule 3" and info.value.value == 10
+    # The next week, before full volume was held: refused (rule 2, common practice).
+    with pytest.raises(PlanRequestRefused) as info:
+        build_plan(rec, scr, PlanOptions(step_up_weeks=[8, 9]))
+    assert info.value.rule == "rule 2"
+    # Beyond the cap: refused (rule 1).
+    with pytest.raises(PlanRequestRefused) as info:
+        build_plan(rec, _screening(max_impact_level=1), PlanOptions(step_up_weeks=[8]))
+    assert info.value.rule == "rule 1"
+    with pytest.raises(InputError, match="step_up_weeks"):
+        PlanOptions(weeks=12, step_up_weeks=[13])
+
+
 def test_included_exercise_is_preferred():
     plan = build_plan(_record(), _screening(), PlanOptions(include=["heel_drop_gentle"]), created=CREATED)
     level2 = {x.exercise_id for w in plan.weeks if w.impact_level == 2 for s in w.sessions for x in s.exercises}

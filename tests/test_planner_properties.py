@@ -144,7 +144,12 @@ def _check_one(record, options) -> None:
     try:
         plan = build_plan(record, screening, options, created="2026-12-01T00:00:00+00:00")
     except PlanRequestRefused as refused:
-        # Only a start level above the cap may be refused here, and it must say so (rule 1).
+        if refused.field == "step_up_weeks":
+            # A step-up week the clinician asked for, refused under the rule it would break.
+            assert refused.rule in ("rule 1", "rule 2", "rule 3", "rule 7")
+            assert refused.value in options.step_up_weeks
+            return
+        # Otherwise only a start level above the cap may be refused, and it must say so (rule 1).
         vertebral = any(f.site == "vertebra" for f in record.fractures)
         name = options.template or ("post_vertebral_fracture" if vertebral else "standard")
         cap = min(screening.max_impact_level, load_template(name).impact["max_level"])
@@ -167,6 +172,7 @@ def seeded_options(seed: int) -> PlanOptions:
         resistance_sessions_per_week=rnd.randint(1, 3),
         balance_sessions_per_week=rnd.choice([None, None, rnd.randint(2, 7)]),
         template=rnd.choice(TEMPLATES),
+        step_up_weeks=sorted(rnd.sample(range(2, 9), rnd.choice([0, 0, 0, 1, 2]))),
     )
 
 

@@ -14,6 +14,7 @@ _OPTION_OF = {
     "weeks": "--weeks", "start_level": "--start-level", "template": "--template",
     "impact_sessions_per_week": "--impact-sessions", "resistance_sessions_per_week": "--resistance-sessions",
     "balance_sessions_per_week": "--balance-sessions", "exclude": "--exclude", "include": "--include",
+    "step_up_weeks": "--step-up-weeks",
 }
 
 
@@ -44,6 +45,8 @@ def register(sub) -> None:
                    help="balance sessions a week, 2-7 (default 3; 4 when falls risk is flagged)")
     p.add_argument("--exclude", nargs="+", default=[], metavar="ID", help="exercise ids to leave out")
     p.add_argument("--include", nargs="+", default=[], metavar="ID", help="exercise ids to prefer")
+    p.add_argument("--step-up-weeks", nargs="+", type=_whole, default=[], metavar="W",
+                   help="weeks where the impact level should rise (refused where a safety rule forbids it)")
     p.add_argument("--table", action="store_true", help="print the weekly summary table instead of JSON")
     p.set_defaults(func=run)
 
@@ -60,6 +63,8 @@ def _options(args):
         kwargs["exclude"] = list(args.exclude)
     if args.include:
         kwargs["include"] = list(args.include)
+    if args.step_up_weeks:
+        kwargs["step_up_weeks"] = list(args.step_up_weeks)
     try:
         return PlanOptions(**kwargs)
     except InputError as exc:
