@@ -171,12 +171,13 @@ def dose_text(ex: PlannedExercise) -> str:
             parts.append(f"{ex.impacts} landings in {ex.bouts} bouts of {per_text}")
         else:
             parts.append(f"{ex.impacts} landings")
+    sets = f"{ex.sets} set{'' if ex.sets == 1 else 's'}" if ex.sets else ""
     if ex.sets and ex.reps:
-        parts.append(f"{ex.sets} sets of {ex.reps}")
+        parts.append(f"{sets} of {ex.reps}")
     elif ex.reps:
         parts.append(f"{ex.reps} repetitions")
-    elif ex.sets:
-        parts.append(f"{ex.sets} sets")
+    elif ex.sets and not ex.impacts:
+        parts.append(sets)
     if ex.minutes:
         parts.append(f"{ex.minutes:g} minutes")
     if not ex.impacts and ex.bouts > 1:
