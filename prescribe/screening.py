@@ -628,7 +628,7 @@ class Engine:
         category[none] = np.where(np.isnan(lowest[none]), "unknown", "normal")
         avoid = (rows.astype(np.float32) @ self._avoid_matrix) > 0.5
         any_effect = {k: (rows & v).any(axis=1)[inverse] for k, v in self._effect_flag.items()}
-        return pd.DataFrame({
+        columns = {
             "patient_id": _text_column(df, "patient_id", n),
             "bone_density_category": category,
             "falls_risk": any_effect["falls_risk"],
@@ -640,9 +640,12 @@ class Engine:
             "flags": _join_rows(rows, [r.id for r in self.rules], LIST_SEP, distinct=True)[inverse],
             "lowest_t_score": lowest,
             "lowest_t_score_site": site,
-            "ruleset_version": pd.Series(self.version, index=df.index, dtype=object),
+            "ruleset_version": np.full(n, self.version, dtype=object),
             "cautions": self._caution_text(rows)[inverse],
-        }, columns=list(RESULT_COLUMNS), index=df.index)
+        }
+        # Text columns stay object arrays (no per-cell type inference on 100k rows).
+        return pd.DataFrame({k: pd.Series(v, index=df.index, dtype=v.dtype, copy=False) for k, v in columns.items()},
+                            columns=list(RESULT_COLUMNS))
 
     def _caution_text(self, rows: np.ndarray) -> np.ndarray:
         """The cautions cell for each distinct fired-rule pattern (standard ones first)."""

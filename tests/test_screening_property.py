@@ -13,7 +13,7 @@ from prescribe.screening import results_from_frame, screen, screen_batch, screen
 
 from strategies import valid_records
 
-SETTINGS = settings(max_examples=80, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+SETTINGS = settings(max_examples=60, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 
 
 @SETTINGS
