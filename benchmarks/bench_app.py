@@ -4,7 +4,8 @@ In one run this script serves (a) a bare one-widget Voila page (a button and a l
 (b) the clinic app, both with the same Voila options, and measures in Debian's chromium:
 
 * page open -> usable: from ``goto`` until the bare button, or the app's "Check and screen"
-  button, is visible (N fresh pages each, alternating so machine load hits both alike);
+  button, is visible (N fresh pages each, alternating so machine load hits both alike, with
+  a pause after each page so a closed page's leftover work does not land in the next);
 * round trip: a bare button click until its label changes, against a start-level change
   until the program chart is redrawn (N each, on one page).
 
@@ -38,6 +39,9 @@ ARGS = ["--no-sandbox", "--disable-gpu", "--disable-dev-shm-usage", "--disable-b
         "--disable-component-update", "--disable-sync", "--no-first-run",
         "--host-resolver-rules=MAP * ~NOTFOUND, EXCLUDE 127.0.0.1"]
 GOAL_OPEN, GOAL_ROUND_TRIP = 1.3, 2.0
+#: Pause after each page [s], so work a closed page's kernel still does (the app's
+#: background loading, culling) does not land in the next measurement of either server.
+SETTLE_S = 6.0
 
 BARE_CELL = """import ipywidgets as w
 button = w.Button(description="Go")
@@ -96,6 +100,7 @@ def open_time(context, url: str, selector: str) -> float:
     page.locator(selector).wait_for(state="visible", timeout=120_000)
     elapsed = time.perf_counter() - t0
     page.close()
+    time.sleep(SETTLE_S)
     return elapsed
 
 

@@ -170,3 +170,15 @@ def test_new_person_clears_the_form_and_the_program(app):
     assert app.intake.inputs["patient_id"].value == ""
     assert "Check the person's details" in app.screening_view.value
     assert list(app.charts.level_line.y) == []
+
+
+def test_a_change_made_while_the_background_loading_redraws_is_not_lost(tmp_db):
+    app = ClinicApp(ClinicSession(store_url=tmp_db), warm_up=True)
+    type_person(app)                      # typing starts the background loading
+    cap = app.session.screening.max_impact_level
+    for level in (cap, 0, cap, 0):
+        app.start_level.value = level
+    app.warm_thread.join(timeout=60)
+    assert not app.warm_thread.is_alive()
+    assert app.session.plan.weeks[0].impact_level == 0 == app.start_level.value
+    assert app.charts.level_line.y[0] == 0

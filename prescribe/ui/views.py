@@ -37,7 +37,9 @@ STYLE = """
 <style>
 .pr-app { max-width: 1100px; font-size: 14px; }
 .pr-app h2 { font-size: 18px; margin: 18px 0 6px 0; border-bottom: 2px solid #1f3b57; color: #1f3b57; }
-.pr-msg { color: #a4161a; font-size: 13px; }
+.pr-msg { color: #a4161a; font-size: 13px; padding-left: 8px; }
+.pr-field-label { line-height: 1.25; padding: 2px 0; }
+.pr-field-label small { color: #4a5561; }
 .pr-cautions { background: #fff8e6; border-left: 4px solid #b35c00; padding: 2px 10px; margin: 6px 0;
                font-size: 12px; line-height: 1.35; }
 .pr-cautions ul { margin: 2px 0; padding-left: 18px; }
@@ -114,7 +116,8 @@ def guarded(action: str) -> Callable:
         @functools.wraps(fn)
         def inner(self, *args, **kwargs):
             try:
-                result = fn(self, *args, **kwargs)
+                with self.lock:  # one action at a time: the warm-up thread may be redrawing
+                    result = fn(self, *args, **kwargs)
             except EngineMissing as exc:
                 self.errors.show(f"{action}: not available yet ({exc}).")
             except PrescribeError as exc:
@@ -132,11 +135,32 @@ def guarded(action: str) -> Callable:
     return wrap
 
 
-def _text_input(spec: form_spec.FieldSpec) -> w.Widget:
-    if spec.kind == "choice":
-        options = ([("- choose -", None)] if spec.required else [("not given", None)]) + [(c, c) for c in spec.choices]
-        return w.Dropdown(options=options, value=None, layout=w.Layout(width="160px"))
-    return w.Text(value="", placeholder=spec.placeholder, layout=w.Layout(width="160px"), continuous_update=True)
+class _Shared:
+    """One Layout and one Style model per look, shared by many widgets.
+
+    Each ipywidget otherwise brings its own Layout and Style models; the intake form has
+    dozens of boxes, and every model costs the browser time when the page opens.
+    """
+
+    def __init__(self) -> None:
+        self._layouts: dict[tuple, w.Layout] = {}
+        self._styles: dict[type, w.Widget] = {}
+
+    def layout(self, **kwargs) -> w.Layout:
+        key = tuple(sorted(kwargs.items()))
+        if key not in self._layouts:
+            self._layouts[key] = w.Layout(**kwargs)
+        return self._layouts[key]
+
+    def style(self, widget_class: type) -> w.Widget:
+        style_class = widget_class.style.klass
+        if style_class not in self._styles:
+            self._styles[style_class] = style_class()
+        return self._styles[style_class]
+
+    def make(self, widget_class: type, width: str | None = None, **kwargs) -> w.Widget:
+        layout = self.layout(width=width) if width else self.layout()
+        return widget_class(layout=layout, style=self.style(widget_class), **kwargs)
 
 
 class IntakeForm:
@@ -144,21 +168,22 @@ class IntakeForm:
 
     def __init__(self, errors: ErrorArea) -> None:
         self.errors = errors
+        self.kit = _Shared()
         self.inputs: dict[str, w.Widget] = {}
         self.messages: dict[str, w.HTML] = {}
         rows = []
         for spec in form_spec.intake_fields():
             if spec.key == "glucocorticoids.mg_per_day":
-                self.gluco_taken = w.Checkbox(value=False, description="Takes oral glucocorticoids",
-                                              indent=False)
+                self.gluco_taken = self.kit.make(w.Checkbox, value=False, indent=False,
+                                                 description="Takes oral glucocorticoids")
                 self.gluco_taken.add_class("pr-intake-glucocorticoids")
                 rows.append(self.gluco_taken)
             rows.append(self._row(spec))
         self.conditions: dict[str, w.Checkbox] = {}
         cond_boxes = []
         for code, meaning in form_spec.condition_choices():
-            box = w.Checkbox(value=False, description=code.replace("_", " "), indent=False,
-                             tooltip=meaning, layout=w.Layout(width="260px"))
+            box = self.kit.make(w.Checkbox, "260px", value=False, description=code.replace("_", " "),
+                                indent=False, tooltip=meaning)
             box.add_class(f"pr-intake-condition-{code}")
             self.conditions[code] = box
             cond_boxes.append(box)
@@ -171,7 +196,7 @@ class IntakeForm:
         self.messages["fractures"] = self._msg("fractures")
         self.widget = w.VBox([
             w.HTML("<p>Every box is checked against the record's limits when you press "
-                   "<b>Check and screen</b>. Numbers are typed, never clipped.</p>"),
+                   "<b>Check and screen</b>. Numbers are typed, never clipped. * = required.</p>"),
             *rows,
             w.HTML(f"<b>Fractures</b> <small>({_esc(form_spec.fracture_fields()[0].help)} Sites: "
                    + _esc(", ".join(s for s, _ in form_spec.fracture_sites())) + ")</small>"),
@@ -183,24 +208,27 @@ class IntakeForm:
         self.widget.add_class("pr-intake")
 
     def _msg(self, key: str) -> w.HTML:
-        msg = w.HTML("")
+        msg = self.kit.make(w.HTML, value="")
         msg.add_class("pr-msg")
         msg.add_class(f"pr-msg-{key.replace('.', '-')}")
         return msg
 
     def _row(self, spec: form_spec.FieldSpec) -> w.Widget:
-        widget = _text_input(spec)
+        if spec.kind == "choice":
+            first = ("- choose -", None) if spec.required else ("not given", None)
+            widget = self.kit.make(w.Dropdown, "160px", options=[first] + [(c, c) for c in spec.choices],
+                                   value=None, tooltip=spec.help)
+        else:
+            widget = self.kit.make(w.Text, "160px", value="", placeholder=spec.placeholder, tooltip=spec.help)
         widget.add_class(f"pr-intake-{spec.key.replace('.', '-')}")
-        widget.description_allow_html = False
-        widget.tooltip = spec.help
         self.inputs[spec.key] = widget
         self.messages[spec.key] = self._msg(spec.key)
         unit = f" ({spec.unit})" if spec.unit else ""
         star = " *" if spec.required else ""
-        label = w.HTML(f'<span title="{_esc(spec.help)}">{_esc(spec.label)}{_esc(unit)}{star}</span>',
-                       layout=w.Layout(width="230px"))
-        help_text = w.HTML(f"<small>{_esc(spec.help)}</small>", layout=w.Layout(width="330px"))
-        return w.HBox([label, widget, help_text, self.messages[spec.key]])
+        label = self.kit.make(w.HTML, "300px", value=(
+            f'<div class="pr-field-label" title="{_esc(spec.help)}">{_esc(spec.label)}{_esc(unit)}{star}'
+            f'<br><small>{_esc(spec.help)}</small></div>'))
+        return w.HBox([label, widget, self.messages[spec.key]], layout=self.kit.layout(align_items="center"))
 
     def add_fracture(self, site: str | None = None, months_ago: Any = "", low_trauma: bool = True) -> None:
         index = len(self.fracture_rows)
@@ -310,6 +338,7 @@ class ClinicApp:
         """
         self.session = session or ClinicSession()
         self.charts = None
+        self.lock = threading.RLock()
         self.errors = ErrorArea()
         self._syncing = False
         self.intake = IntakeForm(self.errors)
@@ -525,21 +554,21 @@ class ClinicApp:
             if dd.value != AUTO:
                 changes[f"{kind}_sessions_per_week"] = dd.value
         self.session.build(**changes)
-        self.refresh()
+        self.refresh(store=False)
 
     @guarded("Swapping the exercise")
     def on_swap(self) -> None:
         if not self.exercise_select.value or not self.replacement_select.value:
             raise InputError.single("swap", None, "an exercise and a replacement chosen from the lists")
         self.session.swap(self.exercise_select.value, self.replacement_select.value)
-        self.refresh()
+        self.refresh(store=False)
 
     @guarded("Leaving the exercise out")
     def on_exclude(self) -> None:
         if not self.exercise_select.value:
             raise InputError.single("exercise", None, "an exercise chosen from the list")
         self.session.exclude(self.exercise_select.value)
-        self.refresh()
+        self.refresh(store=False)
 
     @guarded("Previewing the handout")
     def on_preview(self) -> None:
@@ -571,7 +600,13 @@ class ClinicApp:
     # -- redraw ------------------------------------------------------------------------
     def refresh(self, store: bool = True) -> None:
         """Make every section show the session's current state (``store``: re-read the saved people)."""
+        with self.lock:
+            self._refresh(store)
+
+    def _refresh(self, store: bool) -> None:
         s = self.session
+        if s.plan is not None or self.charts is not None:  # the charts first: what the clinician watches
+            self._ensure_charts().update(s.chart_series())
         self.screening_view.value = screening_html(s.screening)
         self.refusal.value = (f'<div class="pr-refusal-box" role="alert">{_esc(s.refusal)}</div>'
                               if s.refusal else "")
@@ -590,8 +625,6 @@ class ClinicApp:
         finally:
             self._syncing = False
         self._refresh_swap_candidates()
-        if s.plan is not None or self.charts is not None:
-            self._ensure_charts().update(s.chart_series())
         figures = s.dose_figures()
         self.dose.value = ("<p>" + " &middot; ".join(f"{_esc(k.replace('_', ' '))}: <b>{_esc(v)}</b>"
                                                      for k, v in figures.items()) + "</p>") if figures else ""
