@@ -127,21 +127,19 @@ class ClinicSession:
             self.refusal = f"The program cannot be built here: {exc}."
             return False
         options = {**self.options, **changes}
-        try:
+
+        def make():
             plan = build_plan(self.record, self.screening, plan_options(**options))
             for old, new in self.swaps:
                 plan = replace(plan, old, new)
-        except PlanRequestRefused as exc:
-            self.refusal = f"Refused ({exc.rule}): {exc.reason}"
+            problems = list(check(plan, self.screening))
+            if problems:  # the planner's own safety check disagrees: keep the old program
+                raise PlanRequestRefused("check_plan", "; ".join(problems))
+            return plan
+        plan = self._attempt(make)
+        if plan is None:
             return False
-        except InputError as exc:
-            self.refusal = str(exc)
-            return False
-        problems = list(check(plan, self.screening))
-        if problems:  # the planner's own safety check disagrees: keep the old program
-            self.refusal = "Refused: " + "; ".join(problems)
-            return False
-        self.options, self.plan, self.refusal = options, plan, None
+        self.options, self.plan = options, plan
         return True
 
     def swap(self, old_id: str, new_id: str) -> bool:
@@ -150,17 +148,25 @@ class ClinicSession:
             self.refusal = "Build a program first."
             return False
         replace = _api("planner", "replace_exercise")
-        try:
-            plan = replace(self.plan, old_id, new_id)
-        except PlanRequestRefused as exc:
-            self.refusal = f"Refused ({exc.rule}): {exc.reason}"
-            return False
-        except InputError as exc:
-            self.refusal = str(exc)
+        plan = self._attempt(lambda: replace(self.plan, old_id, new_id))
+        if plan is None:
             return False
         self.swaps.append((old_id, new_id))
-        self.plan, self.refusal = plan, None
+        self.plan = plan
         return True
+
+    def _attempt(self, make):
+        """``make()``'s plan, or None with ``refusal`` set to the planner's reason."""
+        try:
+            plan = make()
+        except PlanRequestRefused as exc:
+            self.refusal = f"Refused ({exc.rule}): {exc.reason}"
+            return None
+        except InputError as exc:
+            self.refusal = str(exc)
+            return None
+        self.refusal = None
+        return plan
 
     def exclude(self, exercise_id: str) -> bool:
         """Leave ``exercise_id`` out of the program (the planner picks what replaces it)."""
