@@ -96,7 +96,7 @@ def app_server(tmp_path_factory):
     db_path = folder / "clinic.db"
     env = {**os.environ, "PRESCRIBE_DB": str(db_path)}
     init = subprocess.run([*prescribe_exe(), "db", "init"], env=env, capture_output=True, text=True, timeout=120)
-    if init.returncode != 0 and "invalid choice" not in init.stderr:
+    if init.returncode != 0:
         raise RuntimeError(f"prescribe db init failed: {init.stderr}")
     port = free_port()
     log = folder / "server.log"
