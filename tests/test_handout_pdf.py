@@ -13,6 +13,7 @@ from PIL import Image
 from handout_fixtures import make_plan, planner_plan
 from prescribe.cautions import SHORT_CAUTION, STANDARD_CAUTIONS
 from prescribe.handout import render_pdf
+from prescribe.handout.content import dose_text
 from prescribe.settings import Clinic
 
 DEMO_CLINIC = Clinic("Riverside Bone Health Clinic (demo)", "555-0100")
@@ -72,6 +73,10 @@ def test_pdf_text_holds_cautions_every_exercise_and_the_counts(tmp_path):
         assert name in text, name
     for count in {w.impacts_per_session for w in plan.weeks if w.impacts_per_session}:
         assert f"{count} landings a session" in text
+    # Each exercise's own count (landings, bouts, sets, minutes) as the week table words it.
+    for week in plan.weeks:
+        for ex in (e for sess in week.sessions for e in sess.exercises):
+            assert dose_text(ex) in text, (week.week, ex.exercise_id, dose_text(ex))
     assert "Riverside Bone Health Clinic (demo)" in text and "555-0100" in text
     assert "Clinician page" in text and "Clinician's name" in text
     assert f"week {next(w.week for w in plan.weeks if w.reassessment)}" in text.lower()
