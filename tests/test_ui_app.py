@@ -182,3 +182,13 @@ def test_a_change_made_while_the_background_loading_redraws_is_not_lost(tmp_db):
     assert not app.warm_thread.is_alive()
     assert app.session.plan.weeks[0].impact_level == 0 == app.start_level.value
     assert app.charts.level_line.y[0] == 0
+
+
+def test_the_screenings_and_plans_own_cautions_join_the_standard_ones_in_every_section(app):
+    from prescribe.cautions import STANDARD_CAUTIONS
+    extra = [c for c in app.session.screening.cautions + app.session.plan.cautions if c not in STANDARD_CAUTIONS]
+    assert extra  # the invented person's osteoporosis brings cautions of its own
+    for box in app.caution_boxes:
+        text = html.unescape(box.value)
+        for caution in extra:
+            assert caution in text

@@ -339,6 +339,7 @@ class ClinicApp:
         self.session = session or ClinicSession()
         self.charts = None
         self.lock = threading.RLock()
+        self.caution_boxes: list[w.HTML] = []
         self.errors = ErrorArea()
         self._syncing = False
         self.intake = IntakeForm(self.errors)
@@ -401,9 +402,10 @@ class ClinicApp:
         return self.charts
 
     # -- building ------------------------------------------------------------------
-    @staticmethod
-    def _section(title: str, css: str, children: list) -> w.VBox:
-        box = w.VBox([w.HTML(f"<h2>{_esc(title)}</h2>"), *children, cautions_box()])
+    def _section(self, title: str, css: str, children: list) -> w.VBox:
+        cautions = cautions_box()
+        self.caution_boxes.append(cautions)
+        box = w.VBox([w.HTML(f"<h2>{_esc(title)}</h2>"), *children, cautions])
         box.add_class(css)
         return box
 
@@ -608,6 +610,9 @@ class ClinicApp:
         if s.plan is not None or self.charts is not None:  # the charts first: what the clinician watches
             self._ensure_charts().update(s.chart_series())
         self.screening_view.value = screening_html(s.screening)
+        cautions = _cautions_html(s.cautions)  # the standard ones plus the screening's and the plan's
+        for box in self.caution_boxes:
+            box.value = cautions
         self.refusal.value = (f'<div class="pr-refusal-box" role="alert">{_esc(s.refusal)}</div>'
                               if s.refusal else "")
         self._syncing = True
