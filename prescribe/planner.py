@@ -477,12 +477,17 @@ class _Builder:
                                  f"impact for the first {BALANCE_FIRST_WEEKS} weeks.")
 
     def _balance_set(self, week: int) -> list[_Ex]:
+        """Three balance exercises, sliding toward harder ones every few weeks.
+
+        From the easiest with falls risk, one step further on otherwise; a step every
+        6 weeks (8 with falls risk) (common practice: progressive balance challenge,
+        Giangregorio et al. 2014).
+        """
         stage_len = BALANCE_STAGE_WEEKS_FALLS if self.falls else BALANCE_STAGE_WEEKS
-        stage = (week - 1) // stage_len
-        ceiling = min((1 if self.falls else 2) + stage, 3)
-        fit = [e for e in self.balance_pool if e.balance_rank <= ceiling]
-        fit.sort(key=lambda e: (-e.balance_rank, e.exercise_id not in self.prefer, e.order))
-        return fit[:3]
+        stage = (week - 1) // stage_len + (0 if self.falls else 1)
+        pool = self.balance_pool
+        offset = max(0, min(stage, len(pool) - 3))
+        return sorted(pool[offset:offset + 3], key=lambda e: (e.balance_rank, e.order))
 
     # --- progression of impact work ----------------------------------------------------
     def _volume(self, level: int) -> tuple[int, int, int]:

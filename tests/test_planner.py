@@ -229,11 +229,16 @@ def test_falls_risk_puts_balance_first_and_more_often(falls):
                 assert s.exercises[0].category == "balance"
     # Balance-first phase: no step above low impact in the first 4 weeks (common practice).
     assert all(w.impact_level <= 1 for w in plan.weeks[:4])
-    # Balance difficulty builds from low demand (common practice).
+    # Balance difficulty builds from the easiest exercises (common practice).
     cat = default_catalogue()
-    first = {cat.get(x.exercise_id).balance_demand for s in plan.weeks[0].sessions for x in s.exercises
-             if x.category == "balance"}
-    assert first <= {"none", "low"}
+
+    def demands(week):
+        return sorted(cat.get(x.exercise_id).balance_demand_rank for s in week.sessions for x in s.exercises
+                      if x.category == "balance")
+    easiest = min(e.balance_demand_rank for e in cat.all() if e.category == "balance")
+    assert demands(plan.weeks[0])[0] == easiest and max(demands(plan.weeks[0])) < 3
+    assert sum(demands(plan.weeks[-1])) / len(demands(plan.weeks[-1])) > \
+        sum(demands(plan.weeks[0])) / len(demands(plan.weeks[0]))
     # No high balance-demand impact work (hops, jumps with turns) with falls risk (common practice).
     assert all(cat.get(x.exercise_id).balance_demand != "high" for x in _exercises(plan) if x.category == "impact")
     assert any("falls risk" in c.lower() for c in plan.cautions)
