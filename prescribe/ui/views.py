@@ -39,6 +39,7 @@ STYLE = """
 .pr-app h2 { font-size: 18px; margin: 18px 0 6px 0; border-bottom: 2px solid #1f3b57; color: #1f3b57; }
 .pr-msg { color: #a4161a; font-size: 13px; padding-left: 8px; }
 .pr-field-label { line-height: 1.25; padding: 2px 0; }
+.pr-handout-download a { color: #1f3b57; font-weight: bold; text-decoration: underline; padding: 0 8px; }
 .pr-field-label small { color: #4a5561; }
 .pr-cautions { background: #fff8e6; border-left: 4px solid #b35c00; padding: 2px 10px; margin: 6px 0;
                font-size: 12px; line-height: 1.35; }
