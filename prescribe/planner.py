@@ -436,7 +436,8 @@ class _Builder:
             start -= 1
         if self.options.start_level is not None and start < self.options.start_level:
             self.cautions.append(f"The start level was lowered from {self.options.start_level} to {start}: "
-                                 "too few allowed exercises at that level to load in two directions.")
+                                 "too few allowed exercises at that level (from moderate impact on they must "
+                                 "load the skeleton in at least two directions).")
         top = start
         while top + 1 <= self.cap and self.sets_by_level.get(top + 1):
             top += 1
@@ -472,9 +473,11 @@ class _Builder:
                                    key=lambda e: (e.balance_rank, e.exercise_id not in self.prefer, e.order))
         if self.falls:
             self.sources.append(SRC_GIANG)
+            impact = (f"impact work does not step above low impact in the first {BALANCE_FIRST_WEEKS} weeks"
+                      if self.start <= 1 else
+                      f"the clinician chose to start impact work at level {self.start} ({IMPACT_LABELS[self.start]})")
             self.cautions.append("Falls risk: balance work comes first in each session and is practised "
-                                 "next to a stable support, supervised at first; impact work stays at low "
-                                 f"impact for the first {BALANCE_FIRST_WEEKS} weeks.")
+                                 f"next to a stable support, supervised at first; {impact}.")
 
     def _balance_set(self, week: int) -> list[_Ex]:
         """Three balance exercises, sliding toward harder ones every few weeks.
