@@ -264,3 +264,31 @@ def test_evidence_lists_plan_sources_once_and_adds_only_uncited_method_sources()
     # The fixture cites Turner & Robling 2003 itself, so the handout does not add it again.
     assert sum("Exerc Sport Sci Rev 31(1):45-50" in s for s in listed) == 1
     assert any("J Exp Biol 204:3389-3399" in s for s in listed)  # Robling, Burr & Turner 2001
+
+
+# Invented people covering the planner's main branches (no real records).
+_VARIED_RECORDS = [
+    {"patient_id": "NTC-0101", "age_years": 78, "sex": "female", "body_mass_kg": 52, "height_cm": 155,
+     "t_scores": {"lumbar_spine": -3.4, "total_hip": -2.9},
+     "fractures": [{"site": "vertebra", "months_ago": 14, "low_trauma": True}], "falls_past_year": 2,
+     "timed_up_and_go_s": 14.2, "conditions": ["thoracic_kyphosis"], "pain_score": 3},
+    {"patient_id": "NTC-0102", "age_years": 58, "sex": "male", "body_mass_kg": 84, "height_cm": 178,
+     "t_scores": {"femoral_neck": -1.6}, "fractures": [], "falls_past_year": 0, "conditions": [],
+     "pain_score": 0},
+    {"patient_id": "NTC-0103", "age_years": 71, "sex": "female", "body_mass_kg": 66, "height_cm": 160,
+     "t_scores": {"lumbar_spine": -2.6}, "fractures": [{"site": "wrist", "months_ago": 30, "low_trauma": True}],
+     "falls_past_year": 1, "chair_stand_30s": 8, "conditions": ["knee_osteoarthritis"], "pain_score": 2},
+]
+
+
+@pytest.mark.parametrize("record", _VARIED_RECORDS, ids=lambda r: r["patient_id"])
+def test_handouts_of_varied_real_plans_carry_cautions_and_every_exercise(record):
+    from handout_fixtures import planner_plan
+
+    plan = planner_plan(12, record)
+    html = render_html(plan, clinic=DEMO_CLINIC)
+    assert STANDARD_CAUTIONS[1] in html and record["patient_id"] in html
+    for name in {e.name for w in plan.weeks for s in w.sessions for e in s.exercises}:
+        assert name in html
+    for svg in (charts.impacts_chart_svg(plan), charts.intensity_chart_svg(plan)):
+        _svg(svg)
