@@ -456,7 +456,7 @@ class ClinicApp:
         self.weeks.observe(lambda ch: self.on_option_change(), names="value")
         self.exercise_select = w.Dropdown(options=[], description="Exercise", layout=w.Layout(width="360px"))
         self.exercise_select.add_class("pr-exercise-select")
-        self.exercise_select.observe(lambda ch: self._refresh_swap_candidates(), names="value")
+        self.exercise_select.observe(lambda ch: self.on_exercise_chosen(), names="value")
         self.replacement_select = w.Dropdown(options=[], description="Swap for", layout=w.Layout(width="360px"))
         self.replacement_select.add_class("pr-replacement-select")
         self.swap_button = self._button("Swap", "pr-swap-button")
@@ -558,6 +558,10 @@ class ClinicApp:
                 changes[f"{kind}_sessions_per_week"] = dd.value
         self.session.build(**changes)
         self.refresh(store=False)
+
+    @guarded("Listing the replacements")
+    def on_exercise_chosen(self) -> None:
+        self._refresh_swap_candidates()
 
     @guarded("Swapping the exercise")
     def on_swap(self) -> None:
