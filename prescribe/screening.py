@@ -640,12 +640,13 @@ class Engine:
             "flags": _join_rows(rows, [r.id for r in self.rules], LIST_SEP, distinct=True)[inverse],
             "lowest_t_score": lowest,
             "lowest_t_score_site": site,
-            "ruleset_version": np.full(n, self.version, dtype=object),
+            "ruleset_version": _constant_text(n, self.version),
             "cautions": self._caution_text(rows)[inverse],
         }
         # Text columns stay object arrays (no per-cell type inference on 100k rows).
+        # copy=False: each column keeps its own array (no consolidation copy into 2-D blocks).
         return pd.DataFrame({k: pd.Series(v, index=df.index, dtype=v.dtype, copy=False) for k, v in columns.items()},
-                            columns=list(RESULT_COLUMNS))
+                            columns=list(RESULT_COLUMNS), copy=False)
 
     def _caution_text(self, rows: np.ndarray) -> np.ndarray:
         """The cautions cell for each distinct fired-rule pattern (standard ones first)."""
@@ -674,6 +675,13 @@ class Engine:
                 balance_first=bool(row["balance_first"]), supervision=bool(row["supervision"]),
                 ruleset_version=row["ruleset_version"]))
         return results
+
+
+def _constant_text(n: int, text: str) -> np.ndarray:
+    """An object array of ``n`` references to one string (``np.full`` converts cell by cell)."""
+    out = np.empty(n, dtype=object)
+    out[:] = text
+    return out
 
 
 def _text_or_none(value: Any) -> str | None:
