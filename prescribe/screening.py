@@ -322,6 +322,11 @@ def frame_features(df: pd.DataFrame) -> dict[str, np.ndarray]:
     The frame is expected to hold validated records (:func:`prescribe.batch_io.read_batch_csv`
     or :func:`prescribe.batch_io.records_to_frame`).
     """
+    return _frame_features(df)[0]
+
+
+def _frame_features(df: pd.DataFrame) -> tuple[dict[str, np.ndarray], np.ndarray]:
+    """:func:`frame_features` and the (rows x sites) T-score matrix it read, for reuse."""
     n = len(df)
     missing = [c for c in REQUIRED_COLUMNS if c not in df.columns]
     unknown = [c for c in df.columns if c not in RECORD_COLUMNS]
@@ -363,21 +368,19 @@ def frame_features(df: pd.DataFrame) -> dict[str, np.ndarray]:
     }
     feats.update(_fracture_features(_text_column(df, "fractures", n)))
     feats.update(_condition_features(_text_column(df, "conditions", n)))
-    return feats
+    return feats, tscores
 
 
-def _lowest_site_vec(df: pd.DataFrame) -> tuple[np.ndarray, np.ndarray]:
-    """Lowest T-score and its site per row (first site in T_SCORE_SITES order on ties)."""
-    n = len(df)
+def _lowest_site(tscores: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Each row's lowest T-score and its site (first site in T_SCORE_SITES order on ties; NaN
+    and None when none was measured), from the (rows x sites) T-score matrix."""
+    n = len(tscores)
     if n == 0:
         return np.empty(0), np.empty(0, dtype=object)
-    ts = np.column_stack([_column(df, f"t_score_{s}", n) for s in T_SCORE_SITES])
-    filled = np.where(np.isnan(ts), np.inf, ts)
-    idx = filled.argmin(axis=1)
-    lowest = ts[np.arange(n), idx]
-    sites = np.array(T_SCORE_SITES, dtype=object)[idx]
-    sites[np.isnan(lowest)] = None
-    return lowest, sites
+    idx = np.where(np.isnan(tscores), np.inf, tscores).argmin(axis=1)
+    lowest = tscores[np.arange(n), idx]
+    idx[np.isnan(lowest)] = len(T_SCORE_SITES)
+    return lowest, np.array([*T_SCORE_SITES, None], dtype=object)[idx]
 
 
 # ---------------------------------------------------------------------------
@@ -471,31 +474,33 @@ def _unique_rows(matrix: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
 
 @lru_cache(maxsize=64)
 def _chunk_table(labels: tuple[str, ...], sep: str) -> np.ndarray:
-    """For up to 8 labels: the text of every subset, indexed by its bit pattern, each label
-    preceded by ``sep`` (so chunks join by plain concatenation)."""
-    return np.array(["".join(sep + lab for j, lab in enumerate(labels) if v >> j & 1)
+    """For up to 8 labels: the ``sep``-joined text of every subset, indexed by its bit pattern."""
+    return np.array([sep.join(lab for j, lab in enumerate(labels) if v >> j & 1)
                      for v in range(1 << len(labels))], dtype=object)
 
 
-def _join_rows(rows: np.ndarray, labels: list[str], sep: str, distinct: bool = False) -> np.ndarray:
-    """Per row of a boolean matrix, the labels of its true columns joined by ``sep``, in column order.
+def _join_columns(marks: np.ndarray, labels: list[str], sep: str) -> np.ndarray:
+    """Per column of a (labels x items) boolean matrix, the labels of its true rows joined by
+    ``sep``, in label order.
 
-    Works eight columns at a time through a table of every subset's text, so the cost is a few
-    array operations per eight labels plus one string join per distinct row.  Pass
-    ``distinct=True`` when the rows are already distinct.
+    Works eight labels at a time: the eight marks of an item make a code that picks the chunk's
+    text from a table of every subset's text, and chunks are joined with whole-array string
+    additions on the items whose chunk is not empty.  No Python loop runs over the items.
     """
-    if not distinct:
-        uniq, inverse = _unique_rows(rows)
-        return _join_rows(uniq, labels, sep, distinct=True)[inverse]
-    parts = []
+    n = marks.shape[1]
+    out = _constant_text(n, "")
+    filled = np.zeros(n, dtype=bool)
     for c0 in range(0, len(labels), 8):
         chunk = tuple(labels[c0:c0 + 8])
-        code = rows[:, c0:c0 + len(chunk)].astype(np.int64) @ (1 << np.arange(len(chunk), dtype=np.int64))
-        parts.append(_chunk_table(chunk, sep)[code].tolist())
-    cut = len(sep)
-    joined = [text[cut:] for text in map("".join, zip(*parts))] if parts else [""] * len(rows)
-    out = np.empty(len(rows), dtype=object)
-    out[:] = joined
+        code = np.zeros(n, dtype=np.intp)
+        for j in range(len(chunk)):
+            code |= marks[c0 + j].astype(np.intp) << j
+        some = code != 0
+        first, more = some & ~filled, some & filled
+        text = _chunk_table(chunk, sep)
+        out[first] = text[code[first]]
+        out[more] = out[more] + (sep + text[code[more]])
+        filled |= some
     return out
 
 
@@ -541,7 +546,7 @@ class Engine:
                              for k in ("falls_risk", "refer", "balance_first", "supervision")}
         self._avoid_codes = sorted({a for r in self.rules for a in r.effect.avoid})
         self._avoid_matrix = np.array([[a in r.effect.avoid for a in self._avoid_codes] for r in self.rules],
-                                      dtype=np.float32).reshape(len(self.rules), len(self._avoid_codes))
+                                      dtype=bool).reshape(len(self.rules), len(self._avoid_codes))
         self._caution_idx = np.array([i for i, r in enumerate(self.rules) if r.effect.caution], dtype=np.intp)
 
     # -- shared: fired rules -> outcome ------------------------------------------------
@@ -603,14 +608,33 @@ class Engine:
         return ScreeningResult(**d)
 
     # -- vectorised evaluator ----------------------------------------------------------
-    def fired_matrix(self, df: pd.DataFrame) -> np.ndarray:
-        """Boolean (rows x rules) matrix of fired rules, rules in ``self.rules`` order."""
-        feats = frame_features(df)
-        n = len(df)
+    def _fired_patterns(self, feats: dict[str, np.ndarray], n: int) -> tuple[np.ndarray, np.ndarray]:
+        """Distinct fired-rule patterns (patterns x rules, bool) and each row's pattern index.
+
+        Up to 64 rules, each row's fired rules are packed into one integer (bit ``i`` for
+        ``self.rules[i]``) and the integers are grouped by hashing: no (rows x rules) matrix
+        is built and nothing is sorted.  Patterns come in order of first appearance.
+        """
+        count = len(self.rules)
+        if count > 64:
+            return _unique_rows(self._fired(feats, n))
+        dtype = np.uint32 if count <= 32 else np.uint64
+        keys = np.zeros(n, dtype=dtype)
+        for i, r in enumerate(self.rules):
+            keys |= evaluate_vector(r.when, feats).astype(dtype) << dtype(i)
+        inverse, uniq = pd.factorize(keys)
+        rows = ((np.asarray(uniq, dtype=dtype)[:, None] >> np.arange(count, dtype=dtype)) & 1).astype(bool)
+        return rows, np.asarray(inverse, dtype=np.intp)
+
+    def _fired(self, feats: dict[str, np.ndarray], n: int) -> np.ndarray:
         out = np.zeros((n, len(self.rules)), dtype=bool)
         for i, r in enumerate(self.rules):
             out[:, i] = evaluate_vector(r.when, feats)
         return out
+
+    def fired_matrix(self, df: pd.DataFrame) -> np.ndarray:
+        """Boolean (rows x rules) matrix of fired rules, rules in ``self.rules`` order."""
+        return self._fired(frame_features(df), len(df))
 
     def screen_frame(self, df: pd.DataFrame) -> pd.DataFrame:
         """The vectorised evaluator: one result row per input row (see :func:`screen_batch`).
@@ -619,44 +643,61 @@ class Engine:
         patterns than people), then spread back to the rows.
         """
         n = len(df)
-        fired = self.fired_matrix(df)
-        rows, inverse = _unique_rows(fired)
-        lowest, site = _lowest_site_vec(df)
-        rank = np.where(rows, self._cat_rank, np.int8(-1)).max(axis=1, initial=-1).astype(np.int64)[inverse]
-        category = np.array(["", *CATEGORY_RANK], dtype=object)[rank + 1]
-        none = rank < 0
-        category[none] = np.where(np.isnan(lowest[none]), "unknown", "normal")
-        avoid = (rows.astype(np.float32) @ self._avoid_matrix) > 0.5
-        any_effect = {k: (rows & v).any(axis=1)[inverse] for k, v in self._effect_flag.items()}
+        feats, tscores = _frame_features(df)
+        rows, inverse = self._fired_patterns(feats, n)
+        lowest, site = _lowest_site(tscores)
+        # Effects per distinct pattern, on a (rules x patterns) matrix: each "did any fired rule
+        # say so" is one reduction over the rules that say so.
+        marks = np.ascontiguousarray(rows.T)
+        patterns = marks.shape[1]
+
+        def any_fired(which: np.ndarray) -> np.ndarray:
+            return marks[which].any(axis=0) if which.any() else np.zeros(patterns, dtype=bool)
+
+        rank = np.full(patterns, -1, dtype=np.intp)          # strongest category rank, -1 for none
+        for level in sorted(set(self._cat_rank[self._cat_rank >= 0].tolist())):
+            rank[any_fired(self._cat_rank >= level)] = level
+        cap = np.full(patterns, 3, dtype=np.int64)           # lowest impact cap, 3 when none caps
+        for level in sorted(set(self._caps.tolist()), reverse=True):
+            cap[any_fired(self._caps <= level)] = level
+        names = list(CATEGORY_RANK)
+        code = rank[inverse]
+        none = code < 0
+        code[none] = np.where(np.isnan(lowest[none]), len(names), len(names) + 1)
+        category = np.array([*names, "unknown", "normal"], dtype=object)[code]
+        avoid = np.array([any_fired(self._avoid_matrix[:, j]) for j in range(len(self._avoid_codes))],
+                         dtype=bool).reshape(len(self._avoid_codes), patterns)
+        any_effect = {k: any_fired(v)[inverse] for k, v in self._effect_flag.items()}
         columns = {
             "patient_id": _text_column(df, "patient_id", n),
             "bone_density_category": category,
             "falls_risk": any_effect["falls_risk"],
-            "max_impact_level": np.where(rows, self._caps, np.int8(3)).min(axis=1, initial=3).astype(np.int64)[inverse],
-            "avoid": _join_rows(avoid, self._avoid_codes, LIST_SEP)[inverse],
+            "max_impact_level": cap[inverse],
+            "avoid": _join_columns(avoid, self._avoid_codes, LIST_SEP)[inverse],
             "refer": any_effect["refer"],
             "balance_first": any_effect["balance_first"],
             "supervision": any_effect["supervision"],
-            "flags": _join_rows(rows, [r.id for r in self.rules], LIST_SEP, distinct=True)[inverse],
+            "flags": _join_columns(marks, [r.id for r in self.rules], LIST_SEP)[inverse],
             "lowest_t_score": lowest,
             "lowest_t_score_site": site,
             "ruleset_version": _constant_text(n, self.version),
-            "cautions": self._caution_text(rows)[inverse],
+            "cautions": self._caution_text(marks)[inverse],
         }
         # Text columns stay object arrays (no per-cell type inference on 100k rows).
         # copy=False: each column keeps its own array (no consolidation copy into 2-D blocks).
         return pd.DataFrame({k: pd.Series(v, index=df.index, dtype=v.dtype, copy=False) for k, v in columns.items()},
                             columns=list(RESULT_COLUMNS), copy=False)
 
-    def _caution_text(self, rows: np.ndarray) -> np.ndarray:
-        """The cautions cell for each distinct fired-rule pattern (standard ones first)."""
+    def _caution_text(self, marks: np.ndarray) -> np.ndarray:
+        """The cautions cell for each distinct fired-rule pattern (standard ones first), given the
+        (rules x patterns) matrix of fired rules."""
         texts = [self.rules[i].effect.caution for i in self._caution_idx]
         head = CAUTION_SEP.join(with_standard())
         if len(set(texts)) == len(texts) and not set(texts) & set(with_standard()):
-            extra = _join_rows(rows[:, self._caution_idx], texts, CAUTION_SEP)
+            extra = _join_columns(marks[self._caution_idx], texts, CAUTION_SEP)
             return np.where(extra == "", head, head + CAUTION_SEP + extra)
-        return np.array([CAUTION_SEP.join(with_standard([texts[j] for j in np.flatnonzero(row)]))
-                         for row in rows[:, self._caution_idx]], dtype=object)
+        return np.array([CAUTION_SEP.join(with_standard([texts[j] for j in np.flatnonzero(col)]))
+                         for col in marks[self._caution_idx].T], dtype=object)
 
     def results_from_frame(self, out: pd.DataFrame) -> list[ScreeningResult]:
         """ScreeningResult objects from the frame :meth:`screen_frame` returned."""
