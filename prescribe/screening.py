@@ -219,26 +219,37 @@ def _fracture_aggregates_fast(cells: list[str]) -> tuple[np.ndarray, ...] | None
     """The same aggregates as the slow path, parsing every cell at once on its bytes with numpy.
 
     Handles the plain form ``site:digits[.digits]:y|n``; returns None when any cell has anything
-    else (spaces, exponents, bad items), and the slow path then parses or rejects it.  A number of
-    at most 15 digits is read as an exact integer divided by an exact power of ten, which IEEE
-    division rounds correctly: the same float as Python's ``float(text)``.
+    else (spaces, exponents, bad items, a cell that is not text), and the slow path then parses
+    or rejects it.  A number of at most 15 digits is read as an exact integer divided by an exact
+    power of ten, which IEEE division rounds correctly: the same float as Python's ``float(text)``.
     """
     k = len(cells)
     count, vert = np.zeros(k), np.zeros(k, dtype=bool)
     hip, last = np.zeros(k, dtype=bool), np.full(k, np.nan)
-    filled = np.flatnonzero(np.fromiter(map(len, cells), dtype=np.int64, count=k) > 0)
-    if not len(filled):
+    if not k:
         return count, vert, hip, last
     try:
-        raw = np.frombuffer("\n".join([cells[j] for j in filled]).encode("ascii"), dtype=np.uint8)
-    except UnicodeEncodeError:
+        raw = np.frombuffer("\n".join(cells).encode("ascii"), dtype=np.uint8)
+    except (TypeError, UnicodeEncodeError):
         return None
-    size = raw.size
-    is_sep = (raw == 59) | (raw == 10)                      # ';' between items, newline between cells
-    seps = np.flatnonzero(is_sep)
+    if not raw.size:
+        return count, vert, hip, last
+    seps = np.flatnonzero((raw == 59) | (raw == 10))          # ';' between items, newline between cells
+    newline = raw[seps] == 10
+    if np.count_nonzero(newline) != k - 1 or (raw == 0).any():
+        return None                                         # a newline or NUL inside a cell
     start = np.concatenate(([0], seps + 1))
-    end = np.concatenate((seps, [size]))
-    cell = np.concatenate(([0], np.cumsum(raw[seps] == 10)))  # which filled cell each item is in
+    end = np.concatenate((seps, [raw.size]))
+    cell = np.concatenate(([0], np.cumsum(newline)))        # which cell each segment is in
+    # An empty segment is an empty cell only when both its ends are cell ends.
+    after_nl = np.concatenate(([True], newline))
+    before_nl = np.concatenate((newline, [True]))
+    empty = start == end
+    if (empty & ~(after_nl & before_nl)).any():
+        return None
+    start, end, cell = start[~empty], end[~empty], cell[~empty]
+    if not len(start):
+        return count, vert, hip, last
     colons = np.flatnonzero(raw == 58)
     if len(colons) != 2 * len(start):
         return None
@@ -246,7 +257,7 @@ def _fracture_aggregates_fast(cells: list[str]) -> tuple[np.ndarray, ...] | None
     if not ((c1 > start).all() and (c2 > c1 + 1).all() and (end == c2 + 2).all()):
         return None                                         # each item: site, ':', number, ':', one mark
     mark = raw[c2 + 1]
-    if not np.isin(mark, (ord("y"), ord("n"))).all():
+    if not ((mark == ord("y")) | (mark == ord("n"))).all():
         return None
     site_len = c1 - start
     is_vertebra = np.zeros(len(start), dtype=bool)
@@ -264,35 +275,37 @@ def _fracture_aggregates_fast(cells: list[str]) -> tuple[np.ndarray, ...] | None
             is_hip[cand[same]] = True
     if not known.all():
         return None
-    # The number between the colons: digits with at most one '.'.
+    # The number between the colons: digits with at most one '.', read by Horner's rule one
+    # character position at a time across all items.
     num_len = c2 - c1 - 1
-    item_of = np.repeat(np.arange(len(start)), num_len)
-    pos = np.repeat(c1 + 1 - np.concatenate(([0], np.cumsum(num_len)[:-1])), num_len) + np.arange(num_len.sum())
-    b = raw[pos]
-    digit = (b >= 48) & (b <= 57)
-    dot = b == 46
-    if not (digit | dot).all():
+    mantissa = np.zeros(len(start))
+    n_digits = np.zeros(len(start), dtype=np.int64)
+    n_dots = np.zeros(len(start), dtype=np.int64)
+    frac = np.zeros(len(start), dtype=np.int64)           # digits after the '.'
+    for j in range(int(num_len.max())):
+        inside = num_len > j
+        b = raw[np.minimum(c1 + 1 + j, raw.size - 1)]
+        digit = inside & (b >= 48) & (b <= 57)
+        dot = inside & (b == 46)
+        if (inside & ~(digit | dot)).any():
+            return None
+        mantissa = np.where(digit, mantissa * 10.0 + (b - 48.0), mantissa)
+        n_digits += digit
+        frac += digit & (n_dots > 0)
+        n_dots += dot
+        if (n_digits > _MAX_DIGITS).any() or (n_dots > 1).any():
+            return None
+    if (n_digits < 1).any():
         return None
-    n_digits = np.bincount(item_of, weights=digit, minlength=len(start))
-    if (n_digits < 1).any() or (n_digits > _MAX_DIGITS).any() or \
-            (np.bincount(item_of, weights=dot, minlength=len(start)) > 1).any():
-        return None
-    after = np.cumsum(digit[::-1])[::-1] - digit              # digits after each byte, across all items
-    last_pos = np.cumsum(num_len) - 1
-    right = after - after[last_pos][item_of]                  # ... within its own item
-    mantissa = np.bincount(item_of[digit], weights=(b[digit] - 48) * _POW10[right[digit]], minlength=len(start))
-    frac = np.zeros(len(start), dtype=np.int64)
-    frac[item_of[dot]] = right[dot]
     months = mantissa / _POW10[frac]
     if (months > 1200).any():
         return None
     low = mark == ord("y")
-    m = len(filled)
-    count[filled] = np.bincount(cell, weights=low, minlength=m)
-    vert[filled] = np.bincount(cell, weights=low & is_vertebra, minlength=m) > 0
-    hip[filled] = np.bincount(cell, weights=is_hip, minlength=m) > 0
+    count[:] = np.bincount(cell, weights=low, minlength=k)
+    vert[:] = np.bincount(cell, weights=low & is_vertebra, minlength=k) > 0
+    hip[:] = np.bincount(cell, weights=is_hip, minlength=k) > 0
     first = np.flatnonzero(np.concatenate(([True], cell[1:] != cell[:-1])))
-    last[filled] = np.minimum.reduceat(months, first)
+    last[cell[first]] = np.minimum.reduceat(months, first)
     return count, vert, hip, last
 
 
