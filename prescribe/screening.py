@@ -181,10 +181,15 @@ def _column(df: pd.DataFrame, name: str, n: int) -> np.ndarray:
 
 
 def _text_column(df: pd.DataFrame, name: str, n: int) -> np.ndarray:
-    """A text column as an object array ('' for absent)."""
+    """A text column as an object array ('' for absent); may share the frame's memory (read only)."""
     if name not in df.columns:
         return np.full(n, "", dtype=object)
-    return df[name].to_numpy(dtype=object, na_value="")
+    col = df[name]
+    values = col.to_numpy(dtype=object)
+    # A scan for non-text cells is several times cheaper than the per-cell missing-value check.
+    if pd.api.types.infer_dtype(values, skipna=False) == "string" or not len(values):
+        return values
+    return col.to_numpy(dtype=object, na_value="")
 
 
 def _fracture_aggregates_slow(uniques: list[str]) -> tuple[np.ndarray, ...]:
@@ -338,8 +343,8 @@ def frame_features(df: pd.DataFrame) -> dict[str, np.ndarray]:
     return _frame_features(df)[0]
 
 
-def _frame_features(df: pd.DataFrame) -> tuple[dict[str, np.ndarray], np.ndarray]:
-    """:func:`frame_features` and the (rows x sites) T-score matrix it read, for reuse."""
+def _frame_features(df: pd.DataFrame) -> tuple[dict[str, np.ndarray], list[np.ndarray]]:
+    """:func:`frame_features` and the T-score columns it read (T_SCORE_SITES order), for reuse."""
     n = len(df)
     missing = [c for c in REQUIRED_COLUMNS if c not in df.columns]
     unknown = [c for c in df.columns if c not in RECORD_COLUMNS]
@@ -351,8 +356,10 @@ def _frame_features(df: pd.DataFrame) -> tuple[dict[str, np.ndarray], np.ndarray
     age = _column(df, "age_years", n)
     sex = _text_column(df, "sex", n)
     mass, height = _column(df, "body_mass_kg", n), _column(df, "height_cm", n)
-    tscores = np.column_stack([_column(df, f"t_score_{s}", n) for s in T_SCORE_SITES]) if n else np.empty((0, 3))
-    lowest = np.fmin.reduce(tscores, axis=1) if n else np.empty(0)
+    tscores = [_column(df, f"t_score_{s}", n) for s in T_SCORE_SITES]
+    lowest = tscores[0]
+    for site_scores in tscores[1:]:
+        lowest = np.fmin(lowest, site_scores)   # pairwise: a reduce along a short axis is slow
     norms = chair_stand_norms()
     age_idx = np.clip(np.nan_to_num(age, nan=0.0), 0, 110).astype(np.intp)
     female = sex == "female"
@@ -384,16 +391,16 @@ def _frame_features(df: pd.DataFrame) -> tuple[dict[str, np.ndarray], np.ndarray
     return feats, tscores
 
 
-def _lowest_site(tscores: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+def _lowest_site(tscores: list[np.ndarray], lowest: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Each row's lowest T-score and its site (first site in T_SCORE_SITES order on ties; NaN
-    and None when none was measured), from the (rows x sites) T-score matrix."""
-    n = len(tscores)
-    if n == 0:
-        return np.empty(0), np.empty(0, dtype=object)
-    idx = np.where(np.isnan(tscores), np.inf, tscores).argmin(axis=1)
-    lowest = tscores[np.arange(n), idx]
-    idx[np.isnan(lowest)] = len(T_SCORE_SITES)
-    return lowest, np.array([*T_SCORE_SITES, None], dtype=object)[idx]
+    and None when none was measured), from the per-site T-score columns and their minimum."""
+    idx = np.full(len(lowest), len(T_SCORE_SITES), dtype=np.intp)
+    value = np.full(len(lowest), np.nan)
+    for j in reversed(range(len(T_SCORE_SITES))):
+        first = tscores[j] == lowest                   # NaN never compares equal
+        idx[first] = j
+        value[first] = tscores[j][first]
+    return value, np.array([*T_SCORE_SITES, None], dtype=object)[idx]
 
 
 # ---------------------------------------------------------------------------
@@ -658,7 +665,7 @@ class Engine:
         n = len(df)
         feats, tscores = _frame_features(df)
         rows, inverse = self._fired_patterns(feats, n)
-        lowest, site = _lowest_site(tscores)
+        lowest, site = _lowest_site(tscores, feats["lowest_t_score"])
         # Effects per distinct pattern, on a (rules x patterns) matrix: each "did any fired rule
         # say so" is one reduction over the rules that say so.
         marks = np.ascontiguousarray(rows.T)
@@ -682,7 +689,7 @@ class Engine:
                          dtype=bool).reshape(len(self._avoid_codes), patterns)
         any_effect = {k: any_fired(v)[inverse] for k, v in self._effect_flag.items()}
         columns = {
-            "patient_id": _text_column(df, "patient_id", n),
+            "patient_id": _text_column(df, "patient_id", n).copy(),
             "bone_density_category": category,
             "falls_risk": any_effect["falls_risk"],
             "max_impact_level": cap[inverse],
