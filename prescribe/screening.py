@@ -398,8 +398,8 @@ def _lowest_site(tscores: list[np.ndarray], lowest: np.ndarray) -> tuple[np.ndar
     value = np.full(len(lowest), np.nan)
     for j in reversed(range(len(T_SCORE_SITES))):
         first = tscores[j] == lowest                   # NaN never compares equal
-        idx[first] = j
-        value[first] = tscores[j][first]
+        idx = np.where(first, j, idx)
+        value = np.where(first, tscores[j], value)
     return value, np.array([*T_SCORE_SITES, None], dtype=object)[idx]
 
 
@@ -492,34 +492,56 @@ def _unique_rows(matrix: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     return rows, np.asarray(inverse).reshape(-1)
 
 
-@lru_cache(maxsize=64)
-def _chunk_table(labels: tuple[str, ...], sep: str) -> np.ndarray:
-    """For up to 8 labels: the ``sep``-joined text of every subset, indexed by its bit pattern."""
-    return np.array([sep.join(lab for j, lab in enumerate(labels) if v >> j & 1)
-                     for v in range(1 << len(labels))], dtype=object)
+_CHUNK = 13  # labels per table: 8192 subset texts, built once per label list and kept
+
+
+@lru_cache(maxsize=16)
+def _chunk_table(labels: tuple[str, ...], sep: str, lead: bool) -> np.ndarray:
+    """For up to :data:`_CHUNK` labels: the ``sep``-joined text of every subset, indexed by its
+    bit pattern; with ``lead``, each non-empty text starts with ``sep`` (to append to another)."""
+    texts = [sep.join(lab for j, lab in enumerate(labels) if v >> j & 1) for v in range(1 << len(labels))]
+    return np.array([sep + t if lead and t else t for t in texts], dtype=object)
 
 
 def _join_columns(marks: np.ndarray, labels: list[str], sep: str) -> np.ndarray:
     """Per column of a (labels x items) boolean matrix, the labels of its true rows joined by
     ``sep``, in label order.
 
-    Works eight labels at a time: the eight marks of an item make a code that picks the chunk's
-    text from a table of every subset's text, and chunks are joined with whole-array string
-    additions on the items whose chunk is not empty.  No Python loop runs over the items.
+    Works :data:`_CHUNK` labels at a time: an item's marks for the chunk make a code that picks
+    the chunk's text from a table of every subset's text, and chunks are joined with one
+    whole-array string addition.  Up to 62 labels, the text is made once per distinct code.
+    No Python loop runs over the items.
     """
     n = marks.shape[1]
+    codes = []
+    for c0 in range(0, len(labels), _CHUNK):
+        code = np.zeros(n, dtype=np.int64)
+        for j in range(min(_CHUNK, len(labels) - c0)):
+            code |= marks[c0 + j].astype(np.int64) << j
+        codes.append(code)
+    if len(labels) <= 62 and codes:
+        key = codes[0]
+        for i, code in enumerate(codes[1:], start=1):
+            key = key | (code << (_CHUNK * i))
+        inverse, uniq = pd.factorize(key)
+        if len(uniq) < n:
+            uniq = np.asarray(uniq, dtype=np.int64)
+            codes = [(uniq >> (_CHUNK * i)) & ((1 << _CHUNK) - 1) for i in range(len(codes))]
+            return _join_codes(codes, labels, sep)[inverse]
+    return _join_codes(codes, labels, sep)
+
+
+def _join_codes(codes: list[np.ndarray], labels: list[str], sep: str) -> np.ndarray:
+    """The texts of :func:`_join_columns` from each chunk's subset codes."""
+    n = len(codes[0]) if codes else 0
     out = _constant_text(n, "")
     filled = np.zeros(n, dtype=bool)
-    for c0 in range(0, len(labels), 8):
-        chunk = tuple(labels[c0:c0 + 8])
-        code = np.zeros(n, dtype=np.intp)
-        for j in range(len(chunk)):
-            code |= marks[c0 + j].astype(np.intp) << j
+    for i, code in enumerate(codes):
+        chunk = tuple(labels[_CHUNK * i:_CHUNK * (i + 1)])
         some = code != 0
         first, more = some & ~filled, some & filled
-        text = _chunk_table(chunk, sep)
-        out[first] = text[code[first]]
-        out[more] = out[more] + (sep + text[code[more]])
+        out[first] = _chunk_table(chunk, sep, False)[code[first]]
+        out[more] = out[more] + _chunk_table(chunk, sep, True)[code[more]]
         filled |= some
     return out
 
