@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import datetime as dt
 import re
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Any
 
 from ..cautions import with_standard
@@ -322,6 +322,17 @@ class TableRow:
     weak_window: bool
     columns: tuple[tuple[Cell, ...], ...]  # one entry per COLUMNS
     impacts_per_session: int = 0
+    #: Cells left out because the row above has them word for word ("as above").
+    repeated: tuple[tuple[Cell, ...], ...] = ()
+
+    @property
+    def has_repeats(self) -> bool:
+        return any(self.repeated)
+
+    @property
+    def repeated_labels(self) -> list[str]:
+        """What the row leaves to the row above, as "Strength (Tue, Sat)"."""
+        return [f"{heading} ({cell.days})" for (_, heading), col in zip(COLUMNS, self.repeated) for cell in col]
 
 
 @dataclass(frozen=True)
@@ -341,6 +352,26 @@ def _row(label: str, notes, weak: bool, lines: list[Line], names: bool, impacts:
     return TableRow(label, tuple(notes), weak,
                     tuple(tuple(cells([ln for ln in lines if ln.column == key], names)) for key, _ in COLUMNS),
                     impacts)
+
+
+def without_repeats(rows: list[TableRow]) -> list[TableRow]:
+    """Rows whose cells identical to the row above's (same column, days and doses) move to ``repeated``.
+
+    Each distinct instruction is then printed once, where it starts; later rows say
+    "as above" instead of repeating it.  This keeps the week-by-week tables short to
+    read and quick to print.
+    """
+    out: list[TableRow] = []
+    previous: tuple[tuple[Cell, ...], ...] | None = None
+    for row in rows:
+        if previous is None:
+            out.append(row)
+        else:
+            kept = tuple(tuple(c for c in col if c not in prev) for col, prev in zip(row.columns, previous))
+            same = tuple(tuple(c for c in col if c in prev) for col, prev in zip(row.columns, previous))
+            out.append(replace(row, columns=kept, repeated=same))
+        previous = row.columns
+    return out
 
 
 def routine_rows(plan: Plan) -> list[TableRow]:
@@ -363,7 +394,7 @@ def routine_rows(plan: Plan) -> list[TableRow]:
             columns.append(tuple(Cell(days, tuple((n, "") for n in names)) for days, names in by_days.items()
                                  if names))
         rows.append(TableRow(week_range(first, last), (), False, tuple(columns)))
-    return rows
+    return without_repeats(rows)
 
 
 def week_table(plan: Plan) -> WeekTable:
@@ -379,7 +410,8 @@ def week_table(plan: Plan) -> WeekTable:
     every = [line for line in groups[0].lines if line in common]
     rows = [_row(g.label, g.notes, g.facts.weak_window, [ln for ln in g.lines if ln not in common], False,
                  g.facts.impacts_per_session) for g in groups]
-    return WeekTable(routine_rows(plan), _row("Every week", (), False, every, True) if every else None, rows)
+    return WeekTable(routine_rows(plan), _row("Every week", (), False, every, True) if every else None,
+                     without_repeats(rows))
 
 
 def dose_rows(plan: Plan) -> list[tuple[str, WeekFacts]]:
