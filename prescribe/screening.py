@@ -180,14 +180,17 @@ def _column(df: pd.DataFrame, name: str, n: int) -> np.ndarray:
         raise InputError.single(name, "non-numeric cells", "numbers, or empty when absent") from None
 
 
-def _text_column(df: pd.DataFrame, name: str, n: int) -> np.ndarray:
-    """A text column as an object array ('' for absent); may share the frame's memory (read only)."""
+def _text_column(df: pd.DataFrame, name: str, n: int, raw: bool = False) -> np.ndarray:
+    """A text column as an object array ('' for absent); may share the frame's memory (read only).
+
+    With ``raw``, absent cells are left as they are (NaN or None) for a caller that handles them.
+    """
     if name not in df.columns:
         return np.full(n, "", dtype=object)
     col = df[name]
     values = col.to_numpy(dtype=object)
     # A scan for non-text cells is several times cheaper than the per-cell missing-value check.
-    if pd.api.types.infer_dtype(values, skipna=False) == "string" or not len(values):
+    if raw or not len(values) or pd.api.types.infer_dtype(values, skipna=False) == "string":
         return values
     return col.to_numpy(dtype=object, na_value="")
 
@@ -314,22 +317,25 @@ def _fracture_aggregates_fast(cells: list[str]) -> tuple[np.ndarray, ...] | None
     return count, vert, hip, last
 
 
-def _fracture_features(cells: np.ndarray) -> dict[str, np.ndarray]:
-    """Fracture features for a column of compact fracture cells, parsed in bulk."""
-    texts = cells.tolist()
-    count, vert, hip, last = _fracture_aggregates_fast(texts) or _fracture_aggregates_slow(texts)
+def _fracture_features(df: pd.DataFrame, n: int) -> dict[str, np.ndarray]:
+    """Fracture features for the column of compact fracture cells, parsed in bulk."""
+    aggregates = _fracture_aggregates_fast(_text_column(df, "fractures", n, raw=True).tolist())
+    if aggregates is None:                  # absent or unusual cells: fill, then parse or reject
+        texts = _text_column(df, "fractures", n).tolist()
+        aggregates = _fracture_aggregates_fast(texts) or _fracture_aggregates_slow(texts)
+    count, vert, hip, last = aggregates
     return {"low_trauma_fracture_count": count, "low_trauma_fracture": count > 0,
             "low_trauma_vertebral_fracture": vert, "hip_fracture": hip,
             "months_since_last_fracture": last}
 
 
 def _condition_features(cells: np.ndarray) -> dict[str, np.ndarray]:
-    codes, uniques = pd.factorize(cells)
+    codes, uniques = pd.factorize(cells)        # absent cells (NaN, None) get code -1
     out = {}
     sets = [set(c.strip() for c in text.split(";")) for text in uniques]
     for code in CONDITIONS:
-        present = np.array([code in s for s in sets], dtype=bool)
-        out[f"has_condition:{code}"] = present[codes] if len(uniques) else np.zeros(len(cells), dtype=bool)
+        present = np.array([code in s for s in sets] + [False], dtype=bool)  # [-1]: absent, none
+        out[f"has_condition:{code}"] = present[codes]
     return out
 
 
@@ -386,8 +392,8 @@ def _frame_features(df: pd.DataFrame) -> tuple[dict[str, np.ndarray], list[np.nd
         "glucocorticoid_months": np.where(np.isnan(mg) | np.isnan(months), 0.0, months),
         "pain_score": np.nan_to_num(pain, nan=0.0),
     }
-    feats.update(_fracture_features(_text_column(df, "fractures", n)))
-    feats.update(_condition_features(_text_column(df, "conditions", n)))
+    feats.update(_fracture_features(df, n))
+    feats.update(_condition_features(_text_column(df, "conditions", n, raw=True)))
     return feats, tscores
 
 
@@ -503,15 +509,18 @@ def _chunk_table(labels: tuple[str, ...], sep: str, lead: bool) -> np.ndarray:
     return np.array([sep + t if lead and t else t for t in texts], dtype=object)
 
 
-def _join_columns(marks: np.ndarray, labels: list[str], sep: str) -> np.ndarray:
+def _join_columns(marks: np.ndarray, labels: list[str], sep: str,
+                  finish: Callable[[np.ndarray], np.ndarray] | None = None) -> np.ndarray:
     """Per column of a (labels x items) boolean matrix, the labels of its true rows joined by
     ``sep``, in label order.
 
     Works :data:`_CHUNK` labels at a time: an item's marks for the chunk make a code that picks
     the chunk's text from a table of every subset's text, and chunks are joined with one
     whole-array string addition.  Up to 62 labels, the text is made once per distinct code.
-    No Python loop runs over the items.
+    No Python loop runs over the items.  ``finish``, when given, maps an array of joined texts
+    to the final texts (applied once per distinct text when it can be).
     """
+    finish = finish or (lambda texts: texts)
     n = marks.shape[1]
     codes = []
     for c0 in range(0, len(labels), _CHUNK):
@@ -527,13 +536,12 @@ def _join_columns(marks: np.ndarray, labels: list[str], sep: str) -> np.ndarray:
         if len(uniq) < n:
             uniq = np.asarray(uniq, dtype=np.int64)
             codes = [(uniq >> (_CHUNK * i)) & ((1 << _CHUNK) - 1) for i in range(len(codes))]
-            return _join_codes(codes, labels, sep)[inverse]
-    return _join_codes(codes, labels, sep)
+            return finish(_join_codes(codes, labels, sep, len(uniq)))[inverse]
+    return finish(_join_codes(codes, labels, sep, n))
 
 
-def _join_codes(codes: list[np.ndarray], labels: list[str], sep: str) -> np.ndarray:
-    """The texts of :func:`_join_columns` from each chunk's subset codes."""
-    n = len(codes[0]) if codes else 0
+def _join_codes(codes: list[np.ndarray], labels: list[str], sep: str, n: int) -> np.ndarray:
+    """The ``n`` texts of :func:`_join_columns` from each chunk's subset codes."""
     out = _constant_text(n, "")
     filled = np.zeros(n, dtype=bool)
     for i, code in enumerate(codes):
@@ -736,8 +744,8 @@ class Engine:
         texts = [self.rules[i].effect.caution for i in self._caution_idx]
         head = CAUTION_SEP.join(with_standard())
         if len(set(texts)) == len(texts) and not set(texts) & set(with_standard()):
-            extra = _join_columns(marks[self._caution_idx], texts, CAUTION_SEP)
-            return np.where(extra == "", head, head + CAUTION_SEP + extra)
+            return _join_columns(marks[self._caution_idx], texts, CAUTION_SEP,
+                                 lambda extra: np.where(extra == "", head, head + CAUTION_SEP + extra))
         return np.array([CAUTION_SEP.join(with_standard([texts[j] for j in np.flatnonzero(col)]))
                          for col in marks[self._caution_idx].T], dtype=object)
 
