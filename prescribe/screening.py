@@ -498,13 +498,23 @@ def _unique_rows(matrix: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     return rows, np.asarray(inverse).reshape(-1)
 
 
-_CHUNK = 13  # labels per table: 8192 subset texts, built once per label list and kept
+_TABLE_CHARS = 1 << 20  # about the most text one subset table may hold (characters)
+
+
+def _chunk_size(labels: list[str]) -> int:
+    """Labels per subset table: up to 13 (8192 texts), fewer for long labels so that a table
+    holds at most about :data:`_TABLE_CHARS` characters."""
+    mean = max(1.0, sum(map(len, labels)) / max(1, len(labels)))
+    size = 13
+    while size > 4 and (1 << size) * size / 2 * mean > _TABLE_CHARS:
+        size -= 1
+    return size
 
 
 @lru_cache(maxsize=16)
 def _chunk_table(labels: tuple[str, ...], sep: str, lead: bool) -> np.ndarray:
-    """For up to :data:`_CHUNK` labels: the ``sep``-joined text of every subset, indexed by its
-    bit pattern; with ``lead``, each non-empty text starts with ``sep`` (to append to another)."""
+    """The ``sep``-joined text of every subset of a few labels, indexed by its bit pattern (kept
+    for the next call); with ``lead``, each non-empty text starts with ``sep`` (to append)."""
     texts = [sep.join(lab for j, lab in enumerate(labels) if v >> j & 1) for v in range(1 << len(labels))]
     return np.array([sep + t if lead and t else t for t in texts], dtype=object)
 
@@ -514,38 +524,38 @@ def _join_columns(marks: np.ndarray, labels: list[str], sep: str,
     """Per column of a (labels x items) boolean matrix, the labels of its true rows joined by
     ``sep``, in label order.
 
-    Works :data:`_CHUNK` labels at a time: an item's marks for the chunk make a code that picks
-    the chunk's text from a table of every subset's text, and chunks are joined with one
-    whole-array string addition.  Up to 62 labels, the text is made once per distinct code.
-    No Python loop runs over the items.  ``finish``, when given, maps an array of joined texts
-    to the final texts (applied once per distinct text when it can be).
+    Works a chunk of labels at a time (:func:`_chunk_size`): an item's marks for the chunk make a
+    code that picks the chunk's text from a table of every subset's text, and chunks are joined
+    with one whole-array string addition.  Up to 62 labels, the text is made once per distinct
+    code.  No Python loop runs over the items.  ``finish``, when given, maps an array of joined
+    texts to the final texts (applied once per distinct text when it can be).
     """
     finish = finish or (lambda texts: texts)
-    n = marks.shape[1]
+    n, size = marks.shape[1], _chunk_size(labels)
     codes = []
-    for c0 in range(0, len(labels), _CHUNK):
+    for c0 in range(0, len(labels), size):
         code = np.zeros(n, dtype=np.int64)
-        for j in range(min(_CHUNK, len(labels) - c0)):
+        for j in range(min(size, len(labels) - c0)):
             code |= marks[c0 + j].astype(np.int64) << j
         codes.append(code)
     if len(labels) <= 62 and codes:
         key = codes[0]
         for i, code in enumerate(codes[1:], start=1):
-            key = key | (code << (_CHUNK * i))
+            key = key | (code << (size * i))      # bit of label c is bit c: at most bit 61
         inverse, uniq = pd.factorize(key)
         if len(uniq) < n:
             uniq = np.asarray(uniq, dtype=np.int64)
-            codes = [(uniq >> (_CHUNK * i)) & ((1 << _CHUNK) - 1) for i in range(len(codes))]
-            return finish(_join_codes(codes, labels, sep, len(uniq)))[inverse]
-    return finish(_join_codes(codes, labels, sep, n))
+            codes = [(uniq >> (size * i)) & ((1 << size) - 1) for i in range(len(codes))]
+            return finish(_join_codes(codes, labels, sep, len(uniq), size))[inverse]
+    return finish(_join_codes(codes, labels, sep, n, size))
 
 
-def _join_codes(codes: list[np.ndarray], labels: list[str], sep: str, n: int) -> np.ndarray:
+def _join_codes(codes: list[np.ndarray], labels: list[str], sep: str, n: int, size: int) -> np.ndarray:
     """The ``n`` texts of :func:`_join_columns` from each chunk's subset codes."""
     out = _constant_text(n, "")
     filled = np.zeros(n, dtype=bool)
     for i, code in enumerate(codes):
-        chunk = tuple(labels[_CHUNK * i:_CHUNK * (i + 1)])
+        chunk = tuple(labels[size * i:size * (i + 1)])
         some = code != 0
         first, more = some & ~filled, some & filled
         out[first] = _chunk_table(chunk, sep, False)[code[first]]
