@@ -447,12 +447,19 @@ def compile_scalar(cond: Condition) -> Callable[[dict], bool]:
     raise TypeError(f"not a condition: {cond!r}")
 
 
+_COMPARE = {"<": np.less, "<=": np.less_equal, ">": np.greater, ">=": np.greater_equal,
+            "==": np.equal, "!=": np.not_equal}
+_NAN_FALSE = ("<", "<=", ">", ">=", "==")
+
+
 def evaluate_vector(cond: Condition, feats: dict[str, np.ndarray]) -> np.ndarray:
     """Boolean array, true for rows where ``cond`` holds (vectorised evaluator)."""
     if isinstance(cond, Test):
         v = feats[cond.feature]
         op, value = cond.op, cond.value
         kind = FEATURES[cond.feature].kind
+        if kind == NUMBER and op in _NAN_FALSE:
+            return _COMPARE[op](v, value)           # NaN (absent) compares false: nothing to mask
         absent = np.isnan(v) if kind == NUMBER else np.zeros(len(v), dtype=bool)
         if op == "missing":
             return absent
@@ -462,8 +469,7 @@ def evaluate_vector(cond: Condition, feats: dict[str, np.ndarray]) -> np.ndarray
             return np.isin(v, list(value)) & ~absent
         if kind == BOOL:
             v = v.astype(bool)
-        result = {"<": np.less, "<=": np.less_equal, ">": np.greater, ">=": np.greater_equal,
-                  "==": np.equal, "!=": np.not_equal}[op](v, value)
+        result = _COMPARE[op](v, value)
         return np.asarray(result, dtype=bool) & ~absent
     if isinstance(cond, AllOf):
         out = evaluate_vector(cond.parts[0], feats)
