@@ -219,6 +219,10 @@ def _fracture_aggregates_slow(uniques: list[str]) -> tuple[np.ndarray, ...]:
 
 
 _SITE_BYTES = {site: np.frombuffer(site.encode("ascii"), dtype=np.uint8) for site in FRACTURE_SITES}
+_SITE_WIDTH = max(map(len, FRACTURE_SITES))
+_SITE_WORDS = {site: np.uint64(int.from_bytes(site.encode("ascii"), "little")) for site in FRACTURE_SITES
+               if len(site) <= 8}
+_LOW_BYTES = np.array([(1 << (8 * k)) - 1 for k in range(9)], dtype=np.uint64)  # mask of the k low bytes
 _POW10 = 10.0 ** np.arange(23)
 _MAX_DIGITS = 15  # a mantissa of up to 15 digits is exact in float64
 
@@ -268,19 +272,28 @@ def _fracture_aggregates_fast(cells: list[str]) -> tuple[np.ndarray, ...] | None
     if not ((mark == ord("y")) | (mark == ord("n"))).all():
         return None
     site_len = c1 - start
-    is_vertebra = np.zeros(len(start), dtype=bool)
-    is_hip = np.zeros(len(start), dtype=bool)
-    known = np.zeros(len(start), dtype=bool)
-    for name, code in _SITE_BYTES.items():
-        cand = np.flatnonzero(site_len == len(code))
-        same = np.ones(len(cand), dtype=bool)
-        for j, byte in enumerate(code):
-            same &= raw[start[cand] + j] == byte
-        known[cand[same]] = True
-        if name == "vertebra":
-            is_vertebra[cand[same]] = True
-        elif name == "hip":
-            is_hip[cand[same]] = True
+    if _SITE_WIDTH <= 8:
+        # Each site's bytes as one little-endian word: a stride-1 uint64 view over the text
+        # reads the 8 bytes from any position in one gather; bytes past the site are masked.
+        padded = np.concatenate((raw, np.zeros(8, dtype=np.uint8)))
+        words = np.ndarray(shape=(raw.size,), dtype="<u8", buffer=padded, strides=(1,))
+        word = words[start] & _LOW_BYTES[np.minimum(site_len, 8)]
+        known = np.isin(word, np.array(list(_SITE_WORDS.values()), dtype=np.uint64)) & (site_len <= 8)
+        is_vertebra, is_hip = word == _SITE_WORDS["vertebra"], word == _SITE_WORDS["hip"]
+    else:
+        is_vertebra = np.zeros(len(start), dtype=bool)
+        is_hip = np.zeros(len(start), dtype=bool)
+        known = np.zeros(len(start), dtype=bool)
+        for name, code in _SITE_BYTES.items():
+            cand = np.flatnonzero(site_len == len(code))
+            same = np.ones(len(cand), dtype=bool)
+            for j, byte in enumerate(code):
+                same &= raw[start[cand] + j] == byte
+            known[cand[same]] = True
+            if name == "vertebra":
+                is_vertebra[cand[same]] = True
+            elif name == "hip":
+                is_hip[cand[same]] = True
     if not known.all():
         return None
     # The number between the colons: digits with at most one '.', read by Horner's rule one
