@@ -25,6 +25,7 @@ This module gives decision support only; a licensed clinician reviews every resu
 from __future__ import annotations
 
 import csv
+import re
 from dataclasses import dataclass
 from functools import lru_cache
 from pathlib import Path
@@ -227,6 +228,52 @@ _POW10 = 10.0 ** np.arange(23)
 _MAX_DIGITS = 15  # a mantissa of up to 15 digits is exact in float64
 
 
+_PLAIN_NUMBER = re.compile(r"[0-9]*\.?[0-9]*")
+
+
+def _months_by_value(words: np.ndarray) -> np.ndarray | None:
+    """Months from numbers of at most 8 characters, each given as its bytes in one word.
+
+    A caseload repeats few distinct numbers, so each distinct one is checked and read once with
+    Python's ``float``; None when one is not plain digits with at most one '.'.
+    """
+    inverse, uniq = pd.factorize(words)
+    values = []
+    for word in uniq.tolist():
+        text = int(word).to_bytes(8, "little").rstrip(b"\0").decode("ascii")
+        if not (_PLAIN_NUMBER.fullmatch(text) and 1 <= sum(c.isdigit() for c in text) <= _MAX_DIGITS):
+            return None
+        values.append(float(text))
+    return np.array(values, dtype=np.float64)[inverse]
+
+
+def _months_by_position(raw: np.ndarray, c1: np.ndarray, num_len: np.ndarray) -> np.ndarray | None:
+    """Months from the numbers after each item's first colon, read by Horner's rule one
+    character position at a time across all items (exact for up to 15 digits: an exact
+    integer divided by an exact power of ten rounds like ``float(text)``); None when one is not
+    plain digits with at most one '.'."""
+    mantissa = np.zeros(len(c1))
+    n_digits = np.zeros(len(c1), dtype=np.int64)
+    n_dots = np.zeros(len(c1), dtype=np.int64)
+    frac = np.zeros(len(c1), dtype=np.int64)           # digits after the '.'
+    for j in range(int(num_len.max())):
+        inside = num_len > j
+        b = raw[np.minimum(c1 + 1 + j, raw.size - 1)]
+        digit = inside & (b >= 48) & (b <= 57)
+        dot = inside & (b == 46)
+        if (inside & ~(digit | dot)).any():
+            return None
+        mantissa = np.where(digit, mantissa * 10.0 + (b - 48.0), mantissa)
+        n_digits += digit
+        frac += digit & (n_dots > 0)
+        n_dots += dot
+        if (n_digits > _MAX_DIGITS).any() or (n_dots > 1).any():
+            return None
+    if (n_digits < 1).any():
+        return None
+    return mantissa / _POW10[frac]
+
+
 def _fracture_aggregates_fast(cells: list[str]) -> tuple[np.ndarray, ...] | None:
     """The same aggregates as the slow path, parsing every cell at once on its bytes with numpy.
 
@@ -272,11 +319,11 @@ def _fracture_aggregates_fast(cells: list[str]) -> tuple[np.ndarray, ...] | None
     if not ((mark == ord("y")) | (mark == ord("n"))).all():
         return None
     site_len = c1 - start
+    # The 8 bytes from any position as one little-endian word: a stride-1 uint64 view over the
+    # text reads them in one gather; bytes past the field are masked off.
+    padded = np.concatenate((raw, np.zeros(8, dtype=np.uint8)))
+    words = np.ndarray(shape=(raw.size,), dtype="<u8", buffer=padded, strides=(1,))
     if _SITE_WIDTH <= 8:
-        # Each site's bytes as one little-endian word: a stride-1 uint64 view over the text
-        # reads the 8 bytes from any position in one gather; bytes past the site are masked.
-        padded = np.concatenate((raw, np.zeros(8, dtype=np.uint8)))
-        words = np.ndarray(shape=(raw.size,), dtype="<u8", buffer=padded, strides=(1,))
         word = words[start] & _LOW_BYTES[np.minimum(site_len, 8)]
         known = np.isin(word, np.array(list(_SITE_WORDS.values()), dtype=np.uint64)) & (site_len <= 8)
         is_vertebra, is_hip = word == _SITE_WORDS["vertebra"], word == _SITE_WORDS["hip"]
@@ -296,30 +343,13 @@ def _fracture_aggregates_fast(cells: list[str]) -> tuple[np.ndarray, ...] | None
                 is_hip[cand[same]] = True
     if not known.all():
         return None
-    # The number between the colons: digits with at most one '.', read by Horner's rule one
-    # character position at a time across all items.
+    # The number between the colons: digits with at most one '.'.
     num_len = c2 - c1 - 1
-    mantissa = np.zeros(len(start))
-    n_digits = np.zeros(len(start), dtype=np.int64)
-    n_dots = np.zeros(len(start), dtype=np.int64)
-    frac = np.zeros(len(start), dtype=np.int64)           # digits after the '.'
-    for j in range(int(num_len.max())):
-        inside = num_len > j
-        b = raw[np.minimum(c1 + 1 + j, raw.size - 1)]
-        digit = inside & (b >= 48) & (b <= 57)
-        dot = inside & (b == 46)
-        if (inside & ~(digit | dot)).any():
-            return None
-        mantissa = np.where(digit, mantissa * 10.0 + (b - 48.0), mantissa)
-        n_digits += digit
-        frac += digit & (n_dots > 0)
-        n_dots += dot
-        if (n_digits > _MAX_DIGITS).any() or (n_dots > 1).any():
-            return None
-    if (n_digits < 1).any():
-        return None
-    months = mantissa / _POW10[frac]
-    if (months > 1200).any():
+    if num_len.max() <= 8:
+        months = _months_by_value(words[c1 + 1] & _LOW_BYTES[num_len])
+    else:
+        months = _months_by_position(raw, c1, num_len)
+    if months is None or (months > 1200).any():
         return None
     low = mark == ord("y")
     count[:] = np.bincount(cell, weights=low, minlength=k)
