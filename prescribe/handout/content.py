@@ -329,11 +329,6 @@ class TableRow:
     def has_repeats(self) -> bool:
         return any(self.repeated)
 
-    @property
-    def repeated_labels(self) -> list[str]:
-        """What the row leaves to the row above, as "Strength (Tue, Sat)"."""
-        return [f"{heading} ({cell.days})" for (_, heading), col in zip(COLUMNS, self.repeated) for cell in col]
-
 
 @dataclass(frozen=True)
 class WeekTable:
