@@ -547,7 +547,7 @@ def _unique_rows(matrix: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     return rows, np.asarray(inverse).reshape(-1)
 
 
-_TABLE_CHARS = 1 << 20  # about the most text one subset table may hold (characters)
+_TABLE_CHARS = 3 << 19  # about the most text one subset table may hold (1.5 M characters)
 
 
 def _chunk_size(labels: list[str]) -> int:
