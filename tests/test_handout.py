@@ -7,7 +7,7 @@ import xml.etree.ElementTree as ET
 
 import pytest
 
-from handout_fixtures import make_plan
+from handout_fixtures import make_plan, planner_plan
 from prescribe.cautions import STANDARD_CAUTIONS
 from prescribe.catalogue import default_catalogue
 from prescribe.errors import InputError, PlanFileError
@@ -86,6 +86,21 @@ def test_identical_consecutive_weeks_are_grouped():
         numbers = [int(n) for n in re.findall(r"\d+", label)]
         covered += list(range(numbers[0], numbers[-1] + 1))
     assert covered == list(range(1, 53))
+
+
+def test_week_tables_print_each_instruction_once_and_say_what_stays():
+    table = content.week_table(planner_plan(26))
+    for rows in (table.routine, table.rows):
+        assert not rows[0].has_repeats  # the first row says everything
+        assert any(r.has_repeats for r in rows[1:])
+        for above, row in zip(rows, rows[1:]):
+            for kept, same, kept_above, same_above in zip(row.columns, row.repeated, above.columns,
+                                                          above.repeated or [()] * len(above.columns)):
+                assert not set(kept) & set(same)
+                # What a row leaves out was said in the row above (or left out there too).
+                assert set(same) <= set(kept_above) | set(same_above)
+    html = render_html(planner_plan(26), clinic=DEMO_CLINIC)
+    assert "Other exercises as in the row above." in html and "as in the row above." in html
 
 
 def test_review_weeks_and_next_review_date():
@@ -283,7 +298,6 @@ _VARIED_RECORDS = [
 
 @pytest.mark.parametrize("record", _VARIED_RECORDS, ids=lambda r: r["patient_id"])
 def test_handouts_of_varied_real_plans_carry_cautions_and_every_exercise(record):
-    from handout_fixtures import planner_plan
 
     plan = planner_plan(12, record)
     html = render_html(plan, clinic=DEMO_CLINIC)
