@@ -21,8 +21,6 @@ from __future__ import annotations
 import csv
 import io
 import math
-import os
-import tempfile
 from pathlib import Path
 from typing import Any, Iterable, Iterator
 
@@ -30,6 +28,7 @@ import numpy as np
 import pandas as pd
 
 from .errors import FieldProblem, InputError
+from .fileio import write_atomically
 from .records import CONDITIONS, FRACTURE_SITES, T_SCORE_SITES, PatientRecord, parse_record
 
 #: The batch file's columns, in the order files are written.
@@ -379,14 +378,7 @@ def _atomic_write(path: str | Path, text: str) -> None:
         raise InputError.single("output file", str(path), "a file path, not a folder")
     if not target.parent.exists():
         raise InputError.single("output file", str(path), "a path in an existing folder")
-    fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=target.parent)
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8", newline="") as fh:
-            fh.write(text)
-        os.replace(tmp, target)
-    except BaseException:
-        Path(tmp).unlink(missing_ok=True)
-        raise
+    write_atomically(target, text, "output file")
 
 
 def frame_to_csv_text(df: pd.DataFrame) -> str:

@@ -9,12 +9,11 @@ with a message naming the versions.
 from __future__ import annotations
 
 import json
-import os
 import sys
-import tempfile
 from pathlib import Path
 
 from ..errors import InputError, NotFoundError
+from ..fileio import write_atomically
 from ..records import load_record, read_json_file
 from .output import emit_json
 
@@ -111,7 +110,7 @@ def run_export(args) -> int:
             raise InputError.single("PATIENT_ID", args.patient_id,
                                     f"the id of a person in the store at {store.where}") from None
     if args.out:
-        _write_atomically(Path(args.out), json.dumps(bundle, indent=2, ensure_ascii=False) + "\n")
+        write_atomically(Path(args.out), json.dumps(bundle, indent=2, ensure_ascii=False) + "\n", "--out")
         emit_json({"patient_id": args.patient_id, "out": args.out, "screenings": len(bundle["screenings"]),
                    "program_versions": len(bundle["programs"])})
     else:
@@ -128,17 +127,3 @@ def run_import(args) -> int:
         result["db"] = store.where
     emit_json(result)
     return 0
-
-
-def _write_atomically(path: Path, text: str) -> None:
-    try:
-        fd, tmp = tempfile.mkstemp(prefix=path.name + ".", suffix=".partial", dir=path.parent or ".")
-    except OSError as exc:
-        raise InputError.single("--out", str(path), f"a file in a writable folder ({exc.strerror})") from None
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8") as fh:
-            fh.write(text)
-        os.replace(tmp, path)
-    finally:
-        if os.path.exists(tmp):
-            os.unlink(tmp)

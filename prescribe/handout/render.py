@@ -7,7 +7,6 @@ values that go into print CSS (page headers) are escaped as CSS strings.
 from __future__ import annotations
 
 import os
-import tempfile
 from functools import lru_cache
 from pathlib import Path
 from typing import Any
@@ -18,6 +17,7 @@ from markupsafe import Markup
 from .. import __version__
 from ..cautions import SHORT_CAUTION
 from ..errors import InputError
+from ..fileio import write_atomically
 from ..plan_schema import PLAN_FORMAT_VERSION, Plan, parse_plan
 from ..settings import Clinic, clinic as clinic_from_settings
 from . import charts, content
@@ -127,12 +127,5 @@ def write_handout(plan: Plan | dict, out_path: str | os.PathLike, audience: str 
     directory = out.parent if str(out.parent) else Path(".")
     if not directory.is_dir():
         raise InputError.single("--out", str(out_path), "a file in an existing folder")
-    fd, tmp = tempfile.mkstemp(prefix=".handout-", suffix=suffix, dir=directory)
-    try:
-        with os.fdopen(fd, "wb") as fh:
-            fh.write(data)
-        os.replace(tmp, out)
-    except BaseException:
-        Path(tmp).unlink(missing_ok=True)
-        raise
+    write_atomically(out, data, "--out")
     return out
