@@ -6,6 +6,7 @@ import re
 import xml.etree.ElementTree as ET
 
 import pytest
+from markupsafe import escape
 
 from handout_fixtures import make_plan, planner_plan
 from prescribe.cautions import STANDARD_CAUTIONS
@@ -152,6 +153,7 @@ def test_html_carries_cautions_clinic_exercises_and_counts():
         if week.impacts_per_session:
             assert f"{week.impacts_per_session} landings a session" in html
     assert "counter(pages)" in html and "Clinician page" in html
+    assert "Clinician pages: program for" in html  # the clinician pages' own header
 
 
 def test_clinic_comes_from_settings(monkeypatch):
@@ -232,26 +234,43 @@ def _svg(text: str) -> ET.Element:
     return ET.fromstring(text)  # must be well-formed XML
 
 
+def _bar_count(root: ET.Element) -> int:
+    path = next(p for p in root.iter(f"{SVG}path") if p.get("class") == "bars")
+    return path.get("d").count("Z")
+
+
 def test_impacts_chart_is_accessible_and_hatches_each_weak_window():
     plan = _plan(weeks=30, step_ups=(5, 15), start_level=1)
-    root = _svg(charts.impacts_chart_svg(plan))
+    chart = charts.impacts_chart(plan)
+    root = _svg(chart.svg)
     assert root.find(f"{SVG}title").text.startswith("Landings (impacts) per session")
+    assert chart.title == root.find(f"{SVG}title").text
     assert "Hold weeks (weak window): 7-9, 17-19." in root.find(f"{SVG}desc").text
     hatched = [p for p in root.iter(f"{SVG}path") if p.get("class") == "hatch"]
-    assert len(hatched) == 2 + 1  # two windows and the legend swatch
+    assert len(hatched) == 2  # one per weak window
     assert all(p.get("d").count("M") >= 3 for p in hatched)  # lines, not a colour fill
     texts = [t.text for t in root.iter(f"{SVG}text")]
-    assert "impacts per session" in texts and "week of the program" in texts
-    assert "impact level (0-3)" in texts and "hold" in texts
-    bars = [r for r in root.iter(f"{SVG}rect") if r.find(f"{SVG}title") is not None]
-    assert len(bars) == sum(1 for w in plan.weeks if w.impacts_per_session)
+    assert texts.count("hold") == 2 and "level 1" in texts
+    # What the scales measure and the legend are printed beside the SVG, as page text.
+    assert any("impacts per session" in s for s in chart.scales)
+    assert any("impact level" in s for s in chart.scales) and any("week" in s for s in chart.scales)
+    labels = [label for _, label in chart.legend]
+    assert any("hatched" in label and "hold" in label for label in labels)
+    assert any("step-up" in label for label in labels)
+    swatches = [_svg(swatch) for swatch, _ in chart.legend]
+    assert not any(list(s.iter(f"{SVG}text")) for s in swatches)  # shapes only
+    assert sum(1 for s in swatches for p in s.iter(f"{SVG}path") if p.get("class") == "hatch") == 1
+    assert _bar_count(root) == sum(1 for w in plan.weeks if w.impacts_per_session)
 
 
 def test_intensity_chart_labels_loads_and_handles_plans_without_1rm():
-    root = _svg(charts.intensity_chart_svg(_plan(weeks=12)))
+    chart = charts.intensity_chart(_plan(weeks=12))
+    root = _svg(chart.svg)
     texts = [t.text for t in root.iter(f"{SVG}text")]
-    assert "70%" in texts and "% of one-repetition maximum" in texts
-    assert len(list(root.iter(f"{SVG}circle"))) >= 12
+    assert "70%" in texts and "100%" in texts
+    assert any("% of one-repetition maximum" in s for s in chart.scales)
+    marks = next(p for p in root.iter(f"{SVG}path") if p.get("class") == "marks")
+    assert marks.get("d").count("Z") == 12  # a circle for each week with a load
     data = make_plan(weeks=4)
     for week in data["weeks"]:
         for session in week["sessions"]:
@@ -266,9 +285,18 @@ def test_chart_text_is_escaped():
                                resistance_pct_1rm=None, reassessment=False, phase="<x>", weekly_oi=0,
                                max_session_oi=0, peak_grf_bw=0, directions=(), sessions=1)]
     frame = charts._Frame(facts, "t", "a <b> & c", "d <script>")
-    svg = frame.svg()
+    svg = frame.chart((), ()).svg
     assert "<b>" not in svg and "<script>" not in svg and "a &lt;b&gt; &amp; c" in svg
     _svg(svg)
+
+
+def test_chart_title_scales_and_legend_are_printed_as_escaped_page_text():
+    plan = _plan(weeks=12)
+    html = render_html(plan, clinic=DEMO_CLINIC)
+    chart = charts.impacts_chart(plan)
+    assert f'<h3 class="chart-title">{chart.title}</h3>' in html
+    for _, label in chart.legend:
+        assert str(escape(label)) in html
 
 
 def test_evidence_lists_plan_sources_once_and_adds_only_uncited_method_sources():

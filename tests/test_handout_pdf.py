@@ -64,10 +64,13 @@ def test_pdf_text_holds_cautions_every_exercise_and_the_counts(tmp_path):
     for caution in STANDARD_CAUTIONS:
         assert _flat(caution) in text
     pages = _text(path).split("\f")[:_pages(path)]
-    for number, page in enumerate(pages, start=1):  # the footer of every page
-        assert _flat(SHORT_CAUTION) in _flat(page), f"page {number} has no caution"
-        assert f"page {number} of {len(pages)}" in _flat(page)
-    assert f"page 1 of {_pages(path)}" in text
+    # The person's pages and the clinician's pages are each numbered on their own.
+    clinician = [i for i, page in enumerate(pages) if "Clinician pages: program for" in page]
+    assert clinician and clinician == list(range(clinician[0], len(pages)))
+    for section in (pages[:clinician[0]], pages[clinician[0]:]):
+        for number, page in enumerate(section, start=1):  # the footer of every page
+            assert _flat(SHORT_CAUTION) in _flat(page), f"page {number} has no caution"
+            assert f"page {number} of {len(section)}" in _flat(page)
     names = {e.name for w in plan.weeks for s in w.sessions for e in s.exercises}
     for name in names:
         assert name in text, name

@@ -1,24 +1,32 @@
 """Charts for printed handouts, drawn as plain inline SVG by our own code.
 
 bqplot cannot export an image without a browser, so the handout draws its own:
-dark marks on white, text labels on the axes, hatching (not colour) for the weak
-window after each step-up, a legend, and ``<title>``/``<desc>`` for screen readers.
-Every piece of text is escaped.
+dark marks on white, numbers on the axes, hatching (not colour) for the weak window
+after each step-up, and ``<title>``/``<desc>`` for screen readers.  Every piece of
+text is escaped.
+
+The chart's title, the names of its scales and its legend are returned beside the
+SVG (:class:`Chart`) and printed by the template as ordinary text: WeasyPrint lays
+out SVG text one letter at a time, so a sentence inside an SVG costs as much as a
+paragraph of the page, while the same words as HTML cost one line each.
 """
 
 from __future__ import annotations
 
 import math
+from dataclasses import dataclass
 from html import escape
 from typing import Sequence
 
 from ..plan_schema import Plan
 from .content import WeekFacts, week_facts
 
-WIDTH, HEIGHT = 760, 420
-LEFT, RIGHT, TOP, BOTTOM = 70, 80, 58, 130
+WIDTH, HEIGHT = 760, 330
+LEFT, RIGHT, TOP, BOTTOM = 60, 40, 30, 36
 FONT = "DejaVu Sans, Liberation Sans, Arial, sans-serif"
 INK, GRID, BAR = "#000000", "#bdbdbd", "#8c8c8c"
+#: Tick-label size in SVG units: the chart prints about 140 mm wide, so 16 units is about 8.5 pt.
+TICK = 16
 
 
 def _coerce(plan) -> Plan:
@@ -47,11 +55,11 @@ def _week_tick_every(n: int) -> int:
     return math.ceil(n / 8)
 
 
-def _text(x: float, y: float, text: str, size: int = 13, anchor: str = "middle", weight: str = "normal",
+def _text(x: float, y: float, text: str, size: int = TICK, anchor: str = "middle", weight: str = "normal",
           rotate: float | None = None) -> str:
-    # Size 13, centred, normal weight and black ink are inherited from the <svg> element;
+    # Tick size, centred, normal weight and black ink are inherited from the <svg> element;
     # only other values are written: fewer attributes parse and cascade faster in the PDF.
-    attrs = "".join((f' font-size="{size}"' if size != 13 else "",
+    attrs = "".join((f' font-size="{size}"' if size != TICK else "",
                      f' text-anchor="{anchor}"' if anchor != "middle" else "",
                      f' font-weight="{weight}"' if weight != "normal" else "",
                      f' transform="rotate({rotate:g} {x:.1f} {y:.1f})"' if rotate is not None else ""))
@@ -91,22 +99,40 @@ def _span_text(facts: list[WeekFacts], runs: list[tuple[int, int]]) -> str:
     return ", ".join(f"{facts[a].week}-{facts[b].week}" if a != b else f"{facts[a].week}" for a, b in runs)
 
 
+@dataclass(frozen=True)
+class Chart:
+    """One chart: its title, the SVG, what its scales measure, and its legend.
+
+    ``legend`` holds (swatch, label) pairs; a swatch is a small text-free SVG.
+    """
+
+    title: str
+    svg: str
+    scales: tuple[str, ...]
+    legend: tuple[tuple[str, str], ...]
+
+
+def swatch(body: str) -> str:
+    """A 26 x 14 legend swatch as its own small SVG (shapes only, no text)."""
+    return (f'<svg xmlns="http://www.w3.org/2000/svg" class="swatch" viewBox="0 0 26 14" width="26" '
+            f'height="14" aria-hidden="true">{body}</svg>')
+
+
 class _Frame:
-    """The shared frame: week axis, weak-window hatching, step-up marks, legend."""
+    """The shared frame: week axis, weak-window hatching, step-up marks, legend items."""
 
     def __init__(self, facts: list[WeekFacts], chart_id: str, title: str, desc: str):
-        self.facts, self.id = facts, chart_id
+        self.facts, self.id, self.title = facts, chart_id, title
         self.n = len(facts)
         self.pw, self.ph = WIDTH - LEFT - RIGHT, HEIGHT - TOP - BOTTOM
         self.band = self.pw / max(self.n, 1)
         self.parts = [
             f'<svg xmlns="http://www.w3.org/2000/svg" class="chart" viewBox="0 0 {WIDTH} {HEIGHT}" '
             f'width="100%" role="img" aria-labelledby="{chart_id}-title {chart_id}-desc" '
-            f'font-family="{FONT}" font-size="13" text-anchor="middle" font-weight="normal" fill="{INK}">',
+            f'font-family="{FONT}" font-size="{TICK}" text-anchor="middle" font-weight="normal" fill="{INK}">',
             f'<title id="{chart_id}-title">{escape(title)}</title>',
             f'<desc id="{chart_id}-desc">{escape(desc)}</desc>',
             f'<rect x="0" y="0" width="{WIDTH}" height="{HEIGHT}" fill="#ffffff"/>',
-            _text(WIDTH / 2, 24, title, size=17, weight="bold"),
         ]
 
     def x(self, i: int) -> float:
@@ -119,23 +145,22 @@ class _Frame:
         for a, b in _runs([f.weak_window for f in self.facts]):
             x0, x1 = self.x(a), self.x(b + 1)
             self.parts.append(hatch(x0, TOP, x1 - x0, self.ph))
-            if x1 - x0 >= 34:
-                self.parts.append(f'<rect x="{(x0 + x1) / 2 - 17:.1f}" y="{TOP + 3}" width="34" height="16" '
+            if x1 - x0 >= 40:
+                self.parts.append(f'<rect x="{(x0 + x1) / 2 - 20:.1f}" y="{TOP + 3}" width="40" height="19" '
                                   f'fill="#ffffff"/>')
-                self.parts.append(_text((x0 + x1) / 2, TOP + 15, "hold", size=11, weight="bold"))
+                self.parts.append(_text((x0 + x1) / 2, TOP + 17, "hold", size=14, weight="bold"))
 
-    def left_axis(self, top: float, step: float, label: str, fmt=lambda v: f"{v:g}") -> None:
+    def left_axis(self, top: float, step: float, fmt=lambda v: f"{v:g}") -> None:
         v, grid, labels = 0.0, [], []
         while v <= top + 1e-9:
             yy = self.y(v, top)
             grid.append(f"M{LEFT},{yy:.1f}H{LEFT + self.pw}")
-            labels.append(_text(LEFT - 8, yy + 4, fmt(v), anchor="end"))
+            labels.append(_text(LEFT - 8, yy + 5, fmt(v), anchor="end"))
             v += step
         # All grid lines as one path: one element to parse and draw instead of one per line.
         self.parts.append(f'<path class="grid" d="{"".join(grid)}" stroke="{GRID}" stroke-width="0.8" '
                           f'fill="none"/>')
         self.parts.extend(labels)
-        self.parts.append(_text(20, TOP + self.ph / 2, label, size=13, rotate=-90))
 
     def week_axis(self) -> None:
         base = TOP + self.ph
@@ -149,9 +174,8 @@ class _Frame:
             if f.week == 1 or f.week % every == 0:
                 cx = self.x(i) + self.band / 2
                 ticks.append(f"M{cx:.1f},{base}V{base + 5}")
-                self.parts.append(_text(cx, base + 20, str(f.week)))
+                self.parts.append(_text(cx, base + 22, str(f.week)))
         self.parts.append(f'<path class="ticks" d="{"".join(ticks)}" stroke="{INK}" fill="none"/>')
-        self.parts.append(_text(LEFT + self.pw / 2, base + 40, "week of the program"))
 
     def step_marks(self) -> None:
         for i, f in enumerate(self.facts):
@@ -160,28 +184,17 @@ class _Frame:
                 self.parts.append(f'<path d="M{cx - 7:.1f},{TOP - 4} L{cx + 7:.1f},{TOP - 4} L{cx:.1f},'
                                   f'{TOP - 16} Z" fill="{INK}"><title>step-up in week {f.week}</title></path>')
 
-    def legend(self, items: list[tuple[str, str]]) -> None:
-        """Items of (swatch svg at 0,0 of a 26x14 box, label), laid out in one or two rows."""
-        x, y = LEFT, TOP + self.ph + 64
-        for swatch, label in items:
-            width = 34 + 7.0 * len(label)
-            if x + width > WIDTH - 10:
-                x, y = LEFT, y + 22
-            self.parts.append(f'<g transform="translate({x:.1f} {y - 11})">{swatch}</g>')
-            self.parts.append(_text(x + 32, y + 1, label, size=12, anchor="start"))
-            x += width + 14
-
     def weak_legend(self) -> list[tuple[str, str]]:
         items = []
         if any(f.weak_window for f in self.facts):
-            items.append((hatch(0, 0, 26, 14, spacing=6),
-                          "hatched = hold: bone briefly weaker (weeks 3-5 after a step-up)"))
+            items.append((swatch(hatch(0, 0, 26, 14, spacing=6)),
+                          "hatched, marked \u201chold\u201d: bone is briefly weaker (weeks 3-5 after a step-up)"))
         if any(f.step_up for f in self.facts):
-            items.append((f'<path d="M6,14 L20,14 L13,2 Z" fill="{INK}"/>', "step-up in impact level"))
+            items.append((swatch(f'<path d="M6,14 L20,14 L13,2 Z" fill="{INK}"/>'), "step-up in impact level"))
         return items
 
-    def svg(self) -> str:
-        return "".join(self.parts) + "</svg>"
+    def chart(self, scales: Sequence[str], legend: Sequence[tuple[str, str]]) -> Chart:
+        return Chart(self.title, "".join(self.parts) + "</svg>", tuple(scales), tuple(legend))
 
 
 def _describe_weeks(facts: list[WeekFacts]) -> str:
@@ -195,7 +208,10 @@ def _describe_weeks(facts: list[WeekFacts]) -> str:
     return " ".join(text)
 
 
-def impacts_chart_svg(plan) -> str:
+WEEK_SCALE = "Along the bottom: week of the program."
+
+
+def impacts_chart(plan) -> Chart:
     """Impacts per session (bars) and impact level (stepped line) week by week.
 
     Weeks in the weak window (weeks 3-5 after a step-up: Eriksen 1986, Endocr Rev
@@ -210,22 +226,24 @@ def impacts_chart_svg(plan) -> str:
     frame = _Frame(facts, "chart-impacts", "Landings (impacts) per session, week by week", desc)
     top, step = _nice_max(max(f.impacts_per_session for f in facts) * 1.05)
     frame.weak_windows()
-    frame.left_axis(top, step, "impacts per session")
+    frame.left_axis(top, step)
     bar_w = frame.band * 0.62
+    # All bars as one path: one element to parse and paint instead of one per week.
+    bars = []
     for i, f in enumerate(facts):
         if f.impacts_per_session:
             yy = frame.y(f.impacts_per_session, top)
-            frame.parts.append(
-                f'<rect x="{frame.x(i) + (frame.band - bar_w) / 2:.1f}" y="{yy:.1f}" width="{bar_w:.1f}" '
-                f'height="{TOP + frame.ph - yy:.1f}" fill="{BAR}" stroke="{INK}" stroke-width="0.8">'
-                f'<title>week {f.week}: {f.impacts_per_session} impacts per session</title></rect>')
+            bars.append(f"M{frame.x(i) + (frame.band - bar_w) / 2:.1f},{TOP + frame.ph:.0f}V{yy:.1f}"
+                        f"h{bar_w:.1f}V{TOP + frame.ph:.0f}Z")
+    if bars:
+        frame.parts.append(f'<path class="bars" d="{"".join(bars)}" fill="{BAR}" stroke="{INK}" '
+                           f'stroke-width="0.8"/>')
     # Impact level on the right-hand axis, 0-3, as a stepped line with square markers.
     for level in range(4):
         yy = frame.y(level, 3)
-        frame.parts.append(_text(LEFT + frame.pw + 10, yy + 4, str(level), anchor="start"))
+        frame.parts.append(_text(LEFT + frame.pw + 10, yy + 5, str(level), anchor="start"))
     frame.parts.append(f'<line x1="{LEFT + frame.pw}" y1="{TOP}" x2="{LEFT + frame.pw}" '
                        f'y2="{TOP + frame.ph}" stroke="{INK}" stroke-width="1.5"/>')
-    frame.parts.append(_text(WIDTH - 22, TOP + frame.ph / 2, "impact level (0-3)", rotate=90))
     points = []
     for i, f in enumerate(facts):
         yy = frame.y(f.impact_level, 3)
@@ -239,20 +257,20 @@ def impacts_chart_svg(plan) -> str:
             cx, yy = frame.x(i) + frame.band / 2, frame.y(f.impact_level, 3)
             frame.parts.append(f'<rect x="{cx - 5:.1f}" y="{yy - 5:.1f}" width="10" height="10" '
                                f'fill="#ffffff" stroke="{INK}" stroke-width="2"/>')
-            frame.parts.append(_text(cx + 8, yy - 9, f"level {f.impact_level}", size=12,
+            frame.parts.append(_text(cx + 8, yy - 9, f"level {f.impact_level}", size=14,
                                      anchor="start", weight="bold"))
     frame.week_axis()
     frame.step_marks()
-    frame.legend([
-        (f'<rect x="4" y="0" width="18" height="14" fill="{BAR}" stroke="{INK}"/>', "impacts per session"),
-        (f'<line x1="0" y1="7" x2="26" y2="7" stroke="{INK}" stroke-width="3" stroke-dasharray="9 4"/>',
-         "impact level (right-hand scale)"),
-        *frame.weak_legend(),
-    ])
-    return frame.svg()
+    return frame.chart(
+        ("Left scale: impacts per session.", "Right scale: impact level, 0 to 3.", WEEK_SCALE),
+        [(swatch(f'<rect x="4" y="0" width="18" height="14" fill="{BAR}" stroke="{INK}"/>'),
+          "grey bar: impacts per session"),
+         (swatch(f'<line x1="0" y1="7" x2="26" y2="7" stroke="{INK}" stroke-width="3" stroke-dasharray="9 4"/>'),
+          "dashed line: impact level (right-hand scale)"),
+         *frame.weak_legend()])
 
 
-def intensity_chart_svg(plan) -> str:
+def intensity_chart(plan) -> Chart:
     """Resistance intensity (% of one-repetition maximum) week by week.
 
     Weeks without a % 1RM load leave a gap; weak windows are hatched as on the
@@ -269,7 +287,7 @@ def intensity_chart_svg(plan) -> str:
     frame = _Frame(facts, "chart-intensity", "Strength exercise load, week by week", desc)
     frame.weak_windows()
     top = 100.0
-    frame.left_axis(top, 20, "% of one-repetition maximum", fmt=lambda v: f"{v:g}%")
+    frame.left_axis(top, 20, fmt=lambda v: f"{v:g}%")
     if not known:
         frame.parts.append(_text(LEFT + frame.pw / 2, TOP + frame.ph / 2,
                                  "No strength load given as % 1RM in this program.", size=15))
@@ -283,20 +301,33 @@ def intensity_chart_svg(plan) -> str:
             run = []
     for seg in segments:
         frame.parts.append(f'<polyline points="{" ".join(seg)}" fill="none" stroke="{INK}" stroke-width="3"/>')
+    # The weekly markers as one path of circles (two arcs each), drawn over the line.
+    marks = []
     for i, v in enumerate(values):
         if v is None:
             continue
         cx, yy = frame.x(i) + frame.band / 2, frame.y(v, top)
-        frame.parts.append(f'<circle cx="{cx:.1f}" cy="{yy:.1f}" r="4" fill="#ffffff" stroke="{INK}" '
-                           f'stroke-width="2"><title>week {facts[i].week}: {v:g}% 1RM</title></circle>')
+        marks.append(f"M{cx - 4:.1f},{yy:.1f}a4,4 0 1,0 8,0a4,4 0 1,0 -8,0Z")
         if i == 0 or values[i - 1] != v:
-            frame.parts.append(_text(cx, yy - 10, f"{v:g}%", size=12, weight="bold"))
+            frame.parts.append(_text(cx, yy - 10, f"{v:g}%", size=14, weight="bold"))
+    if marks:
+        frame.parts.append(f'<path class="marks" d="{"".join(marks)}" fill="#ffffff" stroke="{INK}" '
+                           f'stroke-width="2"/>')
     frame.week_axis()
     frame.step_marks()
-    frame.legend([
-        (f'<g><line x1="0" y1="7" x2="26" y2="7" stroke="{INK}" stroke-width="3"/>'
-         f'<circle cx="13" cy="7" r="4" fill="#ffffff" stroke="{INK}" stroke-width="2"/></g>',
-         "load (% 1RM)"),
-        *frame.weak_legend(),
-    ])
-    return frame.svg()
+    return frame.chart(
+        ("Left scale: % of one-repetition maximum (1RM).", WEEK_SCALE),
+        [(swatch(f'<line x1="0" y1="7" x2="26" y2="7" stroke="{INK}" stroke-width="3"/>'
+                 f'<circle cx="13" cy="7" r="4" fill="#ffffff" stroke="{INK}" stroke-width="2"/>'),
+          "line with circles: load (% 1RM)"),
+         *frame.weak_legend()])
+
+
+def impacts_chart_svg(plan) -> str:
+    """The impacts chart's SVG alone (see :func:`impacts_chart`)."""
+    return impacts_chart(plan).svg
+
+
+def intensity_chart_svg(plan) -> str:
+    """The intensity chart's SVG alone (see :func:`intensity_chart`)."""
+    return intensity_chart(plan).svg

@@ -20,7 +20,7 @@ from ..errors import InputError
 from ..fileio import write_atomically
 from ..plan_schema import PLAN_FORMAT_VERSION, Plan, parse_plan
 from ..settings import Clinic, clinic as clinic_from_settings
-from . import charts, content
+from . import charts, content, pdf
 
 AUDIENCES = ("person", "clinician", "both")
 #: Paper names as the command line takes them -> CSS page size.
@@ -75,8 +75,7 @@ def handout_context(plan: Plan, audience: str, paper: str, clinic: Clinic) -> di
         "goals": content.goals(plan), "glance": content.at_a_glance(plan, facts),
         "next_review": content.next_review(plan), "reviews": content.review_weeks(plan),
         "table": content.week_table(plan), "dose_rows": content.dose_rows(plan), "guides": content.exercise_guides(plan), "bouts": content.bout_advice(plan),
-        "impacts_svg": Markup(charts.impacts_chart_svg(plan)),
-        "intensity_svg": Markup(charts.intensity_chart_svg(plan)),
+        "impacts_chart": charts.impacts_chart(plan), "intensity_chart": charts.intensity_chart(plan),
         "screening": plan.screening, "level_labels": content.LEVEL_LABELS,
         "evidence": content.evidence(plan), "if_hard_general": content.IF_HARD_GENERAL,
         "versions": [("Tool version (plan)", plan.tool_version), ("Rule-set version", plan.ruleset_version),
@@ -102,12 +101,19 @@ def render_html(plan: Plan | dict, audience: str = "both", paper: str = "a4",
 
 
 def render_pdf(plan: Plan | dict, audience: str = "both", paper: str = "a4",
-               clinic: Clinic | None = None) -> bytes:
-    """The handout as PDF bytes (WeasyPrint), with page numbers and the short caution on every page."""
-    html = render_html(plan, audience=audience, paper=paper, clinic=clinic)
-    from weasyprint import HTML  # imported here: it takes about half a second
+               clinic: Clinic | None = None, parallel: bool | None = None) -> bytes:
+    """The handout as PDF bytes (WeasyPrint), with page numbers and the short caution on every page.
 
-    return HTML(string=html, base_url=str(TEMPLATES)).write_pdf()
+    For both audiences the person's pages and the clinician's pages are two documents,
+    each numbered on its own, joined into one file; they are laid out side by side
+    when the machine allows (``parallel`` None decides; see :mod:`prescribe.handout.pdf`).
+    """
+    check_options(audience, paper)
+    plan = as_plan(plan)
+    clinic = clinic if clinic is not None else clinic_from_settings()
+    audiences = ("person", "clinician") if audience == "both" else (audience,)
+    htmls = [render_html(plan, audience=a, paper=paper, clinic=clinic) for a in audiences]
+    return pdf.join_pdfs(pdf.render_parts(htmls, base_url=str(TEMPLATES), parallel=parallel))
 
 
 def write_handout(plan: Plan | dict, out_path: str | os.PathLike, audience: str = "both",

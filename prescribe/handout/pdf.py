@@ -1,0 +1,107 @@
+"""HTML to PDF through WeasyPrint, and a handout of several parts joined into one file.
+
+A handout for both audiences is two documents printed back to back: the person's
+pages and the clinician's pages, each numbered on its own ("page 2 of 9",
+"clinician page 1 of 4"), because the person takes one stack home and the clinic
+files the other.  Being separate documents, the two parts can be laid out at the
+same time: when the machine has a second processor and this process runs a single
+thread, the clinician's part is rendered in a forked child while this process
+renders the person's part.  Otherwise (one processor, a threaded host such as a
+notebook kernel, no ``fork`` on the platform, or ``PRESCRIBE_PDF_PARALLEL=0``) the
+parts are rendered one after the other.  Either way the same pages come out; a child
+that fails for any reason is not trusted and its part is rendered here instead.
+"""
+
+from __future__ import annotations
+
+import io
+import multiprocessing
+import os
+import threading
+import traceback
+from typing import Callable, Sequence
+
+#: Set to 0 to render the parts of a handout one after the other.
+PARALLEL_ENV = "PRESCRIBE_PDF_PARALLEL"
+
+
+def html_to_pdf(html: str, base_url: str | None = None) -> bytes:
+    """One HTML document as PDF bytes (WeasyPrint)."""
+    from weasyprint import HTML  # imported here: it takes about half a second
+
+    return HTML(string=html, base_url=base_url).write_pdf()
+
+
+def can_fork() -> bool:
+    """Whether a part may be rendered in a forked child (see the module's docstring)."""
+    if os.environ.get(PARALLEL_ENV, "1").strip() in ("0", "no", "false", "off"):
+        return False
+    if "fork" not in multiprocessing.get_all_start_methods():
+        return False
+    # Forking a process that runs other threads can copy a lock another thread holds.
+    return threading.active_count() == 1 and (os.cpu_count() or 1) > 1
+
+
+def _child(html: str, base_url: str | None, conn) -> None:
+    try:
+        conn.send(("ok", html_to_pdf(html, base_url)))
+    except BaseException:  # noqa: BLE001 - reported to the parent, which renders the part itself
+        conn.send(("error", traceback.format_exc()))
+    finally:
+        conn.close()
+
+
+def _start_child(html: str, base_url: str | None) -> Callable[[], bytes | None]:
+    """Render ``html`` in a forked child; the returned call waits and gives the bytes (None on failure)."""
+    ctx = multiprocessing.get_context("fork")
+    receive, send = ctx.Pipe(duplex=False)
+    process = ctx.Process(target=_child, args=(html, base_url, send), daemon=True)
+    process.start()
+    send.close()
+
+    def result() -> bytes | None:
+        try:
+            kind, payload = receive.recv()  # before join: a full pipe would block the child
+        except (EOFError, OSError):
+            kind, payload = "error", None
+        finally:
+            receive.close()
+            process.join()
+        return payload if kind == "ok" and process.exitcode == 0 else None
+
+    return result
+
+
+def render_parts(htmls: Sequence[str], base_url: str | None = None, parallel: bool | None = None) -> list[bytes]:
+    """Each HTML document as PDF bytes, the last ones in forked children when allowed.
+
+    ``parallel`` None decides with :func:`can_fork`; False renders them in turn here.
+    """
+    htmls = list(htmls)
+    if parallel is None:
+        parallel = can_fork()
+    if not parallel or len(htmls) < 2:
+        return [html_to_pdf(h, base_url) for h in htmls]
+    waits = [_start_child(h, base_url) for h in htmls[1:]]
+    parts = [html_to_pdf(htmls[0], base_url)]
+    for html, wait in zip(htmls[1:], waits):
+        data = wait()
+        parts.append(data if data is not None else html_to_pdf(html, base_url))
+    return parts
+
+
+def join_pdfs(parts: Sequence[bytes]) -> bytes:
+    """PDF files joined page after page into one; the first part's metadata and every outline kept."""
+    if len(parts) == 1:
+        return parts[0]
+    from pypdf import PdfReader, PdfWriter
+
+    writer = PdfWriter()
+    readers = [PdfReader(io.BytesIO(part)) for part in parts]
+    for reader in readers:
+        writer.append(reader)
+    if readers[0].metadata:
+        writer.add_metadata({k: v for k, v in readers[0].metadata.items() if isinstance(v, str)})
+    out = io.BytesIO()
+    writer.write(out)
+    return out.getvalue()
