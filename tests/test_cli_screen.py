@@ -186,7 +186,8 @@ def test_malformed_draft_rules_fail_naming_file_and_rule(cli, tmp_path):
         'family = "x"\n[[rules]]\nid = "x.y"\ntitle = "t"\nseverity = "loud"\nwhen = { feature = "age_years", '
         'op = ">", value = 1 }\nmessage = "m"\nsource = "common practice"\n', encoding="utf-8")
     proc = cli("screen", str(PATIENTS / "NTC-0012.json"), "--rules", str(tmp_path))
-    assert proc.returncode == 1
+    assert proc.returncode == 2  # a draft rule set named on the command line is input
+    assert "--rules must be a folder of valid rule files" in proc.stderr
     assert "bad.toml, rule 'x.y': severity must be one of" in proc.stderr
     assert proc.stdout == "" and "Traceback" not in proc.stderr
 

@@ -55,9 +55,14 @@ def _rules(args):
     """The rule set named by --rules (validated; RuleFileError names file, rule and problem), or None."""
     if not args.rules:
         return None
+    from ..errors import RuleFileError
     from ..rules import load_rules
 
-    return load_rules(args.rules)
+    try:
+        return load_rules(args.rules)
+    except RuleFileError as exc:
+        # Rule files named on the command line are input: exit 2, naming the option and the problem.
+        raise InputError.single("--rules", args.rules, f"a folder of valid rule files ({exc})") from exc
 
 
 def _print_table(result) -> None:
