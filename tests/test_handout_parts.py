@@ -103,3 +103,33 @@ def test_joined_file_keeps_the_title_and_both_parts_outlines(plan):
 def test_html_for_both_audiences_stays_one_page_with_both_parts(plan):
     html = render_html(plan, clinic=DEMO_CLINIC)
     assert html.count("<html") == 1 and "Your goals" in html and "Clinician page" in html
+
+
+def test_collection_is_paused_while_rendering_and_restored_after():
+    import gc
+
+    assert gc.isenabled() and gc.get_freeze_count() == 0
+    seen = []
+    with pdf.collections_paused():
+        seen.append((gc.isenabled(), gc.get_freeze_count() > 0))
+    assert seen == [(False, True)]
+    assert gc.isenabled() and gc.get_freeze_count() == 0
+    gc.disable()
+    try:
+        with pdf.collections_paused():
+            pass
+        assert not gc.isenabled()  # the host's choice is kept
+    finally:
+        gc.enable()
+    gc.freeze()
+    try:
+        frozen = gc.get_freeze_count()
+        with pdf.collections_paused():
+            pass
+        assert gc.get_freeze_count() == frozen  # objects the host froze stay frozen
+    finally:
+        gc.unfreeze()
+    with pytest.raises(RuntimeError):
+        with pdf.collections_paused():
+            raise RuntimeError("a failed layout")
+    assert gc.isenabled() and gc.get_freeze_count() == 0
