@@ -334,3 +334,10 @@ def test_handouts_of_varied_real_plans_carry_cautions_and_every_exercise(record)
         assert name in html
     for svg in (charts.impacts_chart_svg(plan), charts.intensity_chart_svg(plan)):
         _svg(svg)
+
+
+def test_review_weeks_read_as_a_phrase():
+    assert content.weeks_phrase([]) == ""
+    assert content.weeks_phrase([7]) == "week 7"
+    assert content.weeks_phrase([7, 15]) == "weeks 7 and 15"
+    assert content.weeks_phrase([7, 15, 22]) == "weeks 7, 15 and 22"

@@ -116,3 +116,14 @@ def test_markup_in_id_and_notes_is_printed_literally(tmp_path):
     text = _text(path)
     assert "<script>alert(1)</script>" in text
     assert "<b>bold</b>" in text
+
+
+@pytest.mark.parametrize("paper", ["a4", "letter"])
+def test_both_charts_share_one_page_on_either_paper(tmp_path, paper):
+    # Common practice in patient handouts: a figure and its key are read together, on one page.
+    path = _write(tmp_path, _pdf(26, paper))
+    pages = _text(path).split("\f")
+    first = [i for i, page in enumerate(pages) if "Landings (impacts) per session, week by week" in page]
+    second = [i for i, page in enumerate(pages) if "Strength exercise load, week by week" in page]
+    assert len(first) == 1 and first == second
+    assert "hold" in pages[first[0]] and "step-up in impact level" in pages[first[0]]

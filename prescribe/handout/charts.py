@@ -188,7 +188,7 @@ class _Frame:
         items = []
         if any(f.weak_window for f in self.facts):
             items.append((swatch(hatch(0, 0, 26, 14, spacing=6)),
-                          "hatched, marked \u201chold\u201d: bone is briefly weaker (weeks 3-5 after a step-up)"))
+                          "hatched, \u201chold\u201d: bone briefly weaker (weeks 3-5 after a step-up)"))
         if any(f.step_up for f in self.facts):
             items.append((swatch(f'<path d="M6,14 L20,14 L13,2 Z" fill="{INK}"/>'), "step-up in impact level"))
         return items
@@ -208,7 +208,7 @@ def _describe_weeks(facts: list[WeekFacts]) -> str:
     return " ".join(text)
 
 
-WEEK_SCALE = "Along the bottom: week of the program."
+WEEK_SCALE = "Bottom: week of the program."
 
 
 def impacts_chart(plan) -> Chart:
@@ -262,7 +262,7 @@ def impacts_chart(plan) -> Chart:
     frame.week_axis()
     frame.step_marks()
     return frame.chart(
-        ("Left scale: impacts per session.", "Right scale: impact level, 0 to 3.", WEEK_SCALE),
+        ("Left: impacts per session.", "Right: impact level (0-3).", WEEK_SCALE),
         [(swatch(f'<rect x="4" y="0" width="18" height="14" fill="{BAR}" stroke="{INK}"/>'),
           "grey bar: impacts per session"),
          (swatch(f'<line x1="0" y1="7" x2="26" y2="7" stroke="{INK}" stroke-width="3" stroke-dasharray="9 4"/>'),
@@ -316,7 +316,7 @@ def intensity_chart(plan) -> Chart:
     frame.week_axis()
     frame.step_marks()
     return frame.chart(
-        ("Left scale: % of one-repetition maximum (1RM).", WEEK_SCALE),
+        ("Left: % of one-repetition maximum (1RM).", WEEK_SCALE),
         [(swatch(f'<line x1="0" y1="7" x2="26" y2="7" stroke="{INK}" stroke-width="3"/>'
                  f'<circle cx="13" cy="7" r="4" fill="#ffffff" stroke="{INK}" stroke-width="2"/>'),
           "line with circles: load (% 1RM)"),

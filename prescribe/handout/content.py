@@ -489,8 +489,17 @@ def at_a_glance(plan: Plan, facts: list[WeekFacts]) -> AtAGlance:
         most_impacts=max(f.impacts_per_session for f in facts),
         resistance_range=(f"{min(pcts):g}% to {max(pcts):g}% of your one-repetition maximum"
                           if pcts else None),
-        reviews=", ".join(f"week {w}" for w, _ in reviews) or "as arranged with your clinician",
+        reviews=weeks_phrase([w for w, _ in reviews]) or "as arranged with your clinician",
     )
+
+
+def weeks_phrase(weeks: list[int]) -> str:
+    """"week 7", "weeks 7 and 15", "weeks 7, 15 and 22"; empty for no weeks."""
+    if not weeks:
+        return ""
+    if len(weeks) == 1:
+        return f"week {weeks[0]}"
+    return "weeks " + ", ".join(str(w) for w in weeks[:-1]) + f" and {weeks[-1]}"
 
 
 def bout_advice(plan: Plan) -> list[str]:
