@@ -22,11 +22,13 @@ from ..plan_schema import Plan
 from .content import WeekFacts, week_facts
 
 WIDTH, HEIGHT = 760, 330
-LEFT, RIGHT, TOP, BOTTOM = 60, 40, 30, 36
+LEFT, RIGHT, TOP, BOTTOM = 66, 40, 32, 40
 FONT = "DejaVu Sans, Liberation Sans, Arial, sans-serif"
 INK, GRID, BAR = "#000000", "#bdbdbd", "#8c8c8c"
-#: Tick-label size in SVG units: the chart prints about 140 mm wide, so 16 units is about 8.5 pt.
-TICK = 16
+#: Tick-label size in SVG units: the chart prints about 140 mm wide (0.19 mm a unit), so
+#: 20 units is about 10.5 pt, and the bold labels (18 units) about 9.5 pt.
+TICK = 20
+LABEL = 18
 
 
 def _coerce(plan) -> Plan:
@@ -145,17 +147,17 @@ class _Frame:
         for a, b in _runs([f.weak_window for f in self.facts]):
             x0, x1 = self.x(a), self.x(b + 1)
             self.parts.append(hatch(x0, TOP, x1 - x0, self.ph))
-            if x1 - x0 >= 40:
-                self.parts.append(f'<rect x="{(x0 + x1) / 2 - 20:.1f}" y="{TOP + 3}" width="40" height="19" '
+            if x1 - x0 >= 48:
+                self.parts.append(f'<rect x="{(x0 + x1) / 2 - 24:.1f}" y="{TOP + 3}" width="48" height="23" '
                                   f'fill="#ffffff"/>')
-                self.parts.append(_text((x0 + x1) / 2, TOP + 17, "hold", size=14, weight="bold"))
+                self.parts.append(_text((x0 + x1) / 2, TOP + 20, "hold", size=LABEL, weight="bold"))
 
     def left_axis(self, top: float, step: float, fmt=lambda v: f"{v:g}") -> None:
         v, grid, labels = 0.0, [], []
         while v <= top + 1e-9:
             yy = self.y(v, top)
             grid.append(f"M{LEFT},{yy:.1f}H{LEFT + self.pw}")
-            labels.append(_text(LEFT - 8, yy + 5, fmt(v), anchor="end"))
+            labels.append(_text(LEFT - 8, yy + 7, fmt(v), anchor="end"))
             v += step
         # All grid lines as one path: one element to parse and draw instead of one per line.
         self.parts.append(f'<path class="grid" d="{"".join(grid)}" stroke="{GRID}" stroke-width="0.8" '
@@ -174,7 +176,7 @@ class _Frame:
             if f.week == 1 or f.week % every == 0:
                 cx = self.x(i) + self.band / 2
                 ticks.append(f"M{cx:.1f},{base}V{base + 5}")
-                self.parts.append(_text(cx, base + 22, str(f.week)))
+                self.parts.append(_text(cx, base + 26, str(f.week)))
         self.parts.append(f'<path class="ticks" d="{"".join(ticks)}" stroke="{INK}" fill="none"/>')
 
     def step_marks(self) -> None:
@@ -241,7 +243,7 @@ def impacts_chart(plan) -> Chart:
     # Impact level on the right-hand axis, 0-3, as a stepped line with square markers.
     for level in range(4):
         yy = frame.y(level, 3)
-        frame.parts.append(_text(LEFT + frame.pw + 10, yy + 5, str(level), anchor="start"))
+        frame.parts.append(_text(LEFT + frame.pw + 10, yy + 7, str(level), anchor="start"))
     frame.parts.append(f'<line x1="{LEFT + frame.pw}" y1="{TOP}" x2="{LEFT + frame.pw}" '
                        f'y2="{TOP + frame.ph}" stroke="{INK}" stroke-width="1.5"/>')
     points = []
@@ -257,7 +259,7 @@ def impacts_chart(plan) -> Chart:
             cx, yy = frame.x(i) + frame.band / 2, frame.y(f.impact_level, 3)
             frame.parts.append(f'<rect x="{cx - 5:.1f}" y="{yy - 5:.1f}" width="10" height="10" '
                                f'fill="#ffffff" stroke="{INK}" stroke-width="2"/>')
-            frame.parts.append(_text(cx + 8, yy - 9, f"level {f.impact_level}", size=14,
+            frame.parts.append(_text(cx + 8, yy - 9, f"level {f.impact_level}", size=LABEL,
                                      anchor="start", weight="bold"))
     frame.week_axis()
     frame.step_marks()
@@ -309,7 +311,7 @@ def intensity_chart(plan) -> Chart:
         cx, yy = frame.x(i) + frame.band / 2, frame.y(v, top)
         marks.append(f"M{cx - 4:.1f},{yy:.1f}a4,4 0 1,0 8,0a4,4 0 1,0 -8,0Z")
         if i == 0 or values[i - 1] != v:
-            frame.parts.append(_text(cx, yy - 10, f"{v:g}%", size=14, weight="bold"))
+            frame.parts.append(_text(cx, yy - 10, f"{v:g}%", size=LABEL, weight="bold"))
     if marks:
         frame.parts.append(f'<path class="marks" d="{"".join(marks)}" fill="#ffffff" stroke="{INK}" '
                            f'stroke-width="2"/>')
