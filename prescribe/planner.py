@@ -60,7 +60,8 @@ from .planner_rules import IMPACTS_CEILING, ResistancePhase, Template, load_temp
 from .records import PatientRecord, ScreeningResult
 
 __all__ = ["PlanOptions", "build_plan", "weekly_summary", "check_plan", "replace_exercise",
-           "reassessment_weeks", "IMPACT_LABELS", "SUMMARY_COLUMNS"]
+           "reassessment_weeks", "option_range", "fixed_options", "plan_swaps", "IMPACT_LABELS",
+           "SUMMARY_COLUMNS"]
 
 IMPACT_LABELS: dict[int, str] = {0: "no impact", 1: "low impact", 2: "moderate impact", 3: "high impact"}
 
@@ -174,6 +175,40 @@ class PlanOptions(BaseModel):
         if late:
             raise InputError.single("step_up_weeks", late[0] if len(late) == 1 else late,
                                     f"weeks from 2 to the plan's last week ({self.weeks})")
+
+
+def option_range(name: str) -> tuple[int, int]:
+    """The smallest and largest value :class:`PlanOptions` accepts for a whole-number option.
+
+    Forms offer exactly these values, so a choice on screen is never refused for its range.
+    """
+    field = PlanOptions.model_fields.get(name)
+    low = next((m.ge for m in getattr(field, "metadata", ()) if hasattr(m, "ge")), None)
+    high = next((m.le for m in getattr(field, "metadata", ()) if hasattr(m, "le")), None)
+    if low is None or high is None:
+        raise ValueError(f"{name} is not a whole-number option with a range")
+    return int(low), int(high)
+
+
+def fixed_options(plan: Plan) -> dict[str, Any]:
+    """The options the clinician fixed when the plan was built (its ``options.fixed``), as
+    :class:`PlanOptions` keywords, so the same program can be rebuilt with one change."""
+    recorded = _extra(plan, "options") or {}
+    if not isinstance(recorded, dict):
+        return {}
+    out = {}
+    for name in recorded.get("fixed") or ():
+        if name in PlanOptions.model_fields and name in recorded:
+            value = recorded[name]
+            out[name] = tuple(value) if isinstance(value, list) else value
+    return out
+
+
+def plan_swaps(plan: Plan) -> list[tuple[str, str]]:
+    """The swaps :func:`replace_exercise` made on this plan, oldest first, as (old_id, new_id)."""
+    swaps = _extra(plan, "swaps") or []
+    return [(str(s["old"]), str(s["new"])) for s in swaps
+            if isinstance(s, dict) and "old" in s and "new" in s]
 
 
 # =========================================================================================
@@ -1002,6 +1037,8 @@ def replace_exercise(plan: Plan, old_id: str, new_id: str, catalogue=None) -> Pl
         w["weekly_osteogenic_index"] = round(sum(s["osteogenic_index"] for s in w["sessions"]), 2)
     if not found:
         raise InputError.single("old_id", old_id, "an exercise id used in this plan")
+    # Kept with the plan, so a reopened program can be rebuilt with the same swaps.
+    data["swaps"] = [*(data.get("swaps") or []), {"old": old_id, "new": new_id}]
     new_plan = Plan.model_validate(data)
     problems = check_plan(new_plan)
     if problems:

@@ -500,3 +500,25 @@ def test_replace_exercise_keeps_dose_and_checks_rules(osteopenia):
     assert info.value.rule == "rule 1"
     with pytest.raises(InputError):
         replace_exercise(plan, "moonwalk", "stamp_gentle")
+
+
+def test_swaps_and_fixed_options_are_kept_with_the_plan():
+    from prescribe.planner import fixed_options, plan_swaps, replace_exercise
+
+    record = parse_record({"patient_id": "NTC-0301", "age_years": 64, "sex": "female", "body_mass_kg": 60,
+                           "height_cm": 160, "t_scores": {"femoral_neck": -2.1}, "pain_score": 0})
+    plan = build_plan(record, options=PlanOptions(weeks=30, impact_sessions_per_week=2))
+    assert fixed_options(plan) == {"weeks": 30, "impact_sessions_per_week": 2}
+    assert plan_swaps(plan) == []
+    used = [e.exercise_id for w in plan.weeks for s in w.sessions for e in s.exercises]
+    from prescribe.catalogue import default_catalogue
+    catalogue = default_catalogue()
+    old = next(i for i in used if catalogue.get(i).category == "resistance")
+    new = next(e.exercise_id for e in catalogue.all() if e.category == "resistance" and e.exercise_id not in used
+               and not set(e.patterns) & set(plan.screening.avoid))
+    swapped = replace_exercise(plan, old, new)
+    assert plan_swaps(swapped) == [(old, new)]
+    # The record survives a JSON round trip (what the store keeps).
+    from prescribe.plan_schema import parse_plan
+    again = parse_plan(json.loads(swapped.model_dump_json()))
+    assert plan_swaps(again) == [(old, new)] and fixed_options(again) == fixed_options(plan)

@@ -192,3 +192,62 @@ def test_the_screenings_and_plans_own_cautions_join_the_standard_ones_in_every_s
         text = html.unescape(box.value)
         for caution in extra:
             assert caution in text
+
+
+def test_a_reopened_program_keeps_its_options_and_swaps_when_changed(app, tmp_db):
+    # The clinician sets 30 weeks and 2 impact sessions, swaps an exercise and saves.
+    app.weeks.value = "30"
+    app.sessions["impact"].value = 2
+    ids = [i for i, _ in app.session.plan_exercises()]
+    swappable = next(i for i in ids if app.session.swap_candidates(i))
+    app.exercise_select.value = swappable
+    replacement = app.replacement_select.options[0][1]
+    app.swap_button.click()
+    assert app.session.refusal is None, app.session.refusal
+    app.clinician.value = "AB"
+    app.save_button.click()
+    # Reopened elsewhere, one change (the start level) rebuilds that program, not the defaults.
+    other = make_app(tmp_db)
+    other.load_select.value = "DEMO-UI-1"
+    other.load_button.click()
+    assert other.session.options["weeks"] == 30 and other.session.options["impact_sessions_per_week"] == 2
+    assert other.session.swaps == [(swappable, replacement)]
+    assert other.weeks.value == "30" and other.sessions["impact"].value == 2
+    other.start_level.value = 0
+    assert other.session.refusal is None, other.session.refusal
+    plan = other.session.plan
+    used = {e.exercise_id for w in plan.weeks for s in w.sessions for e in s.exercises}
+    assert len(plan.weeks) == 30 and plan.weeks[0].impact_level == 0
+    assert replacement in used and swappable not in used
+
+
+def test_session_choices_are_exactly_what_the_planner_accepts(app):
+    from prescribe.planner import PlanOptions
+
+    for kind, dd in app.sessions.items():
+        offered = [v for _, v in dd.options if isinstance(v, int)]
+        for n in offered:  # each offered number builds
+            PlanOptions(**{f"{kind}_sessions_per_week": n})
+        assert offered == app.session.session_choices(kind)
+    assert app.session.session_choices("resistance") == [1, 2, 3]
+
+
+def test_back_to_the_planners_choice_clears_a_session_count(app):
+    app.sessions["resistance"].value = 3
+    assert app.session.options["resistance_sessions_per_week"] == 3
+    app.sessions["resistance"].value = app.sessions["resistance"].options[0][1]  # "planner's choice"
+    assert "resistance_sessions_per_week" not in app.session.options
+    assert app.session.refusal is None
+
+
+def test_a_swap_whose_exercise_is_gone_is_dropped_with_a_note(app):
+    ids = [i for i, _ in app.session.plan_exercises()]
+    swappable = next(i for i in ids if app.session.swap_candidates(i))
+    replacement = app.session.swap_candidates(swappable)[0][0]
+    assert app.session.swap(swappable, replacement)
+    # Leaving out the replacement makes the planner choose afresh; the old swap no longer applies.
+    assert app.session.build(exclude=[replacement, swappable]), app.session.refusal
+    assert app.session.swaps == []
+    assert swappable in (app.session.program_note or "")
+    app.refresh(store=False)
+    assert "no longer applies" in html.unescape(app.refusal.value)

@@ -77,6 +77,7 @@ class ClinicSession:
         self.plan = None
         self.refusal: str | None = None
         self.notice: str | None = None
+        self.program_note: str | None = None  # what a rebuild changed that the clinician should know
         self.saved_version: int | None = None
 
     @property
@@ -126,12 +127,17 @@ class ClinicSession:
         except EngineMissing as exc:
             self.refusal = f"The program cannot be built here: {exc}."
             return False
-        options = {**self.options, **changes}
+        # None means "the planner's choice": the option is dropped, not passed on.
+        options = {k: v for k, v in {**self.options, **changes}.items() if v is not None}
+        applied: list[tuple[str, str]] = []
 
         def make():
             plan = build_plan(self.record, self.screening, plan_options(**options))
             for old, new in self.swaps:
-                plan = replace(plan, old, new)
+                # A swap applies while the exercise it replaced is still chosen by the planner.
+                if any(e.exercise_id == old for w in plan.weeks for s in w.sessions for e in s.exercises):
+                    plan = replace(plan, old, new)
+                    applied.append((old, new))
             problems = list(check(plan, self.screening))
             if problems:  # the planner's own safety check disagrees: keep the old program
                 raise PlanRequestRefused("check_plan", "; ".join(problems))
@@ -139,8 +145,16 @@ class ClinicSession:
         plan = self._attempt(make)
         if plan is None:
             return False
-        self.options, self.plan = options, plan
+        dropped = [old for old, new in self.swaps if (old, new) not in applied]
+        self.program_note = ("The new program no longer uses " + ", ".join(dropped) + ", so the swap "
+                             "made for it no longer applies." if dropped else None)
+        self.options, self.plan, self.swaps = options, plan, applied
         return True
+
+    def session_choices(self, kind: str) -> list[int]:
+        """The sessions a week the planner accepts for ``kind`` (impact, resistance, balance)."""
+        low, high = _api("planner", "option_range")(f"{kind}_sessions_per_week")
+        return list(range(low, high + 1))
 
     def swap(self, old_id: str, new_id: str) -> bool:
         """Put exercise ``new_id`` in place of ``old_id`` everywhere in the program."""
@@ -315,5 +329,9 @@ class ClinicSession:
             return
         from ..plan_schema import parse_plan
         self.plan = parse_plan(self.store.get_program(patient_id, version), source=f"saved program of {patient_id}")
+        # What the clinician chose for the saved program, so a change rebuilds that program
+        # with one difference rather than the planner's defaults.
+        self.options = dict(_api("planner", "fixed_options")(self.plan))
+        self.swaps = list(_api("planner", "plan_swaps")(self.plan))
         self.saved_version = int(latest)
         self.refusal = None

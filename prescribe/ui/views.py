@@ -446,7 +446,8 @@ class ClinicApp:
         self.weeks.add_class("pr-option-weeks")
         self.sessions: dict[str, w.Dropdown] = {}
         for kind in ("impact", "resistance", "balance"):
-            dd = w.Dropdown(options=[("planner's choice", AUTO)] + [(str(n), n) for n in range(1, 8)], value=AUTO,
+            dd = w.Dropdown(options=[("planner's choice", AUTO)] + [(str(n), n) for n in
+                                                                   self.session.session_choices(kind)], value=AUTO,
                             description=f"{kind.capitalize()} sessions a week",
                             style={"description_width": "initial"}, layout=w.Layout(width="330px"))
             dd.add_class(f"pr-option-{kind}_sessions_per_week")
@@ -554,8 +555,8 @@ class ClinicApp:
         if weeks is not None:
             changes["weeks"] = weeks
         for kind, dd in self.sessions.items():
-            if dd.value != AUTO:
-                changes[f"{kind}_sessions_per_week"] = dd.value
+            # Back to "planner's choice" clears the option (None), rather than keeping the last number.
+            changes[f"{kind}_sessions_per_week"] = None if dd.value == AUTO else dd.value
         self.session.build(**changes)
         self.refresh(store=False)
 
@@ -618,8 +619,12 @@ class ClinicApp:
         cautions = _cautions_html(s.cautions)  # the standard ones plus the screening's and the plan's
         for box in self.caution_boxes:
             box.value = cautions
-        self.refusal.value = (f'<div class="pr-refusal-box" role="alert">{_esc(s.refusal)}</div>'
-                              if s.refusal else "")
+        if s.refusal:
+            self.refusal.value = f'<div class="pr-refusal-box" role="alert">{_esc(s.refusal)}</div>'
+        elif s.program_note:
+            self.refusal.value = f'<div class="pr-notice-box" role="status">{_esc(s.program_note)}</div>'
+        else:
+            self.refusal.value = ""
         self._syncing = True
         try:
             first_level = s.plan.weeks[0].impact_level if s.plan else None
