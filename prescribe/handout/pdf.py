@@ -1,15 +1,18 @@
 """HTML to PDF through WeasyPrint, and a handout of several parts joined into one file.
 
 A handout for both audiences is two documents printed back to back: the person's
-pages and the clinician's pages, each numbered on its own ("page 2 of 9",
-"clinician page 1 of 4"), because the person takes one stack home and the clinic
-files the other.  Being separate documents, the two parts can be laid out at the
-same time: when the machine has a second processor and this process runs a single
-thread, the clinician's part is rendered in a forked child while this process
-renders the person's part.  Otherwise (one processor, a threaded host such as a
-notebook kernel, no ``fork`` on the platform, or ``PRESCRIBE_PDF_PARALLEL=0``) the
-parts are rendered one after the other.  Either way the same pages come out; a child
-that fails for any reason is not trusted and its part is rendered here instead.
+pages and the clinician's pages, each numbered on its own, because the person takes
+one stack home and the clinic files the other.  Being separate documents, the two
+parts can be laid out at the same time: when the machine has a second processor and
+this process runs a single thread (the command line, a script), the clinician's part
+is laid out in a forked child while this process lays out the person's part.
+
+In a threaded host (the app's notebook kernel) a fork could copy a lock another
+thread holds (the kernel's output streams, for one), and the other start methods
+re-import the host's main module in every child, so there the parts are laid out one
+after the other; likewise on one processor, without ``fork``, or with
+``PRESCRIBE_PDF_PARALLEL=0``.  Either way the same pages come out; a child that
+fails for any reason is not trusted and its part is laid out here instead.
 """
 
 from __future__ import annotations
@@ -60,14 +63,19 @@ def collections_paused() -> Iterator[None]:
             gc.enable()
 
 
-def can_fork() -> bool:
-    """Whether a part may be rendered in a forked child (see the module's docstring)."""
-    if os.environ.get(PARALLEL_ENV, "1").strip() in ("0", "no", "false", "off"):
-        return False
+def side_by_side_method() -> str | None:
+    """"fork" when a part may be laid out in a forked child beside this process, else None.
+
+    See the module's docstring for when that is.
+    """
+    if os.environ.get(PARALLEL_ENV, "1").strip().lower() in ("0", "no", "false", "off"):
+        return None
+    if (os.cpu_count() or 1) < 2:
+        return None  # nothing to gain
     if "fork" not in multiprocessing.get_all_start_methods():
-        return False
+        return None
     # Forking a process that runs other threads can copy a lock another thread holds.
-    return threading.active_count() == 1 and (os.cpu_count() or 1) > 1
+    return "fork" if threading.active_count() == 1 else None
 
 
 def _child(html: str, base_url: str | None, conn) -> None:
@@ -102,17 +110,24 @@ def _start_child(html: str, base_url: str | None) -> Callable[[], bytes | None]:
 
 
 def render_parts(htmls: Sequence[str], base_url: str | None = None, parallel: bool | None = None) -> list[bytes]:
-    """Each HTML document as PDF bytes, the last ones in forked children when allowed.
+    """Each HTML document as PDF bytes, all but the first in children when allowed.
 
-    ``parallel`` None decides with :func:`can_fork`; False renders them in turn here.
+    ``parallel`` None decides with :func:`side_by_side_method`; False lays them out in turn
+    here; True forks even where :func:`side_by_side_method` would not (tests).
     """
     htmls = list(htmls)
-    if parallel is None:
-        parallel = can_fork()
+    method = side_by_side_method() if parallel is None else None
+    if parallel:
+        method = "fork"
     with collections_paused():
-        if not parallel or len(htmls) < 2:
+        if method is None or len(htmls) < 2:
             return [html_to_pdf(h, base_url) for h in htmls]
-        waits = [_start_child(h, base_url) for h in htmls[1:]]
+        waits = []
+        for html in htmls[1:]:
+            try:
+                waits.append(_start_child(html, base_url))
+            except Exception:  # noqa: BLE001 - no child: this part is laid out here below
+                waits.append(lambda: None)
         parts = [html_to_pdf(htmls[0], base_url)]
         for html, wait in zip(htmls[1:], waits):
             data = wait()
