@@ -149,3 +149,17 @@ def test_a_threaded_host_gets_its_pdf_laid_out_in_turn(plan, monkeypatch):
         stop.set()
         worker.join()
     assert data.startswith(b"%PDF") and len(PdfReader(io.BytesIO(data)).pages) >= 6
+
+
+def test_a_child_that_hangs_is_stopped_and_its_part_rendered_here(monkeypatch):
+    import time
+
+    def hangs(html, base_url, conn):
+        time.sleep(60)
+
+    monkeypatch.setattr(pdf, "_child", hangs)
+    monkeypatch.setattr(pdf, "CHILD_TIMEOUT_S", 0.5)
+    started = time.monotonic()
+    parts = pdf.render_parts(["<p>first part</p>", "<p>second part</p>"], parallel=True)
+    assert time.monotonic() - started < 30
+    assert "second part" in PdfReader(io.BytesIO(parts[1])).pages[0].extract_text()

@@ -28,6 +28,8 @@ from typing import Callable, Iterator, Sequence
 
 #: Set to 0 to render the parts of a handout one after the other.
 PARALLEL_ENV = "PRESCRIBE_PDF_PARALLEL"
+#: How long to wait for a child's part before laying it out here instead [s].
+CHILD_TIMEOUT_S = 120.0
 
 
 def html_to_pdf(html: str, base_url: str | None = None) -> bytes:
@@ -97,12 +99,18 @@ def _start_child(html: str, base_url: str | None) -> Callable[[], bytes | None]:
     send.close()
 
     def result() -> bytes | None:
+        kind, payload = "error", None
         try:
-            kind, payload = receive.recv()  # before join: a full pipe would block the child
+            # Receive before join (a full pipe would block the child); a child that gives no
+            # answer in time is stopped and its part laid out here.
+            if receive.poll(CHILD_TIMEOUT_S):
+                kind, payload = receive.recv()
         except (EOFError, OSError):
-            kind, payload = "error", None
+            pass
         finally:
             receive.close()
+            if process.is_alive() and kind != "ok":
+                process.kill()
             process.join()
         return payload if kind == "ok" and process.exitcode == 0 else None
 
@@ -128,11 +136,12 @@ def render_parts(htmls: Sequence[str], base_url: str | None = None, parallel: bo
                 waits.append(_start_child(html, base_url))
             except Exception:  # noqa: BLE001 - no child: this part is laid out here below
                 waits.append(lambda: None)
-        parts = [html_to_pdf(htmls[0], base_url)]
-        for html, wait in zip(htmls[1:], waits):
-            data = wait()
-            parts.append(data if data is not None else html_to_pdf(html, base_url))
-        return parts
+        try:
+            first = html_to_pdf(htmls[0], base_url)
+        finally:
+            answers = [wait() for wait in waits]  # every child is reaped, even if the first part failed
+        return [first] + [data if data is not None else html_to_pdf(html, base_url)
+                          for html, data in zip(htmls[1:], answers)]
 
 
 def join_pdfs(parts: Sequence[bytes]) -> bytes:
