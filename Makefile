@@ -20,16 +20,18 @@ $(STAMP): pyproject.toml requirements.lock
 	$(PIP) install --no-deps -e .
 	@touch $@
 
-# chromium drives the browser tests; poppler-utils turns handout PDFs into text and PNG.
+# chromium drives the browser tests; poppler-utils turns handout PDFs into text and PNG;
+# DejaVu Sans is the handouts' first font (Liberation Sans the fallback).
 system-deps:
-	@if [ -x /usr/bin/chromium ] && command -v pdftoppm >/dev/null && command -v pdftotext >/dev/null; then :; \
+	@if [ -x /usr/bin/chromium ] && command -v pdftoppm >/dev/null && command -v pdftotext >/dev/null \
+	  && [ -f /usr/share/fonts/truetype/dejavu/DejaVuSans.ttf ]; then :; \
 	elif [ "$$(id -u)" = 0 ] && command -v apt-get >/dev/null; then \
-	  echo "Installing chromium, fonts-liberation and poppler-utils from Debian's packages"; \
+	  echo "Installing chromium, the handout fonts and poppler-utils from Debian's packages"; \
 	  DEBIAN_FRONTEND=noninteractive apt-get update -qq && \
-	  DEBIAN_FRONTEND=noninteractive apt-get install -y -qq --no-install-recommends chromium fonts-liberation poppler-utils >/dev/null; \
+	  DEBIAN_FRONTEND=noninteractive apt-get install -y -qq --no-install-recommends chromium fonts-dejavu-core fonts-liberation poppler-utils >/dev/null; \
 	else \
-	  echo "The tests need Debian's chromium, fonts-liberation and poppler-utils:"; \
-	  echo "  sudo apt-get install --no-install-recommends chromium fonts-liberation poppler-utils"; exit 1; \
+	  echo "The tests need Debian's chromium, fonts-dejavu-core, fonts-liberation and poppler-utils:"; \
+	  echo "  sudo apt-get install --no-install-recommends chromium fonts-dejavu-core fonts-liberation poppler-utils"; exit 1; \
 	fi
 
 seed: install
