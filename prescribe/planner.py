@@ -57,6 +57,7 @@ from .dose import daily_osteogenic_index, osteogenic_index
 from .errors import FieldProblem, InputError, PlanRequestRefused
 from .plan_schema import PLAN_FORMAT_VERSION, Plan, PlannedExercise, PlannedSession, PlannedWeek
 from .planner_rules import IMPACTS_CEILING, ResistancePhase, Template, load_template, template_names
+from .option_limits import OPTION_RANGES
 from .records import PatientRecord, ScreeningResult
 
 __all__ = ["PlanOptions", "build_plan", "weekly_summary", "check_plan", "replace_exercise",
@@ -117,11 +118,13 @@ _EXTRA_BALANCE_DAY_ORDER = (7, 2, 4, 6, 1, 3, 5)
 # =========================================================================================
 
 _OPTION_ALLOWED = {
-    "weeks": "a whole number of weeks from 8 to 52",
+    "weeks": "a whole number of weeks from {} to {}".format(*OPTION_RANGES["weeks"]),
     "start_level": "an impact level 0, 1, 2 or 3, or null to let the planner choose",
-    "impact_sessions_per_week": "a whole number from 1 to 7",
-    "resistance_sessions_per_week": "a whole number from 1 to 3 (on non-consecutive days)",
-    "balance_sessions_per_week": "a whole number from 2 to 7 (balance work at least twice a week), or null for the default",
+    "impact_sessions_per_week": "a whole number from {} to {}".format(*OPTION_RANGES["impact_sessions_per_week"]),
+    "resistance_sessions_per_week": "a whole number from {} to {} (on non-consecutive days)".format(
+        *OPTION_RANGES["resistance_sessions_per_week"]),
+    "balance_sessions_per_week": "a whole number from {} to {} (balance work at least twice a week), or null "
+                                 "for the default".format(*OPTION_RANGES["balance_sessions_per_week"]),
     "exclude": "a list of exercise ids from the catalogue",
     "include": "a list of exercise ids from the catalogue",
     "template": "one of " + ", ".join(template_names()) + ", or null for the default",
@@ -143,11 +146,14 @@ class PlanOptions(BaseModel):
 
     model_config = ConfigDict(extra="forbid", frozen=True, strict=True)
 
-    weeks: int = Field(26, ge=8, le=52)
-    start_level: int | None = Field(None, ge=0, le=3)
-    impact_sessions_per_week: int = Field(3, ge=1, le=7)
-    resistance_sessions_per_week: int = Field(2, ge=1, le=3)
-    balance_sessions_per_week: int | None = Field(None, ge=2, le=7)
+    weeks: int = Field(26, ge=OPTION_RANGES["weeks"][0], le=OPTION_RANGES["weeks"][1])
+    start_level: int | None = Field(None, ge=OPTION_RANGES["start_level"][0], le=OPTION_RANGES["start_level"][1])
+    impact_sessions_per_week: int = Field(3, ge=OPTION_RANGES["impact_sessions_per_week"][0],
+                                          le=OPTION_RANGES["impact_sessions_per_week"][1])
+    resistance_sessions_per_week: int = Field(2, ge=OPTION_RANGES["resistance_sessions_per_week"][0],
+                                              le=OPTION_RANGES["resistance_sessions_per_week"][1])
+    balance_sessions_per_week: int | None = Field(None, ge=OPTION_RANGES["balance_sessions_per_week"][0],
+                                                  le=OPTION_RANGES["balance_sessions_per_week"][1])
     exclude: tuple[str, ...] = ()
     include: tuple[str, ...] = ()
     template: str | None = None

@@ -224,11 +224,19 @@ def test_a_reopened_program_keeps_its_options_and_swaps_when_changed(app, tmp_db
 def test_session_choices_are_exactly_what_the_planner_accepts(app):
     from prescribe.planner import PlanOptions
 
+    from prescribe.errors import InputError
+    from prescribe.planner import option_range
+
     for kind, dd in app.sessions.items():
+        name = f"{kind}_sessions_per_week"
         offered = [v for _, v in dd.options if isinstance(v, int)]
         for n in offered:  # each offered number builds
-            PlanOptions(**{f"{kind}_sessions_per_week": n})
+            PlanOptions(**{name: n})
+        for n in (offered[0] - 1, offered[-1] + 1):  # and the numbers just outside are refused
+            with pytest.raises(InputError):
+                PlanOptions(**{name: n})
         assert offered == app.session.session_choices(kind)
+        assert (offered[0], offered[-1]) == option_range(name)
     assert app.session.session_choices("resistance") == [1, 2, 3]
 
 

@@ -153,7 +153,9 @@ class ClinicSession:
 
     def session_choices(self, kind: str) -> list[int]:
         """The sessions a week the planner accepts for ``kind`` (impact, resistance, balance)."""
-        low, high = _api("planner", "option_range")(f"{kind}_sessions_per_week")
+        from ..option_limits import OPTION_RANGES  # not the planner: this runs while the page opens
+
+        low, high = OPTION_RANGES[f"{kind}_sessions_per_week"]
         return list(range(low, high + 1))
 
     def swap(self, old_id: str, new_id: str) -> bool:
