@@ -116,6 +116,8 @@ def test_swap_and_leave_out_an_exercise(app):
 
 
 def test_handout_preview_and_pdf_download_link(app):
+    shown = []
+    app.download.observe(lambda change: shown.append(change["new"]), names="value")
     app.preview_button.click()
     assert "pr-handout-iframe" in app.preview.value and "DEMO-UI-1" in html.unescape(app.preview.value)
     app.pdf_button.click()
@@ -123,6 +125,8 @@ def test_handout_preview_and_pdf_download_link(app):
     assert match, app.errors.last
     assert base64.b64decode(match.group(1)).startswith(b"%PDF")
     assert 'download="handout-DEMO-UI-1.pdf"' in app.download.value
+    # While the PDF is being made the clinician sees that it is on its way.
+    assert any("Preparing the PDF" in v for v in shown) and shown[-1] == app.download.value
 
 
 def test_save_needs_a_clinician_then_keeps_every_version(app, tmp_db):

@@ -586,6 +586,8 @@ class ClinicApp:
 
     @guarded("Preparing the handout")
     def on_prepare(self, fmt: str) -> None:
+        # Shown at once (a PDF takes a second or two), replaced by the link when it is ready.
+        self.download.value = f'<span class="pr-preparing" role="status">Preparing the {fmt.upper()}...</span>'
         data = self.session.handout(fmt, self.audience.value, self.paper.value)
         mime = "application/pdf" if fmt == "pdf" else "text/html"
         name = f"handout-{self.session.record.patient_id}.{fmt}"
