@@ -146,7 +146,7 @@ class PatientRecord(_Strict):
     falls_past_year: int = Field(0, ge=0, le=1000, description="Falls in the past 12 months.",
                                  json_schema_extra=_meta("falls", (0, 6), "Falls in past year"))
     timed_up_and_go_s: float | None = Field(None, ge=0, le=600,
-                                            description="Timed Up and Go over a 3 m course.",
+                                            description="Timed Up and Go: rise from a chair, walk 3 m, turn, walk back and sit down.",
                                             json_schema_extra=_meta("s", (5, 30), "Timed Up and Go", 0.1))
     chair_stand_30s: int | None = Field(None, ge=0, le=100,
                                         description="30-second chair stand: full stands completed in 30 s, arms folded.",
