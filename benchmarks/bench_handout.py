@@ -28,7 +28,7 @@ ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 
 from prescribe.handout import render_html, render_pdf  # noqa: E402
-from prescribe.handout.pdf import side_by_side_method  # noqa: E402
+from prescribe.handout.pdf import side_by_side  # noqa: E402
 from prescribe.planner import PlanOptions, build_plan  # noqa: E402
 from prescribe.records import parse_record  # noqa: E402
 from prescribe.settings import Clinic  # noqa: E402
@@ -81,7 +81,7 @@ def main() -> int:
 
     pages = len(PdfReader(io.BytesIO(pdf)).pages)
     print(f"handout of a {args.weeks}-week plan, both audiences, A4 ({pages} pages, {len(pdf) / 1024:.0f} KiB); "
-          f"{args.runs} runs each; {os.cpu_count()} processors; parts side by side here: {side_by_side_method() or 'no, in turn'}")
+          f"{args.runs} runs each; {os.cpu_count()} processors; parts side by side here: {'yes' if side_by_side() else 'no, in turn'}")
     for name, label in (("html", "render_html"), ("pdf", "render_pdf"),
                         ("sequential", "render_pdf, in turn"), ("baseline", "trivial HTML -> PDF")):
         print(f"  {label:22s} best {min(times[name]):6.3f} s   median {statistics.median(times[name]):6.3f} s"

@@ -33,7 +33,7 @@ def plan():
 def test_side_by_side_and_in_turn_give_the_same_pages(plan, tmp_path, monkeypatch):
     started = []
     real_start = pdf._start_child
-    monkeypatch.setattr(pdf, "side_by_side_method", lambda: "fork")
+    monkeypatch.setattr(pdf, "side_by_side", lambda: True)
     monkeypatch.setattr(pdf, "_start_child", lambda *a: started.append(1) or real_start(*a))
     side = render_pdf(plan, clinic=DEMO_CLINIC)
     assert started == [1]  # the clinician's part was laid out in a child
@@ -76,20 +76,20 @@ def test_parts_are_not_forked_with_other_threads_running_or_when_switched_off(mo
     monkeypatch.setattr(os, "cpu_count", lambda: 4)
     monkeypatch.delenv(pdf.PARALLEL_ENV, raising=False)
     if threading.active_count() == 1:
-        assert pdf.side_by_side_method() == "fork"
+        assert pdf.side_by_side()
     stop = threading.Event()
     worker = threading.Thread(target=stop.wait)
     worker.start()
     try:
-        assert pdf.side_by_side_method() is None  # a fork would copy locks the other thread may hold
+        assert not pdf.side_by_side()  # a fork would copy locks the other thread may hold
     finally:
         stop.set()
         worker.join()
     monkeypatch.setenv(pdf.PARALLEL_ENV, "0")
-    assert pdf.side_by_side_method() is None
+    assert not pdf.side_by_side()
     monkeypatch.setenv(pdf.PARALLEL_ENV, "1")
     monkeypatch.setattr(os, "cpu_count", lambda: 1)
-    assert pdf.side_by_side_method() is None  # one processor: nothing to gain
+    assert not pdf.side_by_side()  # one processor: nothing to gain
 
 
 def test_joined_file_keeps_the_title_and_both_parts_outlines(plan):

@@ -57,14 +57,12 @@ def _week_tick_every(n: int) -> int:
     return math.ceil(n / 8)
 
 
-def _text(x: float, y: float, text: str, size: int = TICK, anchor: str = "middle", weight: str = "normal",
-          rotate: float | None = None) -> str:
+def _text(x: float, y: float, text: str, size: int = TICK, anchor: str = "middle", weight: str = "normal") -> str:
     # Tick size, centred, normal weight and black ink are inherited from the <svg> element;
     # only other values are written: fewer attributes parse and cascade faster in the PDF.
     attrs = "".join((f' font-size="{size}"' if size != TICK else "",
                      f' text-anchor="{anchor}"' if anchor != "middle" else "",
-                     f' font-weight="{weight}"' if weight != "normal" else "",
-                     f' transform="rotate({rotate:g} {x:.1f} {y:.1f})"' if rotate is not None else ""))
+                     f' font-weight="{weight}"' if weight != "normal" else ""))
     return f'<text x="{x:.1f}" y="{y:.1f}"{attrs}>{escape(text)}</text>'
 
 

@@ -65,19 +65,17 @@ def collections_paused() -> Iterator[None]:
             gc.enable()
 
 
-def side_by_side_method() -> str | None:
-    """"fork" when a part may be laid out in a forked child beside this process, else None.
+def side_by_side() -> bool:
+    """Whether a part may be laid out in a forked child beside this process.
 
     See the module's docstring for when that is.
     """
     if os.environ.get(PARALLEL_ENV, "1").strip().lower() in ("0", "no", "false", "off"):
-        return None
+        return False
     if (os.cpu_count() or 1) < 2:
-        return None  # nothing to gain
-    if "fork" not in multiprocessing.get_all_start_methods():
-        return None
+        return False  # nothing to gain
     # Forking a process that runs other threads can copy a lock another thread holds.
-    return "fork" if threading.active_count() == 1 else None
+    return "fork" in multiprocessing.get_all_start_methods() and threading.active_count() == 1
 
 
 def _child(html: str, base_url: str | None, conn) -> None:
@@ -120,15 +118,13 @@ def _start_child(html: str, base_url: str | None) -> Callable[[], bytes | None]:
 def render_parts(htmls: Sequence[str], base_url: str | None = None, parallel: bool | None = None) -> list[bytes]:
     """Each HTML document as PDF bytes, all but the first in children when allowed.
 
-    ``parallel`` None decides with :func:`side_by_side_method`; False lays them out in turn
-    here; True forks even where :func:`side_by_side_method` would not (tests).
+    ``parallel`` None decides with :func:`side_by_side`; False lays them out in turn
+    here; True forks even where :func:`side_by_side` would not (tests).
     """
     htmls = list(htmls)
-    method = side_by_side_method() if parallel is None else None
-    if parallel:
-        method = "fork"
+    fork = side_by_side() if parallel is None else parallel
     with collections_paused():
-        if method is None or len(htmls) < 2:
+        if not fork or len(htmls) < 2:
             return [html_to_pdf(h, base_url) for h in htmls]
         waits = []
         for html in htmls[1:]:
