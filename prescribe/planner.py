@@ -188,12 +188,9 @@ def option_range(name: str) -> tuple[int, int]:
 
     Forms offer exactly these values, so a choice on screen is never refused for its range.
     """
-    field = PlanOptions.model_fields.get(name)
-    low = next((m.ge for m in getattr(field, "metadata", ()) if hasattr(m, "ge")), None)
-    high = next((m.le for m in getattr(field, "metadata", ()) if hasattr(m, "le")), None)
-    if low is None or high is None:
+    if name not in OPTION_RANGES:
         raise ValueError(f"{name} is not a whole-number option with a range")
-    return int(low), int(high)
+    return OPTION_RANGES[name]
 
 
 def fixed_options(plan: Plan) -> dict[str, Any]:

@@ -66,18 +66,30 @@ def _environment() -> Environment:
 
 
 def handout_context(plan: Plan, audience: str, paper: str, clinic: Clinic) -> dict:
-    """Everything the template shows, worked out from the plan."""
+    """Everything the template shows, worked out from the plan.
+
+    What only the person's pages show (charts, tables, guides) or only the clinician's
+    (dose rows, evidence) is worked out only when those pages are printed; a PDF for both
+    audiences renders each audience's page on its own.
+    """
     facts = content.week_facts(plan)
+    person, clinician = audience in ("person", "both"), audience in ("clinician", "both")
     return {
         "plan": plan, "audience": audience, "paper": paper, "page_size": PAPERS[paper],
-        "person": audience in ("person", "both"), "clinician": audience in ("clinician", "both"),
+        "person": person, "clinician": clinician,
         "clinic": clinic, "short_caution": SHORT_CAUTION, "cautions": content.all_cautions(plan),
-        "goals": content.goals(plan), "glance": content.at_a_glance(plan, facts),
-        "next_review": content.next_review(plan), "reviews": content.review_weeks(plan),
-        "table": content.week_table(plan), "dose_rows": content.dose_rows(plan), "guides": content.exercise_guides(plan), "bouts": content.bout_advice(plan),
-        "impacts_chart": charts.impacts_chart(plan), "intensity_chart": charts.intensity_chart(plan),
-        "screening": plan.screening, "level_labels": content.LEVEL_LABELS,
-        "evidence": content.evidence(plan), "if_hard_general": content.IF_HARD_GENERAL,
+        "glance": content.at_a_glance(plan, facts),
+        "goals": content.goals(plan) if person else None,
+        "next_review": content.next_review(plan) if person else None,
+        "reviews": content.review_weeks(plan) if person else None,
+        "table": content.week_table(plan) if person else None,
+        "guides": content.exercise_guides(plan) if person else None,
+        "bouts": content.bout_advice(plan) if person else None,
+        "impacts_chart": charts.impacts_chart(plan) if person else None,
+        "intensity_chart": charts.intensity_chart(plan) if person else None,
+        "dose_rows": content.dose_rows(plan) if clinician else None,
+        "evidence": content.evidence(plan) if clinician else None,
+        "screening": plan.screening, "level_labels": content.LEVEL_LABELS, "if_hard_general": content.IF_HARD_GENERAL,
         "versions": [("Tool version (plan)", plan.tool_version), ("Rule-set version", plan.ruleset_version),
                      ("Plan format", plan.plan_format_version), ("Plan created", plan.created),
                      ("Handout made by", f"prescribe {__version__}, plan format {PLAN_FORMAT_VERSION}")],
