@@ -231,6 +231,8 @@ def _evaluate(rules: SessionRuleSet, plan: dict, sessions: list[LoggedSession], 
             falls = [s.record.session_date for s in scope if s.record.fell_since_last]
             if falls:
                 fired.append(_reason(rule, "reported at the session of " + ", ".join(falls)))
+        elif k == "always":
+            fired.append(_reason(rule))
         elif latest is None:
             if k == "no_sessions":
                 fired.append(_reason(rule))
