@@ -420,6 +420,8 @@ def _adjusted(plan: dict, week: int, decision: str, reasons: list[dict], e1rm: d
         if decision == "progress":
             changes.append(f"week {week} as planned: {_describe(weeks[week - 1])}" if week <= len(weeks)
                            else "the program's last week has passed: review it and plan the next block")
+        elif week <= len(weeks) and seq[week - 1][0] + 1 == week:
+            changes.append(f"week {week} as written: there is no earlier week to go back to")
         elif week <= len(weeks):
             src = seq[week - 1][0] + 1
             what = "repeats" if decision == "hold" else "goes back to"
