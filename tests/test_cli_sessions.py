@@ -79,7 +79,7 @@ def test_save_plan_stores_the_next_version_and_refuses_an_unsafe_one(cli, files,
     unsafe = tmp / "unsafe.json"
     unsafe.write_text(json.dumps(data))
     r = cli("save", person, "--plan", unsafe, "--clinician", "EP")
-    assert r.code == 2 and "rule 1" in r.err and "week 3" in r.err and r.out == ""
+    assert r.code == 2 and "impact" in r.err and "week 3" in r.err and r.out == "", r.err
     other = dict(data, patient_id="SOMEONE-ELSE")
     unsafe.write_text(json.dumps(other))
     r = cli("save", person, "--plan", unsafe)

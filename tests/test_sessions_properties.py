@@ -46,7 +46,7 @@ def _safety(plan: dict) -> list:
         from prescribe.safety import check_program
     except ImportError:
         return problems
-    return problems + list(check_program(parsed))
+    return problems + [v.message for v in check_program(parsed)]
 
 
 @st.composite

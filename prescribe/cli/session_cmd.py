@@ -87,7 +87,7 @@ def checked_plan_file(path: str, record, screening) -> dict:
     if plan.patient_id != record.patient_id:
         raise InputError.single("plan.patient_id", plan.patient_id,
                                 f"the patient record's patient_id {record.patient_id!r}", source=path)
-    assert_program_safe(plan, screening, door=f"save --plan {path}")
+    assert_program_safe(plan, screening, door=f"prescribe save --plan {path}", record=record)
     return data
 
 
@@ -194,7 +194,8 @@ def adjust_person(store, patient_id: str, *, today: date, apply: bool = False, c
     if apply:
         from ..store import now_utc
         program["created"] = now_utc()
-        assert_program_safe(program, door=f"adjust --apply {patient_id}")  # refused: exit 2, nothing stored
+        # refused: exit 2, nothing stored
+        assert_program_safe(program, door=f"prescribe adjust --apply {patient_id}", record=record)
         new_version = store.save_program(
             patient_id, program, clinician, based_on_version=version,
             note=f"adjusted: {advice.decision} from week {advice.week}", action="program_adjusted",
