@@ -17,6 +17,7 @@ from pathlib import Path
 from ..errors import InputError, NotFoundError
 from ..fileio import write_atomically
 from ..records import read_json_file
+from ..store.adjust import adjust_person
 from .output import emit_json, emit_table
 
 DB_HELP = ("the store: a file path or a database URL (default: $PRESCRIBE_DB, else "
@@ -154,7 +155,10 @@ def run_adjust(args) -> int:
         raise InputError.single("--date", args.date, f"a day not in the future (today is {date.today()})")
     clinician = clinician_of(args, required=True) if args.apply else None
     with _open(args, args.patient_id) as store:
-        result = adjust_person(store, args.patient_id, today=today, apply=args.apply, clinician=clinician)
+        try:
+            result = adjust_person(store, args.patient_id, today=today, apply=args.apply, clinician=clinician)
+        except NotFoundError:
+            raise _unknown(args.patient_id, store) from None
     if args.out:
         write_atomically(Path(args.out), json.dumps(result.pop("_program"), indent=2, ensure_ascii=False) + "\n",
                          "--out")
@@ -163,46 +167,3 @@ def run_adjust(args) -> int:
         result.pop("_program")
     emit_json(result)
     return 0
-
-
-def adjust_person(store, patient_id: str, *, today: date, apply: bool = False, clinician: str | None = None) -> dict:
-    """The advice for one stored person (and, with ``apply``, the stored new version).
-
-    Shared by the command line and the app.  The returned dict is the printed advice
-    plus ``_program`` (the adjusted plan).
-    """
-    from ..sessions.engine import assess
-    from ..sessions.gate import assert_program_safe
-    try:
-        record = store.get_patient(patient_id)
-    except NotFoundError:
-        raise _unknown(patient_id, store) from None
-    version = store.latest_program_version(patient_id)
-    if version is None:
-        raise InputError.single("patient_id", patient_id, "a person with a stored program (store one with "
-                                                          "`prescribe save PATIENT.json --plan PLAN.json`)")
-    plan = store.get_program(patient_id, version)
-    advice = assess(plan, store.logged_sessions(patient_id), today=today, baseline_pain=record.pain_score,
-                    program_version=version)
-    out = advice.as_dict()
-    out["current_program_version"] = version
-    program = dict(advice.program)
-    program.update(based_on_version=version,
-                   adjustment={"decision": advice.decision, "week": advice.week, "as_of": advice.as_of,
-                               "reasons": advice.reasons, "changes": advice.changes,
-                               "session_ruleset_version": advice.ruleset_version})
-    if apply:
-        from ..store import now_utc
-        program["created"] = now_utc()
-        # refused: exit 2, nothing stored
-        assert_program_safe(program, door=f"prescribe adjust --apply {patient_id}", record=record)
-        new_version = store.save_program(
-            patient_id, program, clinician, based_on_version=version,
-            note=f"adjusted: {advice.decision} from week {advice.week}", action="program_adjusted",
-            audit_detail={"decision": advice.decision, "week": advice.week,
-                          "reasons": [r["rule"] for r in advice.reasons], "changes": advice.changes})
-        out["program_version"] = new_version
-        out["based_on_version"] = version
-        out["applied_by"] = clinician
-    out["_program"] = program
-    return out
