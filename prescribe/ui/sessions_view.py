@@ -427,7 +427,7 @@ class SessionCharts:
                                colors=["#c9d3dd", INK], labels=["planned", "done"], display_legend=True, padding=0.2)
         self.impacts_figure = bq.Figure(
             title="Impacts a week: planned (light) and done (dark); shaded: weak window",
-            marks=[shade(), self.impacts], axes=[axis_x(), bq.Axis(scale=self.y_imp, orientation="vertical",
+            marks=[shade(), self.impacts], axes=[axis_x(), bq.Axis(scale=self.y_imp, side="left",
                                                                    label="impacts", tick_format="d")],
             fig_margin=margin, legend_location="top-left", layout={"width": "100%", "height": "250px"})
         self.impacts_figure.add_class("pr-live-chart-impacts")
@@ -442,8 +442,8 @@ class SessionCharts:
         self.dose_figure = bq.Figure(
             title="Minutes a week and top load: planned and done",
             marks=[shade(), self.minutes, self.loads],
-            axes=[axis_x(), bq.Axis(scale=self.y_min, orientation="vertical", label="minutes", tick_format="d"),
-                  bq.Axis(scale=self.y_kg, orientation="vertical", side="right", label="kg", color=ACCENT)],
+            axes=[axis_x(), bq.Axis(scale=self.y_min, side="left", label="minutes", tick_format="d"),
+                  bq.Axis(scale=self.y_kg, side="right", label="kg", color=ACCENT)],
             fig_margin=margin, legend_location="top-left", layout={"width": "100%", "height": "250px"})
         self.dose_figure.add_class("pr-live-chart-dose")
         self.y_pain = bq.LinearScale(min=0.0, max=10.0)
@@ -454,7 +454,7 @@ class SessionCharts:
         self.pain_figure = bq.Figure(
             title="Pain and effort (0-10) by week; shaded: weak window",
             marks=[shade(), self.pain],
-            axes=[axis_x(), bq.Axis(scale=self.y_pain, orientation="vertical", label="0-10", tick_format="d")],
+            axes=[axis_x(), bq.Axis(scale=self.y_pain, side="left", label="0-10", tick_format="d")],
             fig_margin=margin, legend_location="top-left", layout={"width": "100%", "height": "250px"})
         self.pain_figure.add_class("pr-live-chart-pain")
 
