@@ -28,6 +28,7 @@ from __future__ import annotations
 import math
 import re
 from dataclasses import dataclass, field
+from functools import lru_cache
 from datetime import date
 from statistics import mean
 from typing import Any, Iterable
@@ -88,6 +89,7 @@ def plan_start(plan: dict) -> date:
     return date.fromisoformat(text)
 
 
+@lru_cache(maxsize=256)
 def pct_1rm(intensity: str | None) -> float | None:
     m = _PCT.search(intensity or "")
     return float(m.group(1)) if m else None
@@ -154,12 +156,21 @@ def _planned_reps(plan: dict, week: int, exercise_id: str) -> int | None:
     return None
 
 
+_LAST_HISTORY: list = [(None, None)]
+
+
 def _lift_history(sessions: list[LoggedSession]) -> dict[str, list[tuple[LoggedSession, Any]]]:
+    """Per lift, the (session, exercise) entries with a load and reps, oldest first (the last
+    list asked for is remembered: one assessment asks three times)."""
+    last = _LAST_HISTORY[0]  # one read: safe when threads share the module
+    if last[0] is sessions:
+        return last[1]
     out: dict[str, list] = {}
     for s in sessions:
         for x in s.record.exercises:
             if x.load_kg is not None and x.load_kg > 0 and x.reps_done:
                 out.setdefault(x.exercise_id, []).append((s, x))
+    _LAST_HISTORY[0] = (sessions, out)
     return out
 
 
@@ -291,6 +302,21 @@ def _exceeds(a: tuple, b: tuple) -> bool:
     return any(x > y + 1e-9 for x, y in zip(a, b))
 
 
+_DOSES: dict[int, tuple[list, list]] = {}
+
+
+def _doses(weeks: list[dict]) -> list[tuple]:
+    """week_dose of every week, remembered for the same (never changed) list of weeks."""
+    hit = _DOSES.get(id(weeks))
+    if hit is not None and hit[0] is weeks:
+        return hit[1]
+    doses = [week_dose(w) for w in weeks]
+    if len(_DOSES) >= 16:
+        _DOSES.clear()
+    _DOSES[id(weeks)] = (weeks, doses)
+    return doses
+
+
 def compose_weeks(weeks: list[dict], week: int, back: int) -> tuple[list[tuple[int, bool]], list[str]]:
     """The new program as a list of (index of the old week whose dose it takes, repeated by the guard).
 
@@ -299,37 +325,34 @@ def compose_weeks(weeks: list[dict], week: int, back: int) -> tuple[list[tuple[i
     raise anything in weeks 3-5 after a step-up of the new sequence, when it repeats.
     """
     n = len(weeks)
-    doses = [week_dose(w) for w in weeks]
+    doses = _doses(weeks)
     seq: list[tuple[int, bool]] = [(i, False) for i in range(week - 1)]
     notes: list[str] = []
     first = max(0, week - 1 - back)
-    levels = [doses[i][0] for i, _ in seq]
+    prev_level, s = 0, None  # s: 0-based index of the last step-up of the new sequence
+    for j, (i, _) in enumerate(seq):
+        if doses[i][0] > prev_level:
+            s = j
+        prev_level = doses[i][0]
 
-    def last_step_up() -> int | None:
-        prev, found = 0, None
-        for j, lv in enumerate(levels):
-            if lv > prev:
-                found = j
-            prev = lv
-        return found
+    def append(i: int, repeated: bool) -> None:
+        nonlocal prev_level, s
+        if doses[i][0] > prev_level:
+            s = len(seq)
+        prev_level = doses[i][0]
+        seq.append((i, repeated))
 
     idx = first
     while idx < n:
-        cand = idx
         k = len(seq)  # 0-based new week
-        s = last_step_up()
-        rises_level = doses[cand][0] > (levels[-1] if levels else 0)
         if s is not None and 3 <= k - s + 1 <= 5 and seq:
-            base = doses[seq[s + 1][0]] if s + 1 < len(seq) else doses[seq[-1][0]]
-            if rises_level or _exceeds(doses[cand], base):
-                prev_i = seq[-1][0]
-                seq.append((prev_i, True))
-                levels.append(doses[prev_i][0])
+            base = doses[seq[s + 1][0]]
+            if doses[idx][0] > prev_level or _exceeds(doses[idx], base):
                 notes.append(f"week {k + 1} repeats the dose of week {k} (weeks 3-5 after the step-up in "
                              f"week {s + 1}: nothing rises)")
+                append(seq[-1][0], True)
                 continue
-        seq.append((cand, False))
-        levels.append(doses[cand][0])
+        append(idx, False)
         idx += 1
     return seq, notes
 

@@ -21,14 +21,11 @@ def adjust_person(store, patient_id: str, *, today: date, apply: bool = False, c
     """
     from ..sessions.engine import assess
     from ..sessions.gate import assert_program_safe
-    record = store.get_patient(patient_id)  # NotFoundError names the id
-    version = store.latest_program_version(patient_id)
+    record, version, plan, sessions = store.session_context(patient_id)  # NotFoundError names the id
     if version is None:
         raise InputError.single("patient_id", patient_id, "a person with a stored program (store one with "
                                                           "`prescribe save PATIENT.json --plan PLAN.json`)")
-    plan = store.get_program(patient_id, version)
-    advice = assess(plan, store.logged_sessions(patient_id), today=today, baseline_pain=record.pain_score,
-                    program_version=version)
+    advice = assess(plan, sessions, today=today, baseline_pain=record.pain_score, program_version=version)
     out = advice.as_dict()
     out["current_program_version"] = version
     program = dict(advice.program)

@@ -93,6 +93,10 @@ class Store:
         self.url = self._url.render_as_string(hide_password=True)
         self.is_sqlite = self._url.get_backend_name() == "sqlite"
         self.path: Path | None = None
+        # Program versions and session records never change once stored: parsed copies are
+        # kept here for the session engine's reads (read-only; see program_for_reading).
+        self._plan_cache: dict[tuple[str, int], tuple[str, dict]] = {}
+        self._session_cache: dict[tuple[int, str], Any] = {}
         revision: str | None | bool = False  # False: not known before connecting
         if self.is_sqlite:
             database = self._url.database
@@ -425,7 +429,7 @@ class Store:
         at = now_utc()
         with self._write() as conn:
             _person(conn, pid, lock=True)
-            query = select(m.program_versions.c.version, m.program_versions.c.plan_json).where(
+            query = select(m.program_versions.c.version, m.program_versions.c.created).where(
                 m.program_versions.c.patient_id == pid)
             if session.program_version is None:
                 row = conn.execute(query.order_by(m.program_versions.c.version.desc()).limit(1)).first()
@@ -441,7 +445,13 @@ class Store:
                     raise InputError.single("program_version", session.program_version,
                                             f"a stored program version of {pid!r} " +
                                             (f"(1 to {have})" if have else "(none is stored yet)"))
-            plan = json.loads(row.plan_json)
+            hit = self._plan_cache.get((pid, row.version))
+            if hit is not None and hit[0] == row.created:
+                plan = hit[1]
+            else:
+                plan = json.loads(conn.execute(select(m.program_versions.c.plan_json).where(
+                    m.program_versions.c.patient_id == pid, m.program_versions.c.version == row.version)).scalar())
+                self._plan_cache[(pid, row.version)] = (row.created, plan)
             start = plan.get("start_date") or str(plan.get("created", ""))[:10] or None
             check_session_dates(session, start, today)
             week = program_week(start, session.session_date) if start else None
@@ -467,16 +477,66 @@ class Store:
         return [_session_out(r) for r in rows]
 
     def logged_sessions(self, patient_id: str) -> list:
-        """The person's sessions as :class:`prescribe.sessions.engine.LoggedSession` (for the engine)."""
+        """The person's sessions with a full record, oldest first, as
+        :class:`prescribe.sessions.engine.LoggedSession` (for the engine; shared, read-only)."""
+        with self._read() as conn:
+            _person(conn, patient_id)
+            return self._logged_sessions(conn, patient_id)
+
+    def program_for_reading(self, patient_id: str, version: int | None = None) -> tuple[int, dict]:
+        """(version, plan) of one program version (the latest when ``version`` is None).
+
+        The plan is a shared parsed copy: read it, never change it (use :meth:`get_program`
+        for a copy of your own).  Versions never change once stored, so repeated reads
+        (the session engine's) skip parsing the JSON again.
+        """
+        with self._read() as conn:
+            _person(conn, patient_id)
+            return self._program_for_reading(conn, patient_id, version)
+
+    def session_context(self, patient_id: str) -> tuple[PatientRecord, int | None, dict | None, list]:
+        """What the session engine needs, in one read: (record, latest program version, its plan
+        (shared, read-only) or None, the logged sessions)."""
+        with self._read() as conn:
+            row = _person(conn, patient_id)
+            try:
+                version, plan = self._program_for_reading(conn, patient_id, None)
+            except NotFoundError:
+                version, plan = None, None
+            sessions = self._logged_sessions(conn, patient_id)
+        record = parse_record(json.loads(row.record_json), source=f"store record {patient_id!r}")
+        return record, version, plan, sessions
+
+    def _logged_sessions(self, conn: Connection, patient_id: str) -> list:
         from ..sessions.engine import LoggedSession
         from ..sessions.records import SessionRecord
-        out = []
-        for s in self.sessions(patient_id):
-            if s.get("legacy"):
-                continue
-            rec = SessionRecord.model_validate({k: s[k] for k in SessionRecord.model_fields if k in s})
-            out.append(LoggedSession(rec, s["week"] or 0, s["program_version"], s["session_id"]))
-        return out
+        t = m.session_logs.c
+        keys = conn.execute(select(t.id, t.created).where(t.patient_id == patient_id, t.session_json.is_not(None))
+                            .order_by(t.session_date, t.id)).all()
+        missing = [k.id for k in keys if (k.id, k.created) not in self._session_cache]
+        if missing:
+            rows = conn.execute(select(t.id, t.created, t.week, t.program_version, t.session_json)
+                                .where(t.id.in_(missing))).all()
+            for r in rows:
+                rec = SessionRecord.model_validate_json(r.session_json)
+                self._session_cache[(r.id, r.created)] = LoggedSession(rec, r.week or 0, r.program_version, r.id)
+        return [self._session_cache[(k.id, k.created)] for k in keys]
+
+    def _program_for_reading(self, conn: Connection, patient_id: str, version: int | None) -> tuple[int, dict]:
+        t = m.program_versions.c
+        query = select(t.version, t.created).where(t.patient_id == patient_id)
+        query = query.order_by(t.version.desc()).limit(1) if version is None else query.where(t.version == version)
+        row = conn.execute(query).first()
+        if row is None:
+            what = "no saved program" if version is None else f"no program version {version}"
+            raise NotFoundError(f"{patient_id!r} has {what} in the store")
+        hit = self._plan_cache.get((patient_id, row.version))
+        if hit is not None and hit[0] == row.created:
+            return row.version, hit[1]
+        plan = json.loads(conn.execute(select(t.plan_json).where(t.patient_id == patient_id,
+                                                                 t.version == row.version)).scalar())
+        self._plan_cache[(patient_id, row.version)] = (row.created, plan)
+        return row.version, plan
 
     def session_logs(self, patient_id: str) -> list[dict]:
         with self._read() as conn:
