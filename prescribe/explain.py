@@ -423,23 +423,25 @@ def plain_words(result: dict[str, Any]) -> list[str]:
         first = (f"{name}: almost no weight goes through your legs; only the working muscles pull on your "
                  f"hip, about {_times(hip)} times your body weight at most.")
     else:
-        leg = " through each leg" if result["legs_loaded"] > 1 else ""
-        first = (f"{name}: the floor pushes back with about {_times(result['peak_grf_bw'])} times "
-                 f"your body weight, and the muscles around your hip pull at the same moment, so your hip joint "
-                 f"carries about {_times(hip)} times your body weight{leg}.")
+        if result["legs_loaded"] > 1:
+            floor, joint = "shared by both feet", "each hip joint carries"
+        else:
+            floor, joint = "through one foot", "your hip joint carries"
+        first = (f"{name}: the floor pushes back with about {_times(result['peak_grf_bw'])} times your body "
+                 f"weight, {floor}, and the muscles around your hip pull at the same moment, so {joint} about "
+                 f"{_times(hip)} times your body weight.")
     pct = max(1, round(100 * result["share_of_strength"]))
     density = "your bone density" if result["t_score_given"] else f"a T-score of {result['t_score']:g}"
     signal = ("a strong signal for the bone to build up" if result["osteogenic"]
-              else "a steady, gentle load on the bone")
+              else "a steady load on the bone")
     share = result["share_of_strength"]
     if share < 1 / 3:
-        second = (f"At {density} that is about {pct}% of what your thigh bone can take: {signal}, "
-                  "with a wide margin.")
+        second = f"At {density} that is about {pct}% of what your thigh bone can take: {signal}, with a wide margin."
     elif share < 2 / 3:
-        second = (f"At {density} that is about {pct}% of what your thigh bone can take: a smaller margin "
-                  "than most exercises, so keep to the amount and technique your clinician sets.")
+        second = (f"At {density} that is about {pct}% of what your thigh bone can take: {signal}, with a smaller "
+                  "margin than most exercises, so keep to the amount and technique your clinician sets.")
     else:
-        second = (f"At {density} that comes close to what your thigh bone can take (about {pct}%): "
+        second = (f"At {density} that is about {pct}% of what your thigh bone can take, close to its limit: "
                   "do not do this exercise unless your clinician has checked it with you.")
     return [first, second]
 
