@@ -500,7 +500,7 @@ def force_bars(result: dict[str, Any]) -> list[dict[str, Any]]:
             ("ground_force", "Ground force", result["peak_grf_bw"])]
     if result["legs_loaded"] > 1:
         bars.append(("ground_force_per_leg", "Ground force, one leg", result["ground_force_per_leg_bw"]))
-    bars += [("muscle_force", "Muscle pull at the hip", result["muscle_force_bw"]),
-             ("joint_contact_force", "Hip contact force", result["joint_contact_force_bw"])]
+    bars += [("muscle_force", "Muscle pull, at the hip", result["muscle_force_bw"]),
+             ("joint_contact_force", "Hip joint, contact force", result["joint_contact_force_bw"])]
     return [{"key": k, "label": label, "bw": round(float(bw), 3), "n": round(float(bw) * weight_n, 1)}
             for k, label, bw in bars]
