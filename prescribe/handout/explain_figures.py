@@ -19,10 +19,10 @@ from typing import Any
 from ..explain import explain_exercise, force_bars, stress_strain_picture
 
 WIDTH, HEIGHT = 760, 360
-LEFT, RIGHT, TOP, BOTTOM = 78, 30, 24, 62
+LEFT, RIGHT, TOP, BOTTOM = 92, 30, 30, 72
 FONT = "DejaVu Sans, Liberation Sans, Arial, sans-serif"
 INK, GRID, FILL, LIGHT = "#000000", "#bdbdbd", "#8c8c8c", "#d9d9d9"
-TICK = 20
+TICK = 26
 
 #: Plan exercise categories grouped into the kinds the clinician page explains.
 KINDS: tuple[tuple[str, tuple[str, ...], str], ...] = (
@@ -105,14 +105,14 @@ def stress_strain_svg(picture: dict[str, Any], svg_id: str = "explain-ss") -> Fi
         v += y_step
     v = 0.0
     while v <= x_top + 1e-9:
-        labels.append(_text(px(v), TOP + ph + 26, _fmt(v)))
+        labels.append(_text(px(v), TOP + ph + 30, _fmt(v)))
         v += x_step
     parts.append(f'<path class="grid" d="{"".join(grid)}" stroke="{GRID}" stroke-width="0.8" fill="none"/>')
     parts += labels
     parts.append(f'<path d="M{LEFT},{TOP}V{TOP + ph}H{LEFT + pw}" stroke="{INK}" stroke-width="1.5" fill="none"/>')
-    parts.append(_text(LEFT + pw / 2, HEIGHT - 8, "strain (%)", size=18))
-    parts.append(_text(18, TOP + ph / 2, "stress (MPa)", size=18).replace(
-        "<text ", f'<text transform="rotate(-90 18 {TOP + ph / 2:.1f})" ', 1))
+    parts.append(_text(LEFT + pw / 2, HEIGHT - 8, "strain (%)", size=24))
+    parts.append(_text(22, TOP + ph / 2, "stress (MPa)", size=24).replace(
+        "<text ", f'<text transform="rotate(-90 22 {TOP + ph / 2:.1f})" ', 1))
     for key, dash, width in (("healthy", "", 3), ("this_person", ' stroke-dasharray="10 5"', 3)):
         curve = picture["curves"][key]
         pts = " ".join(f"{px(e):.1f},{py(s):.1f}" for e, s in zip(curve["strain_pct"], curve["stress_mpa"]))
@@ -126,7 +126,7 @@ def stress_strain_svg(picture: dict[str, Any], svg_id: str = "explain-ss") -> Fi
     parts.append(f'<path d="M{LEFT},{my:.1f}H{mx:.1f}" stroke="{INK}" stroke-width="1" stroke-dasharray="3 3"/>')
     parts.append(f'<circle class="pr-explain-marker" cx="{mx:.1f}" cy="{my:.1f}" r="8" fill="{FILL}" '
                  f'stroke="{INK}" stroke-width="2.5"/>')
-    parts.append(_text(mx + 14, my - 10, f"{marker['stress_mpa']:.0f} MPa", size=18, anchor="start", weight="bold"))
+    parts.append(_text(mx + 14, my - 10, f"{marker['stress_mpa']:.0f} MPa", size=24, anchor="start", weight="bold"))
     parts.append("</svg>")
     legend = (
         (_swatch(f'<line x1="0" y1="7" x2="26" y2="7" stroke="{INK}" stroke-width="3"/>'),
@@ -142,12 +142,12 @@ def stress_strain_svg(picture: dict[str, Any], svg_id: str = "explain-ss") -> Fi
 
 def force_bars_svg(bars: list[dict[str, Any]], title: str, svg_id: str = "explain-bars") -> Figure:
     """Draw :func:`prescribe.explain.force_bars`: one bar each, in body weights, newtons written on top."""
-    pw, ph = WIDTH - LEFT - RIGHT, HEIGHT - TOP - BOTTOM - 20
+    pw, ph = WIDTH - LEFT - RIGHT, HEIGHT - TOP - BOTTOM - 40
     top, step = _nice(max(b["bw"] for b in bars) * 1.12)
     band = pw / len(bars)
 
     def py(v: float) -> float:
-        return TOP + 20 + ph * (1 - v / top)
+        return TOP + 40 + ph * (1 - v / top)
 
     desc = "; ".join(f"{b['label']}: {b['bw']:.1f} times body weight ({b['n']:.0f} N)" for b in bars) + "."
     parts = _open(svg_id, "pr-explain-bars", title, desc)
@@ -159,8 +159,8 @@ def force_bars_svg(bars: list[dict[str, Any]], title: str, svg_id: str = "explai
         v += step
     parts.append(f'<path class="grid" d="{"".join(grid)}" stroke="{GRID}" stroke-width="0.8" fill="none"/>')
     parts += labels
-    parts.append(_text(18, TOP + 20 + ph / 2, "times body weight", size=18).replace(
-        "<text ", f'<text transform="rotate(-90 18 {TOP + 20 + ph / 2:.1f})" ', 1))
+    parts.append(_text(22, TOP + 20 + ph / 2, "times body weight", size=24).replace(
+        "<text ", f'<text transform="rotate(-90 22 {TOP + 20 + ph / 2:.1f})" ', 1))
     fills = {"body_weight": LIGHT, "ground_force": FILL, "ground_force_per_leg": FILL,
              "muscle_force": "#ffffff", "joint_contact_force": "#4d4d4d"}
     for i, b in enumerate(bars):
@@ -171,12 +171,13 @@ def force_bars_svg(bars: list[dict[str, Any]], title: str, svg_id: str = "explai
         parts.append(f'<rect class="pr-bar-{b["key"]}" x="{x0:.1f}" y="{y0:.1f}" width="{w:.1f}" '
                      f'height="{py(0) - y0:.1f}" fill="{fills.get(b["key"], FILL)}" stroke="{INK}" '
                      f'stroke-width="2"{hatch}/>')
-        parts.append(_text(x0 + w / 2, y0 - 24, f"{_fmt(b['bw'])} BW", size=18, weight="bold"))
-        parts.append(_text(x0 + w / 2, y0 - 6, f"{b['n']:.0f} N", size=16))
+        parts.append(_text(x0 + w / 2, y0 - 30, f"{_fmt(b['bw'])} BW", size=24, weight="bold"))
+        parts.append(_text(x0 + w / 2, y0 - 6, f"{b['n']:.0f} N", size=21))
         words = b["label"].split(", ")
+        size = 21 if len(bars) <= 4 else 18
         for j, line in enumerate(words[:2]):
-            parts.append(_text(x0 + w / 2, py(0) + 22 + 18 * j, line, size=16))
-    parts.append(f'<path d="M{LEFT},{TOP + 20}V{py(0):.1f}H{LEFT + pw}" stroke="{INK}" stroke-width="1.5" fill="none"/>')
+            parts.append(_text(x0 + w / 2, py(0) + 26 + 23 * j, line, size=size))
+    parts.append(f'<path d="M{LEFT},{TOP + 40}V{py(0):.1f}H{LEFT + pw}" stroke="{INK}" stroke-width="1.5" fill="none"/>')
     parts.append("</svg>")
     legend = ((_swatch(f'<rect x="4" y="0" width="18" height="14" fill="#4d4d4d" stroke="{INK}"/>'),
                "dark bar: force in the hip joint (ground force through the leg plus the muscles' pull)"),
