@@ -172,3 +172,16 @@ def test_force_bars_add_up():
     assert bars["joint_contact_force"]["bw"] > bars["ground_force"]["bw"] > bars["body_weight"]["bw"]
     one_leg = [b["key"] for b in force_bars(explain_exercise("walking"))]
     assert "ground_force_per_leg" not in one_leg
+
+
+def test_explain_is_domain_code():
+    # Layering (DEVELOPERS.md): domain code never imports the widgets, the store or the handout.
+    import subprocess
+    import sys
+    code = ("import sys, prescribe.explain, prescribe.bone_loads\n"
+            "bad = sorted(m for m in sys.modules if m.split('.')[0] in ('ipywidgets', 'bqplot', 'voila')\n"
+            "             or m.startswith(('prescribe.store', 'prescribe.handout', 'prescribe.ui')))\n"
+            "print(','.join(bad))")
+    proc = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=120)
+    assert proc.returncode == 0, proc.stderr
+    assert proc.stdout.strip() == ""
