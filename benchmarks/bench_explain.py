@@ -9,6 +9,7 @@ app and the handout draw), and their SVG, are timed alike.  Run: ``.venv/bin/pyt
 
 from __future__ import annotations
 
+import os
 import statistics
 import sys
 import time
@@ -49,18 +50,20 @@ def main(rounds: int = 40) -> None:
 
     for fn in (lookup, explain, explain_and_pictures, explain_and_svg):  # warm-up: imports, caches
         per_call_ms(fn, ids, 1)
-    base = statistics.median(per_call_ms(lookup, ids, rounds))
-    exp = statistics.median(per_call_ms(explain, ids, rounds))
-    pics = statistics.median(per_call_ms(explain_and_pictures, ids, rounds))
-    svg = statistics.median(per_call_ms(explain_and_svg, ids, rounds))
     n = rounds * len(ids)
-    print(f"catalogue lookup (baseline): median {base * 1e3:.2f} us a call over {n} calls")
-    print(f"explain_exercise: median {exp:.3f} ms a call, x{exp / base:.0f} the baseline; "
-          f"goal under {GOAL_MS:g} ms: {'met' if exp < GOAL_MS else 'NOT met'}")
-    print(f"explain_exercise + both pictures' data: median {pics:.3f} ms a call, x{pics / base:.0f} the baseline; "
-          f"goal under {GOAL_MS:g} ms: {'met' if pics < GOAL_MS else 'NOT met'}")
-    print(f"explain_exercise + both pictures drawn as SVG (the app's redraw): median {svg:.3f} ms a call, "
-          f"x{svg / base:.0f} the baseline")
+    runs = {name: per_call_ms(fn, ids, rounds) for name, fn in (
+        ("catalogue lookup (baseline)", lookup), ("explain_exercise", explain),
+        ("explain_exercise + both pictures' data", explain_and_pictures),
+        ("explain_exercise + both pictures drawn as SVG (the app's redraw)", explain_and_svg))}
+    base = statistics.median(runs["catalogue lookup (baseline)"])
+    for name, times in runs.items():
+        med = statistics.median(times)
+        line = (f"{name}: median {med:.4f} ms (min {min(times):.4f}, max {max(times):.3f}) a call over {n} calls, "
+                f"x{med / base:.0f} the baseline")
+        if name != "catalogue lookup (baseline)":
+            line += f"; goal under {GOAL_MS:g} ms: {'met' if med < GOAL_MS else 'NOT met'}"
+        print(line)
+    print(f"machine load (1, 5, 15 min): {os.getloadavg()}")
 
 
 if __name__ == "__main__":

@@ -440,9 +440,12 @@ def plain_words(result: dict[str, Any]) -> list[str]:
     elif share < 2 / 3:
         second = (f"At {density} that is about {pct}% of what your thigh bone can take: {signal}, with a smaller "
                   "margin than most exercises, so keep to the amount and technique your clinician sets.")
-    else:
+    elif share < 1:
         second = (f"At {density} that is about {pct}% of what your thigh bone can take, close to its limit: "
                   "do not do this exercise unless your clinician has checked it with you.")
+    else:
+        second = (f"At {density} that is more than this simple model says your thigh bone can take: do not do "
+                  "this exercise unless your clinician has checked it with you.")
     return [first, second]
 
 

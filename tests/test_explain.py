@@ -151,12 +151,24 @@ def test_stress_strain_picture_points():
 
 
 def test_marker_on_plastic_region_when_stress_passes_yield():
+    # A forceful stamp (hip capped at 8.7 BW) for 70 kg at T = -3.35: the person's strength
+    # is 0.5314^2 x 193 = 54.5 MPa, yield 49 MPa, the peak stress about 52 MPa.
+    r = explain_exercise("stamp_forceful", body_mass_kg=70, t_score=-3.35)
+    pic = stress_strain_picture(r)
+    person, m = pic["curves"]["this_person"], pic["marker"]
+    assert person["stress_mpa"][1] < m["stress_mpa"] < person["ultimate_mpa"]
+    assert person["strain_pct"][1] < m["strain_pct"] < person["strain_pct"][-2]
+    assert "close to its limit" in r["plain_words"][1]
+
+
+def test_marker_at_the_break_when_stress_passes_strength():
     r = explain_exercise("stamp_forceful", body_mass_kg=90, t_score=-5.0)
     pic = stress_strain_picture(r)
-    person = pic["curves"]["this_person"]
-    m = pic["marker"]
-    if m["stress_mpa"] > person["stress_mpa"][1]:
-        assert person["strain_pct"][1] < m["strain_pct"] <= person["strain_pct"][-2]
+    person, m = pic["curves"]["this_person"], pic["marker"]
+    assert m["stress_mpa"] > person["ultimate_mpa"]
+    assert m["strain_pct"] == person["strain_pct"][-2]
+    assert r["share_of_strength"] > 1 and r["safety_factor"]["compression"] < 1
+    assert "more than this simple model says" in r["plain_words"][1]
 
 
 def test_force_bars_add_up():
