@@ -259,7 +259,7 @@ def explain_exercise(exercise_id: str, body_mass_kg: float | None = None, t_scor
         hip_range = (min(low_ratio * grf_leg_bw, hip_bw), max(high_ratio * grf_leg_bw, hip_bw))
     knee_bw = None
     if motion.knee is not None and grf_bw > 0:
-        knee_bw = _r(anchored_contact_force_bw(grf_bw, legs, motion.knee[0], motion.knee[1]))
+        knee_bw = _r(anchored_contact_force_bw(grf_bw, legs, motion.knee[0], motion.knee[1]), 4)
     hip_n = hip_bw * weight_n
     muscle_bw = hip_bw - grf_leg_bw
 
@@ -269,10 +269,10 @@ def explain_exercise(exercise_id: str, body_mass_kg: float | None = None, t_scor
     ratio = density_ratio_from_t_score(t)
     strength_healthy = {"compression": CORTICAL_STRENGTH_MPA[("compression", "longitudinal")],
                         "tension": CORTICAL_STRENGTH_MPA[("tension", "longitudinal")]}
-    strength_person = {k: _r(density_scaled(v, ratio, 2.0), 1) for k, v in strength_healthy.items()}
-    peak = {"compression": _r(stresses["compression"]), "tension": _r(stresses["tension"])}
+    strength_person = {k: _r(density_scaled(v, ratio, 2.0), 2) for k, v in strength_healthy.items()}
+    peak = {"compression": _r(stresses["compression"], 3), "tension": _r(stresses["tension"], 3)}
     with np.errstate(divide="ignore"):
-        safety = {k: (_r(strength_person[k] / peak[k], 1) if peak[k] > 0 else None) for k in peak}
+        safety = {k: (_r(strength_person[k] / peak[k], 2) if peak[k] > 0 else None) for k in peak}
     share = max(peak[k] / strength_person[k] for k in peak)
 
     rate = ex.loading_rate_bw_s
@@ -286,40 +286,40 @@ def explain_exercise(exercise_id: str, body_mass_kg: float | None = None, t_scor
         "t_score": t,
         "t_score_given": t_given,
         "external_load_kg": load,
-        "peak_grf_bw": _r(grf_bw, 3),
-        "peak_grf_n": _r(grf_bw * weight_n, 1),
+        "peak_grf_bw": _r(grf_bw, 4),
+        "peak_grf_n": _r(grf_bw * weight_n, 2),
         "peak_grf_range_bw": list(ex.peak_grf_range_bw),
         "loading_rate_bw_s": rate,
         "loading_rate_n_s": _r(rate * weight_n, 0) if rate is not None else None,
         "movement": motion.key,
         "movement_label": motion.label,
         "legs_loaded": legs,
-        "ground_force_per_leg_bw": _r(grf_leg_bw, 3),
+        "ground_force_per_leg_bw": _r(grf_leg_bw, 4),
         "joint": "hip",
-        "joint_contact_force_bw": _r(hip_bw),
-        "joint_contact_force_n": _r(hip_n, 1),
-        "joint_contact_force_range_bw": [_r(hip_range[0]), _r(hip_range[1])],
-        "muscle_force_bw": _r(muscle_bw),
-        "muscle_force_n": _r(muscle_bw * weight_n, 1),
+        "joint_contact_force_bw": _r(hip_bw, 4),
+        "joint_contact_force_n": _r(hip_n, 2),
+        "joint_contact_force_range_bw": [_r(hip_range[0], 4), _r(hip_range[1], 4)],
+        "muscle_force_bw": _r(muscle_bw, 4),
+        "muscle_force_n": _r(muscle_bw * weight_n, 2),
         "knee_contact_force_bw": knee_bw,
-        "knee_contact_force_n": _r(knee_bw * weight_n, 1) if knee_bw is not None else None,
+        "knee_contact_force_n": _r(knee_bw * weight_n, 2) if knee_bw is not None else None,
         "friction_coefficient": FRICTION_COEFFICIENT,
-        "joint_friction_n": _r(FRICTION_COEFFICIENT * hip_n, 2),
-        "joint_friction_range_n": [_r(FRICTION_RANGE[0] * hip_n, 2), _r(FRICTION_RANGE[1] * hip_n, 2)],
-        "bone_stress_mpa": _r(stresses["axial"]),
+        "joint_friction_n": _r(FRICTION_COEFFICIENT * hip_n, 3),
+        "joint_friction_range_n": [_r(FRICTION_RANGE[0] * hip_n, 3), _r(FRICTION_RANGE[1] * hip_n, 3)],
+        "bone_stress_mpa": _r(stresses["axial"], 3),
         "bone_stress_site": {
             "site": site.site,
-            "area_mm2": _r(stresses["area_mm2"], 1),
+            "area_mm2": _r(stresses["area_mm2"], 2),
             "outer_diameter_mm": site.outer_diameter_mm,
             "inner_diameter_mm": site.inner_diameter_mm,
-            "force_n": _r(hip_n, 1),
+            "force_n": _r(hip_n, 2),
             "stress": "the hip contact force over the shaft's cross-sectional area (axial)",
             "source": site.source,
         },
-        "bending_stress_mpa": _r(stresses["bending"]),
+        "bending_stress_mpa": _r(stresses["bending"], 3),
         "bending_eccentricity_mm": site.eccentricity_mm,
         "peak_stress_mpa": peak,
-        "density_ratio": _r(ratio, 3),
+        "density_ratio": _r(ratio, 4),
         "strength_mpa": {"healthy": strength_healthy["compression"],
                          "this_person": strength_person["compression"]},
         "strength_by_mode_mpa": {k: {"healthy": strength_healthy[k], "this_person": strength_person[k]}
