@@ -26,6 +26,7 @@ from .bone_loads import (CORTICAL_MODULUS_MPA, FEMORAL_NECK_YOUNG_BMD_G_CM2,
 from .catalogue import Catalogue, Exercise, default_catalogue
 from .cautions import with_standard
 from .errors import InputError
+from .records import TScores
 from .mechanics import (CARTILAGE_FRICTION, CORTICAL_STRENGTH_MPA, JOINT_PRESETS,
                         joint_contact_force_bw)
 
@@ -39,6 +40,9 @@ DEFAULT_BODY_MASS_KG = 70.0
 #: T-score used when none is given: the WHO threshold of osteoporosis (WHO 1994, Technical
 #: Report Series 843), the cautious choice for the people this tool serves.
 DEFAULT_T_SCORE = -2.5
+#: Lowest T-score of the record's typical range (the soft range of records.TScores): below
+#: it the straight-line density mapping is flagged as out of range.
+T_SCORE_TYPICAL_LOW = float(TScores.model_fields["femoral_neck"].json_schema_extra["soft_range"][0])
 #: Largest external load (bar, dumbbells, vest) the explanation accepts [kg].
 MAX_EXTERNAL_LOAD_KG = 300.0
 
@@ -329,6 +333,14 @@ def explain_exercise(exercise_id: str, body_mass_kg: float | None = None, t_scor
         "modulus_mpa": {"healthy": CORTICAL_MODULUS_MPA,
                         "this_person": _r(density_scaled(CORTICAL_MODULUS_MPA, ratio, 2.0), 0)},
     }
+    notes = []
+    if t < T_SCORE_TYPICAL_LOW:
+        notes.append(f"T-score {t:g} is below the typical range (from {T_SCORE_TYPICAL_LOW:g}): the straight-line "
+                     "T-score to density mapping was not made for such low values, and the strength it gives is "
+                     "not a reliable figure. Treat the comparison with strength as out of range.")
+    if ex.source_kind != "force_plate":
+        notes.append("The ground force of this exercise is an estimate, not a force-plate measurement.")
+    result["notes"] = notes
     result["osteogenic"] = bool(grf_bw > OSTEOGENIC_GRF_BW and (rate or 0) > OSTEOGENIC_RATE_BW_S)
     result["plain_words"] = plain_words(result)
     result["assumptions"] = _assumptions(ex, motion, legs, mass_given, t_given, load)

@@ -120,6 +120,15 @@ def test_bad_input_names_the_field(kwargs, field):
     assert info.value.problems[0].field == field
 
 
+def test_t_scores_below_the_typical_range_are_flagged():
+    low = explain_exercise("walking", t_score=-6.0)
+    assert any("below the typical range" in n for n in low["notes"])
+    assert not any("below the typical range" in n for n in explain_exercise("walking", t_score=-4.5)["notes"])
+    # A modelled (not measured) ground force says so.
+    assert any("estimate" in n for n in explain_exercise("drop_landing")["notes"])
+    assert not explain_exercise("heel_drop_forceful", t_score=-2.0)["notes"]
+
+
 def test_plain_words_follow_the_margin():
     gentle = explain_exercise("walking", t_score=-1.0)["plain_words"]
     assert "wide margin" in gentle[1] and "2.4 times your body weight" in gentle[0]

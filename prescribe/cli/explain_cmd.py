@@ -47,6 +47,8 @@ def run_explain(args) -> int:
     emit_table(rows, ["figure", "value"])
     out = sys.stdout
     out.write(f"\nstress site: {result['bone_stress_site']['site']}, area {result['bone_stress_site']['area_mm2']:g} mm^2\n")
+    for text in result["notes"]:
+        out.write(f"note: {text}\n")
     for text in result["plain_words"]:
         out.write(f"in plain words: {text}\n")
     for text in result["assumptions"]:
