@@ -26,9 +26,8 @@ from .bone_loads import (CORTICAL_MODULUS_MPA, FEMORAL_NECK_YOUNG_BMD_G_CM2,
 from .catalogue import Catalogue, Exercise, default_catalogue
 from .cautions import with_standard
 from .errors import InputError
+from .mechanics import CARTILAGE_FRICTION, CORTICAL_STRENGTH_MPA, JOINT_PRESETS
 from .records import TScores
-from .mechanics import (CARTILAGE_FRICTION, CORTICAL_STRENGTH_MPA, JOINT_PRESETS,
-                        joint_contact_force_bw)
 
 __all__ = ["explain_exercise", "stress_strain_picture", "force_bars", "Motion", "MOTIONS",
            "motion_of", "DEFAULT_BODY_MASS_KG", "DEFAULT_T_SCORE", "FEMUR_SHAFT",

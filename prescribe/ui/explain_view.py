@@ -124,7 +124,8 @@ class ExplainView:
             f"{result['strength_mpa']['this_person']:.0f} MPa (healthy {result['strength_mpa']['healthy']:.0f}) "
             f"&middot; joint friction {result['joint_friction_n']:.0f} N"
             + (f" &middot; assumed: {_esc(', '.join(given))}" if given else "") +
-            ". The command <i>prescribe explain</i> lists every assumption and source.</p>")
+            ". The command <i>prescribe explain</i> lists every assumption and source.</p>" +
+            "".join(f'<p class="pr-msg" role="note">{_esc(n)}</p>' for n in result["notes"]))
         self.cautions.value = self._cautions_html(result["cautions"])
 
     @staticmethod
