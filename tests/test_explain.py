@@ -206,3 +206,16 @@ def test_explain_is_domain_code():
     proc = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=120)
     assert proc.returncode == 0, proc.stderr
     assert proc.stdout.strip() == ""
+
+
+@pytest.mark.parametrize("ex", default_catalogue().all(), ids=lambda e: e.exercise_id)
+def test_figures_move_the_right_way(ex):
+    # Body weight scales newtons, not body weights; lower density lowers strength, not load.
+    light, heavy = explain_exercise(ex.exercise_id, 50, -2.0), explain_exercise(ex.exercise_id, 100, -2.0)
+    assert heavy["joint_contact_force_bw"] == light["joint_contact_force_bw"]
+    assert heavy["joint_contact_force_n"] == pytest.approx(2 * light["joint_contact_force_n"], abs=0.02)
+    assert heavy["bone_stress_mpa"] == pytest.approx(2 * light["bone_stress_mpa"], abs=0.002)
+    weaker = explain_exercise(ex.exercise_id, 50, -3.0)
+    assert weaker["joint_contact_force_n"] == light["joint_contact_force_n"]
+    assert weaker["strength_mpa"]["this_person"] < light["strength_mpa"]["this_person"]
+    assert weaker["share_of_strength"] > light["share_of_strength"]
