@@ -39,8 +39,7 @@ def rules_of(result) -> list[str]:
 # WHO T-score categories. Source: WHO Study Group 1994, Assessment of fracture risk and its
 # application to screening for postmenopausal osteoporosis, WHO Technical Report Series 843:
 # normal >= -1; osteopenia between -1 and -2.5; osteoporosis <= -2.5; severe (established)
-# osteoporosis = <= -2.5 plus a fragility fracture (the severe category: from memory, see
-# published_facts.md D).
+# osteoporosis = <= -2.5 plus a fragility fracture (the severe category: from memory).
 # ---------------------------------------------------------------------------
 
 @pytest.mark.parametrize("t, category", [
@@ -223,7 +222,7 @@ def test_falls_in_past_year(run, falls, rule, refer):
 
 # Rikli & Jones 1999, J Aging Phys Act 7:162-181: lower bound of the normal 30-s chair stand range by
 # age band (seen in secondary sources; the men 65-69 bound is 12 on the CDC STEADI form and a
-# secondary copy of the table, 13 on another page - see published_facts.md D).
+# secondary copy of the table, 13 on another page; the rule uses 12, see docs/rules.md).
 RIKLI_JONES_LOWER = {
     "female": {60: 12, 65: 11, 70: 10, 75: 10, 80: 9, 85: 8, 90: 4},
     "male": {60: 14, 65: 12, 70: 12, 75: 11, 80: 10, 85: 8, 90: 7},
