@@ -558,8 +558,6 @@ class _Builder:
             self.sources.append(SRC_GIANG)
             self.cautions.append(f"Spine-sparing program ({why}): keep the spine long and neutral; no loaded "
                                  "or repeated forward bending or twisting of the spine, and moderate loads only.")
-        if any(ph.pct_1rm is not None and ph.pct_1rm >= 80 for ph in self.phases):
-            self.sources.append(SRC_WATSON)
         if any(ph.pct_1rm is None and ph.name != "technique" for ph in self.phases):
             self.sources.append(SRC_ACSM_PROGRESSION)
         if self.frail:
@@ -827,6 +825,11 @@ class _Builder:
                 "impact_volume_unit": {0: "reps", 1: "minutes"}.get(level, "impacts"),
                 "balance_minutes_per_session": minutes,
             })
+        # LIFTMOR is cited only where the program really prescribes its lifts or loads.
+        lift_ids = {e.exercise_id for e in self.pool if e.loaded_by_1rm}
+        if any(x["exercise_id"] in lift_ids for lst in c_res.values() for x in lst[0]) or \
+                any((w["resistance_intensity_pct_1rm"] or 0) >= 80 for w in weeks):
+            self.sources.append(SRC_WATSON)
         if used_l23:
             self.sources.append(SRC_TURNER_DIR)
             if any(w["impacts_per_session"] > tpl.impact["bout_split_above"] for w in weeks):
