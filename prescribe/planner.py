@@ -540,6 +540,10 @@ class _Builder:
         self.spine_sparing, why = _spine_sparing(self.record, self.screening, self.tpl)
         self.phases = self.tpl.spine_sparing_phases if self.spine_sparing else self.tpl.resistance_phases
         self.frail = _frail(self.record, self.screening)
+        first = self.phases[0]
+        technique = first.weeks if first.pct_1rm is None and first.weeks > 0 else 0
+        # Body-weight forms for the frail: the first (technique) phase, and at least 4 weeks.
+        self.bodyweight_until = max(FRAIL_BODYWEIGHT_WEEKS, technique) if self.frail else 0
         heavy = [w for w in range(1, self.options.weeks + 1)
                  if (p := _phase_at(self.phases, w).pct_1rm) is not None and p >= LIFT_LOAD_FROM_PCT]
         # A barbell lift comes in LIFT_PRACTICE_WEEKS before its first loaded week, at a light load.
@@ -695,7 +699,7 @@ class _Builder:
         ph = _phase_at(self.phases, week)
         lifts = self.lift_from is not None and week >= self.lift_from
         practice = lifts and week < self.lift_from + LIFT_PRACTICE_WEEKS
-        bodyweight = self.frail and (ph.pct_1rm is None or week <= FRAIL_BODYWEIGHT_WEEKS)
+        bodyweight = week <= self.bodyweight_until
         return ph, lifts and not bodyweight, practice, bodyweight
 
     def resistance_exercises(self, week: int) -> tuple[list[dict], ResistancePhase]:

@@ -170,3 +170,17 @@ def test_frail_person_gets_low_impact_supervision_and_sit_to_stand_first(stands,
     else:
         assert squats[0] == "goblet_box_squat"
     assert check_plan(plan, scr) == []
+
+
+def test_frail_person_on_a_spine_sparing_program_still_reaches_loaded_work():
+    # Sit-to-stand first, then loaded forms (common practice); spine-sparing loads by effort toward
+    # 8-12RM (Brooke-Wavell et al. 2022). Rikli & Jones 1999: woman 70-74, lower bound 10 stands.
+    rec = _record(patient_id="ELM-0108", age_years=72, chair_stand_30s=7, t_scores={"lumbar_spine": -2.9},
+                  fractures=[{"site": "vertebra", "months_ago": 14, "low_trauma": True}])
+    plan = _plan(rec, weeks=26)
+    assert plan.model_extra["spine_sparing"] is True
+    first_phase = {x.exercise_id for w in plan.weeks[:6] for x in _resistance(w)}
+    assert "sit_to_stand" in first_phase and "goblet_box_squat" not in first_phase
+    later = {x.exercise_id for w in plan.weeks[12:] for x in _resistance(w)}
+    assert "goblet_box_squat" in later
+    assert check_plan(plan) == []
