@@ -116,8 +116,8 @@ def parse_json_text(text: str, what: str = "JSON document", max_depth: int = JSO
         data = json.loads(text, object_pairs_hook=_no_duplicates)
     except _DuplicateKey as dup:
         raise InputError.single(what, f"key {dup.key!r} given twice in one object",
-                                "each key at most once in an object (which of the two values is meant "
-                                "cannot be known)") from None
+                                "JSON objects that name each key once (with a key given twice, which value "
+                                "is meant cannot be known)") from None
     except RecursionError:
         raise InputError.single(what, "nested too deeply to read", depth_allowed) from None
     except json.JSONDecodeError as exc:
