@@ -26,10 +26,13 @@ The progression rules, each enforced here and checked by :func:`check_plan`:
    distributions are more osteogenic).
 6. Resistance work begins with a technique phase and, where screening allows,
    progresses toward 5 x 5 at 80-85% 1RM (Watson et al. 2018, J Bone Miner Res
-   33:211-220; Beck et al. 2017, J Sci Med Sport 20(5):438-445); after a
+   33:211-220; Beck et al. 2017, J Sci Med Sport 20(5):438-445), each barbell
+   lift practised at a light load for 4 weeks before it is loaded; after a
    vertebral fracture or with high vertebral risk it keeps spine-sparing
-   variants and moderate loads (Giangregorio et al. 2014, Osteoporos Int
-   25:821-835).
+   variants (Giangregorio et al. 2014, Osteoporos Int 25:821-835) dosed by
+   effort and progressed toward 8-12RM (Brooke-Wavell et al. 2022); a frail
+   person does sit-to-stand before any loaded squat (common practice).  A
+   week's % 1RM is the highest its exercises are given.
 7. Balance work at least twice a week, first and more when falls risk is flagged
    (Giangregorio et al. 2014).
 
