@@ -119,6 +119,10 @@ def test_low_trauma_vertebral_fracture_is_spine_sparing_and_brisk_walking_at_mos
     assert "fractures.vertebral" in rules_of(result)
     assert result.max_impact_level == 1
     assert SPINE | {"end_range_spinal_flexion"} <= set(result.avoid)
+    # The vertebral-fracture rule itself avoids loaded twisting as well as flexion (Giangregorio et
+    # al. 2014, Too Fit To Fracture, Osteoporos Int 25:821-835), not only through other rules.
+    flag = next(f for f in result.flags if f.rule == "fractures.vertebral")
+    assert SPINE <= set(flag.avoid)
 
 
 def test_high_trauma_vertebral_fracture_is_not_a_fragility_fracture(run):
