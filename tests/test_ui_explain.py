@@ -85,3 +85,20 @@ def test_a_changed_program_keeps_the_choice_or_moves_to_one_still_there(app):
     app.on_new()
     assert view.select.options == () and view.result is None
     assert "Build a program" in view.status.value
+
+
+def test_an_exercise_missing_from_the_catalogue_is_said_in_the_panel(app, monkeypatch):
+    _submit(app)
+    view = app.explain_view
+    from prescribe import explain as explain_module
+    from prescribe.errors import InputError
+
+    def refuse(exercise_id, **_kw):
+        raise InputError.single("exercise_id", exercise_id, "an id from the catalogue")
+
+    monkeypatch.setattr(explain_module, "explain_exercise", refuse)
+    view.select.value = view.select.options[-1][1]
+    view.show()
+    assert view.result is None and view.figures.value == ""
+    assert "cannot be explained" in view.status.value and "exercise_id" in view.status.value
+    assert app.errors.last == ""  # the rest of the page is not disturbed

@@ -14,12 +14,16 @@ Stable CSS classes: ``pr-explain`` (the panel), ``pr-explain-select``,
 from __future__ import annotations
 
 import html
+import logging
+import traceback
 from typing import Any
 
 import ipywidgets as w
 
 from ..cautions import with_standard
 from ..errors import PrescribeError
+
+log = logging.getLogger("prescribe.ui")
 
 EMPTY = "<p><i>Build a program to see what its exercises do to the bone and the hip joint.</i></p>"
 
@@ -93,13 +97,15 @@ class ExplainView:
 
             mass, t = self.person()
             result = explain_exercise(exercise_id, body_mass_kg=mass, t_score=t)
+            ss, bars = explanation_figures(result, prefix="app-explain")
         except PrescribeError as exc:  # e.g. an exercise no longer in the catalogue
-            self.result = None
-            self.status.value = f'<p class="pr-msg" role="alert">This exercise cannot be explained: {_esc(exc)}</p>'
-            self.words.value = self.figures.value = self.numbers.value = ""
+            self._fail(f"This exercise cannot be explained: {exc}")
+            return
+        except Exception as exc:  # noqa: BLE001 - shown in the panel; the rest of the page goes on
+            log.error("explaining %s failed:\n%s", exercise_id, traceback.format_exc())
+            self._fail(f"Explaining this exercise failed ({exc.__class__.__name__}: {exc}); please report it.")
             return
         self.result = result
-        ss, bars = explanation_figures(result, prefix="app-explain")
         self.status.value = ""
         self.words.value = ('<div style="font-size:16px;line-height:1.45;background:#f4f7fa;padding:6px 10px;'
                             'border-left:4px solid #1f3b57">' +
@@ -127,6 +133,11 @@ class ExplainView:
             ". The command <i>prescribe explain</i> lists every assumption and source.</p>" +
             "".join(f'<p class="pr-msg" role="note">{_esc(n)}</p>' for n in result["notes"]))
         self.cautions.value = self._cautions_html(result["cautions"])
+
+    def _fail(self, text: str) -> None:
+        self.result = None
+        self.status.value = f'<p class="pr-msg" role="alert">{_esc(text)}</p>'
+        self.words.value = self.figures.value = self.numbers.value = ""
 
     @staticmethod
     def _cautions_html(items: list[str] | None = None) -> str:
