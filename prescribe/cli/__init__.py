@@ -28,6 +28,7 @@ COMMAND_MODULES = (
     "app_cmd",        # prescribe app
     "store_cmd",      # prescribe db, save, export, import
     "session_cmd",    # prescribe session add|list, prescribe adjust
+    "explain_cmd",    # prescribe explain
 )
 
 
