@@ -61,7 +61,8 @@ def histories(draw, pid: str, weeks: int):
                 "session_rpe": draw(st.one_of(st.none(), st.sampled_from([2, 5, 7, 8, 8.5, 9, 10]))),
                 "symptoms": draw(st.lists(st.sampled_from(list(SYMPTOMS)), unique=True, max_size=2)),
                 "fell_since_last": draw(st.booleans()) if draw(st.integers(0, 9)) == 0 else False,
-                "exercises": [{"exercise_id": "goblet_box_squat", "load_kg": draw(st.sampled_from([8.0, 12.0, 16.0])),
+                "exercises": [{"exercise_id": draw(st.sampled_from(["goblet_box_squat", "back_squat"])),
+                               "load_kg": draw(st.sampled_from([8.0, 12.0, 16.0])),
                                "reps_done": draw(st.integers(5, 14)), "rpe": draw(st.sampled_from([4, 6, 9]))}]}
         out.append(LoggedSession(parse_session(data), d // 7 + 1, 1, i + 1))
     return out
