@@ -143,6 +143,12 @@ def test_adjust_prints_the_decision_and_apply_stores_a_version_based_on_the_old(
         assert versions[-1]["based_on_version"] == 1 and versions[-1]["clinician"] == "EP Rowan (invented)"
         entry = store.audit(PID)[-1]
         assert entry["action"] == "program_adjusted" and entry["detail"]["decision"] == "stop_and_refer"
+    again = cli("adjust", PID)
+    assert "already applies the advice" in again.json["already_applied"]
+    r = cli("adjust", PID, "--apply", "--clinician", "EP Rowan (invented)")  # a second click, same sessions
+    assert r.code == 2 and "log a session before adjusting again" in r.err
+    with open_store(tmp_db) as store:
+        assert len(store.program_versions(PID)) == 2
     r = cli("adjust", "NOBODY-1")
     assert r.code == 2 and "NOBODY-1" in r.err
 

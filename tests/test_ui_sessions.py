@@ -92,6 +92,8 @@ def test_log_shows_the_advice_at_once_and_apply_stores_the_new_version(app, tmp_
         new = store.get_program(PID)
         assert new["based_on_version"] == 1 and new["adjustment"]["decision"] == "step_back"
         assert store.audit(PID)[-1]["clinician"] == "EP Rowan (invented)"
+    live.advise_button.click()  # advice again with no new session: shown, but not applicable twice
+    assert "already applies the advice" in live.advice_view.value and live.apply_button.disabled is True
     # the program section and the handout follow the new version
     assert app.session.plan.model_extra["adjustment"]["decision"] == "step_back"
     assert b"week" in app.session.handout("html")

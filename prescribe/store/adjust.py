@@ -28,12 +28,23 @@ def adjust_person(store, patient_id: str, *, today: date, apply: bool = False, c
     advice = assess(plan, sessions, today=today, baseline_pain=record.pain_score, program_version=version)
     out = advice.as_dict()
     out["current_program_version"] = version
+    # The current version already applies an adjustment worked out on the same day, with no
+    # session logged against it since: applying again would move the program twice for
+    # the same sessions.
+    done = plan.get("adjustment") or {}
+    repeat = done.get("as_of") == advice.as_of and not any(s.program_version == version for s in sessions)
+    if repeat:
+        out["already_applied"] = (f"program version {version} already applies the advice of {advice.as_of} "
+                                  f"({done.get('decision')}); log a session before adjusting again")
     program = dict(advice.program)
     program.update(based_on_version=version,
                    adjustment={"decision": advice.decision, "week": advice.week, "as_of": advice.as_of,
                                "reasons": advice.reasons, "changes": advice.changes,
                                "session_ruleset_version": advice.ruleset_version})
     if apply:
+        if repeat:
+            raise InputError.single("--apply", patient_id, "a person whose current program does not already "
+                                    f"apply today's advice: {out['already_applied']}")
         program["created"] = now_utc()
         # refused: exit 2, nothing stored
         assert_program_safe(program, door=f"prescribe adjust --apply {patient_id}", record=record)

@@ -336,7 +336,7 @@ class SessionsView:
         day = parse_day(self.date.value.strip(), "date") if self._date_ok() else date.today()
         self.advice = adjust_person(self.app.session.store, self.patient_id, today=min(day, date.today()))
         self.advice_view.value = advice_html(self.advice)
-        self.apply_button.disabled = False
+        self.apply_button.disabled = bool(self.advice.get("already_applied"))
         self._refresh_charts()
 
     @guarded("Applying the advice")
@@ -397,7 +397,9 @@ def advice_html(advice: dict) -> str:
     return (f'<div class="pr-live-decision pr-live-decision-{decision.replace("_", "-")}">'
             f'<p><b>Next step for week {advice["week"]}: {_esc(DECISION_TEXT.get(decision, decision))}</b></p>'
             f"<p>Why:</p><ul>{reasons}</ul><p>What the adjusted program changes:</p><ul>{changes}</ul>"
-            + (f"<p>Working loads:</p><ul>{loads}</ul>" if loads else "") + "</div>")
+            + (f"<p>Working loads:</p><ul>{loads}</ul>" if loads else "")
+            + (f'<p class="pr-live-already">{_esc(advice["already_applied"])}.</p>'
+               if advice.get("already_applied") else "") + "</div>")
 
 
 class SessionCharts:
