@@ -12,7 +12,7 @@ import pytest
 
 from conftest import run_cli
 from prescribe.cli import main
-from prescribe.store import open_store
+from prescribe.store import HEAD_REVISION, open_store
 from test_store_support import plan, sha256
 
 
@@ -61,7 +61,7 @@ def _fails(result, code, *words):
 
 def test_db_init_creates_and_is_repeatable(cli_here, tmp_db):
     first = _ok(cli_here("db", "init"))
-    assert first["revision"] == first["head_revision"] == "0002" and first["db"] == tmp_db
+    assert first["revision"] == first["head_revision"] == HEAD_REVISION and first["db"] == tmp_db
     assert _ok(cli_here("db", "init"))["people"] == 0
 
 
@@ -173,3 +173,29 @@ def test_a_file_that_is_not_a_store_gives_a_clear_message(cli_here, tmp_path, pe
         if args[0] != "import":  # import refuses the person file itself first (not a bundle)
             assert result.returncode == 1 and "not a prescribe store" in result.stderr
     assert sha256(db) == before
+
+
+def test_a_save_based_on_an_older_record_version_exits_1_and_changes_nothing(cli_here, tmp_path, tmp_db,
+                                                                           person_file):
+    first = _ok(cli_here("save", str(person_file), "--clinician", "AB"))
+    assert first["record_version"] == 1
+    changed = tmp_path / "changed.json"
+    changed.write_text(json.dumps({**PERSON, "falls_past_year": 3}))
+    second = _ok(cli_here("save", str(changed), "--clinician", "CD", "--based-on-version", "1"))
+    assert second["status"] == "updated" and second["record_version"] == 2
+    stale = tmp_path / "stale.json"
+    stale.write_text(json.dumps({**PERSON, "pain_score": 4}))
+    _fails(cli_here("save", str(stale), "--clinician", "AB", "--based-on-version", "1"), 1,
+           "record version 1", "version 2", "CD", "Nothing was overwritten")
+    _fails(cli_here("save", str(stale), "--based-on-version", "x"), 2, "--based-on-version")
+    with open_store(tmp_db) as store:
+        kept = store.get_patient("CLI-0001")
+        assert kept.falls_past_year == 3 and kept.pain_score != 4 and store.record_version("CLI-0001") == 2
+
+
+def test_under_the_hub_save_records_the_login_and_refuses_another_name(cli_here, tmp_db, person_file, monkeypatch):
+    monkeypatch.setenv("JUPYTERHUB_USER", "mara.teal")
+    _fails(cli_here("save", str(person_file), "--clinician", "otto.fenn"), 2, "otto.fenn", "mara.teal")
+    _ok(cli_here("save", str(person_file)))
+    with open_store(tmp_db) as store:
+        assert {a["clinician"] for a in store.audit("CLI-0001")} == {"mara.teal"}

@@ -62,6 +62,45 @@ def test_an_update_records_who_changed_which_fields(store):
     assert audit[1]["clinician"] == "CD" and audit[1]["detail"]["changed_fields"] == ["falls_past_year", "pain_score"]
 
 
+def test_a_record_save_based_on_an_older_version_is_a_conflict_and_keeps_both(store):
+    """Two clinicians open version 1 of the same person; the first save wins, the second
+    is refused naming both versions and who saved, and nothing is overwritten."""
+    first = store.save_patient(record(), screening(), clinician="AB", based_on_version=0)
+    assert first["record_version"] == 1
+    cd = store.save_patient(record(falls_past_year=2), None, clinician="CD", based_on_version=1)
+    assert cd["status"] == "updated" and cd["record_version"] == 2
+    with pytest.raises(ConflictError) as info:
+        store.save_patient(record(pain_score=5), screening(), clinician="EF", based_on_version=1)
+    message = str(info.value)
+    assert "version 2" in message and "record version 1" in message and "CD" in message
+    assert info.value.latest_version == 2
+    assert store.get_patient("TEST-0001").falls_past_year == 2 and store.get_patient("TEST-0001").pain_score != 5
+    assert len(store.screenings("TEST-0001")) == 1  # the refused save's screening was not stored either
+    # A stale version that changes nothing is not a conflict; the current one saves.
+    assert store.save_patient(record(falls_past_year=2), None, "EF", based_on_version=1)["status"] == "unchanged"
+    assert store.save_patient(record(falls_past_year=2, pain_score=5), None, "EF",
+                              based_on_version=2)["record_version"] == 3
+    # Starting a "new" person whose id someone else already stored is a conflict too.
+    with pytest.raises(ConflictError, match="as a new person"):
+        store.save_patient(record(age_years=90), None, "GH", based_on_version=0)
+    assert [p["record_version"] for p in store.list_patients()] == [3]
+
+
+def test_an_unchecked_update_keeps_the_replaced_values_in_the_audit(store):
+    store.save_patient(record(), None, clinician="AB")
+    store.save_patient(record(falls_past_year=4), None, clinician="CD")
+    [_, update] = store.audit("TEST-0001")
+    assert update["detail"]["previous"] == {"falls_past_year": record().falls_past_year}
+    assert update["detail"]["record_version"] == 2 and update["detail"]["based_on_version"] is None
+
+
+@pytest.mark.parametrize("bad", [-1, True, "2", 1.0])
+def test_a_bad_record_version_names_the_field(store, bad):
+    with pytest.raises(InputError, match="based_on_version"):
+        store.save_patient(record(), None, "AB", based_on_version=bad)
+    assert store.list_patients() == []
+
+
 def test_unknown_person_is_not_found_naming_the_id(store):
     with pytest.raises(NotFoundError, match="NOBODY-9"):
         store.get_patient("NOBODY-9")
@@ -269,6 +308,7 @@ def test_an_older_store_opens_and_upgrades_without_losing_rows(tmp_path):
     with open_store(str(path)) as s:
         assert s.revision() == HEAD_REVISION
         assert s.get_patient("OLD-1") == record("OLD-1")
+        assert s.record_version("OLD-1") == 1  # revision 0006 numbers existing records from 1
         assert s.get_program("OLD-1") == plan("OLD-1")
         assert s.save_program("OLD-1", plan("OLD-1"), "CD", 1) == 2
         assert s.add_session_log("OLD-1", "2026-01-01", {}, program_version=2) == 1

@@ -36,7 +36,11 @@ def register(sub) -> None:
 
     p = sub.add_parser("save", help="store a person's record and its screening")
     p.add_argument("patient_file", metavar="PATIENT.json", help="the patient record (JSON)")
-    p.add_argument("--clinician", default="", help="who is saving (free text, for the audit log)")
+    p.add_argument("--clinician", default="", help="who is saving, for the audit log (free text; under "
+                   "JupyterHub the login is used and a different name is refused)")
+    p.add_argument("--based-on-version", type=_version_arg, default=None, metavar="N",
+                   help="the record_version you started from (0 for a new person): if someone changed the "
+                        "record since, nothing is saved and the command exits 1 with a conflict")
     p.add_argument("--db", help=DB_HELP)
     p.set_defaults(func=run_save)
 
@@ -50,6 +54,17 @@ def register(sub) -> None:
     p.add_argument("bundle_file", metavar="BUNDLE.json")
     p.add_argument("--db", help=DB_HELP)
     p.set_defaults(func=run_import)
+
+
+def _version_arg(text: str) -> int:
+    try:
+        value = int(text)
+    except ValueError:
+        value = -1
+    if value < 0:
+        import argparse
+        raise argparse.ArgumentTypeError(f"must be a record version number (0 for a new person), not {text!r}")
+    return value
 
 
 def _open(args, create: bool = True):
@@ -72,10 +87,12 @@ def run_backup(args) -> int:
 
 
 def run_save(args) -> int:
+    from ..settings import current_clinician
+    clinician = current_clinician(args.clinician)
     record = load_record(args.patient_file)  # bad input stops here, before the store is touched
     screening, note = _screen(record)
     with _open(args) as store:
-        saved = store.save_patient(record, screening, clinician=args.clinician)
+        saved = store.save_patient(record, screening, clinician=clinician, based_on_version=args.based_on_version)
     out = {**saved, "db": store.where}
     if screening is not None:
         out["screening"] = {k: getattr(screening, k) for k in (

@@ -501,9 +501,14 @@ class ClinicApp:
             w.HBox([self.preview_button, self.pdf_button, self.html_button, self.download]), self.preview])
 
     def _build_store_section(self) -> None:
+        login = self.session.login
         self.clinician = w.Text(value=self.session.clinician, description="Clinician *",
-                                placeholder="your name or initials")
+                                placeholder="your name or initials", disabled=login is not None,
+                                tooltip=("your login: every save is recorded under it" if login else
+                                         "your name or initials, recorded with every save"))
         self.clinician.add_class("pr-store-clinician")
+        if login is not None:
+            self.clinician.add_class("pr-store-clinician-login")
         self.save_button = self._button("Save person and program", "pr-store-save", "success")
         self.save_button.on_click(lambda _b: self.on_save())
         self.store_status = w.HTML("")
