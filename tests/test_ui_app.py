@@ -299,3 +299,35 @@ def test_under_the_hub_the_clinician_is_the_login_and_cannot_be_edited(tmp_db, m
     app.save_button.click()
     assert "mara.teal" in app.errors.last and "someone.else" in app.errors.last
     assert [r["clinician"] for r in app.session.versions()] == ["mara.teal"]
+
+
+def _draft(tmp_db, name="Osteopenia start (invented clinic)"):
+    from prescribe.store import open_store
+    with open_store(tmp_db) as store:
+        return store.add_template(name, {"weeks": 12}, "rui.amsel")
+
+
+def test_a_clinician_may_not_approve_a_template_and_a_lead_may(tmp_db, monkeypatch):
+    _draft(tmp_db)
+    monkeypatch.setenv("JUPYTERHUB_USER", "mara.teal")
+    monkeypatch.setenv("PRESCRIBE_HUB_ROLE", "clinician")
+    app = make_app(tmp_db)
+    app.refresh()
+    panel = app.template_review
+    assert "role: <b class='pr-role'>clinician</b>" in panel.role.value
+    panel.drafts.value = "Osteopenia start (invented clinic)@1"
+    panel.approve_button.click()
+    assert "mara.teal" in app.errors.last and "clinic lead" in app.errors.last
+    assert [t["status"] for t in app.session.store.templates()] == ["draft"]
+    monkeypatch.setenv("JUPYTERHUB_USER", "lena.vos")
+    monkeypatch.setenv("PRESCRIBE_HUB_ROLE", "lead")
+    lead = make_app(tmp_db)
+    lead.refresh()
+    assert "lead" in lead.template_review.role.value
+    lead.template_review.drafts.value = "Osteopenia start (invented clinic)@1"
+    lead.template_review.approve_button.click()
+    assert lead.errors.last == "", lead.errors.last
+    [row] = lead.session.store.templates()
+    assert row["status"] == "approved" and row["approved_by"] == "lena.vos"
+    assert "Approved" in lead.template_review.status.value
+    assert lead.template_review.drafts.options == (("- no drafts -", None),)

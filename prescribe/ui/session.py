@@ -21,7 +21,7 @@ from typing import Any
 from ..cautions import with_standard
 from ..errors import ConflictError, InputError, NotFoundError, PlanRequestRefused, PrescribeError
 from ..records import PatientRecord, parse_record
-from ..settings import current_clinician, hub_login
+from ..settings import current_clinician, hub_login, require_role
 
 #: Our impact scale (PRODUCT.md): level -> plain label.
 IMPACT_LABELS: dict[int, str] = {0: "0 - no impact", 1: "1 - low impact", 2: "2 - moderate impact",
@@ -313,6 +313,22 @@ class ClinicSession:
             return None
         self.saved_version = int(version)
         return self.saved_version
+
+    def draft_templates(self) -> list[dict]:
+        """The clinic templates waiting for a lead's approval (oldest first)."""
+        return [t for t in self.store.templates() if t["status"] == "draft"]
+
+    def approve_template(self, name: str, version: int, clinician: str | None = None) -> str:
+        """Approve a draft template version as the current clinician; only a clinic lead may.
+
+        Returns who approved (the login under JupyterHub).  A clinician is refused with
+        :class:`prescribe.errors.NotPermittedError`; nothing changes then.
+        """
+        who = current_clinician(clinician if clinician is not None else self.clinician, required=True)
+        require_role(who, "approve_template")
+        self.store.approve_template(name, version, who)
+        self.clinician = who
+        return who
 
     def saved_people(self) -> list[str]:
         """Patient ids in the store, most recently updated first."""

@@ -352,9 +352,11 @@ class ClinicApp:
         title = w.HTML("<h1 style='font-size:22px;margin:4px 0'>prescribe: bone-loading program builder</h1>"
                        "<p>Decision support for clinicians. Work down the page: person, screening, program, "
                        "handout, save.</p>")
+        from .template_review import TemplateReview
+        self.template_review = TemplateReview(self)
         self.widget = w.VBox([w.HTML(STYLE), title, self.errors.widget, cautions_box(),
                               self.person_section, self.screening_section, self.program_section,
-                              self.handout_section, self.store_section])
+                              self.handout_section, self.store_section, self.template_review.widget])
         self.widget.add_class("pr-app")
         self.warm_thread: threading.Thread | None = None
         self._warm_lock = threading.Lock()
@@ -681,3 +683,7 @@ class ClinicApp:
         if current in people:
             self.load_select.value = current
         self.history.value = table_html(versions)
+        try:
+            self.template_review.refresh()
+        except PrescribeError as exc:
+            self.template_review.status.value = f"<p class='pr-msg'>Templates could not be read: {_esc(exc)}</p>"
