@@ -10,7 +10,9 @@
 #                           (every clinician's server uses it; SQLite only for a trial)
 #   PRESCRIBE_HUB_IP        address the hub listens on (default 127.0.0.1: put a TLS-terminating
 #                           reverse proxy in front; never serve patient data over plain HTTP)
-#   PRESCRIBE_HUB_PORT      port (default 8000)
+#   PRESCRIBE_HUB_PORT      port (default 8000); the proxy's API uses the next port unless
+#                           PRESCRIBE_HUB_PROXY_API_PORT is given, the hub's own API
+#                           PRESCRIBE_HUB_API_PORT (default 8081); all on 127.0.0.1
 #   PRESCRIBE_HUB_DIR       the hub's own state: its database, cookie secret (default: cwd)
 #   PRESCRIBE_HUB_ADMINS    comma-separated logins that administer the hub (approve sign-ups)
 #   PRESCRIBE_HUB_LEADS     comma-separated logins put in the clinic-leads group at start-up
@@ -46,6 +48,7 @@ def _names(var):
 c.JupyterHub.ip = os.environ.get("PRESCRIBE_HUB_IP", "127.0.0.1")
 c.JupyterHub.port = int(os.environ.get("PRESCRIBE_HUB_PORT", "8000"))
 c.JupyterHub.hub_ip = "127.0.0.1"
+c.JupyterHub.hub_port = int(os.environ.get("PRESCRIBE_HUB_API_PORT", "8081"))
 c.ConfigurableHTTPProxy.api_url = "http://127.0.0.1:%d" % int(os.environ.get("PRESCRIBE_HUB_PROXY_API_PORT",
                                                                              c.JupyterHub.port + 1))
 c.JupyterHub.db_url = "sqlite:///" + str(HUB_DIR / "jupyterhub.sqlite")
@@ -103,6 +106,10 @@ c.Spawner.args = [
 ]
 # Per-clinician limits: enforced by SystemdSpawner (and by KubeSpawner on Kubernetes);
 # the "simple" trial spawner ignores them.  One app page is about 100-150 MB.
+if spawner == "simple" and os.geteuid() == 0:
+    # A trial hub started as root runs the clinicians' servers as root too (no isolation):
+    # acceptable only for a trial on a throw-away machine; use the systemd spawner otherwise.
+    c.Spawner.args.append("--ServerApp.allow_root=True")
 c.Spawner.mem_limit = os.environ.get("PRESCRIBE_HUB_MEM", "1G")
 c.Spawner.cpu_limit = float(os.environ.get("PRESCRIBE_HUB_CPU", "1"))
 c.Spawner.start_timeout = 120
@@ -123,6 +130,9 @@ passed_on = {k: os.environ[k] for k in ("PRESCRIBE_DB", "PRESCRIBE_SETTINGS", "P
 c.Spawner.environment = {
     **passed_on,
     "JUPYTER_PATH": str(TEMPLATE_ROOT),  # our offline Voila template: no request leaves the clinic
+    # deploy/singleuser/jupyter_server_config.json: under the server extension Voila would
+    # otherwise point the page at a MathJax copy on a public CDN
+    "JUPYTER_CONFIG_PATH": str(HERE / "singleuser"),
     "PRESCRIBE_HUB_ROLE": _role,
 }
 

@@ -318,6 +318,7 @@ def test_a_clinician_may_not_approve_a_template_and_a_lead_may(tmp_db, monkeypat
     panel.drafts.value = "Osteopenia start (invented clinic)@1"
     panel.approve_button.click()
     assert "mara.teal" in app.errors.last and "clinic lead" in app.errors.last
+    assert "Not approved" in panel.status.value
     assert [t["status"] for t in app.session.store.templates()] == ["draft"]
     monkeypatch.setenv("JUPYTERHUB_USER", "lena.vos")
     monkeypatch.setenv("PRESCRIBE_HUB_ROLE", "lead")

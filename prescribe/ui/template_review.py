@@ -11,7 +11,7 @@ import html
 
 import ipywidgets as w
 
-from ..errors import InputError
+from ..errors import InputError, NotPermittedError
 from ..settings import clinician_role
 from .views import guarded
 
@@ -58,7 +58,11 @@ class TemplateReview:
         if not choice:
             raise InputError.single("draft", choice, "a draft template chosen from the list")
         name, version = choice.rsplit("@", 1)
-        who = self.session.approve_template(name, int(version), self.app.clinician.value)
+        try:
+            who = self.session.approve_template(name, int(version), self.app.clinician.value)
+        except NotPermittedError as exc:  # shown here too, beside the button that was refused
+            self.status.value = f'<div class="pr-error-box pr-template-refused" role="alert">Not approved: {html.escape(str(exc))}</div>'
+            raise
         self.status.value = (f'<div class="pr-notice-box">Approved {html.escape(name)} version {version} '
                              f'as {html.escape(who)}.</div>')
         self.refresh()
