@@ -308,8 +308,8 @@ class Store:
                                   func.max(m.program_versions.c.version).label("version"))
                            .group_by(m.program_versions.c.patient_id).subquery())
             query = (select(m.people.c.patient_id, m.people.c.created, m.people.c.updated,
-                            m.people.c.record_version, m.screenings.c.bone_density_category, m.screenings.c.created.label("screened"),
-                            latest_prog.c.version)
+                            m.people.c.record_version, m.screenings.c.bone_density_category,
+                            m.screenings.c.created.label("screened"), latest_prog.c.version)
                      .select_from(m.people)
                      .outerjoin(latest_screen, latest_screen.c.patient_id == m.people.c.patient_id)
                      .outerjoin(m.screenings, m.screenings.c.id == latest_screen.c.sid)
