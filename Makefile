@@ -16,6 +16,7 @@ PIP    := $(BIN)/python -m pip --disable-pip-version-check -q
 PROXY_DIR := deploy/proxy
 PROXY  := $(PROXY_DIR)/node_modules/.bin/configurable-http-proxy
 HUB_PORT ?= 8000
+HUB_API_PORT ?= 8081
 HUB_DIR ?= $(CURDIR)/var/hub
 HUB_SPAWNER ?= systemd
 HUB_ADMINS ?=
@@ -74,7 +75,7 @@ $(PROXY): $(PROXY_DIR)/package.json $(PROXY_DIR)/package-lock.json
 hub: install hub-deps
 	@mkdir -p $(HUB_DIR)
 	cd $(HUB_DIR) && PATH=$(CURDIR)/$(PROXY_DIR)/node_modules/.bin:$(CURDIR)/$(BIN):$$PATH \
-	  PRESCRIBE_CHECKOUT=$(CURDIR) PRESCRIBE_HUB_PORT=$(HUB_PORT) PRESCRIBE_HUB_DIR=$(HUB_DIR) \
+	  PRESCRIBE_CHECKOUT=$(CURDIR) PRESCRIBE_HUB_PORT=$(HUB_PORT) PRESCRIBE_HUB_API_PORT=$(HUB_API_PORT) PRESCRIBE_HUB_DIR=$(HUB_DIR) \
 	  PRESCRIBE_HUB_SPAWNER=$(HUB_SPAWNER) PRESCRIBE_HUB_ADMINS=$(HUB_ADMINS) PRESCRIBE_HUB_LEADS=$(HUB_LEADS) \
 	  $(CURDIR)/$(BIN)/jupyterhub -f $(CURDIR)/deploy/jupyterhub_config.py
 

@@ -12,7 +12,6 @@ from __future__ import annotations
 
 import os
 import secrets
-import signal
 import subprocess
 import sys
 import time
@@ -21,6 +20,7 @@ from urllib.parse import urlparse
 
 import pytest
 
+from hub_support import stop_hub
 from prescribe.store import open_store
 
 from .conftest import CHROMIUM_ARGS, LOCAL_HOSTS, ROOT, SHOTS, _require_chromium, free_port, shot, type_into, wait_for_port
@@ -77,12 +77,7 @@ def hub(tmp_path_factory):
         wait_for_port("127.0.0.1", port, proc, timeout_s=90)
         yield {"url": f"http://127.0.0.1:{port}", "password": password, "db": str(db), "log": log}
     finally:
-        proc.send_signal(signal.SIGTERM)  # the hub stops the clinicians' servers and its proxy
-        try:
-            proc.wait(timeout=60)
-        except subprocess.TimeoutExpired:
-            os.killpg(proc.pid, signal.SIGKILL)
-            proc.wait(timeout=30)
+        stop_hub(proc, folder)  # the hub stops the clinicians' servers, its culler and its proxy
         SHOTS.mkdir(parents=True, exist_ok=True)
         (SHOTS / "hub.log").write_text(log.read_text(errors="replace"))
 
