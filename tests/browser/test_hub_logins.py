@@ -156,8 +156,8 @@ def test_each_save_is_recorded_under_its_login_and_only_a_lead_approves(hub, hub
         # A clinician may not approve a clinic template: refused, with who may.
         assert "clinician" in clinician.locator(".pr-template-role").inner_text()
         _approve(clinician)
-        clinician.locator(".pr-error-box").wait_for(state="visible", timeout=30_000)
-        refusal = clinician.locator(".pr-error-box").inner_text()
+        clinician.locator(".pr-error .pr-error-box").wait_for(state="visible", timeout=30_000)
+        refusal = clinician.locator(".pr-error .pr-error-box").inner_text()
         assert CLINICIAN in refusal and "clinic lead" in refusal
         assert "Not approved" in clinician.locator(".pr-template-status").inner_text()
         shot(clinician, "hub-11-clinician-refused", of=".pr-section-templates")
