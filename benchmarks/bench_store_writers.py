@@ -81,7 +81,7 @@ def run_writers(url: str, writers: int = 8, seconds: float = 60.0, folder: str |
         p.join(timeout=seconds + 120)
     elapsed = time.monotonic() - started
     committed: dict[tuple[str, int], str] = {}
-    conflicts = errors = duplicates = 0
+    conflicts = errors = repeated = 0
     error_lines = []
     for p, out in zip(procs, outs):
         if p.exitcode != 0:
@@ -90,7 +90,7 @@ def run_writers(url: str, writers: int = 8, seconds: float = 60.0, folder: str |
             parts = line.split()
             if parts[0] == "committed":
                 key = (parts[1], int(parts[2]))
-                duplicates += key in committed
+                repeated += key in committed
                 committed[key] = parts[3]
             elif parts[0] == "conflicts":
                 conflicts += int(parts[1])
@@ -115,7 +115,7 @@ def run_writers(url: str, writers: int = 8, seconds: float = 60.0, folder: str |
         tmp.cleanup()
     return {"writers": writers, "seconds": round(elapsed, 1), "commits": len(committed),
             "commits_per_s": round(len(committed) / elapsed, 1), "conflicts_refused": conflicts,
-            "lost": lost, "overwritten": overwritten, "duplicate_versions": duplicates,
+            "lost": lost, "overwritten": overwritten, "duplicate_versions": repeated,
             "gaps": gaps, "wrong_based_on": bad_base, "writer_errors": errors, "error_lines": error_lines[:3]}
 
 
