@@ -447,3 +447,22 @@ def test_one_store_object_can_be_shared_by_threads(store):
 
     with ThreadPoolExecutor(4) as pool:
         assert list(pool.map(work, range(4))) == [list(range(1, 11))] * 4
+
+
+def test_under_the_hub_every_write_records_the_login(store, monkeypatch):
+    """Whatever a caller passes, a write made in a clinician's hub server records the login."""
+    monkeypatch.setenv("JUPYTERHUB_USER", "mara.teal")
+    store.save_patient(record(), screening())                      # no name given: the login
+    store.save_program("TEST-0001", plan(), "mara.teal", None)     # the login itself: fine
+    with pytest.raises(InputError, match="otto.fenn"):
+        store.save_program("TEST-0001", plan(), "otto.fenn", 1)   # another name: refused, nothing saved
+    store.add_session_log("TEST-0001", "2026-01-12", {}, program_version=1)
+    store.add_template("Osteopenia start", {"weeks": 12}, "")
+    assert [v["clinician"] for v in store.program_versions("TEST-0001")] == ["mara.teal"]
+    assert {a["clinician"] for a in store.audit()} == {"mara.teal"}
+    assert store.session_logs("TEST-0001")[0]["clinician"] == "mara.teal"
+    assert store.templates()[0]["created_by"] == "mara.teal"
+    # an imported bundle keeps the names it was exported with (history is not rewritten)
+    monkeypatch.delenv("JUPYTERHUB_USER")
+    bundle = store.export_patient("TEST-0001")
+    assert bundle["programs"][0]["clinician"] == "mara.teal"

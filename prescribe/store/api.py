@@ -39,7 +39,7 @@ from ..cautions import STANDARD_CAUTIONS
 from ..errors import ConflictError, FieldProblem, InputError, NotFoundError, StoreError
 from ..plan_schema import parse_plan
 from ..records import PatientRecord, ScreeningResult, parse_record
-from ..settings import db_url
+from ..settings import current_clinician, db_url, hub_login
 from . import models as m
 from .bundle import BUNDLE_FORMAT_VERSION, BUNDLE_KIND, parse_bundle
 
@@ -779,11 +779,15 @@ def _text(value: Any, field: str, required: bool = False, max_len: int = 10_000)
 
 
 def _clinician(value: Any, required: bool) -> str:
+    """Who is writing.  Under JupyterHub it is always the login (JUPYTERHUB_USER), whatever
+    the caller passed: an empty name becomes the login and a different one is refused
+    (prescribe.settings.current_clinician), so every write records the login."""
     try:
-        return _text(value, "clinician", required=required, max_len=200)
+        value = _text(value, "clinician", required=required and hub_login() is None, max_len=200)
     except InputError:
         need = "the name or initials of the clinician (free text, 1 to 200 characters)"
         raise InputError.single("clinician", value, need if required else "free text of at most 200 characters") from None
+    return current_clinician(value) if hub_login() is not None else value
 
 
 def _iso_date(value: Any, field: str) -> str:
