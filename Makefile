@@ -54,7 +54,10 @@ pg-deps:
 	elif [ "$$(id -u)" = 0 ] && command -v apt-get >/dev/null; then \
 	  echo "Installing PostgreSQL from Debian's packages"; \
 	  DEBIAN_FRONTEND=noninteractive apt-get update -qq && \
-	  DEBIAN_FRONTEND=noninteractive apt-get install -y -qq --no-install-recommends postgresql >/dev/null; \
+	  DEBIAN_FRONTEND=noninteractive apt-get install -y -qq --no-install-recommends postgresql >/dev/null && \
+	  { pg_lsclusters -h 2>/dev/null | awk '$$4 == "online" {print $$1, $$2}' | \
+	    while read ver name; do echo "Stopping the cluster $$ver/$$name the package started (the tests run their own)"; \
+	      pg_ctlcluster "$$ver" "$$name" stop; done; }; \
 	else \
 	  echo "PostgreSQL is not installed: its store tests will be skipped here (and fail in CI)."; \
 	  echo "  sudo apt-get install --no-install-recommends postgresql"; \
