@@ -52,6 +52,13 @@ def _in_ci() -> bool:
     return os.environ.get("CI", "").strip().lower() in ("1", "true", "yes")
 
 
+def pg_missing(exc: BaseException) -> None:
+    """PostgreSQL cannot run here: fail in CI (CI=true), skip on a developer machine."""
+    if _in_ci():
+        pytest.fail(f"PostgreSQL is required in CI and could not be started: {exc}")
+    pytest.skip(f"PostgreSQL not available here ({exc}); `make pg-deps` installs it")
+
+
 @pytest.fixture(scope="session")
 def pg_url():
     """The URL of a PostgreSQL database for the tests.
@@ -71,9 +78,7 @@ def pg_url():
         server = PgServer(fsync=False)  # the kill tests kill processes, not the machine
         url = server.start()
     except (PgUnavailable, ImportError, OSError) as exc:
-        if _in_ci():
-            pytest.fail(f"PostgreSQL is required in CI and could not be started: {exc}")
-        pytest.skip(f"PostgreSQL not available here ({exc}); `make pg-deps` installs it")
+        pg_missing(exc)
     try:
         yield url
     finally:
