@@ -1,7 +1,10 @@
 # Two commands do all the set-up on a fresh machine:
 #   make app   install, seed the demo store, serve the app on 127.0.0.1:$(PORT)
-#   make test  install (venv, Python packages, the Debian packages the browser
-#              and PDF tests need), run every test
+#   make test  install (venv, Python packages, the Debian packages the browser,
+#              PDF and PostgreSQL tests need, the hub's proxy), run every test; the
+#              tests start (and stop) their own PostgreSQL server and JupyterHub on
+#              127.0.0.1, on free ports
+#   make hub   the multi-user deployment on this machine (deploy/README.md)
 PYTHON ?= $(shell command -v python3.11 || command -v python3)
 VENV   := .venv
 BIN    := $(VENV)/bin
@@ -10,7 +13,16 @@ PORT   ?= 8866
 DEMO_DB ?= $(CURDIR)/var/demo.db
 PIP    := $(BIN)/python -m pip --disable-pip-version-check -q
 
-.PHONY: install system-deps app seed test test-fast bench lock clean
+PROXY_DIR := deploy/proxy
+PROXY  := $(PROXY_DIR)/node_modules/.bin/configurable-http-proxy
+HUB_PORT ?= 8000
+HUB_API_PORT ?= 8081
+HUB_DIR ?= $(CURDIR)/var/hub
+HUB_SPAWNER ?= systemd
+HUB_ADMINS ?=
+HUB_LEADS ?=
+
+.PHONY: install system-deps pg-deps hub-deps app seed test test-fast bench lock clean hub
 
 install: $(STAMP)
 
@@ -34,6 +46,42 @@ system-deps:
 	  echo "  sudo apt-get install --no-install-recommends chromium fonts-dejavu-core fonts-liberation poppler-utils"; exit 1; \
 	fi
 
+# Debian's PostgreSQL server binaries: the store's tests run on SQLite and on a private
+# PostgreSQL server they start themselves (tests/pg_server.py).  In CI (CI=true) a
+# missing PostgreSQL fails the tests; on a developer machine those variants are skipped.
+pg-deps:
+	@if ls /usr/lib/postgresql/*/bin/initdb >/dev/null 2>&1; then :; \
+	elif [ "$$(id -u)" = 0 ] && command -v apt-get >/dev/null; then \
+	  echo "Installing PostgreSQL from Debian's packages"; \
+	  DEBIAN_FRONTEND=noninteractive apt-get update -qq && \
+	  DEBIAN_FRONTEND=noninteractive apt-get install -y -qq --no-install-recommends postgresql >/dev/null && \
+	  { pg_lsclusters -h 2>/dev/null | awk '$$4 == "online" {print $$1, $$2}' | \
+	    while read ver name; do echo "Stopping the cluster $$ver/$$name the package started (the tests run their own)"; \
+	      pg_ctlcluster "$$ver" "$$name" stop; done; }; \
+	else \
+	  echo "PostgreSQL is not installed: its store tests will be skipped here (and fail in CI)."; \
+	  echo "  sudo apt-get install --no-install-recommends postgresql"; \
+	fi
+
+# The hub's proxy (configurable-http-proxy, pinned in deploy/proxy/package.json and its
+# lock) from the npm registry, into the project folder: nothing is installed globally.
+hub-deps: $(PROXY)
+
+$(PROXY): $(PROXY_DIR)/package.json $(PROXY_DIR)/package-lock.json
+	@command -v npm >/dev/null || { echo "make hub-deps needs node and npm (the hub's proxy is a node program)"; exit 1; }
+	cd $(PROXY_DIR) && npm ci --no-audit --no-fund --loglevel=error
+	@touch $@
+
+# The multi-user app on this machine: JupyterHub with NativeAuthenticator (sign-up, then
+# an admin approves), the app as each clinician's page, idle culling.  Give it a store
+# shared by the clinicians (PRESCRIBE_DB=postgresql+psycopg://...); see deploy/README.md.
+hub: install hub-deps
+	@mkdir -p $(HUB_DIR)
+	cd $(HUB_DIR) && PATH=$(CURDIR)/$(PROXY_DIR)/node_modules/.bin:$(CURDIR)/$(BIN):$$PATH \
+	  PRESCRIBE_CHECKOUT=$(CURDIR) PRESCRIBE_HUB_PORT=$(HUB_PORT) PRESCRIBE_HUB_API_PORT=$(HUB_API_PORT) PRESCRIBE_HUB_DIR=$(HUB_DIR) \
+	  PRESCRIBE_HUB_SPAWNER=$(HUB_SPAWNER) PRESCRIBE_HUB_ADMINS=$(HUB_ADMINS) PRESCRIBE_HUB_LEADS=$(HUB_LEADS) \
+	  $(CURDIR)/$(BIN)/jupyterhub -f $(CURDIR)/deploy/jupyterhub_config.py
+
 seed: install
 	@mkdir -p $(dir $(DEMO_DB))
 	PRESCRIBE_DB=$(DEMO_DB) $(BIN)/prescribe db init
@@ -42,7 +90,7 @@ seed: install
 app: seed
 	PRESCRIBE_DB=$(DEMO_DB) $(BIN)/prescribe app --port $(PORT)
 
-test: install system-deps
+test: install system-deps pg-deps hub-deps
 	$(BIN)/python -m pytest
 
 # Everything but the browser tests (quicker while working on the engine).
@@ -55,7 +103,7 @@ bench: install
 # Regenerate the lock file from pyproject's pins (run after changing a dependency).
 lock:
 	rm -rf /tmp/prescribe-lock && $(PYTHON) -m venv /tmp/prescribe-lock
-	/tmp/prescribe-lock/bin/pip install -q -e .[test]
+	/tmp/prescribe-lock/bin/pip install -q -e .[test,postgresql,hub]
 	( echo '# Exact versions CI and `make` install (pip install -r requirements.lock). Regenerate with `make lock`.'; \
 	  /tmp/prescribe-lock/bin/pip freeze --exclude-editable | grep -v '^-e' ) > requirements.lock
 

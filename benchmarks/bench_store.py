@@ -8,6 +8,10 @@ Prints two ratios measured in the same run on the same machine:
   ``synchronous=NORMAL`` (the baseline), per save: the price of durability across
   power loss.
 
+Then the same store operations on both backends side by side, measured alike in the same
+run: SQLite (WAL, synchronous=FULL) and PostgreSQL (a private server on 127.0.0.1 started
+for the run, fsync on, tests/pg_server.py), median ms each, with the ratio PostgreSQL/SQLite.
+
 Invented data only.  Run: ``.venv/bin/python benchmarks/bench_store.py``.
 """
 
@@ -74,6 +78,52 @@ def _saves_ms(folder: Path, synchronous: str, n: int = 40) -> float:
         api.SQLITE_SYNCHRONOUS = "FULL"
 
 
+def _operations_ms(url: str, n: int = 30) -> dict[str, float]:
+    """Median ms of the store's everyday operations on one backend."""
+    open_store(url).close()
+    with open_store(url) as store:
+        for i in range(50):
+            store.save_patient(record(f"SIDE-{i:02d}"), screening(f"SIDE-{i:02d}"), clinician="bench")
+        state = {"v": None, "r": store.record_version("SIDE-00"), "falls": 0}
+        body = plan("SIDE-00")
+
+        def save_program():
+            state["v"] = store.save_program("SIDE-00", body, "bench", state["v"])
+
+        def save_record():
+            state["falls"] = (state["falls"] + 1) % 50
+            out = store.save_patient(record("SIDE-00", falls_past_year=state["falls"]), screening("SIDE-00"),
+                                     "bench", based_on_version=state["r"])
+            state["r"] = out["record_version"]
+
+        return {
+            "open a current store": _median_ms(lambda: open_store(url).close(), n),
+            "save a person (record + screening)": _median_ms(save_record, n),
+            "save a program version": _median_ms(save_program, n),
+            "read a program": _median_ms(lambda: store.get_program("SIDE-00"), n),
+            "list 50 people": _median_ms(store.list_patients, n),
+            "export a person": _median_ms(lambda: store.export_patient("SIDE-00"), n),
+        }
+
+
+def side_by_side() -> None:
+    from pg_server import PgServer, PgUnavailable
+    with tempfile.TemporaryDirectory() as tmp:
+        sqlite = _operations_ms(str(Path(tmp) / "side.db"))
+    try:
+        with PgServer(fsync=True) as server:
+            pg = _operations_ms(server.url)
+    except PgUnavailable as exc:
+        print(f"PostgreSQL not available here ({exc}); the side-by-side table is SQLite only")
+        pg = {}
+    print(f"{'operation (median ms)':<38} {'SQLite':>8} {'PostgreSQL':>11} {'PG/SQLite':>10}")
+    for op, ms in sqlite.items():
+        if op in pg:
+            print(f"{op:<38} {ms:>8.2f} {pg[op]:>11.2f} {pg[op] / ms:>9.2f}x")
+        else:
+            print(f"{op:<38} {ms:>8.2f} {'-':>11} {'-':>10}")
+
+
 def main() -> int:
     with tempfile.TemporaryDirectory() as tmp:
         folder = Path(tmp)
@@ -88,6 +138,7 @@ def main() -> int:
         normal = _saves_ms(folder, "NORMAL")
         print(f"program save: synchronous=FULL {full:.2f} ms, NORMAL {normal:.2f} ms "
               f"(FULL costs {full / normal:.2f}x)")
+    side_by_side()
     return 0
 
 

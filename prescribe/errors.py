@@ -64,6 +64,17 @@ class InputError(PrescribeError, ValueError):
         return cls([FieldProblem(field, value, allowed)], source=source)
 
 
+class NotPermittedError(InputError):
+    """The clinician's role does not allow this action (a clinician approving a template)."""
+
+    def __init__(self, clinician: str, action: str, role_needed: str):
+        self.clinician, self.action, self.role_needed = clinician, action, role_needed
+        super().__init__(FieldProblem(
+            "clinician", clinician,
+            f"a clinic {role_needed} to {action} (this clinician's role is clinician; a hub admin adds "
+            f"leads to the clinic-leads group, or the clinic settings list them under [roles] leads)"))
+
+
 class RuleFileError(PrescribeError):
     """A screening rule file is malformed: names the file, the rule and the problem."""
 

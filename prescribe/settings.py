@@ -8,6 +8,20 @@ The clinic shown on handouts comes from ``PRESCRIBE_CLINIC_NAME`` and
 ``PRESCRIBE_CLINIC_CONTACT``, or a TOML file named by ``PRESCRIBE_SETTINGS`` with a
 ``[clinic]`` table (``name``, ``contact``).  Without either, handouts say the clinic
 is not set.
+
+Who is working, and in which role (see docs/deploy.md):
+
+* :func:`current_clinician` is the login from ``JUPYTERHUB_USER`` when the app runs
+  under JupyterHub; a different name given explicitly is refused (never silently
+  replaced), so the audit log, program versions, sessions and template approvals
+  record the login.  Without a hub (the single-user ``prescribe app`` and the command
+  line) it is the free-text name given with ``--clinician``.
+* :func:`clinician_role` is ``"lead"`` or ``"clinician"``.  A clinic lead may approve
+  templates; a clinician may not (:func:`require_role`).  Leads are named by the hub
+  (``PRESCRIBE_HUB_ROLE=lead``, which deploy/jupyterhub_config.py sets for hub admins
+  and members of the ``clinic-leads`` group) or by the clinic settings: the
+  ``[roles] leads = [...]`` list of the ``PRESCRIBE_SETTINGS`` file, or the
+  comma-separated ``PRESCRIBE_CLINIC_LEADS``.  Everyone else is a clinician.
 """
 
 from __future__ import annotations
@@ -17,7 +31,16 @@ import tomllib
 from dataclasses import dataclass
 from pathlib import Path
 
-from .errors import InputError
+from .errors import InputError, NotPermittedError
+
+#: Environment variables the hub sets for each clinician's server.
+HUB_USER_ENV = "JUPYTERHUB_USER"
+HUB_ROLE_ENV = "PRESCRIBE_HUB_ROLE"
+LEADS_ENV = "PRESCRIBE_CLINIC_LEADS"
+ROLES = ("lead", "clinician")
+#: What each role may do beyond the common work (saving people, programs, sessions).
+ROLE_ACTIONS = {"approve_template": "lead", "retire_template": "lead"}
+MAX_CLINICIAN_LEN = 200
 
 
 def default_db_path() -> Path:
@@ -52,3 +75,83 @@ def clinic() -> Clinic:
         name = name or table.get("name")
         contact = contact or table.get("contact")
     return Clinic(name=name or Clinic.name, contact=contact or "")
+
+
+# -- identity and roles ---------------------------------------------------------------
+
+def hub_login() -> str | None:
+    """The JupyterHub login of this server's user, or None outside a hub."""
+    login = (os.environ.get(HUB_USER_ENV) or "").strip()
+    return login or None
+
+
+def current_clinician(explicit: str | None = None, *, required: bool = False) -> str:
+    """Who is saving: the hub login when there is one, else the explicit free-text name.
+
+    Under JupyterHub an explicit name that differs from the login is refused with an
+    :class:`InputError` (it is never silently replaced): the login is what the record
+    shows.  Without a hub the explicit name is used as given (stripped); with
+    ``required`` an empty name is refused.
+    """
+    if explicit is not None and not isinstance(explicit, str):
+        raise InputError.single("clinician", explicit, "text: the name or initials of the clinician")
+    name = (explicit or "").strip()
+    login = hub_login()
+    if login is not None:
+        if name and name != login:
+            raise InputError.single("clinician", name, f"your login {login!r} or nothing: under JupyterHub "
+                                    "every save is recorded under the login of the clinician who made it")
+        return login
+    if len(name) > MAX_CLINICIAN_LEN:
+        raise InputError.single("clinician", name, f"a name or initials of at most {MAX_CLINICIAN_LEN} characters")
+    if required and not name:
+        raise InputError.single("clinician", explicit, "the name or initials of the clinician "
+                                "(--clinician NAME), recorded in the audit log")
+    return name
+
+
+def clinic_leads() -> frozenset[str]:
+    """The clinicians the clinic settings name as leads (PRESCRIBE_CLINIC_LEADS, [roles] leads)."""
+    names = {n.strip() for n in os.environ.get(LEADS_ENV, "").split(",") if n.strip()}
+    path = os.environ.get("PRESCRIBE_SETTINGS")
+    if path:
+        try:
+            data = tomllib.loads(Path(path).read_text(encoding="utf-8"))
+        except (OSError, tomllib.TOMLDecodeError) as exc:
+            raise InputError.single("PRESCRIBE_SETTINGS", path, f"a readable TOML settings file ({exc})") from None
+        leads = data.get("roles", {}).get("leads", [])
+        if not isinstance(leads, list) or not all(isinstance(n, str) for n in leads):
+            raise InputError.single("PRESCRIBE_SETTINGS [roles] leads", leads, "a list of clinician names")
+        names |= {n.strip() for n in leads if n.strip()}
+    return frozenset(names)
+
+
+def clinician_role(name: str) -> str:
+    """``"lead"`` or ``"clinician"`` for this clinician.
+
+    A lead is the hub's logged-in user whose server the hub marked ``PRESCRIBE_HUB_ROLE=lead``
+    (a hub admin or a member of the ``clinic-leads`` group), or anyone the clinic
+    settings list as a lead.  Everyone else, and an empty name, is a clinician.
+    """
+    name = (name or "").strip()
+    if not name:
+        return "clinician"
+    login = hub_login()
+    if login is not None and name == login and os.environ.get(HUB_ROLE_ENV, "").strip() == "lead":
+        return "lead"
+    return "lead" if name in clinic_leads() else "clinician"
+
+
+def require_role(name: str, action: str) -> str:
+    """Refuse ``action`` (a key of ROLE_ACTIONS) unless ``name`` has the role it needs.
+
+    Returns the role.  Raises :class:`NotPermittedError` (exit 2) naming the clinician,
+    the action and who may do it.
+    """
+    if action not in ROLE_ACTIONS:
+        raise InputError.single("action", action, "one of " + ", ".join(sorted(ROLE_ACTIONS)))
+    role = clinician_role(name)
+    needed = ROLE_ACTIONS[action]
+    if role != needed:
+        raise NotPermittedError(name, action.replace("_", " "), needed)
+    return role

@@ -40,6 +40,14 @@ PERSON = {"patient_id": "CLI-0001", "age_years": 72, "sex": "female", "body_mass
 
 
 @pytest.fixture
+def store_db(new_db, monkeypatch) -> str:
+    """A fresh store on each backend (SQLite file, PostgreSQL schema), set as PRESCRIBE_DB."""
+    where = new_db("cli")
+    monkeypatch.setenv("PRESCRIBE_DB", where)
+    return where
+
+
+@pytest.fixture
 def person_file(tmp_path):
     path = tmp_path / "person.json"
     path.write_text(json.dumps(PERSON))
@@ -59,18 +67,23 @@ def _fails(result, code, *words):
         assert word in result.stderr, result.stderr
 
 
-def test_db_init_creates_and_is_repeatable(cli_here, tmp_db):
+def test_db_init_creates_and_is_repeatable(cli_here, store_db):
     first = _ok(cli_here("db", "init"))
-    assert first["revision"] == first["head_revision"] == HEAD_REVISION and first["db"] == tmp_db
+    assert first["revision"] == first["head_revision"] == HEAD_REVISION
+    if "://" in store_db:  # a database URL is shown without its password
+        password = store_db.split("://", 1)[1].split("@", 1)[0].split(":", 1)[1]
+        assert "***" in first["db"] and password not in first["db"] and password not in json.dumps(first)
+    else:
+        assert first["db"] == store_db
     assert _ok(cli_here("db", "init"))["people"] == 0
 
 
-def test_save_screens_stores_and_prints_cautions(tmp_db, person_file):
+def test_save_screens_stores_and_prints_cautions(store_db, person_file):
     out = _ok(run_cli("save", str(person_file), "--clinician", "Demo Physio (invented)"))
     assert out["patient_id"] == "CLI-0001" and out["status"] == "created" and out["screening_id"] == 1
     assert out["screening"]["bone_density_category"] == "osteoporosis"  # lowest T-score -2.7 (WHO 1994 cut-off -2.5)
     assert any("clinical judgment" in c for c in out["cautions"])
-    with open_store(tmp_db) as store:
+    with open_store(store_db) as store:
         [screen] = store.screenings("CLI-0001")
         assert screen["ruleset_version"] == out["screening"]["ruleset_version"] != ""
         assert store.audit("CLI-0001")[0]["clinician"] == "Demo Physio (invented)"
@@ -90,9 +103,9 @@ def test_save_with_bad_input_exits_2_and_writes_nothing(tmp_path, content, words
     assert not db.exists()
 
 
-def test_export_then_import_round_trips_exactly(cli_here, tmp_path, tmp_db, person_file):
+def test_export_then_import_round_trips_exactly(cli_here, tmp_path, store_db, new_db, person_file):
     _ok(cli_here("save", str(person_file), "--clinician", "AB"))
-    with open_store(tmp_db) as store:
+    with open_store(store_db) as store:
         store.save_program("CLI-0001", plan("CLI-0001", marker="<b>v1</b>"), "AB", None, note="start")
         store.save_program("CLI-0001", plan("CLI-0001", weeks=3), "CD", 1, note="'); DROP TABLE people;--")
     bundle = _ok(cli_here("export", "CLI-0001"))
@@ -100,13 +113,13 @@ def test_export_then_import_round_trips_exactly(cli_here, tmp_path, tmp_db, pers
     bundle_file = tmp_path / "bundle.json"
     assert _ok(cli_here("export", "CLI-0001", "--out", str(bundle_file)))["program_versions"] == 2
     assert json.loads(bundle_file.read_text()) == bundle
-    other = tmp_path / "other.db"
+    other = new_db("other")
     assert _ok(cli_here("import", str(bundle_file), "--db", str(other)))["status"] == "imported"
     assert _ok(cli_here("export", "CLI-0001", "--db", str(other))) == bundle
     assert _ok(cli_here("import", str(bundle_file), "--db", str(other)))["status"] == "unchanged"
 
 
-def test_export_of_an_unknown_person_exits_2_naming_the_id(cli_here, tmp_db, person_file):
+def test_export_of_an_unknown_person_exits_2_naming_the_id(cli_here, store_db, person_file):
     _ok(cli_here("save", str(person_file)))
     _fails(cli_here("export", "NOBODY-42"), 2, "PATIENT_ID", "NOBODY-42")
 
@@ -117,13 +130,14 @@ def test_export_from_a_missing_store_does_not_create_it(cli_here, tmp_path):
     assert not db.exists()
 
 
-def test_import_over_a_different_person_exits_1_and_changes_nothing(cli_here, tmp_path, tmp_db, person_file):
+def test_import_over_a_different_person_exits_1_and_changes_nothing(cli_here, tmp_path, store_db, new_db,
+                                                                  person_file):
     _ok(cli_here("save", str(person_file), "--clinician", "AB"))
     bundle_file = tmp_path / "bundle.json"
     _ok(cli_here("export", "CLI-0001", "--out", str(bundle_file)))
     changed = tmp_path / "changed.json"
     changed.write_text(json.dumps({**PERSON, "falls_past_year": 3}))
-    other = tmp_path / "other.db"
+    other = new_db("other")
     _ok(cli_here("save", str(changed), "--db", str(other)))
     before = _ok(cli_here("export", "CLI-0001", "--db", str(other)))
     _fails(cli_here("import", str(bundle_file), "--db", str(other)), 1, "CLI-0001", "already in the store")
@@ -173,3 +187,29 @@ def test_a_file_that_is_not_a_store_gives_a_clear_message(cli_here, tmp_path, pe
         if args[0] != "import":  # import refuses the person file itself first (not a bundle)
             assert result.returncode == 1 and "not a prescribe store" in result.stderr
     assert sha256(db) == before
+
+
+def test_a_save_based_on_an_older_record_version_exits_1_and_changes_nothing(cli_here, tmp_path, store_db,
+                                                                           person_file):
+    first = _ok(cli_here("save", str(person_file), "--clinician", "AB"))
+    assert first["record_version"] == 1
+    changed = tmp_path / "changed.json"
+    changed.write_text(json.dumps({**PERSON, "falls_past_year": 3}))
+    second = _ok(cli_here("save", str(changed), "--clinician", "CD", "--based-on-version", "1"))
+    assert second["status"] == "updated" and second["record_version"] == 2
+    stale = tmp_path / "stale.json"
+    stale.write_text(json.dumps({**PERSON, "pain_score": 4}))
+    _fails(cli_here("save", str(stale), "--clinician", "AB", "--based-on-version", "1"), 1,
+           "record version 1", "version 2", "CD", "Nothing was overwritten")
+    _fails(cli_here("save", str(stale), "--based-on-version", "x"), 2, "--based-on-version")
+    with open_store(store_db) as store:
+        kept = store.get_patient("CLI-0001")
+        assert kept.falls_past_year == 3 and kept.pain_score != 4 and store.record_version("CLI-0001") == 2
+
+
+def test_under_the_hub_save_records_the_login_and_refuses_another_name(cli_here, store_db, person_file, monkeypatch):
+    monkeypatch.setenv("JUPYTERHUB_USER", "mara.teal")
+    _fails(cli_here("save", str(person_file), "--clinician", "otto.fenn"), 2, "otto.fenn", "mara.teal")
+    _ok(cli_here("save", str(person_file)))
+    with open_store(store_db) as store:
+        assert {a["clinician"] for a in store.audit("CLI-0001")} == {"mara.teal"}

@@ -1,5 +1,9 @@
 """The record store's API: people, screenings, program versions, audit, bundles,
-migrations and refusing files that are not a store.  All data here is invented."""
+migrations and refusing files that are not a store.  All data here is invented.
+
+Tests taking ``store`` or ``new_db`` run twice: on SQLite and on a real PostgreSQL
+server (tests/conftest.py); the file checks, the pragmas and the backup are SQLite's own.
+"""
 
 from __future__ import annotations
 
@@ -8,7 +12,7 @@ import sqlite3
 import sys
 
 import pytest
-from sqlalchemy import create_engine, inspect
+from sqlalchemy import create_engine, inspect, text
 
 from prescribe.errors import ConflictError, InputError, NotFoundError, StoreError
 from prescribe.store import HEAD_REVISION, open_store, parse_bundle
@@ -18,13 +22,21 @@ from test_store_support import plan, record, screening, sha256
 
 
 @pytest.fixture
-def store(tmp_path):
+def store(new_db):
+    s = open_store(new_db("clinic"))
+    yield s
+    s.close()
+
+
+@pytest.fixture
+def sqlite_store(tmp_path):
     s = open_store(str(tmp_path / "clinic.db"))
     yield s
     s.close()
 
 
-def test_every_connection_gets_wal_foreign_keys_busy_timeout_and_full_sync(store):
+def test_every_connection_gets_wal_foreign_keys_busy_timeout_and_full_sync(sqlite_store):
+    store = sqlite_store
     with store.engine.connect() as conn:
         pragmas = {p: conn.exec_driver_sql(f"PRAGMA {p}").scalar()
                    for p in ("journal_mode", "foreign_keys", "busy_timeout", "synchronous")}
@@ -60,6 +72,45 @@ def test_an_update_records_who_changed_which_fields(store):
     audit = store.audit("TEST-0001")
     assert [a["action"] for a in audit] == ["person_created", "person_updated"]
     assert audit[1]["clinician"] == "CD" and audit[1]["detail"]["changed_fields"] == ["falls_past_year", "pain_score"]
+
+
+def test_a_record_save_based_on_an_older_version_is_a_conflict_and_keeps_both(store):
+    """Two clinicians open version 1 of the same person; the first save wins, the second
+    is refused naming both versions and who saved, and nothing is overwritten."""
+    first = store.save_patient(record(), screening(), clinician="AB", based_on_version=0)
+    assert first["record_version"] == 1
+    cd = store.save_patient(record(falls_past_year=2), None, clinician="CD", based_on_version=1)
+    assert cd["status"] == "updated" and cd["record_version"] == 2
+    with pytest.raises(ConflictError) as info:
+        store.save_patient(record(pain_score=5), screening(), clinician="EF", based_on_version=1)
+    message = str(info.value)
+    assert "version 2" in message and "record version 1" in message and "CD" in message
+    assert info.value.latest_version == 2
+    assert store.get_patient("TEST-0001").falls_past_year == 2 and store.get_patient("TEST-0001").pain_score != 5
+    assert len(store.screenings("TEST-0001")) == 1  # the refused save's screening was not stored either
+    # A stale version that changes nothing is not a conflict; the current one saves.
+    assert store.save_patient(record(falls_past_year=2), None, "EF", based_on_version=1)["status"] == "unchanged"
+    assert store.save_patient(record(falls_past_year=2, pain_score=5), None, "EF",
+                              based_on_version=2)["record_version"] == 3
+    # Starting a "new" person whose id someone else already stored is a conflict too.
+    with pytest.raises(ConflictError, match="as a new person"):
+        store.save_patient(record(age_years=90), None, "GH", based_on_version=0)
+    assert [p["record_version"] for p in store.list_patients()] == [3]
+
+
+def test_an_unchecked_update_keeps_the_replaced_values_in_the_audit(store):
+    store.save_patient(record(), None, clinician="AB")
+    store.save_patient(record(falls_past_year=4), None, clinician="CD")
+    [_, update] = store.audit("TEST-0001")
+    assert update["detail"]["previous"] == {"falls_past_year": record().falls_past_year}
+    assert update["detail"]["record_version"] == 2 and update["detail"]["based_on_version"] is None
+
+
+@pytest.mark.parametrize("bad", [-1, True, "2", 1.0])
+def test_a_bad_record_version_names_the_field(store, bad):
+    with pytest.raises(InputError, match="based_on_version"):
+        store.save_patient(record(), None, "AB", based_on_version=bad)
+    assert store.list_patients() == []
 
 
 def test_unknown_person_is_not_found_naming_the_id(store):
@@ -124,7 +175,7 @@ def test_bad_program_input_names_the_field_and_writes_nothing(store, kwargs, fie
     assert [a["action"] for a in store.audit()] == ["person_created"]
 
 
-def test_sql_and_html_in_text_round_trip_unchanged_and_harm_nothing(store, tmp_path):
+def test_sql_and_html_in_text_round_trip_unchanged_and_harm_nothing(store, new_db):
     pid = "Robert'); DROP TABLE people;--"
     html = "<script>alert(1)</script>"
     store.save_patient(record(pid), screening(pid), clinician=html)
@@ -138,7 +189,7 @@ def test_sql_and_html_in_text_round_trip_unchanged_and_harm_nothing(store, tmp_p
     assert store.audit(pid)[0]["clinician"] == html
     assert store.session_logs(pid)[0]["notes"] == pid
     assert set(models.TABLES_0002) <= set(inspect(store.engine).get_table_names())
-    copy = open_store(str(tmp_path / "copy.db"))
+    copy = open_store(new_db("copy"))
     assert copy.import_bundle(store.export_patient(pid))["status"] == "imported"
     assert copy.export_patient(pid) == store.export_patient(pid)
     copy.close()
@@ -153,14 +204,14 @@ def _full_person(store, pid="TEST-0001"):
                           rpe=6, pain=2, notes="felt fine", clinician="CD")
 
 
-def test_export_import_round_trip_is_exact(store, tmp_path):
+def test_export_import_round_trip_is_exact(store, new_db):
     _full_person(store)
     bundle = store.export_patient("TEST-0001")
     assert bundle["bundle_format_version"] == "1" and bundle["cautions"]
     assert [p["version"] for p in bundle["programs"]] == [1, 2]
     assert len(bundle["screenings"]) == 2 and len(bundle["session_logs"]) == 1
     wire = json.loads(json.dumps(bundle))  # as written to and read from a file
-    with open_store(str(tmp_path / "other.db")) as other:
+    with open_store(new_db("other")) as other:
         out = other.import_bundle(wire)
         assert out == {"patient_id": "TEST-0001", "status": "imported", "screenings": 2, "program_versions": 2,
                        "session_logs": 1, "sessions": 0, "audit_entries": len(bundle["audit"])}
@@ -173,10 +224,10 @@ def test_export_import_round_trip_is_exact(store, tmp_path):
         assert other.export_patient("TEST-0001") == bundle
 
 
-def test_import_over_a_different_person_is_refused_and_changes_nothing(store, tmp_path):
+def test_import_over_a_different_person_is_refused_and_changes_nothing(store, new_db):
     _full_person(store)
     bundle = store.export_patient("TEST-0001")
-    with open_store(str(tmp_path / "other.db")) as other:
+    with open_store(new_db("other")) as other:
         other.save_patient(record(), screening(), clinician="EF")
         before = other.export_patient("TEST-0001")
         with pytest.raises(ConflictError, match="already in the store"):
@@ -193,14 +244,14 @@ def test_import_over_a_different_person_is_refused_and_changes_nothing(store, tm
     (lambda b: b.pop("programs"), "programs"),
     (lambda b: b["session_logs"][0].update(rpe=11), "session_logs[0].rpe"),
 ])
-def test_a_malformed_bundle_names_the_field_and_writes_nothing(store, tmp_path, mutate, field):
+def test_a_malformed_bundle_names_the_field_and_writes_nothing(store, new_db, mutate, field):
     _full_person(store)
     bundle = json.loads(json.dumps(store.export_patient("TEST-0001")))
     mutate(bundle)
     with pytest.raises(InputError) as err:
         parse_bundle(bundle)
     assert field in str(err.value)
-    with open_store(str(tmp_path / "other.db")) as other:
+    with open_store(new_db("other")) as other:
         with pytest.raises(InputError):
             other.import_bundle(bundle)
         assert other.list_patients() == [] and other.audit() == []
@@ -227,10 +278,10 @@ def test_session_logs_and_clinic_templates(store):
 
 # -- migrations -------------------------------------------------------------------------
 
-def _alembic_upgrade(path, revision):
+def _alembic_upgrade(where, revision):
     from alembic import command
     from alembic.config import Config
-    engine = create_engine(f"sqlite:///{path}")
+    engine = create_engine(where if "://" in str(where) else f"sqlite:///{where}")
     with engine.begin() as conn:
         cfg = Config()
         cfg.set_main_option("script_location", str(store_api.MIGRATIONS_DIR))
@@ -254,28 +305,29 @@ def test_migrated_schema_matches_the_models(store):
         assert {c["name"] for c in insp.get_columns(table.name)} == set(table.columns.keys()), table.name
 
 
-def test_an_older_store_opens_and_upgrades_without_losing_rows(tmp_path):
-    path = tmp_path / "old.db"
-    _alembic_upgrade(path, "0001")
-    conn = sqlite3.connect(path)
+def test_an_older_store_opens_and_upgrades_without_losing_rows(new_db):
+    where = new_db("old")
+    _alembic_upgrade(where, "0001")
+    engine = create_engine(where if "://" in where else f"sqlite:///{where}")
     rec = json.dumps(record("OLD-1").model_dump(mode="json"))
-    conn.execute("INSERT INTO people VALUES ('OLD-1', ?, '2025-01-01T00:00:00+00:00', '2025-01-01T00:00:00+00:00')",
-                 (rec,))
-    conn.execute("INSERT INTO program_versions (patient_id, version, based_on_version, created, clinician, note, "
-                 "summary_json, plan_json) VALUES ('OLD-1', 1, NULL, '2025-01-02T00:00:00+00:00', 'AB', '', '{}', ?)",
-                 (json.dumps(plan("OLD-1")),))
-    conn.commit()
-    conn.close()
-    with open_store(str(path)) as s:
+    with engine.begin() as conn:
+        conn.execute(text("INSERT INTO people VALUES ('OLD-1', :rec, '2025-01-01T00:00:00+00:00', "
+                          "'2025-01-01T00:00:00+00:00')"), {"rec": rec})
+        conn.execute(text("INSERT INTO program_versions (patient_id, version, based_on_version, created, clinician, "
+                          "note, summary_json, plan_json) VALUES ('OLD-1', 1, NULL, '2025-01-02T00:00:00+00:00', "
+                          "'AB', '', '{}', :plan)"), {"plan": json.dumps(plan("OLD-1"))})
+    engine.dispose()
+    with open_store(where) as s:
         assert s.revision() == HEAD_REVISION
         assert s.get_patient("OLD-1") == record("OLD-1")
+        assert s.record_version("OLD-1") == 1  # revision 0006 numbers existing records from 1
         assert s.get_program("OLD-1") == plan("OLD-1")
         assert s.save_program("OLD-1", plan("OLD-1"), "CD", 1) == 2
         assert s.add_session_log("OLD-1", "2026-01-01", {}, program_version=2) == 1
 
 
-def test_opening_a_current_store_skips_alembic(tmp_path, monkeypatch):
-    path = str(tmp_path / "fast.db")
+def test_opening_a_current_store_skips_alembic(new_db, monkeypatch):
+    path = new_db("fast")
     open_store(path).close()
     import alembic.command
 
@@ -346,7 +398,8 @@ def test_a_directory_or_a_bad_url_is_a_clear_error(tmp_path):
 
 # -- backup ------------------------------------------------------------------------------
 
-def test_backup_is_a_working_store_and_never_overwrites_by_accident(store, tmp_path):
+def test_backup_is_a_working_store_and_never_overwrites_by_accident(sqlite_store, tmp_path):
+    store = sqlite_store
     _full_person(store)
     target = tmp_path / "backups" / "copy.db"
     info = store.backup(target)
@@ -360,6 +413,16 @@ def test_backup_is_a_working_store_and_never_overwrites_by_accident(store, tmp_p
     store.save_program("TEST-0001", plan(marker="v3"), "AB", 2)
     assert store.backup(target, force=True)["program_versions"] == 3
     assert not [p for p in target.parent.iterdir() if p.name.endswith(".partial")]
+
+
+def test_backup_of_a_postgresql_store_points_to_pg_dump(pg_url, tmp_path):
+    from pg_server import create_schema, drop_schema, with_schema
+    create_schema(pg_url, "t_backup_refused")
+    with open_store(with_schema(pg_url, "t_backup_refused")) as store:
+        with pytest.raises(StoreError, match="pg_dump"):
+            store.backup(tmp_path / "copy.db")
+    assert not (tmp_path / "copy.db").exists()
+    drop_schema(pg_url, "t_backup_refused")
 
 
 def test_store_does_not_load_ui_libraries(tmp_path):
@@ -384,3 +447,22 @@ def test_one_store_object_can_be_shared_by_threads(store):
 
     with ThreadPoolExecutor(4) as pool:
         assert list(pool.map(work, range(4))) == [list(range(1, 11))] * 4
+
+
+def test_under_the_hub_every_write_records_the_login(store, monkeypatch):
+    """Whatever a caller passes, a write made in a clinician's hub server records the login."""
+    monkeypatch.setenv("JUPYTERHUB_USER", "mara.teal")
+    store.save_patient(record(), screening())                      # no name given: the login
+    store.save_program("TEST-0001", plan(), "mara.teal", None)     # the login itself: fine
+    with pytest.raises(InputError, match="otto.fenn"):
+        store.save_program("TEST-0001", plan(), "otto.fenn", 1)   # another name: refused, nothing saved
+    store.add_session_log("TEST-0001", "2026-01-12", {}, program_version=1)
+    store.add_template("Osteopenia start", {"weeks": 12}, "")
+    assert [v["clinician"] for v in store.program_versions("TEST-0001")] == ["mara.teal"]
+    assert {a["clinician"] for a in store.audit()} == {"mara.teal"}
+    assert store.session_logs("TEST-0001")[0]["clinician"] == "mara.teal"
+    assert store.templates()[0]["created_by"] == "mara.teal"
+    # an imported bundle keeps the names it was exported with (history is not rewritten)
+    monkeypatch.delenv("JUPYTERHUB_USER")
+    bundle = store.export_patient("TEST-0001")
+    assert bundle["programs"][0]["clinician"] == "mara.teal"

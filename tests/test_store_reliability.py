@@ -1,9 +1,11 @@
 """The store under stress: writers killed with SIGKILL mid-save, four processes
-writing at once, and concurrent clinicians racing on one program.
+writing at once, and concurrent clinicians racing on one program or one person.
 
-A save that a writer reported as committed must be in the store afterwards, the
-file must pass ``PRAGMA integrity_check``, and no writer may fail with
-"database is locked".  All people here are invented.
+Every test here runs on SQLite and on a real PostgreSQL server (the ``new_db``
+fixture of tests/conftest.py).  A save that a writer reported as committed must be
+in the store afterwards, the store must pass its integrity check (SQLite's
+``PRAGMA integrity_check``; on PostgreSQL, no duplicate or orphaned rows), and no
+writer may fail with "database is locked".  All people here are invented.
 """
 
 from __future__ import annotations
@@ -29,7 +31,7 @@ TESTS = Path(__file__).resolve().parent
 WRITER = r"""
 import sys
 from prescribe.errors import ConflictError
-from prescribe.store import open_store
+from prescribe.store import HEAD_REVISION, open_store
 from test_store_support import plan, record, screening
 
 db, pid, count, mode = sys.argv[1], sys.argv[2], int(sys.argv[3]), sys.argv[4]
@@ -72,12 +74,25 @@ def _committed(out: Path) -> list[tuple[str, int]]:
     return rows
 
 
-def _integrity(db: Path) -> str:
-    conn = sqlite3.connect(db)
+def _integrity(db) -> str:
+    db = str(db)
+    if "://" not in db:
+        conn = sqlite3.connect(db)
+        try:
+            return conn.execute("PRAGMA integrity_check").fetchone()[0]
+        finally:
+            conn.close()
+    from sqlalchemy import create_engine, text
+    engine = create_engine(db)
     try:
-        return conn.execute("PRAGMA integrity_check").fetchone()[0]
+        with engine.connect() as conn:
+            dup = conn.execute(text("SELECT count(*) FROM (SELECT patient_id, version FROM program_versions "
+                                    "GROUP BY patient_id, version HAVING count(*) > 1) d")).scalar()
+            orphans = conn.execute(text("SELECT count(*) FROM program_versions v LEFT JOIN people p "
+                                        "ON p.patient_id = v.patient_id WHERE p.patient_id IS NULL")).scalar()
     finally:
-        conn.close()
+        engine.dispose()
+    return "ok" if dup == orphans == 0 else f"{dup} duplicate versions, {orphans} orphaned versions"
 
 
 def _alive(proc) -> bool:
@@ -128,11 +143,11 @@ def _forked_writer(db: str, pid: str, out: str) -> None:
 
 
 @pytest.mark.slow
-def test_writers_killed_with_sigkill_lose_no_reported_commit(tmp_path):
+def test_writers_killed_with_sigkill_lose_no_reported_commit(tmp_path, new_db):
     import multiprocessing
 
     from test_store_support import record, screening
-    db = tmp_path / "kill.db"
+    db = new_db("kill")
     writers, rounds = 2, 25
     with open_store(str(db)) as store:
         for w in range(writers):
@@ -193,7 +208,7 @@ marker.write_text("finished")
 """
 
 
-def _create_table_count(tmp_path: Path) -> int:
+def _create_table_count(db: str) -> int:
     """How many CREATE TABLE statements the migrations run on a fresh store."""
     from sqlalchemy import event
     from sqlalchemy.engine import Engine
@@ -206,22 +221,22 @@ def _create_table_count(tmp_path: Path) -> int:
 
     event.listen(Engine, "after_cursor_execute", count)
     try:
-        open_store(str(tmp_path / "count.db")).close()
+        open_store(db).close()
     finally:
         event.remove(Engine, "after_cursor_execute", count)
     return len(seen)
 
 
-def test_a_fresh_store_killed_while_being_created_still_opens(tmp_path):
+def test_a_fresh_store_killed_while_being_created_still_opens(tmp_path, new_db):
     """Migrations run in one transaction: a kill during creation leaves nothing half-made.
 
     The creating process pauses after the first, a middle and the last CREATE TABLE of the
     migrations (a marker file says it is inside the transaction) and is killed there.
     """
-    total = _create_table_count(tmp_path)
+    total = _create_table_count(new_db("count"))
     assert total >= 3
     for k in sorted({1, total // 2, total}):
-        db, marker = tmp_path / f"new-{k}.db", tmp_path / f"marker-{k}"
+        db, marker = new_db(f"new-{k}"), tmp_path / f"marker-{k}"
         proc = subprocess.Popen([PYTHON, "-c", CREATOR, str(db), str(k), str(marker)], env=_env(),
                                 stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
         deadline = time.monotonic() + 60
@@ -240,8 +255,8 @@ def test_a_fresh_store_killed_while_being_created_still_opens(tmp_path):
         assert _integrity(db) == "ok"
 
 
-def test_four_processes_writing_at_once_lose_nothing(tmp_path):
-    db = tmp_path / "four.db"
+def test_four_processes_writing_at_once_lose_nothing(tmp_path, new_db):
+    db = new_db("four")
     open_store(str(db)).close()
     n = 25
     runs = [(_start(db, f"FOUR-{w}", n, tmp_path / f"w{w}.out", mode="shared"), tmp_path / f"w{w}.out")
@@ -261,11 +276,11 @@ def test_four_processes_writing_at_once_lose_nothing(tmp_path):
     assert _integrity(db) == "ok"
 
 
-def test_four_clinicians_racing_on_one_program_never_overwrite(tmp_path):
+def test_four_clinicians_racing_on_one_program_never_overwrite(tmp_path, new_db):
     """Every process saves versions of the SAME program, each based on the latest it
     read; racing saves are refused (ConflictError) and retried, so every version
     number is given exactly once and none is lost."""
-    db = tmp_path / "race.db"
+    db = new_db("race")
     with open_store(str(db)) as store:
         from test_store_support import record, screening
         store.save_patient(record("RACE-1"), screening("RACE-1"))
@@ -286,6 +301,64 @@ def test_four_clinicians_racing_on_one_program_never_overwrite(tmp_path):
         assert [v["version"] for v in stored] == list(range(1, 4 * m + 1))
         assert all(v["based_on_version"] == v["version"] - 1 or v["version"] == 1 for v in stored)
         assert {v["clinician"] for v in stored} == {f"clin{w}" for w in range(4)}
+
+
+#: A clinician process: edits ONE shared person's record again and again, each save based
+#: on the record version it read; prints "committed VERSION FALLS" after each commit.
+RECORD_EDITOR = r"""
+import sys
+from prescribe.errors import ConflictError
+from prescribe.store import open_store
+from test_store_support import record
+
+db, who, count = sys.argv[1], sys.argv[2], int(sys.argv[3])
+store = open_store(db)
+done = conflicts = 0
+while done < count:
+    version = store.record_version("SAME-1")
+    falls = int(who[1:]) * 100 + done
+    try:
+        saved = store.save_patient(record("SAME-1", falls_past_year=falls), None, who, based_on_version=version)
+    except ConflictError:
+        conflicts += 1
+        continue
+    done += 1
+    print(f"committed {saved['record_version']} {falls}", flush=True)
+print(f"conflicts {conflicts}", flush=True)
+"""
+
+
+def test_clinicians_saving_the_same_person_at_once_never_overwrite_silently(tmp_path, new_db):
+    """Four processes change one person's record at once.  Every committed save was based
+    on the version just before it (no change was lost under another), the rest were refused
+    as conflicts, and the stored record is the last committed one."""
+    from test_store_support import record
+    db = new_db("same")
+    with open_store(db) as store:
+        store.save_patient(record("SAME-1"), None, "c0", based_on_version=0)
+    m = 10
+    outs = [tmp_path / f"e{w}.out" for w in range(4)]
+    procs = [subprocess.Popen([PYTHON, "-c", RECORD_EDITOR, db, f"c{w + 1}", str(m)], stdout=open(out, "w"),
+                              stderr=open(out.with_suffix(".err"), "w"), env=_env()) for w, out in enumerate(outs)]
+    committed: dict[int, int] = {}
+    for proc, out in zip(procs, outs):
+        assert proc.wait(timeout=120) == 0, out.with_suffix(".err").read_text()
+        for line in out.read_text().splitlines():
+            if line.startswith("committed "):
+                _, version, falls = line.split()
+                assert int(version) not in committed, "a record version was given twice"
+                committed[int(version)] = int(falls)
+    assert sorted(committed) == list(range(2, 4 * m + 2))
+    with open_store(db) as store:
+        assert store.record_version("SAME-1") == 4 * m + 1
+        assert store.get_patient("SAME-1").falls_past_year == committed[4 * m + 1]
+        updates = [a for a in store.audit("SAME-1") if a["action"] == "person_updated"]
+        assert [a["detail"]["record_version"] for a in updates] == list(range(2, 4 * m + 2))
+        assert all(a["detail"]["based_on_version"] == a["detail"]["record_version"] - 1 for a in updates)
+        # each update's replaced value is the value the previous commit stored: nothing vanished unseen
+        for a in updates:
+            previous = committed.get(a["detail"]["record_version"] - 1, record("SAME-1").falls_past_year)
+            assert a["detail"]["previous"] == {"falls_past_year": previous}
 
 
 def _fork_run(target, *args):
@@ -309,11 +382,11 @@ def _open_and_save(db: str, pid: str, out: str) -> None:
         os._exit(1)
 
 
-def test_four_processes_creating_the_same_new_store_at_once(tmp_path):
+def test_four_processes_creating_the_same_new_store_at_once(tmp_path, new_db):
     """All four find no file, race to create and migrate it: one migrates, the others
     wait for the lock, see the new schema and carry on; nobody sees "locked"."""
     for attempt in range(3):
-        db = tmp_path / f"fresh-{attempt}" / "store.db"
+        db = new_db(f"fresh-{attempt}/store")
         outs = [tmp_path / f"fresh-{attempt}-{w}.out" for w in range(4)]
         procs = [_fork_run(_open_and_save, str(db), f"NEW-{w}", str(out)) for w, out in enumerate(outs)]
         for proc, out in zip(procs, outs):
@@ -325,7 +398,7 @@ def test_four_processes_creating_the_same_new_store_at_once(tmp_path):
         assert _integrity(db) == "ok"
 
 
-def test_backups_taken_while_a_writer_saves_are_consistent(tmp_path):
+def test_backups_taken_while_a_writer_saves_are_consistent(tmp_path):  # SQLite's online backup
     from test_store_support import record, screening
     db = tmp_path / "live.db"
     with open_store(str(db)) as store:

@@ -263,3 +263,72 @@ def test_a_swap_whose_exercise_is_gone_is_dropped_with_a_note(app):
     assert swappable in (app.session.program_note or "")
     app.refresh(store=False)
     assert "no longer applies" in html.unescape(app.refusal.value)
+
+
+def test_two_clinicians_changing_the_same_person_never_overwrite_each_other(app, tmp_db):
+    app.clinician.value = "AB"
+    app.save_button.click()
+    other = make_app(tmp_db)
+    other.load_select.value = "DEMO-UI-1"
+    other.load_button.click()
+    other.clinician.value = "CD"
+    other.intake.inputs["body_mass_kg"].value = "66"
+    other.submit_button.click()
+    other.save_button.click()                 # CD changes the record: record version 2
+    app.intake.inputs["body_mass_kg"].value = "61"
+    app.submit_button.click()
+    app.save_button.click()                   # AB's change was based on record version 1
+    status = html.unescape(app.store_status.value)
+    assert "Not saved" in status and "record version 1" in status and "CD" in status
+    assert app.session.record.body_mass_kg == 61  # AB's change stays open, nothing lost
+    from prescribe.store import open_store
+    with open_store(tmp_db) as store:
+        assert store.get_patient("DEMO-UI-1").body_mass_kg == 66
+        assert store.record_version("DEMO-UI-1") == 2
+
+
+def test_under_the_hub_the_clinician_is_the_login_and_cannot_be_edited(tmp_db, monkeypatch):
+    monkeypatch.setenv("JUPYTERHUB_USER", "mara.teal")
+    app = make_app(tmp_db)
+    assert app.clinician.value == "mara.teal" and app.clinician.disabled
+    type_person(app)
+    app.save_button.click()
+    assert "program version 1" in app.store_status.value, app.errors.last
+    assert [r["clinician"] for r in app.session.versions()] == ["mara.teal"]
+    app.clinician.value = "someone.else"      # a changed value (the field is disabled) is refused
+    app.save_button.click()
+    assert "mara.teal" in app.errors.last and "someone.else" in app.errors.last
+    assert [r["clinician"] for r in app.session.versions()] == ["mara.teal"]
+
+
+def _draft(tmp_db, name="Osteopenia start (invented clinic)"):
+    from prescribe.store import open_store
+    with open_store(tmp_db) as store:
+        return store.add_template(name, {"weeks": 12}, "rui.amsel")
+
+
+def test_a_clinician_may_not_approve_a_template_and_a_lead_may(tmp_db, monkeypatch):
+    _draft(tmp_db)
+    monkeypatch.setenv("JUPYTERHUB_USER", "mara.teal")
+    monkeypatch.setenv("PRESCRIBE_HUB_ROLE", "clinician")
+    app = make_app(tmp_db)
+    app.refresh()
+    panel = app.template_review
+    assert "role: <b class='pr-role'>clinician</b>" in panel.role.value
+    panel.drafts.value = "Osteopenia start (invented clinic)@1"
+    panel.approve_button.click()
+    assert "mara.teal" in app.errors.last and "clinic lead" in app.errors.last
+    assert "Not approved" in panel.status.value
+    assert [t["status"] for t in app.session.store.templates()] == ["draft"]
+    monkeypatch.setenv("JUPYTERHUB_USER", "lena.vos")
+    monkeypatch.setenv("PRESCRIBE_HUB_ROLE", "lead")
+    lead = make_app(tmp_db)
+    lead.refresh()
+    assert "lead" in lead.template_review.role.value
+    lead.template_review.drafts.value = "Osteopenia start (invented clinic)@1"
+    lead.template_review.approve_button.click()
+    assert lead.errors.last == "", lead.errors.last
+    [row] = lead.session.store.templates()
+    assert row["status"] == "approved" and row["approved_by"] == "lena.vos"
+    assert "Approved" in lead.template_review.status.value
+    assert lead.template_review.drafts.options == (("- no drafts -", None),)

@@ -58,25 +58,14 @@ def register(sub) -> None:
 # -- shared helpers -----------------------------------------------------------------------
 
 def clinician_of(args, required: bool = False) -> str:
-    """The clinician: --clinician, then the signed-in user of a shared server, else a marker."""
-    explicit = getattr(args, "clinician", None)
-    try:
-        from ..settings import current_clinician  # the shared sign-in, where available
-    except ImportError:
-        current_clinician = None
-    name = None
-    if current_clinician is not None:
-        try:
-            name = current_clinician(explicit or None)
-        except InputError:
-            name = None
-    name = name or explicit or os.environ.get("JUPYTERHUB_USER") or ""
-    if not name.strip():
-        if required:
-            raise InputError.single("--clinician", explicit, "the name or initials of the clinician who applies "
-                                                             "the change (it is recorded in the audit log)")
-        return UNNAMED
-    return name.strip()
+    """The clinician: the hub login under JupyterHub (a different --clinician is refused),
+    else --clinician; else, where a name is not required, a marker saying none was given."""
+    from ..settings import current_clinician, hub_login
+    explicit = (getattr(args, "clinician", None) or "").strip() or None
+    if required and explicit is None and hub_login() is None:
+        raise InputError.single("--clinician", explicit, "the name or initials of the clinician who applies "
+                                                         "the change (it is recorded in the audit log)")
+    return current_clinician(explicit) or UNNAMED
 
 
 def checked_plan_file(path: str, record, screening) -> dict:

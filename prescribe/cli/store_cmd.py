@@ -38,7 +38,11 @@ def register(sub) -> None:
     p.add_argument("patient_file", metavar="PATIENT.json", help="the patient record (JSON)")
     p.add_argument("--plan", default=None, metavar="PLAN.json",
                    help="also store this program as the person's next program version (the safety check applies)")
-    p.add_argument("--clinician", default="", help="who is saving (free text, for the audit log)")
+    p.add_argument("--clinician", default="", help="who is saving, for the audit log (free text; under "
+                   "JupyterHub the login is used and a different name is refused)")
+    p.add_argument("--based-on-version", type=_version_arg, default=None, metavar="N",
+                   help="the record_version you started from (0 for a new person): if someone changed the "
+                        "record since, nothing is saved and the command exits 1 with a conflict")
     p.add_argument("--db", help=DB_HELP)
     p.set_defaults(func=run_save)
 
@@ -52,6 +56,17 @@ def register(sub) -> None:
     p.add_argument("bundle_file", metavar="BUNDLE.json")
     p.add_argument("--db", help=DB_HELP)
     p.set_defaults(func=run_import)
+
+
+def _version_arg(text: str) -> int:
+    try:
+        value = int(text)
+    except ValueError:
+        value = -1
+    if value < 0:
+        import argparse
+        raise argparse.ArgumentTypeError(f"must be a record version number (0 for a new person), not {text!r}")
+    return value
 
 
 def _open(args, create: bool = True):
@@ -74,6 +89,8 @@ def run_backup(args) -> int:
 
 
 def run_save(args) -> int:
+    from ..settings import current_clinician
+    clinician = current_clinician(args.clinician)
     record = load_record(args.patient_file)  # bad input stops here, before the store is touched
     screening, note = _screen(record)
     plan = None
@@ -82,11 +99,13 @@ def run_save(args) -> int:
         plan = checked_plan_file(args.plan, record, screening)  # refused: exit 2, nothing stored
     with _open(args) as store:
         if plan is None:
-            saved = store.save_patient(record, screening, clinician=args.clinician)
+            saved = store.save_patient(record, screening, clinician=clinician,
+                                       based_on_version=args.based_on_version)
         else:
-            from .session_cmd import clinician_of
+            from .session_cmd import clinician_of  # a program needs a name: a marker when none is given
             saved = store.save_patient(record, screening, clinician=clinician_of(args), plan=plan,
-                                       plan_note="saved with prescribe save --plan")
+                                       plan_note="saved with prescribe save --plan",
+                                       based_on_version=args.based_on_version)
     out = {**saved, "db": store.where}
     if screening is not None:
         out["screening"] = {k: getattr(screening, k) for k in (

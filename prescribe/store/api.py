@@ -13,7 +13,10 @@ database, a store from a newer version) is refused with :class:`StoreError`
 before anything is written to it.
 
 Nothing is ever overwritten silently: a program save names the version it was
-based on and is refused (:class:`ConflictError`) when that is not the latest.
+based on and is refused (:class:`ConflictError`) when that is not the latest; a
+person's record carries a ``record_version`` and a save that names the record
+version it started from is refused the same way when someone changed the record
+in between.  An update keeps the replaced values in its audit entry.
 """
 
 from __future__ import annotations
@@ -36,7 +39,7 @@ from ..cautions import STANDARD_CAUTIONS
 from ..errors import ConflictError, FieldProblem, InputError, NotFoundError, StoreError
 from ..plan_schema import parse_plan
 from ..records import PatientRecord, ScreeningResult, parse_record
-from ..settings import db_url
+from ..settings import current_clinician, db_url, hub_login
 from . import models as m
 from .bundle import BUNDLE_FORMAT_VERSION, BUNDLE_KIND, parse_bundle
 
@@ -44,10 +47,10 @@ if TYPE_CHECKING:
     from ..sessions.records import SessionRecord
 
 #: The newest schema revision this version knows (a test checks it against Alembic's head).
-HEAD_REVISION = "0003"
+HEAD_REVISION = "0006"
 #: Every revision this version can open, oldest first, with the tables each has.
 KNOWN_REVISIONS: dict[str, tuple[str, ...]] = {"0001": m.TABLES_0001, "0002": m.TABLES_0002,
-                                               "0003": m.TABLES_0003}
+                                               "0003": m.TABLES_0003, "0006": m.TABLES_0003}
 MIGRATIONS_DIR = Path(__file__).with_name("migrations")
 
 #: SQLite settings on every connection (see docs/store.md for why FULL).
@@ -216,16 +219,28 @@ class Store:
     # -- people and screenings ---------------------------------------------------------
 
     def save_patient(self, record: PatientRecord, screening: ScreeningResult | None = None,
-                     clinician: str = "", *, plan: dict | None = None, plan_note: str = "") -> dict:
+                     clinician: str = "", *, plan: dict | None = None, plan_note: str = "",
+                     based_on_version: int | None = None) -> dict:
         """Create or update a person and, if given, append a screening and store ``plan`` as
         the person's next program version; one transaction (all of it or nothing).
 
+        ``based_on_version`` is the ``record_version`` the clinician opened (0 when they
+        started a new person).  If the stored record has moved on since, and this save
+        would change it, the save is refused with :class:`ConflictError` naming both
+        versions, who changed the record and when; nothing is written.  ``None`` skips the
+        check (a record file saved from the command line without ``--based-on-version``);
+        even then the replaced values are kept in the audit entry.
+
         Returns ``{patient_id, status (created | updated | unchanged), created, updated,
-        changed_fields, screening_id}`` and, with a plan, ``program_version``.
+        changed_fields, screening_id, record_version}`` and, with a plan, ``program_version``.
         """
         if not isinstance(record, PatientRecord):
             raise InputError.single("record", record, "a validated PatientRecord (prescribe.records.parse_record)")
         clinician = _clinician(clinician, required=False)
+        if based_on_version is not None and (isinstance(based_on_version, bool)
+                                             or not isinstance(based_on_version, int) or based_on_version < 0):
+            raise InputError.single("based_on_version", based_on_version,
+                                    "the record version the clinician opened (0 for a new person), or None")
         if screening is not None:
             if not isinstance(screening, ScreeningResult):
                 raise InputError.single("screening", screening, "a ScreeningResult or None")
@@ -241,22 +256,37 @@ class Store:
         record_json = _dumps(record_dict, "record")
         at = now_utc()
         with self._write() as conn:
-            row = conn.execute(select(m.people).where(m.people.c.patient_id == pid).with_for_update()).first()
+            row = _lock_person(conn, pid)
+            if row is None:
+                try:
+                    with conn.begin_nested():  # another server may create the same person this instant
+                        conn.execute(m.people.insert().values(patient_id=pid, record_json=record_json,
+                                                              created=at, updated=at, record_version=1))
+                except IntegrityError:
+                    row = _lock_person(conn, pid)
+                    if row is None:
+                        raise
             changed: list[str] = []
             if row is None:
-                status, created, updated = "created", at, at
-                conn.execute(m.people.insert().values(patient_id=pid, record_json=record_json,
-                                                      created=at, updated=at))
-                _audit(conn, at, "person_created", pid, clinician, {})
+                status, created, updated, version = "created", at, at, 1
+                _audit(conn, at, "person_created", pid, clinician, {"record_version": 1})
             elif row.record_json != record_json:
+                if based_on_version is not None and based_on_version != row.record_version:
+                    raise _record_conflict(conn, pid, based_on_version, row)
                 old = json.loads(row.record_json)
                 changed = [k for k in record_dict if old.get(k) != record_dict[k]]
+                version = row.record_version + 1
                 status, created, updated = "updated", row.created, at
-                conn.execute(m.people.update().where(m.people.c.patient_id == pid)
-                             .values(record_json=record_json, updated=at))
-                _audit(conn, at, "person_updated", pid, clinician, {"changed_fields": changed})
+                done = conn.execute(m.people.update().where(m.people.c.patient_id == pid,
+                                                            m.people.c.record_version == row.record_version)
+                                    .values(record_json=record_json, updated=at, record_version=version))
+                if done.rowcount != 1:  # belt and braces: the row lock makes this unreachable
+                    raise _record_conflict(conn, pid, based_on_version, _lock_person(conn, pid))
+                _audit(conn, at, "person_updated", pid, clinician,
+                       {"changed_fields": changed, "previous": {k: old.get(k) for k in changed},
+                        "record_version": version, "based_on_version": based_on_version})
             else:
-                status, created, updated = "unchanged", row.created, row.updated
+                status, created, updated, version = "unchanged", row.created, row.updated, row.record_version
             screening_id = None
             if screening is not None:
                 screening_id = _insert_screening(conn, pid, at, clinician, screening.model_dump(mode="json"))
@@ -269,10 +299,15 @@ class Store:
                 program_version = _insert_program(conn, pid, at, plan_clinician, plan_json, summary_json,
                                                   latest.version if latest else None, plan_note)
         out = {"patient_id": pid, "status": status, "created": created, "updated": updated,
-               "changed_fields": changed, "screening_id": screening_id}
+               "changed_fields": changed, "screening_id": screening_id, "record_version": version}
         if plan is not None:
             out["program_version"] = program_version
         return out
+
+    def record_version(self, patient_id: str) -> int:
+        """The stored version of a person's record (pass it back as ``based_on_version``)."""
+        with self._read() as conn:
+            return int(_person(conn, patient_id).record_version)
 
     def get_patient(self, patient_id: str) -> PatientRecord:
         """The stored record of one person (NotFoundError naming the id)."""
@@ -294,8 +329,8 @@ class Store:
                                   func.max(m.program_versions.c.version).label("version"))
                            .group_by(m.program_versions.c.patient_id).subquery())
             query = (select(m.people.c.patient_id, m.people.c.created, m.people.c.updated,
-                            m.screenings.c.bone_density_category, m.screenings.c.created.label("screened"),
-                            latest_prog.c.version)
+                            m.people.c.record_version, m.screenings.c.bone_density_category,
+                            m.screenings.c.created.label("screened"), latest_prog.c.version)
                      .select_from(m.people)
                      .outerjoin(latest_screen, latest_screen.c.patient_id == m.people.c.patient_id)
                      .outerjoin(m.screenings, m.screenings.c.id == latest_screen.c.sid)
@@ -304,7 +339,7 @@ class Store:
             rows = conn.execute(query).all()
         return [{"patient_id": r.patient_id, "created": r.created, "updated": r.updated,
                  "latest_category": r.bone_density_category, "latest_screening": r.screened,
-                 "latest_program_version": r.version} for r in rows]
+                 "latest_program_version": r.version, "record_version": r.record_version} for r in rows]
 
     def screenings(self, patient_id: str) -> list[dict]:
         """Every screening of one person, oldest first."""
@@ -782,6 +817,26 @@ def _person(conn: Connection, patient_id: str, lock: bool = False):
     return row
 
 
+def _lock_person(conn: Connection, patient_id: str):
+    """The person's row, locked until the transaction ends (FOR UPDATE on PostgreSQL), or None."""
+    return conn.execute(select(m.people).where(m.people.c.patient_id == patient_id).with_for_update()).first()
+
+
+def _record_conflict(conn: Connection, pid: str, based_on: int | None, row) -> ConflictError:
+    last = conn.execute(select(m.audit_log.c.clinician, m.audit_log.c.at)
+                        .where(m.audit_log.c.patient_id == pid,
+                               m.audit_log.c.action.in_(("person_created", "person_updated")))
+                        .order_by(m.audit_log.c.id.desc()).limit(1)).first()
+    who = (last.clinician or "an unnamed clinician") if last else "another clinician"
+    when = last.at if last else row.updated
+    start = "as a new person" if not based_on else f"on record version {based_on}"
+    err = ConflictError(
+        f"the record of {pid!r} is now at version {row.record_version} (changed by {who} at {when}), but this "
+        f"save was based {start}. Nothing was overwritten: reload the record, reapply your changes and save again")
+    err.patient_id, err.based_on_version, err.latest_version = pid, based_on, int(row.record_version)
+    return err
+
+
 def _insert_screening(conn: Connection, pid: str, at: str, clinician: str, result: dict) -> int:
     return int(conn.execute(m.screenings.insert().values(
         patient_id=pid, created=at, ruleset_version=str(result.get("ruleset_version") or ""),
@@ -923,11 +978,15 @@ def _text(value: Any, field: str, required: bool = False, max_len: int = 10_000)
 
 
 def _clinician(value: Any, required: bool) -> str:
+    """Who is writing.  Under JupyterHub it is always the login (JUPYTERHUB_USER), whatever
+    the caller passed: an empty name becomes the login and a different one is refused
+    (prescribe.settings.current_clinician), so every write records the login."""
     try:
-        return _text(value, "clinician", required=required, max_len=200)
+        value = _text(value, "clinician", required=required and hub_login() is None, max_len=200)
     except InputError:
         need = "the name or initials of the clinician (free text, 1 to 200 characters)"
         raise InputError.single("clinician", value, need if required else "free text of at most 200 characters") from None
+    return current_clinician(value) if hub_login() is not None else value
 
 
 def _iso_date(value: Any, field: str) -> str:

@@ -14,7 +14,7 @@ that the migrated database and this metadata agree.
 from __future__ import annotations
 
 from sqlalchemy import (Column, ForeignKey, ForeignKeyConstraint, Index, Integer, MetaData, String, Table,
-                        Text, UniqueConstraint)
+                        Text, UniqueConstraint, text)
 
 metadata = MetaData()
 
@@ -25,6 +25,8 @@ people = Table(
     Column("record_json", Text, nullable=False),
     Column("created", String(40), nullable=False),
     Column("updated", String(40), nullable=False),
+    # revision 0006: 1 when created, +1 on every change of the record (optimistic concurrency)
+    Column("record_version", Integer, nullable=False, server_default=text("1")),
 )
 
 #: Every screening ever saved for a person, with the rule-set version it came from.

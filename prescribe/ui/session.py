@@ -21,6 +21,7 @@ from typing import Any
 from ..cautions import with_standard
 from ..errors import ConflictError, InputError, NotFoundError, PlanRequestRefused, PrescribeError
 from ..records import PatientRecord, parse_record
+from ..settings import current_clinician, hub_login, require_role
 
 #: Our impact scale (PRODUCT.md): level -> plain label.
 IMPACT_LABELS: dict[int, str] = {0: "0 - no impact", 1: "1 - low impact", 2: "2 - moderate impact",
@@ -61,7 +62,9 @@ class ClinicSession:
 
     def __init__(self, store_url: str | None = None, clinician: str = ""):
         self.store_url = store_url
-        self.clinician = clinician
+        #: Under JupyterHub the clinician is the login and cannot be changed here.
+        self.login = hub_login()
+        self.clinician = self.login or clinician
         self._store = None
         self._store_lock = threading.Lock()
         self.reset()
@@ -79,6 +82,8 @@ class ClinicSession:
         self.notice: str | None = None
         self.program_note: str | None = None  # what a rebuild changed that the clinician should know
         self.saved_version: int | None = None
+        #: The stored record version this record was opened at (None: a new person).
+        self.record_version: int | None = None
 
     @property
     def cautions(self) -> list[str]:
@@ -105,6 +110,7 @@ class ClinicSession:
         self.problems = {}
         if self.record is None or self.record.patient_id != record.patient_id:
             self.options, self.swaps, self.saved_version = {}, [], None
+            self.record_version = None
         self.record = record
         self.screening = _api("screening", "screen")(record)
         self.plan = None
@@ -284,10 +290,18 @@ class ClinicSession:
         if self.record is None:
             raise InputError.single("record", None, "a checked patient record (press Check and screen first)")
         who = (clinician if clinician is not None else self.clinician).strip()
-        if not who:
+        if not who and self.login is None:
             raise InputError.single("clinician", who, "your name or initials (saved with every version)")
+        who = current_clinician(who, required=True)  # the login under JupyterHub
         self.clinician = who
-        self.store.save_patient(self.record, self.screening, who)
+        try:
+            saved = self.store.save_patient(self.record, self.screening, who,
+                                            based_on_version=self.record_version or 0)
+        except ConflictError as exc:
+            self.notice = (f"Not saved: {exc}. Your changes stay open here; note them, open the person "
+                           "again to see the other change, and reapply yours.")
+            return None
+        self.record_version = int(saved["record_version"])
         self.notice = None
         if self.plan is None:
             return None
@@ -299,6 +313,22 @@ class ClinicSession:
             return None
         self.saved_version = int(version)
         return self.saved_version
+
+    def draft_templates(self) -> list[dict]:
+        """The clinic templates waiting for a lead's approval (oldest first)."""
+        return [t for t in self.store.templates() if t["status"] == "draft"]
+
+    def approve_template(self, name: str, version: int, clinician: str | None = None) -> str:
+        """Approve a draft template version as the current clinician; only a clinic lead may.
+
+        Returns who approved (the login under JupyterHub).  A clinician is refused with
+        :class:`prescribe.errors.NotPermittedError`; nothing changes then.
+        """
+        who = current_clinician(clinician if clinician is not None else self.clinician, required=True)
+        require_role(who, "approve_template")
+        self.store.approve_template(name, version, who)
+        self.clinician = who
+        return who
 
     def saved_people(self) -> list[str]:
         """Patient ids in the store, most recently updated first."""
@@ -323,9 +353,11 @@ class ClinicSession:
 
     def load(self, patient_id: str, version: int | None = None) -> None:
         """Open a saved person: their record, a fresh screening and their program (latest by default)."""
+        record_version = self.store.record_version(patient_id)  # first: a later change means a conflict
         record = self.store.get_patient(patient_id)
         self.reset()
         self.submit(record.model_dump(mode="json"))
+        self.record_version = record_version
         latest = self.store.latest_program_version(patient_id)
         if latest is None:
             return

@@ -357,9 +357,12 @@ class ClinicApp:
         title = w.HTML("<h1 style='font-size:22px;margin:4px 0'>prescribe: bone-loading program builder</h1>"
                        "<p>Decision support for clinicians. Work down the page: person, screening, program, "
                        "handout, save.</p>")
+        from .template_review import TemplateReview
+        self.template_review = TemplateReview(self)
         self.widget = w.VBox([w.HTML(STYLE), title, self.errors.widget, cautions_box(),
                               self.person_section, self.screening_section, self.program_section,
-                              self.handout_section, self.store_section, self.live.widget])
+                              self.handout_section, self.store_section, self.live.widget,
+                              self.template_review.widget])
         self.widget.add_class("pr-app")
         self.warm_thread: threading.Thread | None = None
         self._warm_lock = threading.Lock()
@@ -506,9 +509,14 @@ class ClinicApp:
             w.HBox([self.preview_button, self.pdf_button, self.html_button, self.download]), self.preview])
 
     def _build_store_section(self) -> None:
+        login = self.session.login
         self.clinician = w.Text(value=self.session.clinician, description="Clinician *",
-                                placeholder="your name or initials")
+                                placeholder="your name or initials", disabled=login is not None,
+                                tooltip=("your login: every save is recorded under it" if login else
+                                         "your name or initials, recorded with every save"))
         self.clinician.add_class("pr-store-clinician")
+        if login is not None:
+            self.clinician.add_class("pr-store-clinician-login")
         self.save_button = self._button("Save person and program", "pr-store-save", "success")
         self.save_button.on_click(lambda _b: self.on_save())
         self.store_status = w.HTML("")
@@ -683,3 +691,7 @@ class ClinicApp:
         if current in people:
             self.load_select.value = current
         self.history.value = table_html(versions)
+        try:
+            self.template_review.refresh()
+        except PrescribeError as exc:
+            self.template_review.status.value = f"<p class='pr-msg'>Templates could not be read: {_esc(exc)}</p>"
