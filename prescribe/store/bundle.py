@@ -85,6 +85,21 @@ class _Session(_Part):
         return value
 
 
+class _SensorSummary(_Part):
+    created: str
+    clinician: str = Field(max_length=200)
+    summary: dict
+
+    _ts = field_validator("created")(_timestamp)
+
+    @field_validator("summary")
+    @classmethod
+    def _has_days(cls, value: dict) -> dict:
+        if not isinstance(value.get("days"), list):
+            raise ValueError("a sensor summary with its list of days, as printed by `prescribe sensor`")
+        return value
+
+
 class _Audit(_Part):
     at: str
     action: str = Field(min_length=1, max_length=40)
@@ -103,6 +118,8 @@ class _Bundle(_Part):
     screenings: list[_Screening]
     programs: list[_Program]
     session_logs: list[_Session] = Field(default_factory=list)
+    #: Optional: bundles written before worn-sensor summaries existed have none.
+    sensor_summaries: list[_SensorSummary] = Field(default_factory=list)
     audit: list[_Audit]
 
 
