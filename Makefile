@@ -6,11 +6,12 @@ PYTHON ?= $(shell command -v python3.11 || command -v python3)
 VENV   := .venv
 BIN    := $(VENV)/bin
 STAMP  := $(VENV)/.installed-stamp
+SENSORS_STAMP := $(VENV)/.sensors-stamp
 PORT   ?= 8866
 DEMO_DB ?= $(CURDIR)/var/demo.db
 PIP    := $(BIN)/python -m pip --disable-pip-version-check -q
 
-.PHONY: install system-deps app seed test test-fast bench lock clean
+.PHONY: install install-sensors system-deps app seed test test-fast bench lock clean
 
 install: $(STAMP)
 
@@ -18,6 +19,14 @@ $(STAMP): pyproject.toml requirements.lock
 	@test -x $(BIN)/python || $(PYTHON) -m venv $(VENV)
 	$(PIP) install -r requirements.lock
 	$(PIP) install --no-deps -e .
+	@touch $@
+
+# The optional worn-sensor readers (scikit-digital-health, about 500 MB): the tests and
+# benchmarks read real .cwa and .bin files with them; the core install stays light.
+install-sensors: $(SENSORS_STAMP)
+
+$(SENSORS_STAMP): $(STAMP) requirements-sensors.lock
+	$(PIP) install -r requirements-sensors.lock
 	@touch $@
 
 # chromium drives the browser tests; poppler-utils turns handout PDFs into text and PNG;
@@ -42,14 +51,14 @@ seed: install
 app: seed
 	PRESCRIBE_DB=$(DEMO_DB) $(BIN)/prescribe app --port $(PORT)
 
-test: install system-deps
+test: install install-sensors system-deps
 	$(BIN)/python -m pytest; rc=$$?; if [ $$rc -eq 5 ]; then echo "no tests collected"; exit 0; fi; exit $$rc
 
 # Everything but the browser tests (quicker while working on the engine).
-test-fast: install
+test-fast: install install-sensors
 	$(BIN)/python -m pytest -m "not browser"
 
-bench: install
+bench: install install-sensors
 	@for b in benchmarks/bench_*.py; do echo "== $$b"; $(BIN)/python $$b || exit 1; done
 
 # Regenerate the lock file from pyproject's pins (run after changing a dependency).
@@ -58,6 +67,10 @@ lock:
 	/tmp/prescribe-lock/bin/pip install -q -e .[test]
 	( echo '# Exact versions CI and `make` install (pip install -r requirements.lock). Regenerate with `make lock`.'; \
 	  /tmp/prescribe-lock/bin/pip freeze --exclude-editable | grep -v '^-e' ) > requirements.lock
+	/tmp/prescribe-lock/bin/pip install -q -e .[sensors]
+	( echo '# The optional worn-sensor readers (pip install -r requirements-sensors.lock), on top of requirements.lock.'; \
+	  echo '# scikit-digital-health (MIT) and what it brings; none is GPL. Regenerate with `make lock`.'; \
+	  /tmp/prescribe-lock/bin/pip freeze --exclude-editable | grep -v '^-e' | grep -vxFf requirements.lock ) > requirements-sensors.lock
 
 clean:
 	rm -rf $(VENV) var test-artifacts .pytest_cache .hypothesis
