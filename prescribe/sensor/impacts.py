@@ -67,6 +67,14 @@ NEUGEBAUER_RUN_FROM_NET_G = 1.1
 NEUGEBAUER_VALID_TO_NET_G = 3.9
 
 
+def _micro_g(value) -> np.ndarray:
+    """Accelerations as whole micro-g, so that comparisons with edges are exact."""
+    return np.round(np.asarray(value, dtype=float) / EDGE_RESOLUTION_G).astype(np.int64)
+
+
+_EDGES_MICRO = _micro_g(BAND_EDGES_G)
+
+
 def net_resultant_g(x_g, y_g, z_g):
     """Resultant acceleration less the 1 g of gravity [g].
 
@@ -120,7 +128,7 @@ def candidate_peaks(signal_g, threshold_g=IMPACT_THRESHOLD_G):
     if s.size < 3:
         return np.zeros(0, dtype=np.int64)
     mid = s[1:-1]
-    ok = (mid > s[:-2]) & (mid >= s[2:]) & (np.round(mid / EDGE_RESOLUTION_G) * EDGE_RESOLUTION_G >= threshold_g)
+    ok = (mid > s[:-2]) & (mid >= s[2:]) & (_micro_g(mid) >= _micro_g(threshold_g))
     # A flat top (rise, equal samples, fall) is one peak, not several.
     return np.flatnonzero(ok) + 1
 
@@ -161,7 +169,9 @@ def group_impacts(peak_time_s, peak_g, refractory_s=REFRACTORY_S):
         return t.copy(), g.copy()
     if np.any(np.diff(t) < 0):
         raise InputError.single("peak_time_s", "decreasing", "increasing peak times")
-    starts = np.flatnonzero(np.r_[True, np.diff(t) >= r])
+    # A tolerance of 1 ns keeps peaks exactly the refractory time apart separate despite
+    # rounding in sample times (0.2 s between samples 10 and 30 of a 100 Hz clock).
+    starts = np.flatnonzero(np.r_[True, np.diff(t) >= r - 1e-9])
     ends = np.r_[starts[1:], t.size]
     best = np.maximum.reduceat(g, starts)
     # The first index in each group whose height equals the group's best.
@@ -191,8 +201,7 @@ def band_index(peak_g):
     Vainionpaa A, Korpelainen R, Vihriala E, et al. 2006, Osteoporos Int
     17(3):455-463: bands 0.3-1.0, 1.1-2.4, 2.5-3.8, 3.9-5.3 and 5.4-9.2 g.
     """
-    g = np.round(np.asarray(peak_g, dtype=float) / EDGE_RESOLUTION_G) * EDGE_RESOLUTION_G
-    return np.searchsorted(BAND_EDGES_G, g, side="right") - 1
+    return np.searchsorted(_EDGES_MICRO, _micro_g(peak_g), side="right") - 1
 
 
 def band_counts(peak_g):
@@ -220,8 +229,7 @@ def count_above(peak_g, threshold_g):
     Sayers A, Rittweger J, Tobias JH 2012, J Bone Miner Res 27(9):1887-1895 (more
     than 4.2 g).
     """
-    g = np.round(np.asarray(peak_g, dtype=float) / EDGE_RESOLUTION_G) * EDGE_RESOLUTION_G
-    return int(np.count_nonzero(g > threshold_g))
+    return int(np.count_nonzero(_micro_g(peak_g) > _micro_g(threshold_g)))
 
 
 def neugebauer_peak_grf_n(acc_g, body_mass_kg, running):
@@ -286,9 +294,10 @@ def peak_grf_bw_from_net_g(peak_g, body_mass_kg):
     g = np.asarray(peak_g, dtype=float)
     m = float(checked("body_mass_kg", body_mass_kg, low=25, high=300, allowed="a body mass from 25 to 300 kg"))
     acc = g + 1.0
-    running = g >= NEUGEBAUER_RUN_FROM_NET_G - EDGE_RESOLUTION_G / 2
+    micro = _micro_g(g)
+    running = micro >= _micro_g(NEUGEBAUER_RUN_FROM_NET_G)
     regression = neugebauer_peak_grf_n(acc, m, running) / (m * G)
-    return np.where(g >= NEUGEBAUER_VALID_TO_NET_G - EDGE_RESOLUTION_G / 2, acc, regression)
+    return np.where(micro >= _micro_g(NEUGEBAUER_VALID_TO_NET_G), acc, regression)
 
 
 def banded_osteogenic_index(peak_g, body_mass_kg):
