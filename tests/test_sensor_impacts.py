@@ -19,7 +19,7 @@ from prescribe.errors import InputError
 from prescribe.sensor import impacts as im
 from prescribe.sensor.summary import ImpactCounter
 
-from .sensor_signals import MONDAY_2026_03_02, recording
+from sensor_signals import MONDAY_2026_03_02, recording
 
 
 def count(t, acc, chunk=None, **kwargs):
