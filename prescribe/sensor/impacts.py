@@ -99,7 +99,12 @@ def net_resultant_g(x_g, y_g, z_g):
     0.3 g, below the 1 g a sensor at rest reads with gravity in).
     """
     x, y, z = (np.asarray(v, dtype=float) for v in (x_g, y_g, z_g))
-    return np.sqrt(x * x + y * y + z * z) - 1.0
+    total = x * x
+    total += y * y
+    total += z * z
+    np.sqrt(total, out=total)
+    total -= 1.0
+    return total
 
 
 def candidate_peaks(signal_g, threshold_g=IMPACT_THRESHOLD_G):
@@ -128,9 +133,14 @@ def candidate_peaks(signal_g, threshold_g=IMPACT_THRESHOLD_G):
     if s.size < 3:
         return np.zeros(0, dtype=np.int64)
     mid = s[1:-1]
-    ok = (mid > s[:-2]) & (mid >= s[2:]) & (_micro_g(mid) >= _micro_g(threshold_g))
-    # A flat top (rise, equal samples, fall) is one peak, not several.
-    return np.flatnonzero(ok) + 1
+    # Cheap float test first (a margin of one resolution step), the exact micro-g test
+    # on the few samples left.  A flat top (rise, equal samples, fall) is one peak.
+    ok = mid >= threshold_g - EDGE_RESOLUTION_G
+    ok &= mid > s[:-2]
+    ok &= mid >= s[2:]
+    idx = np.flatnonzero(ok)
+    idx = idx[_micro_g(mid[idx]) >= _micro_g(threshold_g)]
+    return idx + 1
 
 
 def group_impacts(peak_time_s, peak_g, refractory_s=REFRACTORY_S):
