@@ -1,6 +1,6 @@
 """``prescribe sensor FILE``: the delivered dose of a worn-sensor recording.
 
-The file is read and checked completely before the store is opened, so a bad file
+The file is read and checked completely before anything is written, so a bad file
 (exit 2) stores nothing.  With ``--patient`` the person's latest stored program gives
 the planned impacts and osteogenic index of the same days, and the summary is stored
 with the person (unless ``--no-store``).
@@ -9,8 +9,6 @@ with the person (unless ``--no-store``).
 from __future__ import annotations
 
 import sys
-from datetime import date, datetime
-
 from ..errors import InputError, NotFoundError
 from .output import emit_json, emit_table
 from .store_cmd import DB_HELP
@@ -38,7 +36,7 @@ def register(sub) -> None:
 
 
 def run_sensor(args) -> int:
-    from ..sensor import summarise_file
+    from ..sensor import summarise_file, summarise_for_person
     from .._arrays import checked
 
     if args.body_mass_kg is not None:
@@ -60,30 +58,15 @@ def run_sensor(args) -> int:
             plan = store.get_program(args.patient)
         except NotFoundError:
             plan = None
-        notes: list[str] = []
-        start_day = None
-        if plan is not None:
-            start_day, note = program_start(plan, store.program_created(args.patient))
-            if note:
-                notes.append(note)
-        start = args.start
-        summary = summarise_file(args.file, args.format, site=args.site, body_mass_kg=mass, start=start)
-        if summary.get("start") is None and start_day is not None and start is None:
-            # Relative times and no --start: the recording is taken to begin on the program's first day.
-            summary = summarise_file(args.file, args.format, site=args.site, body_mass_kg=mass,
-                                     start=start_day.isoformat())
-            notes.append(f"The file's times are relative and no --start was given: the recording was taken to "
-                         f"begin on the program's start date, {start_day.isoformat()} 00:00 UTC.")
+        saved_at = store.program_created(args.patient) if plan is not None else None
+        summary = summarise_for_person(args.file, args.format, site=args.site, body_mass_kg=mass, start=args.start,
+                                       plan=plan, plan_saved_at=saved_at)
+        notes = summary["person_notes"]
         summary["patient_id"] = args.patient
         if plan is None:
             notes.append(f"{args.patient} has no stored program: nothing to compare with.")
-            summary["plan"] = None
-        else:
-            from ..sensor.compare import compare_with_plan
-            summary["plan"] = compare_with_plan(summary, plan, start_day)
-            summary["plan"]["program_created"] = plan.get("created")
-            _lift_plan_figures(summary)
         summary["notes"] = summary["notes"] + notes
+        del summary["person_notes"]
         if args.no_store:
             summary["stored"] = False
         else:
@@ -94,41 +77,6 @@ def run_sensor(args) -> int:
     for note in notes:
         print(f"prescribe sensor: {note}", file=sys.stderr)
     return 0
-
-
-def program_start(plan: dict, saved_at: str | None) -> tuple[date, str]:
-    """The program's start date, and a note when it had to be taken from elsewhere."""
-    raw = plan.get("start_date")
-    if raw:
-        try:
-            return date.fromisoformat(str(raw)), ""
-        except ValueError:
-            raise InputError.single("start_date", raw, "a date as YYYY-MM-DD in the stored program") from None
-    for value, what in ((saved_at, "the day its program version was saved"), (plan.get("created"), "the day it was created")):
-        if value:
-            try:
-                day = datetime.fromisoformat(str(value)).date()
-            except ValueError:
-                continue
-            return day, (f"The stored program has no start_date: week 1 was taken to start on {what}, "
-                         f"{day.isoformat()}.")
-    raise InputError.single("start_date", None, "a start date in the stored program")
-
-
-def _lift_plan_figures(summary: dict) -> None:
-    """Put the planned figures beside each day (and the totals at the top), as the contract reads them."""
-    plan = summary["plan"]
-    by_date = {d["date"]: d for d in plan["days"]}
-    for d in summary["days"]:
-        p = by_date.get(d.get("date"))
-        if p is None:
-            continue
-        for k in ("week", "in_program", "weak_window", "planned_impacts", "delivered_impacts",
-                  "planned_osteogenic_index", "beyond_plan"):
-            d[k] = p[k]
-    for k in ("planned_impacts", "delivered_impacts", "delivered_share", "planned_osteogenic_index",
-              "delivered_osteogenic_index", "delivered_share_osteogenic_index"):
-        summary[k] = plan[k]
 
 
 def _print(summary: dict, table: bool) -> None:

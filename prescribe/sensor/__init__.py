@@ -23,7 +23,7 @@ from ..errors import InputError
 from .readers import FORMATS, SensorReaderMissing, detect_format, open_recording
 from .summary import DEFAULT_BODY_MASS_KG, SITES, ImpactCounter
 
-__all__ = ["summarise_file", "parse_start", "FORMATS", "SITES", "SensorReaderMissing", "detect_format",
+__all__ = ["summarise_file", "summarise_for_person", "parse_start", "FORMATS", "SITES", "SensorReaderMissing", "detect_format",
            "DEFAULT_BODY_MASS_KG"]
 
 
@@ -73,3 +73,39 @@ def summarise_file(path: str | os.PathLike, fmt: str | None = None, *, site: str
         summary["notes"].append(f"No body mass given: {DEFAULT_BODY_MASS_KG:g} kg was assumed for the force "
                                 "estimate (give --body-mass-kg, or --patient).")
     return {"file": os.path.basename(str(path)), "format": recording.format, **summary}
+
+
+def summarise_for_person(path: str | os.PathLike, fmt: str | None = None, *, site: str = "hip",
+                         body_mass_kg: float | None = None, start: str | float | None = None,
+                         plan: dict | None = None, plan_saved_at: str | None = None,
+                         progress: Callable[[float], None] | None = None) -> dict:
+    """:func:`summarise_file`, then the plan's figures for the same days (when there is a plan).
+
+    The plan's ``start_date`` dates its weeks; a plan without one is dated from
+    ``plan_saved_at`` (the day its version was stored), said in ``person_notes``.  A
+    recording with relative times and no ``start`` is taken to begin on the program's
+    first day, also said.  Returns the summary with ``plan`` (see
+    :func:`prescribe.sensor.compare.compare_with_plan`), the planned figures beside each
+    day and ``person_notes``.
+    """
+    from .compare import compare_with_plan, lift_plan_figures, program_start
+
+    notes: list[str] = []
+    start_day = None
+    if plan is not None:
+        start_day, note = program_start(plan, plan_saved_at)
+        if note:
+            notes.append(note)
+    summary = summarise_file(path, fmt, site=site, body_mass_kg=body_mass_kg, start=start, progress=progress)
+    if summary.get("start") is None and start_day is not None and start is None:
+        summary = summarise_file(path, fmt, site=site, body_mass_kg=body_mass_kg, start=start_day.isoformat())
+        notes.append(f"The file's times are relative and no start was given: the recording was taken to begin on "
+                     f"the program's start date, {start_day.isoformat()} 00:00 UTC.")
+    if plan is None:
+        summary["plan"] = None
+    else:
+        summary["plan"] = compare_with_plan(summary, plan, start_day)
+        summary["plan"]["program_created"] = plan.get("created")
+        lift_plan_figures(summary)
+    summary["person_notes"] = notes
+    return summary

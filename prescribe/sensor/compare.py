@@ -13,8 +13,10 @@ counted impacts whose estimated peak force is 2 BW or more (``impacts_2bw_or_mor
 
 from __future__ import annotations
 
-from datetime import date, timedelta
+from datetime import date, datetime, timedelta
 from typing import Any
+
+from ..errors import InputError
 
 #: Weeks 3 to 5 after a step-up (the step-up week is week 1) are the weak window,
 #: when bone is transiently weaker (PRODUCT.md; Eriksen 1986, Endocr Rev 7:379).
@@ -143,3 +145,38 @@ def compare_with_plan(summary: dict, plan: dict, start: date) -> dict:
                  "are level 2-3 landings); the delivered osteogenic index is the day's index from every counted "
                  "impact; the planned index is the sum of the plan's session indices that day",
     }
+
+
+def program_start(plan: dict, saved_at: str | None) -> tuple[date, str]:
+    """The program's start date, and a note when it had to be taken from elsewhere."""
+    raw = plan.get("start_date")
+    if raw:
+        try:
+            return date.fromisoformat(str(raw)), ""
+        except ValueError:
+            raise InputError.single("start_date", raw, "a date as YYYY-MM-DD in the stored program") from None
+    for value, what in ((saved_at, "the day its program version was saved"), (plan.get("created"), "the day it was created")):
+        if value:
+            try:
+                day = datetime.fromisoformat(str(value)).date()
+            except ValueError:
+                continue
+            return day, (f"The stored program has no start_date: week 1 was taken to start on {what}, "
+                         f"{day.isoformat()}.")
+    raise InputError.single("start_date", None, "a start date in the stored program")
+
+
+def lift_plan_figures(summary: dict) -> None:
+    """Put the planned figures beside each day (and the totals at the top), as the contract reads them."""
+    plan = summary["plan"]
+    by_date = {d["date"]: d for d in plan["days"]}
+    for d in summary["days"]:
+        p = by_date.get(d.get("date"))
+        if p is None:
+            continue
+        for k in ("week", "in_program", "weak_window", "planned_impacts", "delivered_impacts",
+                  "planned_osteogenic_index", "beyond_plan"):
+            d[k] = p[k]
+    for k in ("planned_impacts", "delivered_impacts", "delivered_share", "planned_osteogenic_index",
+              "delivered_osteogenic_index", "delivered_share_osteogenic_index"):
+        summary[k] = plan[k]
