@@ -4,9 +4,12 @@ Writes a synthetic 7-day, 100 Hz recording (about 60 million samples; made here:
 nights, walking-like days with a few jumps) as the documented CSV in a temporary folder,
 then in one run measures
 
-* the reader's own time: every chunk read and converted, nothing counted (twice, before
-  and after, and the mean taken so the disk cache favours neither side);
-* the whole summary: the same reads plus the counting, the non-wear search and the days.
+* in one pass, the CPU time spent fetching the reader's chunks (parsing and converting)
+  and the CPU time spent counting them (peaks, refractory grouping, non-wear, days): the
+  ratio is the goal's figure, unaffected by other programs on a shared machine;
+* for the record, the wall clock of the reader alone and of the whole summary,
+  alternated twice with the fastest of each kept.  It also checks
+the counts against what was written (2 steps a second for 12 h a day, 30 jumps a day).
 
 It prints both times, the counting's share of the reader's time (goal: at most 0.5x),
 and the process's peak memory against the size of the samples as float64 (goal: the
@@ -30,6 +33,8 @@ from prescribe.sensor import summarise_file
 from prescribe.sensor.readers import CHUNK_ROWS, open_recording
 
 RATE_HZ = 100
+#: Rounds of (reader alone, reader + counting), alternated.
+ROUNDS = 2
 ROW_BYTES = 31  # "tttttt.tt,+x.xxx,+y.yyy,+z.zzz\n"
 
 
@@ -93,6 +98,34 @@ def read_only(path: Path) -> tuple[float, int]:
     return time.perf_counter() - t0, n
 
 
+def instrumented(path: Path) -> tuple[float, float, dict]:
+    """One pass, CPU seconds of this process split between fetching the reader's chunks
+    and counting them (feed + finish): the same data, the same run, and time spent
+    waiting for other programs on a shared machine left out."""
+    from prescribe.sensor.summary import ImpactCounter
+
+    clock = time.process_time
+    read_s = count_s = 0.0
+    counter = ImpactCounter(64.0, "hip")
+    chunks = iter(open_recording(path).chunks)
+    while True:
+        t0 = clock()
+        try:
+            t, acc = next(chunks)
+        except StopIteration:
+            read_s += clock() - t0
+            break
+        t1 = clock()
+        counter.feed(t, acc)
+        t2 = clock()
+        read_s += t1 - t0
+        count_s += t2 - t1
+    t3 = clock()
+    summary = counter.finish()
+    count_s += clock() - t3
+    return read_s, count_s, summary
+
+
 def main(hours: float = 168.0) -> int:
     folder = Path(tempfile.mkdtemp(prefix="bench-sensor-"))
     try:
@@ -101,22 +134,32 @@ def main(hours: float = 168.0) -> int:
         n = write_week(path, hours)
         print(f"wrote {n:,} samples ({hours:g} h at {RATE_HZ} Hz, {path.stat().st_size / 1e9:.2f} GB) "
               f"in {time.perf_counter() - t0:.1f} s")
-        read_a, count_a = read_only(path)
-        t1 = time.perf_counter()
-        summary = summarise_file(path, start="2026-03-02", body_mass_kg=64)
-        full = time.perf_counter() - t1
-        read_b, count_b = read_only(path)
-        assert count_a == count_b == n == summary["samples"], (count_a, count_b, n, summary["samples"])
-        reader = (read_a + read_b) / 2
-        counting = full - reader
-        ratio = counting / reader
+        # 1. CPU time of one pass, split between the reader and the counting.
+        read_cpu, count_cpu, summary = instrumented(path)
+        assert summary["samples"] == n
+        ratio = count_cpu / read_cpu
+        # 2. Wall clock, end to end, for the record: alternated, fastest of each kept.
+        reads, fulls = [], []
+        for _ in range(ROUNDS):
+            seconds, count = read_only(path)
+            assert count == n, (count, n)
+            reads.append(seconds)
+            t1 = time.perf_counter()
+            assert summarise_file(path, start="2026-03-02", body_mass_kg=64)["samples"] == n
+            fulls.append(time.perf_counter() - t1)
         peak_mb = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
         data_mb = n * 4 * 8 / 1e6
-        print(f"reader alone: {read_a:.1f} s and {read_b:.1f} s (mean {reader:.1f} s)")
-        print(f"reader + counting: {full:.1f} s; counting adds {counting:.1f} s = {ratio:.2f}x the reader's time "
-              f"(goal: at most 0.5x) -> {'OK' if ratio <= 0.5 else 'OVER'}")
+        print(f"CPU time in one pass: reader {read_cpu:.1f} s, counting {count_cpu:.1f} s = {ratio:.2f}x the "
+              f"reader's time (goal: at most 0.5x) -> {'OK' if ratio <= 0.5 else 'OVER'}")
+        print(f"wall clock: reader alone {', '.join(f'{x:.1f}' for x in reads)} s; reader + counting "
+              f"{', '.join(f'{x:.1f}' for x in fulls)} s (fastest {min(fulls) / min(reads):.2f}x the reader's)")
         print(f"peak memory {peak_mb:.0f} MB for {data_mb:.0f} MB of samples as float64 "
               f"({peak_mb / data_mb:.2f}x; chunks of {CHUNK_ROWS:,} rows)")
+        days = hours / 24.0
+        expected_steps = int(round(n / RATE_HZ / 86400 * 12 * 3600 * 2)) if hours % 24 == 0 else None
+        if expected_steps is not None:
+            assert summary["impacts"] == expected_steps, (summary["impacts"], expected_steps)
+            assert summary["impacts_above_4g"] == int(30 * days), summary["impacts_above_4g"]
         print(f"impacts {summary['impacts']:,}, days {len(summary['days'])}, wear {summary['wear_time_h']} h, "
               f"non-wear {summary['nonwear_time_h']} h, above 4 g {summary['impacts_above_4g']:,}")
         return 0 if ratio <= 0.5 else 1
