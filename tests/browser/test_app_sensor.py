@@ -62,7 +62,11 @@ def test_upload_a_recording_and_see_planned_against_delivered(app_page, app_serv
     today = datetime.now(timezone.utc).date()
     path = tmp_path / "three_days.csv"
     _recording(path, today)
-    page.locator(".pr-sensor-upload input[type=file]").set_input_files(str(path))
+    # The upload button opens the browser's file chooser (its file input is not in the page).
+    with page.expect_file_chooser() as chooser:
+        page.locator(".pr-sensor-upload").click()
+    chooser.value.set_files(str(path))
+    page.wait_for_function("() => document.querySelector('.pr-sensor-upload').innerText.includes('(1)')")
     page.locator(".pr-sensor-count").click()
     page.locator(".pr-sensor-progress").wait_for(state="visible")
     status = _wait_text(page, ".pr-sensor-status", "Counted")
