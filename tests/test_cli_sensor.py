@@ -200,3 +200,37 @@ def test_a_store_at_revision_0002_opens_keeps_its_rows_and_takes_summaries(tmp_p
         assert store.sensor_summaries("OLD-S") == []
         sid = store.add_sensor_summary("OLD-S", {"file": "x.csv", "days": [], "start": None, "end": None})
         assert store.sensor_summaries("OLD-S")[0]["sensor_summary_id"] == sid
+
+
+def test_the_clinician_page_of_the_handout_shows_planned_against_delivered(stored, tmp_path, capsys):
+    week = _week_with_impacts(stored, weak=True)
+    monday = START + timedelta(days=7 * (week["week"] - 1))
+    mon_plan = sum(x["impacts"] for x in week["sessions"] if x["day"] == 1)
+    path = _three_days(tmp_path, monday, (mon_plan + 15, 0, 5))
+    code, out, err = run(capsys, "sensor", str(path), "--patient", "SNS-0001", "--no-store")
+    assert code == 0, err
+    summary_file = tmp_path / "summary.json"
+    summary_file.write_text(out)
+    plan_file = tmp_path / "plan.json"
+    plan_file.write_text(json.dumps(stored))
+    html_out = tmp_path / "handout.html"
+    code, _, err = run(capsys, "handout", str(plan_file), "--out", str(html_out), "--sensor", str(summary_file))
+    assert code == 0, err
+    doc = html_out.read_text()
+    clinician = doc[doc.index('aria-label="Clinician page"'):]
+    assert "Worn sensor: planned and delivered" in clinician and "sensor-chart" in clinician
+    assert f"{monday.isoformat()}: planned {mon_plan}, delivered {mon_plan + 15}" in clinician
+    assert "Beyond the plan inside a weak window" in clinician
+    # Without --sensor the chart is absent; a recording of another person is refused.
+    code, _, _ = run(capsys, "handout", str(plan_file), "--out", str(tmp_path / "plain.html"))
+    assert "Worn sensor" not in (tmp_path / "plain.html").read_text()
+    other = json.loads(out)
+    other["patient_id"] = "SOMEONE-ELSE"
+    (tmp_path / "other.json").write_text(json.dumps(other))
+    code, _, err = run(capsys, "handout", str(plan_file), "--out", str(tmp_path / "x.html"), "--sensor",
+                       str(tmp_path / "other.json"))
+    assert code == 2 and "SNS-0001" in err
+    pdf_out = tmp_path / "handout.pdf"
+    code, _, err = run(capsys, "handout", str(plan_file), "--out", str(pdf_out), "--audience", "clinician",
+                       "--sensor", str(summary_file))
+    assert code == 0 and pdf_out.read_bytes()[:5] == b"%PDF-"

@@ -10,7 +10,8 @@ import pytest
 
 DOMAIN = ["prescribe.records", "prescribe.errors", "prescribe.rules", "prescribe.screening",
           "prescribe.batch_io", "prescribe.catalogue", "prescribe.dose", "prescribe.mechanics",
-          "prescribe.planner", "prescribe.handout", "prescribe.store"]
+          "prescribe.planner", "prescribe.handout", "prescribe.store", "prescribe.sensor",
+          "prescribe.sensor.impacts", "prescribe.sensor.summary", "prescribe.sensor.compare"]
 FORBIDDEN = ("ipywidgets", "bqplot", "voila")
 
 

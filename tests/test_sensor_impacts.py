@@ -208,3 +208,14 @@ def test_implausible_signals_are_refused_with_what_is_wrong(change, words):
     with pytest.raises(InputError) as err:
         count(t, acc)
     assert words in str(err.value)
+
+
+def test_counting_imports_neither_the_store_the_handout_nor_the_vendor_reader():
+    import subprocess
+    import sys
+    code = ("import sys, prescribe.sensor, prescribe.sensor.summary, prescribe.sensor.compare\n"
+            "bad = sorted(m for m in sys.modules if m.startswith(('prescribe.store', 'prescribe.handout', "
+            "'prescribe.ui', 'skdh', 'sqlalchemy', 'ipywidgets')))\nprint(','.join(bad))")
+    proc = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=120)
+    assert proc.returncode == 0, proc.stderr
+    assert proc.stdout.strip() == ""
