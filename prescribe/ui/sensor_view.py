@@ -20,6 +20,8 @@ import ipywidgets as w
 from ..errors import InputError, NotFoundError, PrescribeError
 
 SUFFIXES = (".csv", ".cwa", ".bin")
+#: Largest upload [bytes]: the app server's websocket limit (prescribe/cli/app_cmd.py).
+UPLOAD_LIMIT_BYTES = 256 * 1024 * 1024
 
 
 def _esc(value: Any) -> str:
@@ -86,7 +88,8 @@ class SensorPanel:
         self.widget = app._section("6. Worn sensor: delivered against planned", "pr-section-sensor", [
             w.HTML("<p>A recording from a sensor worn at the hip: CSV (time_s, x_g, y_g, z_g), Axivity .cwa or "
                    "GENEActiv .bin. Impacts are counted per band of peak acceleration and set beside the "
-                   "person's stored program. Only the summary is stored, never the signal.</p>"),
+                   "person's stored program. Only the summary is stored, never the signal. Files up to 256 MB here "
+                   "(a week at the hip in .cwa is well under that); a larger one with <code>prescribe sensor</code>.</p>"),
             w.HBox([self.upload, self.site, self.keep]), w.HBox([self.count_button, self.progress]),
             self.status, self.chart_box, self.table])
 
@@ -118,6 +121,9 @@ class SensorPanel:
         suffix = Path(name).suffix.lower()
         if suffix not in SUFFIXES:
             raise InputError.single("recording", name, "a file ending in .csv, .cwa or .bin")
+        if int(item.get("size") or len(item["content"])) > UPLOAD_LIMIT_BYTES:
+            raise InputError.single("recording", name, "a file of at most 256 MB here (count a larger one with "
+                                                       "`prescribe sensor FILE --patient ID`)")
         self.status.value = f'<span role="status">Reading {_esc(name)}...</span>'
         self.progress.layout.visibility = "visible"
         self.progress.value = 0.0

@@ -37,7 +37,9 @@ def _recording(path, first_day) -> None:
     for i, n in enumerate((14, 0, 6)):
         start = datetime.combine(first_day + timedelta(days=i), datetime.min.time(),
                                  tzinfo=timezone.utc).timestamp() + 9 * 3600
-        t, acc = recording(240, [2.0] * n, [5.0 + k for k in range(n)], rate_hz=50, start_s=start,
+        # 30 minutes a day at 50 Hz: a file of about 12 MB, over the 10 MiB a websocket message
+        # may carry by default, so the app server's upload limit is tested too.
+        t, acc = recording(1800, [2.0] * n, [5.0 + k for k in range(n)], rate_hz=50, start_s=start,
                            noise_g=0.02, seed=i)
         ts.append(t)
         accs.append(acc)
@@ -62,6 +64,7 @@ def test_upload_a_recording_and_see_planned_against_delivered(app_page, app_serv
     today = datetime.now(timezone.utc).date()
     path = tmp_path / "three_days.csv"
     _recording(path, today)
+    assert path.stat().st_size > 10 * 1024 * 1024
     # The upload button opens the browser's file chooser (its file input is not in the page).
     with page.expect_file_chooser() as chooser:
         page.locator(".pr-sensor-upload").click()
