@@ -96,6 +96,7 @@ def test_planned_against_delivered_flags_extra_impacts_in_a_weak_window(stored, 
     assert mon["impacts_by_band"]["1.1-2.4"] == mon_plan + 15
     assert mon["week"] == week["week"] and mon["weak_window"] is True
     assert mon["beyond_plan"] is True and wed["beyond_plan"] is False
+    assert mon["delivered_share"] == (round((mon_plan + 15) / mon_plan, 3) if mon_plan else None)
     flags = s["plan"]["flags"]
     attention = [f for f in flags if f["severity"] == "attention"]
     assert [f["date"] for f in attention] == [mon["date"]] + ([tue["date"]] if planned.get(2, 0) < 3 else [])
@@ -234,3 +235,12 @@ def test_the_clinician_page_of_the_handout_shows_planned_against_delivered(store
     code, _, err = run(capsys, "handout", str(plan_file), "--out", str(pdf_out), "--audience", "clinician",
                        "--sensor", str(summary_file))
     assert code == 0 and pdf_out.read_bytes()[:5] == b"%PDF-"
+
+
+def test_a_wrist_recording_is_not_set_against_the_plan(stored, tmp_path, capsys):
+    path = _three_days(tmp_path, START, (5, 0, 0))
+    code, out, err = run(capsys, "sensor", str(path), "--patient", "SNS-0001", "--site", "wrist", "--no-store")
+    assert code == 0, err
+    s = json.loads(out)
+    assert s["plan"] is None and s["days"][0]["osteogenic_index"] is None
+    assert any("needs a recording at the hip" in n for n in s["notes"])

@@ -69,6 +69,9 @@ def summarise_file(path: str | os.PathLike, fmt: str | None = None, *, site: str
     for t, acc in recording.chunks:
         counter.feed(t, acc)
     summary = counter.finish(recording.declared_rate_hz)
+    if start_s is not None and not counter.relative:
+        summary["notes"].append("The file's times are clock times (Unix time): the start given was not needed "
+                                "and was not used.")
     if body_mass_kg is None and site == "hip":
         summary["notes"].append(f"No body mass given: {DEFAULT_BODY_MASS_KG:g} kg was assumed for the force "
                                 "estimate (give --body-mass-kg, or --patient).")
@@ -101,6 +104,10 @@ def summarise_for_person(path: str | os.PathLike, fmt: str | None = None, *, sit
         summary = summarise_file(path, fmt, site=site, body_mass_kg=body_mass_kg, start=start_day.isoformat())
         notes.append(f"The file's times are relative and no start was given: the recording was taken to begin on "
                      f"the program's start date, {start_day.isoformat()} 00:00 UTC.")
+    if plan is not None and site != "hip":
+        notes.append("Planned against delivered needs a recording at the hip: the program's impacts are forces "
+                     "the wrist's accelerations do not estimate, so no comparison was made.")
+        plan = None
     if plan is None:
         summary["plan"] = None
     else:

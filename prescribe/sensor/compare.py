@@ -95,6 +95,7 @@ def compare_with_plan(summary: dict, plan: dict, start: date) -> dict:
             "delivered_osteogenic_index": d.get("osteogenic_index"),
             "wear_time_h": d.get("wear_time_h"),
             "beyond_plan": in_program and delivered > planned_n,
+            "delivered_share": round(delivered / planned_n, 3) if in_program and planned_n else None,
         }
         days.append(row)
         if row["beyond_plan"]:
@@ -175,7 +176,7 @@ def lift_plan_figures(summary: dict) -> None:
         if p is None:
             continue
         for k in ("week", "in_program", "weak_window", "planned_impacts", "delivered_impacts",
-                  "planned_osteogenic_index", "beyond_plan"):
+                  "planned_osteogenic_index", "beyond_plan", "delivered_share"):
             d[k] = p[k]
     for k in ("planned_impacts", "delivered_impacts", "delivered_share", "planned_osteogenic_index",
               "delivered_osteogenic_index", "delivered_share_osteogenic_index"):
