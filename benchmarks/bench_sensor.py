@@ -19,7 +19,6 @@ chunks keep it bounded, far below the whole recording).  Run:
 
 from __future__ import annotations
 
-import os
 import resource
 import shutil
 import sys

@@ -14,20 +14,11 @@ counted impacts whose estimated peak force is 2 BW or more (``impacts_2bw_or_mor
 from __future__ import annotations
 
 from datetime import date, datetime, timedelta
-from typing import Any
-
 from ..errors import InputError
 
 #: Weeks 3 to 5 after a step-up (the step-up week is week 1) are the weak window,
 #: when bone is transiently weaker (PRODUCT.md; Eriksen 1986, Endocr Rev 7:379).
 WEAK_WINDOW_OFFSETS = (2, 3, 4)
-
-
-def _extra(model: Any, name: str, default: Any = None) -> Any:
-    if isinstance(model, dict):
-        return model.get(name, default)
-    extra = getattr(model, "model_extra", None) or {}
-    return getattr(model, name, extra.get(name, default)) if hasattr(model, name) else extra.get(name, default)
 
 
 def weak_weeks(plan: dict) -> set[int]:

@@ -10,7 +10,6 @@ raw signal).  Widgets carry stable CSS classes (``pr-sensor-...``) for browser t
 from __future__ import annotations
 
 import html
-import os
 import tempfile
 from pathlib import Path
 from typing import Any
