@@ -115,6 +115,7 @@ def _rows(t, acc) -> str:
     ("gap", "at most one day"),
     ("text", "numbers in every cell"),
     ("empty", "at least 3 samples"),
+    ("metres", "m/s^2"),
 ])
 def test_bad_csv_files_exit_2_naming_what_is_wrong(tmp_path, capsys, case, words):
     t, acc = recording(5, [], [], rate_hz=50)
@@ -132,6 +133,8 @@ def test_bad_csv_files_exit_2_naming_what_is_wrong(tmp_path, capsys, case, words
         text = _rows(t, acc)
     elif case == "text":
         text = _rows(t[:5], acc[:5]) + "0.5,abc,0,1\n"
+    elif case == "metres":  # the same recording in m/s^2 (a sensor at rest reads 9.81)
+        text = _rows(t, acc * 9.80665)
     else:
         text = "time_s,x_g,y_g,z_g\n"
     code, out, err = run(capsys, "sensor", str(_csv(tmp_path, text)))
@@ -170,3 +173,11 @@ def test_unknown_suffix_needs_a_format(tmp_path):
     path.write_text("time_s,x_g,y_g,z_g\n")
     with pytest.raises(InputError, match="--format"):
         summarise_file(path)
+
+
+def test_a_csv_saved_with_a_byte_order_mark_reads(tmp_path):
+    t, acc = recording(10, [1.2], [5])
+    path = tmp_path / "bom.csv"
+    write_csv(path, t, acc)
+    path.write_bytes(b"\xef\xbb\xbf" + path.read_bytes())
+    assert summarise_file(path)["impacts"] == 1

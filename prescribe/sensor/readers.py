@@ -95,7 +95,7 @@ def _csv_chunks(path: Path, chunk_rows: int, progress) -> Iterator[tuple[np.ndar
         fh.seek(0)
         try:
             reader = pd.read_csv(fh, usecols=list(CSV_COLUMNS), dtype="float64", chunksize=chunk_rows,
-                                 engine="c", skipinitialspace=True)
+                                 engine="c", skipinitialspace=True, encoding="utf-8-sig")
             row = 0
             for frame in reader:
                 values = frame[list(CSV_COLUMNS)].to_numpy()

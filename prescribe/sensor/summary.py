@@ -25,6 +25,12 @@ MAX_GAP_S = 86_400.0
 #: Times from this value on are Unix time (2000-01-01T00:00:00Z); smaller ones are
 #: seconds from the recording's start.
 EPOCH_FROM_S = 946_684_800.0
+#: A worn or resting sensor reads about 1 g most of the time; a recording whose median
+#: resultant lies outside this range is in another unit (m/s^2 reads 9.8, milli-g 1000)
+#: [g] (common practice).
+PLAUSIBLE_MEDIAN_G = (0.5, 1.5)
+#: Every this many samples enter the median above (it needs no more).
+RESULTANT_STRIDE = 25
 SITES = ("hip", "wrist")
 #: Body mass used when none is given [kg] (common practice: a reference adult).
 DEFAULT_BODY_MASS_KG = 70.0
@@ -80,6 +86,7 @@ class ImpactCounter:
         self._peak_t: list[np.ndarray] = []
         self._peak_g: list[np.ndarray] = []
         self._dt_medians: list[float] = []
+        self._resultant_medians: list[float] = []
         self._largest_gap_s = 0.0
         self._blocks: dict[int, np.ndarray] = {}  # block -> [n, s1(3), s2(3), lo(3), hi(3)]
 
@@ -97,6 +104,7 @@ class ImpactCounter:
         self.samples += t.size
         self.last_t = float(t[-1])
         net = im.net_resultant_g(a[:, 0], a[:, 1], a[:, 2])
+        self._resultant_medians.append(float(np.median(net[::RESULTANT_STRIDE])) + 1.0)
         bt = np.concatenate([self._tail_t, t])
         bs = np.concatenate([self._tail_s, net])
         idx = im.candidate_peaks(bs)
@@ -178,6 +186,12 @@ class ImpactCounter:
         """The recording's summary (see docs/sensors.md for every field)."""
         if self.samples < 3 or self.first_t is None or self.last_t is None:
             raise _fail("FILE", f"{self.samples} samples", "a recording of at least 3 samples", self.source)
+        median_g = float(np.median(self._resultant_medians))
+        lo, hi = PLAUSIBLE_MEDIAN_G
+        if not lo <= median_g <= hi:
+            raise _fail("acceleration", f"a median resultant of {median_g:.3g}",
+                        f"values in g: a worn or resting sensor reads about 1 g ({lo:g}-{hi:g} g) most of the "
+                        "time; is the file in m/s^2 (about 9.8) or milli-g (about 1000)?", self.source)
         measured = 1.0 / float(np.median(self._dt_medians)) if self._dt_medians else None
         self._check_rate(1.0 / measured if measured else None)
         rate = declared_rate_hz or measured
