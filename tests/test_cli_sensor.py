@@ -244,3 +244,14 @@ def test_a_wrist_recording_is_not_set_against_the_plan(stored, tmp_path, capsys)
     s = json.loads(out)
     assert s["plan"] is None and s["days"][0]["osteogenic_index"] is None
     assert any("needs a recording at the hip" in n for n in s["notes"])
+
+
+def test_the_table_shows_the_share_and_the_flags(stored, tmp_path, capsys):
+    week = _week_with_impacts(stored, weak=True)
+    monday = START + timedelta(days=7 * (week["week"] - 1))
+    mon_plan = sum(x["impacts"] for x in week["sessions"] if x["day"] == 1)
+    path = _three_days(tmp_path, monday, (mon_plan + 10, 0, 0))
+    code, out, err = run(capsys, "sensor", str(path), "--patient", "SNS-0001", "--no-store", "--table")
+    assert code == 0, err
+    assert f"ATTENTION {monday.isoformat()}" in out and "planned impacts" in out
+    assert "does not replace clinical judgment" in out

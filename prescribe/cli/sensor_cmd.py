@@ -92,5 +92,14 @@ def _print(summary: dict, table: bool) -> None:
                         "planned_OI": d["planned_osteogenic_index"], "beyond": d["beyond_plan"]})
         rows.append(row)
     emit_table(rows, list(rows[0]) if rows else ["date"])
+    plan = summary.get("plan")
+    if plan:
+        share = plan.get("delivered_share")
+        print(f"delivered {plan['delivered_impacts']} of {plan['planned_impacts']} planned impacts"
+              + (f" ({share:.0%})" if share is not None else ""))
+        for f in plan.get("flags") or []:
+            print(f"{'ATTENTION' if f['severity'] == 'attention' else 'note'} {f['date']}: {f['message']}")
+    for n in summary.get("notes") or []:
+        print(f"- {n}")
     for c in summary["cautions"]:
         print(f"* {c}")
