@@ -9,6 +9,7 @@ PYTHON ?= $(shell command -v python3.11 || command -v python3)
 VENV   := .venv
 BIN    := $(VENV)/bin
 STAMP  := $(VENV)/.installed-stamp
+SENSORS_STAMP := $(VENV)/.sensors-stamp
 PORT   ?= 8866
 DEMO_DB ?= $(CURDIR)/var/demo.db
 PIP    := $(BIN)/python -m pip --disable-pip-version-check -q
@@ -22,7 +23,7 @@ HUB_SPAWNER ?= systemd
 HUB_ADMINS ?=
 HUB_LEADS ?=
 
-.PHONY: install system-deps pg-deps hub-deps app seed test test-fast bench lock clean hub
+.PHONY: install install-sensors system-deps pg-deps hub-deps app seed test test-fast bench lock clean hub
 
 install: $(STAMP)
 
@@ -30,6 +31,14 @@ $(STAMP): pyproject.toml requirements.lock
 	@test -x $(BIN)/python || $(PYTHON) -m venv $(VENV)
 	$(PIP) install -r requirements.lock
 	$(PIP) install --no-deps -e .
+	@touch $@
+
+# The optional worn-sensor readers (scikit-digital-health, about 500 MB): the tests and
+# benchmarks read real .cwa and .bin files with them; the core install stays light.
+install-sensors: $(SENSORS_STAMP)
+
+$(SENSORS_STAMP): $(STAMP) requirements-sensors.lock
+	$(PIP) install -r requirements-sensors.lock
 	@touch $@
 
 # chromium drives the browser tests; poppler-utils turns handout PDFs into text and PNG;
@@ -90,14 +99,14 @@ seed: install
 app: seed
 	PRESCRIBE_DB=$(DEMO_DB) $(BIN)/prescribe app --port $(PORT)
 
-test: install system-deps pg-deps hub-deps
+test: install install-sensors system-deps pg-deps hub-deps
 	$(BIN)/python -m pytest
 
 # Everything but the browser tests (quicker while working on the engine).
-test-fast: install
+test-fast: install install-sensors
 	$(BIN)/python -m pytest -m "not browser"
 
-bench: install
+bench: install install-sensors
 	@for b in benchmarks/bench_*.py; do echo "== $$b"; $(BIN)/python $$b || exit 1; done
 
 # Regenerate the lock file from pyproject's pins (run after changing a dependency).
@@ -106,6 +115,10 @@ lock:
 	/tmp/prescribe-lock/bin/pip install -q -e .[test,postgresql,hub]
 	( echo '# Exact versions CI and `make` install (pip install -r requirements.lock). Regenerate with `make lock`.'; \
 	  /tmp/prescribe-lock/bin/pip freeze --exclude-editable | grep -v '^-e' ) > requirements.lock
+	/tmp/prescribe-lock/bin/pip install -q -e .[sensors]
+	( echo '# The optional worn-sensor readers (pip install -r requirements-sensors.lock), on top of requirements.lock.'; \
+	  echo '# scikit-digital-health (MIT) and what it brings; none is GPL. Regenerate with `make lock`.'; \
+	  /tmp/prescribe-lock/bin/pip freeze --exclude-editable | grep -v '^-e' | grep -vxFf requirements.lock ) > requirements-sensors.lock
 
 clean:
 	rm -rf $(VENV) var test-artifacts .pytest_cache .hypothesis

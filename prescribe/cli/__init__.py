@@ -29,6 +29,7 @@ COMMAND_MODULES = (
     "store_cmd",      # prescribe db, save, export, import
     "session_cmd",    # prescribe session add|list, prescribe adjust
     "explain_cmd",    # prescribe explain
+    "sensor_cmd",     # prescribe sensor
 )
 
 

@@ -61,13 +61,19 @@ def check_port_free(port: int) -> None:
                                  f"stop the other server or choose another port with --port") from None
 
 
+#: Largest file the app's upload accepts [bytes] (the sensor section; larger recordings: `prescribe sensor`).
+UPLOAD_LIMIT_BYTES = 256 * 1024 * 1024
+
+
 def voila_command(port: int, notebook: Path) -> list[str]:
     return [sys.executable, "-m", "voila", str(notebook),
             "--no-browser", f"--port={port}", "--Voila.ip=127.0.0.1",
             f"--template={TEMPLATE_NAME}", "--theme=light",
             f"--MappingKernelManager.cull_idle_timeout={CULL_IDLE_TIMEOUT_S}",
             f"--MappingKernelManager.cull_interval={CULL_INTERVAL_S}",
-            "--MappingKernelManager.cull_connected=False"]
+            "--MappingKernelManager.cull_connected=False",
+            # Worn-sensor recordings are uploaded through the kernel's websocket (tornado's default: 10 MiB).
+            f'--Voila.tornado_settings={{"websocket_max_message_size": {UPLOAD_LIMIT_BYTES}}}']
 
 
 def voila_environment(db: str | None) -> dict[str, str]:

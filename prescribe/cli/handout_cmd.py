@@ -20,6 +20,8 @@ def register(sub) -> None:
     p.add_argument("--paper", default="a4", metavar="a4|letter", help="paper size (default a4)")
     p.add_argument("--audience", default="both", metavar="person|clinician|both",
                    help="which pages to print (default both)")
+    p.add_argument("--sensor", metavar="SUMMARY.json", help="a worn-sensor summary printed by `prescribe sensor "
+                                                           "--patient`: the clinician page shows planned against delivered")
     p.set_defaults(func=run)
 
 
@@ -30,10 +32,21 @@ def run(args) -> int:
     check_out_path(args.out)  # refuse a bad --out before reading the plan
     check_options(args.audience, args.paper, ("--audience", "--paper"))
     plan = parse_plan(read_json_file(args.plan, "PLAN.json"), source=args.plan)
-    out = write_handout(plan, args.out, audience=args.audience, paper=args.paper)
+    sensor = _sensor_summary(args.sensor, plan.patient_id) if args.sensor else None
+    out = write_handout(plan, args.out, audience=args.audience, paper=args.paper, sensor_summary=sensor)
     emit_json({
         "out": str(out), "format": out.suffix.lower().lstrip("."), "bytes": out.stat().st_size,
         "patient_id": plan.patient_id, "audience": args.audience, "paper": args.paper,
         "weeks": len(plan.weeks), "cautions": list(STANDARD_CAUTIONS),
     })
     return 0
+
+
+def _sensor_summary(path: str, patient_id: str) -> dict:
+    from ..errors import InputError
+    data = read_json_file(path, "--sensor")
+    if not isinstance(data, dict) or not isinstance(data.get("days"), list):
+        raise InputError.single("--sensor", path, "a summary printed by `prescribe sensor FILE --patient ID`")
+    if data.get("patient_id") not in (None, patient_id):
+        raise InputError.single("--sensor", data.get("patient_id"), f"a recording of the plan's person {patient_id!r}")
+    return data

@@ -21,6 +21,7 @@ from ..fileio import write_atomically
 from ..plan_schema import PLAN_FORMAT_VERSION, Plan, parse_plan
 from ..settings import Clinic, clinic as clinic_from_settings
 from . import charts, content, explain_figures, pdf
+from .sensor_chart import sensor_charts
 
 AUDIENCES = ("person", "clinician", "both")
 #: Paper names as the command line takes them -> CSS page size.
@@ -65,7 +66,7 @@ def _environment() -> Environment:
     return env
 
 
-def handout_context(plan: Plan, audience: str, paper: str, clinic: Clinic) -> dict:
+def handout_context(plan: Plan, audience: str, paper: str, clinic: Clinic, sensor_summary: dict | None = None) -> dict:
     """Everything the template shows, worked out from the plan.
 
     What only the person's pages show (charts, tables, guides) or only the clinician's
@@ -96,11 +97,12 @@ def handout_context(plan: Plan, audience: str, paper: str, clinic: Clinic) -> di
                      ("Handout made by", f"prescribe {__version__}, plan format {PLAN_FORMAT_VERSION}")],
         "has_weak": any(f.weak_window for f in facts),
         "minutes_only": any(f.impact_level >= 1 and not f.impacts_per_session for f in facts),
+        "sensor_charts": sensor_charts(sensor_summary) if clinician else [],
     }
 
 
 def render_html(plan: Plan | dict, audience: str = "both", paper: str = "a4",
-                clinic: Clinic | None = None) -> str:
+                clinic: Clinic | None = None, sensor_summary: dict | None = None) -> str:
     """The handout as one self-contained HTML page (print CSS and inline SVG charts).
 
     ``audience`` is person, clinician or both; ``paper`` is a4 or letter.  The
@@ -110,11 +112,12 @@ def render_html(plan: Plan | dict, audience: str = "both", paper: str = "a4",
     plan = as_plan(plan)
     clinic = clinic if clinic is not None else clinic_from_settings()
     return _environment().get_template("handout.html.j2").render(
-        **handout_context(plan, audience, paper, clinic))
+        **handout_context(plan, audience, paper, clinic, sensor_summary))
 
 
 def render_pdf(plan: Plan | dict, audience: str = "both", paper: str = "a4",
-               clinic: Clinic | None = None, parallel: bool | None = None) -> bytes:
+               clinic: Clinic | None = None, parallel: bool | None = None,
+               sensor_summary: dict | None = None) -> bytes:
     """The handout as PDF bytes (WeasyPrint), with page numbers and the short caution on every page.
 
     For both audiences the person's pages and the clinician's pages are two documents,
@@ -125,12 +128,13 @@ def render_pdf(plan: Plan | dict, audience: str = "both", paper: str = "a4",
     plan = as_plan(plan)
     clinic = clinic if clinic is not None else clinic_from_settings()
     audiences = ("person", "clinician") if audience == "both" else (audience,)
-    htmls = [render_html(plan, audience=a, paper=paper, clinic=clinic) for a in audiences]
+    htmls = [render_html(plan, audience=a, paper=paper, clinic=clinic, sensor_summary=sensor_summary)
+             for a in audiences]
     return pdf.join_pdfs(pdf.render_parts(htmls, base_url=str(TEMPLATES), parallel=parallel))
 
 
 def write_handout(plan: Plan | dict, out_path: str | os.PathLike, audience: str = "both",
-                  paper: str = "a4", clinic: Clinic | None = None) -> Path:
+                  paper: str = "a4", clinic: Clinic | None = None, sensor_summary: dict | None = None) -> Path:
     """Write the handout as HTML or PDF, chosen by the suffix of ``out_path``.
 
     The file is written to a temporary name first and then renamed, so an existing
@@ -140,9 +144,10 @@ def write_handout(plan: Plan | dict, out_path: str | os.PathLike, audience: str 
     suffix = out.suffix.lower()
     check_options(audience, paper, ("--audience", "--paper"))
     if suffix == ".pdf":
-        data = render_pdf(plan, audience=audience, paper=paper, clinic=clinic)
+        data = render_pdf(plan, audience=audience, paper=paper, clinic=clinic, sensor_summary=sensor_summary)
     else:
-        data = render_html(plan, audience=audience, paper=paper, clinic=clinic).encode("utf-8")
+        data = render_html(plan, audience=audience, paper=paper, clinic=clinic,
+                           sensor_summary=sensor_summary).encode("utf-8")
     directory = out.parent if str(out.parent) else Path(".")
     if not directory.is_dir():
         raise InputError.single("--out", str(out_path), "a file in an existing folder")

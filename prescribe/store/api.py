@@ -50,7 +50,8 @@ if TYPE_CHECKING:
 HEAD_REVISION = "0006"
 #: Every revision this version can open, oldest first, with the tables each has.
 KNOWN_REVISIONS: dict[str, tuple[str, ...]] = {"0001": m.TABLES_0001, "0002": m.TABLES_0002,
-                                               "0003": m.TABLES_0003, "0006": m.TABLES_0003}
+                                               "0003": m.TABLES_0003, "0005": m.TABLES_0005,
+                                               "0006": m.TABLES_0005}
 MIGRATIONS_DIR = Path(__file__).with_name("migrations")
 
 #: SQLite settings on every connection (see docs/store.md for why FULL).
@@ -623,6 +624,46 @@ class Store:
                  "created_by": r.created_by, "approved_by": r.approved_by, "approved_at": r.approved_at,
                  "body": json.loads(r.body_json)} for r in rows]
 
+    # -- worn-sensor summaries (revision 0005) ------------------------------------------------
+
+    def add_sensor_summary(self, patient_id: str, summary: dict, clinician: str = "") -> int:
+        """Store the summary of one worn-sensor recording with the person; returns its id.
+
+        Only the summary is stored (counts per band and per day, the planned comparison),
+        never the raw signal.
+        """
+        if not isinstance(summary, dict) or "days" not in summary:
+            raise InputError.single("summary", summary, "a sensor summary as printed by `prescribe sensor`")
+        clinician = _clinician(clinician, required=False)
+        summary_json = _dumps(summary, "summary")
+        at = now_utc()
+        with self._write() as conn:
+            _person(conn, patient_id, lock=True)
+            sid = conn.execute(m.sensor_summaries.insert().values(
+                patient_id=patient_id, created=at, clinician=clinician, file_name=str(summary.get("file") or ""),
+                recorded_from=summary.get("start"), recorded_to=summary.get("end"),
+                summary_json=summary_json)).inserted_primary_key[0]
+            _audit(conn, at, "sensor_summary_saved", patient_id, clinician,
+                   {"sensor_summary_id": sid, "file": summary.get("file"), "start": summary.get("start")})
+        return int(sid)
+
+    def sensor_summaries(self, patient_id: str) -> list[dict]:
+        """Every stored sensor summary of one person, oldest first."""
+        with self._read() as conn:
+            _person(conn, patient_id)
+            rows = conn.execute(select(m.sensor_summaries).where(m.sensor_summaries.c.patient_id == patient_id)
+                                .order_by(m.sensor_summaries.c.created, m.sensor_summaries.c.id)).all()
+        return [{"sensor_summary_id": r.id, "created": r.created, "clinician": r.clinician,
+                 "summary": json.loads(r.summary_json)} for r in rows]
+
+    def program_created(self, patient_id: str, version: int | None = None) -> str | None:
+        """When a program version (the latest by default) was saved."""
+        with self._read() as conn:
+            query = select(m.program_versions.c.created).where(m.program_versions.c.patient_id == patient_id)
+            query = (query.order_by(m.program_versions.c.version.desc()).limit(1) if version is None
+                     else query.where(m.program_versions.c.version == version))
+            return conn.execute(query).scalar()
+
     # -- audit, export, import, backup -----------------------------------------------------
 
     def audit(self, patient_id: str | None = None) -> list[dict]:
@@ -683,6 +724,12 @@ class Store:
                     rpe=None if rec.get("session_rpe") is None else int(round(rec["session_rpe"])),
                     pain=rec["pain_during"], notes=rec.get("note", ""), clinician=s["clinician"], created=s["created"],
                     session_json=_dumps(rec, "session"), week=s["week"]))
+            for s in b.get("sensor_summaries") or []:
+                summary = s["summary"]
+                conn.execute(m.sensor_summaries.insert().values(
+                    patient_id=pid, created=s["created"], clinician=s["clinician"],
+                    file_name=str(summary.get("file") or ""), recorded_from=summary.get("start"),
+                    recorded_to=summary.get("end"), summary_json=_dumps(summary, "summary")))
             for a in b["audit"]:
                 _audit(conn, a["at"], a["action"], pid, a["clinician"], a["detail"])
             _audit(conn, at, "bundle_imported", pid, "", {"bundle_format_version": b["bundle_format_version"],
@@ -928,6 +975,8 @@ def _export(conn: Connection, pid: str) -> dict:
                             .order_by(m.program_versions.c.version)).all()
     sessions = conn.execute(select(m.session_logs).where(m.session_logs.c.patient_id == pid)
                             .order_by(m.session_logs.c.session_date, m.session_logs.c.id)).all()
+    sensors = conn.execute(select(m.sensor_summaries).where(m.sensor_summaries.c.patient_id == pid)
+                           .order_by(m.sensor_summaries.c.created, m.sensor_summaries.c.id)).all()
     audit = conn.execute(select(m.audit_log).where(m.audit_log.c.patient_id == pid,
                                                    m.audit_log.c.action.not_in(LOCAL_ONLY_ACTIONS))
                          .order_by(m.audit_log.c.id)).all()
@@ -948,6 +997,8 @@ def _export(conn: Connection, pid: str) -> dict:
         "sessions": [{"week": s.week, "program_version": s.program_version, "clinician": s.clinician,
                       "created": s.created, "session": json.loads(s.session_json)}
                      for s in sessions if s.session_json is not None],
+        "sensor_summaries": [{"created": r.created, "clinician": r.clinician, "summary": json.loads(r.summary_json)}
+                             for r in sensors],
         "audit": [{"at": a.at, "action": a.action, "clinician": a.clinician, "detail": json.loads(a.detail_json)}
                   for a in audit],
     }
@@ -960,6 +1011,7 @@ def _comparable(bundle: dict) -> dict:
 def _counts(b: dict) -> dict:
     return {"screenings": len(b["screenings"]), "program_versions": len(b["programs"]),
             "session_logs": len(b["session_logs"]), "sessions": len(b.get("sessions") or []),
+            "sensor_summaries": len(b.get("sensor_summaries") or []),
             "audit_entries": len(b["audit"])}
 
 

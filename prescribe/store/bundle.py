@@ -96,6 +96,20 @@ class _SessionEntry(_Part):
 
     _ts = field_validator("created")(_timestamp)
 
+class _SensorSummary(_Part):
+    created: str
+    clinician: str = Field(max_length=200)
+    summary: dict
+
+    _ts = field_validator("created")(_timestamp)
+
+    @field_validator("summary")
+    @classmethod
+    def _has_days(cls, value: dict) -> dict:
+        if not isinstance(value.get("days"), list):
+            raise ValueError("a sensor summary with its list of days, as printed by `prescribe sensor`")
+        return value
+
 
 class _Audit(_Part):
     at: str
@@ -116,6 +130,8 @@ class _Bundle(_Part):
     programs: list[_Program]
     session_logs: list[_Session] = Field(default_factory=list)
     sessions: list[_SessionEntry] = Field(default_factory=list)  # optional: older bundles have none
+    #: Optional: bundles written before worn-sensor summaries existed have none.
+    sensor_summaries: list[_SensorSummary] = Field(default_factory=list)
     audit: list[_Audit]
 
 

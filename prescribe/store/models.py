@@ -112,3 +112,21 @@ clinic_templates = Table(
 TABLES_0001 = ("people", "screenings", "program_versions", "audit_log")
 TABLES_0002 = TABLES_0001 + ("session_logs", "clinic_templates")
 TABLES_0003 = TABLES_0002
+
+# -- revision 0005: summaries of worn-sensor recordings (never the raw signal) ---------
+
+#: One row a recording counted for a person: the summary printed by `prescribe sensor`.
+sensor_summaries = Table(
+    "sensor_summaries", metadata,
+    Column("id", Integer, primary_key=True, autoincrement=True),
+    Column("patient_id", String(64), ForeignKey("people.patient_id"), nullable=False),
+    Column("created", String(40), nullable=False),
+    Column("clinician", Text, nullable=False, default=""),
+    Column("file_name", Text, nullable=False),
+    Column("recorded_from", String(40), nullable=True),
+    Column("recorded_to", String(40), nullable=True),
+    Column("summary_json", Text, nullable=False),
+    Index("ix_sensor_summaries_patient", "patient_id", "created"),
+)
+
+TABLES_0005 = TABLES_0003 + ("sensor_summaries",)

@@ -267,10 +267,21 @@ class ClinicSession:
         """The handout of the current program as HTML (UTF-8 bytes) or PDF bytes."""
         if self.plan is None:
             raise InputError.single("program", None, "a built program (check the person's details first)")
+        sensor = self.latest_sensor_summary()  # the clinician's page shows it when there is one
         if fmt == "pdf":
-            return _api("handout", "render_pdf")(self.plan, audience=audience, paper=paper)
-        html = _api("handout", "render_html")(self.plan, audience=audience, paper=paper)
+            return _api("handout", "render_pdf")(self.plan, audience=audience, paper=paper, sensor_summary=sensor)
+        html = _api("handout", "render_html")(self.plan, audience=audience, paper=paper, sensor_summary=sensor)
         return html.encode("utf-8") if isinstance(html, str) else html
+
+    def latest_sensor_summary(self) -> dict | None:
+        """The open person's newest stored worn-sensor summary, if any."""
+        if self.record is None or self.store_url is None and self._store is None:
+            return None
+        try:
+            rows = self.store.sensor_summaries(self.record.patient_id)
+        except (NotFoundError, EngineMissing, AttributeError):
+            return None
+        return rows[-1]["summary"] if rows else None
 
     # -- store ------------------------------------------------------------------
     @property

@@ -354,6 +354,8 @@ class ClinicApp:
         self._build_store_section()
         from .sessions_view import SessionsView  # the live-session panel (docs/sessions.md)
         self.live = SessionsView(self)
+        from .sensor_view import SensorPanel  # worn-sensor section
+        self.sensor_panel = SensorPanel(self)
         title = w.HTML("<h1 style='font-size:22px;margin:4px 0'>prescribe: bone-loading program builder</h1>"
                        "<p>Decision support for clinicians. Work down the page: person, screening, program, "
                        "handout, save.</p>")
@@ -362,7 +364,7 @@ class ClinicApp:
         self.widget = w.VBox([w.HTML(STYLE), title, self.errors.widget, cautions_box(),
                               self.person_section, self.screening_section, self.program_section,
                               self.handout_section, self.store_section, self.live.widget,
-                              self.template_review.widget])
+                              self.sensor_panel.widget, self.template_review.widget])
         self.widget.add_class("pr-app")
         self.warm_thread: threading.Thread | None = None
         self._warm_lock = threading.Lock()
@@ -686,6 +688,7 @@ class ClinicApp:
         except PrescribeError as exc:
             self.history.value = f'<p class="pr-msg">The store could not be read: {_esc(exc)}</p>'
             return
+        self.sensor_panel.show_latest()
         current = self.load_select.value
         self.load_select.options = [("- choose -", None)] + [(p, p) for p in people]
         if current in people:

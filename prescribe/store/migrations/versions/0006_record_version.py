@@ -2,14 +2,14 @@
 conflict instead of a silent overwrite (two clinicians editing the same person).
 
 Revision ID: 0006
-Revises: 0003
+Revises: 0005
 """
 
 from alembic import op
 import sqlalchemy as sa
 
 revision = "0006"
-down_revision = "0003"
+down_revision = "0005"
 branch_labels = None
 depends_on = None
 
