@@ -15,7 +15,7 @@ from __future__ import annotations
 
 import importlib
 import threading
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Any
 
 from ..cautions import with_standard
@@ -55,6 +55,8 @@ class ChartSeries:
     impact_level: list[int]
     osteogenic_index: list[float]
     weak_window: list[bool]
+    #: Minutes a session of level 0-1 impact work (walking-type), where impacts do not apply.
+    impact_minutes: list[float] = field(default_factory=list)
 
 
 class ClinicSession:
@@ -169,6 +171,12 @@ class ClinicSession:
         if self.plan is None:
             self.refusal = "Build a program first."
             return False
+        from .program_model import already_in_program  # a swap never merges two exercises silently
+        from .wording import exercise_names
+        merge = already_in_program(self.plan, old_id, new_id, exercise_names())
+        if merge:
+            self.refusal = merge
+            return False
         replace = _api("planner", "replace_exercise")
         plan = self._attempt(lambda: replace(self.plan, old_id, new_id))
         if plan is None:
@@ -238,6 +246,9 @@ class ClinicSession:
             osteogenic_index=[float(extra(w, "weekly_osteogenic_index",
                                           sum(s.osteogenic_index for s in w.sessions))) for w in weeks],
             weak_window=[bool(extra(w, "weak_window", False)) for w in weeks],
+            impact_minutes=[float(max((x.minutes or 0.0 for s in w.sessions for x in s.exercises
+                                       if x.category == "impact" and x.impact_level <= 1), default=0.0))
+                            for w in weeks],
         )
 
     def week_rows(self) -> list[dict]:

@@ -24,6 +24,8 @@ from ..errors import InputError, PrescribeError
 from ..records import SEVERITIES
 from . import form_spec
 from .explain_view import ExplainView
+from .program_view import ProgramView, progression_html
+from .wording import plain
 from .session import IMPACT_LABELS, ClinicSession, EngineMissing
 
 log = logging.getLogger("prescribe.ui")
@@ -465,14 +467,15 @@ class ClinicApp:
         for control in (self.start_level, *self.sessions.values()):
             control.observe(lambda ch: self.on_option_change(), names="value")
         self.weeks.observe(lambda ch: self.on_option_change(), names="value")
-        self.exercise_select = w.Dropdown(options=[], description="Exercise", layout=w.Layout(width="360px"))
-        self.exercise_select.add_class("pr-exercise-select")
+        # The program day by day, the progression and the swap panel (program_view.py).
+        self.program_view = ProgramView(self)
+        swap = self.program_view.swap
+        self.exercise_select, self.replacement_select = swap.exercise_select, swap.replacement_select
+        self.swap_button, self.exclude_button = swap.swap_button, swap.exclude_button
         self.exercise_select.observe(lambda ch: self.on_exercise_chosen(), names="value")
-        self.replacement_select = w.Dropdown(options=[], description="Swap for", layout=w.Layout(width="360px"))
-        self.replacement_select.add_class("pr-replacement-select")
-        self.swap_button = self._button("Swap", "pr-swap-button")
         self.swap_button.on_click(lambda _b: self.on_swap())
-        self.exclude_button = self._button("Leave out", "pr-exclude-button")
+        swap.confirm_button.on_click(lambda _b: self.on_confirm_swap())
+        swap.cancel_button.on_click(lambda _b: swap.cancel())
         self.exclude_button.on_click(lambda _b: self.on_exclude())
         self.refusal = w.HTML("")
         self.refusal.add_class("pr-refusal")
@@ -486,8 +489,8 @@ class ClinicApp:
         self.program_section = self._section("3. Program", "pr-section-program", [
             w.HBox([self.start_level, self.weeks]),
             w.HBox(list(self.sessions.values())),
-            w.HBox([self.exercise_select, self.replacement_select, self.swap_button, self.exclude_button]),
-            self.refusal, self.dose, self.chart_box, self.week_table])
+            swap.widget, self.refusal, self.program_view.widget, self.dose, self.chart_box,
+            w.HTML("<h3>Week by week</h3>"), self.week_table])
 
     def _build_handout_section(self) -> None:
         self.audience = w.Dropdown(options=[("for the person and the clinician", "both"),
@@ -581,9 +584,13 @@ class ClinicApp:
 
     @guarded("Swapping the exercise")
     def on_swap(self) -> None:
-        if not self.exercise_select.value or not self.replacement_select.value:
-            raise InputError.single("swap", None, "an exercise and a replacement chosen from the lists")
-        self.session.swap(self.exercise_select.value, self.replacement_select.value)
+        """Ask for confirmation, saying what will change (a refused swap is said at once)."""
+        self.program_view.swap.ask()
+        self.refresh(store=False)
+
+    @guarded("Swapping the exercise")
+    def on_confirm_swap(self) -> None:
+        self.program_view.swap.confirm()
         self.refresh(store=False)
 
     @guarded("Leaving the exercise out")
@@ -637,9 +644,9 @@ class ClinicApp:
         for box in self.caution_boxes:
             box.value = cautions
         if s.refusal:
-            self.refusal.value = f'<div class="pr-refusal-box" role="alert">{_esc(s.refusal)}</div>'
+            self.refusal.value = f'<div class="pr-refusal-box" role="alert">{_esc(plain(s.refusal))}</div>'
         elif s.program_note:
-            self.refusal.value = f'<div class="pr-notice-box" role="status">{_esc(s.program_note)}</div>'
+            self.refusal.value = f'<div class="pr-notice-box" role="status">{_esc(plain(s.program_note))}</div>'
         else:
             self.refusal.value = ""
         self._syncing = True
@@ -649,18 +656,15 @@ class ClinicApp:
             self.weeks.value = str(s.options.get("weeks", len(s.plan.weeks) if s.plan else ""))
             for kind, dd in self.sessions.items():
                 dd.value = s.options.get(f"{kind}_sessions_per_week", AUTO)
-            exercises = s.plan_exercises()
-            keep = self.exercise_select.value
-            self.exercise_select.options = [(f"{n} ({i})", i) for i, n in exercises]
-            ids = [i for i, _ in exercises]
-            self.exercise_select.value = keep if keep in ids else (ids[0] if ids else None)
+            self.program_view.swap.refresh_exercises()
         finally:
             self._syncing = False
         self._refresh_swap_candidates()
+        self.program_view.refresh()
         figures = s.dose_figures()
         self.dose.value = ("<p>" + " &middot; ".join(f"{_esc(k.replace('_', ' '))}: <b>{_esc(v)}</b>"
                                                      for k, v in figures.items()) + "</p>") if figures else ""
-        self.week_table.value = table_html(s.week_rows(), css="pr-weeks")
+        self.week_table.value = progression_html(s.plan)
         self.explain_view.refresh()
         if s.plan is None:
             self.preview.value = ""
@@ -670,13 +674,7 @@ class ClinicApp:
         self.live.refresh()
 
     def _refresh_swap_candidates(self) -> None:
-        try:
-            current = self.exercise_select.value
-            options = [(f"{n} ({i})", i) for i, n in self.session.swap_candidates(current)] if current else []
-            self.replacement_select.options = options
-            self.replacement_select.value = options[0][1] if options else None
-        except EngineMissing:
-            self.replacement_select.options = []
+        self.program_view.swap.refresh_candidates()
 
     def _refresh_store(self) -> None:
         try:
