@@ -12,6 +12,7 @@ STAMP  := $(VENV)/.installed-stamp
 SENSORS_STAMP := $(VENV)/.sensors-stamp
 PORT   ?= 8866
 DEMO_DB ?= $(CURDIR)/var/demo.db
+DEMO_SETTINGS ?= $(CURDIR)/var/demo-settings.toml
 PIP    := $(BIN)/python -m pip --disable-pip-version-check -q
 
 PROXY_DIR := deploy/proxy
@@ -94,10 +95,11 @@ hub: install hub-deps
 seed: install
 	@mkdir -p $(dir $(DEMO_DB))
 	PRESCRIBE_DB=$(DEMO_DB) $(BIN)/prescribe db init
-	PRESCRIBE_DB=$(DEMO_DB) $(BIN)/python -m prescribe.demo
+	PRESCRIBE_DB=$(DEMO_DB) $(BIN)/python -m prescribe.demo --settings $(DEMO_SETTINGS)
 
+# The demo runs with the invented clinic's settings (name and phone on every handout).
 app: seed
-	PRESCRIBE_DB=$(DEMO_DB) $(BIN)/prescribe app --port $(PORT)
+	PRESCRIBE_DB=$(DEMO_DB) PRESCRIBE_SETTINGS=$(DEMO_SETTINGS) $(BIN)/prescribe app --port $(PORT)
 
 test: install install-sensors system-deps pg-deps hub-deps
 	$(BIN)/python -m pytest

@@ -1,7 +1,8 @@
 """Seed a store with an invented clinic's invented people, for the demo app.
 
 ``python -m prescribe.demo`` (run by ``make app`` after ``prescribe db init``, with
-``PRESCRIBE_DB`` set) saves each person in :data:`DEMO_RECORDS`, screens them and,
+``PRESCRIBE_DB`` set, and ``--settings FILE`` so that the app's handouts carry the
+invented clinic's name and phone) saves each person in :data:`DEMO_RECORDS`, screens them and,
 when the planner is installed, saves a first program version for each by
 :data:`DEMO_CLINICIAN`.  Running it again adds nothing twice: people already in the
 store are left as they are (a person with no program yet gets one once the
@@ -149,11 +150,17 @@ def main(argv: list[str] | None = None) -> int:
     parser = argparse.ArgumentParser(prog="python -m prescribe.demo",
                                      description="Seed the store with an invented clinic's invented people.")
     parser.add_argument("--db", help="the store (default: $PRESCRIBE_DB, else the default location)")
+    parser.add_argument("--settings", metavar="FILE",
+                        help="also write the invented clinic's name and contact to this settings file "
+                             "(make app does, so the demo handouts show them)")
     args = parser.parse_args(argv)
     from .cli.output import emit_json
     from .store import open_store
 
     try:
+        if args.settings:
+            from .settings import save_clinic
+            save_clinic(DEMO_CLINIC.name, DEMO_CLINIC.contact, args.settings)
         with open_store(args.db) as store:
             people = seed(store)
             where = store.where

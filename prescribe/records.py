@@ -157,8 +157,9 @@ class PatientRecord(_Strict):
     glucocorticoids: Glucocorticoids | None = Field(None, description="Oral glucocorticoids, prednisolone equivalent.")
     conditions: list[ConditionCode] = Field(default_factory=list,
                                             description="Condition codes from the documented vocabulary.")
-    pain_score: int = Field(0, ge=0, le=10, description="Current pain, 0 (none) to 10 (worst imaginable).",
-                            json_schema_extra=_meta("0-10", (0, 10), "Current pain"))
+    pain_score: int = Field(0, ge=0, le=10, description="Current pain at intake, the person's baseline: 0 (none) "
+                            "to 10 (worst imaginable). Pain during or after a session is logged with the session.",
+                            json_schema_extra=_meta("0-10", (0, 10), "Baseline pain (at intake)"))
 
     @field_validator("conditions")
     @classmethod

@@ -5,9 +5,11 @@ variable ``PRESCRIBE_DB`` (a path or a database URL), then the default
 ``~/.local/share/prescribe/prescribe.db`` (``$XDG_DATA_HOME/prescribe/prescribe.db``).
 
 The clinic shown on handouts comes from ``PRESCRIBE_CLINIC_NAME`` and
-``PRESCRIBE_CLINIC_CONTACT``, or a TOML file named by ``PRESCRIBE_SETTINGS`` with a
-``[clinic]`` table (``name``, ``contact``).  Without either, handouts say the clinic
-is not set.
+``PRESCRIBE_CLINIC_CONTACT``, or a TOML file with a ``[clinic]`` table (``name``,
+``contact``): the file named by ``PRESCRIBE_SETTINGS``, else the default
+``~/.config/prescribe/settings.toml`` (``$XDG_CONFIG_HOME/prescribe/settings.toml``).
+Without either, handouts say the clinic is not set, and the app asks for the name and
+contact once (:func:`save_clinic` writes them to that same file).
 
 Who is working, and in which role (see docs/deploy.md):
 
@@ -62,10 +64,66 @@ class Clinic:
     contact: str = ""
 
 
+def settings_path() -> Path:
+    """The clinic settings file: ``PRESCRIBE_SETTINGS``, else the default under the user's config folder."""
+    explicit = os.environ.get("PRESCRIBE_SETTINGS")
+    if explicit:
+        return Path(explicit).expanduser()
+    base = os.environ.get("XDG_CONFIG_HOME") or str(Path.home() / ".config")
+    return Path(base) / "prescribe" / "settings.toml"
+
+
+def clinic_is_set() -> bool:
+    """True once the clinic has a name (from the environment or the settings file)."""
+    return clinic().name != Clinic.name
+
+
+#: Longest clinic name and contact line accepted (they are printed on every handout page).
+MAX_CLINIC_NAME_LEN = 120
+MAX_CLINIC_CONTACT_LEN = 200
+
+
+def save_clinic(name: str, contact: str, path: str | os.PathLike | None = None) -> Path:
+    """Write the clinic's name and contact to the settings file (other tables in it are kept).
+
+    Both are required: the handout tells the person to call the clinic.  Raises
+    :class:`InputError` naming the field, the value and what is allowed.
+    """
+    name, contact = (name or "").strip(), (contact or "").strip()
+    if not 2 <= len(name) <= MAX_CLINIC_NAME_LEN:
+        raise InputError.single("clinic name", name, f"the clinic's name, 2 to {MAX_CLINIC_NAME_LEN} characters")
+    if not 3 <= len(contact) <= MAX_CLINIC_CONTACT_LEN or not any(ch.isdigit() for ch in contact):
+        raise InputError.single("clinic contact", contact, "a phone number the person can call (with any e-mail "
+                                f"or address after it), 3 to {MAX_CLINIC_CONTACT_LEN} characters")
+    target = Path(path) if path is not None else settings_path()
+    lines: list[str] = []
+    if target.exists():
+        try:
+            text = target.read_text(encoding="utf-8")
+            tomllib.loads(text)
+        except (OSError, tomllib.TOMLDecodeError) as exc:
+            raise InputError.single("PRESCRIBE_SETTINGS", str(target), f"a readable TOML settings file ({exc})") from None
+        # Keep every other table as written; drop the old [clinic] table.
+        skip = False
+        for line in text.splitlines():
+            stripped = line.strip()
+            if stripped.startswith("[") and stripped.endswith("]"):
+                skip = stripped == "[clinic]"
+            if not skip:
+                lines.append(line)
+    def q(value: str) -> str:
+        return '"' + value.replace("\\", "\\\\").replace('"', '\\"') + '"'
+    body = "\n".join(lines).rstrip()
+    block = f"[clinic]\nname = {q(name)}\ncontact = {q(contact)}\n"
+    target.parent.mkdir(parents=True, exist_ok=True)
+    target.write_text((body + "\n\n" if body else "") + block, encoding="utf-8")
+    return target
+
+
 def clinic() -> Clinic:
     name = os.environ.get("PRESCRIBE_CLINIC_NAME")
     contact = os.environ.get("PRESCRIBE_CLINIC_CONTACT")
-    path = os.environ.get("PRESCRIBE_SETTINGS")
+    path = os.environ.get("PRESCRIBE_SETTINGS") or (str(settings_path()) if settings_path().exists() else None)
     if path:
         try:
             data = tomllib.loads(Path(path).read_text(encoding="utf-8"))

@@ -302,7 +302,7 @@ class ClinicSession:
                 self._store = _api("store", "open_store")(self.store_url)
         return self._store
 
-    def save(self, clinician: str | None = None) -> int | None:
+    def save(self, clinician: str | None = None, note: str = "") -> int | None:
         """Save the person (with their screening) and, if built, the program as a new version.
 
         Returns the program's new version number (None when there is no program).  A save
@@ -329,7 +329,7 @@ class ClinicSession:
             return None
         try:
             version = self.store.save_program(self.record.patient_id, self.plan.model_dump(mode="json"), who,
-                                              self.saved_version)
+                                              self.saved_version, note=note)
         except ConflictError as exc:
             self.notice = f"Not saved: {exc}. This program stays open here."
             return None

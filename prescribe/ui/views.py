@@ -23,9 +23,11 @@ from ..cautions import STANDARD_CAUTIONS
 from ..errors import InputError, PrescribeError
 from ..records import SEVERITIES
 from . import form_spec
+from .cautions_view import section_cautions
 from .explain_view import ExplainView
+from .history_view import history_html
 from .program_view import ProgramView, progression_html
-from .wording import plain
+from .wording import field_words, plain
 from .session import IMPACT_LABELS, ClinicSession, EngineMissing
 
 log = logging.getLogger("prescribe.ui")
@@ -47,6 +49,8 @@ STYLE = """
 .pr-cautions { background: #fff8e6; border-left: 4px solid #b35c00; padding: 2px 10px; margin: 6px 0;
                font-size: 12px; line-height: 1.35; }
 .pr-cautions ul { margin: 2px 0; padding-left: 18px; }
+.pr-cautions-always { position: sticky; top: 0; z-index: 20; }
+.pr-cautions-always .pr-cautions { margin: 0 0 6px 0; box-shadow: 0 2px 4px rgba(0,0,0,0.12); }
 .pr-error-box { background: #fde8e8; border: 1px solid #a4161a; padding: 6px 10px; }
 .pr-refusal-box { background: #fde8e8; border-left: 4px solid #a4161a; padding: 4px 10px; }
 .pr-notice-box { background: #e8f1fb; border-left: 4px solid #1f3b57; padding: 4px 10px; }
@@ -64,15 +68,17 @@ def _esc(value: Any) -> str:
 
 
 def cautions_box(extra: list[str] | None = None) -> w.HTML:
-    """The standard cautions (and ``extra`` ones) as a box; every section has one."""
+    """The standard cautions (or ``extra`` ones) as a box: the one always-visible box of the page."""
     items = list(extra) if extra else list(STANDARD_CAUTIONS)
     box = w.HTML(_cautions_html(items))
     box.add_class("pr-cautions-box")
     return box
 
 
-def _cautions_html(items: list[str]) -> str:
-    return ('<div class="pr-cautions"><b>Cautions</b><ul>' +
+def _cautions_html(items: list[str], title: str = "Cautions") -> str:
+    if not items:
+        return ""
+    return (f'<div class="pr-cautions"><b>{_esc(title)}</b><ul>' +
             "".join(f"<li>{_esc(c)}</li>" for c in items) + "</ul></div>")
 
 
@@ -186,8 +192,10 @@ class IntakeForm:
         self.conditions: dict[str, w.Checkbox] = {}
         cond_boxes = []
         for code, meaning in form_spec.condition_choices():
-            box = self.kit.make(w.Checkbox, "260px", value=False, description=code.replace("_", " "),
-                                indent=False, tooltip=meaning)
+            # The meaning on hover over the words themselves (the label's own title is the words otherwise).
+            box = self.kit.make(w.Checkbox, "260px", value=False, indent=False, tooltip=meaning,
+                                description=f'<span title="{_esc(meaning)}">{_esc(code.replace("_", " "))}</span>',
+                                description_allow_html=True)
             box.add_class(f"pr-intake-condition-{code}")
             self.conditions[code] = box
             cond_boxes.append(box)
@@ -199,8 +207,10 @@ class IntakeForm:
         self.add_fracture_button.on_click(lambda _b: self.add_fracture())
         self.messages["fractures"] = self._msg("fractures")
         self.widget = w.VBox([
-            w.HTML("<p>Every box is checked against the record's limits when you press "
-                   "<b>Check and screen</b>. Numbers are typed, never clipped. * = required.</p>"),
+            w.HTML("<p><b>The person's baseline at this first visit.</b> These details are the record the "
+                   "screening reads; today's pain, effort and symptoms during a session go in the live-session "
+                   "panel (section 6), never here. Every box is checked against the record's limits when you "
+                   "press <b>Check and screen</b>. Numbers are typed, never clipped. * = required.</p>"),
             *rows,
             w.HTML(f"<b>Fractures</b> <small>({_esc(form_spec.fracture_fields()[0].help)} Sites: "
                    + _esc(", ".join(s for s, _ in form_spec.fracture_sites())) + ")</small>"),
@@ -274,9 +284,9 @@ class IntakeForm:
             shown.setdefault(key, []).append(message)
         for key, msgs in shown.items():
             if key in self.messages:
-                self.messages[key].value = "<br>".join(_esc(m) for m in msgs)
+                self.messages[key].value = "<br>".join(_esc(field_words(m)) for m in msgs)
             elif msgs:
-                self.errors.show(" ".join(msgs))
+                self.errors.show(" ".join(field_words(m) for m in msgs))
 
     def fill(self, record: dict) -> None:
         """Show a saved record in the boxes."""
@@ -344,6 +354,7 @@ class ClinicApp:
         self.charts = None
         self.lock = threading.RLock()
         self.caution_boxes: list[w.HTML] = []
+        self.section_caution_boxes: dict[str, w.HTML] = {}
         self.errors = ErrorArea()
         self._syncing = False
         self.intake = IntakeForm(self.errors)
@@ -363,7 +374,11 @@ class ClinicApp:
                        "handout, save.</p>")
         from .template_review import TemplateReview
         self.template_review = TemplateReview(self)
-        self.widget = w.VBox([w.HTML(STYLE), title, self.errors.widget, cautions_box(),
+        from .clinic_view import ClinicSettingsForm  # asks for the clinic's name and phone once
+        self.clinic_settings = ClinicSettingsForm()
+        self.top_cautions = cautions_box()  # the one always-visible box; sections add their own
+        self.top_cautions.add_class("pr-cautions-always")
+        self.widget = w.VBox([w.HTML(STYLE), title, self.errors.widget, self.top_cautions, self.clinic_settings.widget,
                               self.person_section, self.screening_section, self.program_section,
                               self.handout_section, self.store_section, self.live.widget,
                               self.sensor_panel.widget, self.template_review.widget])
@@ -416,8 +431,11 @@ class ClinicApp:
 
     # -- building ------------------------------------------------------------------
     def _section(self, title: str, css: str, children: list) -> w.VBox:
-        cautions = cautions_box()
+        cautions = w.HTML("")  # this section's own cautions (cautions_view.py); the standard ones stay on top
+        cautions.add_class("pr-cautions-box")
+        cautions.add_class("pr-section-cautions")
         self.caution_boxes.append(cautions)
+        self.section_caution_boxes[css] = cautions
         box = w.VBox([w.HTML(f"<h2>{_esc(title)}</h2>"), *children, cautions])
         box.add_class(css)
         return box
@@ -440,7 +458,7 @@ class ClinicApp:
         self.load_button.on_click(lambda _b: self.on_load())
         self.intake_status = w.HTML("")
         self.intake_status.add_class("pr-intake-status")
-        self.person_section = self._section("1. Person", "pr-section-person", [
+        self.person_section = self._section("1. Person: baseline at intake", "pr-section-person", [
             w.HBox([self.load_select, self.load_button, self.new_button]),
             self.intake.widget, w.HBox([self.submit_button, self.intake_status])])
 
@@ -522,6 +540,10 @@ class ClinicApp:
         self.clinician.add_class("pr-store-clinician")
         if login is not None:
             self.clinician.add_class("pr-store-clinician-login")
+        self.save_note = w.Text(value="", description="Note", placeholder="why this version (optional)",
+                                layout=w.Layout(width="420px"),
+                                tooltip="kept with the program version in the history below")
+        self.save_note.add_class("pr-store-note")
         self.save_button = self._button("Save person and program", "pr-store-save", "success")
         self.save_button.on_click(lambda _b: self.on_save())
         self.store_status = w.HTML("")
@@ -529,7 +551,7 @@ class ClinicApp:
         self.history = w.HTML("")
         self.history.add_class("pr-store-history")
         self.store_section = self._section("5. Save and history", "pr-section-store", [
-            w.HBox([self.clinician, self.save_button]), self.store_status,
+            w.HBox([self.clinician, self.save_note, self.save_button]), self.store_status,
             w.HTML("<b>Program versions</b>"), self.history])
 
     # -- callbacks -------------------------------------------------------------------
@@ -620,7 +642,9 @@ class ClinicApp:
 
     @guarded("Saving")
     def on_save(self) -> None:
-        version = self.session.save(self.clinician.value.strip())
+        version = self.session.save(self.clinician.value.strip(), note=self.save_note.value.strip())
+        if version is not None:
+            self.save_note.value = ""  # saved with that version; a new note goes with the next
         pid = self.session.record.patient_id
         if self.session.notice:
             self.store_status.value = f'<div class="pr-notice-box">{_esc(self.session.notice)}</div>'
@@ -640,9 +664,9 @@ class ClinicApp:
         if s.plan is not None or self.charts is not None:  # the charts first: what the clinician watches
             self._ensure_charts().update(s.chart_series())
         self.screening_view.value = screening_html(s.screening)
-        cautions = _cautions_html(s.cautions)  # the standard ones plus the screening's and the plan's
-        for box in self.caution_boxes:
-            box.value = cautions
+        for css, items in section_cautions(s).items():  # the standard ones are in the box on top
+            if css in self.section_caution_boxes:
+                self.section_caution_boxes[css].value = _cautions_html(items, "Cautions for this part")
         if s.refusal:
             self.refusal.value = f'<div class="pr-refusal-box" role="alert">{_esc(plain(s.refusal))}</div>'
         elif s.program_note:
@@ -691,7 +715,7 @@ class ClinicApp:
         self.load_select.options = [("- choose -", None)] + [(p, p) for p in people]
         if current in people:
             self.load_select.value = current
-        self.history.value = table_html(versions)
+        self.history.value = history_html(versions)
         try:
             self.template_review.refresh()
         except PrescribeError as exc:

@@ -17,7 +17,7 @@ from ..records import FIELD_META
 #: Field names the engines use in messages, in the clinician's words (the record's own labels are added).
 LABELS: dict[str, str] = {
     "start_level": "start level",
-    "max_impact_level": "highest impact level the screening allows",
+    "max_impact_level": "highest impact level allowed",
     "impacts_per_session": "impacts per session",
     "resistance_intensity_pct_1rm": "strength load (% 1RM)",
     "weekly_osteogenic_index": "weekly osteogenic index",
@@ -76,3 +76,29 @@ def plain(text: object) -> str:
         out = re.sub(rf"(?<![A-Za-z0-9_]){re.escape(ex_id)}(?![A-Za-z0-9_])", names[ex_id], out)
     out = re.sub(r"'([^']+)'", lambda m: m.group(1) if m.group(1) in names.values() else m.group(0), out)
     return _SNAKE.sub(lambda m: label(m.group(0)), out)
+
+
+_PATH = re.compile(r"\b([a-z][a-z0-9_]*)((?:\[\d+\])?(?:\.[a-z][a-z0-9_]*)*)")
+
+
+def field_words(text: object) -> str:
+    """A record message with its field paths as the form's labels.
+
+    "age_years must be ... not 12." -> "Age must be ... not 12.";
+    "fractures[0].months_ago ..." -> "Fractures (row 1) - months ago ...";
+    "t_scores.femoral_neck ..." -> "T scores - femoral neck ...".  The value and the
+    allowed range are kept word for word.
+    """
+    def one(m: re.Match) -> str:
+        head, tail = m.group(1), m.group(2)
+        if head not in FIELD_META:
+            return m.group(0)
+        out = str(FIELD_META[head]["label"])
+        row = re.match(r"\[(\d+)\]", tail)
+        if row:
+            out += f" (row {int(row.group(1)) + 1})"
+            tail = tail[row.end():]
+        for part in [p for p in tail.split(".") if p]:
+            out += " - " + part.replace("_", " ")
+        return out
+    return _PATH.sub(one, str(text))

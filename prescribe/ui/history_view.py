@@ -1,0 +1,31 @@
+"""The program versions of the open person, in the clinician's words (no widgets).
+
+Columns have plain headings, times are a readable local date and time (never a raw ISO
+timestamp), and the note written with each save is shown beside its version.
+"""
+
+from __future__ import annotations
+
+import html
+
+from .program_model import level_words, readable_time
+
+
+def _esc(value) -> str:
+    return html.escape("" if value is None else str(value), quote=True)
+
+
+def history_html(rows: list[dict]) -> str:
+    """The versions table (oldest first), or a line saying there is none yet."""
+    if not rows:
+        return "<p><i>No saved version yet.</i></p>"
+    head = ("<tr><th>Version</th><th>Made from version</th><th>Saved by</th><th>Saved on</th><th>Weeks</th>"
+            "<th>Highest impact level</th><th>Note</th></tr>")
+    body = "".join(
+        "<tr>"
+        f"<td>{_esc(r.get('version'))}</td><td>{_esc(r.get('based_on_version') or '')}</td>"
+        f"<td>{_esc(r.get('clinician'))}</td><td>{_esc(readable_time(r.get('saved')))}</td>"
+        f"<td>{_esc(r.get('weeks') or '')}</td>"
+        f"<td>{_esc(level_words(r['max_impact_level']) if r.get('max_impact_level') is not None else '')}</td>"
+        f"<td>{_esc(r.get('note') or '')}</td></tr>" for r in rows)
+    return f'<table class="pr-table pr-history"><thead>{head}</thead><tbody>{body}</tbody></table>'
