@@ -56,8 +56,10 @@ def test_program_table_and_charts_follow_the_plan(app):
     assert list(app.charts.level_line.y) == [w.impact_level for w in plan.weeks]
     assert list(app.charts.impact_bars.y) == [w.impacts_per_session for w in plan.weeks]
     weak = [bool((w.model_extra or {}).get("weak_window")) for w in plan.weeks]
-    assert [bool(v) for v in app.charts.shade2.y] == weak
-    assert app.week_table.value.count("<tr>") == len(plan.weeks) + 1
+    # The shading outline is two points a week (its start and end), 1 over weak weeks.
+    assert [bool(v) for v in app.charts.shade2.y[::2]] == weak
+    assert [bool(v) for v in app.charts.shade2.y[1::2]] == weak
+    assert app.week_table.value.count("<tr") == len(plan.weeks) + 1
     assert f"weeks: <b>{len(plan.weeks)}</b>" in app.dose.value
 
 
@@ -101,7 +103,9 @@ def test_swap_and_leave_out_an_exercise(app):
     swappable = next(i for i in ids if app.session.swap_candidates(i))
     app.exercise_select.value = swappable
     replacement = app.replacement_select.options[0][1]
-    app.swap_button.click()
+    app.swap_button.click()  # asks first; nothing changes until confirmed
+    assert swappable in [i for i, _ in app.session.plan_exercises()]
+    app.program_view.swap.confirm_button.click()
     assert app.errors.last == "" and app.session.refusal is None, app.session.refusal
     now = [i for i, _ in app.session.plan_exercises()]
     assert swappable not in now and replacement in now
@@ -188,14 +192,20 @@ def test_a_change_made_while_the_background_loading_redraws_is_not_lost(tmp_db):
     assert app.charts.level_line.y[0] == 0
 
 
-def test_the_screenings_and_plans_own_cautions_join_the_standard_ones_in_every_section(app):
+def test_one_box_keeps_the_standard_cautions_and_each_section_shows_its_own(app):
     from prescribe.cautions import STANDARD_CAUTIONS
-    extra = [c for c in app.session.screening.cautions + app.session.plan.cautions if c not in STANDARD_CAUTIONS]
-    assert extra  # the invented person's osteoporosis brings cautions of its own
-    for box in app.caution_boxes:
-        text = html.unescape(box.value)
-        for caution in extra:
-            assert caution in text
+    top = html.unescape(app.top_cautions.value)
+    assert all(c in top for c in STANDARD_CAUTIONS) and "pr-cautions-always" in app.top_cautions._dom_classes
+    screening_own = [c for c in app.session.screening.cautions if c not in STANDARD_CAUTIONS]
+    plan_own = [c for c in app.session.plan.cautions if c not in STANDARD_CAUTIONS and c not in screening_own]
+    assert screening_own and plan_own  # the invented person's osteoporosis brings cautions of its own
+    boxes = {css: html.unescape(box.value) for css, box in app.section_caution_boxes.items()}
+    assert all(c in boxes["pr-section-screening"] for c in screening_own)
+    assert all(c in boxes["pr-section-program"] for c in plan_own)
+    # Every caution of the screening and the plan is on the page; none of the standard ones is repeated.
+    everything = " ".join(boxes.values())
+    assert all(c in everything or c in top for c in app.session.cautions)
+    assert not any(c in text for c in STANDARD_CAUTIONS for text in boxes.values())
 
 
 def test_a_reopened_program_keeps_its_options_and_swaps_when_changed(app, tmp_db):
@@ -207,6 +217,7 @@ def test_a_reopened_program_keeps_its_options_and_swaps_when_changed(app, tmp_db
     app.exercise_select.value = swappable
     replacement = app.replacement_select.options[0][1]
     app.swap_button.click()
+    app.program_view.swap.confirm_button.click()
     assert app.session.refusal is None, app.session.refusal
     app.clinician.value = "AB"
     app.save_button.click()

@@ -83,22 +83,27 @@ def fill(app, **values):
         app.intake.inputs[key.replace("__", ".")].value = value
 
 
-def test_every_section_shows_the_cautions(app):
+def test_the_standard_cautions_are_in_one_always_visible_box_and_every_section_has_its_own(app):
+    # One box, kept on screen while the page scrolls (sticky), holds the standard cautions...
+    boxes = [c for c in app.widget.children if "pr-cautions-box" in getattr(c, "_dom_classes", ())]
+    assert len(boxes) == 1 and "pr-cautions-always" in boxes[0]._dom_classes
+    for caution in STANDARD_CAUTIONS:
+        assert caution.split(":")[0] in boxes[0].value
+    assert ".pr-cautions-always { position: sticky" in app.widget.children[0].value
+    # ...and every section keeps a place for its own.
     sections = [app.person_section, app.screening_section, app.program_section, app.handout_section,
                 app.store_section]
     for section in sections:
-        boxes = [c for c in section.children if "pr-cautions-box" in c._dom_classes]
-        assert boxes, section._dom_classes
-        for caution in STANDARD_CAUTIONS:
-            assert caution.split(":")[0] in boxes[0].value
+        own = [c for c in section.children if "pr-section-cautions" in c._dom_classes]
+        assert len(own) == 1, section._dom_classes
 
 
 def test_bad_input_puts_each_message_beside_its_field_and_changes_nothing(app):
     fill(app, patient_id="DEMO-BAD", age_years="12", sex="female", body_mass_kg="61")
     assert app.on_submit() is False
-    assert app.intake.messages["age_years"].value == \
-        "age_years must be a whole number from 18 to 110 (years), not 12."
-    assert "height_cm is required: a number from 100 to 230 (cm)." in app.intake.messages["height_cm"].value
+    # The record's own message, with the field named by its label (the value and the range word for word).
+    assert app.intake.messages["age_years"].value == "Age must be a whole number from 18 to 110 (years), not 12."
+    assert "Height is required: a number from 100 to 230 (cm)." in app.intake.messages["height_cm"].value
     assert app.intake.messages["body_mass_kg"].value == ""
     assert app.session.record is None and app.session.screening is None
     assert "2 fields to correct" in app.intake_status.value
@@ -115,9 +120,9 @@ def test_nested_and_list_fields_report_beside_their_boxes(app):
     fill(app, glucocorticoids__mg_per_day="5")
     app.intake.add_fracture("hip", "-3", True)
     assert app.on_submit() is False
-    assert "t_scores.femoral_neck must be a number from -7 to 5" in app.intake.messages["t_scores.femoral_neck"].value
-    assert "glucocorticoids.months is required" in app.intake.messages["glucocorticoids.months"].value
-    assert "fractures[0].months_ago must be a number from 0 to 1200" in app.intake.messages["fractures"].value
+    assert "T scores - femoral neck must be a number from -7 to 5" in app.intake.messages["t_scores.femoral_neck"].value
+    assert "Glucocorticoids - months is required" in app.intake.messages["glucocorticoids.months"].value
+    assert "Fractures (row 1) - months ago must be a number from 0 to 1200" in app.intake.messages["fractures"].value
 
 
 def test_a_failing_callback_shows_a_readable_message_instead_of_vanishing(app, monkeypatch):
