@@ -390,7 +390,27 @@ class ClinicApp:
     def from_environment(cls) -> "ClinicApp":
         """The app over the store named by ``PRESCRIBE_DB`` (see prescribe.settings)."""
         from ..settings import db_url
-        return cls(ClinicSession(store_url=db_url()), warm_up=True)
+        app = cls(ClinicSession(store_url=db_url()), warm_up=True)
+        app.follow_page_request()
+        return app
+
+    def follow_page_request(self) -> None:
+        """In a preheated kernel, re-read what may have changed once a page takes it.
+
+        ``prescribe app`` keeps kernels preheated (prescribe.ui.server): the app is built
+        before anyone opens the page, so the list of saved people could be minutes old when a
+        clinician arrives.  A background thread waits for the page's request (Voila's
+        ``wait_for_request``) and then refreshes the page from the store.
+        """
+        if os.environ.get("VOILA_PREHEAT") != "True":
+            return
+
+        def wait_then_refresh() -> None:
+            from voila.utils import wait_for_request
+            wait_for_request()
+            self.refresh()
+
+        threading.Thread(target=wait_then_refresh, name="prescribe-page-request", daemon=True).start()
 
     @guarded("Preparing the app")
     def warm_up(self) -> None:
