@@ -316,10 +316,10 @@ def intensity_chart(plan) -> Chart:
     frame.week_axis()
     frame.step_marks()
     return frame.chart(
-        ("Left: % of one-repetition maximum (1RM).", WEEK_SCALE),
+        ("Left: weight, as a % of the most you could lift once.", WEEK_SCALE),
         [(swatch(f'<line x1="0" y1="7" x2="26" y2="7" stroke="{INK}" stroke-width="3"/>'
                  f'<circle cx="13" cy="7" r="4" fill="#ffffff" stroke="{INK}" stroke-width="2"/>'),
-          "line with circles: load (% 1RM)"),
+          "line with circles: how heavy"),
          *frame.weak_legend()])
 
 
