@@ -20,6 +20,8 @@ def register(sub) -> None:
     p.add_argument("--paper", default="a4", metavar="a4|letter", help="paper size (default a4)")
     p.add_argument("--audience", default="both", metavar="person|clinician|both",
                    help="which pages to print (default both)")
+    p.add_argument("--large-print", action="store_true",
+                   help="the large-print edition of the person's pages (body text 15 pt, larger headings)")
     p.set_defaults(func=run)
 
 
@@ -30,10 +32,10 @@ def run(args) -> int:
     check_out_path(args.out)  # refuse a bad --out before reading the plan
     check_options(args.audience, args.paper, ("--audience", "--paper"))
     plan = parse_plan(read_json_file(args.plan, "PLAN.json"), source=args.plan)
-    out = write_handout(plan, args.out, audience=args.audience, paper=args.paper)
+    out = write_handout(plan, args.out, audience=args.audience, paper=args.paper, large_print=args.large_print)
     emit_json({
         "out": str(out), "format": out.suffix.lower().lstrip("."), "bytes": out.stat().st_size,
         "patient_id": plan.patient_id, "audience": args.audience, "paper": args.paper,
-        "weeks": len(plan.weeks), "cautions": list(STANDARD_CAUTIONS),
+        "weeks": len(plan.weeks), "large_print": args.large_print, "cautions": list(STANDARD_CAUTIONS),
     })
     return 0

@@ -65,7 +65,7 @@ def _environment() -> Environment:
     return env
 
 
-def handout_context(plan: Plan, audience: str, paper: str, clinic: Clinic) -> dict:
+def handout_context(plan: Plan, audience: str, paper: str, clinic: Clinic, large_print: bool = False) -> dict:
     """Everything the template shows, worked out from the plan.
 
     What only the person's pages show (charts, tables, guides) or only the clinician's
@@ -76,6 +76,7 @@ def handout_context(plan: Plan, audience: str, paper: str, clinic: Clinic) -> di
     person, clinician = audience in ("person", "both"), audience in ("clinician", "both")
     return {
         "plan": plan, "audience": audience, "paper": paper, "page_size": PAPERS[paper],
+        "large_print": bool(large_print),
         "person": person, "clinician": clinician,
         "clinic": clinic, "short_caution": SHORT_CAUTION, "cautions": content.all_cautions(plan),
         "glance": content.at_a_glance(plan, facts),
@@ -99,21 +100,23 @@ def handout_context(plan: Plan, audience: str, paper: str, clinic: Clinic) -> di
 
 
 def render_html(plan: Plan | dict, audience: str = "both", paper: str = "a4",
-                clinic: Clinic | None = None) -> str:
+                clinic: Clinic | None = None, large_print: bool = False) -> str:
     """The handout as one self-contained HTML page (print CSS and inline SVG charts).
 
     ``audience`` is person, clinician or both; ``paper`` is a4 or letter.  The
     clinic's name and contact come from :func:`prescribe.settings.clinic` unless given.
+    ``large_print`` sets the person's pages in the large-print edition (body text 15 pt,
+    headings larger, the same content reflowed); the clinician's pages stay as they are.
     """
     check_options(audience, paper)
     plan = as_plan(plan)
     clinic = clinic if clinic is not None else clinic_from_settings()
     return _environment().get_template("handout.html.j2").render(
-        **handout_context(plan, audience, paper, clinic))
+        **handout_context(plan, audience, paper, clinic, large_print))
 
 
 def render_pdf(plan: Plan | dict, audience: str = "both", paper: str = "a4",
-               clinic: Clinic | None = None, parallel: bool | None = None) -> bytes:
+               clinic: Clinic | None = None, parallel: bool | None = None, large_print: bool = False) -> bytes:
     """The handout as PDF bytes (WeasyPrint), with page numbers and the short caution on every page.
 
     For both audiences the person's pages and the clinician's pages are two documents,
@@ -124,12 +127,12 @@ def render_pdf(plan: Plan | dict, audience: str = "both", paper: str = "a4",
     plan = as_plan(plan)
     clinic = clinic if clinic is not None else clinic_from_settings()
     audiences = ("person", "clinician") if audience == "both" else (audience,)
-    htmls = [render_html(plan, audience=a, paper=paper, clinic=clinic) for a in audiences]
+    htmls = [render_html(plan, audience=a, paper=paper, clinic=clinic, large_print=large_print) for a in audiences]
     return pdf.join_pdfs(pdf.render_parts(htmls, base_url=str(TEMPLATES), parallel=parallel))
 
 
 def write_handout(plan: Plan | dict, out_path: str | os.PathLike, audience: str = "both",
-                  paper: str = "a4", clinic: Clinic | None = None) -> Path:
+                  paper: str = "a4", clinic: Clinic | None = None, large_print: bool = False) -> Path:
     """Write the handout as HTML or PDF, chosen by the suffix of ``out_path``.
 
     The file is written to a temporary name first and then renamed, so an existing
@@ -139,9 +142,10 @@ def write_handout(plan: Plan | dict, out_path: str | os.PathLike, audience: str 
     suffix = out.suffix.lower()
     check_options(audience, paper, ("--audience", "--paper"))
     if suffix == ".pdf":
-        data = render_pdf(plan, audience=audience, paper=paper, clinic=clinic)
+        data = render_pdf(plan, audience=audience, paper=paper, clinic=clinic, large_print=large_print)
     else:
-        data = render_html(plan, audience=audience, paper=paper, clinic=clinic).encode("utf-8")
+        data = render_html(plan, audience=audience, paper=paper, clinic=clinic,
+                           large_print=large_print).encode("utf-8")
     directory = out.parent if str(out.parent) else Path(".")
     if not directory.is_dir():
         raise InputError.single("--out", str(out_path), "a file in an existing folder")
