@@ -12,6 +12,7 @@ from __future__ import annotations
 import datetime as dt
 import re
 from dataclasses import dataclass, field, replace
+from functools import lru_cache
 from typing import Any
 
 from ..cautions import with_standard
@@ -672,6 +673,9 @@ class ExerciseGuide:
     if_hard: str
     notes: tuple[str, ...]
     weeks: str
+    #: The start and end position drawn from the catalogue's pose data (SVG), or "" when
+    #: the catalogue has no pose for the exercise.
+    drawing: str = ""
 
 
 #: At most this many of the planner's notes are shown per exercise.
@@ -710,12 +714,14 @@ def exercise_guides(plan: Plan, lookup=None) -> list[ExerciseGuide]:
                 elif isinstance(reg_id, str):
                     if_hard = f"Do the easier version your clinician showed you ({reg_id.replace('_', ' ')})."
             category = ex.category.lower()
+            pose = _get(entry, "pose") if entry is not None else None
             seen[ex.exercise_id] = ExerciseGuide(
                 exercise_id=ex.exercise_id, name=ex.name, category=ex.category,
                 level=f"{ex.impact_level}: {LEVEL_LABELS.get(ex.impact_level, '')}",
                 how_to=how or f"As your clinician showed you. {ex.name}: {dose_text(ex)}.",
                 feel=feel or _FEEL_FALLBACK.get(category, _FEEL_DEFAULT),
-                if_hard=if_hard or _IF_HARD_FALLBACK, notes=(), weeks="")
+                if_hard=if_hard or _IF_HARD_FALLBACK, notes=(), weeks="",
+                drawing=_drawing(pose, short_name(ex.name)) if pose is not None else "")
     used: dict[str, list[int]] = {}
     for wk in plan.weeks:
         for ex in _exercises(wk):
@@ -723,6 +729,12 @@ def exercise_guides(plan: Plan, lookup=None) -> list[ExerciseGuide]:
                 used[ex.exercise_id].append(wk.week)
     return [ExerciseGuide(**{**g.__dict__, "notes": tuple(notes.get(i, ())[:MAX_NOTES]),
                              "weeks": week_spans(used[i])}) for i, g in seen.items()]
+
+
+@lru_cache(maxsize=256)
+def _drawing(pose, title: str) -> str:
+    from ..drawings import pose_svg
+    return pose_svg(pose, title)
 
 
 def week_spans(weeks: list[int]) -> str:
