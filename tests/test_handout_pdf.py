@@ -19,10 +19,11 @@ from prescribe.settings import Clinic
 DEMO_CLINIC = Clinic("Riverside Bone Health Clinic (demo)", "555-0100")
 
 #: Pages for both audiences: the person pages (cover, charts, routine and week-by-week
-#: tables, one guide per exercise, safety) and the clinician pages (flags, dose table,
-#: evidence, versions, sign-off).  Grouped weeks keep a year's plan about as long as
-#: two months' (13 pages for 8 weeks and 14 for 52 when this bound was set).
-PAGE_BOUNDS = {8: (6, 14), 26: (6, 15), 52: (6, 16)}
+#: tables, one guide per exercise with its drawing, safety) and the clinician pages
+#: (flags, dose table, evidence, versions, sign-off).  Grouped weeks keep a year's plan
+#: about as long as two months' (15 pages for 8 weeks and 16 for 26 when this bound was
+#: set, with every row of the week tables naming its exercises and a drawing per guide).
+PAGE_BOUNDS = {8: (6, 17), 26: (6, 18), 52: (6, 19)}
 
 
 @lru_cache(maxsize=None)
