@@ -12,7 +12,7 @@ from __future__ import annotations
 
 from html import escape
 
-from .poses import HEAD_RADIUS, SURFACES, Pose, Posture, key_points, segments
+from .poses import HEAD_RADIUS, SURFACES, Pose, Posture, key_points
 
 #: SVG units per body height.
 UNIT = 100.0
@@ -20,10 +20,6 @@ PANEL_W = 140.0
 GAP = 26.0
 PAD = 6.0
 INK, FAR, PROP = "#000000", "#707070", "#5c5c5c"
-
-
-def _far(a: str, b: str) -> bool:
-    return a.endswith("_f") or b.endswith("_f")
 
 
 def _props(posture: Posture, pts: dict, to_svg) -> list[str]:
@@ -87,13 +83,22 @@ def _figure(posture: Posture, view: str, x_left: float, floor_y: float) -> tuple
     def to_svg(p):
         return p[0] * UNIT + shift, floor_y - p[1] * UNIT
 
+    def chain(names) -> str:
+        """One polyline through the key points: a path command a point, not two a segment."""
+        coords = [to_svg(pts[n]) for n in names]
+        return "M" + "L".join(f"{x:.1f},{y:.1f}" for x, y in coords)
+
     near, far = [], []
-    for a, b in segments(view):
-        if a == "neck" and b == "head":
-            continue
-        (x0, y0), (x1, y1) = to_svg(pts[a]), to_svg(pts[b])
+    for side in ("n", "f"):
+        leg_root = "hip" if view == "side" else f"hip_{side}"
+        arm_root = "neck" if view == "side" else f"shoulder_{side}"
         # Seen from the side, the far limbs are grey; seen from the front, both sides are black.
-        (far if view == "side" and _far(a, b) else near).append(f"M{x0:.1f},{y0:.1f}L{x1:.1f},{y1:.1f}")
+        limbs = far if view == "side" and side == "f" else near
+        limbs.append(chain((leg_root, f"knee_{side}", f"ankle_{side}", f"heel_{side}", f"toe_{side}")))
+        limbs.append(chain((arm_root, f"elbow_{side}", f"hand_{side}")))
+    near.append(chain(("hip", "neck")))
+    if view == "front":
+        near.append(chain(("hip_n", "hip_f")) + chain(("shoulder_n", "shoulder_f")))
     # The head: a circle whose edge meets the neck line.
     (nx, ny), (hx, hy) = to_svg(pts["neck"]), to_svg(pts["head"])
     r = HEAD_RADIUS * UNIT
