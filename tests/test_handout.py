@@ -73,7 +73,7 @@ def test_weekly_osteogenic_index_sums_sessions_when_the_planner_gives_none():
 def test_dose_text_says_how_many_and_how_to_split_them():
     plan = _plan(weeks=8)
     ex = next(e for w in plan.weeks for s in w.sessions for e in s.exercises if e.impacts >= 40 and e.bouts == 2)
-    assert re.fullmatch(rf"{ex.impacts} landings in 2 bouts of \S+(, effort 7 out of 10: .+)?", content.dose_text(ex))
+    assert re.fullmatch(rf"{ex.impacts} landings in 2 bouts of \S+(\. Effort 7 out of 10: .+)?", content.dose_text(ex))
 
 
 def test_identical_consecutive_weeks_are_grouped():

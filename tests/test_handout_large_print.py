@@ -17,7 +17,7 @@ import pytest
 from pypdf import PdfReader
 
 from handout_fixtures import planner_plan
-from prescribe.cautions import SHORT_CAUTION
+from prescribe.cautions import PERSON_SHORT_CAUTION
 from prescribe.handout import charts, render_html, render_pdf
 from prescribe.settings import Clinic
 
@@ -97,7 +97,7 @@ def _words(data: bytes) -> Counter:
     text = re.sub(r"page \d+ of \d+", " ", text)
     words = Counter(w.replace("-", "") for w in text.split())  # pdftotext drops a line-end hyphen
     pages = len(PdfReader(io.BytesIO(data)).pages)
-    for repeated in (SHORT_CAUTION, DEMO_CLINIC.name, "Program for " + planner_plan(26).patient_id):
+    for repeated in (PERSON_SHORT_CAUTION, DEMO_CLINIC.name, "Program for " + planner_plan(26).patient_id):
         words.subtract({w.replace("-", ""): n * pages for w, n in Counter(repeated.split()).items()})
     return +words
 

@@ -11,7 +11,7 @@ import pytest
 from PIL import Image
 
 from handout_fixtures import make_plan, planner_plan
-from prescribe.cautions import SHORT_CAUTION, STANDARD_CAUTIONS
+from prescribe.cautions import PERSON_SHORT_CAUTION, SHORT_CAUTION, STANDARD_CAUTIONS
 from prescribe.handout import render_pdf
 from prescribe.handout.content import dose_text
 from prescribe.settings import Clinic
@@ -68,9 +68,10 @@ def test_pdf_text_holds_cautions_every_exercise_and_the_counts(tmp_path):
     # The person's pages and the clinician's pages are each numbered on their own.
     clinician = [i for i, page in enumerate(pages) if "Clinician pages: program for" in page]
     assert clinician and clinician == list(range(clinician[0], len(pages)))
-    for section in (pages[:clinician[0]], pages[clinician[0]:]):
-        for number, page in enumerate(section, start=1):  # the footer of every page
-            assert _flat(SHORT_CAUTION) in _flat(page), f"page {number} has no caution"
+    # The footer of every page: the person's pages say the caution in plain words.
+    for section, caution in ((pages[:clinician[0]], PERSON_SHORT_CAUTION), (pages[clinician[0]:], SHORT_CAUTION)):
+        for number, page in enumerate(section, start=1):
+            assert _flat(caution) in _flat(page), f"page {number} has no caution"
             assert f"page {number} of {len(section)}" in _flat(page)
     names = {e.name for w in plan.weeks for s in w.sessions for e in s.exercises}
     for name in names:

@@ -238,7 +238,9 @@ def dose_text(ex: PlannedExercise) -> str:
         parts.append(f"in {ex.bouts} bouts")
     text = ", ".join(parts) or "as shown by your clinician"
     if ex.intensity:
-        text += f", {plain_intensity(ex.intensity)}"
+        # A sentence of its own: short sentences read more easily than one long one.
+        words = plain_intensity(ex.intensity)
+        text += f". {words[:1].upper()}{words[1:]}"
     return text
 
 

@@ -15,7 +15,7 @@ from jinja2 import Environment, FileSystemLoader, StrictUndefined
 from markupsafe import Markup
 
 from .. import __version__
-from ..cautions import SHORT_CAUTION
+from ..cautions import PERSON_SHORT_CAUTION, SHORT_CAUTION
 from ..errors import InputError
 from ..fileio import write_atomically
 from ..plan_schema import PLAN_FORMAT_VERSION, Plan, parse_plan
@@ -79,6 +79,7 @@ def handout_context(plan: Plan, audience: str, paper: str, clinic: Clinic, large
         "large_print": bool(large_print),
         "person": person, "clinician": clinician,
         "clinic": clinic, "short_caution": SHORT_CAUTION, "cautions": content.all_cautions(plan),
+        "person_short_caution": PERSON_SHORT_CAUTION,
         "glance": content.at_a_glance(plan, facts),
         "goals": content.goals(plan) if person else None,
         "next_review": content.next_review(plan) if person else None,
