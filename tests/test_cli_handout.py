@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+import subprocess
 
 import pytest
 
@@ -95,8 +96,8 @@ def test_large_print_pdf_for_the_person(cli, plan_file, tmp_path):
     from pypdf import PdfReader
 
     out = tmp_path / "large.pdf"
-    result = cli("handout", str(plan_file), "--out", str(out), "--audience", "person", "--large-print",
-                 env=DEMO_ENV)
+    # Without --audience, the large-print edition holds the person's pages only.
+    result = cli("handout", str(plan_file), "--out", str(out), "--large-print", env=DEMO_ENV)
     assert result.returncode == 0, result.stderr
     report = json.loads(result.stdout)
     assert report["large_print"] is True and report["audience"] == "person"
@@ -107,6 +108,9 @@ def test_large_print_pdf_for_the_person(cli, plan_file, tmp_path):
                 sizes[round(size * (tm[2] ** 2 + tm[3] ** 2) ** 0.5 * (cm[2] ** 2 + cm[3] ** 2) ** 0.5, 1)] += len(text)
         page.extract_text(visitor_text=visit)
     assert sizes.most_common(1)[0][0] >= 14.0
+    assert "Clinician pages" not in subprocess.run(["pdftotext", str(out), "-"], capture_output=True,
+                                                    text=True, check=True).stdout
     html = tmp_path / "large.html"
-    assert cli("handout", str(plan_file), "--out", str(html), "--large-print").returncode == 0
+    result = cli("handout", str(plan_file), "--out", str(html), "--large-print", "--audience", "both")
+    assert result.returncode == 0 and json.loads(result.stdout)["audience"] == "both"
     assert 'class="paper-a4 audience-both large-print"' in html.read_text(encoding="utf-8")

@@ -63,9 +63,12 @@ def _body_size(runs) -> float:
 
 
 def test_large_print_sets_every_word_of_the_persons_pages_at_14_pt_or_more():
-    chart_text = _chart_strings()
-    runs = [r for r in _runs(_pdf(True)) if r[2] not in chart_text]
+    # Every run of text: body, tables, guides, page headers and footers, and the charts'
+    # axis numbers and labels.
+    runs = _runs(_pdf(True))
     assert len(runs) > 300
+    chart_text = _chart_strings()
+    assert sum(1 for r in runs if r[2] in chart_text) >= 10  # the charts' own text is in
     small = [(page + 1, round(size, 2), text[:40]) for page, size, text in runs if size < LARGE_MIN_PT - 0.05]
     assert not small, f"text under {LARGE_MIN_PT} pt in the large-print edition: {small[:10]}"
     body = _body_size(runs)
@@ -166,3 +169,17 @@ def test_text_contrast_is_at_least_4_5_to_1_in_both_editions(large_print):
     assert len(backgrounds) >= 2  # the paper and the table headings' grey, at least
     worst = min((contrast(t, b), t, b) for t in text for b in backgrounds)
     assert worst[0] >= WCAG_AA_TEXT, f"text {worst[1]} on {worst[2]}: {worst[0]:.2f}:1"
+
+
+def test_large_print_charts_have_no_text_under_14_pt():
+    # The charts print the full width of the page: 186 mm of A4 between 12 mm margins for
+    # 760 SVG units, so a unit is 186 / 760 mm and 20.5 units about 14.2 pt (1 pt = 25.4/72 mm).
+    html = render_html(planner_plan(26), audience="person", clinic=DEMO_CLINIC, large_print=True)
+    sizes = [float(v) for svg in re.findall(r'<svg[^>]*class="chart".*?</svg>', html, re.S)
+             for v in re.findall(r'font-size="([\d.]+)"', svg)]
+    assert len(sizes) >= 3
+    unit_pt = 186 / charts.WIDTH * 72 / 25.4
+    assert min(sizes) * unit_pt >= LARGE_MIN_PT
+    assert "margin: 14mm 12mm 34mm 12mm" in html and ".large-print .person .chart-box svg.chart { height: auto; }" in html
+    regular = render_html(planner_plan(26), audience="person", clinic=DEMO_CLINIC)
+    assert min(float(v) for v in re.findall(r'<svg[^>]*class="chart"[^>]*font-size="([\d.]+)"', regular)) < 20.5

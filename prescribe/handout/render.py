@@ -74,6 +74,7 @@ def handout_context(plan: Plan, audience: str, paper: str, clinic: Clinic, large
     """
     facts = content.week_facts(plan)
     person, clinician = audience in ("person", "both"), audience in ("clinician", "both")
+    larger = charts.with_larger_text if large_print else (lambda chart: chart)
     return {
         "plan": plan, "audience": audience, "paper": paper, "page_size": PAPERS[paper],
         "large_print": bool(large_print),
@@ -87,8 +88,8 @@ def handout_context(plan: Plan, audience: str, paper: str, clinic: Clinic, large
         "table": content.week_table(plan) if person else None,
         "guides": content.exercise_guides(plan) if person else None,
         "bouts": content.bout_advice(plan) if person else None,
-        "impacts_chart": charts.impacts_chart(plan) if person else None,
-        "intensity_chart": charts.intensity_chart(plan) if person else None,
+        "impacts_chart": larger(charts.impacts_chart(plan)) if person else None,
+        "intensity_chart": larger(charts.intensity_chart(plan)) if person else None,
         "dose_rows": content.dose_rows(plan) if clinician else None,
         "evidence": content.evidence(plan) if clinician else None,
         "screening": plan.screening, "level_labels": content.LEVEL_LABELS, "if_hard_general": content.IF_HARD_GENERAL,
