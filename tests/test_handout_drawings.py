@@ -5,32 +5,17 @@ from __future__ import annotations
 import io
 import re
 import subprocess
-from functools import lru_cache
 
 from pypdf import PdfReader
 
-from handout_fixtures import make_plan
+from handout_fixtures import whole_catalogue_plan
 from prescribe.catalogue import default_catalogue
 from prescribe.drawings import PROP
 from prescribe.handout import render_html, render_pdf
 from prescribe.handout.content import short_name
-from prescribe.plan_schema import parse_plan
 from prescribe.settings import Clinic
 
 DEMO_CLINIC = Clinic("Riverside Bone Health Clinic (demo)", "555-0100")
-
-
-@lru_cache(maxsize=1)
-def whole_catalogue_plan():
-    """A two-week plan whose first week uses every catalogue exercise once (an invented person)."""
-    data = make_plan(weeks=2)
-    everything = [{"exercise_id": ex.exercise_id, "name": ex.name, "category": ex.category, "sets": 1, "reps": 5,
-                   "intensity": "RPE 3", "impact_level": ex.impact_level,
-                   "peak_grf_bw": ex.peak_grf_bw, "directions": list(ex.directions), "patterns": []}
-                  for ex in default_catalogue()]
-    data["weeks"][0]["sessions"].append({"day": 7, "kind": "mixed", "exercises": everything, "impacts": 0,
-                                         "osteogenic_index": 0.0})
-    return parse_plan(data)
 
 
 def test_every_exercise_guide_in_the_html_has_its_drawing():

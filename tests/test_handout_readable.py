@@ -17,7 +17,7 @@ import subprocess
 import pytest
 import textstat
 
-from handout_fixtures import DEMO_RECORD, planner_plan
+from handout_fixtures import DEMO_RECORD, planner_plan, whole_catalogue_plan
 from prescribe.handout import content, render_html, render_pdf
 from prescribe.settings import Clinic
 from readability import as_sentences, prose_lines
@@ -79,6 +79,16 @@ def test_the_printed_persons_pages_read_at_smog_8_and_grade_6_5_or_below(who, la
     smog, grade = textstat.smog_index(text), textstat.flesch_kincaid_grade(text)
     assert smog <= SMOG_MAX, f"SMOG {smog:.2f} above {SMOG_MAX}"
     assert grade <= GRADE_MAX, f"Flesch-Kincaid grade {grade:.2f} above {GRADE_MAX}"
+
+
+def test_every_exercise_in_the_catalogue_reads_plainly_on_the_persons_pages():
+    # A plan using the whole catalogue: every guide's words (how to, how it should feel,
+    # the easier version) measured, as prose lines and as printed.
+    plan = whole_catalogue_plan()
+    prose = as_sentences(prose_lines(render_html(plan, audience="person", clinic=DEMO_CLINIC)))
+    printed = _pdf_prose(render_pdf(plan, audience="person", clinic=DEMO_CLINIC))
+    for text in (prose, printed):
+        assert textstat.smog_index(text) <= SMOG_MAX and textstat.flesch_kincaid_grade(text) <= GRADE_MAX
 
 
 def test_the_reading_level_measure_can_tell_hard_text_from_plain():
