@@ -24,6 +24,7 @@ from ..errors import InputError, PrescribeError
 from ..records import SEVERITIES
 from . import form_spec
 from .explain_view import ExplainView
+from .exercise_view import ExerciseView
 from .session import IMPACT_LABELS, ClinicSession, EngineMissing
 
 log = logging.getLogger("prescribe.ui")
@@ -490,6 +491,8 @@ class ClinicApp:
         self.exercise_select.observe(lambda ch: self.on_exercise_chosen(), names="value")
         self.replacement_select = w.Dropdown(options=[], description="Swap for", layout=w.Layout(width="360px"))
         self.replacement_select.add_class("pr-replacement-select")
+        self.exercise_view = ExerciseView()  # the drawing of the chosen exercise and its replacement
+        self.replacement_select.observe(lambda ch: self._show_drawing(), names="value")
         self.swap_button = self._button("Swap", "pr-swap-button")
         self.swap_button.on_click(lambda _b: self.on_swap())
         self.exclude_button = self._button("Leave out", "pr-exclude-button")
@@ -507,7 +510,7 @@ class ClinicApp:
             w.HBox([self.start_level, self.weeks]),
             w.HBox(list(self.sessions.values())),
             w.HBox([self.exercise_select, self.replacement_select, self.swap_button, self.exclude_button]),
-            self.refusal, self.dose, self.chart_box, self.week_table])
+            self.exercise_view.widget, self.refusal, self.dose, self.chart_box, self.week_table])
 
     def _build_handout_section(self) -> None:
         self.audience = w.Dropdown(options=[("for the person and the clinician", "both"),
@@ -516,6 +519,8 @@ class ClinicApp:
         self.audience.add_class("pr-handout-audience")
         self.paper = w.Dropdown(options=[("A4", "a4"), ("US letter", "letter")], value="a4", description="Paper")
         self.paper.add_class("pr-handout-paper")
+        self.large_print = w.Checkbox(value=False, description="Large print (the person's pages)", indent=False)
+        self.large_print.add_class("pr-handout-large-print")
         self.preview_button = self._button("Preview", "pr-handout-preview")
         self.preview_button.on_click(lambda _b: self.on_preview())
         self.pdf_button = self._button("Prepare PDF", "pr-handout-make-pdf")
@@ -527,7 +532,7 @@ class ClinicApp:
         self.preview = w.HTML("")
         self.preview.add_class("pr-handout-frame")
         self.handout_section = self._section("4. Handout", "pr-section-handout", [
-            w.HBox([self.audience, self.paper]),
+            w.HBox([self.audience, self.paper, self.large_print]),
             w.HBox([self.preview_button, self.pdf_button, self.html_button, self.download]), self.preview])
 
     def _build_store_section(self) -> None:
@@ -615,7 +620,8 @@ class ClinicApp:
 
     @guarded("Previewing the handout")
     def on_preview(self) -> None:
-        doc = self.session.handout("html", self.audience.value, self.paper.value).decode("utf-8")
+        doc = self.session.handout("html", self.audience.value, self.paper.value,
+                                   large_print=self.large_print.value).decode("utf-8")
         self.preview.value = (f'<iframe class="pr-handout-iframe" title="handout preview" srcdoc="{_esc(doc)}" '
                               'style="width:100%;height:640px;border:1px solid #ccd;background:white"></iframe>')
 
@@ -623,7 +629,7 @@ class ClinicApp:
     def on_prepare(self, fmt: str) -> None:
         # Shown at once (a PDF takes a second or two), replaced by the link when it is ready.
         self.download.value = f'<span class="pr-preparing" role="status">Preparing the {fmt.upper()}...</span>'
-        data = self.session.handout(fmt, self.audience.value, self.paper.value)
+        data = self.session.handout(fmt, self.audience.value, self.paper.value, large_print=self.large_print.value)
         mime = "application/pdf" if fmt == "pdf" else "text/html"
         name = f"handout-{self.session.record.patient_id}.{fmt}"
         link = (f'<a class="pr-download-{fmt}" download="{_esc(name)}" '
@@ -697,6 +703,10 @@ class ClinicApp:
             self.replacement_select.value = options[0][1] if options else None
         except EngineMissing:
             self.replacement_select.options = []
+        self._show_drawing()
+
+    def _show_drawing(self) -> None:
+        self.exercise_view.show(self.exercise_select.value, self.replacement_select.value)
 
     def _refresh_store(self) -> None:
         try:
