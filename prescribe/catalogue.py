@@ -23,6 +23,7 @@ import numpy as np
 from pydantic import BaseModel, ConfigDict, Field, ValidationError, model_validator
 
 from .errors import CatalogueError, InputError
+from .poses import Pose
 from .records import MOVEMENT_PATTERNS
 
 DEFAULT_PATH = Path(__file__).with_name("data") / "exercises.toml"
@@ -129,6 +130,9 @@ class Exercise(BaseModel):
     source: str = Field(min_length=5)
     source_kind: Literal[tuple(SOURCE_KINDS)]  # type: ignore[valid-type]
     model_inputs: ModelInputs | None = None
+    #: Start and end position as joint angles, drawn by :mod:`prescribe.drawings`
+    #: (format: docs/catalogue.md, "Pose data").
+    pose: Pose | None = None
 
     @model_validator(mode="after")
     def _consistent(self) -> "Exercise":

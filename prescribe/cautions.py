@@ -18,6 +18,11 @@ SHORT_CAUTION = ("Decision support only: review by a licensed clinician is requi
                  "Stop and seek advice on new or worsening pain, chest pain, dizziness or a fall.")
 
 
+#: The page footer of the person's pages: the same caution in plain words (wording ours).
+PERSON_SHORT_CAUTION = ("Your clinician must check this plan before you start. Stop and get advice "
+                        "if you have new or worse pain, chest pain, dizziness or a fall.")
+
+
 def with_standard(extra: list[str] | tuple[str, ...] = ()) -> list[str]:
     """The standard cautions followed by ``extra`` ones, without duplicates, order kept."""
     out: list[str] = []

@@ -9,6 +9,7 @@ The real planner's output is used where it exists; this factory keeps edge cases
 from __future__ import annotations
 
 import math
+from functools import lru_cache
 from typing import Iterable
 
 from prescribe.plan_schema import PLAN_FORMAT_VERSION, Plan
@@ -147,3 +148,19 @@ def planner_plan(weeks: int, record: dict | None = None):
 
     return build_plan(parse_record(record or DEMO_RECORD), options=PlanOptions(weeks=weeks),
                       created="2026-03-02T09:00:00+00:00")
+
+
+@lru_cache(maxsize=1)
+def whole_catalogue_plan():
+    """A two-week plan whose first week uses every catalogue exercise once (an invented person)."""
+    from prescribe.catalogue import default_catalogue
+    from prescribe.plan_schema import parse_plan
+
+    data = make_plan(weeks=2)
+    everything = [{"exercise_id": ex.exercise_id, "name": ex.name, "category": ex.category, "sets": 1, "reps": 5,
+                   "intensity": "RPE 3", "impact_level": ex.impact_level,
+                   "peak_grf_bw": ex.peak_grf_bw, "directions": list(ex.directions), "patterns": []}
+                  for ex in default_catalogue()]
+    data["weeks"][0]["sessions"].append({"day": 7, "kind": "mixed", "exercises": everything, "impacts": 0,
+                                         "osteogenic_index": 0.0})
+    return parse_plan(data)

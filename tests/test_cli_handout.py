@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+import subprocess
 
 import pytest
 
@@ -84,3 +85,32 @@ def test_malformed_plan_files_exit_2_and_keep_an_existing_handout(cli, tmp_path)
     assert result.returncode == 2 and "an existing, readable file" in result.stderr
     _no_traceback(result)
     assert out.read_text() == "the handout printed last week"
+
+
+def test_large_print_pdf_for_the_person(cli, plan_file, tmp_path):
+    # `prescribe handout PLAN.json --out FILE --large-print` (PRODUCT.md, the person's handout,
+    # readable): body text at least 14 pt, read back from the PDF's own text runs.
+    import io
+    from collections import Counter
+
+    from pypdf import PdfReader
+
+    out = tmp_path / "large.pdf"
+    # Without --audience, the large-print edition holds the person's pages only.
+    result = cli("handout", str(plan_file), "--out", str(out), "--large-print", env=DEMO_ENV)
+    assert result.returncode == 0, result.stderr
+    report = json.loads(result.stdout)
+    assert report["large_print"] is True and report["audience"] == "person"
+    sizes: Counter = Counter()
+    for page in PdfReader(io.BytesIO(out.read_bytes())).pages:
+        def visit(text, cm, tm, _font, size):
+            if text.strip():
+                sizes[round(size * (tm[2] ** 2 + tm[3] ** 2) ** 0.5 * (cm[2] ** 2 + cm[3] ** 2) ** 0.5, 1)] += len(text)
+        page.extract_text(visitor_text=visit)
+    assert sizes.most_common(1)[0][0] >= 14.0
+    assert "Clinician pages" not in subprocess.run(["pdftotext", str(out), "-"], capture_output=True,
+                                                    text=True, check=True).stdout
+    html = tmp_path / "large.html"
+    result = cli("handout", str(plan_file), "--out", str(html), "--large-print", "--audience", "both")
+    assert result.returncode == 0 and json.loads(result.stdout)["audience"] == "both"
+    assert 'class="paper-a4 audience-both large-print"' in html.read_text(encoding="utf-8")

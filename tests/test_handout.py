@@ -73,7 +73,7 @@ def test_weekly_osteogenic_index_sums_sessions_when_the_planner_gives_none():
 def test_dose_text_says_how_many_and_how_to_split_them():
     plan = _plan(weeks=8)
     ex = next(e for w in plan.weeks for s in w.sessions for e in s.exercises if e.impacts >= 40 and e.bouts == 2)
-    assert re.fullmatch(rf"{ex.impacts} landings in 2 bouts of \S+( at RPE 7)?", content.dose_text(ex))
+    assert re.fullmatch(rf"{ex.impacts} landings in 2 bouts of \S+(\. Effort 7 out of 10: .+)?", content.dose_text(ex))
 
 
 def test_identical_consecutive_weeks_are_grouped():
@@ -101,7 +101,7 @@ def test_week_tables_print_each_instruction_once_and_say_what_stays():
                 # What a row leaves out was said in the row above (or left out there too).
                 assert set(same) <= set(kept_above) | set(same_above)
     html = render_html(planner_plan(26), clinic=DEMO_CLINIC)
-    assert "Other exercises as in the row above." in html and "as in the row above." in html
+    assert "Same as above: " in html
 
 
 def test_review_weeks_and_next_review_date():
@@ -268,7 +268,7 @@ def test_intensity_chart_labels_loads_and_handles_plans_without_1rm():
     root = _svg(chart.svg)
     texts = [t.text for t in root.iter(f"{SVG}text")]
     assert "70%" in texts and "100%" in texts
-    assert any("% of one-repetition maximum" in s for s in chart.scales)
+    assert any("% of the most you could lift once" in s for s in chart.scales)
     marks = next(p for p in root.iter(f"{SVG}path") if p.get("class") == "marks")
     assert marks.get("d").count("Z") == 12  # a circle for each week with a load
     data = make_plan(weeks=4)
@@ -277,7 +277,7 @@ def test_intensity_chart_labels_loads_and_handles_plans_without_1rm():
             for ex in session["exercises"]:
                 ex["intensity"] = "RPE 6"
     empty = _svg(charts.intensity_chart_svg(data))
-    assert any("No strength load" in (t.text or "") for t in empty.iter(f"{SVG}text"))
+    assert any("set by effort, not by a weight" in (t.text or "") for t in empty.iter(f"{SVG}text"))
 
 
 def test_chart_text_is_escaped():

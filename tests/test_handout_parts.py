@@ -100,7 +100,7 @@ def test_joined_file_keeps_the_title_and_both_parts_outlines(plan):
     reader = PdfReader(io.BytesIO(data))
     assert reader.metadata.title == f"Exercise program for {plan.patient_id}"
     titles = [item.title for item in reader.outline if not isinstance(item, list)]
-    assert "Your bone-strengthening exercise program" in titles and "Clinician page" in titles
+    assert "Your exercise plan for strong bones" in titles and "Clinician page" in titles
 
 
 def test_html_for_both_audiences_stays_one_page_with_both_parts(plan):

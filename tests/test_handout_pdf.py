@@ -11,7 +11,7 @@ import pytest
 from PIL import Image
 
 from handout_fixtures import make_plan, planner_plan
-from prescribe.cautions import SHORT_CAUTION, STANDARD_CAUTIONS
+from prescribe.cautions import PERSON_SHORT_CAUTION, SHORT_CAUTION, STANDARD_CAUTIONS
 from prescribe.handout import render_pdf
 from prescribe.handout.content import dose_text
 from prescribe.settings import Clinic
@@ -19,10 +19,11 @@ from prescribe.settings import Clinic
 DEMO_CLINIC = Clinic("Riverside Bone Health Clinic (demo)", "555-0100")
 
 #: Pages for both audiences: the person pages (cover, charts, routine and week-by-week
-#: tables, one guide per exercise, safety) and the clinician pages (flags, dose table,
-#: evidence, versions, sign-off).  Grouped weeks keep a year's plan about as long as
-#: two months' (13 pages for 8 weeks and 14 for 52 when this bound was set).
-PAGE_BOUNDS = {8: (6, 14), 26: (6, 15), 52: (6, 16)}
+#: tables, one guide per exercise with its drawing, safety) and the clinician pages
+#: (flags, dose table, evidence, versions, sign-off).  Grouped weeks keep a year's plan
+#: about as long as two months' (15 pages for 8 weeks and 16 for 26 when this bound was
+#: set, with every row of the week tables naming its exercises and a drawing per guide).
+PAGE_BOUNDS = {8: (6, 17), 26: (6, 18), 52: (6, 19)}
 
 
 @lru_cache(maxsize=None)
@@ -67,12 +68,13 @@ def test_pdf_text_holds_cautions_every_exercise_and_the_counts(tmp_path):
     # The person's pages and the clinician's pages are each numbered on their own.
     clinician = [i for i, page in enumerate(pages) if "Clinician pages: program for" in page]
     assert clinician and clinician == list(range(clinician[0], len(pages)))
-    for section in (pages[:clinician[0]], pages[clinician[0]:]):
-        for number, page in enumerate(section, start=1):  # the footer of every page
-            # The footer's page number sits beside the caution; text extraction may read it
-            # between the caution's two lines, so it is taken out before the caution is sought.
+    # The footer of every page: the person's pages say the caution in plain words. The footer's
+    # page number sits beside the caution; text extraction may read it between the caution's two
+    # lines, so it is taken out before the caution is sought.
+    for section, caution in ((pages[:clinician[0]], PERSON_SHORT_CAUTION), (pages[clinician[0]:], SHORT_CAUTION)):
+        for number, page in enumerate(section, start=1):
             footer = re.sub(r"page \d+ of \d+", " ", page)
-            assert _flat(SHORT_CAUTION) in _flat(footer), f"page {number} has no caution"
+            assert _flat(caution) in _flat(footer), f"page {number} has no caution"
             assert f"page {number} of {len(section)}" in _flat(page)
     names = {e.name for w in plan.weeks for s in w.sessions for e in s.exercises}
     for name in names:

@@ -18,8 +18,11 @@ def register(sub) -> None:
     p.add_argument("plan", metavar="PLAN.json", help="a plan as printed by `prescribe plan`")
     p.add_argument("--out", required=True, metavar="FILE.pdf|FILE.html", help="where to write the handout")
     p.add_argument("--paper", default="a4", metavar="a4|letter", help="paper size (default a4)")
-    p.add_argument("--audience", default="both", metavar="person|clinician|both",
-                   help="which pages to print (default both)")
+    p.add_argument("--audience", default=None, metavar="person|clinician|both",
+                   help="which pages to print (default both; person with --large-print)")
+    p.add_argument("--large-print", action="store_true",
+                   help="the large-print edition of the person's pages (body text 15 pt, larger headings); "
+                        "prints the person's pages only unless --audience says otherwise")
     p.add_argument("--sensor", metavar="SUMMARY.json", help="a worn-sensor summary printed by `prescribe sensor "
                                                            "--patient`: the clinician page shows planned against delivered")
     p.set_defaults(func=run)
@@ -30,14 +33,17 @@ def run(args) -> int:
     from ..handout.render import check_options, check_out_path, write_handout
 
     check_out_path(args.out)  # refuse a bad --out before reading the plan
-    check_options(args.audience, args.paper, ("--audience", "--paper"))
+    # The large-print edition is the person's: without --audience it holds their pages only.
+    audience = args.audience or ("person" if args.large_print else "both")
+    check_options(audience, args.paper, ("--audience", "--paper"))
     plan = parse_plan(read_json_file(args.plan, "PLAN.json"), source=args.plan)
     sensor = _sensor_summary(args.sensor, plan.patient_id) if args.sensor else None
-    out = write_handout(plan, args.out, audience=args.audience, paper=args.paper, sensor_summary=sensor)
+    out = write_handout(plan, args.out, audience=audience, paper=args.paper, large_print=args.large_print,
+                        sensor_summary=sensor)
     emit_json({
         "out": str(out), "format": out.suffix.lower().lstrip("."), "bytes": out.stat().st_size,
-        "patient_id": plan.patient_id, "audience": args.audience, "paper": args.paper,
-        "weeks": len(plan.weeks), "cautions": list(STANDARD_CAUTIONS),
+        "patient_id": plan.patient_id, "audience": audience, "paper": args.paper,
+        "weeks": len(plan.weeks), "large_print": args.large_print, "cautions": list(STANDARD_CAUTIONS),
     })
     return 0
 

@@ -14,6 +14,7 @@ paragraph of the page, while the same words as HTML cost one line each.
 from __future__ import annotations
 
 import math
+import re
 from dataclasses import dataclass
 from html import escape
 from typing import Sequence
@@ -110,6 +111,19 @@ class Chart:
     svg: str
     scales: tuple[str, ...]
     legend: tuple[tuple[str, str], ...]
+
+
+#: Smallest text in the large-print edition's charts [SVG units]: on a chart the full
+#: width of the page (186 mm for 760 units) 20.5 units print at about 14.2 pt.  Larger
+#: would push the left axis's "100%" out of the chart.
+LARGE_PRINT_MIN_TEXT = 20.5
+_FONT_SIZE = re.compile(r'font-size="(\d+(?:\.\d+)?)"')
+
+
+def with_larger_text(chart: Chart, smallest: float = LARGE_PRINT_MIN_TEXT) -> Chart:
+    """The same chart with no text inside its SVG smaller than ``smallest`` units."""
+    svg = _FONT_SIZE.sub(lambda m: f'font-size="{max(float(m.group(1)), smallest):g}"', chart.svg)
+    return Chart(chart.title, svg, chart.scales, chart.legend)
 
 
 def swatch(body: str) -> str:
@@ -283,14 +297,14 @@ def intensity_chart(plan) -> Chart:
         desc = (f"Resistance load from {known[0]:g}% to {known[-1]:g}% of the one-repetition maximum, "
                 f"highest {max(known):g}%. " + _describe_weeks(facts))
     else:
-        desc = "This program has no resistance work with a load given as a percentage of 1RM."
+        desc = "The strength exercises in this program are set by effort, not by a weight."
     frame = _Frame(facts, "chart-intensity", "Strength exercise load, week by week", desc)
     frame.weak_windows()
     top = 100.0
     frame.left_axis(top, 20, fmt=lambda v: f"{v:g}%")
     if not known:
         frame.parts.append(_text(LEFT + frame.pw / 2, TOP + frame.ph / 2,
-                                 "No strength load given as % 1RM in this program.", size=15))
+                                 "Strength work here is set by effort, not by a weight.", size=15))
     run: list[str] = []
     segments = []
     for i, v in enumerate([*values, None]):
@@ -316,10 +330,10 @@ def intensity_chart(plan) -> Chart:
     frame.week_axis()
     frame.step_marks()
     return frame.chart(
-        ("Left: % of one-repetition maximum (1RM).", WEEK_SCALE),
+        ("Left: weight, as a % of the most you could lift once.", WEEK_SCALE),
         [(swatch(f'<line x1="0" y1="7" x2="26" y2="7" stroke="{INK}" stroke-width="3"/>'
                  f'<circle cx="13" cy="7" r="4" fill="#ffffff" stroke="{INK}" stroke-width="2"/>'),
-          "line with circles: load (% 1RM)"),
+          "line with circles: how heavy"),
          *frame.weak_legend()])
 
 

@@ -12,6 +12,7 @@ from __future__ import annotations
 import datetime as dt
 import re
 from dataclasses import dataclass, field, replace
+from functools import lru_cache
 from typing import Any
 
 from ..cautions import with_standard
@@ -160,6 +161,72 @@ def days_text(days: tuple[int, ...]) -> str:
     return ", ".join(DAY_SHORT[d - 1] for d in days)
 
 
+#: "RPE 3-4" or "RPE 6" (the Borg CR10 effort scale, 0-10).
+_RPE = re.compile(r"^\s*RPE\s*(\d+(?:\.\d+)?)(?:\s*(?:-|to)\s*(\d+(?:\.\d+)?))?\s*$", re.IGNORECASE)
+
+#: How an effort on the 0-10 scale feels, by the talk test (common practice; wording ours).
+_EFFORT_FEEL = ((4, "you can still talk"), (6, "you can talk, but not sing"), (8, "you can say only a few words"),
+                (10, "you cannot talk"))
+
+#: Repetitions most adults can lift at a share of their one-repetition maximum, from the
+#: usual %1RM-to-repetitions table (NSCA, Baechle & Earle, Essentials of Strength
+#: Training and Conditioning; from memory): at or above each share, about this many.
+_REPS_AT_PCT = ((95, 2), (93, 3), (90, 4), (87, 5), (85, 6), (83, 7), (80, 8), (77, 9), (75, 10), (70, 12),
+                (65, 15), (60, 20))
+
+
+def effort_words(low: float, high: float | None = None) -> str:
+    """"effort 3 to 4 out of 10: you can still talk" (the person's words for RPE 3-4)."""
+    top = high if high is not None else low
+    feel = next((text for limit, text in _EFFORT_FEEL if top <= limit), _EFFORT_FEEL[-1][1])
+    span = f"{low:g}" if high is None or high == low else f"{low:g} to {high:g}"
+    return f"effort {span} out of 10: {feel}"
+
+
+def weight_words(pct: float) -> str:
+    """A share of the one-repetition maximum in the person's words: what weight to pick."""
+    reps = next((n for limit, n in _REPS_AT_PCT if pct >= limit), None)
+    if pct >= 100:
+        return "the most you can lift once"
+    if reps is None:
+        return "a light weight you could lift more than 20 times"
+    return f"a weight you could lift about {reps} times, and no more"
+
+
+def plain_intensity(intensity: str) -> str:
+    """An intensity as the person's pages say it: no RPE, no 1RM.
+
+    "RPE 3-4" -> "effort 3 to 4 out of 10: you can still talk"; "80% 1RM" -> "a weight
+    you could lift about 8 times, and no more".  Other wording is kept as it is.
+    """
+    text = (intensity or "").strip()
+    aside = _WITH_ASIDE.match(text)  # "RPE 6-7 (about a 12RM load)": both parts in words
+    if aside:
+        return f"{plain_intensity(aside.group(1))} ({_plain_rm(aside.group(2))})"
+    rpe = _RPE.match(text)
+    if rpe:
+        return effort_words(float(rpe.group(1)), float(rpe.group(2)) if rpe.group(2) else None)
+    pct = pct_1rm(text)
+    if pct is not None:
+        return weight_words(pct)
+    return text.replace("maximal", "your hardest")
+
+
+_WITH_ASIDE = re.compile(r"^\s*(RPE\s*[\d.]+(?:\s*(?:-|to)\s*[\d.]+)?)\s*\((.+)\)\s*$", re.IGNORECASE)
+
+
+def _plain_rm(text: str) -> str:
+    """Repetition-maximum loads in words: "an 8-12RM load" -> "a load you could lift 8 to 12 times"."""
+    text = re.sub(r"\b(?:an?\s+|about\s+an?\s+)?(\d+)\s*-\s*(\d+)\s*RM\b(?:\s+load)?",
+                  r"a load you could lift \1 to \2 times", text)
+    return re.sub(r"\b(?:an?\s+|about\s+an?\s+)?(\d+)\s*RM\b(?:\s+load)?", r"a load you could lift about \1 times", text)
+
+
+def short_name(name: str) -> str:
+    """An exercise's name without its bracketed aside: "Hex (trap) bar deadlift" -> "Hex bar deadlift"."""
+    return " ".join(re.sub(r"\([^)]*\)", "", name).split()) or name
+
+
 def dose_text(ex: PlannedExercise) -> str:
     """What and how many, in plain words: "40 landings in 2 bouts of 20"."""
     parts = []
@@ -183,11 +250,12 @@ def dose_text(ex: PlannedExercise) -> str:
         parts.append(f"in {ex.bouts} bouts")
     text = ", ".join(parts) or "as shown by your clinician"
     if ex.intensity:
-        scale = ex.intensity[:1].isdigit() or ex.intensity.upper().startswith("RPE") or "%" in ex.intensity
-        text += f" at {ex.intensity}" if scale else f", {ex.intensity}"
+        # A sentence of its own: short sentences read more easily than one long one.
+        words = plain_intensity(ex.intensity)
+        text += f". {words[:1].upper()}{words[1:]}"
     load = extra(ex, "load_kg")  # a working load from the logged sessions (docs/sessions.md)
     if isinstance(load, (int, float)) and not isinstance(load, bool) and load > 0:
-        text += f" (about {load:g} kg)"
+        text += f": about {load:g} kg"
     return text
 
 
@@ -243,7 +311,7 @@ def week_lines(week: PlannedWeek) -> list[Line]:
             days = by_key.setdefault(key, [])
             if session.day not in days:
                 days.append(session.day)
-    return [Line(ex.exercise_id, ex.name, dose_text(ex), days_text(tuple(by_key[key])), column_of(ex))
+    return [Line(ex.exercise_id, short_name(ex.name), dose_text(ex), days_text(tuple(by_key[key])), column_of(ex))
             for key, ex in first.items()]
 
 
@@ -286,6 +354,8 @@ class Cell:
 
     days: str
     items: tuple[tuple[str, str], ...]  # (names, or "" where the routine table names them; dose)
+    #: The exercise names of each item, one by one (a name may hold a comma).
+    names: tuple[tuple[str, ...], ...] = ()
 
 
 def cells(lines: list[Line], names: bool = True) -> list[Cell]:
@@ -302,7 +372,7 @@ def cells(lines: list[Line], names: bool = True) -> list[Cell]:
             group.append(line.name)
     out = []
     for days, doses in by_days.items():
-        items = []
+        items, groups = [], []
         # Without names, the largest group sharing a dose is named only by its count.
         largest = max(doses, key=lambda d: len(doses[d])) if not names else None
         if largest is not None and len(doses[largest]) < 2:
@@ -310,11 +380,13 @@ def cells(lines: list[Line], names: bool = True) -> list[Cell]:
         for dose, group in doses.items():
             if dose != largest:
                 items.append((", ".join(group), dose))
+                groups.append(tuple(group))
         if largest is not None:
             count = len(doses[largest])
             who = f"each of the {count} exercises" if len(doses) == 1 else f"each of the other {count} exercises"
             items.append(("", f"{largest}, {who}"))
-        out.append(Cell(days, tuple(items)))
+            groups.append(tuple(doses[largest]))
+        out.append(Cell(days, tuple(items), tuple(groups)))
     return out
 
 
@@ -328,9 +400,26 @@ class TableRow:
     #: Cells left out because the row above has them word for word ("as above").
     repeated: tuple[tuple[Cell, ...], ...] = ()
 
+    #: Names of exercises done in these weeks exactly as in the "Every week" row.
+    every_week: tuple[str, ...] = ()
+
     @property
     def has_repeats(self) -> bool:
         return any(self.repeated)
+
+    @property
+    def same_as_above(self) -> tuple[str, ...]:
+        """Names of the exercises this row does not spell out (as in the row above, or every week).
+
+        Every row names all its exercises: those it spells out with their days and doses,
+        and these, named once more in a short line.
+        """
+        out: list[str] = []
+        for column in self.repeated:
+            for cell in column:
+                for group in cell.names:
+                    out.extend(name for name in group if name not in out)
+        return tuple(out + [n for n in self.every_week if n not in out])
 
 
 @dataclass(frozen=True)
@@ -389,8 +478,8 @@ def routine_rows(plan: Plan) -> list[TableRow]:
             for _id, name, days, column in key:
                 if column == col and name not in by_days.setdefault(days, []):
                     by_days[days].append(name)
-            columns.append(tuple(Cell(days, tuple((n, "") for n in names)) for days, names in by_days.items()
-                                 if names))
+            columns.append(tuple(Cell(days, tuple((n, "") for n in names), tuple((n,) for n in names))
+                                 for days, names in by_days.items() if names))
         rows.append(TableRow(week_range(first, last), (), False, tuple(columns)))
     return without_repeats(rows)
 
@@ -406,10 +495,11 @@ def week_table(plan: Plan) -> WeekTable:
     if len(groups) > 1:
         common = set(groups[0].lines).intersection(*(g.lines for g in groups[1:]))
     every = [line for line in groups[0].lines if line in common]
-    rows = [_row(g.label, g.notes, g.facts.weak_window, [ln for ln in g.lines if ln not in common], False,
+    every_names = tuple(dict.fromkeys(line.name for line in every))
+    rows = [_row(g.label, g.notes, g.facts.weak_window, [ln for ln in g.lines if ln not in common], True,
                  g.facts.impacts_per_session) for g in groups]
-    return WeekTable(routine_rows(plan), _row("Every week", (), False, every, True) if every else None,
-                     without_repeats(rows))
+    rows = [replace(row, every_week=every_names) for row in without_repeats(rows)]
+    return WeekTable(routine_rows(plan), _row("Every week", (), False, every, True) if every else None, rows)
 
 
 def dose_rows(plan: Plan) -> list[tuple[str, WeekFacts]]:
@@ -455,15 +545,14 @@ def goals(plan: Plan) -> list[str]:
     kinds = {s.kind for w in plan.weeks for s in w.sessions}
     out = []
     if plan.screening.max_impact_level >= 2 and any(w.impacts_per_session for w in plan.weeks):
-        out.append("Make your hip and spine bones stronger with short bursts of landings (impacts), "
+        out.append("Make your hip and spine bones stronger with short bursts of landings, "
                    "built up slowly.")
     if kinds & {"resistance", "mixed"}:
-        out.append("Build muscle strength with strength exercises two or three times a week, "
-                   "which also loads your bones.")
+        out.append("Make your muscles stronger two or three times a week. This helps your bones too.")
     if plan.screening.falls_risk or "balance" in kinds:
-        out.append("Improve your balance and leg strength to lower your chance of a fall.")
+        out.append("Get better balance and stronger legs, so you are less likely to fall.")
     if {"loaded_spinal_flexion", "loaded_spinal_twisting"} & set(plan.screening.avoid):
-        out.append("Protect your spine: do not bend forward or twist while lifting, carrying or straining.")
+        out.append("Keep your back safe: do not bend forward or twist when you lift, carry or push.")
     out.append("Exercise safely on your own, and know when to stop and ask for advice.")
     return out
 
@@ -490,10 +579,17 @@ def at_a_glance(plan: Plan, facts: list[WeekFacts]) -> AtAGlance:
         top_level=f"{max(f.impact_level for f in facts)}: "
                   f"{LEVEL_WORDS.get(max(f.impact_level for f in facts), '')}",
         most_impacts=max(f.impacts_per_session for f in facts),
-        resistance_range=(f"{min(pcts):g}% to {max(pcts):g}% of your one-repetition maximum"
-                          if pcts else None),
+        resistance_range=(_weight_range(min(pcts), max(pcts)) if pcts else None),
         reviews=weeks_phrase([w for w, _ in reviews]) or "as arranged with your clinician",
     )
+
+
+def _weight_range(low: float, high: float) -> str:
+    """The strength weights of a program in the person's words, lightest to heaviest."""
+    first = weight_words(low)
+    if weight_words(high) == first:
+        return first[:1].upper() + first[1:] + "."
+    return f"From {first}, up to {weight_words(high)}."
 
 
 def weeks_phrase(weeks: list[int]) -> str:
@@ -595,6 +691,9 @@ class ExerciseGuide:
     if_hard: str
     notes: tuple[str, ...]
     weeks: str
+    #: The start and end position drawn from the catalogue's pose data (SVG), or "" when
+    #: the catalogue has no pose for the exercise.
+    drawing: str = ""
 
 
 #: At most this many of the planner's notes are shown per exercise.
@@ -633,12 +732,14 @@ def exercise_guides(plan: Plan, lookup=None) -> list[ExerciseGuide]:
                 elif isinstance(reg_id, str):
                     if_hard = f"Do the easier version your clinician showed you ({reg_id.replace('_', ' ')})."
             category = ex.category.lower()
+            pose = _get(entry, "pose") if entry is not None else None
             seen[ex.exercise_id] = ExerciseGuide(
                 exercise_id=ex.exercise_id, name=ex.name, category=ex.category,
                 level=f"{ex.impact_level}: {LEVEL_LABELS.get(ex.impact_level, '')}",
                 how_to=how or f"As your clinician showed you. {ex.name}: {dose_text(ex)}.",
                 feel=feel or _FEEL_FALLBACK.get(category, _FEEL_DEFAULT),
-                if_hard=if_hard or _IF_HARD_FALLBACK, notes=(), weeks="")
+                if_hard=if_hard or _IF_HARD_FALLBACK, notes=(), weeks="",
+                drawing=_drawing(pose, short_name(ex.name)) if pose is not None else "")
     used: dict[str, list[int]] = {}
     for wk in plan.weeks:
         for ex in _exercises(wk):
@@ -646,6 +747,12 @@ def exercise_guides(plan: Plan, lookup=None) -> list[ExerciseGuide]:
                 used[ex.exercise_id].append(wk.week)
     return [ExerciseGuide(**{**g.__dict__, "notes": tuple(notes.get(i, ())[:MAX_NOTES]),
                              "weeks": week_spans(used[i])}) for i, g in seen.items()]
+
+
+@lru_cache(maxsize=256)
+def _drawing(pose, title: str) -> str:
+    from ..drawings import pose_svg
+    return pose_svg(pose, title)
 
 
 def week_spans(weeks: list[int]) -> str:

@@ -15,7 +15,7 @@ from jinja2 import Environment, FileSystemLoader, StrictUndefined
 from markupsafe import Markup
 
 from .. import __version__
-from ..cautions import SHORT_CAUTION
+from ..cautions import PERSON_SHORT_CAUTION, SHORT_CAUTION
 from ..errors import InputError
 from ..fileio import write_atomically
 from ..plan_schema import PLAN_FORMAT_VERSION, Plan, parse_plan
@@ -66,7 +66,8 @@ def _environment() -> Environment:
     return env
 
 
-def handout_context(plan: Plan, audience: str, paper: str, clinic: Clinic, sensor_summary: dict | None = None) -> dict:
+def handout_context(plan: Plan, audience: str, paper: str, clinic: Clinic, sensor_summary: dict | None = None,
+                    large_print: bool = False) -> dict:
     """Everything the template shows, worked out from the plan.
 
     What only the person's pages show (charts, tables, guides) or only the clinician's
@@ -75,10 +76,13 @@ def handout_context(plan: Plan, audience: str, paper: str, clinic: Clinic, senso
     """
     facts = content.week_facts(plan)
     person, clinician = audience in ("person", "both"), audience in ("clinician", "both")
+    larger = charts.with_larger_text if large_print else (lambda chart: chart)
     return {
         "plan": plan, "audience": audience, "paper": paper, "page_size": PAPERS[paper],
+        "large_print": bool(large_print),
         "person": person, "clinician": clinician,
         "clinic": clinic, "short_caution": SHORT_CAUTION, "cautions": content.all_cautions(plan),
+        "person_short_caution": PERSON_SHORT_CAUTION,
         "glance": content.at_a_glance(plan, facts),
         "goals": content.goals(plan) if person else None,
         "next_review": content.next_review(plan) if person else None,
@@ -86,8 +90,8 @@ def handout_context(plan: Plan, audience: str, paper: str, clinic: Clinic, senso
         "table": content.week_table(plan) if person else None,
         "guides": content.exercise_guides(plan) if person else None,
         "bouts": content.bout_advice(plan) if person else None,
-        "impacts_chart": charts.impacts_chart(plan) if person else None,
-        "intensity_chart": charts.intensity_chart(plan) if person else None,
+        "impacts_chart": larger(charts.impacts_chart(plan)) if person else None,
+        "intensity_chart": larger(charts.intensity_chart(plan)) if person else None,
         "dose_rows": content.dose_rows(plan) if clinician else None,
         "evidence": content.evidence(plan) if clinician else None,
         "explanations": explain_figures.plan_explanations(plan) if clinician else None,
@@ -102,22 +106,24 @@ def handout_context(plan: Plan, audience: str, paper: str, clinic: Clinic, senso
 
 
 def render_html(plan: Plan | dict, audience: str = "both", paper: str = "a4",
-                clinic: Clinic | None = None, sensor_summary: dict | None = None) -> str:
+                clinic: Clinic | None = None, sensor_summary: dict | None = None, large_print: bool = False) -> str:
     """The handout as one self-contained HTML page (print CSS and inline SVG charts).
 
     ``audience`` is person, clinician or both; ``paper`` is a4 or letter.  The
     clinic's name and contact come from :func:`prescribe.settings.clinic` unless given.
+    ``large_print`` sets the person's pages in the large-print edition (body text 15 pt,
+    headings larger, the same content reflowed); the clinician's pages stay as they are.
     """
     check_options(audience, paper)
     plan = as_plan(plan)
     clinic = clinic if clinic is not None else clinic_from_settings()
     return _environment().get_template("handout.html.j2").render(
-        **handout_context(plan, audience, paper, clinic, sensor_summary))
+        **handout_context(plan, audience, paper, clinic, sensor_summary, large_print))
 
 
 def render_pdf(plan: Plan | dict, audience: str = "both", paper: str = "a4",
                clinic: Clinic | None = None, parallel: bool | None = None,
-               sensor_summary: dict | None = None) -> bytes:
+               sensor_summary: dict | None = None, large_print: bool = False) -> bytes:
     """The handout as PDF bytes (WeasyPrint), with page numbers and the short caution on every page.
 
     For both audiences the person's pages and the clinician's pages are two documents,
@@ -128,13 +134,14 @@ def render_pdf(plan: Plan | dict, audience: str = "both", paper: str = "a4",
     plan = as_plan(plan)
     clinic = clinic if clinic is not None else clinic_from_settings()
     audiences = ("person", "clinician") if audience == "both" else (audience,)
-    htmls = [render_html(plan, audience=a, paper=paper, clinic=clinic, sensor_summary=sensor_summary)
-             for a in audiences]
+    htmls = [render_html(plan, audience=a, paper=paper, clinic=clinic, sensor_summary=sensor_summary,
+                         large_print=large_print) for a in audiences]
     return pdf.join_pdfs(pdf.render_parts(htmls, base_url=str(TEMPLATES), parallel=parallel))
 
 
 def write_handout(plan: Plan | dict, out_path: str | os.PathLike, audience: str = "both",
-                  paper: str = "a4", clinic: Clinic | None = None, sensor_summary: dict | None = None) -> Path:
+                  paper: str = "a4", clinic: Clinic | None = None, sensor_summary: dict | None = None,
+                  large_print: bool = False) -> Path:
     """Write the handout as HTML or PDF, chosen by the suffix of ``out_path``.
 
     The file is written to a temporary name first and then renamed, so an existing
@@ -144,10 +151,11 @@ def write_handout(plan: Plan | dict, out_path: str | os.PathLike, audience: str 
     suffix = out.suffix.lower()
     check_options(audience, paper, ("--audience", "--paper"))
     if suffix == ".pdf":
-        data = render_pdf(plan, audience=audience, paper=paper, clinic=clinic, sensor_summary=sensor_summary)
+        data = render_pdf(plan, audience=audience, paper=paper, clinic=clinic, sensor_summary=sensor_summary,
+                          large_print=large_print)
     else:
         data = render_html(plan, audience=audience, paper=paper, clinic=clinic,
-                           sensor_summary=sensor_summary).encode("utf-8")
+                           sensor_summary=sensor_summary, large_print=large_print).encode("utf-8")
     directory = out.parent if str(out.parent) else Path(".")
     if not directory.is_dir():
         raise InputError.single("--out", str(out_path), "a file in an existing folder")

@@ -274,14 +274,20 @@ class ClinicSession:
                 "last_week_osteogenic_index": round(s.osteogenic_index[-1], 1)}
 
     # -- handout ----------------------------------------------------------------
-    def handout(self, fmt: str = "html", audience: str = "both", paper: str = "a4") -> bytes:
-        """The handout of the current program as HTML (UTF-8 bytes) or PDF bytes."""
+    def handout(self, fmt: str = "html", audience: str = "both", paper: str = "a4",
+                large_print: bool = False) -> bytes:
+        """The handout of the current program as HTML (UTF-8 bytes) or PDF bytes.
+
+        ``large_print`` gives the large-print edition of the person's pages.
+        """
         if self.plan is None:
             raise InputError.single("program", None, "a built program (check the person's details first)")
         sensor = self.latest_sensor_summary()  # the clinician's page shows it when there is one
         if fmt == "pdf":
-            return _api("handout", "render_pdf")(self.plan, audience=audience, paper=paper, sensor_summary=sensor)
-        html = _api("handout", "render_html")(self.plan, audience=audience, paper=paper, sensor_summary=sensor)
+            return _api("handout", "render_pdf")(self.plan, audience=audience, paper=paper, sensor_summary=sensor,
+                                                 large_print=large_print)
+        html = _api("handout", "render_html")(self.plan, audience=audience, paper=paper, sensor_summary=sensor,
+                                              large_print=large_print)
         return html.encode("utf-8") if isinstance(html, str) else html
 
     def latest_sensor_summary(self) -> dict | None:

@@ -25,6 +25,7 @@ from ..records import SEVERITIES
 from . import form_spec
 from .cautions_view import section_cautions
 from .explain_view import ExplainView
+from .exercise_view import ExerciseView
 from .history_view import history_html
 from .program_view import ProgramView, progression_html
 from .wording import field_words, plain
@@ -407,7 +408,27 @@ class ClinicApp:
     def from_environment(cls) -> "ClinicApp":
         """The app over the store named by ``PRESCRIBE_DB`` (see prescribe.settings)."""
         from ..settings import db_url
-        return cls(ClinicSession(store_url=db_url()), warm_up=True)
+        app = cls(ClinicSession(store_url=db_url()), warm_up=True)
+        app.follow_page_request()
+        return app
+
+    def follow_page_request(self) -> None:
+        """In a preheated kernel, re-read what may have changed once a page takes it.
+
+        ``prescribe app`` keeps kernels preheated (prescribe.ui.server): the app is built
+        before anyone opens the page, so the list of saved people could be minutes old when a
+        clinician arrives.  A background thread waits for the page's request (Voila's
+        ``wait_for_request``) and then refreshes the page from the store.
+        """
+        if os.environ.get("VOILA_PREHEAT") != "True":
+            return
+
+        def wait_then_refresh() -> None:
+            from voila.utils import wait_for_request
+            wait_for_request()
+            self.refresh()
+
+        threading.Thread(target=wait_then_refresh, name="prescribe-page-request", daemon=True).start()
 
     @guarded("Preparing the app")
     def warm_up(self) -> None:
@@ -491,6 +512,8 @@ class ClinicApp:
         self.exercise_select, self.replacement_select = swap.exercise_select, swap.replacement_select
         self.swap_button, self.exclude_button = swap.swap_button, swap.exclude_button
         self.exercise_select.observe(lambda ch: self.on_exercise_chosen(), names="value")
+        self.exercise_view = ExerciseView()  # the drawing of the chosen exercise and its replacement
+        self.replacement_select.observe(lambda ch: self._show_drawing(), names="value")
         self.swap_button.on_click(lambda _b: self.on_swap())
         swap.confirm_button.on_click(lambda _b: self.on_confirm_swap())
         swap.cancel_button.on_click(lambda _b: swap.cancel())
@@ -507,8 +530,8 @@ class ClinicApp:
         self.program_section = self._section("3. Program", "pr-section-program", [
             w.HBox([self.start_level, self.weeks]),
             w.HBox(list(self.sessions.values())),
-            swap.widget, self.refusal, self.program_view.widget, self.dose, self.chart_box,
-            w.HTML("<h3>Week by week</h3>"), self.week_table])
+            swap.widget, self.exercise_view.widget, self.refusal, self.program_view.widget, self.dose,
+            self.chart_box, w.HTML("<h3>Week by week</h3>"), self.week_table])
 
     def _build_handout_section(self) -> None:
         self.audience = w.Dropdown(options=[("for the person and the clinician", "both"),
@@ -517,6 +540,8 @@ class ClinicApp:
         self.audience.add_class("pr-handout-audience")
         self.paper = w.Dropdown(options=[("A4", "a4"), ("US letter", "letter")], value="a4", description="Paper")
         self.paper.add_class("pr-handout-paper")
+        self.large_print = w.Checkbox(value=False, description="Large print (the person's pages)", indent=False)
+        self.large_print.add_class("pr-handout-large-print")
         self.preview_button = self._button("Preview", "pr-handout-preview")
         self.preview_button.on_click(lambda _b: self.on_preview())
         self.pdf_button = self._button("Prepare PDF", "pr-handout-make-pdf")
@@ -528,7 +553,7 @@ class ClinicApp:
         self.preview = w.HTML("")
         self.preview.add_class("pr-handout-frame")
         self.handout_section = self._section("4. Handout", "pr-section-handout", [
-            w.HBox([self.audience, self.paper]),
+            w.HBox([self.audience, self.paper, self.large_print]),
             w.HBox([self.preview_button, self.pdf_button, self.html_button, self.download]), self.preview])
 
     def _build_store_section(self) -> None:
@@ -624,7 +649,8 @@ class ClinicApp:
 
     @guarded("Previewing the handout")
     def on_preview(self) -> None:
-        doc = self.session.handout("html", self.audience.value, self.paper.value).decode("utf-8")
+        doc = self.session.handout("html", self.audience.value, self.paper.value,
+                                   large_print=self.large_print.value).decode("utf-8")
         self.preview.value = (f'<iframe class="pr-handout-iframe" title="handout preview" srcdoc="{_esc(doc)}" '
                               'style="width:100%;height:640px;border:1px solid #ccd;background:white"></iframe>')
 
@@ -632,7 +658,7 @@ class ClinicApp:
     def on_prepare(self, fmt: str) -> None:
         # Shown at once (a PDF takes a second or two), replaced by the link when it is ready.
         self.download.value = f'<span class="pr-preparing" role="status">Preparing the {fmt.upper()}...</span>'
-        data = self.session.handout(fmt, self.audience.value, self.paper.value)
+        data = self.session.handout(fmt, self.audience.value, self.paper.value, large_print=self.large_print.value)
         mime = "application/pdf" if fmt == "pdf" else "text/html"
         name = f"handout-{self.session.record.patient_id}.{fmt}"
         link = (f'<a class="pr-download-{fmt}" download="{_esc(name)}" '
@@ -699,6 +725,10 @@ class ClinicApp:
 
     def _refresh_swap_candidates(self) -> None:
         self.program_view.swap.refresh_candidates()
+        self._show_drawing()
+
+    def _show_drawing(self) -> None:
+        self.exercise_view.show(self.exercise_select.value, self.replacement_select.value)
 
     def _refresh_store(self) -> None:
         try:

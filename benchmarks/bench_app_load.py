@@ -1,0 +1,207 @@
+"""Benchmark: the app under load, in one run on this machine, loopback only, bounded.
+
+Serves the app with `prescribe app`'s own Voila command (preheated pool, kernel limit and
+timeouts sized to the machine: prescribe.ui.server) and drives Debian's chromium:
+
+1. single page: a fresh page until the intake form is usable, closed as a browser closes it
+   (its unload beacon stops the kernel), three times; the median is the baseline;
+2. burst: ten pages opened at once, each until the app is usable; a page that shows the
+   busy notice is counted and waited for (it retries by itself); none may stay blank;
+   goal: the slowest within 4x the single page's median;
+3. churn: thirty page opens and closes in a row; afterwards no more kernels alive than the
+   pool (no page is open);
+4. cost: memory (resident) of each idle page's kernel, and CPU seconds per extra page
+   (the kernels' and the server's CPU over the burst, divided by its pages).
+
+Run: ``.venv/bin/python benchmarks/bench_app_load.py [--burst 10] [--churn 30]``.  Exits 0
+either way (a benchmark, not a test); prints the figures and whether each goal was met.
+"""
+
+from __future__ import annotations
+
+import argparse
+import asyncio
+import os
+import statistics
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+from playwright.async_api import async_playwright
+
+ROOT = Path(__file__).resolve().parents[1]
+sys.path.insert(0, str(ROOT))
+
+from prescribe.cli.app_cmd import notebook_path, voila_command, voila_environment  # noqa: E402
+from prescribe.ui.server import server_limits  # noqa: E402
+
+CHROMIUM = "/usr/bin/chromium"
+ARGS = ["--no-sandbox", "--disable-gpu", "--disable-dev-shm-usage", "--disable-background-networking",
+        "--disable-component-update", "--disable-sync", "--no-first-run",
+        "--host-resolver-rules=MAP * ~NOTFOUND, EXCLUDE 127.0.0.1"]
+READY = ".pr-intake-submit"
+PAGE_LIMIT_S = 180  # a page not usable by then counts as blank
+GOAL_BURST = 4.0
+
+
+def free_port() -> int:
+    import socket
+    with socket.socket() as s:
+        s.bind(("127.0.0.1", 0))
+        return s.getsockname()[1]
+
+
+def kernels(server_pid: int) -> list[int]:
+    """Process ids of the server's kernels (its children running ipykernel)."""
+    out = []
+    for entry in Path("/proc").iterdir():
+        if not entry.name.isdigit():
+            continue
+        try:
+            stat = (entry / "stat").read_text()
+            ppid = int(stat.rsplit(")", 1)[1].split()[1])
+            if ppid == server_pid and b"ipykernel" in (entry / "cmdline").read_bytes():
+                out.append(int(entry.name))
+        except (OSError, ValueError, IndexError):
+            continue
+    return out
+
+
+def cpu_s(pid: int) -> float:
+    try:
+        fields = Path(f"/proc/{pid}/stat").read_text().rsplit(")", 1)[1].split()
+        return (int(fields[11]) + int(fields[12])) / os.sysconf("SC_CLK_TCK")
+    except (OSError, ValueError, IndexError):
+        return 0.0
+
+
+def rss_mb(pid: int) -> float:
+    try:
+        for line in Path(f"/proc/{pid}/status").read_text().splitlines():
+            if line.startswith("VmRSS:"):
+                return int(line.split()[1]) / 1024
+    except OSError:
+        pass
+    return 0.0
+
+
+async def guard(context, outside: list) -> None:
+    async def handler(route):
+        url = route.request.url
+        if url.startswith(("data:", "blob:")) or url.startswith("http://127.0.0.1"):
+            await route.continue_()
+        else:
+            outside.append(url)
+            await route.abort()
+    await context.route("**/*", handler)
+
+
+async def open_page(context, url: str) -> tuple[float, bool, object]:
+    """Seconds until the app is usable, whether the busy notice was seen, and the page."""
+    page = await context.new_page()
+    t0 = time.perf_counter()
+    busy = False
+    await page.goto(url, timeout=PAGE_LIMIT_S * 1000)
+    deadline = t0 + PAGE_LIMIT_S
+    while time.perf_counter() < deadline:
+        if await page.locator(READY).is_visible():
+            return time.perf_counter() - t0, busy, page
+        if await page.locator(".pr-busy").count():
+            busy = True
+        await asyncio.sleep(0.1)
+    return float("inf"), busy, page
+
+
+async def run(args) -> dict:
+    limits = server_limits()
+    with tempfile.TemporaryDirectory(prefix="bench-load-") as tmp:
+        env = voila_environment(str(Path(tmp) / "load.db"))
+        port = free_port()
+        url = f"http://127.0.0.1:{port}/"
+        log = open(Path(tmp) / "server.log", "w")
+        proc = subprocess.Popen(voila_command(port, notebook_path()), env=env, stdout=log,
+                                stderr=subprocess.STDOUT, start_new_session=True)
+        outside: list[str] = []
+        try:
+            await asyncio.sleep(15)  # the server up and its pool preheated
+            async with async_playwright() as p:
+                browser = await p.chromium.launch(executable_path=CHROMIUM, args=ARGS, headless=True)
+                context = await browser.new_context()
+                await guard(context, outside)
+                single = []
+                for _ in range(3):
+                    t, _, page = await open_page(context, url)
+                    single.append(t)
+                    await page.close(run_before_unload=True)
+                    await asyncio.sleep(8)  # the pool refilled
+                cpu0 = cpu_s(proc.pid) + sum(cpu_s(k) for k in kernels(proc.pid))
+                before = set(kernels(proc.pid))
+                results = await asyncio.gather(*(open_page(context, url) for _ in range(args.burst)))
+                burst_kernels = [k for k in kernels(proc.pid) if k not in before]
+                cpu1 = cpu_s(proc.pid) + sum(cpu_s(k) for k in kernels(proc.pid))
+                await asyncio.sleep(3)
+                idle_mb = [rss_mb(k) for k in kernels(proc.pid)]
+                for _, _, page in results:
+                    await page.close(run_before_unload=True)
+                await asyncio.sleep(8)
+                for _ in range(args.churn):
+                    _, _, page = await open_page(context, url)
+                    await page.close(run_before_unload=True)
+                await asyncio.sleep(10)  # unload beacons handled, pool refilled
+                alive_after_churn = len(kernels(proc.pid))
+                await browser.close()
+        finally:
+            proc.terminate()
+            try:
+                proc.wait(timeout=30)
+            except subprocess.TimeoutExpired:
+                proc.kill()
+    times = [t for t, _, _ in results]
+    med_single = statistics.median(single)
+    return {
+        "machine": {"cpus": limits.cpus, "memory_mb": limits.memory_mb},
+        "limits": {"max_kernels": limits.max_kernels, "pool": limits.pool_size},
+        "single_s": single, "single_median_s": med_single,
+        "burst": args.burst, "burst_s": sorted(times), "burst_busy_seen": sum(b for _, b, _ in results),
+        "burst_blank": sum(t == float("inf") for t in times),
+        "burst_slowest_ratio": max(times) / med_single,
+        "churn": args.churn, "kernels_alive_after_churn": alive_after_churn,
+        "idle_page_mb": idle_mb, "cpu_s_per_extra_page": (cpu1 - cpu0) / args.burst,
+        "burst_new_kernels": len(burst_kernels), "outside_requests": len(outside),
+    }
+
+
+def main(argv: list[str] | None = None) -> int:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--burst", type=int, default=10)
+    parser.add_argument("--churn", type=int, default=30)
+    args = parser.parse_args(argv)
+    if not os.path.exists(CHROMIUM):
+        raise SystemExit(f"{CHROMIUM} is needed (apt-get install --no-install-recommends chromium)")
+    f = asyncio.run(run(args))
+    print(f"machine: {f['machine']['cpus']} processors, {f['machine']['memory_mb']} MB; server limits: "
+          f"{f['limits']['max_kernels']} pages at once, {f['limits']['pool']} preheated; "
+          f"load average {os.getloadavg()[0]:.1f}")
+    print(f"single page open -> usable: median {f['single_median_s']:.2f} s "
+          f"({', '.join(f'{t:.2f}' for t in f['single_s'])})")
+    ok = f["burst_blank"] == 0 and f["burst_slowest_ratio"] <= GOAL_BURST
+    print(f"{f['burst']} pages at once: usable after {', '.join(f'{t:.1f}' for t in f['burst_s'])} s; "
+          f"blank {f['burst_blank']}, busy notice seen on {f['burst_busy_seen']}; slowest "
+          f"{f['burst_slowest_ratio']:.1f}x the single page (goal <= {GOAL_BURST:g}x, none blank): "
+          f"{'MET' if ok else 'NOT MET'}")
+    print(f"{f['churn']} opens and closes in a row: {f['kernels_alive_after_churn']} kernels alive after "
+          f"(pool {f['limits']['pool']}, no page open): "
+          f"{'MET' if f['kernels_alive_after_churn'] <= f['limits']['pool'] else 'NOT MET'}")
+    idle = f["idle_page_mb"]
+    if idle:
+        print(f"memory per idle page (kernel resident set): median {statistics.median(idle):.0f} MB "
+              f"(min {min(idle):.0f}, max {max(idle):.0f}, {len(idle)} kernels)")
+    print(f"CPU per extra page over the burst (kernels and server): {f['cpu_s_per_extra_page']:.2f} s; "
+          f"requests off 127.0.0.1: {f['outside_requests']}")
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
