@@ -75,7 +75,7 @@ class ExplainView:
         ids = [i for i, _ in exercises]
         self._syncing = True
         try:
-            self.select.options = [(f"{name} ({i})", i) for i, name in exercises]
+            self.select.options = [(name, i) for i, name in exercises]  # names only: no ids on the page
             self.select.value = keep if keep in ids else (ids[0] if ids else None)
         finally:
             self._syncing = False

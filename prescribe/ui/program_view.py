@@ -162,8 +162,8 @@ class SwapPanel:
         options = []
         for cid, name in candidates:
             e = entries.get(cid)
-            detail = (f" (level {pm.level_words(e.impact_level)}; about {e.peak_grf_bw:g} x body weight; "
-                      "the dose stays as prescribed)" if e is not None else "")
+            detail = (f" (level {pm.level_words(e.impact_level)}; about {e.peak_grf_bw:g} x body weight)"
+                      if e is not None else "")
             options.append((f"{name}{detail}", cid))
         keep = prefer or self.replacement_select.value
         ids = [cid for _, cid in options]

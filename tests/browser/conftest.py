@@ -94,7 +94,10 @@ def app_server(tmp_path_factory):
     _require_chromium()
     folder = tmp_path_factory.mktemp("app")
     db_path = folder / "clinic.db"
-    env = {**os.environ, "PRESCRIBE_DB": str(db_path)}
+    # A clinic settings file of the test's own (none yet: the app asks for the clinic once).
+    env = {**os.environ, "PRESCRIBE_DB": str(db_path), "XDG_CONFIG_HOME": str(folder / "config")}
+    for var in ("PRESCRIBE_SETTINGS", "PRESCRIBE_CLINIC_NAME", "PRESCRIBE_CLINIC_CONTACT"):
+        env.pop(var, None)
     init = subprocess.run([*prescribe_exe(), "db", "init"], env=env, capture_output=True, text=True, timeout=120)
     if init.returncode != 0:
         raise RuntimeError(f"prescribe db init failed: {init.stderr}")
