@@ -8,7 +8,8 @@ In one run this script serves (a) a bare one-widget Voila page (a button and a l
   shows, page open -> first screening on screen (the form filled and submitted at once) (N fresh pages each, alternating so machine load hits both alike, with
   a pause after each page so a closed page's leftover work does not land in the next);
 * round trip: a bare button click until its label changes, against a start-level change
-  until the program chart is redrawn (N each, on one page).
+  until both the program chart and the program's week view (day by day) are redrawn
+  (N each, on one page).
 
 Goals (issue 7): app open at most 1.3 x the bare page; start-level redraw at most 2 x the
 bare round trip.  Prints the medians and the ratios; exits 0 either way (a benchmark,
@@ -56,6 +57,8 @@ w.VBox([button, label])"""
 
 LEVEL_LINE_JS = """() => Array.from(document.querySelectorAll('.pr-chart-level path'))
   .map(p => p.getAttribute('d') || '').join('|')"""
+#: The program's week, day by day (prescribe/ui/program_view.py): redrawn by every change.
+DAYS_JS = """() => (document.querySelector('.pr-program-days') || {}).innerText || ''"""
 
 
 def free_port() -> int:
@@ -156,9 +159,12 @@ def app_round_trips(context, url: str, n: int) -> list[float]:
     labels = ["2 - moderate impact", "1 - low impact"]
     for i in range(n):
         before = page.evaluate(LEVEL_LINE_JS)
+        days_before = page.evaluate(DAYS_JS)
         t0 = time.perf_counter()
         page.locator(".pr-option-start_level select").select_option(label=labels[i % 2])
+        # Done when the chart and the program's week view (day by day, the larger view) both show it.
         page.wait_for_function(f"(before) => ({LEVEL_LINE_JS})() !== before", arg=before, timeout=60_000)
+        page.wait_for_function(f"(before) => ({DAYS_JS})() !== before", arg=days_before, timeout=60_000)
         out.append(time.perf_counter() - t0)
     page.close()
     return out

@@ -721,6 +721,7 @@ class ClinicApp:
             self.download.value = ""
         if store:
             self._refresh_store()
+            self.clinic_settings.refresh()  # another page may have set the clinic meanwhile
         self.live.refresh()
 
     def _refresh_swap_candidates(self) -> None:
