@@ -334,3 +334,18 @@ def test_the_demo_writes_the_invented_clinic_to_the_settings_file(tmp_path, monk
     monkeypatch.setenv("PRESCRIBE_SETTINGS", str(target))
     assert settings.clinic() == demo.DEMO_CLINIC
     assert "555-0100" in settings.clinic().contact
+
+
+def test_a_rebuild_never_replays_a_swap_into_an_exercise_the_program_already_has(app):
+    session = app.session
+    used = [i for i, _ in session.plan_exercises()]
+    from prescribe.catalogue import default_catalogue
+    cat = default_catalogue()
+    old, new = next((a, b) for a in used for b in used
+                    if a != b and cat.get(a).category == cat.get(b).category)
+    # A kept swap whose replacement the rebuilt program already uses (the planner chose it itself).
+    session.swaps = [(old, new)]
+    assert session.build(), session.refusal
+    after = [i for i, _ in session.plan_exercises()]
+    assert old in after and new in after  # both kept: nothing merged
+    assert session.swaps == [] and old in session.program_note

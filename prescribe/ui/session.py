@@ -142,8 +142,10 @@ class ClinicSession:
         def make():
             plan = build_plan(self.record, self.screening, plan_options(**options))
             for old, new in self.swaps:
-                # A swap applies while the exercise it replaced is still chosen by the planner.
-                if any(e.exercise_id == old for w in plan.weeks for s in w.sessions for e in s.exercises):
+                # A swap applies while the exercise it replaced is still chosen by the planner and the
+                # replacement is not (a swap never merges two exercises of the program into one).
+                used = {e.exercise_id for w in plan.weeks for s in w.sessions for e in s.exercises}
+                if old in used and new not in used:
                     plan = replace(plan, old, new)
                     applied.append((old, new))
             problems = list(check(plan, self.screening))
@@ -154,8 +156,8 @@ class ClinicSession:
         if plan is None:
             return False
         dropped = [old for old, new in self.swaps if (old, new) not in applied]
-        self.program_note = ("The new program no longer uses " + ", ".join(dropped) + ", so the swap "
-                             "made for it no longer applies." if dropped else None)
+        self.program_note = ("The swap made for " + ", ".join(dropped) + " no longer applies: the new program "
+                             "no longer uses it, or already has its replacement." if dropped else None)
         self.options, self.plan, self.swaps = options, plan, applied
         return True
 
