@@ -349,3 +349,7 @@ def test_a_rebuild_never_replays_a_swap_into_an_exercise_the_program_already_has
     after = [i for i, _ in session.plan_exercises()]
     assert old in after and new in after  # both kept: nothing merged
     assert session.swaps == [] and old in session.program_note
+
+
+def test_an_effort_with_its_own_note_reads_without_nested_brackets():
+    assert pm.load_words(_ex(intensity="RPE 7-8 (an 8-12RM load)")) == "very hard effort, RPE 7-8 (an 8-12RM load)"

@@ -76,7 +76,7 @@ def load_words(ex: Any) -> str:
         high = float(rpe.group(2)) if rpe.group(2) else low
         words = effort_words(low) if effort_words(low) == effort_words(high) else \
             f"{effort_words(low)} to {effort_words(high)}"
-        parts.append(f"{words} effort ({intensity})")
+        parts.append(f"{words} effort, {intensity}" if "(" in intensity else f"{words} effort ({intensity})")
     elif intensity:
         parts.append(intensity)
     kg = extra(ex, "load_kg")

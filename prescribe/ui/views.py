@@ -622,6 +622,7 @@ class ClinicApp:
         for kind, dd in self.sessions.items():
             # Back to "planner's choice" clears the option (None), rather than keeping the last number.
             changes[f"{kind}_sessions_per_week"] = None if dd.value == AUTO else dd.value
+        self.program_view.swap.status.value = ""  # what the last swap changed no longer describes the page
         self.session.build(**changes)
         self.refresh(store=False)
 
