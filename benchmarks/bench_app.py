@@ -72,6 +72,11 @@ def serve(notebook: Path, env: dict) -> tuple[subprocess.Popen, str]:
     cmd = voila_command(port, notebook)
     # Cull closed pages' kernels quickly so N pages do not pile up (same for both servers).
     cmd = [a for a in cmd if "cull_idle_timeout" not in a and "cull_interval" not in a]
+    # Without the preheated pool, for both servers alike: a bare page built in a preheated
+    # kernel stayed at "Loading widget..." on every other open here (the app re-reads its state
+    # when a page takes its kernel; a bare notebook does not), so the baseline could not be
+    # measured with it.  Cold kernels on both sides make the app's ratio the conservative one.
+    cmd = [a for a in cmd if not a.startswith(("--preheat_kernel", "--pool_size", "--VoilaKernelManager.fill_delay"))]
     cmd += ["--MappingKernelManager.cull_idle_timeout=5", "--MappingKernelManager.cull_interval=2"]
     proc = subprocess.Popen(cmd, env=env, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL,
                             start_new_session=True)
