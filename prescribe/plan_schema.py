@@ -55,6 +55,17 @@ class PlannedWeek(_Open):
     sessions: list[PlannedSession]
 
 
+class PlanTemplate(_Open):
+    """The template a program was built from: which document, and which version of it."""
+
+    name: str
+    title: str = ""
+    summary: str = ""
+    version: int | None = Field(None, ge=1, description="The template's version (1 for a shipped file "
+                                                         "unless it says otherwise).")
+    origin: str | None = Field(None, description='"shipped" (a file of the package) or "clinic" (the store).')
+
+
 class Plan(_Open):
     plan_format_version: str = PLAN_FORMAT_VERSION
     patient_id: str
@@ -65,6 +76,9 @@ class Plan(_Open):
     cautions: list[str]
     sources: list[str]
     weeks: list[PlannedWeek] = Field(min_length=1)
+    template: PlanTemplate | None = None
+    template_version: int | None = Field(None, ge=1, description="Version of the template used (null in plans "
+                                                                  "made before versions were recorded).")
 
 
 def parse_plan(data: Any, source: str | None = None) -> Plan:

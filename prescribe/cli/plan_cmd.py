@@ -91,9 +91,10 @@ def run(args) -> int:
         emit_json(plan)
         return 0
     out = sys.stdout
-    extra = plan.model_extra or {}
+    tpl = plan.template
+    tpl_text = "?" if tpl is None else tpl.name + (f"@{tpl.version}" if tpl.version else "")
     out.write(f"Program for {plan.patient_id}: {len(plan.weeks)} weeks, template "
-              f"{extra.get('template', {}).get('name', '?')}, highest impact level allowed "
+              f"{tpl_text}, highest impact level allowed "
               f"{plan.screening.max_impact_level} (screening rule set {plan.ruleset_version})\n\n")
     table = weekly_summary(plan)
     rows = table.astype(object).where(table.notna(), None).to_dict("records")
