@@ -19,7 +19,7 @@ from pathlib import Path
 
 import pytest
 
-from prescribe.store import open_store
+from prescribe.store import HEAD_REVISION, open_store
 from test_store_support import PYTHON, python_env
 
 TESTS = Path(__file__).resolve().parent
@@ -266,7 +266,7 @@ def test_four_processes_creating_the_same_new_store_at_once(tmp_path):
             assert proc.exitcode == 0 and out.read_text() == "ok", out.read_text()
         with open_store(str(db)) as store:
             assert sorted(p["patient_id"] for p in store.list_patients()) == [f"NEW-{w}" for w in range(4)]
-            assert store.revision() == "0002"
+            assert store.revision() == HEAD_REVISION
         assert _integrity(db) == "ok"
 
 
