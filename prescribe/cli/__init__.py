@@ -27,6 +27,8 @@ COMMAND_MODULES = (
     "handout_cmd",    # prescribe handout
     "app_cmd",        # prescribe app
     "store_cmd",      # prescribe db, save, export, import
+    "template_cmd",   # prescribe template list|show|check|add|approve|retire|compare
+    "caseload_cmd",   # prescribe caseload export|whatif
 )
 
 

@@ -291,6 +291,30 @@ class Store:
                  "latest_category": r.bone_density_category, "latest_screening": r.screened,
                  "latest_program_version": r.version} for r in rows]
 
+    def caseload(self) -> list[tuple[str, dict]]:
+        """Everyone's stored record as ``(patient_id, record dict)``, by id, in one read.
+
+        The records were validated when saved; callers that need models parse them.
+        """
+        with self._read() as conn:
+            rows = conn.execute(select(m.people.c.patient_id, m.people.c.record_json)
+                                .order_by(m.people.c.patient_id)).all()
+        return [(r.patient_id, json.loads(r.record_json)) for r in rows]
+
+    def latest_program_templates(self) -> dict[str, tuple[str | None, int | None]]:
+        """Each person's latest program's template name and version, as its summary records them."""
+        with self._read() as conn:
+            latest = (select(m.program_versions.c.patient_id, func.max(m.program_versions.c.version).label("v"))
+                      .group_by(m.program_versions.c.patient_id).subquery())
+            rows = conn.execute(select(m.program_versions.c.patient_id, m.program_versions.c.summary_json)
+                                .join(latest, (latest.c.patient_id == m.program_versions.c.patient_id)
+                                      & (latest.c.v == m.program_versions.c.version))).all()
+        out = {}
+        for r in rows:
+            summary = json.loads(r.summary_json)
+            out[r.patient_id] = (summary.get("template"), summary.get("template_version"))
+        return out
+
     def screenings(self, patient_id: str) -> list[dict]:
         """Every screening of one person, oldest first."""
         with self._read() as conn:
