@@ -102,9 +102,13 @@ def _versioned(ref: str) -> tuple[str, int]:
 @contextmanager
 def _named(ref: str, store):
     """A version that is not in the store is bad input naming NAME@VERSION (exit 2)."""
-    from ..errors import NotFoundError
+    from ..errors import FieldProblem, NotFoundError
     try:
         yield
+    except InputError as exc:  # name the command-line options the user typed
+        option = {"clinician": "--clinician", "review_by": "--review-by"}
+        raise InputError([FieldProblem(option.get(p.field, p.field), p.value, p.allowed, p.kind)
+                          for p in exc.problems], exc.source) from None
     except NotFoundError:
         raise InputError.single("NAME@VERSION", ref, f"a clinic template version stored in {store.where} "
                                                      "(see `prescribe template list`)") from None
