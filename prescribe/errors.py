@@ -93,6 +93,50 @@ class PlanRequestRefused(PrescribeError):
         super().__init__(f"refused ({rule}): {reason}")
 
 
+class UnsafeProgram(InputError, PlanRequestRefused):
+    """A program breaks a safety rule (:mod:`prescribe.safety`): refused at every door.
+
+    Bad input (the command line exits 2); also a :class:`PlanRequestRefused`, so code
+    that refuses an edit catches both.  ``violations`` holds every
+    :class:`~prescribe.safety.SafetyViolation`; ``rule`` is the first one's rule id.
+    The message names the door, then each broken rule with its week, its exercise and
+    what is allowed.
+    """
+
+    exit_code = 2
+    #: Violations shown in the message; the rest are counted.
+    SHOWN = 5
+
+    def __init__(self, violations: list, door: str = ""):
+        self.violations = list(violations)
+        self.door = door
+        first = self.violations[0] if self.violations else None
+        self.rule = first.rule if first else "safety"
+        self.reason = first.message if first else ""
+        self.field = "program"
+        self.value = None
+        self.source = door or None
+        self.problems = [FieldProblem(_where(v), None, v.allowed) for v in self.violations]
+        head = f"{door}: " if door else ""
+        lines = [v.text() for v in self.violations[:self.SHOWN]]
+        more = len(self.violations) - self.SHOWN
+        if more > 0:
+            lines.append(f"... and {more} more")
+        n = len(self.violations)
+        text = (head + f"refused: the program breaks {n} safety rule check{'s' if n != 1 else ''}: "
+                + ("; ".join(lines) if n <= 1 else "\n  - " + "\n  - ".join(lines)))
+        Exception.__init__(self, text)
+
+
+def _where(v) -> str:
+    parts = [f"rule {v.rule}"]
+    if v.week is not None:
+        parts.append(f"week {v.week}")
+    if v.exercise_id:
+        parts.append(f"exercise {v.exercise_id}")
+    return ", ".join(parts)
+
+
 class PlanFileError(InputError):
     """A plan file is malformed or from an incompatible version."""
 

@@ -914,93 +914,32 @@ def _extra(model, key, default=None):
     return extra.get(key, default)
 
 
-def check_plan(plan: Plan, screening: ScreeningResult | None = None) -> list[str]:
-    """Violations of rules 1, 2 (one level at a time), 3, 4 and 5; empty when the plan is safe.
+#: The rule number of docs/plan.md each rule of :mod:`prescribe.safety` belongs to (for check_plan's text).
+_PLAN_RULE_NUMBER = {
+    "impact_cap": "rule 1", "avoided_pattern": "rule 1", "week_level_matches": "rule 1",
+    "one_level_at_a_time": "rule 2", "weak_window": "rule 3",
+    "impact_counts_match": "rule 4", "session_ceiling": "rule 4", "bout_split": "rule 4",
+    "two_directions": "rule 5",
+}
 
-    Works on any plan, also one edited by hand, so the app can refuse unsafe edits.
-    Each message starts with the rule, e.g. ``"rule 3: week 9 ..."``.
+
+def check_plan(plan: Plan, screening: ScreeningResult | None = None) -> list[str]:
+    """The safety check's violations as text; empty when the plan is safe.
+
+    A thin wrapper of :func:`prescribe.safety.check_program` (the one check, called at
+    every door).  Each message starts with the rule: ``"rule 3: week 9 ..."`` for the
+    planner's numbered rules 1-5 (docs/plan.md), or the safety rule's id for the others.
 
     Parameters
     ----------
     plan : Plan
     screening : ScreeningResult, optional
-        The screening to hold the plan to (default: the one stored in the plan).
+        A screening to hold the plan to, besides the one stored in the plan (the
+        stricter of the two applies).
     """
-    screening = screening or plan.screening
-    cap, avoid = screening.max_impact_level, set(screening.avoid)
-    max_imp = _extra(plan, "max_impacts_per_session", IMPACTS_CEILING)
-    reason = _extra(plan, "max_impacts_reason", "")
-    if max_imp > IMPACTS_CEILING and not reason:
-        max_imp = IMPACTS_CEILING
-    out: list[str] = []
-    levels, counts = [], []
-    for wk in plan.weeks:
-        w = wk.week
-        top, session_max = 0, 0
-        dirs: set[str] = set()
-        by_day: dict[int, list] = {}
-        for s in wk.sessions:
-            n = 0
-            day_ex = by_day.setdefault(s.day, [])
-            for x in s.exercises:
-                lv = x.impact_level
-                if lv > top:
-                    top = lv
-                if avoid and not avoid.isdisjoint(x.patterns):
-                    out.append(f"rule 1: week {w} day {s.day}: {x.exercise_id} involves "
-                               f"{', '.join(sorted(avoid.intersection(x.patterns)))}, which the screening "
-                               "asks to avoid")
-                if lv >= 2:
-                    n += x.impacts
-                    dirs.update(x.directions)
-                    if x.impacts > 0:
-                        day_ex.append(x)
-            if n != s.impacts:
-                out.append(f"rule 4: week {w} day {s.day}: session impacts {s.impacts} do not add up to the "
-                           f"exercises' level 2-3 impacts {n}")
-            if n > session_max:
-                session_max = n
-        if wk.impact_level > cap or top > cap:
-            out.append(f"rule 1: week {w} reaches impact level {max(top, wk.impact_level)}, above the "
-                       f"screening's max_impact_level {cap}")
-        if top != wk.impact_level:
-            out.append(f"rule 1: week {w} says impact level {wk.impact_level} but its exercises reach {top}")
-        if session_max != wk.impacts_per_session:
-            out.append(f"rule 4: week {w}: impacts_per_session {wk.impacts_per_session} is not the largest "
-                       f"session's {session_max}")
-        if session_max > max_imp:
-            out.append(f"rule 4: week {w}: {session_max} impacts in a session, above the {max_imp} allowed")
-        for day, impact_ex in by_day.items():
-            total = sum(x.impacts for x in impact_ex)
-            if total > 50:
-                need = math.ceil(total / 50)
-                for x in impact_ex:
-                    gap = _extra(x, "bout_gap_hours")
-                    if x.bouts < need or gap is None or gap < MIN_BOUT_GAP_H:
-                        out.append(f"rule 4: week {w} day {day}: {total} impacts in the day need at least {need} "
-                                   f"bouts at least {MIN_BOUT_GAP_H:g} h apart ({x.exercise_id} has "
-                                   f"{x.bouts} bout(s), gap {gap} h)")
-        if top >= 2 and len(dirs) < 2:
-            out.append(f"rule 5: week {w} loads at impact level {top} in {len(dirs)} direction(s); "
-                       "at least two are required from moderate impact on")
-        levels.append(top)
-        counts.append(session_max)
-    for i in range(1, len(levels)):  # week 1 is the start level the clinician or planner chose
-        if levels[i] > levels[i - 1] + 1:
-            out.append(f"rule 2: week {i + 1} steps up from impact level {levels[i - 1]} to {levels[i]}; "
-                       "one level at a time")
-    for i, lv in enumerate(levels):
-        if lv > (levels[i - 1] if i else 0):
-            for j in (i + 2, i + 3, i + 4):  # window weeks 3, 4, 5 against window week 2 (index i + 1)
-                if j >= len(levels):
-                    break
-                if levels[j] > levels[i + 1]:
-                    out.append(f"rule 3: week {j + 1} raises the impact level to {levels[j]} inside the window "
-                               f"after the step-up in week {i + 1} (week 2 of it had level {levels[i + 1]})")
-                if counts[j] > counts[i + 1]:
-                    out.append(f"rule 3: week {j + 1} has {counts[j]} impacts a session inside the window after "
-                               f"the step-up in week {i + 1}, more than the {counts[i + 1]} of its week 2")
-    return out
+    from .safety import check_program
+
+    return [f"{_PLAN_RULE_NUMBER.get(v.rule, v.rule)}: {v.message}" for v in check_program(plan, screening)]
 
 
 def replace_exercise(plan: Plan, old_id: str, new_id: str, catalogue=None) -> Plan:
@@ -1014,8 +953,9 @@ def replace_exercise(plan: Plan, old_id: str, new_id: str, catalogue=None) -> Pl
     ------
     InputError
         ``old_id`` is not in the plan or ``new_id`` is not in the catalogue.
-    PlanRequestRefused
-        The swapped plan would break a rule (1 to 5) of :func:`check_plan`.
+    UnsafeProgram
+        The swapped plan would break a rule of :func:`prescribe.safety.check_program`
+        (an :class:`InputError` and a :class:`PlanRequestRefused`).
     """
     if catalogue is None:
         from .catalogue import default_catalogue
@@ -1049,9 +989,6 @@ def replace_exercise(plan: Plan, old_id: str, new_id: str, catalogue=None) -> Pl
     # Kept with the plan, so a reopened program can be rebuilt with the same swaps.
     data["swaps"] = [*(data.get("swaps") or []), {"old": old_id, "new": new_id}]
     new_plan = Plan.model_validate(data)
-    problems = check_plan(new_plan)
-    if problems:
-        rule = problems[0].split(":", 1)[0]
-        raise PlanRequestRefused(rule, f"replacing {old_id} with {new_id} would break it: {problems[0]}",
-                                 field="new_id", value=new_id)
+    from .safety import assert_safe
+    assert_safe(new_plan, door=f"replacing {old_id} with {new_id}", catalogue=catalogue)
     return new_plan
