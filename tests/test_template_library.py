@@ -263,3 +263,13 @@ def test_show_writes_toml_that_reads_back_to_the_same_template(store):
     assert back["document"]["status"] == "draft" and back["document"]["author"] == "Lead A"
     assert field_differences(back, tv.body) == []
     assert template_problems(back) == []
+
+
+def test_the_clinicians_handout_page_names_the_template_and_its_version(store):
+    from prescribe.handout import render_html
+    add_document(store, standard_doc(), "Lead A")
+    store.approve_template("riverside_standard", 1, "Lead B")
+    plan = build_plan(reference_records()[1], template=resolve("riverside_standard", store).template())
+    page = render_html(plan, audience="clinician")
+    assert "<th scope=\"row\">Template</th><td>riverside_standard@1 (clinic)</td>" in page
+    assert "riverside_standard@1" not in render_html(plan, audience="person")

@@ -318,6 +318,9 @@ class ClinicSession:
             out.append({"version": row["version"], "based_on_version": row.get("based_on_version"),
                         "clinician": row.get("clinician"), "saved": row.get("created"),
                         "weeks": summary.get("weeks"), "max_impact_level": summary.get("max_impact_level"),
+                        "template": (f"{summary['template']}@{summary['template_version']}"
+                                     if summary.get("template") and summary.get("template_version")
+                                     else summary.get("template")),
                         "note": row.get("note")})
         return out
 

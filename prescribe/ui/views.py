@@ -24,6 +24,7 @@ from ..errors import InputError, PrescribeError
 from ..records import SEVERITIES
 from . import form_spec
 from .session import IMPACT_LABELS, ClinicSession, EngineMissing
+from .templates_view import TemplatesView, program_notice_html
 
 log = logging.getLogger("prescribe.ui")
 
@@ -349,12 +350,13 @@ class ClinicApp:
         self._build_program_section()
         self._build_handout_section()
         self._build_store_section()
+        self.templates_view = TemplatesView(self.session)  # the clinic lead's section (loads when opened)
         title = w.HTML("<h1 style='font-size:22px;margin:4px 0'>prescribe: bone-loading program builder</h1>"
                        "<p>Decision support for clinicians. Work down the page: person, screening, program, "
                        "handout, save.</p>")
         self.widget = w.VBox([w.HTML(STYLE), title, self.errors.widget, cautions_box(),
                               self.person_section, self.screening_section, self.program_section,
-                              self.handout_section, self.store_section])
+                              self.handout_section, self.store_section, self.templates_view.widget])
         self.widget.add_class("pr-app")
         self.warm_thread: threading.Thread | None = None
         self._warm_lock = threading.Lock()
@@ -675,4 +677,4 @@ class ClinicApp:
         self.load_select.options = [("- choose -", None)] + [(p, p) for p in people]
         if current in people:
             self.load_select.value = current
-        self.history.value = table_html(versions)
+        self.history.value = table_html(versions) + program_notice_html(self.session)
