@@ -185,19 +185,22 @@ def _plain(v: Any) -> Any:
 
 
 def plan_key(record, screening) -> tuple:
-    """Everything of a person the planner reads (besides the id): two people with the same
-    key get the same program under the same template and options.
+    """Everything of a person that a program's compared figures depend on (besides the id):
+    two people with the same key get the same figures under the same template and options.
 
-    The planner reads the screening's category, impact cap, avoid list, falls risk,
-    balance-first, referral and supervision marks and cautions, and from the record the
-    fracture sites and low-trauma count and the condition codes (``prescribe/planner.py``).
-    A test checks cached and uncached what-ifs agree.
+    The planner reads the screening's category, impact cap, avoid list, falls-risk,
+    balance-first, referral and supervision marks (and its cautions, which are text and
+    change no figure), and from the record whether there is a vertebral fracture, whether
+    there are two or more low-trauma fractures, and marked thoracic kyphosis
+    (``prescribe/planner.py``); the safety check reads the same screening marks
+    (``prescribe/safety.py``).  A test checks that cached and uncached what-ifs agree.
     """
     s = screening
-    return (s.bone_density_category, s.max_impact_level, tuple(s.avoid), s.falls_risk, s.balance_first,
-            s.refer, s.supervision, tuple(s.cautions), tuple(f.rule for f in s.flags),
-            tuple(sorted({f.site for f in record.fractures})), sum(1 for f in record.fractures if f.low_trauma),
-            tuple(sorted(record.conditions)))
+    return (s.bone_density_category, s.max_impact_level, tuple(sorted(s.avoid)), bool(s.falls_risk),
+            bool(s.balance_first), bool(s.refer), bool(s.supervision),
+            any(f.site == "vertebra" for f in record.fractures),
+            sum(1 for f in record.fractures if f.low_trauma) >= 2,
+            "thoracic_kyphosis" in record.conditions)
 
 
 def _program_figures(record, screening, tpl, catalogue, cache: dict | None) -> dict:
