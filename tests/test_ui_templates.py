@@ -143,3 +143,29 @@ def test_the_app_has_the_section_and_marks_a_program_from_a_retired_version(tmp_
     store.retire_template("clinic_standard", 1, "Lead B")
     app.refresh()
     assert "retired by Lead B" in text(app.history)
+
+
+def test_a_program_from_a_clinic_template_keeps_it_when_changed_in_the_app(tmp_db):
+    from prescribe.planner import build_plan
+    from prescribe.template_library import resolve
+    session = ClinicSession(store_url=tmp_db)
+    view = TemplatesView(session)
+    view.widget.selected_index = 0
+    view.select.value = "standard@1"
+    view.open_button.click()
+    view.clinician.value = "Lead A"
+    view.on_save()
+    view.clinician.value = "Lead B"
+    view.on_approve()
+    store = session.store
+    rec = random_records(1, seed=3)[0]
+    plan = build_plan(rec, template=resolve("clinic_standard@1", store).template())
+    store.save_patient(rec, plan.screening)
+    store.save_program(rec.patient_id, plan.model_dump(mode="json"), "Lead A", None)
+    session.load(rec.patient_id)
+    assert session.build(weeks=20)
+    assert (session.plan.template.name, session.plan.template_version) == ("clinic_standard", 1)
+    store.retire_template("clinic_standard", 1, "Lead B")
+    assert session.build(weeks=22)
+    assert session.plan.template.origin == "shipped"
+    assert "can no longer build programs" in session.program_note
