@@ -228,7 +228,12 @@ def check_document(doc: dict, *, random_people: int = 50, seed: int = 2026, sour
     report: dict = {"name": doc.get("name"), "source": source,
                     "problems": [p.as_dict() for p in problems], "refusals": [], "people_checked": 0}
     if not problems:
-        tpl = dataclasses.replace(parse_template(body_of(doc), source), origin="clinic")
+        try:
+            tpl = dataclasses.replace(parse_template(body_of(doc), source), origin="clinic")
+        except TemplateError as exc:  # a problem the field check does not name: still bad input
+            problems = [FieldProblem(exc.key or "template", None, f"a valid template ({exc.problem})")]
+            report["problems"] = [p.as_dict() for p in problems]
+    if not problems:
         people = reference_records() + random_records(random_people, seed)
         outcomes = panel_outcomes(tpl, people)
         report["refusals"] = [r for o in outcomes for r in o.refusals]
@@ -274,6 +279,10 @@ def add_document(store, doc: dict, clinician: str, note: str | None = None) -> T
         raise InputError.single("name", name, "a name of the clinic's own (the shipped templates " +
                                 ", ".join(template_names()) + " are read-only; copy one under a new name)")
     body = body_of({**doc, "name": name})
+    try:
+        parse_template(body, f"template {name}")
+    except TemplateError as exc:
+        raise InputError.single(exc.key or "template", name, f"a valid template ({exc.problem})") from None
     rows = store.templates(name)
     previous = _from_row(rows[-1]) if rows else None
     text = note if note is not None else doc.get("change_note")
