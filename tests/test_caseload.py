@@ -137,3 +137,15 @@ def test_whatif_command_writes_the_changes_csv(caseload, draft_rules, tmp_path):
     assert bad.returncode == 2 and "--rules" in bad.stderr
     bad = run_cli("caseload", "whatif", "--template", "nosuch@1", "--db", str(path))
     assert bad.returncode == 2 and "--template" in bad.stderr
+
+
+def test_text_progress_draws_one_line_and_ends_it():
+    import io
+    from prescribe.caseload import text_progress
+    out = io.StringIO()
+    show = text_progress(out)
+    for done in (0, 50, 50, 100):
+        show(done, 100)
+    text = out.getvalue()
+    assert text.count("\r[") == 3  # the repeated 50% is not redrawn
+    assert "[##########..........]  50%  50 / 100 people" in text and text.endswith("100 / 100 people\n")
