@@ -12,7 +12,7 @@ import pytest
 
 from conftest import run_cli
 from prescribe.cli import main
-from prescribe.store import open_store
+from prescribe.store import HEAD_REVISION, open_store
 from test_store_support import plan, sha256
 
 
@@ -61,7 +61,7 @@ def _fails(result, code, *words):
 
 def test_db_init_creates_and_is_repeatable(cli_here, tmp_db):
     first = _ok(cli_here("db", "init"))
-    assert first["revision"] == first["head_revision"] == "0002" and first["db"] == tmp_db
+    assert first["revision"] == first["head_revision"] == HEAD_REVISION and first["db"] == tmp_db
     assert _ok(cli_here("db", "init"))["people"] == 0
 
 
