@@ -251,9 +251,11 @@ N_PLANS = 10_000
 
 def test_rules_hold_in_10000_clinic_like_plans():
     """Seeds 0-9,999 (reproducible: a failure names its seed). The coverage is asserted, so the
-    headline stays true: measured when written, 27.5% of the plans reach moderate or high
-    impact, 5.6% split a day's impacts into bouts, 14% are refused a step-up week (each refusal
-    checked) and 12% a start level above the cap."""
+    headline stays true: measured when written, 27.5% of the plans reached moderate or high
+    impact; since a 30-s chair stand below the norm (frail) caps impact at low and a fragility
+    hip or vertebral fracture is osteoporosis whatever the T-score, 22.8% do; 5.6% split a day's
+    impacts into bouts, 14% are refused a step-up week (each refusal checked) and 12% a start
+    level above the cap."""
     seen = {"level_2_3": 0, "split": 0, "refused_step_up": 0, "refused_start": 0}
     for seed in range(N_PLANS):
         try:
@@ -264,7 +266,7 @@ def test_rules_hold_in_10000_clinic_like_plans():
         seen["split"] += bool(out.get("split"))
         seen["refused_step_up"] += out.get("refused") == "step_up_weeks"
         seen["refused_start"] += out.get("refused") == "start_level"
-    assert seen["level_2_3"] >= N_PLANS // 4, seen
+    assert seen["level_2_3"] >= N_PLANS // 5, seen
     assert seen["split"] >= N_PLANS // 20, seen
     assert seen["refused_step_up"] >= N_PLANS // 100 and seen["refused_start"] >= N_PLANS // 100, seen
 

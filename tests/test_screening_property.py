@@ -53,7 +53,13 @@ def test_result_is_always_bounded_and_cautioned(record):
     if any(f.severity == "clear_first" for f in result.flags):
         assert result.refer
     assert result.cautions[:3] and all(c for c in result.cautions)
-    assert (result.bone_density_category == "unknown") == (result.lowest_t_score is None)
+    # No T-score: unknown, unless a fragility hip or vertebral fracture diagnoses osteoporosis
+    # clinically (Siris et al. 2014, Osteoporos Int 25:1439-1443, from memory).
+    clinical = "bone_density.clinical_osteoporosis" in [f.rule for f in result.flags]
+    if result.lowest_t_score is None:
+        assert result.bone_density_category == ("osteoporosis" if clinical else "unknown")
+    else:
+        assert result.bone_density_category != "unknown"
 
 
 @SETTINGS

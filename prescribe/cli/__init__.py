@@ -29,6 +29,7 @@ COMMAND_MODULES = (
     "store_cmd",      # prescribe db, save, export, import
     "template_cmd",   # prescribe template list|show|check|add|approve|retire|compare
     "caseload_cmd",   # prescribe caseload export|whatif
+    "explain_cmd",    # prescribe explain
 )
 
 

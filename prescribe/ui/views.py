@@ -23,6 +23,7 @@ from ..cautions import STANDARD_CAUTIONS
 from ..errors import InputError, PrescribeError
 from ..records import SEVERITIES
 from . import form_spec
+from .explain_view import ExplainView
 from .session import IMPACT_LABELS, ClinicSession, EngineMissing
 from .templates_view import TemplatesView, program_notice_html
 
@@ -348,6 +349,8 @@ class ClinicApp:
         self._build_person_section()
         self._build_screening_section()
         self._build_program_section()
+        self.explain_view = ExplainView(self)  # the loads explained, beside the program
+        self.program_section.children += (self.explain_view.widget,)
         self._build_handout_section()
         self._build_store_section()
         self.templates_view = TemplatesView(self.session)  # the clinic lead's section (loads when opened)
@@ -648,6 +651,7 @@ class ClinicApp:
         self.dose.value = ("<p>" + " &middot; ".join(f"{_esc(k.replace('_', ' '))}: <b>{_esc(v)}</b>"
                                                      for k, v in figures.items()) + "</p>") if figures else ""
         self.week_table.value = table_html(s.week_rows(), css="pr-weeks")
+        self.explain_view.refresh()
         if s.plan is None:
             self.preview.value = ""
             self.download.value = ""
