@@ -29,7 +29,8 @@ from typing import Any, Callable, Iterable
 import numpy as np
 import pandas as pd
 
-from .batch_io import RECORD_COLUMNS, _FLOAT_COLUMNS, _atomic_write, _fmt, format_fractures
+from .batch_io import (RECORD_COLUMNS, _FLOAT_COLUMNS, _TEXT_COLUMNS, _atomic_write, _fmt, format_fractures,
+                       spreadsheet_text)
 from .cautions import with_standard
 from .records import T_SCORE_SITES
 
@@ -72,7 +73,10 @@ def write_caseload_csv(dicts: Iterable[dict], path: str | Path) -> int:
     writer.writeheader()
     n = 0
     for d in dicts:
-        writer.writerow(record_row(d))
+        row = record_row(d)
+        for col in _TEXT_COLUMNS:  # never a cell a spreadsheet would run as a formula
+            row[col] = spreadsheet_text(row[col])
+        writer.writerow(row)
         n += 1
     _atomic_write(path, buf.getvalue())
     return n
@@ -305,7 +309,7 @@ def write_whatif_csv(result: WhatIf, path: str | Path) -> int:
     writer = csv.DictWriter(buf, fieldnames=["patient_id", "field", "before", "after"], lineterminator="\n")
     writer.writeheader()
     rows = result.rows()
-    writer.writerows(rows)
+    writer.writerows({k: spreadsheet_text(v) for k, v in row.items()} for row in rows)
     _atomic_write(path, buf.getvalue())
     return len(rows)
 

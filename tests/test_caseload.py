@@ -149,3 +149,17 @@ def test_text_progress_draws_one_line_and_ends_it():
     text = out.getvalue()
     assert text.count("\r[") == 3  # the repeated 50% is not redrawn
     assert "[##########..........]  50%  50 / 100 people" in text and text.endswith("100 / 100 people\n")
+
+
+def test_export_never_writes_a_cell_a_spreadsheet_would_run(tmp_path):
+    # OWASP CSV Injection guidance: a text cell starting with = + - @ is marked as text.
+    from prescribe.records import parse_record
+    path = tmp_path / "c.db"
+    rec = parse_record({"patient_id": "=HYPERLINK(1)", "age_years": 70, "sex": "female", "body_mass_kg": 60,
+                        "height_cm": 160})
+    with open_store(str(path)) as store:
+        store.save_patient(rec, screen(rec))
+    out = tmp_path / "c.csv"
+    assert run_cli("caseload", "export", "--out", str(out), "--db", str(path)).returncode == 0
+    assert out.read_text().splitlines()[1].startswith("'=HYPERLINK(1)")
+    assert read_batch_csv(out)["patient_id"].tolist() == ["=HYPERLINK(1)"]
