@@ -6,9 +6,10 @@ A plan file from another ``plan_format_version`` major is refused with a clear e
 
 from __future__ import annotations
 
+from datetime import date, timedelta
 from typing import Any, Literal
 
-from pydantic import BaseModel, ConfigDict, Field, ValidationError
+from pydantic import BaseModel, ConfigDict, Field, ValidationError, field_validator
 
 from .errors import FieldProblem, PlanFileError
 from .records import ScreeningResult, problems_from_validation
@@ -79,6 +80,20 @@ class Plan(_Open):
     template: PlanTemplate | None = None
     template_version: int | None = Field(None, ge=1, description="Version of the template used (null in plans "
                                                                   "made before versions were recorded).")
+    start_date: str | None = Field(None, description="First day of week 1 (YYYY-MM-DD); week N runs from "
+                                                      "start_date + 7(N-1) days. Absent in older plan files.")
+    based_on_version: int | None = Field(None, ge=1, description="The stored program version this one was "
+                                                                 "made from (an adjustment), or null.")
+
+    @field_validator("start_date")
+    @classmethod
+    def _iso_day(cls, value: str | None) -> str | None:
+        if value is None:
+            return None
+        try:
+            return date.fromisoformat(value).isoformat()
+        except (TypeError, ValueError):
+            raise ValueError("a date as YYYY-MM-DD") from None
 
 
 def parse_plan(data: Any, source: str | None = None) -> Plan:
@@ -95,3 +110,33 @@ def parse_plan(data: Any, source: str | None = None) -> Plan:
         return Plan.model_validate(data)
     except ValidationError as err:
         raise PlanFileError(problems_from_validation(err, data), source) from None
+
+
+def parse_day(value: Any, field: str) -> date:
+    """A ``YYYY-MM-DD`` text (or a date) as a date; :class:`InputError` naming ``field`` otherwise."""
+    from .errors import InputError
+    if isinstance(value, date):
+        return value
+    if isinstance(value, str) and len(value) == 10:
+        try:
+            return date.fromisoformat(value)
+        except ValueError:
+            pass
+    raise InputError.single(field, value, "a date as YYYY-MM-DD")
+
+
+def week_start(start_date: date | str, week: int) -> date:
+    """First day of program week ``week``: start_date + 7(week - 1) days."""
+    start = parse_day(start_date, "start_date")
+    return start + timedelta(days=7 * (int(week) - 1))
+
+
+def program_week(start_date: date | str, on: date | str | None = None) -> int:
+    """The program week that ``on`` (default: today) falls in; week 1 starts on ``start_date``.
+
+    A day before the start is week 0 (the program has not begun).
+    """
+    start = parse_day(start_date, "start_date")
+    day = date.today() if on is None else parse_day(on, "date")
+    days = (day - start).days
+    return 0 if days < 0 else days // 7 + 1

@@ -163,7 +163,7 @@ def test_export_import_round_trip_is_exact(store, tmp_path):
     with open_store(str(tmp_path / "other.db")) as other:
         out = other.import_bundle(wire)
         assert out == {"patient_id": "TEST-0001", "status": "imported", "screenings": 2, "program_versions": 2,
-                       "session_logs": 1, "audit_entries": len(bundle["audit"])}
+                       "session_logs": 1, "sessions": 0, "audit_entries": len(bundle["audit"])}
         assert other.export_patient("TEST-0001") == bundle
         assert other.program_versions("TEST-0001") == store.program_versions("TEST-0001")
         # The import itself is in the store's audit log, but not in the person's bundle.

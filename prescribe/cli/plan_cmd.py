@@ -4,8 +4,10 @@ from __future__ import annotations
 
 import argparse
 import sys
+from datetime import date
 
 from ..errors import FieldProblem, InputError
+from ..plan_schema import parse_day
 from ..records import load_record
 from .output import emit_json, emit_table
 
@@ -50,6 +52,8 @@ def register(sub) -> None:
     p.add_argument("--include", nargs="+", default=[], metavar="ID", help="exercise ids to prefer")
     p.add_argument("--step-up-weeks", nargs="+", type=_whole, default=[], metavar="W",
                    help="weeks where the impact level should rise (refused where a safety rule forbids it)")
+    p.add_argument("--start-date", default=None, metavar="YYYY-MM-DD",
+                   help="first day of week 1 (default: today); week N starts 7(N-1) days later")
     p.add_argument("--table", action="store_true", help="print the weekly summary table instead of JSON")
     p.set_defaults(func=run)
 
@@ -115,18 +119,20 @@ def run(args) -> int:
     shipped, clinic_template = resolve_template(args.template, args.db)
     args.template_name = shipped
     options = _options(args)
+    start = date.today() if args.start_date is None else parse_day(args.start_date, "--start-date")
     record = load_record(args.patient)
     try:
         plan = build_plan(record, screen(record), options, template=clinic_template)
     except InputError as exc:
         raise _named_as_options(exc) from None
+    plan = plan.model_copy(update={"start_date": start.isoformat()})
     if not args.table:
         emit_json(plan)
         return 0
     out = sys.stdout
     tpl = plan.template
     tpl_text = "?" if tpl is None else tpl.name + (f"@{tpl.version}" if tpl.version else "")
-    out.write(f"Program for {plan.patient_id}: {len(plan.weeks)} weeks, template "
+    out.write(f"Program for {plan.patient_id}: {len(plan.weeks)} weeks from {plan.start_date}, template "
               f"{tpl_text}, highest impact level allowed "
               f"{plan.screening.max_impact_level} (screening rule set {plan.ruleset_version})\n\n")
     table = weekly_summary(plan)

@@ -34,8 +34,10 @@ def register(sub) -> None:
     p.add_argument("--db", help=DB_HELP)
     p.set_defaults(func=run_backup)
 
-    p = sub.add_parser("save", help="store a person's record and its screening")
+    p = sub.add_parser("save", help="store a person's record and its screening (and, with --plan, a program)")
     p.add_argument("patient_file", metavar="PATIENT.json", help="the patient record (JSON)")
+    p.add_argument("--plan", default=None, metavar="PLAN.json",
+                   help="also store this program as the person's next program version (the safety check applies)")
     p.add_argument("--clinician", default="", help="who is saving (free text, for the audit log)")
     p.add_argument("--db", help=DB_HELP)
     p.set_defaults(func=run_save)
@@ -74,8 +76,17 @@ def run_backup(args) -> int:
 def run_save(args) -> int:
     record = load_record(args.patient_file)  # bad input stops here, before the store is touched
     screening, note = _screen(record)
+    plan = None
+    if getattr(args, "plan", None):
+        from .session_cmd import checked_plan_file
+        plan = checked_plan_file(args.plan, record, screening)  # refused: exit 2, nothing stored
     with _open(args) as store:
-        saved = store.save_patient(record, screening, clinician=args.clinician)
+        if plan is None:
+            saved = store.save_patient(record, screening, clinician=args.clinician)
+        else:
+            from .session_cmd import clinician_of
+            saved = store.save_patient(record, screening, clinician=clinician_of(args), plan=plan,
+                                       plan_note="saved with prescribe save --plan")
     out = {**saved, "db": store.where}
     if screening is not None:
         out["screening"] = {k: getattr(screening, k) for k in (

@@ -185,6 +185,9 @@ def dose_text(ex: PlannedExercise) -> str:
     if ex.intensity:
         scale = ex.intensity[:1].isdigit() or ex.intensity.upper().startswith("RPE") or "%" in ex.intensity
         text += f" at {ex.intensity}" if scale else f", {ex.intensity}"
+    load = extra(ex, "load_kg")  # a working load from the logged sessions (docs/sessions.md)
+    if isinstance(load, (int, float)) and not isinstance(load, bool) and load > 0:
+        text += f" (about {load:g} kg)"
     return text
 
 
@@ -234,7 +237,8 @@ def week_lines(week: PlannedWeek) -> list[Line]:
     first: dict[tuple, PlannedExercise] = {}
     for session in sorted(week.sessions, key=lambda s: s.day):
         for ex in session.exercises:
-            key = (ex.exercise_id, ex.sets, ex.reps, ex.impacts, ex.minutes, ex.bouts, ex.intensity)
+            key = (ex.exercise_id, ex.sets, ex.reps, ex.impacts, ex.minutes, ex.bouts, ex.intensity,
+                   extra(ex, "load_kg"))
             first.setdefault(key, ex)
             days = by_key.setdefault(key, [])
             if session.day not in days:

@@ -25,7 +25,7 @@ import tempfile
 from contextlib import contextmanager
 from datetime import date, datetime, timezone
 from pathlib import Path
-from typing import Any, Iterator
+from typing import TYPE_CHECKING, Any, Iterator
 
 from sqlalchemy import create_engine, event, func, select, text
 from sqlalchemy.engine import Connection, Engine, make_url
@@ -40,11 +40,14 @@ from ..settings import db_url
 from . import models as m
 from .bundle import BUNDLE_FORMAT_VERSION, BUNDLE_KIND, parse_bundle
 
+if TYPE_CHECKING:
+    from ..sessions.records import SessionRecord
+
 #: The newest schema revision this version knows (a test checks it against Alembic's head).
 HEAD_REVISION = "0004"
 #: Every revision this version can open, oldest first, with the tables each has.
 KNOWN_REVISIONS: dict[str, tuple[str, ...]] = {"0001": m.TABLES_0001, "0002": m.TABLES_0002,
-                                               "0004": m.TABLES_0004}
+                                               "0003": m.TABLES_0003, "0004": m.TABLES_0004}
 MIGRATIONS_DIR = Path(__file__).with_name("migrations")
 
 #: SQLite settings on every connection (see docs/store.md for why FULL).
@@ -95,6 +98,10 @@ class Store:
         self.url = self._url.render_as_string(hide_password=True)
         self.is_sqlite = self._url.get_backend_name() == "sqlite"
         self.path: Path | None = None
+        # Program versions and session records never change once stored: parsed copies are
+        # kept here for the session engine's reads (read-only; see program_for_reading).
+        self._plan_cache: dict[tuple[str, int], tuple[str, dict]] = {}
+        self._session_cache: dict[tuple[int, str], Any] = {}
         revision: str | None | bool = False  # False: not known before connecting
         if self.is_sqlite:
             database = self._url.database
@@ -214,11 +221,12 @@ class Store:
     # -- people and screenings ---------------------------------------------------------
 
     def save_patient(self, record: PatientRecord, screening: ScreeningResult | None = None,
-                     clinician: str = "") -> dict:
-        """Create or update a person and, if given, append a screening; one transaction.
+                     clinician: str = "", *, plan: dict | None = None, plan_note: str = "") -> dict:
+        """Create or update a person and, if given, append a screening and store ``plan`` as
+        the person's next program version; one transaction (all of it or nothing).
 
         Returns ``{patient_id, status (created | updated | unchanged), created, updated,
-        changed_fields, screening_id}``.
+        changed_fields, screening_id}`` and, with a plan, ``program_version``.
         """
         if not isinstance(record, PatientRecord):
             raise InputError.single("record", record, "a validated PatientRecord (prescribe.records.parse_record)")
@@ -230,6 +238,10 @@ class Store:
                 raise InputError.single("screening.patient_id", screening.patient_id,
                                         f"the record's patient_id {record.patient_id!r}")
         pid = record.patient_id
+        if plan is not None:
+            plan_clinician = _clinician(clinician, required=True)
+            plan_json, summary_json = _checked_plan(pid, plan)
+            plan_note = _text(plan_note, "note")
         record_dict = record.model_dump(mode="json")
         record_json = _dumps(record_dict, "record")
         at = now_utc()
@@ -256,8 +268,16 @@ class Store:
                 _audit(conn, at, "screening_saved", pid, clinician,
                        {"screening_id": screening_id, "ruleset_version": screening.ruleset_version,
                         "bone_density_category": screening.bone_density_category})
-        return {"patient_id": pid, "status": status, "created": created, "updated": updated,
-                "changed_fields": changed, "screening_id": screening_id}
+            program_version = None
+            if plan is not None:
+                latest = _latest_program(conn, pid)
+                program_version = _insert_program(conn, pid, at, plan_clinician, plan_json, summary_json,
+                                                  latest.version if latest else None, plan_note)
+        out = {"patient_id": pid, "status": status, "created": created, "updated": updated,
+               "changed_fields": changed, "screening_id": screening_id}
+        if plan is not None:
+            out["program_version"] = program_version
+        return out
 
     def get_patient(self, patient_id: str) -> PatientRecord:
         """The stored record of one person (NotFoundError naming the id)."""
@@ -327,7 +347,7 @@ class Store:
     # -- programs -------------------------------------------------------------------------
 
     def save_program(self, patient_id: str, plan: dict, clinician: str, based_on_version: int | None,
-                     note: str = "") -> int:
+                     note: str = "", *, action: str = "program_saved", audit_detail: dict | None = None) -> int:
         """Save a new version of a person's program and return its number.
 
         ``based_on_version`` is the version the clinician started from (None for the
@@ -340,28 +360,16 @@ class Store:
                                              or not isinstance(based_on_version, int) or based_on_version < 1):
             raise InputError.single("based_on_version", based_on_version,
                                     "a program version number (1 or more) or None for the first version")
-        parsed = parse_plan(plan, source="program")
-        if parsed.patient_id != patient_id:
-            raise InputError.single("plan.patient_id", parsed.patient_id, f"the person's id {patient_id!r}")
-        plan_json = _dumps(plan, "plan")
-        summary_json = _dumps(plan_summary(plan), "plan")
+        plan_json, summary_json = _checked_plan(patient_id, plan)
         at = now_utc()
         with self._write() as conn:
             _person(conn, patient_id, lock=True)
-            latest = conn.execute(select(m.program_versions.c.version, m.program_versions.c.clinician,
-                                         m.program_versions.c.created)
-                                  .where(m.program_versions.c.patient_id == patient_id)
-                                  .order_by(m.program_versions.c.version.desc()).limit(1)).first()
+            latest = _latest_program(conn, patient_id)
             latest_version = latest.version if latest else None
             if based_on_version != latest_version:
                 raise _conflict(patient_id, based_on_version, latest)
-            version = (latest_version or 0) + 1
-            conn.execute(m.program_versions.insert().values(
-                patient_id=patient_id, version=version, based_on_version=based_on_version, created=at,
-                clinician=clinician, note=note, summary_json=summary_json, plan_json=plan_json))
-            _audit(conn, at, "program_saved", patient_id, clinician,
-                   {"version": version, "based_on_version": based_on_version, "note": note})
-        return version
+            return _insert_program(conn, patient_id, at, clinician, plan_json, summary_json, based_on_version,
+                                   note, action=action, audit_detail=audit_detail)
 
     def program_versions(self, patient_id: str) -> list[dict]:
         """Every saved version of a person's program, oldest first (without the plans)."""
@@ -422,6 +430,142 @@ class Store:
             _audit(conn, at, "session_logged", patient_id, clinician,
                    {"session_log_id": log_id, "session_date": day, "program_version": program_version})
         return int(log_id)
+
+    def add_session(self, session: "SessionRecord", clinician: str = "", *, today: date | None = None) -> dict:
+        """Record one session (a validated :class:`prescribe.sessions.records.SessionRecord`).
+
+        One transaction.  The program version defaults to the person's latest; the
+        session date may not be in the future nor before that program's start_date.
+        Returns ``{session_id, week, program_version, patient_id}``.  The person's intake
+        record is never changed.
+
+        Raises
+        ------
+        NotFoundError
+            No such person.
+        InputError
+            No such program version, no program stored yet, or a date out of range.
+        """
+        from ..sessions.records import SessionRecord, check_session_dates
+        from ..plan_schema import program_week
+        if not isinstance(session, SessionRecord):
+            raise InputError.single("session", session, "a validated SessionRecord (prescribe.sessions.records)")
+        clinician = _clinician(clinician, required=False)
+        pid = session.patient_id
+        record = session.model_dump(mode="json")
+        session_json = _dumps(record, "session")
+        done_json = _dumps(record["exercises"], "exercises")
+        at = now_utc()
+        with self._write() as conn:
+            _person(conn, pid, lock=True)
+            query = select(m.program_versions.c.version, m.program_versions.c.created).where(
+                m.program_versions.c.patient_id == pid)
+            if session.program_version is None:
+                row = conn.execute(query.order_by(m.program_versions.c.version.desc()).limit(1)).first()
+                if row is None:
+                    raise InputError.single("program_version", None,
+                                            f"a stored program of {pid!r}: none is stored yet "
+                                            "(store one with `prescribe save PATIENT.json --plan PLAN.json`)")
+            else:
+                row = conn.execute(query.where(m.program_versions.c.version == session.program_version)).first()
+                if row is None:
+                    have = conn.execute(select(func.max(m.program_versions.c.version))
+                                        .where(m.program_versions.c.patient_id == pid)).scalar()
+                    raise InputError.single("program_version", session.program_version,
+                                            f"a stored program version of {pid!r} " +
+                                            (f"(1 to {have})" if have else "(none is stored yet)"))
+            hit = self._plan_cache.get((pid, row.version))
+            if hit is not None and hit[0] == row.created:
+                plan = hit[1]
+            else:
+                plan = json.loads(conn.execute(select(m.program_versions.c.plan_json).where(
+                    m.program_versions.c.patient_id == pid, m.program_versions.c.version == row.version)).scalar())
+                self._plan_cache[(pid, row.version)] = (row.created, plan)
+            start = plan.get("start_date") or str(plan.get("created", ""))[:10] or None
+            check_session_dates(session, start, today)
+            week = program_week(start, session.session_date) if start else None
+            sid = int(conn.execute(m.session_logs.insert().values(
+                patient_id=pid, program_version=row.version, session_date=session.session_date, done_json=done_json,
+                rpe=None if session.session_rpe is None else int(round(session.session_rpe)),
+                pain=session.pain_during, notes=session.note, clinician=clinician, created=at,
+                session_json=session_json, week=week)).inserted_primary_key[0])
+            _audit(conn, at, "session_logged", pid, clinician,
+                   {"session_id": sid, "session_date": session.session_date, "week": week,
+                    "program_version": row.version, "symptoms": list(session.symptoms),
+                    "fell_since_last": session.fell_since_last})
+        return {"session_id": sid, "week": week, "program_version": row.version, "patient_id": pid}
+
+    def sessions(self, patient_id: str) -> list[dict]:
+        """The person's sessions, oldest first: the record's fields with session_id, week,
+        program_version, clinician and created (older logs without a full record are given
+        in the same shape, marked ``legacy``)."""
+        with self._read() as conn:
+            _person(conn, patient_id)
+            rows = conn.execute(select(m.session_logs).where(m.session_logs.c.patient_id == patient_id)
+                                .order_by(m.session_logs.c.session_date, m.session_logs.c.id)).all()
+        return [_session_out(r) for r in rows]
+
+    def logged_sessions(self, patient_id: str) -> list:
+        """The person's sessions with a full record, oldest first, as
+        :class:`prescribe.sessions.engine.LoggedSession` (for the engine; shared, read-only)."""
+        with self._read() as conn:
+            _person(conn, patient_id)
+            return self._logged_sessions(conn, patient_id)
+
+    def program_for_reading(self, patient_id: str, version: int | None = None) -> tuple[int, dict]:
+        """(version, plan) of one program version (the latest when ``version`` is None).
+
+        The plan is a shared parsed copy: read it, never change it (use :meth:`get_program`
+        for a copy of your own).  Versions never change once stored, so repeated reads
+        (the session engine's) skip parsing the JSON again.
+        """
+        with self._read() as conn:
+            _person(conn, patient_id)
+            return self._program_for_reading(conn, patient_id, version)
+
+    def session_context(self, patient_id: str) -> tuple[PatientRecord, int | None, dict | None, list]:
+        """What the session engine needs, in one read: (record, latest program version, its plan
+        (shared, read-only) or None, the logged sessions)."""
+        with self._read() as conn:
+            row = _person(conn, patient_id)
+            try:
+                version, plan = self._program_for_reading(conn, patient_id, None)
+            except NotFoundError:
+                version, plan = None, None
+            sessions = self._logged_sessions(conn, patient_id)
+        record = parse_record(json.loads(row.record_json), source=f"store record {patient_id!r}")
+        return record, version, plan, sessions
+
+    def _logged_sessions(self, conn: Connection, patient_id: str) -> list:
+        from ..sessions.engine import LoggedSession
+        from ..sessions.records import SessionRecord
+        t = m.session_logs.c
+        keys = conn.execute(select(t.id, t.created).where(t.patient_id == patient_id, t.session_json.is_not(None))
+                            .order_by(t.session_date, t.id)).all()
+        missing = [k.id for k in keys if (k.id, k.created) not in self._session_cache]
+        if missing:
+            rows = conn.execute(select(t.id, t.created, t.week, t.program_version, t.session_json)
+                                .where(t.id.in_(missing))).all()
+            for r in rows:
+                rec = SessionRecord.model_validate_json(r.session_json)
+                self._session_cache[(r.id, r.created)] = LoggedSession(rec, r.week or 0, r.program_version, r.id)
+        return [self._session_cache[(k.id, k.created)] for k in keys]
+
+    def _program_for_reading(self, conn: Connection, patient_id: str, version: int | None) -> tuple[int, dict]:
+        t = m.program_versions.c
+        query = select(t.version, t.created).where(t.patient_id == patient_id)
+        query = query.order_by(t.version.desc()).limit(1) if version is None else query.where(t.version == version)
+        row = conn.execute(query).first()
+        if row is None:
+            what = "no saved program" if version is None else f"no program version {version}"
+            raise NotFoundError(f"{patient_id!r} has {what} in the store")
+        hit = self._plan_cache.get((patient_id, row.version))
+        if hit is not None and hit[0] == row.created:
+            return row.version, hit[1]
+        plan = json.loads(conn.execute(select(t.plan_json).where(t.patient_id == patient_id,
+                                                                 t.version == row.version)).scalar())
+        self._plan_cache[(patient_id, row.version)] = (row.created, plan)
+        return row.version, plan
 
     def session_logs(self, patient_id: str) -> list[dict]:
         with self._read() as conn:
@@ -580,6 +724,14 @@ class Store:
                     patient_id=pid, program_version=s["program_version"], session_date=s["session_date"],
                     done_json=_dumps(s["done"], "done"), rpe=s["rpe"], pain=s["pain"], notes=s["notes"],
                     clinician=s["clinician"], created=s["created"]))
+            for s in b.get("sessions") or []:
+                rec = s["session"]
+                conn.execute(m.session_logs.insert().values(
+                    patient_id=pid, program_version=s["program_version"], session_date=rec["session_date"],
+                    done_json=_dumps(rec["exercises"], "exercises"),
+                    rpe=None if rec.get("session_rpe") is None else int(round(rec["session_rpe"])),
+                    pain=rec["pain_during"], notes=rec.get("note", ""), clinician=s["clinician"], created=s["created"],
+                    session_json=_dumps(rec, "session"), week=s["week"]))
             for a in b["audit"]:
                 _audit(conn, a["at"], a["action"], pid, a["clinician"], a["detail"])
             _audit(conn, at, "bundle_imported", pid, "", {"bundle_format_version": b["bundle_format_version"],
@@ -726,6 +878,34 @@ def _audit(conn: Connection, at: str, action: str, pid: str | None, clinician: s
                                              detail_json=_dumps(detail, "audit detail")))
 
 
+def _checked_plan(patient_id: str, plan: dict) -> tuple[str, str]:
+    parsed = parse_plan(plan, source="program")
+    if parsed.patient_id != patient_id:
+        raise InputError.single("plan.patient_id", parsed.patient_id, f"the person's id {patient_id!r}")
+    return _dumps(plan, "plan"), _dumps(plan_summary(plan), "plan")
+
+
+def _latest_program(conn: Connection, pid: str):
+    return conn.execute(select(m.program_versions.c.version, m.program_versions.c.clinician,
+                               m.program_versions.c.created)
+                        .where(m.program_versions.c.patient_id == pid)
+                        .order_by(m.program_versions.c.version.desc()).limit(1)).first()
+
+
+def _insert_program(conn: Connection, pid: str, at: str, clinician: str, plan_json: str, summary_json: str,
+                    based_on_version: int | None, note: str, *, action: str = "program_saved",
+                    audit_detail: dict | None = None) -> int:
+    latest = conn.execute(select(func.max(m.program_versions.c.version))
+                          .where(m.program_versions.c.patient_id == pid)).scalar()
+    version = (latest or 0) + 1
+    conn.execute(m.program_versions.insert().values(
+        patient_id=pid, version=version, based_on_version=based_on_version, created=at,
+        clinician=clinician, note=note, summary_json=summary_json, plan_json=plan_json))
+    _audit(conn, at, action, pid, clinician,
+           {"version": version, "based_on_version": based_on_version, "note": note, **(audit_detail or {})})
+    return version
+
+
 def _conflict(pid: str, based_on: int | None, latest) -> ConflictError:
     if latest is None:
         msg = (f"the program of {pid!r} has no saved version yet, but this save was based on version "
@@ -787,6 +967,19 @@ def _session_row(r) -> dict:
             "clinician": r.clinician, "created": r.created}
 
 
+def _session_out(r) -> dict:
+    if r.session_json is not None:
+        rec = json.loads(r.session_json)
+        rec["program_version"] = r.program_version
+        return {"session_id": r.id, "week": r.week, **rec, "clinician": r.clinician, "created": r.created}
+    done = json.loads(r.done_json)
+    return {"session_id": r.id, "week": r.week, "patient_id": r.patient_id, "session_date": r.session_date,
+            "program_version": r.program_version, "exercises": done if isinstance(done, list) else [],
+            "session_rpe": r.rpe, "pain_during": r.pain, "pain_next_morning": None, "symptoms": [],
+            "fell_since_last": False, "note": r.notes, "clinician": r.clinician, "created": r.created,
+            "legacy": True}
+
+
 def _export(conn: Connection, pid: str) -> dict:
     person = _person(conn, pid)
     screenings = conn.execute(select(m.screenings).where(m.screenings.c.patient_id == pid)
@@ -810,7 +1003,11 @@ def _export(conn: Connection, pid: str) -> dict:
         "programs": [{"version": p.version, "based_on_version": p.based_on_version, "created": p.created,
                       "clinician": p.clinician, "note": p.note, "plan": json.loads(p.plan_json)}
                      for p in programs],
-        "session_logs": [{k: v for k, v in _session_row(s).items() if k != "session_log_id"} for s in sessions],
+        "session_logs": [{k: v for k, v in _session_row(s).items() if k != "session_log_id"}
+                         for s in sessions if s.session_json is None],
+        "sessions": [{"week": s.week, "program_version": s.program_version, "clinician": s.clinician,
+                      "created": s.created, "session": json.loads(s.session_json)}
+                     for s in sessions if s.session_json is not None],
         "audit": [{"at": a.at, "action": a.action, "clinician": a.clinician, "detail": json.loads(a.detail_json)}
                   for a in audit],
     }
@@ -822,7 +1019,8 @@ def _comparable(bundle: dict) -> dict:
 
 def _counts(b: dict) -> dict:
     return {"screenings": len(b["screenings"]), "program_versions": len(b["programs"]),
-            "session_logs": len(b["session_logs"]), "audit_entries": len(b["audit"])}
+            "session_logs": len(b["session_logs"]), "sessions": len(b.get("sessions") or []),
+            "audit_entries": len(b["audit"])}
 
 
 def _dumps(value: Any, field: str) -> str:

@@ -85,6 +85,18 @@ class _Session(_Part):
         return value
 
 
+class _SessionEntry(_Part):
+    """One session record (PRODUCT.md "Session record") with its week and who logged it."""
+
+    week: int | None = Field(ge=0)
+    program_version: int | None
+    clinician: str = Field(max_length=200)
+    created: str
+    session: dict
+
+    _ts = field_validator("created")(_timestamp)
+
+
 class _Audit(_Part):
     at: str
     action: str = Field(min_length=1, max_length=40)
@@ -103,6 +115,7 @@ class _Bundle(_Part):
     screenings: list[_Screening]
     programs: list[_Program]
     session_logs: list[_Session] = Field(default_factory=list)
+    sessions: list[_SessionEntry] = Field(default_factory=list)  # optional: older bundles have none
     audit: list[_Audit]
 
 
@@ -181,6 +194,21 @@ def parse_bundle(data: Any, source: str | None = None) -> dict:
         if s.program_version is not None and s.program_version not in versions:
             problems.append(FieldProblem(f"session_logs[{i}].program_version", s.program_version,
                                          "a program version in this bundle, or null"))
+    from ..sessions.records import parse_session
+    for i, s in enumerate(bundle.sessions):
+        if s.program_version is not None and s.program_version not in versions:
+            problems.append(FieldProblem(f"sessions[{i}].program_version", s.program_version,
+                                         "a program version in this bundle, or null"))
+        try:
+            rec = parse_session(s.session)
+        except InputError as exc:
+            problems.extend(FieldProblem(f"sessions[{i}].session.{q.field}", q.value, q.allowed, q.kind)
+                            for q in exc.problems)
+            continue
+        if rec.patient_id != pid:
+            problems.append(FieldProblem(f"sessions[{i}].session.patient_id", rec.patient_id,
+                                         f"the bundle's patient_id {pid!r}"))
+        out["sessions"][i]["session"] = rec.model_dump(mode="json")
     if problems:
         raise InputError(problems, source)
     return out

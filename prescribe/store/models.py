@@ -82,6 +82,9 @@ session_logs = Table(
     Column("notes", Text, nullable=False, default=""),
     Column("clinician", Text, nullable=False, default=""),
     Column("created", String(40), nullable=False),
+    # revision 0003: the whole session record (PRODUCT.md "Session record") and its program week
+    Column("session_json", Text, nullable=True),
+    Column("week", Integer, nullable=True),
     ForeignKeyConstraint(["patient_id", "program_version"],
                          ["program_versions.patient_id", "program_versions.version"],
                          name="fk_session_logs_program_version"),
@@ -112,4 +115,5 @@ clinic_templates = Table(
 #: Table names per revision (the open check recognises a store by them).
 TABLES_0001 = ("people", "screenings", "program_versions", "audit_log")
 TABLES_0002 = TABLES_0001 + ("session_logs", "clinic_templates")
-TABLES_0004 = TABLES_0002
+TABLES_0003 = TABLES_0002
+TABLES_0004 = TABLES_0003

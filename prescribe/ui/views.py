@@ -353,13 +353,16 @@ class ClinicApp:
         self.program_section.children += (self.explain_view.widget,)
         self._build_handout_section()
         self._build_store_section()
+        from .sessions_view import SessionsView  # the live-session panel (docs/sessions.md)
+        self.live = SessionsView(self)
         self.templates_view = TemplatesView(self.session)  # the clinic lead's section (loads when opened)
         title = w.HTML("<h1 style='font-size:22px;margin:4px 0'>prescribe: bone-loading program builder</h1>"
                        "<p>Decision support for clinicians. Work down the page: person, screening, program, "
                        "handout, save.</p>")
         self.widget = w.VBox([w.HTML(STYLE), title, self.errors.widget, cautions_box(),
                               self.person_section, self.screening_section, self.program_section,
-                              self.handout_section, self.store_section, self.templates_view.widget])
+                              self.handout_section, self.store_section, self.live.widget,
+                              self.templates_view.widget])
         self.widget.add_class("pr-app")
         self.warm_thread: threading.Thread | None = None
         self._warm_lock = threading.Lock()
@@ -657,6 +660,7 @@ class ClinicApp:
             self.download.value = ""
         if store:
             self._refresh_store()
+        self.live.refresh()
 
     def _refresh_swap_candidates(self) -> None:
         try:

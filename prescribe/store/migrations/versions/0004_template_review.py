@@ -1,14 +1,14 @@
 """Clinic templates under review: a change note per version, a review-by date, retirement.
 
 Revision ID: 0004
-Revises: 0002
+Revises: 0003
 """
 
 from alembic import op
 import sqlalchemy as sa
 
 revision = "0004"
-down_revision = "0002"
+down_revision = "0003"
 branch_labels = None
 depends_on = None
 

@@ -1,0 +1,60 @@
+"""The next step for a stored person: the session engine over the store's program and
+sessions, and ``apply`` storing the adjusted program as a new version based on the old.
+
+Shared by ``prescribe adjust`` and the app's live-session panel, so both give the same
+advice and both pass the same safety check before anything is stored.
+"""
+
+from __future__ import annotations
+
+from datetime import date
+
+from ..errors import InputError
+from .api import now_utc
+
+
+def adjust_person(store, patient_id: str, *, today: date, apply: bool = False, clinician: str | None = None) -> dict:
+    """The advice for one stored person (and, with ``apply``, the stored new version).
+
+    Shared by the command line and the app.  The returned dict is the printed advice
+    plus ``_program`` (the adjusted plan).
+    """
+    from ..sessions.engine import assess
+    from ..sessions.gate import assert_program_safe
+    record, version, plan, sessions = store.session_context(patient_id)  # NotFoundError names the id
+    if version is None:
+        raise InputError.single("patient_id", patient_id, "a person with a stored program (store one with "
+                                                          "`prescribe save PATIENT.json --plan PLAN.json`)")
+    advice = assess(plan, sessions, today=today, baseline_pain=record.pain_score, program_version=version)
+    out = advice.as_dict()
+    out["current_program_version"] = version
+    # The current version already applies an adjustment worked out on the same day, with no
+    # session logged against it since: applying again would move the program twice for
+    # the same sessions.
+    done = plan.get("adjustment") or {}
+    repeat = done.get("as_of") == advice.as_of and not any(s.program_version == version for s in sessions)
+    if repeat:
+        out["already_applied"] = (f"program version {version} already applies the advice of {advice.as_of} "
+                                  f"({done.get('decision')}); log a session before adjusting again")
+    program = dict(advice.program)
+    program.update(based_on_version=version,
+                   adjustment={"decision": advice.decision, "week": advice.week, "as_of": advice.as_of,
+                               "reasons": advice.reasons, "changes": advice.changes,
+                               "session_ruleset_version": advice.ruleset_version})
+    if apply:
+        if repeat:
+            raise InputError.single("--apply", patient_id, "a person whose current program does not already "
+                                    f"apply today's advice: {out['already_applied']}")
+        program["created"] = now_utc()
+        # refused: exit 2, nothing stored
+        assert_program_safe(program, door=f"prescribe adjust --apply {patient_id}", record=record)
+        new_version = store.save_program(
+            patient_id, program, clinician, based_on_version=version,
+            note=f"adjusted: {advice.decision} from week {advice.week}", action="program_adjusted",
+            audit_detail={"decision": advice.decision, "week": advice.week,
+                          "reasons": [r["rule"] for r in advice.reasons], "changes": advice.changes})
+        out["program_version"] = new_version
+        out["based_on_version"] = version
+        out["applied_by"] = clinician
+    out["_program"] = program
+    return out

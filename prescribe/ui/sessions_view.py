@@ -1,0 +1,487 @@
+"""The live-session panel: log what the person did today, see the advice, apply it.
+
+For the exercise physiologist with the person in the room.  Open a saved person with a
+saved program (section 1), then: "this week" shows the day's exercises with their
+doses, pre-filled as prescribed; tick and correct what was done, enter pain, effort
+and symptoms; "Log session" stores it and shows the next-step advice with its reasons
+at once; "Apply" stores the adjusted program as a new version.  Bad entries get a
+message beside the field and nothing is saved.  Charts: planned against done and
+pain and effort over the weeks, the weak windows shaded.
+
+Widgets carry stable CSS classes (``pr-live-...``) for browser tests.
+"""
+
+from __future__ import annotations
+
+import math
+import threading
+from datetime import date
+from typing import Any
+
+import ipywidgets as w
+
+from ..errors import InputError, NotFoundError
+from ..plan_schema import parse_day, program_week
+from ..sessions.records import SYMPTOMS, parse_session
+from .views import ErrorArea, _cautions_html, _esc, cautions_box, guarded
+
+#: The per-exercise entries, in the order shown: (record field, label, integer?).
+EXERCISE_FIELDS = (("sets_done", "sets", True), ("reps_done", "reps", True), ("impacts_done", "impacts", True),
+                   ("minutes_done", "min", False), ("load_kg", "kg", False), ("rpe", "CR10", False))
+#: Planned field each entry is pre-filled from.
+PLANNED_OF = {"sets_done": "sets", "reps_done": "reps", "impacts_done": "impacts", "minutes_done": "minutes",
+              "load_kg": "load_kg"}
+DECISION_TEXT = {"progress": "Progress", "hold": "Hold", "step_back": "Step back",
+                 "stop_and_refer": "Stop and refer"}
+
+
+def _number(text: str, whole: bool) -> Any:
+    """Form text to a value for the record: blank is None; a number where it reads as one;
+    anything else is passed on unchanged so validation names it."""
+    text = (text or "").strip()
+    if not text:
+        return None
+    try:
+        value = float(text)
+    except ValueError:
+        return text
+    if whole:
+        return int(value) if value.is_integer() else value
+    return value
+
+
+def _show(value: Any) -> str:
+    if value is None:
+        return ""
+    if isinstance(value, float):
+        return f"{value:g}"
+    return str(value)
+
+
+class _ExerciseRow:
+    def __init__(self, index: int, planned: dict) -> None:
+        self.exercise_id = planned["exercise_id"]
+        self.done = w.Checkbox(value=True, description="", indent=False, layout=w.Layout(width="28px"))
+        self.done.add_class("pr-live-done")
+        label = f"{planned.get('name', self.exercise_id)}"
+        dose = planned.get("intensity") or ""
+        if planned.get("load_note"):
+            dose += f" - {planned['load_note']}"
+        self.label = w.HTML(f"<b>{_esc(label)}</b><br><small>{_esc(dose)}</small>",
+                            layout=w.Layout(width="260px"))
+        self.inputs: dict[str, w.Text] = {}
+        for key, short, _whole in EXERCISE_FIELDS:
+            planned_value = planned.get(PLANNED_OF.get(key, ""), None)
+            if key == "impacts_done" and not planned_value:
+                planned_value = None
+            box = w.Text(value=_show(planned_value), placeholder=short, description=short,
+                         layout=w.Layout(width="110px"), style={"description_width": "42px"})
+            box.add_class(f"pr-live-{key.replace('_', '-')}")
+            self.inputs[key] = box
+        self.msg = w.HTML("")
+        self.msg.add_class("pr-live-row-msg")
+        self.widget = w.VBox([w.HBox([self.done, self.label, *self.inputs.values()]), self.msg])
+        self.widget.add_class("pr-live-row")
+        self.widget.add_class(f"pr-live-row-{index}")
+
+    def data(self) -> dict | None:
+        if not self.done.value:
+            return None
+        out: dict[str, Any] = {"exercise_id": self.exercise_id}
+        for key, _short, whole in EXERCISE_FIELDS:
+            value = _number(self.inputs[key].value, whole)
+            if value is not None:
+                out[key] = value
+        return out
+
+
+class SessionsView:
+    """The live-session panel over a :class:`ClinicApp` (its session, store and lock)."""
+
+    def __init__(self, app) -> None:
+        self.app = app
+        self.lock = getattr(app, "lock", threading.RLock())
+        self.errors = ErrorArea()
+        self.rows: list[_ExerciseRow] = []
+        self.advice: dict | None = None
+        self.charts = None
+        self.status = w.HTML("")
+        self.status.add_class("pr-live-status")
+        self.date = w.Text(value=date.today().isoformat(), description="Date", layout=w.Layout(width="220px"))
+        self.date.add_class("pr-live-date")
+        self.day = w.Dropdown(options=[], description="Session", layout=w.Layout(width="320px"))
+        self.day.add_class("pr-live-day")
+        self.day.observe(lambda _c: self._on_day(), names="value")
+        self.date.observe(lambda _c: self._on_date(), names="value")
+        self.rows_box = w.VBox([])
+        self.rows_box.add_class("pr-live-rows")
+        self.fields: dict[str, w.Widget] = {}
+        self.msgs: dict[str, w.HTML] = {}
+        self.fields["pain_during"] = self._text("Pain during (0-10)", "pain_during", "0")
+        self.fields["pain_next_morning"] = self._text("Pain next morning (0-10)", "pain_next_morning", "")
+        self.fields["session_rpe"] = self._text("Session effort (CR10 0-10)", "session_rpe", "")
+        self.symptoms = {code: w.Checkbox(value=False, description=code.replace("_", " "), indent=False,
+                                          tooltip=text, layout=w.Layout(width="200px"))
+                         for code, text in SYMPTOMS.items()}
+        for code, box in self.symptoms.items():
+            box.add_class(f"pr-live-symptom-{code.replace('_', '-')}")
+        self.fell = w.Checkbox(value=False, description="fell since the last session", indent=False)
+        self.fell.add_class("pr-live-fell")
+        self.note = w.Textarea(value="", placeholder="note (how it went, what was changed)",
+                               layout=w.Layout(width="600px", height="50px"))
+        self.note.add_class("pr-live-note")
+        for key in ("symptoms", "fell_since_last", "note", "session_date", "exercises", "clinician"):
+            self.msgs[key] = self._msg(key)
+        self.clinician = w.Text(value=getattr(app.session, "clinician", ""), description="Clinician *",
+                                placeholder="your name or initials")
+        self.clinician.add_class("pr-live-clinician")
+        self.log_button = w.Button(description="Log session and advise", button_style="primary",
+                                   layout=w.Layout(width="auto"))
+        self.log_button.add_class("pr-live-log")
+        self.log_button.on_click(lambda _b: self.on_log())
+        self.advise_button = w.Button(description="Advise without logging", layout=w.Layout(width="auto"))
+        self.advise_button.add_class("pr-live-advise")
+        self.advise_button.on_click(lambda _b: self.on_advise())
+        self.apply_button = w.Button(description="Apply the advice", button_style="warning", disabled=True,
+                                     layout=w.Layout(width="auto"))
+        self.apply_button.add_class("pr-live-apply")
+        self.apply_button.on_click(lambda _b: self.on_apply())
+        self.advice_view = w.HTML("")
+        self.advice_view.add_class("pr-live-advice")
+        self.log_status = w.HTML("")
+        self.log_status.add_class("pr-live-log-status")
+        self.chart_box = w.VBox([])
+        self.chart_box.add_class("pr-live-charts")
+        self.cautions = cautions_box()
+        self.cautions.add_class("pr-live-cautions")
+        self.widget = w.VBox([
+            w.HTML("<h2>6. Live session: log, advise, adjust</h2>"), self.errors.widget, self.status,
+            w.HBox([self.date, self.day]), self.rows_box, self.msgs["exercises"],
+            w.HBox([self.fields["pain_during"], self.fields["pain_next_morning"], self.fields["session_rpe"]]),
+            w.HTML("<b>Symptoms today</b> (any of these: stop and assess)"),
+            w.GridBox(list(self.symptoms.values()), layout=w.Layout(grid_template_columns="repeat(4, 210px)")),
+            self.msgs["symptoms"], w.HBox([self.fell, self.msgs["fell_since_last"]]),
+            self.note, self.msgs["note"], self.msgs["session_date"],
+            w.HBox([self.clinician, self.msgs["clinician"]]),
+            w.HBox([self.log_button, self.advise_button, self.apply_button]), self.log_status,
+            self.advice_view, self.chart_box, self.cautions])
+        self.widget.add_class("pr-section-sessions")
+
+    # -- building ---------------------------------------------------------------------------
+    def _msg(self, key: str) -> w.HTML:
+        box = w.HTML("")
+        box.add_class("pr-msg")
+        box.add_class(f"pr-live-msg-{key.replace('_', '-')}")
+        self.msgs[key] = box
+        return box
+
+    def _text(self, label: str, key: str, value: str) -> w.Widget:
+        box = w.Text(value=value, description=label, layout=w.Layout(width="300px"),
+                     style={"description_width": "170px"})
+        box.add_class(f"pr-live-{key.replace('_', '-')}")
+        msg = self._msg(key)
+        self._inputs = getattr(self, "_inputs", {})
+        self._inputs[key] = box
+        return w.VBox([box, msg])
+
+    def _input(self, key: str) -> w.Text:
+        return self._inputs[key]
+
+    # -- state --------------------------------------------------------------------------------
+    @property
+    def patient_id(self) -> str | None:
+        rec = self.app.session.record
+        return rec.patient_id if rec is not None else None
+
+    def _ready(self) -> bool:
+        s = self.app.session
+        return s.record is not None and s.plan is not None and s.saved_version is not None
+
+    def _plan(self) -> dict:
+        return self.app.session.plan.model_dump(mode="json")
+
+    def current_week(self) -> int:
+        from ..sessions.engine import plan_start
+        plan = self._plan()
+        try:
+            day = parse_day(self.date.value.strip(), "session_date")
+        except InputError:
+            day = date.today()
+        return min(max(program_week(plan_start(plan), day), 1), len(plan["weeks"]))
+
+    def refresh(self) -> None:
+        """Follow the app's person and program (called by the app after every change)."""
+        self.cautions.value = _cautions_html(self.app.session.cautions)
+        if not self._ready():
+            self.status.value = ("<p><i>Open a saved person with a saved program (section 1, or save it in "
+                                 "section 5) to log sessions here.</i></p>")
+            self.rows_box.children = []
+            self.day.options = []
+            self.apply_button.disabled = True
+            return
+        plan = self._plan()
+        week = self.current_week()
+        wk = plan["weeks"][week - 1]
+        paused = plan.get("paused")
+        self.status.value = (f"<p><b>{_esc(self.patient_id)}</b>: program version {self.app.session.saved_version}, "
+                             f"started {_esc(plan.get('start_date') or str(plan.get('created', ''))[:10])}; "
+                             f"<b>this week: week {week}</b> of {len(plan['weeks'])} "
+                             f"({_esc(wk.get('phase', ''))})."
+                             + (f' <span class="pr-msg">Paused from week {paused["from_week"]}: '
+                                f'{_esc(paused.get("reason", ""))}</span>' if paused else "") + "</p>")
+        days = sorted({s["day"] for s in wk["sessions"]})
+        names = {1: "Mon", 2: "Tue", 3: "Wed", 4: "Thu", 5: "Fri", 6: "Sat", 7: "Sun"}
+        options = [(f"day {d} ({names[d]}): " + " + ".join(s["kind"] for s in wk["sessions"] if s["day"] == d), d)
+                   for d in days]
+        keep = self.day.value
+        self.day.options = options
+        today = parse_day(self.date.value, "date").isoweekday() if self._date_ok() else None
+        self.day.value = keep if keep in days else (today if today in days else (days[0] if days else None))
+        self._build_rows()
+        self._refresh_charts()
+
+    def _date_ok(self) -> bool:
+        try:
+            parse_day(self.date.value.strip(), "date")
+            return True
+        except InputError:
+            return False
+
+    def _on_date(self) -> None:
+        if self._ready() and self._date_ok():
+            self.refresh()
+
+    def _on_day(self) -> None:
+        if self._ready():
+            self._build_rows()
+
+    def _build_rows(self, force: bool = False) -> None:
+        key = (self.patient_id, self.app.session.saved_version, self.current_week(), self.day.value)
+        if not force and key == getattr(self, "_rows_key", None):
+            return  # keep what the clinician has typed
+        self._rows_key = key
+        plan = self._plan()
+        wk = plan["weeks"][self.current_week() - 1]
+        exercises = [x for s in wk["sessions"] if s["day"] == self.day.value for x in s["exercises"]]
+        self.rows = [_ExerciseRow(i, x) for i, x in enumerate(exercises)]
+        self.rows_box.children = [r.widget for r in self.rows]
+
+    # -- entering -------------------------------------------------------------------------------
+    def data(self) -> dict:
+        """The session record as typed (not yet validated)."""
+        exercises = [d for d in (r.data() for r in self.rows) if d is not None]
+        return {"patient_id": self.patient_id, "session_date": self.date.value.strip(),
+                "program_version": self.app.session.saved_version, "exercises": exercises,
+                "session_rpe": _number(self._input("session_rpe").value, False),
+                "pain_during": _number(self._input("pain_during").value, True),
+                "pain_next_morning": _number(self._input("pain_next_morning").value, True),
+                "symptoms": [c for c, box in self.symptoms.items() if box.value],
+                "fell_since_last": bool(self.fell.value), "note": self.note.value}
+
+    def _clear_messages(self) -> None:
+        for box in self.msgs.values():
+            box.value = ""
+        for r in self.rows:
+            r.msg.value = ""
+
+    def _show_problems(self, problems) -> None:
+        for p in problems:
+            field = p.field
+            if field.startswith("exercises["):
+                try:
+                    i = int(field[len("exercises["):field.index("]")])
+                except ValueError:
+                    i = -1
+                done = [r for r in self.rows if r.done.value]
+                if 0 <= i < len(done):
+                    done[i].msg.value = f'<span class="pr-msg">{_esc(p.message)}</span>'
+                    continue
+            key = field.split("[")[0].split(".")[0]
+            box = self.msgs.get(key) or self.msgs["session_date"]
+            box.value = f'<span class="pr-msg">{_esc(p.message)}</span>'
+
+    @guarded("Logging the session")
+    def on_log(self) -> bool:
+        self._clear_messages()
+        if not self._ready():
+            raise InputError.single("person", None, "a saved person with a saved program (open one first)")
+        who = self.clinician.value.strip()
+        if not who:
+            self.msgs["clinician"].value = '<span class="pr-msg">Enter your name or initials: every session ' \
+                                           'records who logged it. Nothing was saved.</span>'
+            return False
+        try:
+            record = parse_session(self.data())
+            store = self.app.session.store
+            out = store.add_session(record, who)
+        except InputError as exc:
+            self._show_problems(exc.problems)
+            self.log_status.value = ('<span class="pr-msg">Nothing was saved: correct the entries marked '
+                                     'beside the fields.</span>')
+            return False
+        self.app.session.clinician = who
+        self.log_status.value = (f"<span>Session {out['session_id']} logged for week {out['week']} "
+                                 f"({_esc(record.session_date)}).</span>")
+        self._advise()
+        return True
+
+    @guarded("Working out the advice")
+    def on_advise(self) -> None:
+        if not self._ready():
+            raise InputError.single("person", None, "a saved person with a saved program (open one first)")
+        self._advise()
+
+    def _advise(self) -> None:
+        from ..store.adjust import adjust_person
+        day = parse_day(self.date.value.strip(), "date") if self._date_ok() else date.today()
+        self.advice = adjust_person(self.app.session.store, self.patient_id, today=min(day, date.today()))
+        self.advice_view.value = advice_html(self.advice)
+        self.apply_button.disabled = bool(self.advice.get("already_applied"))
+        self._refresh_charts()
+
+    @guarded("Applying the advice")
+    def on_apply(self) -> int | None:
+        from ..store.adjust import adjust_person
+        if self.advice is None:
+            raise InputError.single("advice", None, "advice worked out first (log a session or press Advise)")
+        who = self.clinician.value.strip()
+        if not who:
+            self.msgs["clinician"].value = ('<span class="pr-msg">Enter your name or initials: the change is '
+                                            'recorded with who applied it. Nothing was saved.</span>')
+            return None
+        day = date.fromisoformat(self.advice["as_of"])
+        out = adjust_person(self.app.session.store, self.patient_id, today=day, apply=True, clinician=who)
+        version = out["program_version"]
+        self.app.session.load(self.patient_id)  # the program section and the handout follow the new version
+        self.advice = None
+        self.apply_button.disabled = True
+        self.advice_view.value = (advice_html(out) +
+                                  f'<p class="pr-live-applied"><b>Applied</b>: stored as program version {version} '
+                                  f'(based on version {out["based_on_version"]}) by {_esc(who)}.</p>')
+        refresh = getattr(self.app, "refresh", None)
+        if refresh is not None:
+            refresh()
+        else:
+            self.refresh()
+        return version
+
+    # -- charts -----------------------------------------------------------------------------------
+    def series(self):
+        from ..sessions.progress import weekly_progress
+        if not self._ready():
+            return None
+        try:
+            sessions = self.app.session.store.logged_sessions(self.patient_id)
+        except NotFoundError:
+            sessions = []
+        return weekly_progress(self._plan(), sessions)
+
+    def _refresh_charts(self) -> None:
+        series = self.series()
+        if series is None:
+            return
+        if self.charts is None:
+            self.charts = SessionCharts()
+            self.chart_box.children = self.charts.figures
+        self.charts.update(series)
+
+
+def advice_html(advice: dict) -> str:
+    """The advice as the panel shows it: the decision, its reasons with sources, what changes."""
+    decision = advice["decision"]
+    reasons = "".join(f"<li>{_esc(r['message'])} <small>[{_esc(r['rule'])}; source: {_esc(r['source'])}]</small></li>"
+                      for r in advice["reasons"])
+    changes = "".join(f"<li>{_esc(c)}</li>" for c in advice["changes"])
+    loads = "".join(f"<li>{_esc(e)}: about {_esc(v['kg'])} kg estimated 1RM ({_esc(v['method'])})</li>"
+                    for e, v in advice.get("estimated_1rm", {}).items() if v.get("kg"))
+    return (f'<div class="pr-live-decision pr-live-decision-{decision.replace("_", "-")}">'
+            f'<p><b>Next step for week {advice["week"]}: {_esc(DECISION_TEXT.get(decision, decision))}</b></p>'
+            f"<p>Why:</p><ul>{reasons}</ul><p>What the adjusted program changes:</p><ul>{changes}</ul>"
+            + (f"<p>Working loads:</p><ul>{loads}</ul>" if loads else "")
+            + (f'<p class="pr-live-already">{_esc(advice["already_applied"])}.</p>'
+               if advice.get("already_applied") else "") + "</div>")
+
+
+class SessionCharts:
+    """Three bqplot figures over :class:`prescribe.sessions.progress.WeeklyProgress`: impacts
+    planned and done; minutes planned and done with the top load lifted; pain and effort.
+    The weak windows (weeks 3-5 after a step-up; Eriksen 1986, Endocr Rev 7:379) are shaded."""
+
+    def __init__(self) -> None:
+        import bqplot as bq
+        from .charts import ACCENT, INK, SHADE
+        self.bq = bq
+        self.x = bq.LinearScale()
+        self.shades = []
+
+        def shade():
+            mark = bq.Bars(x=[], y=[], scales={"x": self.x, "y": bq.LinearScale(min=0.0, max=1.0)},
+                           colors=[SHADE], opacities=[0.3], padding=0.0, stroke=None)
+            self.shades.append(mark)
+            return mark
+
+        def axis_x():
+            return bq.Axis(scale=self.x, label="week", tick_format="d")
+
+        margin = {"top": 40, "bottom": 45, "left": 55, "right": 60}
+        self.y_imp = bq.LinearScale(min=0.0)
+        self.impacts = bq.Bars(x=[], y=[], scales={"x": self.x, "y": self.y_imp}, type="grouped",
+                               colors=["#c9d3dd", INK], labels=["planned", "done"], display_legend=True, padding=0.2)
+        self.impacts_figure = bq.Figure(
+            title="Impacts a week: planned (light) and done (dark); shaded: weak window",
+            marks=[shade(), self.impacts], axes=[axis_x(), bq.Axis(scale=self.y_imp, side="left",
+                                                                   label="impacts", tick_format="d")],
+            fig_margin=margin, legend_location="top-left", layout={"width": "100%", "height": "250px"})
+        self.impacts_figure.add_class("pr-live-chart-impacts")
+        self.y_min = bq.LinearScale(min=0.0)
+        self.y_kg = bq.LinearScale(min=0.0)
+        self.minutes = bq.Lines(x=[], y=[], scales={"x": self.x, "y": self.y_min}, colors=["#9aa5b1", INK],
+                                labels=["minutes planned", "minutes done"], display_legend=True, marker="circle",
+                                marker_size=20)
+        self.loads = bq.Lines(x=[], y=[], scales={"x": self.x, "y": self.y_kg}, colors=["#e0b080", ACCENT],
+                              labels=["load planned (kg)", "load lifted (kg)"], display_legend=True,
+                              marker="square", marker_size=20, line_style="dashed")
+        self.dose_figure = bq.Figure(
+            title="Minutes a week and top load: planned and done",
+            marks=[shade(), self.minutes, self.loads],
+            axes=[axis_x(), bq.Axis(scale=self.y_min, side="left", label="minutes", tick_format="d"),
+                  bq.Axis(scale=self.y_kg, side="right", label="kg", color=ACCENT)],
+            fig_margin=margin, legend_location="top-left", layout={"width": "100%", "height": "250px"})
+        self.dose_figure.add_class("pr-live-chart-dose")
+        self.y_pain = bq.LinearScale(min=0.0, max=10.0)
+        self.pain = bq.Lines(x=[], y=[], scales={"x": self.x, "y": self.y_pain},
+                             colors=["#a4161a", "#e07a7a", INK],
+                             labels=["pain during", "pain next morning", "effort (CR10)"], display_legend=True,
+                             marker="circle", marker_size=20)
+        self.pain_figure = bq.Figure(
+            title="Pain and effort (0-10) by week; shaded: weak window",
+            marks=[shade(), self.pain],
+            axes=[axis_x(), bq.Axis(scale=self.y_pain, side="left", label="0-10", tick_format="d")],
+            fig_margin=margin, legend_location="top-left", layout={"width": "100%", "height": "250px"})
+        self.pain_figure.add_class("pr-live-chart-pain")
+
+    @property
+    def figures(self) -> list:
+        return [self.impacts_figure, self.dose_figure, self.pain_figure]
+
+    def update(self, p) -> None:
+        import numpy as np
+        x = np.asarray(p.week, dtype=float)
+        if len(x):
+            self.x.min, self.x.max = float(x.min()) - 0.5, float(x.max()) + 0.5
+        shade_y = np.asarray([1.0 if v else 0.0 for v in p.weak_window])
+        for mark in self.shades:
+            with mark.hold_sync():
+                mark.x, mark.y = x, shade_y
+        with self.impacts.hold_sync():
+            self.impacts.x = x
+            self.impacts.y = np.asarray([p.impacts_planned, p.impacts_done], dtype=float)
+        with self.minutes.hold_sync():
+            self.minutes.x = x
+            self.minutes.y = np.asarray([p.minutes_planned, p.minutes_done], dtype=float)
+        with self.loads.hold_sync():
+            self.loads.x = x
+            self.loads.y = np.asarray([p.load_planned_kg, p.load_done_kg], dtype=float)
+        with self.pain.hold_sync():
+            self.pain.x = x
+            self.pain.y = np.asarray([p.pain_during, p.pain_next_morning, p.session_rpe], dtype=float)
