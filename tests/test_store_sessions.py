@@ -43,7 +43,7 @@ def test_a_0002_store_with_session_logs_upgrades_and_keeps_them(tmp_path):
     conn.commit()
     conn.close()
     with open_store(str(path)) as s:
-        assert s.revision() == HEAD_REVISION == "0003"
+        assert s.revision() == HEAD_REVISION
         old = s.sessions("OLD-2")
         assert len(old) == 1 and old[0]["legacy"] and old[0]["pain_during"] == 2 and old[0]["note"] == "old log"
         out = s.add_session(parse_session({"patient_id": "OLD-2", "session_date": "2026-01-20", "pain_during": 1}),

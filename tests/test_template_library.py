@@ -273,3 +273,26 @@ def test_the_clinicians_handout_page_names_the_template_and_its_version(store):
     page = render_html(plan, audience="clinician")
     assert "<th scope=\"row\">Template</th><td>riverside_standard@1 (clinic)</td>" in page
     assert "riverside_standard@1" not in render_html(plan, audience="person")
+
+
+def test_a_store_at_the_previous_revision_keeps_its_templates(tmp_path):
+    """A store made before revision 0004 opens, is migrated, and its template rows are found."""
+    import sqlite3
+
+    from test_store import _alembic_upgrade
+    path = tmp_path / "old.db"
+    _alembic_upgrade(path, "0003")
+    conn = sqlite3.connect(path)
+    conn.execute("INSERT INTO clinic_templates (name, version, body_json, status, created, created_by, approved_by, "
+                 "approved_at) VALUES ('old_one', 1, '{\"name\": \"old_one\"}', 'approved', "
+                 "'2026-01-05T09:00:00+00:00', 'Lead A', 'Lead B', '2026-01-06T09:00:00+00:00')")
+    conn.commit()
+    conn.close()
+    with open_store(str(path)) as s:
+        from prescribe.store import HEAD_REVISION
+        assert s.revision() == HEAD_REVISION == "0004"
+        (row,) = s.templates()
+        assert (row["name"], row["status"], row["approved_by"], row["change_note"], row["review_by"]) == \
+            ("old_one", "approved", "Lead B", "", None)
+        s.retire_template("old_one", 1, "Lead A")
+        assert s.get_template("old_one", 1)["status"] == "retired"
