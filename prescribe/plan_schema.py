@@ -56,6 +56,17 @@ class PlannedWeek(_Open):
     sessions: list[PlannedSession]
 
 
+class PlanTemplate(_Open):
+    """The template a program was built from: which document, and which version of it."""
+
+    name: str
+    title: str = ""
+    summary: str = ""
+    version: int | None = Field(None, ge=1, description="The template's version (1 for a shipped file "
+                                                         "unless it says otherwise).")
+    origin: str | None = Field(None, description='"shipped" (a file of the package) or "clinic" (the store).')
+
+
 class Plan(_Open):
     plan_format_version: str = PLAN_FORMAT_VERSION
     patient_id: str
@@ -66,6 +77,9 @@ class Plan(_Open):
     cautions: list[str]
     sources: list[str]
     weeks: list[PlannedWeek] = Field(min_length=1)
+    template: PlanTemplate | None = None
+    template_version: int | None = Field(None, ge=1, description="Version of the template used (null in plans "
+                                                                  "made before versions were recorded).")
     start_date: str | None = Field(None, description="First day of week 1 (YYYY-MM-DD); week N runs from "
                                                       "start_date + 7(N-1) days. Absent in older plan files.")
     based_on_version: int | None = Field(None, ge=1, description="The stored program version this one was "

@@ -874,7 +874,9 @@ class _Builder:
             "weeks": weeks,
             "options": {**opts.model_dump(mode="json"), "template": tpl.name, "fixed": fixed,
                         "balance_sessions_per_week": k_b},
-            "template": {"name": tpl.name, "title": tpl.title, "summary": tpl.summary},
+            "template": {"name": tpl.name, "title": tpl.title, "summary": tpl.summary,
+                         "version": tpl.version, "origin": tpl.origin},
+            "template_version": tpl.version,
             "max_impacts_per_session": tpl.impact["max_impacts_per_session"],
             "max_impacts_reason": tpl.max_impacts_reason,
             "start_level": self.start,
@@ -904,7 +906,8 @@ def _default_template(record: PatientRecord) -> str:
 
 
 def build_plan(record: PatientRecord, screening: ScreeningResult | None = None,
-               options: PlanOptions | None = None, catalogue=None, created: str | None = None) -> Plan:
+               options: PlanOptions | None = None, catalogue=None, created: str | None = None,
+               *, template: Template | None = None) -> Plan:
     """Build the graded program for one person.
 
     Parameters
@@ -920,6 +923,9 @@ def build_plan(record: PatientRecord, screening: ScreeningResult | None = None,
         The exercise catalogue; the packaged one by default.
     created : str, optional
         ISO 8601 timestamp to stamp (default: now, UTC).
+    template : Template, optional
+        A template already resolved and validated (a clinic version from the store);
+        it takes the place of ``options.template`` and the default choice.
     Returns
     -------
     Plan
@@ -946,7 +952,7 @@ def build_plan(record: PatientRecord, screening: ScreeningResult | None = None,
     if catalogue is None:
         from .catalogue import default_catalogue
         catalogue = default_catalogue()
-    tpl = load_template(options.template or _default_template(record))
+    tpl = template if template is not None else load_template(options.template or _default_template(record))
     created = created or datetime.now(timezone.utc).replace(microsecond=0).isoformat()
     data = _Builder(record, screening, options, catalogue, tpl).build(created)
     return _assemble(data)

@@ -188,7 +188,7 @@ def test_vertebral_fracture_keeps_impact_at_brisk_walking_or_below(vertebral):
     assert check_plan(plan, scr) == []
     assert max(w.impact_level for w in plan.weeks) <= 1
     assert all(w.impacts_per_session == 0 for w in plan.weeks)
-    assert plan.model_extra["template"]["name"] == "post_vertebral_fracture"
+    assert plan.template.name == "post_vertebral_fracture" and plan.template_version == 1
 
 
 def test_vertebral_fracture_resistance_is_spine_sparing_at_moderate_load(vertebral):

@@ -197,7 +197,7 @@ def refusal_is_justified(record, screening, options, refused) -> None:
     elif refused.rule == "rule 7":  # balance first with falls risk, for the first weeks
         assert (screening.falls_risk or screening.balance_first) and week <= 4 and before + 1 >= 2
     elif refused.rule == "rule 2":  # the level not yet held at full volume long enough
-        hold = load_template(plan.model_extra["template"]["name"]).impact["hold_weeks_at_full"]
+        hold = load_template(plan.template.name).impact["hold_weeks_at_full"]
         assert _weeks_at_full_before(plan, week) < hold, (week, _weeks_at_full_before(plan, week))
     else:
         raise AssertionError(f"a step-up refused under an unexpected rule: {refused.rule}")

@@ -271,7 +271,7 @@ def test_session_logs_and_clinic_templates(store):
     assert store.add_template("Osteopenia start", {"weeks": 12}, "Lead A") == 1
     assert store.add_template("Osteopenia start", {"weeks": 16}, "Lead A") == 2
     store.approve_template("Osteopenia start", 2, "Lead B")
-    with pytest.raises(ConflictError, match="already approved by Lead B"):
+    with pytest.raises(InputError, match="approved by Lead B"):
         store.approve_template("Osteopenia start", 2, "Lead C")
     rows = store.templates("Osteopenia start")
     assert [(t["version"], t["status"], t["approved_by"]) for t in rows] == [(1, "draft", None), (2, "approved", "Lead B")]

@@ -97,6 +97,7 @@ def handout_context(plan: Plan, audience: str, paper: str, clinic: Clinic, senso
         "explanations": explain_figures.plan_explanations(plan) if clinician else None,
         "screening": plan.screening, "level_labels": content.LEVEL_LABELS, "if_hard_general": content.IF_HARD_GENERAL,
         "versions": [("Tool version (plan)", plan.tool_version), ("Rule-set version", plan.ruleset_version),
+                     ("Template", _template_text(plan)),
                      ("Plan format", plan.plan_format_version), ("Plan created", plan.created),
                      ("Handout made by", f"prescribe {__version__}, plan format {PLAN_FORMAT_VERSION}")],
         "has_weak": any(f.weak_window for f in facts),
@@ -161,3 +162,13 @@ def write_handout(plan: Plan | dict, out_path: str | os.PathLike, audience: str 
         raise InputError.single("--out", str(out_path), "a file in an existing folder")
     write_atomically(out, data, "--out")
     return out
+
+
+def _template_text(plan) -> str:
+    """The template a program was built from, with its version (``name@version``, origin)."""
+    tpl = plan.template
+    if tpl is None:
+        return "not recorded"
+    version = plan.template_version or tpl.version
+    text = tpl.name + (f"@{version}" if version else " (version not recorded)")
+    return text + (f" ({tpl.origin})" if tpl.origin else "")

@@ -137,8 +137,10 @@ class ClinicSession:
         options = {k: v for k, v in {**self.options, **changes}.items() if v is not None}
         applied: list[tuple[str, str]] = []
 
+        template, template_note = self._kept_template()
+
         def make():
-            plan = build_plan(self.record, self.screening, plan_options(**options))
+            plan = build_plan(self.record, self.screening, plan_options(**options), template=template)
             for old, new in self.swaps:
                 # A swap applies while the exercise it replaced is still chosen by the planner.
                 if any(e.exercise_id == old for w in plan.weeks for s in w.sessions for e in s.exercises):
@@ -154,6 +156,8 @@ class ClinicSession:
         dropped = [old for old, new in self.swaps if (old, new) not in applied]
         self.program_note = ("The new program no longer uses " + ", ".join(dropped) + ", so the swap "
                              "made for it no longer applies." if dropped else None)
+        if template_note:
+            self.program_note = template_note + (" " + self.program_note if self.program_note else "")
         self.options, self.plan, self.swaps = options, plan, applied
         return True
 
@@ -176,6 +180,24 @@ class ClinicSession:
         self.swaps.append((old_id, new_id))
         self.plan = plan
         return True
+
+    def _kept_template(self):
+        """The clinic template of the open program, kept when it is rebuilt: (Template or None, note).
+
+        A program built from an approved clinic version is rebuilt from the same version;
+        one whose version has since been retired (or is gone) is rebuilt from the planner's
+        default choice, and the note says so.
+        """
+        tpl = getattr(self.plan, "template", None) if self.plan is not None else None
+        if tpl is None or tpl.origin != "clinic" or not tpl.version:
+            return None, None
+        ref = f"{tpl.name}@{tpl.version}"
+        try:
+            from ..template_library import resolve
+            return resolve(ref, self.store, purpose="plan").template(), None
+        except (InputError, PrescribeError) as exc:
+            return None, (f"The program was built from template {ref}, which can no longer build programs "
+                          f"({exc}); it was rebuilt from the planner's default template.")
 
     def _attempt(self, make):
         """``make()``'s plan, or None with ``refusal`` set to the planner's reason."""
@@ -365,6 +387,9 @@ class ClinicSession:
             out.append({"version": row["version"], "based_on_version": row.get("based_on_version"),
                         "clinician": row.get("clinician"), "saved": row.get("created"),
                         "weeks": summary.get("weeks"), "max_impact_level": summary.get("max_impact_level"),
+                        "template": (f"{summary['template']}@{summary['template_version']}"
+                                     if summary.get("template") and summary.get("template_version")
+                                     else summary.get("template")),
                         "note": row.get("note")})
         return out
 

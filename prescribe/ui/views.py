@@ -26,6 +26,7 @@ from . import form_spec
 from .explain_view import ExplainView
 from .exercise_view import ExerciseView
 from .session import IMPACT_LABELS, ClinicSession, EngineMissing
+from .templates_view import TemplatesView, program_notice_html
 
 log = logging.getLogger("prescribe.ui")
 
@@ -357,6 +358,7 @@ class ClinicApp:
         self.live = SessionsView(self)
         from .sensor_view import SensorPanel  # worn-sensor section
         self.sensor_panel = SensorPanel(self)
+        self.templates_view = TemplatesView(self.session)  # the clinic lead's section (loads when opened)
         title = w.HTML("<h1 style='font-size:22px;margin:4px 0'>prescribe: bone-loading program builder</h1>"
                        "<p>Decision support for clinicians. Work down the page: person, screening, program, "
                        "handout, save.</p>")
@@ -365,7 +367,7 @@ class ClinicApp:
         self.widget = w.VBox([w.HTML(STYLE), title, self.errors.widget, cautions_box(),
                               self.person_section, self.screening_section, self.program_section,
                               self.handout_section, self.store_section, self.live.widget,
-                              self.sensor_panel.widget, self.template_review.widget])
+                              self.sensor_panel.widget, self.templates_view.widget, self.template_review.widget])
         self.widget.add_class("pr-app")
         self.warm_thread: threading.Thread | None = None
         self._warm_lock = threading.Lock()
@@ -723,7 +725,7 @@ class ClinicApp:
         self.load_select.options = [("- choose -", None)] + [(p, p) for p in people]
         if current in people:
             self.load_select.value = current
-        self.history.value = table_html(versions)
+        self.history.value = table_html(versions) + program_notice_html(self.session)
         try:
             self.template_review.refresh()
         except PrescribeError as exc:
