@@ -11,7 +11,7 @@ from typing import Any, Literal
 from pydantic import BaseModel, ConfigDict, Field, ValidationError
 
 from .errors import FieldProblem, PlanFileError
-from .records import ScreeningResult, problems_from_validation
+from .records import PatientRecord, ScreeningResult, problems_from_validation
 
 PLAN_FORMAT_VERSION = "1.0"
 
@@ -37,6 +37,8 @@ class PlannedExercise(_Open):
     peak_grf_bw: float = Field(ge=0)
     directions: list[str] = Field(default_factory=list)
     patterns: list[str] = Field(default_factory=list)
+    supervised: bool = Field(False, description="Done only with a clinician or trainer present "
+                                                "(80% 1RM or more, or high impact).")
 
 
 class PlannedSession(_Open):
@@ -45,6 +47,7 @@ class PlannedSession(_Open):
     exercises: list[PlannedExercise]
     impacts: int = Field(0, ge=0)
     osteogenic_index: float = Field(0.0, ge=0)
+    supervised: bool = Field(False, description="The session holds supervised work.")
 
 
 class PlannedWeek(_Open):
@@ -65,6 +68,12 @@ class Plan(_Open):
     cautions: list[str]
     sources: list[str]
     weeks: list[PlannedWeek] = Field(min_length=1)
+    # Safety (docs/safety.md): the record the plan was built from, re-screened by the check;
+    # a draft until a clinician records the clearance of a person the screening refers.
+    record: PatientRecord | None = None
+    draft: bool = False
+    cleared_by: str | None = Field(None, min_length=1, max_length=120)
+    cleared_at: str | None = Field(None, description="ISO 8601 UTC time of the clearance.")
 
 
 def parse_plan(data: Any, source: str | None = None) -> Plan:
