@@ -31,6 +31,7 @@ from .records import PatientRecord, ScreeningResult
 
 __all__ = ["SafetyViolation", "Limits", "Rule", "RULES", "check_program", "assert_safe", "limits_for",
            "strictest_screening", "rescreen", "pct_1rm", "rpe_top", "SUPERVISED_FROM_PCT_1RM",
+           "record_clearance", "is_draft",
            "MAX_BOUT_IMPACTS", "MIN_BOUT_GAP_H", "IMPACTS_CEILING"]
 
 # --- sources ------------------------------------------------------------------------------
@@ -68,6 +69,8 @@ SRC_RESISTANCE_DAYS = ("Kohrt et al. 2004, Med Sci Sports Exerc 36:1985-1996 (re
 SRC_DRAFT = ("common practice (clinical governance): a program for a person the screening refers stays a "
              "draft until a named clinician records the clearance; the refer rules' own sources are in "
              "docs/rules.md")
+SRC_RECORD = ("common practice: a program is checked against the person's own record, screened again with "
+              "the current rules")
 SRC_CATALOGUE = ("common practice: each exercise's level, force and patterns are the catalogue's, whose "
                  "figures carry their own published sources (docs/catalogue.md)")
 
@@ -896,12 +899,53 @@ def check_program(plan: Plan, screening: ScreeningResult | None = None, *, catal
 
 
 def assert_safe(plan: Plan, screening: ScreeningResult | None = None, *, door: str = "", catalogue=None,
-                record: PatientRecord | None = None) -> None:
+                record: PatientRecord | None = None, require_record: bool = False) -> None:
     """Raise :class:`~prescribe.errors.UnsafeProgram` when :func:`check_program` finds a violation.
 
     ``door`` names where the program came in (``"prescribe handout"``, ``"app: swap"``)
-    and starts the message.
+    and starts the message.  With ``require_record`` a plan that carries no patient
+    record, checked without the caller's (the store's) record either, is refused: its
+    only screening is the plan's own copy, which a hand edit can loosen.
     """
     found = check_program(plan, screening, catalogue=catalogue, record=record)
+    if require_record and plan.record is None and record is None:
+        found.insert(0, SafetyViolation(
+            "record_on_file", None, None,
+            "the plan carries no patient record to screen again, and no stored record of "
+            f"{plan.patient_id!r} was given, so its embedded screening cannot be trusted",
+            "a plan made by this version of `prescribe plan` (it carries the record), or the person's record "
+            "from the store", SRC_RECORD))
     if found:
         raise UnsafeProgram(found, door=door)
+
+
+def record_clearance(plan: Plan, cleared_by: str, cleared_at: str | None = None) -> Plan:
+    """A copy of ``plan`` cleared by a clinician: ``draft`` false, who and when recorded.
+
+    Raises
+    ------
+    InputError
+        ``cleared_by`` is empty or longer than 120 characters, or ``cleared_at`` is not
+        an ISO 8601 date and time.
+    """
+    from datetime import datetime, timezone
+
+    from .errors import InputError
+
+    who = cleared_by.strip() if isinstance(cleared_by, str) else cleared_by
+    if not isinstance(who, str) or not 1 <= len(who) <= 120 or not who.isprintable():
+        raise InputError.single("cleared_by", cleared_by, "the clearing clinician's name or initials "
+                                "(1-120 printable characters)")
+    if cleared_at is None:
+        cleared_at = datetime.now(timezone.utc).replace(microsecond=0).isoformat()
+    else:
+        try:
+            datetime.fromisoformat(str(cleared_at))
+        except ValueError:
+            raise InputError.single("cleared_at", cleared_at, "an ISO 8601 date and time") from None
+    return plan.model_copy(update={"draft": False, "cleared_by": who, "cleared_at": str(cleared_at)})
+
+
+def is_draft(plan: Plan) -> bool:
+    """True while the program must not be started: a draft with no clearance recorded."""
+    return bool(plan.draft) and not (plan.cleared_by and plan.cleared_at)

@@ -20,6 +20,9 @@ def register(sub) -> None:
     p.add_argument("--paper", default="a4", metavar="a4|letter", help="paper size (default a4)")
     p.add_argument("--audience", default="both", metavar="person|clinician|both",
                    help="which pages to print (default both)")
+    p.add_argument("--db", default=None,
+                   help="also check the plan against the person's record in this store (a file path or a "
+                        "database URL; default: $PRESCRIBE_DB when it is set)")
     p.set_defaults(func=run)
 
 
@@ -30,6 +33,11 @@ def run(args) -> int:
     check_out_path(args.out)  # refuse a bad --out before reading the plan
     check_options(args.audience, args.paper, ("--audience", "--paper"))
     plan = parse_plan(read_json_file(args.plan, "PLAN.json"), source=args.plan)
+    # A plan file can be edited by hand: the one safety check runs before anything is
+    # written (exit 2 and no file on a refusal; docs/safety.md).
+    from ..safety import assert_safe
+    assert_safe(plan, door="prescribe handout", record=_stored_record(args.db, plan.patient_id),
+                require_record=True)
     out = write_handout(plan, args.out, audience=args.audience, paper=args.paper)
     emit_json({
         "out": str(out), "format": out.suffix.lower().lstrip("."), "bytes": out.stat().st_size,
@@ -37,3 +45,27 @@ def run(args) -> int:
         "weeks": len(plan.weeks), "cautions": list(STANDARD_CAUTIONS),
     })
     return 0
+
+
+def _stored_record(db: str | None, patient_id: str):
+    """The person's record from the store named by --db or $PRESCRIBE_DB, or None.
+
+    Only an existing store is read (none is created); a store without the person gives None.
+    """
+    import os
+
+    if db is None and not os.environ.get("PRESCRIBE_DB"):
+        return None
+    from ..errors import NotFoundError, StoreError
+    from ..store import open_store
+    try:
+        store = open_store(db, create=False)
+    except StoreError:
+        if db is not None:
+            raise  # the store asked for by name must be there
+        return None  # $PRESCRIBE_DB names no store yet: nothing stored to check against
+    with store:
+        try:
+            return store.get_patient(patient_id)
+        except NotFoundError:
+            return None

@@ -14,7 +14,7 @@ _OPTION_OF = {
     "weeks": "--weeks", "start_level": "--start-level", "template": "--template",
     "impact_sessions_per_week": "--impact-sessions", "resistance_sessions_per_week": "--resistance-sessions",
     "balance_sessions_per_week": "--balance-sessions", "exclude": "--exclude", "include": "--include",
-    "step_up_weeks": "--step-up-weeks",
+    "step_up_weeks": "--step-up-weeks", "cleared_by": "--cleared-by",
 }
 
 
@@ -47,6 +47,9 @@ def register(sub) -> None:
     p.add_argument("--include", nargs="+", default=[], metavar="ID", help="exercise ids to prefer")
     p.add_argument("--step-up-weeks", nargs="+", type=_whole, default=[], metavar="W",
                    help="weeks where the impact level should rise (refused where a safety rule forbids it)")
+    p.add_argument("--cleared-by", default=None, metavar="NAME",
+                   help="record that clinician NAME has cleared this person for the program (with the time); "
+                        "until then a person the screening refers gets a draft program")
     p.add_argument("--table", action="store_true", help="print the weekly summary table instead of JSON")
     p.set_defaults(func=run)
 
@@ -83,10 +86,19 @@ def run(args) -> int:
 
     options = _options(args)
     record = load_record(args.patient)
+    from ..safety import assert_safe, record_clearance
+
     try:
         plan = build_plan(record, screen(record), options)
     except InputError as exc:
         raise _named_as_options(exc) from None
+    if args.cleared_by is not None:
+        try:
+            plan = record_clearance(plan, args.cleared_by)
+        except InputError as exc:
+            raise _named_as_options(exc) from None
+    # The one safety check (docs/safety.md): an unsafe program is refused (exit 2), nothing printed.
+    assert_safe(plan, door="prescribe plan", record=record)
     if not args.table:
         emit_json(plan)
         return 0

@@ -36,6 +36,7 @@ from ..cautions import STANDARD_CAUTIONS
 from ..errors import ConflictError, FieldProblem, InputError, NotFoundError, StoreError
 from ..plan_schema import parse_plan
 from ..records import PatientRecord, ScreeningResult, parse_record
+from ..safety import assert_safe
 from ..settings import db_url
 from . import models as m
 from .bundle import BUNDLE_FORMAT_VERSION, BUNDLE_KIND, parse_bundle
@@ -317,7 +318,11 @@ class Store:
         summary_json = _dumps(plan_summary(plan), "plan")
         at = now_utc()
         with self._write() as conn:
-            _person(conn, patient_id, lock=True)
+            row = _person(conn, patient_id, lock=True)
+            # Defence in depth: whoever calls, a program is stored only if it passes the one
+            # safety check against the person's stored record (docs/safety.md).
+            assert_safe(parsed, door=f"store: saving a program for {patient_id!r}",
+                        record=parse_record(json.loads(row.record_json), source=f"store record {patient_id!r}"))
             latest = conn.execute(select(m.program_versions.c.version, m.program_versions.c.clinician,
                                          m.program_versions.c.created)
                                   .where(m.program_versions.c.patient_id == patient_id)
@@ -469,6 +474,7 @@ class Store:
         """
         b = parse_bundle(bundle)
         pid = b["person"]["patient_id"]
+        check_bundle_programs(b)
         at = now_utc()
         with self._write() as conn:
             exists = conn.execute(select(m.people.c.patient_id).where(m.people.c.patient_id == pid)
@@ -619,6 +625,18 @@ def _read_revision(conn: Connection) -> str | None:
     if "alembic_version" not in _table_names(conn):
         return None
     return conn.execute(text("SELECT version_num FROM alembic_version")).scalar()
+
+
+def check_bundle_programs(b: dict) -> None:
+    """Every program version of a bundle passes the safety check against the bundle's record.
+
+    Raises :class:`~prescribe.errors.UnsafeProgram` (nothing is stored) naming the version.
+    """
+    record = parse_record(b["person"]["record"], source="bundle person.record")
+    for p in b["programs"]:
+        plan = parse_plan(p["plan"], source=f"bundle program version {p['version']}")
+        assert_safe(plan, door=f"import: program version {p['version']} of {b['person']['patient_id']!r}",
+                    record=record)
 
 
 def _person(conn: Connection, patient_id: str, lock: bool = False):
