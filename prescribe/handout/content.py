@@ -186,6 +186,8 @@ def dose_text(ex: PlannedExercise) -> str:
     if ex.intensity:
         scale = ex.intensity[:1].isdigit() or ex.intensity.upper().startswith("RPE") or "%" in ex.intensity
         text += f" at {ex.intensity}" if scale else f", {ex.intensity}"
+    if ex.supervised:
+        text += ", supervised only"
     return text
 
 
@@ -461,7 +463,12 @@ def goals(plan: Plan) -> list[str]:
         out.append("Improve your balance and leg strength to lower your chance of a fall.")
     if {"loaded_spinal_flexion", "loaded_spinal_twisting"} & set(plan.screening.avoid):
         out.append("Protect your spine: do not bend forward or twist while lifting, carrying or straining.")
-    out.append("Exercise safely on your own, and know when to stop and ask for advice.")
+    if any(x.supervised for w in plan.weeks for ses in w.sessions for x in ses.exercises):
+        # Never "on your own" where supervision is prescribed (docs/safety.md, rule supervision).
+        out.append("Exercise safely: do the exercises marked supervised only with your clinician or trainer "
+                   "present, and know when to stop and ask for advice.")
+    else:
+        out.append("Exercise safely on your own, and know when to stop and ask for advice.")
     return out
 
 
