@@ -195,9 +195,11 @@ class ClinicSession:
         kept = " The previous program is kept and nothing was saved."
         violations = getattr(exc, "violations", None)
         if violations:
-            v = violations[0]
+            # A swap is refused first of all for changing the kind of movement: say that first.
+            v = next((x for x in violations if x.rule == "swap_same_kind"), violations[0])
             more = len(violations) - 1
-            text = v.message[0].upper() + v.message[1:]
+            first = v.message.split(" ", 1)[0]
+            text = v.message if "_" in first else v.message[0].upper() + v.message[1:]
             return (f"Refused: {text}. Allowed: {v.allowed}."
                     + (f" ({more} more problem{'s' if more != 1 else ''} of the same change.)" if more else "")
                     + f" [rule {v.rule}]" + kept)
