@@ -169,6 +169,7 @@ _PCT_1RM = re.compile(r"(\d+(?:\.\d+)?)\s*(?:[-\u2013to ]+\s*(\d+(?:\.\d+)?))?\s
                       re.IGNORECASE)
 
 
+@lru_cache(maxsize=1024)
 def pct_1rm(intensity: str | None) -> float | None:
     """The highest %1RM an intensity text prescribes ("80% 1RM", "80-85% 1RM"), or None."""
     if not intensity:
@@ -180,6 +181,7 @@ def pct_1rm(intensity: str | None) -> float | None:
 _RPE = re.compile(r"RPE\s*(\d+(?:\.\d+)?)(?:\s*[-\u2013]\s*(\d+(?:\.\d+)?))?", re.IGNORECASE)
 
 
+@lru_cache(maxsize=1024)
 def rpe_top(intensity: str | None) -> float | None:
     """The highest Borg CR10 effort an intensity text prescribes ("RPE 5-6" gives 6), or None."""
     if not intensity:
@@ -204,6 +206,8 @@ class _CatEntry:
     loaded: bool
     family: str
     depth: int
+    patterns_list: list = field(default_factory=list)    # sorted, as the planner writes them
+    directions_list: list = field(default_factory=list)  # in catalogue order, as the planner writes them
 
 
 def _catalogue_entries(catalogue) -> dict[str, _CatEntry]:
@@ -232,7 +236,7 @@ def _catalogue_entries(catalogue) -> dict[str, _CatEntry]:
             spine_sparing=bool(e.spine_sparing),
             loaded=bool(e.loaded_by_1rm or e.grf_plus_external_load)
             or any(w in equipment for w in ("dumbbell", "kettlebell", "barbell", "band", "plates", "bar")),
-            family=fam, depth=depth)
+            family=fam, depth=depth, patterns_list=sorted(e.patterns), directions_list=list(e.directions))
     try:
         object.__setattr__(catalogue, "_safety_entries", out)
     except (AttributeError, TypeError):
@@ -240,61 +244,126 @@ def _catalogue_entries(catalogue) -> dict[str, _CatEntry]:
     return out
 
 
+@dataclass(frozen=True)
+class _SessionFacts:
+    """What the rules read of one session's exercises (computed once per distinct session)."""
+
+    impacts: int            # level 2-3 landings, all exercises
+    top: int                # highest impact level
+    pct: float              # highest %1RM (0 if none)
+    rpe: float              # highest effort of resistance work (resistance sessions; 0 if none)
+    vol: int                # sets x repetitions of resistance work (resistance sessions)
+    balance: bool           # holds balance work
+    dirs: frozenset[str]    # loading directions of level 2-3 work
+    landing: tuple          # level 2-3 exercises with impacts (for bouts)
+
+
 class _Facts:
-    """The plan and its limits, with each week's figures computed once for all rules."""
+    """The plan and its limits, with each week's and session's figures computed once for all rules.
+
+    A built plan shares exercise models between sessions and weeks; the figures of a
+    session are computed once per distinct set of exercises, and the per-exercise rules
+    see each distinct (exercise, session kind, supervised) once, at its first week.
+    """
 
     def __init__(self, plan: Plan, limits: Limits, catalogue, record: PatientRecord | None = None):
         self.plan, self.limits, self.record = plan, limits, record
         self.catalogue = catalogue
         self.entries = _catalogue_entries(catalogue)
         self.weeks = plan.weeks
-        # Per week: highest impact level of its exercises, largest session's level 2-3 impacts.
-        self.levels: list[int] = []
-        self.session_max: list[int] = []
+        self.levels: list[int] = []        # per week: highest impact level
+        self.session_max: list[int] = []   # per week: largest session's level 2-3 impacts
+        self.res_pct: list[float] = []     # per week: highest %1RM
+        self.res_rpe: list[float] = []     # per week: highest effort of resistance work
+        self.res_vol: list[int] = []       # per week: largest resistance session's sets x repetitions
+        self.week_sessions: list[list[tuple]] = []  # per week: (session, facts)
+        self.balance_days: list[set[int]] = []       # per week: days with balance work
+        self.resistance_days: list[list[int]] = []   # per week: days of resistance sessions
+        self.day_impacts: list[dict[int, int]] = []  # per week: level 2-3 landings a day (days with any)
+        self.count_mismatch: list[tuple] = []        # (week, session, facts) whose impacts do not add up
+        self.contexts: dict[tuple, tuple] = {}      # (id(x), kind, supervised) -> (week, session, x)
+        cache: dict[tuple, _SessionFacts] = {}
+        contexts = self.contexts
+        get = cache.get
         for wk in plan.weeks:
-            top = 0
-            largest = 0
+            pairs = []
+            bal_days: set[int] = set()
+            res_days: list[int] = []
+            day_imp: dict[int, int] = {}
             for s in wk.sessions:
-                n = 0
-                for x in s.exercises:
-                    if x.impact_level > top:
-                        top = x.impact_level
-                    if x.impact_level >= 2:
-                        n += x.impacts
-                if n > largest:
-                    largest = n
+                kind, sup, xs = s.kind, s.supervised, s.exercises
+                key = (kind, sup, *map(id, xs))
+                sf = get(key)
+                if sf is None:
+                    sf = cache[key] = _session_facts(kind, xs)
+                    for x in xs:
+                        ck = (id(x), kind, sup)
+                        if ck not in contexts:
+                            contexts[ck] = (wk.week, s, x)
+                pairs.append((s, sf))
+                if sf.impacts != s.impacts:
+                    self.count_mismatch.append((wk, s, sf))
+                if sf.balance:
+                    bal_days.add(s.day)
+                if kind == "resistance":
+                    res_days.append(s.day)
+                if sf.impacts:
+                    day_imp[s.day] = day_imp.get(s.day, 0) + sf.impacts
+            top = largest = vol = 0
+            pct = rpe = 0.0
+            for _, sf in pairs:
+                if sf.top > top:
+                    top = sf.top
+                if sf.impacts > largest:
+                    largest = sf.impacts
+                if sf.pct > pct:
+                    pct = sf.pct
+                if sf.rpe > rpe:
+                    rpe = sf.rpe
+                if sf.vol > vol:
+                    vol = sf.vol
+            self.week_sessions.append(pairs)
+            self.balance_days.append(bal_days)
+            self.resistance_days.append(res_days)
+            self.day_impacts.append(day_imp)
             self.levels.append(top)
             self.session_max.append(largest)
-        # Per week: resistance intensity (%1RM, effort) and the largest resistance session's sets x reps.
-        self.res_pct: list[float] = []
-        self.res_rpe: list[float] = []
-        self.res_vol: list[int] = []
-        for wk in plan.weeks:
-            pct, rpe, vol = 0.0, 0.0, 0
-            for s in wk.sessions:
-                in_res = s.kind == "resistance"
-                v = 0
-                for x in s.exercises:
-                    p = pct_1rm(x.intensity)
-                    if p is not None and p > pct:
-                        pct = p
-                    if in_res:
-                        r = rpe_top(x.intensity)
-                        if r is not None and r > rpe:
-                            rpe = r
-                        v += (x.sets or 0) * (x.reps or 0)
-                if v > vol:
-                    vol = v
             self.res_pct.append(pct)
             self.res_rpe.append(rpe)
             self.res_vol.append(vol)
 
     def exercises(self) -> Iterator[tuple[int, object, object]]:
-        """(week, session, exercise) for every exercise of the plan."""
-        for wk in self.weeks:
-            for s in wk.sessions:
-                for x in s.exercises:
-                    yield wk.week, s, x
+        """(first week, session, exercise) for each distinct exercise in its session's kind."""
+        return iter(self.contexts.values())
+
+
+def _session_facts(kind: str, xs) -> _SessionFacts:
+    impacts = top = vol = 0
+    pct = rpe = 0.0
+    balance = False
+    dirs: set[str] = set()
+    landing = []
+    in_res = kind == "resistance"
+    for x in xs:
+        lv = x.impact_level
+        if lv > top:
+            top = lv
+        if lv >= 2:
+            impacts += x.impacts
+            dirs.update(x.directions)
+            if x.impacts > 0:
+                landing.append(x)
+        p = pct_1rm(x.intensity)
+        if p is not None and p > pct:
+            pct = p
+        if in_res:
+            r = rpe_top(x.intensity)
+            if r is not None and r > rpe:
+                rpe = r
+            vol += (x.sets or 0) * (x.reps or 0)
+        if x.category == "balance" and (x.minutes or x.sets or x.reps):
+            balance = True
+    return _SessionFacts(impacts, top, pct, rpe, vol, balance, frozenset(dirs), tuple(landing))
 
 
 def _extra(model, key, default=None):
@@ -349,15 +418,13 @@ def rule_week_figures(f: _Facts) -> Iterator[SafetyViolation]:
 
 def rule_impact_counts(f: _Facts) -> Iterator[SafetyViolation]:
     """Session and week impact counts are what the exercises add up to."""
+    for wk, s, sf in f.count_mismatch:
+        yield SafetyViolation(
+            "impact_counts_match", wk.week, None,
+            f"week {wk.week} day {s.day}: session impacts {s.impacts} do not add up to the exercises' "
+            f"level 2-3 impacts {sf.impacts}", "session impacts equal to the sum of its level 2-3 impacts",
+            SRC_FIGURES)
     for wk, largest in zip(f.weeks, f.session_max):
-        for s in wk.sessions:
-            n = sum(x.impacts for x in s.exercises if x.impact_level >= 2)
-            if n != s.impacts:
-                yield SafetyViolation(
-                    "impact_counts_match", wk.week, None,
-                    f"week {wk.week} day {s.day}: session impacts {s.impacts} do not add up to the exercises' "
-                    f"level 2-3 impacts {n}", "session impacts equal to the sum of its level 2-3 impacts",
-                    SRC_FIGURES)
         if largest != wk.impacts_per_session:
             yield SafetyViolation(
                 "impact_counts_match", wk.week, None,
@@ -380,38 +447,33 @@ def rule_session_ceiling(f: _Facts) -> Iterator[SafetyViolation]:
 
 def rule_bout_split(f: _Facts) -> Iterator[SafetyViolation]:
     """More than 50 impacts in a day are split into bouts at least 4 h apart."""
-    for wk in f.weeks:
-        by_day: dict[int, list] = {}
-        for s in wk.sessions:
-            for x in s.exercises:
-                if x.impact_level >= 2 and x.impacts > 0:
-                    by_day.setdefault(s.day, []).append(x)
-        for day, xs in by_day.items():
-            total = sum(x.impacts for x in xs)
+    for wk, pairs, day_imp in zip(f.weeks, f.week_sessions, f.day_impacts):
+        for day, total in day_imp.items():
             if total <= MAX_BOUT_IMPACTS:
                 continue
             need = math.ceil(total / MAX_BOUT_IMPACTS)
-            for x in xs:
-                gap = _extra(x, "bout_gap_hours")
-                if x.bouts < need or gap is None or gap < MIN_BOUT_GAP_H:
-                    yield SafetyViolation(
-                        "bout_split", wk.week, x.exercise_id,
-                        f"week {wk.week} day {day}: {total} impacts in the day need at least {need} bouts at "
-                        f"least {MIN_BOUT_GAP_H:g} h apart ({x.exercise_id} has {x.bouts} bout(s), gap {gap} h)",
-                        f"at most {MAX_BOUT_IMPACTS} impacts a bout, bouts at least {MIN_BOUT_GAP_H:g} h apart",
-                        SRC_BOUTS)
+            for s, sf in pairs:
+                if s.day != day:
+                    continue
+                for x in sf.landing:
+                    gap = _extra(x, "bout_gap_hours")
+                    if x.bouts < need or gap is None or gap < MIN_BOUT_GAP_H:
+                        yield SafetyViolation(
+                            "bout_split", wk.week, x.exercise_id,
+                            f"week {wk.week} day {day}: {total} impacts in the day need at least {need} bouts at "
+                            f"least {MIN_BOUT_GAP_H:g} h apart ({x.exercise_id} has {x.bouts} bout(s), gap {gap} h)",
+                            f"at most {MAX_BOUT_IMPACTS} impacts a bout, bouts at least {MIN_BOUT_GAP_H:g} h apart",
+                            SRC_BOUTS)
 
 
 def rule_two_directions(f: _Facts) -> Iterator[SafetyViolation]:
     """From moderate impact on, each week's level 2-3 work loads in at least two directions."""
-    for wk, top in zip(f.weeks, f.levels):
+    for wk, top, pairs in zip(f.weeks, f.levels, f.week_sessions):
         if top < 2:
             continue
         dirs: set[str] = set()
-        for s in wk.sessions:
-            for x in s.exercises:
-                if x.impact_level >= 2:
-                    dirs.update(x.directions)
+        for _, sf in pairs:
+            dirs |= sf.dirs
         if len(dirs) < 2:
             yield SafetyViolation(
                 "two_directions", wk.week, None,
@@ -488,7 +550,7 @@ def rule_weak_window(f: _Facts) -> Iterator[SafetyViolation]:
                         + " (no increase of any kind in weeks 3-5)", SRC_REMODEL)
     for j in range(1, n):
         wk = f.weeks[j]
-        if not _extra(wk, "weak_window"):
+        if not (wk.model_extra or {}).get("weak_window"):
             continue
         for attr, what, allowed, fmt in _MEASURES:
             values = getattr(f, attr)
@@ -532,6 +594,10 @@ def rule_catalogue_match(f: _Facts) -> Iterator[SafetyViolation]:
             continue
         seen.add(id(x))
         e = f.entries.get(x.exercise_id)
+        if (e is not None and x.category == e.category and x.impact_level == e.impact_level
+                and x.peak_grf_bw == e.peak_grf_bw and x.patterns == e.patterns_list
+                and x.directions == e.directions_list):
+            continue  # the planner's own copy of the entry
         if e is None:
             if x.exercise_id not in reported:
                 reported.add(x.exercise_id)
@@ -614,9 +680,7 @@ def rule_balance_every_week(f: _Facts) -> Iterator[SafetyViolation]:
     """Where falls risk is flagged, balance work on at least two days of every week."""
     if not f.limits.falls_risk:
         return
-    for wk in f.weeks:
-        days = {s.day for s in wk.sessions
-                if any(x.category == "balance" and (x.minutes or x.sets or x.reps) for x in s.exercises)}
+    for wk, days in zip(f.weeks, f.balance_days):
         if len(days) < MIN_BALANCE_DAYS:
             yield SafetyViolation(
                 "balance_every_week", wk.week, None,
@@ -707,9 +771,18 @@ def rule_swap_same_kind(f: _Facts) -> Iterator[SafetyViolation]:
 
 def rule_resistance_days(f: _Facts) -> Iterator[SafetyViolation]:
     """At most 3 resistance sessions a week, never on consecutive days."""
-    for wk in f.weeks:
-        days = sorted({s.day for s in wk.sessions if s.kind == "resistance"})
+    ok: set[tuple] = set()
+    for wk, res_days in zip(f.weeks, f.resistance_days):
+        if len(res_days) < 2:
+            continue
+        key = tuple(res_days)
+        if key in ok:
+            continue
+        days = sorted(set(res_days))
         close = [(a, b) for a, b in zip(days, days[1:]) if b - a < 2]
+        if len(days) <= MAX_RESISTANCE_SESSIONS and not close:
+            ok.add(key)
+            continue
         if len(days) > MAX_RESISTANCE_SESSIONS or close:
             what = (f"{len(days)} resistance sessions" if len(days) > MAX_RESISTANCE_SESSIONS
                     else f"resistance on consecutive days {close[0][0]} and {close[0][1]}")
