@@ -36,7 +36,7 @@ def run(args) -> int:
     # A plan file can be edited by hand: the one safety check runs before anything is
     # written (exit 2 and no file on a refusal; docs/safety.md).
     from ..safety import assert_safe
-    assert_safe(plan, door="prescribe handout", record=_stored_record(args.db, plan.patient_id),
+    assert_safe(plan, door=str(args.plan), record=_stored_record(args.db, plan.patient_id),
                 require_record=True)
     out = write_handout(plan, args.out, audience=args.audience, paper=args.paper)
     emit_json({

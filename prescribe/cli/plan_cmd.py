@@ -98,7 +98,7 @@ def run(args) -> int:
         except InputError as exc:
             raise _named_as_options(exc) from None
     # The one safety check (docs/safety.md): an unsafe program is refused (exit 2), nothing printed.
-    assert_safe(plan, door="prescribe plan", record=record)
+    assert_safe(plan, door=f"the program for {record.patient_id}", record=record)
     if not args.table:
         emit_json(plan)
         return 0

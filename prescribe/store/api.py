@@ -635,7 +635,7 @@ def check_bundle_programs(b: dict) -> None:
     record = parse_record(b["person"]["record"], source="bundle person.record")
     for p in b["programs"]:
         plan = parse_plan(p["plan"], source=f"bundle program version {p['version']}")
-        assert_safe(plan, door=f"import: program version {p['version']} of {b['person']['patient_id']!r}",
+        assert_safe(plan, door=f"bundle program version {p['version']} of {b['person']['patient_id']!r}",
                     record=record)
 
 
