@@ -4,7 +4,8 @@ In one run this script serves (a) a bare one-widget Voila page (a button and a l
 (b) the clinic app, both with the same Voila options, and measures in Debian's chromium:
 
 * page open -> usable: from ``goto`` until the bare button, or the app's "Check and screen"
-  button, is visible (N fresh pages each, alternating so machine load hits both alike, with
+  button, is visible; and, since the app's engines load in the background after the button
+  shows, page open -> first screening on screen (the form filled and submitted at once) (N fresh pages each, alternating so machine load hits both alike, with
   a pause after each page so a closed page's leftover work does not land in the next);
 * round trip: a bare button click until its label changes, against a start-level change
   until the program chart is redrawn (N each, on one page).
@@ -104,6 +105,31 @@ def open_time(context, url: str, selector: str) -> float:
     return elapsed
 
 
+def fill_intake(page) -> None:
+    for css, text in (("pr-intake-patient_id", "DEMO-BENCH-1"), ("pr-intake-age_years", "62"),
+                      ("pr-intake-body_mass_kg", "64"), ("pr-intake-height_cm", "163"),
+                      ("pr-intake-t_scores-femoral_neck", "-2.6")):
+        page.locator(f".{css} input").fill(text)
+    page.locator(".pr-intake-sex select").select_option(label="female")
+
+
+def first_screening_time(context, url: str) -> float:
+    """From ``goto`` until a first screening is on screen: the button shows early while the
+    engines still load in the background, so this is when the app is usable for its job."""
+    page = context.new_page()
+    t0 = time.perf_counter()
+    page.goto(url, timeout=120_000)
+    page.locator(".pr-intake-submit").wait_for(state="visible", timeout=120_000)
+    fill_intake(page)
+    page.locator(".pr-intake-submit").click()
+    page.wait_for_function("() => /osteopenia|osteoporosis/i.test("
+                           "(document.querySelector('.pr-screening') || {}).innerText || '')", timeout=120_000)
+    elapsed = time.perf_counter() - t0
+    page.close()
+    time.sleep(SETTLE_S)
+    return elapsed
+
+
 def bare_round_trips(context, url: str, n: int) -> list[float]:
     page = context.new_page()
     page.goto(url, timeout=120_000)
@@ -123,11 +149,7 @@ def app_round_trips(context, url: str, n: int) -> list[float]:
     page = context.new_page()
     page.goto(url, timeout=120_000)
     page.locator(".pr-intake-submit").wait_for(state="visible", timeout=120_000)
-    for css, text in (("pr-intake-patient_id", "DEMO-BENCH-1"), ("pr-intake-age_years", "62"),
-                      ("pr-intake-body_mass_kg", "64"), ("pr-intake-height_cm", "163"),
-                      ("pr-intake-t_scores-femoral_neck", "-2.6")):
-        page.locator(f".{css} input").fill(text)
-    page.locator(".pr-intake-sex select").select_option(label="female")
+    fill_intake(page)
     page.locator(".pr-intake-submit").click()
     page.wait_for_function(f"({LEVEL_LINE_JS})().length > 20", timeout=120_000)
     out = []
@@ -174,6 +196,7 @@ def main(argv: list[str] | None = None) -> int:
                 for _ in range(args.runs):
                     bare_open.append(open_time(context, bare_url, ".bench-button"))
                     app_open.append(open_time(context, app_url, ".pr-intake-submit"))
+                first_screen = [first_screening_time(context, app_url) for _ in range(args.runs)]
                 bare_rt = bare_round_trips(context, bare_url, args.clicks)
                 app_rt = app_round_trips(context, app_url, args.clicks)
                 browser.close()
@@ -188,11 +211,17 @@ def main(argv: list[str] | None = None) -> int:
         "open_ratio": med(app_open) / med(bare_open), "open_goal": GOAL_OPEN,
         "bare_round_trip_s": med(bare_rt), "app_redraw_s": med(app_rt),
         "round_trip_ratio": med(app_rt) / med(bare_rt), "round_trip_goal": GOAL_ROUND_TRIP,
+        "app_first_screening_s": med(first_screen),
+        "first_screening_vs_bare_open": med(first_screen) / med(bare_open),
         "runs": args.runs, "clicks": args.clicks, "outside_requests": len(outside),
     }
     print(f"page open -> usable   bare {figures['bare_open_s']:.2f} s   app {figures['app_open_s']:.2f} s   "
           f"ratio {figures['open_ratio']:.2f} (goal <= {GOAL_OPEN}) "
           f"{'MET' if figures['open_ratio'] <= GOAL_OPEN else 'NOT MET'}")
+    print(f"page open -> first screening on screen (form filled by script at once): app "
+          f"{figures['app_first_screening_s']:.2f} s = {figures['first_screening_vs_bare_open']:.2f} x the bare "
+          "page open (no goal: the button shows before the engines finish loading; this is when the "
+          "page does its job)")
     print(f"round trip            bare {figures['bare_round_trip_s'] * 1000:.0f} ms   "
           f"app start-level redraw {figures['app_redraw_s'] * 1000:.0f} ms   "
           f"ratio {figures['round_trip_ratio']:.2f} (goal <= {GOAL_ROUND_TRIP}) "

@@ -21,6 +21,7 @@ from __future__ import annotations
 import csv
 import io
 import math
+import re
 from pathlib import Path
 from typing import Any, Iterable, Iterator
 
@@ -28,7 +29,7 @@ import numpy as np
 import pandas as pd
 
 from .errors import FieldProblem, InputError
-from .fileio import write_atomically
+from .fileio import CSV_MAX_BYTES, check_file_size, write_atomically
 from .records import CONDITIONS, FRACTURE_SITES, T_SCORE_SITES, PatientRecord, parse_record
 
 #: The batch file's columns, in the order files are written.
@@ -113,6 +114,44 @@ def _fmt(value: Any) -> str:
             return str(int(v))
         return repr(v)
     return str(value)
+
+
+# ---------------------------------------------------------------------------
+# Cells a spreadsheet would run as a formula
+# ---------------------------------------------------------------------------
+
+#: First characters that make a spreadsheet read a cell as a formula (OWASP, CSV Injection).
+FORMULA_TRIGGERS = ("=", "+", "-", "@", "\t", "\r")
+#: The mark put before such a text cell so that a spreadsheet shows it as text.
+TEXT_MARK = "'"
+_PLAIN_NUMBER_CELL = re.compile(r"[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?")
+
+
+def spreadsheet_text(cell: str) -> str:
+    """A text cell made safe to open in a spreadsheet.
+
+    A cell that starts with ``= + - @``, a tab or a carriage return gets a leading
+    ``'`` so that a spreadsheet shows it as text instead of running it as a formula
+    (OWASP Foundation, CSV Injection guidance).  A plain number such as ``-2.5`` is
+    left as it is (it cannot be a formula).  A cell that already starts with ``'``
+    followed by one of those characters (or another ``'``) gets one more, so that
+    :func:`from_spreadsheet_text` gives back exactly the original text.
+    """
+    if not cell:
+        return cell
+    first = cell[0]
+    if first in FORMULA_TRIGGERS:
+        return cell if _PLAIN_NUMBER_CELL.fullmatch(cell) else TEXT_MARK + cell
+    if first == TEXT_MARK and len(cell) > 1 and (cell[1] in FORMULA_TRIGGERS or cell[1] == TEXT_MARK):
+        return TEXT_MARK + cell
+    return cell
+
+
+def from_spreadsheet_text(cell: str) -> str:
+    """The inverse of :func:`spreadsheet_text`: drop the one leading ``'`` it adds."""
+    if len(cell) > 1 and cell[0] == TEXT_MARK and (cell[1] in FORMULA_TRIGGERS or cell[1] == TEXT_MARK):
+        return cell[1:]
+    return cell
 
 
 # ---------------------------------------------------------------------------
@@ -340,6 +379,7 @@ def read_batch_csv(path: str | Path) -> pd.DataFrame:
         required or unknown column, or any bad row (field ``row N (patient_id X): column``).
     """
     p = Path(path)
+    check_file_size(p, "batch file", CSV_MAX_BYTES)
     try:
         text = p.read_text(encoding="utf-8-sig")
     except FileNotFoundError:
@@ -364,7 +404,11 @@ def read_batch_csv(path: str | Path) -> pd.DataFrame:
             row = dict(zip(header, cells))
             raise InputError.single(_row_label(number, row), f"{len(cells)} cells",
                                     f"{len(header)} cells, one per header column", source=str(path))
-        rows.append(dict(zip(header, cells)))
+        row = dict(zip(header, cells))
+        for col in _TEXT_COLUMNS:
+            if col in row:
+                row[col] = from_spreadsheet_text(row[col])
+        rows.append(row)
     try:
         return records_to_frame(rows_to_records(rows))
     except InputError as err:
@@ -388,7 +432,7 @@ def frame_to_csv_text(df: pd.DataFrame) -> str:
     columns = list(df.columns)
     writer.writerow(columns)
     for values in zip(*(df[c].tolist() for c in columns)):
-        writer.writerow([_fmt(v) for v in values])
+        writer.writerow([spreadsheet_text(v) if isinstance(v, str) else _fmt(v) for v in values])
     return buf.getvalue()
 
 
@@ -398,7 +442,10 @@ def write_batch_csv(records: Iterable[PatientRecord], path: str | Path) -> None:
     writer = csv.DictWriter(buf, fieldnames=list(RECORD_COLUMNS), lineterminator="\n")
     writer.writeheader()
     for r in records:
-        writer.writerow(record_to_row(r))
+        row = record_to_row(r)
+        for col in _TEXT_COLUMNS:
+            row[col] = spreadsheet_text(row[col])
+        writer.writerow(row)
     _atomic_write(path, buf.getvalue())
 
 

@@ -26,10 +26,13 @@ The progression rules, each enforced here and checked by :func:`check_plan`:
    distributions are more osteogenic).
 6. Resistance work begins with a technique phase and, where screening allows,
    progresses toward 5 x 5 at 80-85% 1RM (Watson et al. 2018, J Bone Miner Res
-   33:211-220; Beck et al. 2017, J Sci Med Sport 20(5):438-445); after a
+   33:211-220; Beck et al. 2017, J Sci Med Sport 20(5):438-445), each barbell
+   lift practised at a light load for 4 weeks before it is loaded; after a
    vertebral fracture or with high vertebral risk it keeps spine-sparing
-   variants and moderate loads (Giangregorio et al. 2014, Osteoporos Int
-   25:821-835).
+   variants (Giangregorio et al. 2014, Osteoporos Int 25:821-835) dosed by
+   effort and progressed toward 8-12RM (Brooke-Wavell et al. 2022); a frail
+   person does sit-to-stand before any loaded squat (common practice).  A
+   week's % 1RM is the highest its exercises are given.
 7. Balance work at least twice a week, first and more when falls risk is flagged
    (Giangregorio et al. 2014).
 
@@ -43,6 +46,7 @@ reviewed by a licensed clinician.
 from __future__ import annotations
 
 import math
+import re
 from dataclasses import dataclass
 from datetime import datetime, timezone
 from functools import lru_cache
@@ -61,7 +65,7 @@ from .option_limits import OPTION_RANGES
 from .records import PatientRecord, ScreeningResult
 from .safety import SUPERVISED_FROM_PCT_1RM, pct_1rm as _pct_1rm
 
-__all__ = ["PlanOptions", "build_plan", "weekly_summary", "check_plan", "replace_exercise",
+__all__ = ["PlanOptions", "build_plan", "weekly_summary", "check_plan", "replace_exercise", "prescribed_pct_1rm",
            "reassessment_weeks", "option_range", "fixed_options", "plan_swaps", "IMPACT_LABELS",
            "SUMMARY_COLUMNS"]
 
@@ -103,6 +107,23 @@ BALANCE_STAGE_WEEKS_FALLS = 8
 PHASE_WAIT_WEEKS = 3
 #: Resistance exercises a session drawn from progression chains, plus one back extensor.
 RESISTANCE_CHAINS_MAX = 5
+#: From this %1RM on, a chain's main barbell lift (``loaded_by_1rm``) is loaded by % 1RM.
+LIFT_LOAD_FROM_PCT = 70.0
+#: Weeks of light practice of a barbell lift before it is loaded at LIFT_LOAD_FROM_PCT or more,
+#: and so always before 80% 1RM or more: the LIFTMOR program began with about a month of
+#: technique work on the same lifts (Watson et al. 2018, J Bone Miner Res 33:211-220; the month
+#: is from memory).  The practice dose (3 x 8 at 50% 1RM, a light load) is common practice.
+LIFT_PRACTICE_WEEKS = 4
+LIFT_PRACTICE_SETS, LIFT_PRACTICE_REPS, LIFT_PRACTICE_PCT = 3, 8, 50.0
+#: A frail person (30-s chair stand below the norm for age and sex, Rikli & Jones 1999) does
+#: body-weight sit-to-stand (and the other chains' unloaded forms) in the technique phase and
+#: at least the first weeks, before any loaded squat (common practice).
+FRAIL_BODYWEIGHT_WEEKS = 4
+#: Load progression in effort-based phases: add 2-10% when the target is beaten (ACSM 2009,
+#: Med Sci Sports Exerc 41:687-708); "two sessions running" is common practice.
+SRC_ACSM_PROGRESSION = ("American College of Sports Medicine 2009, Progression models in resistance training "
+                        "for healthy adults, Med Sci Sports Exerc 41(3):687-708 (add 2-10% load when the "
+                        "person does 1-2 repetitions beyond the target)")
 #: Patterns the planner never chooses for resistance work, whatever the screening says:
 #: loaded spine flexion is not recommended (Beck et al. 2017); twisting under load
 #: likewise (Giangregorio et al. 2014).
@@ -366,6 +387,39 @@ def _phase_at(phases: tuple[ResistancePhase, ...], week: int) -> ResistancePhase
     return phases[-1]
 
 
+def _frail(record: PatientRecord, screening: ScreeningResult) -> bool:
+    """Frail for the planner: a 30-s chair stand below the normal range for age and sex.
+
+    Read from the record (Rikli & Jones 1999 norms, :func:`prescribe.screening.chair_stand_norm_low`),
+    or from the screening's ``falls.chair_stand`` flag when the screening came with it.
+    """
+    if any(f.rule == "falls.chair_stand" for f in screening.flags):
+        return True
+    if record.chair_stand_30s is None:
+        return False
+    from .screening import chair_stand_norm_low
+    low = chair_stand_norm_low(record.age_years, record.sex)
+    return low is not None and record.chair_stand_30s < low
+
+
+def prescribed_pct_1rm(exercises: Iterable[Any]) -> float | None:
+    """The highest load given as % 1RM among exercises (models or dicts), or None when none is.
+
+    What the program prescribes, read from each exercise's ``intensity`` text ("70% 1RM"),
+    so that a week's figure can never say more than its exercises do.
+    """
+    found = []
+    for x in exercises:
+        text = x.get("intensity") if isinstance(x, dict) else getattr(x, "intensity", "")
+        match = _PCT_1RM_TEXT.search(text or "")
+        if match:
+            found.append(float(match.group(1)))
+    return max(found) if found else None
+
+
+_PCT_1RM_TEXT = re.compile(r"(\d+(?:\.\d+)?)\s*%\s*(?:of\s+)?1\s*RM", re.IGNORECASE)
+
+
 def _rpe_for(pct: float | None, fallback: str) -> str:
     """Borg CR10 effort matching a %1RM band for unloaded work (common practice, from memory)."""
     if pct is None:
@@ -498,6 +552,15 @@ class _Builder:
     def _choose_resistance(self) -> None:
         self.spine_sparing, why = _spine_sparing(self.record, self.screening, self.tpl)
         self.phases = self.tpl.spine_sparing_phases if self.spine_sparing else self.tpl.resistance_phases
+        self.frail = _frail(self.record, self.screening)
+        first = self.phases[0]
+        technique = first.weeks if first.pct_1rm is None and first.weeks > 0 else 0
+        # Body-weight forms for the frail: the first (technique) phase, and at least 4 weeks.
+        self.bodyweight_until = max(FRAIL_BODYWEIGHT_WEEKS, technique) if self.frail else 0
+        heavy = [w for w in range(1, self.options.weeks + 1)
+                 if (p := _phase_at(self.phases, w).pct_1rm) is not None and p >= LIFT_LOAD_FROM_PCT]
+        # A barbell lift comes in LIFT_PRACTICE_WEEKS before its first loaded week, at a light load.
+        self.lift_from = max(1, heavy[0] - LIFT_PRACTICE_WEEKS) if heavy else None
         allowed = {e.exercise_id for e in self.pool
                    if not (e.patterns & NEVER_IN_RESISTANCE) and e.impact_level == 0
                    and (e.spine_sparing or not self.spine_sparing)
@@ -512,8 +575,13 @@ class _Builder:
             self.sources.append(SRC_GIANG)
             self.cautions.append(f"Spine-sparing program ({why}): keep the spine long and neutral; no loaded "
                                  "or repeated forward bending or twisting of the spine, and moderate loads only.")
-        if any(ph.pct_1rm is not None and ph.pct_1rm >= 80 for ph in self.phases):
-            self.sources.append(SRC_WATSON)
+        if any(ph.pct_1rm is None and ph.name != "technique" for ph in self.phases):
+            self.sources.append(SRC_ACSM_PROGRESSION)
+        if self.frail:
+            self.cautions.append("Weak legs for age (30-s chair stand below the norm): supervised sessions; "
+                                 "sit-to-stand from a chair comes before any loaded squat, and body-weight "
+                                 f"forms of the strength exercises are used for at least the first "
+                                 f"{FRAIL_BODYWEIGHT_WEEKS} weeks.")
         self.sources.append(SRC_BROOKE)
 
     def _choose_balance(self) -> None:
@@ -674,15 +742,59 @@ class _Builder:
                                  rest_s=IMPACT_REST_S, bout_gap_hours=gap, notes=note))
         return out
 
-    def resistance_exercises(self, ph: ResistancePhase) -> tuple[list[dict], ResistancePhase]:
-        heavy = ph.pct_1rm is not None and ph.pct_1rm >= 70
+    def resistance_mode(self, week: int, ph: ResistancePhase | None = None
+                        ) -> tuple[ResistancePhase, bool, bool, bool]:
+        """(phase, barbell lifts in use, lift practice week, body-weight only) for a week.
+
+        ``ph`` is the phase the joint schedule gives the week (:meth:`impact_schedule`);
+        without it, the template's fixed phase lengths.
+        """
+        ph = ph if ph is not None else _phase_at(self.phases, week)
+        lifts = self.lift_from is not None and week >= self.lift_from
+        practice = lifts and week < self.lift_from + LIFT_PRACTICE_WEEKS
+        bodyweight = week <= self.bodyweight_until
+        return ph, lifts and not bodyweight, practice, bodyweight
+
+    def _time_lifts(self, schedule: list) -> None:
+        """Lift practice and body-weight weeks from the scheduled phases (which the weeks 3-5
+        rule may have lengthened): practice ends, and body-weight work ends, at a phase change."""
+        phases = [row[-1] for row in schedule]
+        heavy = [w for w, ph in enumerate(phases, start=1) if ph.pct_1rm is not None and ph.pct_1rm >= LIFT_LOAD_FROM_PCT]
+        self.lift_from = max(1, heavy[0] - LIFT_PRACTICE_WEEKS) if heavy else None
+        if self.frail:
+            first = self.phases[0]
+            technique = (sum(1 for ph in phases if ph is first)
+                         if first.pct_1rm is None and first.weeks > 0 else 0)
+            self.bodyweight_until = max(FRAIL_BODYWEIGHT_WEEKS, technique)
+
+    def resistance_exercises(self, week: int, ph: ResistancePhase | None = None
+                             ) -> tuple[list[dict], ResistancePhase]:
+        ph, lifts, practice, bodyweight = self.resistance_mode(week, ph)
         rest = 60 if ph.pct_1rm is None else (90 if ph.pct_1rm < 80 else 150)
+        by_effort = ph.pct_1rm is None and ph.name != "technique"
+        note = f"{ph.name} phase: smooth, controlled lifting; breathe out on effort."
+        if by_effort:
+            note += (" Progress by effort: when every set feels easier than the effort asked in two sessions "
+                     "running, add 2-10% to the load.")
         out = []
         for chain in self.chains:
-            usable = [c for c in chain if heavy or not c.loaded_by_1rm] or chain[:1]
-            e = usable[-1]
+            if bodyweight:
+                # Sit-to-stand before loaded squats: the most advanced form without external load.
+                unloaded = [c for c in chain if not c.external_load and not c.loaded_by_1rm]
+                e = unloaded[-1] if unloaded else chain[0]
+            else:
+                usable = [c for c in chain if lifts or not c.loaded_by_1rm] or chain[:1]
+                e = usable[-1]
             sets, reps, pct = ph.sets, ph.reps, ph.pct_1rm
-            if pct is not None and pct >= 80 and not e.loaded_by_1rm:
+            ex_note, ex_rest = note, rest
+            if e.loaded_by_1rm and practice:
+                # Light practice of the same barbell lift before it is loaded (Watson et al. 2018).
+                sets, reps = LIFT_PRACTICE_SETS, LIFT_PRACTICE_REPS
+                pct = LIFT_PRACTICE_PCT if pct is None else min(pct, LIFT_PRACTICE_PCT)
+                ex_rest = 90
+                ex_note = ("Light practice of this lift: learn the movement with a light load, supervised, "
+                           "before it is loaded more heavily.")
+            elif pct is not None and pct >= 80 and not e.loaded_by_1rm:
                 # 5 x 5 at 80-85% 1RM is for the main barbell lifts (Watson et al. 2018);
                 # accessory work stays at 3 x 8 (Brooke-Wavell et al. 2022).
                 sets, reps, pct = 3, 8, 70.0
@@ -690,8 +802,7 @@ class _Builder:
                 intensity = f"{pct:g}% 1RM"
             else:
                 intensity = _rpe_for(pct, ph.intensity)
-            out.append(_exercise(e, sets=sets, reps=reps, intensity=intensity, rest_s=rest,
-                                 notes=f"{ph.name} phase: smooth, controlled lifting; breathe out on effort."))
+            out.append(_exercise(e, sets=sets, reps=reps, intensity=intensity, rest_s=ex_rest, notes=ex_note))
         extra = []
         if self.back:
             extra.append(self.back[0] if ph.name == "technique" or len(self.back) == 1 else self.back[1])
@@ -729,10 +840,11 @@ class _Builder:
         review = set(reassessment_weeks(opts.weeks))
         weeks = []
         c_imp: dict[tuple, tuple] = {}
-        c_res: dict[ResistancePhase, tuple] = {}
+        c_res: dict[tuple, tuple] = {}
         c_bal: dict[tuple, tuple] = {}
         used_l23 = False
         schedule = self.impact_schedule()
+        self._time_lifts(schedule)
         for w, (level, vol, step_up, weak, text, ph) in enumerate(schedule, start=1):
             b_stage = (w - 1) // (BALANCE_STAGE_WEEKS_FALLS if self.falls else BALANCE_STAGE_WEEKS)
             minutes = bal_minutes or min(tpl.balance["minutes_start"] + 5 * ((w - 1) // 4), tpl.balance["minutes_full"])
@@ -740,14 +852,15 @@ class _Builder:
                 imp = self.impact_exercises(level, vol)
                 c_imp[level, vol] = (imp, _session_oi(imp),
                                      sum(x["impacts"] for x in imp if x["impact_level"] >= 2))
-            if ph not in c_res:
-                res = self.resistance_exercises(ph)[0]
-                c_res[ph] = (res, _session_oi(res))
+            res_key = self.resistance_mode(w, ph)
+            if res_key not in c_res:
+                res = self.resistance_exercises(w, ph)[0]
+                c_res[res_key] = (res, _session_oi(res), prescribed_pct_1rm(res))
             if (b_stage, minutes) not in c_bal:
                 bal = self.balance_exercises(w, minutes)
                 c_bal[b_stage, minutes] = (bal, _session_oi(bal))
             imp, oi_i, n_imp = c_imp[level, vol]
-            res, oi_r = c_res[ph]
+            res, oi_r, pct_r = c_res[res_key]
             bal, oi_b = c_bal[b_stage, minutes]
             used_l23 = used_l23 or n_imp > 0
             sup_i, sup_r, sup_b = (any(x["supervised"] for x in lst) for lst in (imp, res, bal))
@@ -778,12 +891,17 @@ class _Builder:
                 "resistance_phase": ph.name,
                 "weak_window": weak,
                 "step_up": step_up,
-                "resistance_intensity_pct_1rm": ph.pct_1rm,
+                "resistance_intensity_pct_1rm": pct_r,
                 "weekly_osteogenic_index": round(sum(s["osteogenic_index"] for s in sessions), 2),
                 "impact_volume": vol,
                 "impact_volume_unit": {0: "reps", 1: "minutes"}.get(level, "impacts"),
                 "balance_minutes_per_session": minutes,
             })
+        # LIFTMOR is cited only where the program really prescribes its lifts or loads.
+        lift_ids = {e.exercise_id for e in self.pool if e.loaded_by_1rm}
+        if any(x["exercise_id"] in lift_ids for lst in c_res.values() for x in lst[0]) or \
+                any((w["resistance_intensity_pct_1rm"] or 0) >= 80 for w in weeks):
+            self.sources.append(SRC_WATSON)
         if used_l23:
             self.sources.append(SRC_TURNER_DIR)
             if any(w["impacts_per_session"] > tpl.impact["bout_split_above"] for w in weeks):
@@ -959,7 +1077,8 @@ def weekly_summary(plan: Plan) -> pd.DataFrame:
             "weekly_osteogenic_index": extra.get("weekly_osteogenic_index",
                                                  round(sum(s.osteogenic_index for s in w.sessions), 2)),
             "weak_window": bool(extra.get("weak_window", False)), "reassessment": w.reassessment,
-            "resistance_intensity_pct_1rm": extra.get("resistance_intensity_pct_1rm"),
+            # Read from the exercises, so a week never states more than it prescribes.
+            "resistance_intensity_pct_1rm": prescribed_pct_1rm(x for s in w.sessions for x in s.exercises),
         })
     return pd.DataFrame(rows, columns=SUMMARY_COLUMNS)
 

@@ -12,13 +12,13 @@ each naming the field, the value and what is allowed.
 
 from __future__ import annotations
 
-import json
 import math
 from pathlib import Path
 from typing import Any, Literal
 
 from pydantic import BaseModel, ConfigDict, Field, ValidationError, field_validator
 
+from . import fileio
 from .errors import FieldProblem, InputError
 
 SCHEMA_VERSION = "1"
@@ -364,19 +364,12 @@ def parse_record(data: Any, source: str | None = None) -> PatientRecord:
 
 
 def read_json_file(path: str | Path, what: str = "file") -> Any:
-    """Read JSON from a file, turning every failure into an :class:`InputError`."""
-    p = Path(path)
-    try:
-        text = p.read_text(encoding="utf-8")
-    except FileNotFoundError:
-        raise InputError.single(what, str(path), "an existing, readable file") from None
-    except (IsADirectoryError, PermissionError, UnicodeDecodeError) as exc:
-        raise InputError.single(what, str(path), f"a readable UTF-8 text file ({exc.__class__.__name__})") from None
-    try:
-        return json.loads(text)
-    except json.JSONDecodeError as exc:
-        raise InputError.single(what, f"{path} (line {exc.lineno}, column {exc.colno})",
-                                f"well-formed JSON ({exc.msg})") from None
+    """Read JSON from a file, turning every failure into an :class:`InputError`.
+
+    The one strict reader of :mod:`prescribe.fileio` (a key given twice, nesting past
+    the documented depth or a file over the documented size is refused).
+    """
+    return fileio.read_json_file(path, what)
 
 
 def load_record(path: str | Path) -> PatientRecord:

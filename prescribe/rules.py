@@ -71,6 +71,7 @@ _BASE_FEATURES: tuple[Feature, ...] = (
     Feature("low_trauma_fracture", BOOL, "Any low-trauma (fragility) fracture."),
     Feature("low_trauma_fracture_count", NUMBER, "Number of low-trauma fractures.", "fractures"),
     Feature("low_trauma_vertebral_fracture", BOOL, "Any low-trauma vertebral fracture."),
+    Feature("low_trauma_hip_fracture", BOOL, "Any low-trauma (fragility) hip fracture."),
     Feature("hip_fracture", BOOL, "Any hip fracture, whatever the trauma."),
     Feature("months_since_last_fracture", NUMBER, "Months since the most recent fracture of any kind; "
             "missing when none.", "months"),

@@ -123,13 +123,15 @@ def record_features(rec: dict) -> dict[str, Any]:
             lowest = v
     fractures = rec.get("fractures") or ()
     lt_count = 0
-    lt_vert = hip = False
+    lt_vert = lt_hip = hip = False
     last = None
     for f in fractures:
         if f["low_trauma"]:
             lt_count += 1
             if f["site"] == "vertebra":
                 lt_vert = True
+            elif f["site"] == "hip":
+                lt_hip = True
         if f["site"] == "hip":
             hip = True
         m = f["months_ago"]
@@ -150,6 +152,7 @@ def record_features(rec: dict) -> dict[str, Any]:
         "low_trauma_fracture": lt_count > 0,
         "low_trauma_fracture_count": lt_count,
         "low_trauma_vertebral_fracture": lt_vert,
+        "low_trauma_hip_fracture": lt_hip,
         "hip_fracture": hip,
         "months_since_last_fracture": last,
         "falls_past_year": rec.get("falls_past_year", 0),
@@ -197,7 +200,7 @@ def _text_column(df: pd.DataFrame, name: str, n: int, raw: bool = False) -> np.n
 
 
 def _fracture_aggregates_slow(uniques: list[str]) -> tuple[np.ndarray, ...]:
-    """Per distinct cell: low-trauma count, low-trauma vertebral, hip, most recent months.
+    """Per distinct cell: low-trauma count, low-trauma vertebral, hip, most recent months, low-trauma hip.
 
     Validating fallback for cells the fast path does not take (spaces, bad items); raises
     InputError naming the bad cell.
@@ -205,6 +208,7 @@ def _fracture_aggregates_slow(uniques: list[str]) -> tuple[np.ndarray, ...]:
     k = len(uniques)
     count, vert = np.zeros(k), np.zeros(k, dtype=bool)
     hip, last = np.zeros(k, dtype=bool), np.full(k, np.nan)
+    lt_hip = np.zeros(k, dtype=bool)
     for j, text in enumerate(uniques):
         try:
             items = parse_fractures(text)
@@ -213,10 +217,11 @@ def _fracture_aggregates_slow(uniques: list[str]) -> tuple[np.ndarray, ...]:
         for site, months, low_trauma in items:
             count[j] += low_trauma
             vert[j] |= low_trauma and site == "vertebra"
+            lt_hip[j] |= low_trauma and site == "hip"
             hip[j] |= site == "hip"
             if np.isnan(last[j]) or months < last[j]:
                 last[j] = months
-    return count, vert, hip, last
+    return count, vert, hip, last, lt_hip
 
 
 _SITE_BYTES = {site: np.frombuffer(site.encode("ascii"), dtype=np.uint8) for site in FRACTURE_SITES}
@@ -285,14 +290,15 @@ def _fracture_aggregates_fast(cells: list[str]) -> tuple[np.ndarray, ...] | None
     k = len(cells)
     count, vert = np.zeros(k), np.zeros(k, dtype=bool)
     hip, last = np.zeros(k, dtype=bool), np.full(k, np.nan)
+    lt_hip = np.zeros(k, dtype=bool)
     if not k:
-        return count, vert, hip, last
+        return count, vert, hip, last, lt_hip
     try:
         raw = np.frombuffer("\n".join(cells).encode("ascii"), dtype=np.uint8)
     except (TypeError, UnicodeEncodeError):
         return None
     if not raw.size:
-        return count, vert, hip, last
+        return count, vert, hip, last, lt_hip
     seps = np.flatnonzero((raw == 59) | (raw == 10))          # ';' between items, newline between cells
     newline = raw[seps] == 10
     if np.count_nonzero(newline) != k - 1 or (raw == 0).any():
@@ -308,7 +314,7 @@ def _fracture_aggregates_fast(cells: list[str]) -> tuple[np.ndarray, ...] | None
         return None
     start, end, cell = start[~empty], end[~empty], cell[~empty]
     if not len(start):
-        return count, vert, hip, last
+        return count, vert, hip, last, lt_hip
     colons = np.flatnonzero(raw == 58)
     if len(colons) != 2 * len(start):
         return None
@@ -355,9 +361,10 @@ def _fracture_aggregates_fast(cells: list[str]) -> tuple[np.ndarray, ...] | None
     count[:] = np.bincount(cell, weights=low, minlength=k)
     vert[:] = np.bincount(cell, weights=low & is_vertebra, minlength=k) > 0
     hip[:] = np.bincount(cell, weights=is_hip, minlength=k) > 0
+    lt_hip[:] = np.bincount(cell, weights=low & is_hip, minlength=k) > 0
     first = np.flatnonzero(np.concatenate(([True], cell[1:] != cell[:-1])))
     last[cell[first]] = np.minimum.reduceat(months, first)
-    return count, vert, hip, last
+    return count, vert, hip, last, lt_hip
 
 
 def _fracture_features(df: pd.DataFrame, n: int) -> dict[str, np.ndarray]:
@@ -366,9 +373,9 @@ def _fracture_features(df: pd.DataFrame, n: int) -> dict[str, np.ndarray]:
     if aggregates is None:                  # absent or unusual cells: fill, then parse or reject
         texts = _text_column(df, "fractures", n).tolist()
         aggregates = _fracture_aggregates_fast(texts) or _fracture_aggregates_slow(texts)
-    count, vert, hip, last = aggregates
+    count, vert, hip, last, lt_hip = aggregates
     return {"low_trauma_fracture_count": count, "low_trauma_fracture": count > 0,
-            "low_trauma_vertebral_fracture": vert, "hip_fracture": hip,
+            "low_trauma_vertebral_fracture": vert, "low_trauma_hip_fracture": lt_hip, "hip_fracture": hip,
             "months_since_last_fracture": last}
 
 

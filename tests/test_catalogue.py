@@ -17,7 +17,8 @@ CAT = default_catalogue()
 
 
 def _band(grf: float, contact: bool) -> int:
-    """PRODUCT.md impact bands, written out separately from the code under test."""
+    """The impact bands of our scale (docs/catalogue.md, "Impact levels and boundaries"),
+    written out separately from the code under test."""
     if contact:
         return 0
     if grf < 2.0:
@@ -129,7 +130,7 @@ def test_exercise_is_frozen():
 
 
 def test_impact_level_for_grf_scalar_array_and_boundaries():
-    # Boundaries: exactly 2.0 and 4.0 BW are level 2 ("2 to 4 BW", PRODUCT.md).
+    # Boundaries: exactly 2.0 and 4.0 BW are level 2 ("2 to 4 BW", docs/catalogue.md).
     assert impact_level_for_grf(2.0) == 2
     assert impact_level_for_grf(4.0) == 2
     assert impact_level_for_grf(4.0001) == 3

@@ -179,12 +179,18 @@ def test_carter_single_load_type_and_exponent():
     walking_and_jumps = carter_daily_stimulus([5000, 50], [5.0, 15.0], m=4.0)
     assert walking_and_jumps == pytest.approx((5000 * 5.0**4 + 50 * 15.0**4) ** 0.25)
     # A larger exponent weights the few high-stress jumps more (Whalen, Carter & Steele
-    # 1988, J Biomech 21:825-837 discuss m between about 3 and 8, from memory).
-    low_m = carter_daily_stimulus([5000, 50], [5.0, 15.0], m=3.0)
-    high_m = carter_daily_stimulus([5000, 50], [5.0, 15.0], m=8.0)
-    share_jumps = lambda m: 50 * 15.0**m / (5000 * 5.0**m + 50 * 15.0**m)  # noqa: E731
-    assert share_jumps(8.0) > share_jumps(3.0)
-    assert low_m > 0 and high_m > 0
+    # 1988, J Biomech 21:825-837 discuss m between about 3 and 8, from memory): measured on
+    # the product's own function, adding 50 jumps to 5000 walking cycles raises the
+    # stimulus by far more at m = 8 than at m = 3.
+    walk, both = [5000, 0], [5000, 50]
+    stress = [5.0, 15.0]
+    gain = {m: carter_daily_stimulus(both, stress, m=m) / carter_daily_stimulus(walk, stress, m=m)
+            for m in (3.0, 8.0)}
+    # Worked by hand from the formula: m = 3, (793750 / 625000)^(1/3) = 1.0829;
+    # m = 8, ((1.953125e9 + 1.281445e11) / 1.953125e9)^(1/8) = 1.6902.
+    assert gain[3.0] == pytest.approx(1.0829, abs=1e-3)
+    assert gain[8.0] == pytest.approx(1.6902, abs=1e-3)
+    assert gain[8.0] > gain[3.0]
 
 
 def test_carter_arrays_and_bad_input():

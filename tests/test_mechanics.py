@@ -178,14 +178,15 @@ def test_hip_single_leg_stance_near_bergmann_2001_walking():
 def test_knee_in_loaded_squat_and_landing_plausible():
     # Muscle force, not body weight, dominates: the joint carries several times the load
     # above it (common practice).  Loaded squat and landing in a 2-6 BW band (plausibility,
-    # compare jogging ~550% BW at the hip: Bergmann, Graichen & Rohlmann 1993, J Biomech
-    # 26:969-990).
+    # not a validation): from about walking, 2.38 BW (Bergmann et al. 2001, J Biomech
+    # 34:859-871), to just above jogging, about 5.5 BW (Bergmann, Graichen & Rohlmann 1993,
+    # J Biomech 26:969-990), both measured at the hip by instrumented implants.
     bodyweight = joint_contact_force_bw(70.0, **JOINT_PRESETS["knee_squat"])
     loaded = joint_contact_force_bw(70.0, external_load_kg=np.array([35.0, 70.0]), **JOINT_PRESETS["knee_squat"])
     assert loaded.shape == (2,) and np.all(loaded > bodyweight)
     assert 2.0 <= loaded[0] <= 6.0
     landing = joint_contact_force_bw(70.0, grf_bw=4.5, **JOINT_PRESETS["knee_landing"])
-    assert 2.0 <= landing <= 8.0
+    assert 2.0 <= landing <= 6.0
     above = 0.9 * 4.5 / 2
     assert landing / above == pytest.approx(1 + 0.08 / 0.045)
 

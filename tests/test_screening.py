@@ -39,8 +39,7 @@ def rules_of(result) -> list[str]:
 # WHO T-score categories. Source: WHO Study Group 1994, Assessment of fracture risk and its
 # application to screening for postmenopausal osteoporosis, WHO Technical Report Series 843:
 # normal >= -1; osteopenia between -1 and -2.5; osteoporosis <= -2.5; severe (established)
-# osteoporosis = <= -2.5 plus a fragility fracture (the severe category: from memory, see
-# published_facts.md D).
+# osteoporosis = <= -2.5 plus a fragility fracture (the severe category: from memory).
 # ---------------------------------------------------------------------------
 
 @pytest.mark.parametrize("t, category", [
@@ -86,6 +85,7 @@ def test_fragility_fracture_with_osteoporosis_is_severe(run):
                         fractures=[{"site": "wrist", "months_ago": 40, "low_trauma": True}]))
     assert result.bone_density_category == "severe_osteoporosis"
     assert result.max_impact_level == 1
+    # Supervised progression at first: common practice (no published source found for it).
     assert result.supervision
 
 
@@ -119,6 +119,10 @@ def test_low_trauma_vertebral_fracture_is_spine_sparing_and_brisk_walking_at_mos
     assert "fractures.vertebral" in rules_of(result)
     assert result.max_impact_level == 1
     assert SPINE | {"end_range_spinal_flexion"} <= set(result.avoid)
+    # The vertebral-fracture rule itself avoids loaded twisting as well as flexion (Giangregorio et
+    # al. 2014, Too Fit To Fracture, Osteoporos Int 25:821-835), not only through other rules.
+    flag = next(f for f in result.flags if f.rule == "fractures.vertebral")
+    assert SPINE <= set(flag.avoid)
 
 
 def test_high_trauma_vertebral_fracture_is_not_a_fragility_fracture(run):
@@ -126,6 +130,37 @@ def test_high_trauma_vertebral_fracture_is_not_a_fragility_fracture(run):
     result = run(person(fractures=[{"site": "vertebra", "months_ago": 24, "low_trauma": False}]))
     assert "fractures.vertebral" not in rules_of(result)
     assert result.max_impact_level == 3
+
+
+# Siris et al. 2014, The clinical diagnosis of osteoporosis (National Bone Health Alliance position
+# statement), Osteoporos Int 25:1439-1443, from memory: a low-trauma hip fracture, or a vertebral
+# fracture, diagnoses osteoporosis whatever the T-score (or without one).
+@pytest.mark.parametrize("site, t_scores", [
+    ("vertebra", {"lumbar_spine": -1.8}), ("vertebra", {"lumbar_spine": 0.5}), ("vertebra", {}),
+    ("hip", {"femoral_neck": -1.2}), ("hip", {}), ("vertebra", {"total_hip": -2.4}),
+])
+def test_fragility_hip_or_vertebral_fracture_is_osteoporosis_whatever_the_t_score(run, site, t_scores):
+    result = run(person(t_scores=t_scores, fractures=[{"site": site, "months_ago": 30, "low_trauma": True}]))
+    assert result.bone_density_category == "osteoporosis"
+    assert "bone_density.clinical_osteoporosis" in rules_of(result)
+    assert "bone_density.osteopenia" not in rules_of(result)
+    # Brooke-Wavell et al. 2022: after vertebral fracture impact no more than brisk walking;
+    # Giangregorio et al. 2014: no loaded flexion or twisting.
+    assert result.max_impact_level <= 1 and SPINE <= set(result.avoid)
+
+
+@pytest.mark.parametrize("fracture, t, category", [
+    ({"site": "vertebra", "months_ago": 30, "low_trauma": True}, -2.5, "severe_osteoporosis"),  # WHO 1994
+    ({"site": "vertebra", "months_ago": 30, "low_trauma": False}, -1.8, "osteopenia"),  # high trauma
+    ({"site": "hip", "months_ago": 30, "low_trauma": False}, -1.8, "osteopenia"),
+    ({"site": "wrist", "months_ago": 30, "low_trauma": True}, -1.8, "osteopenia"),  # not hip or spine
+])
+def test_clinical_osteoporosis_boundaries(run, fracture, t, category):
+    # Siris et al. 2014 (from memory): only low-trauma hip and vertebral fractures diagnose osteoporosis
+    # by themselves; with T <= -2.5 the WHO severe category (WHO 1994, from memory) still applies.
+    result = run(person(t_scores={"lumbar_spine": t}, fractures=[fracture]))
+    assert result.bone_density_category == category
+    assert "bone_density.clinical_osteoporosis" not in rules_of(result)
 
 
 @pytest.mark.parametrize("months, fires", [(0, True), (2.9, True), (3.0, False), (3.1, False)])
@@ -191,7 +226,7 @@ def test_falls_in_past_year(run, falls, rule, refer):
 
 # Rikli & Jones 1999, J Aging Phys Act 7:162-181: lower bound of the normal 30-s chair stand range by
 # age band (seen in secondary sources; the men 65-69 bound is 12 on the CDC STEADI form and a
-# secondary copy of the table, 13 on another page - see published_facts.md D).
+# secondary copy of the table, 13 on another page; the rule uses 12, see docs/rules.md).
 RIKLI_JONES_LOWER = {
     "female": {60: 12, 65: 11, 70: 10, 75: 10, 80: 9, 85: 8, 90: 4},
     "male": {60: 14, 65: 12, 70: 12, 75: 11, 80: 10, 85: 8, 90: 7},
@@ -220,6 +255,9 @@ def test_chair_stand_below_norm_for_age_and_sex(run, sex, age, stands, fires):
     result = run(person(sex=sex, age_years=age, chair_stand_30s=stands))
     assert ("falls.chair_stand" in rules_of(result)) is fires
     assert result.falls_risk is fires
+    # Below the norm (frail): low impact at most and supervised work (common practice).
+    assert (result.max_impact_level <= 1) is fires
+    assert result.supervision is fires
 
 
 def test_norm_is_absent_under_sixty():
@@ -228,8 +266,11 @@ def test_norm_is_absent_under_sixty():
 
 # ---------------------------------------------------------------------------
 # Glucocorticoids. Kanis et al. 2011, Guidance for the adjustment of FRAX according to the dose of
-# glucocorticoids, Osteoporos Int 22:809-816: 5 mg/day prednisolone or more for 3 months or more;
-# above 7.5 mg/day the FRAX estimate is raised further.
+# glucocorticoids, Osteoporos Int 22:809-816: 5 mg/day prednisolone or more for 3 months or more
+# raises fracture risk; high doses raise the FRAX estimate further. That paper is about risk scores,
+# not exercise: the moderate-impact cap and the spine-sparing patterns are common practice
+# (Giangregorio et al. 2014, Osteoporos Int 25:821-835: no loaded flexion or twisting where vertebral
+# fracture risk is high).
 # ---------------------------------------------------------------------------
 
 @pytest.mark.parametrize("mg, months, fires", [
@@ -239,11 +280,26 @@ def test_glucocorticoid_threshold(run, mg, months, fires):
     result = run(person(glucocorticoids={"mg_per_day": mg, "months": months}))
     assert ("medication.glucocorticoids" in rules_of(result)) is fires
     assert (result.max_impact_level == 2) is fires
+    # High vertebral fracture risk: loaded twisting is avoided as well as loaded flexion (common practice,
+    # after Giangregorio et al. 2014).
+    assert (SPINE <= set(result.avoid)) is fires
 
 
-@pytest.mark.parametrize("mg, fires", [(7.5, False), (7.6, True)])
-def test_glucocorticoid_high_dose_note(run, mg, fires):
+@pytest.mark.parametrize("mg, fires", [(7.4, False), (7.5, True), (7.6, True)])
+def test_glucocorticoid_high_dose_starts_at_7_5_mg(run, mg, fires):
+    # 7.5 mg/day prednisolone is already high dose (>= 7.5: the usual clinical threshold, Buckley et al.
+    # 2017, Arthritis Rheumatol 69:1521-1537, from memory; Kanis et al. 2011 raise FRAX for high doses).
     result = run(person(glucocorticoids={"mg_per_day": mg, "months": 6.0}))
+    assert ("medication.glucocorticoids_high_dose" in rules_of(result)) is fires
+    flag = [f for f in result.flags if f.rule == "medication.glucocorticoids_high_dose"]
+    if fires:
+        assert flag[0].severity == "adapt" and SPINE <= set(flag[0].avoid)
+
+
+@pytest.mark.parametrize("months, fires", [(2.9, False), (3.0, True)])
+def test_glucocorticoid_high_dose_needs_three_months(run, months, fires):
+    # Kanis et al. 2011: exposure for 3 months or more.
+    result = run(person(glucocorticoids={"mg_per_day": 10.0, "months": months}))
     assert ("medication.glucocorticoids_high_dose" in rules_of(result)) is fires
 
 
@@ -260,6 +316,8 @@ def test_pain_bands(run, pain, rule):
     assert fired == ([rule] if rule else [])
     assert result.refer is (rule == "pain.severe")
     if rule == "pain.severe":
+        # No impact until the pain is assessed: common practice (Thomee 1997 only says above 5/10 is
+        # not acceptable during exercise).
         assert result.max_impact_level == 0
 
 
@@ -274,6 +332,8 @@ CONDITION_EFFECTS = {
     "recent_surgery": (True, 0, set(), False),
     "knee_osteoarthritis": (False, 2, {"deep_knee_flexion"}, False),
     "hip_osteoarthritis": (False, 2, {"deep_hip_flexion"}, False),
+    # Hip replacement: flexion past 90 degrees, adduction and inward rotation are the usual precautions
+    # after a posterior approach (common practice; they differ by approach: confirm with the surgeon).
     "hip_replacement": (False, 2, {"deep_hip_flexion", "hip_adduction_rotation"}, False),
     "pelvic_floor_dysfunction": (False, 1, {"breath_holding_strain"}, False),
     "peripheral_neuropathy": (False, 1, {"high_impact_landing"}, True),

@@ -46,9 +46,20 @@ def test_result_is_always_bounded_and_cautioned(record):
     assert result.avoid == sorted(set(result.avoid))
     caps = [f.max_impact_level for f in result.flags if f.max_impact_level is not None]
     assert result.max_impact_level == min(caps, default=3)
-    assert result.refer == any(f.severity == "clear_first" for f in result.flags) or result.refer
+    # Referral is exactly "some fired rule refers" (every clear_first rule refers: rules.py).
+    rules = load_rules()
+    fired = [rules.by_id(f.rule) for f in result.flags]
+    assert result.refer == any(rule.effect.refer for rule in fired)
+    if any(f.severity == "clear_first" for f in result.flags):
+        assert result.refer
     assert result.cautions[:3] and all(c for c in result.cautions)
-    assert (result.bone_density_category == "unknown") == (result.lowest_t_score is None)
+    # No T-score: unknown, unless a fragility hip or vertebral fracture diagnoses osteoporosis
+    # clinically (Siris et al. 2014, Osteoporos Int 25:1439-1443, from memory).
+    clinical = "bone_density.clinical_osteoporosis" in [f.rule for f in result.flags]
+    if result.lowest_t_score is None:
+        assert result.bone_density_category == ("osteoporosis" if clinical else "unknown")
+    else:
+        assert result.bone_density_category != "unknown"
 
 
 @SETTINGS

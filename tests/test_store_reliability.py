@@ -168,20 +168,75 @@ def test_writers_killed_with_sigkill_lose_no_reported_commit(tmp_path):
     assert sum(len(v) for v in reported.values()) >= rounds * writers
 
 
-@pytest.mark.slow
+#: A process that creates a fresh store and stops for good right after the K-th CREATE TABLE
+#: of the migrations has run (inside the migration's one transaction), after writing a marker
+#: file, so the test's SIGKILL lands while the migration is in progress, every time.
+CREATOR = r"""
+import sys, time
+from pathlib import Path
+from sqlalchemy import event
+from sqlalchemy.engine import Engine
+db, k, marker = sys.argv[1], int(sys.argv[2]), Path(sys.argv[3])
+seen = []
+
+@event.listens_for(Engine, "after_cursor_execute")
+def _pause(conn, cursor, statement, parameters, context, executemany):
+    if statement.lstrip().upper().startswith("CREATE TABLE"):
+        seen.append(statement.split("(")[0].split()[-1])
+        if len(seen) == k:
+            marker.write_text(f"in transaction: {conn.in_transaction()}; created {seen[-1]}")
+            time.sleep(600)
+
+from prescribe.store import open_store
+open_store(db).close()
+marker.write_text("finished")
+"""
+
+
+def _create_table_count(tmp_path: Path) -> int:
+    """How many CREATE TABLE statements the migrations run on a fresh store."""
+    from sqlalchemy import event
+    from sqlalchemy.engine import Engine
+
+    seen: list[str] = []
+
+    def count(conn, cursor, statement, parameters, context, executemany):
+        if statement.lstrip().upper().startswith("CREATE TABLE"):
+            seen.append(statement)
+
+    event.listen(Engine, "after_cursor_execute", count)
+    try:
+        open_store(str(tmp_path / "count.db")).close()
+    finally:
+        event.remove(Engine, "after_cursor_execute", count)
+    return len(seen)
+
+
 def test_a_fresh_store_killed_while_being_created_still_opens(tmp_path):
-    """Migrations run in one transaction: a kill during creation leaves nothing half-made."""
-    rng = random.Random(77)
-    for rnd in range(4):
-        db = tmp_path / f"new-{rnd}.db"
-        proc = subprocess.Popen([PYTHON, "-c", "import sys; from prescribe.store import open_store; "
-                                 "open_store(sys.argv[1]).close()", str(db)], env=_env(),
-                                stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
-        time.sleep(rng.uniform(0.3, 1.0))
+    """Migrations run in one transaction: a kill during creation leaves nothing half-made.
+
+    The creating process pauses after the first, a middle and the last CREATE TABLE of the
+    migrations (a marker file says it is inside the transaction) and is killed there.
+    """
+    total = _create_table_count(tmp_path)
+    assert total >= 3
+    for k in sorted({1, total // 2, total}):
+        db, marker = tmp_path / f"new-{k}.db", tmp_path / f"marker-{k}"
+        proc = subprocess.Popen([PYTHON, "-c", CREATOR, str(db), str(k), str(marker)], env=_env(),
+                                stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
+        deadline = time.monotonic() + 60
+        while not marker.exists() and proc.poll() is None and time.monotonic() < deadline:
+            time.sleep(0.02)
+        assert proc.poll() is None, proc.stderr.read().decode()
+        text = marker.read_text()
+        # The kill lands where it claims to: mid-migration, inside the open transaction.
+        assert text.startswith("in transaction: True"), text
         proc.send_signal(signal.SIGKILL)
         proc.wait(timeout=30)
+        assert proc.returncode == -signal.SIGKILL
         with open_store(str(db)) as store:
             assert store.list_patients() == []
+            assert store.revision() is not None
         assert _integrity(db) == "ok"
 
 

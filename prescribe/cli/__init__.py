@@ -27,6 +27,7 @@ COMMAND_MODULES = (
     "handout_cmd",    # prescribe handout
     "app_cmd",        # prescribe app
     "store_cmd",      # prescribe db, save, export, import
+    "explain_cmd",    # prescribe explain
 )
 
 

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from ..cautions import STANDARD_CAUTIONS
 from ..plan_schema import parse_plan
-from ..records import read_json_file
+from ..fileio import read_json_file
 from .output import emit_json
 
 

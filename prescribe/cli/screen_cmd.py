@@ -2,8 +2,10 @@
 
 from __future__ import annotations
 
+import os
 import sys
 from collections import Counter
+from pathlib import Path
 
 from ..cautions import with_standard
 from ..errors import InputError
@@ -35,6 +37,7 @@ def run(args) -> int:
             raise InputError.single("PATIENT.json", args.patient, "no patient file together with --batch")
         if not args.out:
             raise InputError.single("--out", None, "a path for the results CSV (required with --batch)")
+        _refuse_same_file(args.batch, args.out)
         return _run_batch(args.batch, args.out, _rules(args), args.table)
     if args.out:
         raise InputError.single("--out", args.out, "used only together with --batch")
@@ -49,6 +52,23 @@ def run(args) -> int:
     else:
         emit_json(result)
     return 0
+
+
+def _refuse_same_file(in_path: str, out_path: str) -> None:
+    """Refuse an --out that names the input caseload, by any path (a link, ``./X``, ``dir/../X``).
+
+    Writing the results over the caseload would destroy the only copy of the people's records.
+    """
+    src, dst = Path(in_path), Path(out_path)
+    same = src.resolve() == dst.resolve()
+    if not same and src.exists() and dst.exists():
+        try:
+            same = os.path.samefile(src, dst)
+        except OSError:
+            same = False
+    if same:
+        raise InputError.single("--out", out_path, f"a file other than the input caseload {in_path} "
+                                "(the results would overwrite the records)")
 
 
 def _rules(args):

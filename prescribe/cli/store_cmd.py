@@ -13,8 +13,8 @@ import sys
 from pathlib import Path
 
 from ..errors import InputError, NotFoundError
-from ..fileio import write_atomically
-from ..records import load_record, read_json_file
+from ..fileio import BUNDLE_MAX_BYTES, read_json_file, write_atomically
+from ..records import load_record
 from .output import emit_json
 
 DB_HELP = ("the store: a file path or a database URL (default: $PRESCRIBE_DB, else "
@@ -120,7 +120,7 @@ def run_export(args) -> int:
 
 def run_import(args) -> int:
     from ..store import parse_bundle
-    data = read_json_file(args.bundle_file, "bundle file")
+    data = read_json_file(args.bundle_file, "bundle file", max_bytes=BUNDLE_MAX_BYTES)
     bundle = parse_bundle(data, source=args.bundle_file)  # bad input stops here, before the store is touched
     from ..store.api import check_bundle_programs
     check_bundle_programs(bundle)  # an unsafe program stops here too (exit 2, docs/safety.md)

@@ -105,7 +105,8 @@ class WeekFacts:
 
 
 def week_facts(plan: Plan) -> list[WeekFacts]:
-    """Per-week figures, with the weak window and resistance load derived when absent.
+    """Per-week figures, with the weak window derived when absent and the resistance load
+    always read from the exercises.
 
     A step-up is a week whose impact level is higher than the week before (or a
     week the planner marked ``step_up``).  Without the planner's ``weak_window``
@@ -126,12 +127,10 @@ def week_facts(plan: Plan) -> list[WeekFacts]:
     out = []
     for wk, step in zip(weeks, steps):
         weak = bool(extra(wk, "weak_window")) if has_extra(wk, "weak_window") else wk.week in derived_weak
-        if has_extra(wk, "resistance_intensity_pct_1rm"):
-            value = extra(wk, "resistance_intensity_pct_1rm")
-            pct = float(value) if isinstance(value, (int, float)) else None
-        else:
-            found = [p for ex in _exercises(wk) if (p := pct_1rm(ex.intensity)) is not None]
-            pct = max(found) if found else None
+        # The load is read from the week's exercises, never from the week's summary field: the
+        # handout must not state a higher intensity than the program prescribes.
+        found = [p for ex in _exercises(wk) if (p := pct_1rm(ex.intensity)) is not None]
+        pct = max(found) if found else None
         session_oi = [s.osteogenic_index for s in wk.sessions]
         weekly = extra(wk, "weekly_osteogenic_index")
         weekly = float(weekly) if isinstance(weekly, (int, float)) else float(sum(session_oi))

@@ -21,7 +21,7 @@ from ..fileio import write_atomically
 from ..plan_schema import PLAN_FORMAT_VERSION, Plan, parse_plan
 from ..safety import is_draft
 from ..settings import Clinic, clinic as clinic_from_settings
-from . import charts, content, pdf
+from . import charts, content, explain_figures, pdf
 
 AUDIENCES = ("person", "clinician", "both")
 #: Paper names as the command line takes them -> CSS page size.
@@ -94,6 +94,7 @@ def handout_context(plan: Plan, audience: str, paper: str, clinic: Clinic) -> di
         "intensity_chart": charts.intensity_chart(plan) if person else None,
         "dose_rows": content.dose_rows(plan) if clinician else None,
         "evidence": content.evidence(plan) if clinician else None,
+        "explanations": explain_figures.plan_explanations(plan) if clinician else None,
         "screening": plan.screening, "level_labels": content.LEVEL_LABELS, "if_hard_general": content.IF_HARD_GENERAL,
         "versions": [("Tool version (plan)", plan.tool_version), ("Rule-set version", plan.ruleset_version),
                      ("Plan format", plan.plan_format_version), ("Plan created", plan.created),

@@ -23,6 +23,7 @@ from ..cautions import STANDARD_CAUTIONS
 from ..errors import InputError, PrescribeError
 from ..records import SEVERITIES
 from . import form_spec
+from .explain_view import ExplainView
 from .safety_view import ClearanceView
 from .session import IMPACT_LABELS, ClinicSession, EngineMissing
 
@@ -348,6 +349,8 @@ class ClinicApp:
         self._build_person_section()
         self._build_screening_section()
         self._build_program_section()
+        self.explain_view = ExplainView(self)  # the loads explained, beside the program
+        self.program_section.children += (self.explain_view.widget,)
         self._build_handout_section()
         self._build_store_section()
         title = w.HTML("<h1 style='font-size:22px;margin:4px 0'>prescribe: bone-loading program builder</h1>"
@@ -649,6 +652,7 @@ class ClinicApp:
         self.dose.value = ("<p>" + " &middot; ".join(f"{_esc(k.replace('_', ' '))}: <b>{_esc(v)}</b>"
                                                      for k, v in figures.items()) + "</p>") if figures else ""
         self.week_table.value = table_html(s.week_rows(), css="pr-weeks")
+        self.explain_view.refresh()
         if s.plan is None:
             self.preview.value = ""
             self.download.value = ""
