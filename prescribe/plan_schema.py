@@ -12,7 +12,7 @@ from typing import Any, Literal
 from pydantic import BaseModel, ConfigDict, Field, ValidationError, field_validator
 
 from .errors import FieldProblem, PlanFileError
-from .records import ScreeningResult, problems_from_validation
+from .records import PatientRecord, ScreeningResult, problems_from_validation
 
 PLAN_FORMAT_VERSION = "1.0"
 
@@ -38,6 +38,8 @@ class PlannedExercise(_Open):
     peak_grf_bw: float = Field(ge=0)
     directions: list[str] = Field(default_factory=list)
     patterns: list[str] = Field(default_factory=list)
+    supervised: bool = Field(False, description="Done only with a clinician or trainer present "
+                                                "(80% 1RM or more, or high impact).")
 
 
 class PlannedSession(_Open):
@@ -46,6 +48,7 @@ class PlannedSession(_Open):
     exercises: list[PlannedExercise]
     impacts: int = Field(0, ge=0)
     osteogenic_index: float = Field(0.0, ge=0)
+    supervised: bool = Field(False, description="The session holds supervised work.")
 
 
 class PlannedWeek(_Open):
@@ -94,6 +97,12 @@ class Plan(_Open):
             return date.fromisoformat(value).isoformat()
         except (TypeError, ValueError):
             raise ValueError("a date as YYYY-MM-DD") from None
+    # Safety (docs/safety.md): the record the plan was built from, re-screened by the check;
+    # a draft until a clinician records the clearance of a person the screening refers.
+    record: PatientRecord | None = None
+    draft: bool = False
+    cleared_by: str | None = Field(None, min_length=1, max_length=120)
+    cleared_at: str | None = Field(None, description="ISO 8601 UTC time of the clearance.")
 
 
 def parse_plan(data: Any, source: str | None = None) -> Plan:

@@ -25,8 +25,10 @@ CREATED = "2026-12-01T09:00:00+00:00"
 
 
 def _record(**fields):
+    # An osteopenic T-score by default, so the record's own screening (which the planner and
+    # the safety check hold every plan to) is no stricter than the hand-made one below.
     base = {"patient_id": "ELM-0001", "age_years": 62, "sex": "female", "body_mass_kg": 64.0,
-            "height_cm": 163.0}
+            "height_cm": 163.0, "t_scores": {"lumbar_spine": -1.8}}
     base.update(fields)
     return parse_record(base)
 

@@ -16,7 +16,7 @@ _OPTION_OF = {
     "weeks": "--weeks", "start_level": "--start-level", "template": "--template",
     "impact_sessions_per_week": "--impact-sessions", "resistance_sessions_per_week": "--resistance-sessions",
     "balance_sessions_per_week": "--balance-sessions", "exclude": "--exclude", "include": "--include",
-    "step_up_weeks": "--step-up-weeks",
+    "step_up_weeks": "--step-up-weeks", "cleared_by": "--cleared-by",
 }
 
 
@@ -54,6 +54,9 @@ def register(sub) -> None:
                    help="weeks where the impact level should rise (refused where a safety rule forbids it)")
     p.add_argument("--start-date", default=None, metavar="YYYY-MM-DD",
                    help="first day of week 1 (default: today); week N starts 7(N-1) days later")
+    p.add_argument("--cleared-by", default=None, metavar="NAME",
+                   help="record that clinician NAME has cleared this person for the program (with the time); "
+                        "until then a person the screening refers gets a draft program")
     p.add_argument("--table", action="store_true", help="print the weekly summary table instead of JSON")
     p.set_defaults(func=run)
 
@@ -121,11 +124,20 @@ def run(args) -> int:
     options = _options(args)
     start = date.today() if args.start_date is None else parse_day(args.start_date, "--start-date")
     record = load_record(args.patient)
+    from ..safety import assert_safe, record_clearance
+
     try:
         plan = build_plan(record, screen(record), options, template=clinic_template)
     except InputError as exc:
         raise _named_as_options(exc) from None
     plan = plan.model_copy(update={"start_date": start.isoformat()})
+    if args.cleared_by is not None:
+        try:
+            plan = record_clearance(plan, args.cleared_by)
+        except InputError as exc:
+            raise _named_as_options(exc) from None
+    # The one safety check (docs/safety.md): an unsafe program is refused (exit 2), nothing printed.
+    assert_safe(plan, door=f"the program for {record.patient_id}", record=record)
     if not args.table:
         emit_json(plan)
         return 0

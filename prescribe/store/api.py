@@ -39,6 +39,7 @@ from ..cautions import STANDARD_CAUTIONS
 from ..errors import ConflictError, FieldProblem, InputError, NotFoundError, StoreError
 from ..plan_schema import parse_plan
 from ..records import PatientRecord, ScreeningResult, parse_record
+from ..safety import assert_safe
 from ..settings import current_clinician, db_url, hub_login
 from . import models as m
 from .bundle import BUNDLE_FORMAT_VERSION, BUNDLE_KIND, parse_bundle
@@ -256,7 +257,10 @@ class Store:
         pid = record.patient_id
         if plan is not None:
             plan_clinician = _clinician(clinician, required=True)
-            plan_json, summary_json = _checked_plan(pid, plan)
+            parsed, plan_json, summary_json = _checked_plan(pid, plan)
+            # Defence in depth: the program is stored only if it passes the one safety check
+            # against the record saved with it (docs/safety.md).
+            assert_safe(parsed, door=f"store: saving a program for {pid!r}", record=record)
             plan_note = _text(plan_note, "note")
         record_dict = record.model_dump(mode="json")
         record_json = _dumps(record_dict, "record")
@@ -396,10 +400,14 @@ class Store:
                                              or not isinstance(based_on_version, int) or based_on_version < 1):
             raise InputError.single("based_on_version", based_on_version,
                                     "a program version number (1 or more) or None for the first version")
-        plan_json, summary_json = _checked_plan(patient_id, plan)
+        parsed, plan_json, summary_json = _checked_plan(patient_id, plan)
         at = now_utc()
         with self._write() as conn:
-            _person(conn, patient_id, lock=True)
+            row = _person(conn, patient_id, lock=True)
+            # Defence in depth: whoever calls, a program is stored only if it passes the one
+            # safety check against the person's stored record (docs/safety.md).
+            assert_safe(parsed, door=f"store: saving a program for {patient_id!r}",
+                        record=parse_record(json.loads(row.record_json), source=f"store record {patient_id!r}"))
             latest = _latest_program(conn, patient_id)
             latest_version = latest.version if latest else None
             if based_on_version != latest_version:
@@ -774,6 +782,7 @@ class Store:
         """
         b = parse_bundle(bundle)
         pid = b["person"]["patient_id"]
+        check_bundle_programs(b)
         at = now_utc()
         with self._write() as conn:
             exists = conn.execute(select(m.people.c.patient_id).where(m.people.c.patient_id == pid)
@@ -940,6 +949,18 @@ def _read_revision(conn: Connection) -> str | None:
     return conn.execute(text("SELECT version_num FROM alembic_version")).scalar()
 
 
+def check_bundle_programs(b: dict) -> None:
+    """Every program version of a bundle passes the safety check against the bundle's record.
+
+    Raises :class:`~prescribe.errors.UnsafeProgram` (nothing is stored) naming the version.
+    """
+    record = parse_record(b["person"]["record"], source="bundle person.record")
+    for p in b["programs"]:
+        plan = parse_plan(p["plan"], source=f"bundle program version {p['version']}")
+        assert_safe(plan, door=f"bundle program version {p['version']} of {b['person']['patient_id']!r}",
+                    record=record)
+
+
 def _person(conn: Connection, patient_id: str, lock: bool = False):
     query = select(m.people).where(m.people.c.patient_id == patient_id)
     row = conn.execute(query.with_for_update() if lock else query).first()
@@ -980,11 +1001,12 @@ def _audit(conn: Connection, at: str, action: str, pid: str | None, clinician: s
                                              detail_json=_dumps(detail, "audit detail")))
 
 
-def _checked_plan(patient_id: str, plan: dict) -> tuple[str, str]:
+def _checked_plan(patient_id: str, plan: dict):
+    """The parsed plan (for the safety check) and its stored JSON and summary."""
     parsed = parse_plan(plan, source="program")
     if parsed.patient_id != patient_id:
         raise InputError.single("plan.patient_id", parsed.patient_id, f"the person's id {patient_id!r}")
-    return _dumps(plan, "plan"), _dumps(plan_summary(plan), "plan")
+    return parsed, _dumps(plan, "plan"), _dumps(plan_summary(plan), "plan")
 
 
 def _latest_program(conn: Connection, pid: str):

@@ -84,6 +84,7 @@ class ClinicSession:
         self.saved_version: int | None = None
         #: The stored record version this record was opened at (None: a new person).
         self.record_version: int | None = None
+        self.clearance: tuple[str, str] | None = None  # (who, when) a clinician cleared a referred person
 
     @property
     def cautions(self) -> list[str]:
@@ -109,7 +110,7 @@ class ClinicSession:
             return False
         self.problems = {}
         if self.record is None or self.record.patient_id != record.patient_id:
-            self.options, self.swaps, self.saved_version = {}, [], None
+            self.options, self.swaps, self.saved_version, self.clearance = {}, [], None, None
             self.record_version = None
         self.record = record
         self.screening = _api("screening", "screen")(record)
@@ -129,7 +130,7 @@ class ClinicSession:
             return False
         try:
             build_plan, plan_options = _api("planner", "build_plan"), _api("planner", "PlanOptions")
-            replace, check = _api("planner", "replace_exercise"), _api("planner", "check_plan")
+            replace, assert_safe = _api("planner", "replace_exercise"), _api("safety", "assert_safe")
         except EngineMissing as exc:
             self.refusal = f"The program cannot be built here: {exc}."
             return False
@@ -146,9 +147,9 @@ class ClinicSession:
                 if any(e.exercise_id == old for w in plan.weeks for s in w.sessions for e in s.exercises):
                     plan = replace(plan, old, new)
                     applied.append((old, new))
-            problems = list(check(plan, self.screening))
-            if problems:  # the planner's own safety check disagrees: keep the old program
-                raise PlanRequestRefused("check_plan", "; ".join(problems))
+            plan = self._cleared(plan)
+            # The one safety check (docs/safety.md): a refusal keeps the old program.
+            assert_safe(plan, self.screening, door="app", record=self.record)
             return plan
         plan = self._attempt(make)
         if plan is None:
@@ -173,8 +174,13 @@ class ClinicSession:
         if self.plan is None:
             self.refusal = "Build a program first."
             return False
-        replace = _api("planner", "replace_exercise")
-        plan = self._attempt(lambda: replace(self.plan, old_id, new_id))
+        replace, assert_safe = _api("planner", "replace_exercise"), _api("safety", "assert_safe")
+
+        def make():
+            plan = replace(self.plan, old_id, new_id)
+            assert_safe(plan, self.screening, door="app", record=self.record)
+            return plan
+        plan = self._attempt(make)
         if plan is None:
             return False
         self.swaps.append((old_id, new_id))
@@ -200,17 +206,68 @@ class ClinicSession:
                           f"({exc}); it was rebuilt from the planner's default template.")
 
     def _attempt(self, make):
-        """``make()``'s plan, or None with ``refusal`` set to the planner's reason."""
+        """``make()``'s plan, or None with ``refusal`` set in plain words (the program is kept)."""
         try:
             plan = make()
-        except PlanRequestRefused as exc:
-            self.refusal = f"Refused ({exc.rule}): {exc.reason}"
+        except PlanRequestRefused as exc:  # UnsafeProgram too
+            self.refusal = self.plain_refusal(exc)
             return None
         except InputError as exc:
             self.refusal = str(exc)
             return None
         self.refusal = None
         return plan
+
+    def plain_refusal(self, exc: PlanRequestRefused) -> str:
+        """A refusal in plain words: what is wrong, what is allowed, and that nothing changed."""
+        kept = " The previous program is kept and nothing was saved."
+        violations = getattr(exc, "violations", None)
+        if violations:
+            # A swap is refused first of all for changing the kind of movement: say that first.
+            v = next((x for x in violations if x.rule == "swap_same_kind"), violations[0])
+            more = len(violations) - 1
+            first = v.message.split(" ", 1)[0]
+            text = v.message if "_" in first else v.message[0].upper() + v.message[1:]
+            return (f"Refused: {text}. Allowed: {v.allowed}."
+                    + (f" ({more} more problem{'s' if more != 1 else ''} of the same change.)" if more else "")
+                    + f" [rule {v.rule}]" + kept)
+        if exc.field == "start_level" and self.screening is not None:
+            cap = self.screening.max_impact_level
+            label = IMPACT_LABELS[cap].split(" - ", 1)[1]
+            if exc.value is not None and exc.value > cap:
+                return f"Refused: Start level {exc.value} is above what the screening allows ({cap}, {label})." + kept
+            return f"Refused: Start level {exc.value} is above what the program's template allows: {exc.reason}." + kept
+        return f"Refused: {exc.reason} [{exc.rule}]." + kept
+
+    # -- clearance of a referred person -------------------------------------------
+    @property
+    def is_draft(self) -> bool:
+        """True while the program is a draft: the screening refers the person and no clearance is recorded."""
+        return self.plan is not None and _api("safety", "is_draft")(self.plan)
+
+    def clear(self, clinician: str) -> bool:
+        """Record that ``clinician`` has cleared this person for the program (who and when).
+
+        The clearance stays with the person's program through later changes in this visit.
+        Bad input (an empty name) sets ``refusal`` and changes nothing.
+        """
+        if self.plan is None:
+            self.refusal = "Build a program first."
+            return False
+        try:
+            plan = _api("safety", "record_clearance")(self.plan, clinician)
+        except InputError as exc:
+            self.refusal = f"Not cleared: {exc}"
+            return False
+        self.clearance = (plan.cleared_by, plan.cleared_at)
+        self.plan, self.refusal = plan, None
+        return True
+
+    def _cleared(self, plan):
+        """``plan`` with this visit's recorded clearance, if any."""
+        if self.clearance is None:
+            return plan
+        return _api("safety", "record_clearance")(plan, *self.clearance)
 
     def exclude(self, exercise_id: str) -> bool:
         """Leave ``exercise_id`` out of the program (the planner picks what replaces it)."""
@@ -293,6 +350,8 @@ class ClinicSession:
         """
         if self.plan is None:
             raise InputError.single("program", None, "a built program (check the person's details first)")
+        # A handout is a door too: the program is checked before anything is printed.
+        _api("safety", "assert_safe")(self.plan, self.screening, door="handout", record=self.record)
         sensor = self.latest_sensor_summary()  # the clinician's page shows it when there is one
         if fmt == "pdf":
             return _api("handout", "render_pdf")(self.plan, audience=audience, paper=paper, sensor_summary=sensor,
@@ -349,6 +408,9 @@ class ClinicSession:
                                               self.saved_version)
         except ConflictError as exc:
             self.notice = f"Not saved: {exc}. This program stays open here."
+            return None
+        except PlanRequestRefused as exc:  # the store's own safety check (UnsafeProgram)
+            self.notice = "Not saved. " + self.plain_refusal(exc)
             return None
         self.saved_version = int(version)
         return self.saved_version
@@ -410,4 +472,11 @@ class ClinicSession:
         self.options = dict(_api("planner", "fixed_options")(self.plan))
         self.swaps = list(_api("planner", "plan_swaps")(self.plan))
         self.saved_version = int(latest)
+        self.clearance = ((self.plan.cleared_by, self.plan.cleared_at)
+                          if self.plan.cleared_by and self.plan.cleared_at else None)
         self.refusal = None
+        try:  # a stored program from an older version may break a rule added since: say so
+            _api("safety", "assert_safe")(self.plan, self.screening, door="saved program", record=self.record)
+        except PlanRequestRefused as exc:
+            self.refusal = ("This saved program breaks a safety rule; change it before printing or saving. "
+                            + self.plain_refusal(exc))

@@ -25,6 +25,7 @@ from ..records import SEVERITIES
 from . import form_spec
 from .explain_view import ExplainView
 from .exercise_view import ExerciseView
+from .safety_view import ClearanceView
 from .session import IMPACT_LABELS, ClinicSession, EngineMissing
 from .templates_view import TemplatesView, program_notice_html
 
@@ -508,8 +509,9 @@ class ClinicApp:
         self.dose.add_class("pr-dose")
         self.week_table = w.HTML("", layout=w.Layout(max_height="420px", overflow="auto"))
         self.week_table.add_class("pr-week-table")
+        self.clearance = ClearanceView(self)  # draft status and clearance (safety_view.py)
         self.program_section = self._section("3. Program", "pr-section-program", [
-            w.HBox([self.start_level, self.weeks]),
+            self.clearance.widget, w.HBox([self.start_level, self.weeks]),
             w.HBox(list(self.sessions.values())),
             w.HBox([self.exercise_select, self.replacement_select, self.swap_button, self.exclude_button]),
             self.exercise_view.widget, self.refusal, self.dose, self.chart_box, self.week_table])
@@ -685,6 +687,7 @@ class ClinicApp:
         finally:
             self._syncing = False
         self._refresh_swap_candidates()
+        self.clearance.refresh()
         figures = s.dose_figures()
         self.dose.value = ("<p>" + " &middot; ".join(f"{_esc(k.replace('_', ' '))}: <b>{_esc(v)}</b>"
                                                      for k, v in figures.items()) + "</p>") if figures else ""
