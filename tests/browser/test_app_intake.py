@@ -49,5 +49,5 @@ def test_bad_input_shows_the_fields_message_and_saves_nothing(app_page, app_serv
     shot(page, "02-intake-bad-input", of=".pr-section-person")
     page.locator(".pr-store-save").click()
     page.wait_for_function("document.querySelector('.pr-error').innerText.length > 0")
-    assert "record" in page.locator(".pr-error").inner_text()
+    assert "record" in page.locator(".pr-error").first.inner_text()
     assert "DEMO-BAD-1" not in _stored_ids(app_server.db_path)
