@@ -12,7 +12,7 @@ from typing import Any, Literal
 from pydantic import BaseModel, ConfigDict, Field, ValidationError, field_validator
 
 from .errors import FieldProblem, PlanFileError
-from .records import ScreeningResult, problems_from_validation
+from .records import PatientRecord, ScreeningResult, problems_from_validation
 
 PLAN_FORMAT_VERSION = "1.0"
 
@@ -38,6 +38,8 @@ class PlannedExercise(_Open):
     peak_grf_bw: float = Field(ge=0)
     directions: list[str] = Field(default_factory=list)
     patterns: list[str] = Field(default_factory=list)
+    supervised: bool = Field(False, description="Done only with a clinician or trainer present "
+                                                "(80% 1RM or more, or high impact).")
 
 
 class PlannedSession(_Open):
@@ -46,6 +48,7 @@ class PlannedSession(_Open):
     exercises: list[PlannedExercise]
     impacts: int = Field(0, ge=0)
     osteogenic_index: float = Field(0.0, ge=0)
+    supervised: bool = Field(False, description="The session holds supervised work.")
 
 
 class PlannedWeek(_Open):
@@ -54,6 +57,17 @@ class PlannedWeek(_Open):
     impacts_per_session: int = Field(ge=0)
     reassessment: bool = False
     sessions: list[PlannedSession]
+
+
+class PlanTemplate(_Open):
+    """The template a program was built from: which document, and which version of it."""
+
+    name: str
+    title: str = ""
+    summary: str = ""
+    version: int | None = Field(None, ge=1, description="The template's version (1 for a shipped file "
+                                                         "unless it says otherwise).")
+    origin: str | None = Field(None, description='"shipped" (a file of the package) or "clinic" (the store).')
 
 
 class Plan(_Open):
@@ -66,6 +80,9 @@ class Plan(_Open):
     cautions: list[str]
     sources: list[str]
     weeks: list[PlannedWeek] = Field(min_length=1)
+    template: PlanTemplate | None = None
+    template_version: int | None = Field(None, ge=1, description="Version of the template used (null in plans "
+                                                                  "made before versions were recorded).")
     start_date: str | None = Field(None, description="First day of week 1 (YYYY-MM-DD); week N runs from "
                                                       "start_date + 7(N-1) days. Absent in older plan files.")
     based_on_version: int | None = Field(None, ge=1, description="The stored program version this one was "
@@ -80,6 +97,12 @@ class Plan(_Open):
             return date.fromisoformat(value).isoformat()
         except (TypeError, ValueError):
             raise ValueError("a date as YYYY-MM-DD") from None
+    # Safety (docs/safety.md): the record the plan was built from, re-screened by the check;
+    # a draft until a clinician records the clearance of a person the screening refers.
+    record: PatientRecord | None = None
+    draft: bool = False
+    cleared_by: str | None = Field(None, min_length=1, max_length=120)
+    cleared_at: str | None = Field(None, description="ISO 8601 UTC time of the clearance.")
 
 
 def parse_plan(data: Any, source: str | None = None) -> Plan:

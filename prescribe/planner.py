@@ -63,6 +63,7 @@ from .plan_schema import PLAN_FORMAT_VERSION, Plan, PlannedExercise, PlannedSess
 from .planner_rules import IMPACTS_CEILING, ResistancePhase, Template, load_template, template_names
 from .option_limits import OPTION_RANGES
 from .records import PatientRecord, ScreeningResult
+from .safety import SUPERVISED_FROM_PCT_1RM, pct_1rm as _pct_1rm
 
 __all__ = ["PlanOptions", "build_plan", "weekly_summary", "check_plan", "replace_exercise", "prescribed_pct_1rm",
            "reassessment_weeks", "option_range", "fixed_options", "plan_swaps", "IMPACT_LABELS",
@@ -101,6 +102,9 @@ BALANCE_FIRST_WEEKS = 4
 #: Weeks between balance-difficulty steps (common practice); longer with falls risk.
 BALANCE_STAGE_WEEKS = 6
 BALANCE_STAGE_WEEKS_FALLS = 8
+#: Weeks a due resistance phase may wait for a close impact step-up, so both share one
+#: remodelling window (common practice).
+PHASE_WAIT_WEEKS = 3
 #: Resistance exercises a session drawn from progression chains, plus one back extensor.
 RESISTANCE_CHAINS_MAX = 5
 #: From this %1RM on, a chain's main barbell lift (``loaded_by_1rm``) is loaded by % 1RM.
@@ -366,9 +370,11 @@ def _spine_sparing(record: PatientRecord, screening: ScreeningResult, tpl: Templ
         return True, "two or more fragility fractures (high vertebral risk)"
     if "thoracic_kyphosis" in record.conditions:
         return True, "marked thoracic kyphosis"
-    if {"loaded_spinal_flexion", "loaded_spinal_twisting"} <= set(screening.avoid) and \
-            screening.bone_density_category in ("osteoporosis", "severe_osteoporosis"):
-        return True, "osteoporosis with spinal loading patterns to avoid"
+    spinal = sorted({"loaded_spinal_flexion", "loaded_spinal_twisting"} & set(screening.avoid))
+    if spinal:
+        # The safety check holds every program with a spinal pattern to avoid to spine-sparing
+        # loads (prescribe.safety, rule spine_sparing_load): plan for them from the start.
+        return True, "the screening asks to avoid " + " and ".join(p.replace("_", " ") for p in spinal)
     return False, ""
 
 
@@ -432,8 +438,12 @@ def _exercise(e: _Ex, **kw) -> dict:
          "sets": None, "reps": None, "impacts": 0, "minutes": None, "bouts": 1, "intensity": "",
          "impact_level": e.impact_level, "peak_grf_bw": e.peak_grf_bw,
          "directions": list(e.directions), "patterns": sorted(e.patterns),
-         "rest_s": None, "bout_gap_hours": None, "notes": ""}
+         "rest_s": None, "bout_gap_hours": None, "notes": "", "supervised": False}
     d.update(kw)
+    # Supervised wherever 80% 1RM or more, or high impact, is prescribed (prescribe.safety,
+    # rule supervision: Watson et al. 2018; common practice for high impact).
+    d["supervised"] = bool(d["supervised"] or d["impact_level"] >= 3
+                           or (_pct_1rm(d["intensity"]) or 0) >= SUPERVISED_FROM_PCT_1RM)
     return d
 
 
@@ -608,25 +618,43 @@ class _Builder:
         target = self.tpl.impacts_target(level)
         return min(imp["impacts_start"], target), imp["impacts_step"], target
 
-    def impact_schedule(self) -> list[tuple[int, int, bool, bool, str]]:
-        """Per week: (level, volume, step_up, weak_window, impact phase text)."""
+    def impact_schedule(self) -> list[tuple[int, int, bool, bool, str, ResistancePhase]]:
+        """Per week: (level, volume, step_up, weak_window, impact phase text, resistance phase).
+
+        Impact and resistance are scheduled together: a new or larger stimulus of either
+        kind (a step up in impact level, a move to the next resistance phase, and the start
+        of the program) opens a window whose weeks 3 to 5 carry no escalation of any kind
+        (rule 3; prescribe.safety rule weak_window).  There the impact level, its volume and
+        the resistance phase are all held; a resistance phase that is due then starts after
+        the window.
+        """
         out = []
         hold = self.tpl.impact["hold_weeks_at_full"]
         requested = set(self.options.step_up_weeks) if self.options.step_up_weeks else None
         level, (vol, _, _) = self.start, self._volume(self.start)
-        window_start = 1 if level > 0 else None
+        phases = self.phases
+        ph_i, ph_weeks = 0, 0
+        has_resistance = bool(self.chains or self.back or self.posture)
+        starts: list[int] = [1] if (level > 0 or has_resistance) else []
+        impact_start = 1 if level > 0 else None  # the last step-up of impact work
         at_full = 0
+
+        def window_pos(w: int) -> int:
+            """The largest position (3-5) of week w inside a window, else 0."""
+            return max((w - s + 1 for s in starts if 3 <= w - s + 1 <= 5), default=0)
+
         for w in range(1, self.options.weeks + 1):
             step_up = False
+            pos = window_pos(w)
             if w > 1:
-                pos = w - window_start + 1 if window_start else 0
                 asked = requested is not None and w in requested
-                if 3 <= pos <= 5:
+                if pos:
                     if asked:
-                        self._refuse_step(w, "rule 3", f"week {w} is week {pos} after the step-up in week "
-                                          f"{window_start}: weeks 3 to 5 after a step-up carry no higher level "
+                        first = max(s for s in starts if 3 <= w - s + 1 <= 5)
+                        self._refuse_step(w, "rule 3", f"week {w} is week {w - first + 1} after the new or larger "
+                                          f"stimulus of week {first}: weeks 3 to 5 after it carry no escalation "
                                           "(resorption precedes formation; Eriksen 1986)")
-                    # weak window: hold level and volume of window week 2 (rule 3)
+                    # weak window: hold level, volume and resistance phase (rule 3)
                 else:
                     _, step, full = self._volume(level)
                     blocked = self.falls and w <= BALANCE_FIRST_WEEKS and level + 1 >= 2
@@ -645,15 +673,32 @@ class _Builder:
                     if go:
                         level += 1
                         vol = self._volume(level)[0]
-                        window_start, step_up, at_full = w, True, 0
+                        impact_start, step_up, at_full = w, True, 0
+                        starts.append(w)
                     else:
                         vol = min(vol + step, full)
+                    due = phases[ph_i].weeks and ph_weeks >= phases[ph_i].weeks and ph_i + 1 < len(phases)
+                    if due and not go and requested is None and level < self.top:
+                        # Wait (up to PHASE_WAIT_WEEKS) for an impact step-up that is close, so the
+                        # two stimuli share one window instead of holding the program twice.
+                        _, step, full = self._volume(level)
+                        to_ready = (max(0, hold - at_full) if vol >= full
+                                    else math.ceil((full - vol) / max(step, 1)) + hold)
+                        if to_ready <= PHASE_WAIT_WEEKS and ph_weeks - phases[ph_i].weeks <= PHASE_WAIT_WEEKS \
+                                and not (self.falls and w + to_ready <= BALANCE_FIRST_WEEKS):
+                            due = False
+                    if due and requested is not None and any(w + 2 <= r <= w + 4 for r in requested):
+                        due = False  # a step-up the clinician asked for would fall in its window: wait
+                    if due:
+                        ph_i, ph_weeks = ph_i + 1, 0
+                        if not starts or starts[-1] != w:
+                            starts.append(w)
             else:
                 step_up = level > 0
+            ph_weeks += 1
             full = self._volume(level)[2]
             at_full = at_full + 1 if vol >= full else 0
-            pos = w - window_start + 1 if window_start else 0
-            weak = 3 <= pos <= 5
+            weak = bool(pos)
             label = IMPACT_LABELS[level]
             if weak:
                 text = f"consolidate {label} (remodelling window: no increase)"
@@ -663,7 +708,7 @@ class _Builder:
                 text = f"full volume at {label}"
             else:
                 text = f"build {label}"
-            out.append((level, vol, step_up, weak, text))
+            out.append((level, vol, step_up, weak, text, phases[ph_i]))
         return out
 
     def _refuse_step(self, week: int, rule: str, reason: str) -> None:
@@ -697,16 +742,34 @@ class _Builder:
                                  rest_s=IMPACT_REST_S, bout_gap_hours=gap, notes=note))
         return out
 
-    def resistance_mode(self, week: int) -> tuple[ResistancePhase, bool, bool, bool]:
-        """(phase, barbell lifts in use, lift practice week, body-weight only) for a week."""
-        ph = _phase_at(self.phases, week)
+    def resistance_mode(self, week: int, ph: ResistancePhase | None = None
+                        ) -> tuple[ResistancePhase, bool, bool, bool]:
+        """(phase, barbell lifts in use, lift practice week, body-weight only) for a week.
+
+        ``ph`` is the phase the joint schedule gives the week (:meth:`impact_schedule`);
+        without it, the template's fixed phase lengths.
+        """
+        ph = ph if ph is not None else _phase_at(self.phases, week)
         lifts = self.lift_from is not None and week >= self.lift_from
         practice = lifts and week < self.lift_from + LIFT_PRACTICE_WEEKS
         bodyweight = week <= self.bodyweight_until
         return ph, lifts and not bodyweight, practice, bodyweight
 
-    def resistance_exercises(self, week: int) -> tuple[list[dict], ResistancePhase]:
-        ph, lifts, practice, bodyweight = self.resistance_mode(week)
+    def _time_lifts(self, schedule: list) -> None:
+        """Lift practice and body-weight weeks from the scheduled phases (which the weeks 3-5
+        rule may have lengthened): practice ends, and body-weight work ends, at a phase change."""
+        phases = [row[-1] for row in schedule]
+        heavy = [w for w, ph in enumerate(phases, start=1) if ph.pct_1rm is not None and ph.pct_1rm >= LIFT_LOAD_FROM_PCT]
+        self.lift_from = max(1, heavy[0] - LIFT_PRACTICE_WEEKS) if heavy else None
+        if self.frail:
+            first = self.phases[0]
+            technique = (sum(1 for ph in phases if ph is first)
+                         if first.pct_1rm is None and first.weeks > 0 else 0)
+            self.bodyweight_until = max(FRAIL_BODYWEIGHT_WEEKS, technique)
+
+    def resistance_exercises(self, week: int, ph: ResistancePhase | None = None
+                             ) -> tuple[list[dict], ResistancePhase]:
+        ph, lifts, practice, bodyweight = self.resistance_mode(week, ph)
         rest = 60 if ph.pct_1rm is None else (90 if ph.pct_1rm < 80 else 150)
         by_effort = ph.pct_1rm is None and ph.name != "technique"
         note = f"{ph.name} phase: smooth, controlled lifting; breathe out on effort."
@@ -781,17 +844,17 @@ class _Builder:
         c_bal: dict[tuple, tuple] = {}
         used_l23 = False
         schedule = self.impact_schedule()
-        for w, (level, vol, step_up, weak, text) in enumerate(schedule, start=1):
-            ph = _phase_at(self.phases, w)
+        self._time_lifts(schedule)
+        for w, (level, vol, step_up, weak, text, ph) in enumerate(schedule, start=1):
             b_stage = (w - 1) // (BALANCE_STAGE_WEEKS_FALLS if self.falls else BALANCE_STAGE_WEEKS)
             minutes = bal_minutes or min(tpl.balance["minutes_start"] + 5 * ((w - 1) // 4), tpl.balance["minutes_full"])
             if (level, vol) not in c_imp:
                 imp = self.impact_exercises(level, vol)
                 c_imp[level, vol] = (imp, _session_oi(imp),
                                      sum(x["impacts"] for x in imp if x["impact_level"] >= 2))
-            res_key = self.resistance_mode(w)
+            res_key = self.resistance_mode(w, ph)
             if res_key not in c_res:
-                res = self.resistance_exercises(w)[0]
+                res = self.resistance_exercises(w, ph)[0]
                 c_res[res_key] = (res, _session_oi(res), prescribed_pct_1rm(res))
             if (b_stage, minutes) not in c_bal:
                 bal = self.balance_exercises(w, minutes)
@@ -800,6 +863,7 @@ class _Builder:
             res, oi_r, pct_r = c_res[res_key]
             bal, oi_b = c_bal[b_stage, minutes]
             used_l23 = used_l23 or n_imp > 0
+            sup_i, sup_r, sup_b = (any(x["supervised"] for x in lst) for lst in (imp, res, bal))
             sessions = []
             for d in sorted(set(impact_days) | set(bal_days) | set(res_days)):
                 if d in impact_days:
@@ -807,13 +871,14 @@ class _Builder:
                     exs = ((bal, imp) if self.falls else (imp, bal)) if has_bal else imp
                     sessions.append({"day": d, "kind": "mixed" if has_bal and bal else "impact",
                                      "exercises": exs, "impacts": n_imp,
-                                     "osteogenic_index": round(oi_i + (oi_b if has_bal else 0.0), 2)})
+                                     "osteogenic_index": round(oi_i + (oi_b if has_bal else 0.0), 2),
+                                     "supervised": sup_i or (has_bal and sup_b)})
                 elif d in bal_days:
                     sessions.append({"day": d, "kind": "balance", "exercises": bal, "impacts": 0,
-                                     "osteogenic_index": oi_b})
+                                     "osteogenic_index": oi_b, "supervised": sup_b})
                 if d in res_days:
                     sessions.append({"day": d, "kind": "resistance", "exercises": res, "impacts": 0,
-                                     "osteogenic_index": oi_r})
+                                     "osteogenic_index": oi_r, "supervised": sup_r})
             weeks.append({
                 "week": w,
                 "impact_level": max([x["impact_level"] for x in (*imp, *res, *bal)], default=0),
@@ -843,8 +908,14 @@ class _Builder:
                 self.sources.append(SRC_ROBLING)
         if any(w["impact_volume_unit"] == "minutes" for w in weeks):
             self.sources.append(SRC_CADENCE)
-        self.cautions.append("Weeks 3 to 5 after each step up in impact (and after the start) are a "
-                             "consolidation window: do not add impacts or raise the level then.")
+        self.cautions.append("Weeks 3 to 5 after each step up in impact or in strength work (and after the "
+                             "start) are a consolidation window: do not add impacts, raise the level or add "
+                             "weight then.")
+        if any(x["supervised"] for lst in (*c_imp.values(), *c_res.values()) for x in lst[0]):
+            # Supervised: 80% 1RM or more, or high impact (docs/safety.md); said in plain words
+            # because the plan's cautions are printed on the person's pages too.
+            self.cautions.append("Exercises marked supervised (heavy lifts and the hardest jumps) are done only "
+                                 "with a clinician or trainer present.")
         if used_l23:
             self.cautions.append("Impact work: land with control on a firm, non-slip surface in supportive "
                                  "shoes; more than 50 impacts in a day are split into bouts at least 4 h apart.")
@@ -874,7 +945,9 @@ class _Builder:
             "weeks": weeks,
             "options": {**opts.model_dump(mode="json"), "template": tpl.name, "fixed": fixed,
                         "balance_sessions_per_week": k_b},
-            "template": {"name": tpl.name, "title": tpl.title, "summary": tpl.summary},
+            "template": {"name": tpl.name, "title": tpl.title, "summary": tpl.summary,
+                         "version": tpl.version, "origin": tpl.origin},
+            "template_version": tpl.version,
             "max_impacts_per_session": tpl.impact["max_impacts_per_session"],
             "max_impacts_reason": tpl.max_impacts_reason,
             "start_level": self.start,
@@ -882,6 +955,13 @@ class _Builder:
             "max_impact_level": self.cap,
             "avoid": sorted(self.avoid),
             "spine_sparing": self.spine_sparing,
+            # The record the plan was built from: the safety check screens it again with the
+            # current rules and holds the plan to the stricter result (docs/safety.md).
+            "record": self.record,
+            # A person the screening refers is given a draft until a clinician clears it.
+            "draft": bool(self.screening.refer),
+            "cleared_by": None,
+            "cleared_at": None,
         }
 
 
@@ -904,7 +984,8 @@ def _default_template(record: PatientRecord) -> str:
 
 
 def build_plan(record: PatientRecord, screening: ScreeningResult | None = None,
-               options: PlanOptions | None = None, catalogue=None, created: str | None = None) -> Plan:
+               options: PlanOptions | None = None, catalogue=None, created: str | None = None,
+               *, template: Template | None = None) -> Plan:
     """Build the graded program for one person.
 
     Parameters
@@ -920,6 +1001,9 @@ def build_plan(record: PatientRecord, screening: ScreeningResult | None = None,
         The exercise catalogue; the packaged one by default.
     created : str, optional
         ISO 8601 timestamp to stamp (default: now, UTC).
+    template : Template, optional
+        A template already resolved and validated (a clinic version from the store);
+        it takes the place of ``options.template`` and the default choice.
     Returns
     -------
     Plan
@@ -940,13 +1024,18 @@ def build_plan(record: PatientRecord, screening: ScreeningResult | None = None,
     J Exp Biol 204:3389-3399; Turner & Robling 2003, Exerc Sport Sci Rev 31(1):45-50.
     """
     options = options or PlanOptions()
+    from .safety import rescreen, strictest_screening
     if screening is None:
-        from .screening import screen
-        screening = screen(record)
+        screening = rescreen(record)
+    else:
+        # A screening given by the caller (perhaps from an older rule set) is held to the
+        # record's screening with the current rules: the plan follows the stricter of the two,
+        # as the safety check does (docs/safety.md).
+        screening = strictest_screening(screening, rescreen(record))
     if catalogue is None:
         from .catalogue import default_catalogue
         catalogue = default_catalogue()
-    tpl = load_template(options.template or _default_template(record))
+    tpl = template if template is not None else load_template(options.template or _default_template(record))
     created = created or datetime.now(timezone.utc).replace(microsecond=0).isoformat()
     data = _Builder(record, screening, options, catalogue, tpl).build(created)
     return _assemble(data)

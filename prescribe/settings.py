@@ -189,7 +189,9 @@ def clinician_role(name: str) -> str:
 
     A lead is the hub's logged-in user whose server the hub marked ``PRESCRIBE_HUB_ROLE=lead``
     (a hub admin or a member of the ``clinic-leads`` group), or anyone the clinic
-    settings list as a lead.  Everyone else, and an empty name, is a clinician.
+    settings list as a lead.  Outside a hub, a clinic whose settings list no lead has no
+    roles: every named clinician may act as lead.  Everyone else, and an empty name, is a
+    clinician.
     """
     name = (name or "").strip()
     if not name:
@@ -197,7 +199,12 @@ def clinician_role(name: str) -> str:
     login = hub_login()
     if login is not None and name == login and os.environ.get(HUB_ROLE_ENV, "").strip() == "lead":
         return "lead"
-    return "lead" if name in clinic_leads() else "clinician"
+    leads = clinic_leads()
+    if login is None and not leads:
+        # A single-user install that names no leads: whoever types a name acts as lead (a
+        # typed name proves nothing there); the store still keeps the four-eyes rule.
+        return "lead"
+    return "lead" if name in leads else "clinician"
 
 
 def require_role(name: str, action: str) -> str:

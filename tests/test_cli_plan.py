@@ -47,7 +47,7 @@ def test_plan_options_reach_the_planner(patient):
     assert done.returncode == 0, done.stderr
     plan = parse_plan(json.loads(done.stdout))
     extra = plan.model_extra
-    assert len(plan.weeks) == 12 and extra["template"]["name"] == "gentle"
+    assert len(plan.weeks) == 12 and plan.template.name == "gentle" and plan.template_version == 1
     assert extra["options"]["exclude"] == ["stamp_gentle", "side_stamp_gentle"]
     used = {x.exercise_id for w in plan.weeks for s in w.sessions for x in s.exercises}
     assert not used & {"stamp_gentle", "side_stamp_gentle"}

@@ -191,13 +191,18 @@ def refusal_is_justified(record, screening, options, refused) -> None:
     before = levels[week - 2]  # the level of the week before the refused step-up
     if refused.rule == "rule 1":  # already at the highest level allowed
         assert before >= (plan.model_extra or {})["top_level"], (week, before)
-    elif refused.rule == "rule 3":  # inside weeks 3-5 after the latest step-up
-        ups = [i + 1 for i in range(week - 1) if levels[i] > (levels[i - 1] if i else 0)]
-        assert ups and 3 <= week - ups[-1] + 1 <= 5, (week, ups)
+    elif refused.rule == "rule 3":  # inside weeks 3-5 after a new or larger stimulus of either kind
+        # An impact step-up (the first week counts), or a change of the resistance work (a new
+        # phase): no escalation of any kind in its weeks 3-5 (Eriksen 1986; Heaney et al. 1997).
+        res = [tuple((x.exercise_id, x.sets, x.reps, x.intensity) for s in w.sessions if s.kind == "resistance"
+                     for x in s.exercises) for w in plan.weeks]
+        starts = [i + 1 for i in range(week - 1) if levels[i] > (levels[i - 1] if i else 0)
+                  or (res[i] and (i == 0 or res[i] != res[i - 1]))]
+        assert any(3 <= week - s + 1 <= 5 for s in starts), (week, starts)
     elif refused.rule == "rule 7":  # balance first with falls risk, for the first weeks
         assert (screening.falls_risk or screening.balance_first) and week <= 4 and before + 1 >= 2
     elif refused.rule == "rule 2":  # the level not yet held at full volume long enough
-        hold = load_template(plan.model_extra["template"]["name"]).impact["hold_weeks_at_full"]
+        hold = load_template(plan.template.name).impact["hold_weeks_at_full"]
         assert _weeks_at_full_before(plan, week) < hold, (week, _weeks_at_full_before(plan, week))
     else:
         raise AssertionError(f"a step-up refused under an unexpected rule: {refused.rule}")

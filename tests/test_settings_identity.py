@@ -68,3 +68,13 @@ def test_only_a_lead_may_approve_a_template(monkeypatch):
     assert "'otto.fenn'" in str(info.value) and "approve template" in str(info.value)
     with pytest.raises(InputError, match="action"):
         require_role("lena.vos", "delete_everything")
+
+
+def test_a_single_user_install_with_no_leads_named_has_no_roles(monkeypatch):
+    # Outside a hub a typed name proves nothing, so a clinic that names no leads has no roles:
+    # any named clinician may approve (the store still refuses an approver who is the author).
+    assert clinician_role("otto.fenn") == "lead"
+    assert require_role("otto.fenn", "approve_template") == "lead"
+    assert clinician_role("") == "clinician"
+    monkeypatch.setenv("PRESCRIBE_CLINIC_LEADS", "lena.vos")  # once leads are named, only they are
+    assert clinician_role("otto.fenn") == "clinician"

@@ -127,7 +127,7 @@ def test_program_versions_are_all_kept(store):
     versions = store.program_versions("TEST-0001")
     assert [(v["version"], v["based_on_version"], v["clinician"], v["note"]) for v in versions] == [
         (1, None, "AB", "first"), (2, 1, "CD", "longer")]
-    assert versions[1]["summary"]["weeks"] == 3 and versions[1]["summary"]["max_impact_level"] == 2
+    assert versions[1]["summary"]["weeks"] == 3 and versions[1]["summary"]["max_impact_level"] == 1  # brisk walking
     assert store.get_program("TEST-0001")["marker"] == "v2"
     assert store.get_program("TEST-0001", 1) == plan(marker="v1")
     with pytest.raises(NotFoundError, match="version 7"):
@@ -271,7 +271,7 @@ def test_session_logs_and_clinic_templates(store):
     assert store.add_template("Osteopenia start", {"weeks": 12}, "Lead A") == 1
     assert store.add_template("Osteopenia start", {"weeks": 16}, "Lead A") == 2
     store.approve_template("Osteopenia start", 2, "Lead B")
-    with pytest.raises(ConflictError, match="already approved by Lead B"):
+    with pytest.raises(InputError, match="approved by Lead B"):
         store.approve_template("Osteopenia start", 2, "Lead C")
     rows = store.templates("Osteopenia start")
     assert [(t["version"], t["status"], t["approved_by"]) for t in rows] == [(1, "draft", None), (2, "approved", "Lead B")]

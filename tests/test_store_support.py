@@ -30,18 +30,30 @@ def screening(pid: str = "TEST-0001", category: str = "osteopenia", ruleset: str
 
 
 def plan(pid: str = "TEST-0001", weeks: int = 2, marker: str = "") -> dict:
-    """A small plan that satisfies prescribe.plan_schema (made by hand, not by the planner)."""
-    exercise = {"exercise_id": "heel_drop", "name": "Heel drops", "category": "impact", "sets": 2, "reps": 10,
-                "impacts": 20, "minutes": None, "bouts": 1, "intensity": "RPE 5", "impact_level": 2,
-                "peak_grf_bw": 2.5, "directions": ["vertical"], "patterns": []}
+    """A small plan that satisfies prescribe.plan_schema and the safety check (made by hand,
+    not by the planner): brisk walking with the catalogue's own figures, and the record."""
+    from prescribe.catalogue import default_catalogue
+
+    walk, stance = default_catalogue().get("brisk_walking"), default_catalogue().get("feet_together_stance")
+    exercise = {"exercise_id": walk.exercise_id, "name": walk.name, "category": walk.category, "sets": None,
+                "reps": None, "impacts": 0, "minutes": 20, "bouts": 1, "intensity": "RPE 3-4",
+                "impact_level": walk.impact_level, "peak_grf_bw": walk.peak_grf_bw,
+                "directions": list(walk.directions), "patterns": list(walk.patterns)}
+    balance = {"exercise_id": stance.exercise_id, "name": stance.name, "category": stance.category,
+               "minutes": 10, "intensity": "challenging but safe", "impact_level": stance.impact_level,
+               "peak_grf_bw": stance.peak_grf_bw, "directions": list(stance.directions),
+               "patterns": list(stance.patterns)}
+    # Balance on two days a week: the safety check asks for it once a person has fallen.
+    sessions = [{"day": 1, "kind": "impact", "exercises": [exercise], "impacts": 0, "osteogenic_index": 7.6},
+                *({"day": d, "kind": "balance", "exercises": [balance], "impacts": 0, "osteogenic_index": 0.0}
+                  for d in (2, 4))]
     return {
         "plan_format_version": PLAN_FORMAT_VERSION, "patient_id": pid, "created": "2026-01-05T09:00:00+00:00",
         "tool_version": "test", "ruleset_version": "test-rules-1",
         "screening": screening(pid).model_dump(mode="json"), "cautions": with_standard(),
-        "sources": ["invented test plan"], "marker": marker,
-        "weeks": [{"week": w, "impact_level": min(w, 2), "impacts_per_session": 20, "reassessment": w == weeks,
-                   "sessions": [{"day": 1, "kind": "impact", "exercises": [exercise], "impacts": 20,
-                                 "osteogenic_index": 7.6}]} for w in range(1, weeks + 1)],
+        "sources": ["invented test plan"], "marker": marker, "record": record(pid).model_dump(mode="json"),
+        "weeks": [{"week": w, "impact_level": walk.impact_level, "impacts_per_session": 0, "reassessment": w == weeks,
+                   "sessions": sessions} for w in range(1, weeks + 1)],
     }
 
 

@@ -85,8 +85,9 @@ def test_supervision_follows_the_products_rule():
     assert pm.supervised(_ex(category="impact", impact_level=2, peak_grf_bw=3.0)) is False
     # A screening asking for supervised sessions makes every exercise supervised.
     assert pm.supervised(_ex(), type("S", (), {"supervision": True})()) is True
-    # An explicit field of the program wins.
-    assert pm.supervised(_ex(intensity="85% 1RM", supervised=False)) is False
+    # The program's own mark counts too; an unmarked heavy lift is still shown supervised.
+    assert pm.supervised(_ex(intensity="RPE 3-4", supervised=True)) is True
+    assert pm.supervised(_ex(intensity="85% 1RM", supervised=False)) is True
 
 
 # -- the program on screen -----------------------------------------------------------------

@@ -25,6 +25,9 @@ def register(sub) -> None:
                         "prints the person's pages only unless --audience says otherwise")
     p.add_argument("--sensor", metavar="SUMMARY.json", help="a worn-sensor summary printed by `prescribe sensor "
                                                            "--patient`: the clinician page shows planned against delivered")
+    p.add_argument("--db", default=None,
+                   help="also check the plan against the person's record in this store (a file path or a "
+                        "database URL; default: $PRESCRIBE_DB when it is set)")
     p.set_defaults(func=run)
 
 
@@ -37,6 +40,11 @@ def run(args) -> int:
     audience = args.audience or ("person" if args.large_print else "both")
     check_options(audience, args.paper, ("--audience", "--paper"))
     plan = parse_plan(read_json_file(args.plan, "PLAN.json"), source=args.plan)
+    # A plan file can be edited by hand: the one safety check runs before anything is
+    # written (exit 2 and no file on a refusal; docs/safety.md).
+    from ..safety import assert_safe
+    assert_safe(plan, door=str(args.plan), record=_stored_record(args.db, plan.patient_id),
+                require_record=True)
     sensor = _sensor_summary(args.sensor, plan.patient_id) if args.sensor else None
     out = write_handout(plan, args.out, audience=audience, paper=args.paper, large_print=args.large_print,
                         sensor_summary=sensor)
@@ -56,3 +64,27 @@ def _sensor_summary(path: str, patient_id: str) -> dict:
     if data.get("patient_id") not in (None, patient_id):
         raise InputError.single("--sensor", data.get("patient_id"), f"a recording of the plan's person {patient_id!r}")
     return data
+
+
+def _stored_record(db: str | None, patient_id: str):
+    """The person's record from the store named by --db or $PRESCRIBE_DB, or None.
+
+    Only an existing store is read (none is created); a store without the person gives None.
+    """
+    import os
+
+    if db is None and not os.environ.get("PRESCRIBE_DB"):
+        return None
+    from ..errors import NotFoundError, StoreError
+    from ..store import open_store
+    try:
+        store = open_store(db, create=False)
+    except StoreError:
+        if db is not None:
+            raise  # the store asked for by name must be there
+        return None  # $PRESCRIBE_DB names no store yet: nothing stored to check against
+    with store:
+        try:
+            return store.get_patient(patient_id)
+        except NotFoundError:
+            return None

@@ -16,7 +16,7 @@ _OPTION_OF = {
     "weeks": "--weeks", "start_level": "--start-level", "template": "--template",
     "impact_sessions_per_week": "--impact-sessions", "resistance_sessions_per_week": "--resistance-sessions",
     "balance_sessions_per_week": "--balance-sessions", "exclude": "--exclude", "include": "--include",
-    "step_up_weeks": "--step-up-weeks",
+    "step_up_weeks": "--step-up-weeks", "cleared_by": "--cleared-by",
 }
 
 
@@ -35,9 +35,12 @@ def register(sub) -> None:
                     "clinician reviews every program. The plan format is documented in docs/plan.md.")
     p.add_argument("patient", metavar="PATIENT.json", help="the patient record (JSON)")
     p.add_argument("--weeks", type=_whole, default=None, metavar="N", help="program length, 8-52 weeks (default 26)")
-    p.add_argument("--template", default=None, metavar="NAME",
-                   help="starting template: standard, gentle or post_vertebral_fracture "
-                        "(default: post_vertebral_fracture after a vertebral fracture, else standard)")
+    p.add_argument("--template", default=None, metavar="NAME[@VERSION]",
+                   help="template: a shipped one (standard, gentle or post_vertebral_fracture) or an approved "
+                        "clinic version from the store; a bare NAME is its newest approved version (default: "
+                        "post_vertebral_fracture after a vertebral fracture, else standard)")
+    p.add_argument("--db", help="the store holding the clinic's templates (default: $PRESCRIBE_DB, else "
+                                "~/.local/share/prescribe/prescribe.db); read only for a clinic template")
     p.add_argument("--start-level", type=_whole, default=None, metavar="L",
                    help="impact level to start at, 0-3 (never above the screening's cap)")
     p.add_argument("--impact-sessions", type=_whole, default=None, metavar="K", help="impact sessions a week, 1-7 (default 3)")
@@ -51,6 +54,9 @@ def register(sub) -> None:
                    help="weeks where the impact level should rise (refused where a safety rule forbids it)")
     p.add_argument("--start-date", default=None, metavar="YYYY-MM-DD",
                    help="first day of week 1 (default: today); week N starts 7(N-1) days later")
+    p.add_argument("--cleared-by", default=None, metavar="NAME",
+                   help="record that clinician NAME has cleared this person for the program (with the time); "
+                        "until then a person the screening refers gets a draft program")
     p.add_argument("--table", action="store_true", help="print the weekly summary table instead of JSON")
     p.set_defaults(func=run)
 
@@ -58,10 +64,12 @@ def register(sub) -> None:
 def _options(args):
     from ..planner import PlanOptions
 
-    given = {"weeks": args.weeks, "template": args.template, "start_level": args.start_level,
+    given = {"weeks": args.weeks, "start_level": args.start_level,
              "impact_sessions_per_week": args.impact_sessions,
              "resistance_sessions_per_week": args.resistance_sessions,
              "balance_sessions_per_week": args.balance_sessions}
+    if getattr(args, "template_name", None):
+        given["template"] = args.template_name
     kwargs = {k: v for k, v in given.items() if v is not None}
     if args.exclude:
         kwargs["exclude"] = list(args.exclude)
@@ -81,25 +89,63 @@ def _named_as_options(exc: InputError) -> InputError:
                        for p in exc.problems], exc.source)
 
 
+def resolve_template(ref: str | None, db: str | None):
+    """The template ``--template`` names: (shipped name for PlanOptions, or None; clinic Template, or None).
+
+    Shipped templates never touch the store; a clinic name is looked up read-only and
+    must be an approved version (drafts and retired versions are refused, exit 2).
+    """
+    if ref is None:
+        return None, None
+    from ..planner_rules import template_names
+    from ..template_library import parse_ref, resolve
+
+    name, _ = parse_ref(ref, "--template")
+    if name in template_names():
+        return resolve(ref, None, purpose="plan").name, None
+    from ..errors import StoreError
+    from ..store import open_store
+    try:
+        store = open_store(db, create=False)
+    except StoreError as exc:
+        raise InputError.single("--template", ref, "a shipped template (" + ", ".join(template_names()) +
+                                f") or an approved clinic version in the store ({exc})") from None
+    with store:
+        tv = resolve(ref, store, purpose="plan")
+    return None, tv.template()
+
+
 def run(args) -> int:
     from ..planner import build_plan, weekly_summary
     from ..screening import screen
 
+    shipped, clinic_template = resolve_template(args.template, args.db)
+    args.template_name = shipped
     options = _options(args)
     start = date.today() if args.start_date is None else parse_day(args.start_date, "--start-date")
     record = load_record(args.patient)
+    from ..safety import assert_safe, record_clearance
+
     try:
-        plan = build_plan(record, screen(record), options)
+        plan = build_plan(record, screen(record), options, template=clinic_template)
     except InputError as exc:
         raise _named_as_options(exc) from None
     plan = plan.model_copy(update={"start_date": start.isoformat()})
+    if args.cleared_by is not None:
+        try:
+            plan = record_clearance(plan, args.cleared_by)
+        except InputError as exc:
+            raise _named_as_options(exc) from None
+    # The one safety check (docs/safety.md): an unsafe program is refused (exit 2), nothing printed.
+    assert_safe(plan, door=f"the program for {record.patient_id}", record=record)
     if not args.table:
         emit_json(plan)
         return 0
     out = sys.stdout
-    extra = plan.model_extra or {}
+    tpl = plan.template
+    tpl_text = "?" if tpl is None else tpl.name + (f"@{tpl.version}" if tpl.version else "")
     out.write(f"Program for {plan.patient_id}: {len(plan.weeks)} weeks from {plan.start_date}, template "
-              f"{extra.get('template', {}).get('name', '?')}, highest impact level allowed "
+              f"{tpl_text}, highest impact level allowed "
               f"{plan.screening.max_impact_level} (screening rule set {plan.ruleset_version})\n\n")
     table = weekly_summary(plan)
     rows = table.astype(object).where(table.notna(), None).to_dict("records")

@@ -152,6 +152,8 @@ def run_import(args) -> int:
     from ..store import parse_bundle
     data = read_json_file(args.bundle_file, "bundle file", max_bytes=BUNDLE_MAX_BYTES)
     bundle = parse_bundle(data, source=args.bundle_file)  # bad input stops here, before the store is touched
+    from ..store.api import check_bundle_programs
+    check_bundle_programs(bundle)  # an unsafe program stops here too (exit 2, docs/safety.md)
     with _open(args) as store:
         result = store.import_bundle(bundle)
         result["db"] = store.where

@@ -256,6 +256,8 @@ def dose_text(ex: PlannedExercise) -> str:
     load = extra(ex, "load_kg")  # a working load from the logged sessions (docs/sessions.md)
     if isinstance(load, (int, float)) and not isinstance(load, bool) and load > 0:
         text += f": about {load:g} kg"
+    if ex.supervised:
+        text += ". Supervised only: with your clinician or trainer there"
     return text
 
 
@@ -553,7 +555,12 @@ def goals(plan: Plan) -> list[str]:
         out.append("Get better balance and stronger legs, so you are less likely to fall.")
     if {"loaded_spinal_flexion", "loaded_spinal_twisting"} & set(plan.screening.avoid):
         out.append("Keep your back safe: do not bend forward or twist when you lift, carry or push.")
-    out.append("Exercise safely on your own, and know when to stop and ask for advice.")
+    if any(x.supervised for w in plan.weeks for ses in w.sessions for x in ses.exercises):
+        # Never "on your own" where supervision is prescribed (docs/safety.md, rule supervision).
+        out.append("Do the exercises marked supervised only with your clinician or trainer there. "
+                   "Know when to stop and ask for advice.")
+    else:
+        out.append("Exercise safely on your own, and know when to stop and ask for advice.")
     return out
 
 

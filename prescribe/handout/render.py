@@ -19,6 +19,7 @@ from ..cautions import PERSON_SHORT_CAUTION, SHORT_CAUTION
 from ..errors import InputError
 from ..fileio import write_atomically
 from ..plan_schema import PLAN_FORMAT_VERSION, Plan, parse_plan
+from ..safety import is_draft
 from ..settings import Clinic, clinic as clinic_from_settings
 from . import charts, content, explain_figures, pdf
 from .sensor_chart import sensor_charts
@@ -66,6 +67,10 @@ def _environment() -> Environment:
     return env
 
 
+#: The mark on every page of a draft program's handout.
+DRAFT_TEXT = "DRAFT: do not start this program until a clinician has cleared you for it"
+
+
 def handout_context(plan: Plan, audience: str, paper: str, clinic: Clinic, sensor_summary: dict | None = None,
                     large_print: bool = False) -> dict:
     """Everything the template shows, worked out from the plan.
@@ -97,9 +102,12 @@ def handout_context(plan: Plan, audience: str, paper: str, clinic: Clinic, senso
         "explanations": explain_figures.plan_explanations(plan) if clinician else None,
         "screening": plan.screening, "level_labels": content.LEVEL_LABELS, "if_hard_general": content.IF_HARD_GENERAL,
         "versions": [("Tool version (plan)", plan.tool_version), ("Rule-set version", plan.ruleset_version),
+                     ("Template", _template_text(plan)),
                      ("Plan format", plan.plan_format_version), ("Plan created", plan.created),
                      ("Handout made by", f"prescribe {__version__}, plan format {PLAN_FORMAT_VERSION}")],
         "has_weak": any(f.weak_window for f in facts),
+        # A referred person's program not yet cleared: DRAFT on every page (docs/safety.md).
+        "draft": is_draft(plan), "draft_text": DRAFT_TEXT,
         "minutes_only": any(f.impact_level >= 1 and not f.impacts_per_session for f in facts),
         "sensor_charts": sensor_charts(sensor_summary) if clinician else [],
     }
@@ -161,3 +169,13 @@ def write_handout(plan: Plan | dict, out_path: str | os.PathLike, audience: str 
         raise InputError.single("--out", str(out_path), "a file in an existing folder")
     write_atomically(out, data, "--out")
     return out
+
+
+def _template_text(plan) -> str:
+    """The template a program was built from, with its version (``name@version``, origin)."""
+    tpl = plan.template
+    if tpl is None:
+        return "not recorded"
+    version = plan.template_version or tpl.version
+    text = tpl.name + (f"@{version}" if version else " (version not recorded)")
+    return text + (f" ({tpl.origin})" if tpl.origin else "")

@@ -39,6 +39,7 @@ from ..cautions import STANDARD_CAUTIONS
 from ..errors import ConflictError, FieldProblem, InputError, NotFoundError, StoreError
 from ..plan_schema import parse_plan
 from ..records import PatientRecord, ScreeningResult, parse_record
+from ..safety import assert_safe
 from ..settings import current_clinician, db_url, hub_login
 from . import models as m
 from .bundle import BUNDLE_FORMAT_VERSION, BUNDLE_KIND, parse_bundle
@@ -50,8 +51,8 @@ if TYPE_CHECKING:
 HEAD_REVISION = "0006"
 #: Every revision this version can open, oldest first, with the tables each has.
 KNOWN_REVISIONS: dict[str, tuple[str, ...]] = {"0001": m.TABLES_0001, "0002": m.TABLES_0002,
-                                               "0003": m.TABLES_0003, "0005": m.TABLES_0005,
-                                               "0006": m.TABLES_0005}
+                                               "0003": m.TABLES_0003, "0004": m.TABLES_0004,
+                                               "0005": m.TABLES_0005, "0006": m.TABLES_0005}
 MIGRATIONS_DIR = Path(__file__).with_name("migrations")
 
 #: SQLite settings on every connection (see docs/store.md for why FULL).
@@ -62,7 +63,12 @@ SQLITE_MAGIC = b"SQLite format 3\x00"
 #: Audit actions; "bundle_imported" rows describe this store, not the person, so an
 #: export leaves them out (export(import(export(x))) == export(x)).
 LOCAL_ONLY_ACTIONS = ("bundle_imported",)
-TEMPLATE_STATUSES = ("draft", "approved")
+TEMPLATE_STATUSES = ("draft", "approved", "retired")
+#: Longest review interval accepted for an approved template version [days] (common practice:
+#: guidance is checked against new evidence at least every few years; NICE PMG20 ch. 13).
+TEMPLATE_REVIEW_MAX_DAYS = 3 * 366
+#: Default review interval when the approver gives no review-by date [days] (common practice).
+TEMPLATE_REVIEW_DEFAULT_DAYS = 365
 
 
 def now_utc() -> str:
@@ -251,7 +257,10 @@ class Store:
         pid = record.patient_id
         if plan is not None:
             plan_clinician = _clinician(clinician, required=True)
-            plan_json, summary_json = _checked_plan(pid, plan)
+            parsed, plan_json, summary_json = _checked_plan(pid, plan)
+            # Defence in depth: the program is stored only if it passes the one safety check
+            # against the record saved with it (docs/safety.md).
+            assert_safe(parsed, door=f"store: saving a program for {pid!r}", record=record)
             plan_note = _text(plan_note, "note")
         record_dict = record.model_dump(mode="json")
         record_json = _dumps(record_dict, "record")
@@ -342,6 +351,30 @@ class Store:
                  "latest_category": r.bone_density_category, "latest_screening": r.screened,
                  "latest_program_version": r.version, "record_version": r.record_version} for r in rows]
 
+    def caseload(self) -> list[tuple[str, dict]]:
+        """Everyone's stored record as ``(patient_id, record dict)``, by id, in one read.
+
+        The records were validated when saved; callers that need models parse them.
+        """
+        with self._read() as conn:
+            rows = conn.execute(select(m.people.c.patient_id, m.people.c.record_json)
+                                .order_by(m.people.c.patient_id)).all()
+        return [(r.patient_id, json.loads(r.record_json)) for r in rows]
+
+    def latest_program_templates(self) -> dict[str, tuple[str | None, int | None]]:
+        """Each person's latest program's template name and version, as its summary records them."""
+        with self._read() as conn:
+            latest = (select(m.program_versions.c.patient_id, func.max(m.program_versions.c.version).label("v"))
+                      .group_by(m.program_versions.c.patient_id).subquery())
+            rows = conn.execute(select(m.program_versions.c.patient_id, m.program_versions.c.summary_json)
+                                .join(latest, (latest.c.patient_id == m.program_versions.c.patient_id)
+                                      & (latest.c.v == m.program_versions.c.version))).all()
+        out = {}
+        for r in rows:
+            summary = json.loads(r.summary_json)
+            out[r.patient_id] = (summary.get("template"), summary.get("template_version"))
+        return out
+
     def screenings(self, patient_id: str) -> list[dict]:
         """Every screening of one person, oldest first."""
         with self._read() as conn:
@@ -367,10 +400,14 @@ class Store:
                                              or not isinstance(based_on_version, int) or based_on_version < 1):
             raise InputError.single("based_on_version", based_on_version,
                                     "a program version number (1 or more) or None for the first version")
-        plan_json, summary_json = _checked_plan(patient_id, plan)
+        parsed, plan_json, summary_json = _checked_plan(patient_id, plan)
         at = now_utc()
         with self._write() as conn:
-            _person(conn, patient_id, lock=True)
+            row = _person(conn, patient_id, lock=True)
+            # Defence in depth: whoever calls, a program is stored only if it passes the one
+            # safety check against the person's stored record (docs/safety.md).
+            assert_safe(parsed, door=f"store: saving a program for {patient_id!r}",
+                        record=parse_record(json.loads(row.record_json), source=f"store record {patient_id!r}"))
             latest = _latest_program(conn, patient_id)
             latest_version = latest.version if latest else None
             if based_on_version != latest_version:
@@ -581,10 +618,15 @@ class Store:
                                 .order_by(m.session_logs.c.session_date, m.session_logs.c.id)).all()
         return [_session_row(r) for r in rows]
 
-    def add_template(self, name: str, body: dict, created_by: str) -> int:
-        """Save a new draft version of a clinic template; returns its version number."""
+    def add_template(self, name: str, body: dict, created_by: str, note: str = "") -> int:
+        """Save a new draft version of a clinic template; returns its version number.
+
+        Versions are numbered 1, 2, ... per name.  A stored version is never changed:
+        editing a template means adding its next version (a draft) with a change note.
+        """
         name = _text(name, "name", required=True, max_len=120)
         created_by = _clinician(created_by, required=True)
+        note = _text(note, "change_note", max_len=2000)
         if not isinstance(body, dict):
             raise InputError.single("body", body, "a JSON object (the template)")
         body_json = _dumps(body, "body")
@@ -594,35 +636,85 @@ class Store:
                                   .where(m.clinic_templates.c.name == name)).scalar()
             version = (latest or 0) + 1
             conn.execute(m.clinic_templates.insert().values(name=name, version=version, body_json=body_json,
-                                                            status="draft", created=at, created_by=created_by))
-            _audit(conn, at, "template_saved", None, created_by, {"name": name, "version": version})
+                                                            status="draft", created=at, created_by=created_by,
+                                                            change_note=note))
+            _audit(conn, at, "template_saved", None, created_by, {"name": name, "version": version,
+                                                                  "change_note": note})
         return version
 
-    def approve_template(self, name: str, version: int, approved_by: str) -> None:
-        """Mark one template version approved by a named clinician (once)."""
+    def approve_template(self, name: str, version: int, approved_by: str,
+                         review_by: str | date | None = None) -> dict:
+        """Approve one draft version: a named clinician who is not its author (four eyes).
+
+        ``review_by`` (YYYY-MM-DD) is when the version must be reviewed again: after
+        today and at most :data:`TEMPLATE_REVIEW_MAX_DAYS` ahead; by default a year
+        from today.  Refused (InputError) for a version that is not a draft or an
+        approver who is the author.  Returns the stored version's row.
+        """
         approved_by = _clinician(approved_by, required=True)
+        today = datetime.now(timezone.utc).date()
+        if review_by is None:
+            review = today.fromordinal(today.toordinal() + TEMPLATE_REVIEW_DEFAULT_DAYS).isoformat()
+        else:
+            review = _iso_date(review_by, "review_by")
+            days = date.fromisoformat(review).toordinal() - today.toordinal()
+            if not 0 < days <= TEMPLATE_REVIEW_MAX_DAYS:
+                raise InputError.single("review_by", review, f"a date after today ({today.isoformat()}) and at "
+                                        f"most {TEMPLATE_REVIEW_MAX_DAYS // 366} years ahead")
         at = now_utc()
         with self._write() as conn:
-            row = conn.execute(select(m.clinic_templates).where(m.clinic_templates.c.name == name,
-                                                                m.clinic_templates.c.version == version)).first()
-            if row is None:
-                raise NotFoundError(f"no clinic template {name!r} version {version} in the store")
-            if row.status == "approved":
-                raise ConflictError(f"clinic template {name!r} version {version} was already approved by "
-                                    f"{row.approved_by} at {row.approved_at}")
+            row = _template_row(conn, name, version)
+            if row.status != "draft":
+                raise InputError.single("NAME@VERSION", f"{name}@{version}", _not_draft(row))
+            if _same_person(row.created_by, approved_by):
+                raise InputError.single("clinician", approved_by,
+                                        f"a clinician other than the author of {name}@{version} "
+                                        f"({row.created_by}): the approver of a template is never its author")
+            conn.execute(m.clinic_templates.update().where(m.clinic_templates.c.id == row.id,
+                                                           m.clinic_templates.c.status == "draft")
+                         .values(status="approved", approved_by=approved_by, approved_at=at, review_by=review))
+            _audit(conn, at, "template_approved", None, approved_by,
+                   {"name": name, "version": version, "review_by": review})
+            return _template_dict(_template_row(conn, name, version))
+
+    def retire_template(self, name: str, version: int, retired_by: str) -> dict:
+        """Retire a draft or approved version: it can no longer be used for new programs.
+
+        Programs already built from it keep saying which version they came from (the
+        app marks them).  A retired version stays in the store, unchanged.
+        """
+        retired_by = _clinician(retired_by, required=True)
+        at = now_utc()
+        with self._write() as conn:
+            row = _template_row(conn, name, version)
+            if row.status == "retired":
+                raise InputError.single("NAME@VERSION", f"{name}@{version}",
+                                        f"a draft or approved version (this one was retired by {row.retired_by} "
+                                        f"at {row.retired_at})")
             conn.execute(m.clinic_templates.update().where(m.clinic_templates.c.id == row.id)
-                         .values(status="approved", approved_by=approved_by, approved_at=at))
-            _audit(conn, at, "template_approved", None, approved_by, {"name": name, "version": version})
+                         .values(status="retired", retired_by=retired_by, retired_at=at))
+            _audit(conn, at, "template_retired", None, retired_by,
+                   {"name": name, "version": version, "was": row.status})
+            return _template_dict(_template_row(conn, name, version))
+
+    def get_template(self, name: str, version: int | None = None) -> dict:
+        """One stored version (the newest when ``version`` is None); NotFoundError naming it."""
+        with self._read() as conn:
+            if version is None:
+                version = conn.execute(select(func.max(m.clinic_templates.c.version))
+                                       .where(m.clinic_templates.c.name == name)).scalar()
+                if version is None:
+                    raise NotFoundError(f"no clinic template {name!r} in the store")
+            return _template_dict(_template_row(conn, name, version))
 
     def templates(self, name: str | None = None) -> list[dict]:
+        """Every stored template version (of one name when given), by name and version."""
         with self._read() as conn:
             query = select(m.clinic_templates).order_by(m.clinic_templates.c.name, m.clinic_templates.c.version)
             if name is not None:
                 query = query.where(m.clinic_templates.c.name == name)
             rows = conn.execute(query).all()
-        return [{"name": r.name, "version": r.version, "status": r.status, "created": r.created,
-                 "created_by": r.created_by, "approved_by": r.approved_by, "approved_at": r.approved_at,
-                 "body": json.loads(r.body_json)} for r in rows]
+        return [_template_dict(r) for r in rows]
 
     # -- worn-sensor summaries (revision 0005) ------------------------------------------------
 
@@ -690,6 +782,7 @@ class Store:
         """
         b = parse_bundle(bundle)
         pid = b["person"]["patient_id"]
+        check_bundle_programs(b)
         at = now_utc()
         with self._write() as conn:
             exists = conn.execute(select(m.people.c.patient_id).where(m.people.c.patient_id == pid)
@@ -856,6 +949,18 @@ def _read_revision(conn: Connection) -> str | None:
     return conn.execute(text("SELECT version_num FROM alembic_version")).scalar()
 
 
+def check_bundle_programs(b: dict) -> None:
+    """Every program version of a bundle passes the safety check against the bundle's record.
+
+    Raises :class:`~prescribe.errors.UnsafeProgram` (nothing is stored) naming the version.
+    """
+    record = parse_record(b["person"]["record"], source="bundle person.record")
+    for p in b["programs"]:
+        plan = parse_plan(p["plan"], source=f"bundle program version {p['version']}")
+        assert_safe(plan, door=f"bundle program version {p['version']} of {b['person']['patient_id']!r}",
+                    record=record)
+
+
 def _person(conn: Connection, patient_id: str, lock: bool = False):
     query = select(m.people).where(m.people.c.patient_id == patient_id)
     row = conn.execute(query.with_for_update() if lock else query).first()
@@ -896,11 +1001,12 @@ def _audit(conn: Connection, at: str, action: str, pid: str | None, clinician: s
                                              detail_json=_dumps(detail, "audit detail")))
 
 
-def _checked_plan(patient_id: str, plan: dict) -> tuple[str, str]:
+def _checked_plan(patient_id: str, plan: dict):
+    """The parsed plan (for the safety check) and its stored JSON and summary."""
     parsed = parse_plan(plan, source="program")
     if parsed.patient_id != patient_id:
         raise InputError.single("plan.patient_id", parsed.patient_id, f"the person's id {patient_id!r}")
-    return _dumps(plan, "plan"), _dumps(plan_summary(plan), "plan")
+    return parsed, _dumps(plan, "plan"), _dumps(plan_summary(plan), "plan")
 
 
 def _latest_program(conn: Connection, pid: str):
@@ -945,7 +1051,38 @@ def plan_summary(plan: dict) -> dict:
     levels = [w.get("impact_level", 0) for w in weeks if isinstance(w, dict)]
     return {"weeks": len(weeks), "max_impact_level": max(levels) if levels else None,
             "ruleset_version": plan.get("ruleset_version"), "plan_created": plan.get("created"),
-            "plan_format_version": plan.get("plan_format_version")}
+            "plan_format_version": plan.get("plan_format_version"),
+            "template": tpl.get("name") if isinstance(tpl := plan.get("template"), dict) else None,
+            "template_version": plan.get("template_version")}
+
+
+def _template_row(conn: Connection, name: str, version: int):
+    row = conn.execute(select(m.clinic_templates).where(m.clinic_templates.c.name == name,
+                                                        m.clinic_templates.c.version == version)).first()
+    if row is None:
+        raise NotFoundError(f"no clinic template {name!r} version {version} in the store")
+    return row
+
+
+def _template_dict(r) -> dict:
+    return {"name": r.name, "version": r.version, "status": r.status, "created": r.created,
+            "created_by": r.created_by, "approved_by": r.approved_by, "approved_at": r.approved_at,
+            "review_by": r.review_by, "retired_by": r.retired_by, "retired_at": r.retired_at,
+            "change_note": r.change_note or "", "body": json.loads(r.body_json)}
+
+
+def _same_person(a: str | None, b: str | None) -> bool:
+    """Whether two clinician names are the same person (case and spacing ignored)."""
+    def norm(x):
+        return " ".join(str(x or "").split()).casefold()
+    return bool(norm(a)) and norm(a) == norm(b)
+
+
+def _not_draft(row) -> str:
+    if row.status == "approved":
+        return (f"a draft version (this one was approved by {row.approved_by} at {row.approved_at}; an approved "
+                "version never changes: add a new draft version instead)")
+    return f"a draft version (this one was retired by {row.retired_by} at {row.retired_at})"
 
 
 def _session_row(r) -> dict:

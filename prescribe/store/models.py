@@ -105,13 +105,20 @@ clinic_templates = Table(
     Column("created_by", Text, nullable=False, default=""),
     Column("approved_by", Text, nullable=True),
     Column("approved_at", String(40), nullable=True),
+    # revision 0004: review and retirement of template versions
+    Column("change_note", Text, nullable=False, default="", server_default=""),
+    Column("review_by", String(10), nullable=True),
+    Column("retired_by", Text, nullable=True),
+    Column("retired_at", String(40), nullable=True),
     UniqueConstraint("name", "version", name="uq_clinic_templates_name_version"),
+    Index("ix_clinic_templates_status", "name", "status"),
 )
 
 #: Table names per revision (the open check recognises a store by them).
 TABLES_0001 = ("people", "screenings", "program_versions", "audit_log")
 TABLES_0002 = TABLES_0001 + ("session_logs", "clinic_templates")
 TABLES_0003 = TABLES_0002
+TABLES_0004 = TABLES_0003
 
 # -- revision 0005: summaries of worn-sensor recordings (never the raw signal) ---------
 
@@ -129,4 +136,4 @@ sensor_summaries = Table(
     Index("ix_sensor_summaries_patient", "patient_id", "created"),
 )
 
-TABLES_0005 = TABLES_0003 + ("sensor_summaries",)
+TABLES_0005 = TABLES_0004 + ("sensor_summaries",)

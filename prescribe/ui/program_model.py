@@ -117,13 +117,12 @@ def level_words(level: int) -> str:
 def supervised(ex: Any, screening: Any = None) -> bool:
     """Whether this exercise is done supervised.
 
-    An explicit ``supervised`` field of the program wins; otherwise the product's rule:
-    80% 1RM or more, or high impact (level 3), or a screening that asks for supervised
-    sessions.
+    The program's own ``supervised`` mark, or the product's rule (80% 1RM or more, or high
+    impact, level 3), or a screening that asks for supervised sessions: any of them makes it
+    supervised (the safe side; the safety check refuses a program whose marks break the rule).
     """
-    given = extra(ex, "supervised")
-    if isinstance(given, bool):
-        return given
+    if getattr(ex, "supervised", None) is True or extra(ex, "supervised") is True:
+        return True
     pct = pct_1rm(getattr(ex, "intensity", "") or "")
     if pct is not None and pct >= SUPERVISED_FROM_PCT_1RM:
         return True

@@ -86,6 +86,7 @@ class ClinicSession:
         self.saved_version: int | None = None
         #: The stored record version this record was opened at (None: a new person).
         self.record_version: int | None = None
+        self.clearance: tuple[str, str] | None = None  # (who, when) a clinician cleared a referred person
 
     @property
     def cautions(self) -> list[str]:
@@ -111,7 +112,7 @@ class ClinicSession:
             return False
         self.problems = {}
         if self.record is None or self.record.patient_id != record.patient_id:
-            self.options, self.swaps, self.saved_version = {}, [], None
+            self.options, self.swaps, self.saved_version, self.clearance = {}, [], None, None
             self.record_version = None
         self.record = record
         self.screening = _api("screening", "screen")(record)
@@ -131,7 +132,7 @@ class ClinicSession:
             return False
         try:
             build_plan, plan_options = _api("planner", "build_plan"), _api("planner", "PlanOptions")
-            replace, check = _api("planner", "replace_exercise"), _api("planner", "check_plan")
+            replace, assert_safe = _api("planner", "replace_exercise"), _api("safety", "assert_safe")
         except EngineMissing as exc:
             self.refusal = f"The program cannot be built here: {exc}."
             return False
@@ -139,8 +140,10 @@ class ClinicSession:
         options = {k: v for k, v in {**self.options, **changes}.items() if v is not None}
         applied: list[tuple[str, str]] = []
 
+        template, template_note = self._kept_template()
+
         def make():
-            plan = build_plan(self.record, self.screening, plan_options(**options))
+            plan = build_plan(self.record, self.screening, plan_options(**options), template=template)
             for old, new in self.swaps:
                 # A swap applies while the exercise it replaced is still chosen by the planner and the
                 # replacement is not (a swap never merges two exercises of the program into one).
@@ -148,9 +151,9 @@ class ClinicSession:
                 if old in used and new not in used:
                     plan = replace(plan, old, new)
                     applied.append((old, new))
-            problems = list(check(plan, self.screening))
-            if problems:  # the planner's own safety check disagrees: keep the old program
-                raise PlanRequestRefused("check_plan", "; ".join(problems))
+            plan = self._cleared(plan)
+            # The one safety check (docs/safety.md): a refusal keeps the old program.
+            assert_safe(plan, self.screening, door="app", record=self.record)
             return plan
         plan = self._attempt(make)
         if plan is None:
@@ -158,6 +161,8 @@ class ClinicSession:
         dropped = [old for old, new in self.swaps if (old, new) not in applied]
         self.program_note = ("The swap made for " + ", ".join(dropped) + " no longer applies: the new program "
                              "no longer uses it, or already has its replacement." if dropped else None)
+        if template_note:
+            self.program_note = template_note + (" " + self.program_note if self.program_note else "")
         self.options, self.plan, self.swaps = options, plan, applied
         return True
 
@@ -179,26 +184,100 @@ class ClinicSession:
         if merge:
             self.refusal = merge
             return False
-        replace = _api("planner", "replace_exercise")
-        plan = self._attempt(lambda: replace(self.plan, old_id, new_id))
+        replace, assert_safe = _api("planner", "replace_exercise"), _api("safety", "assert_safe")
+
+        def make():
+            plan = replace(self.plan, old_id, new_id)
+            assert_safe(plan, self.screening, door="app", record=self.record)
+            return plan
+        plan = self._attempt(make)
         if plan is None:
             return False
         self.swaps.append((old_id, new_id))
         self.plan = plan
         return True
 
+    def _kept_template(self):
+        """The clinic template of the open program, kept when it is rebuilt: (Template or None, note).
+
+        A program built from an approved clinic version is rebuilt from the same version;
+        one whose version has since been retired (or is gone) is rebuilt from the planner's
+        default choice, and the note says so.
+        """
+        tpl = getattr(self.plan, "template", None) if self.plan is not None else None
+        if tpl is None or tpl.origin != "clinic" or not tpl.version:
+            return None, None
+        ref = f"{tpl.name}@{tpl.version}"
+        try:
+            from ..template_library import resolve
+            return resolve(ref, self.store, purpose="plan").template(), None
+        except (InputError, PrescribeError) as exc:
+            return None, (f"The program was built from template {ref}, which can no longer build programs "
+                          f"({exc}); it was rebuilt from the planner's default template.")
+
     def _attempt(self, make):
-        """``make()``'s plan, or None with ``refusal`` set to the planner's reason."""
+        """``make()``'s plan, or None with ``refusal`` set in plain words (the program is kept)."""
         try:
             plan = make()
-        except PlanRequestRefused as exc:
-            self.refusal = f"Refused ({exc.rule}): {exc.reason}"
+        except PlanRequestRefused as exc:  # UnsafeProgram too
+            self.refusal = self.plain_refusal(exc)
             return None
         except InputError as exc:
             self.refusal = str(exc)
             return None
         self.refusal = None
         return plan
+
+    def plain_refusal(self, exc: PlanRequestRefused) -> str:
+        """A refusal in plain words: what is wrong, what is allowed, and that nothing changed."""
+        kept = " The previous program is kept and nothing was saved."
+        violations = getattr(exc, "violations", None)
+        if violations:
+            # A swap is refused first of all for changing the kind of movement: say that first.
+            v = next((x for x in violations if x.rule == "swap_same_kind"), violations[0])
+            more = len(violations) - 1
+            first = v.message.split(" ", 1)[0]
+            text = v.message if "_" in first else v.message[0].upper() + v.message[1:]
+            return (f"Refused: {text}. Allowed: {v.allowed}."
+                    + (f" ({more} more problem{'s' if more != 1 else ''} of the same change.)" if more else "")
+                    + f" [rule {v.rule}]" + kept)
+        if exc.field == "start_level" and self.screening is not None:
+            cap = self.screening.max_impact_level
+            label = IMPACT_LABELS[cap].split(" - ", 1)[1]
+            if exc.value is not None and exc.value > cap:
+                return f"Refused: Start level {exc.value} is above what the screening allows ({cap}, {label})." + kept
+            return f"Refused: Start level {exc.value} is above what the program's template allows: {exc.reason}." + kept
+        return f"Refused: {exc.reason} [{exc.rule}]." + kept
+
+    # -- clearance of a referred person -------------------------------------------
+    @property
+    def is_draft(self) -> bool:
+        """True while the program is a draft: the screening refers the person and no clearance is recorded."""
+        return self.plan is not None and _api("safety", "is_draft")(self.plan)
+
+    def clear(self, clinician: str) -> bool:
+        """Record that ``clinician`` has cleared this person for the program (who and when).
+
+        The clearance stays with the person's program through later changes in this visit.
+        Bad input (an empty name) sets ``refusal`` and changes nothing.
+        """
+        if self.plan is None:
+            self.refusal = "Build a program first."
+            return False
+        try:
+            plan = _api("safety", "record_clearance")(self.plan, clinician)
+        except InputError as exc:
+            self.refusal = f"Not cleared: {exc}"
+            return False
+        self.clearance = (plan.cleared_by, plan.cleared_at)
+        self.plan, self.refusal = plan, None
+        return True
+
+    def _cleared(self, plan):
+        """``plan`` with this visit's recorded clearance, if any."""
+        if self.clearance is None:
+            return plan
+        return _api("safety", "record_clearance")(plan, *self.clearance)
 
     def exclude(self, exercise_id: str) -> bool:
         """Leave ``exercise_id`` out of the program (the planner picks what replaces it)."""
@@ -284,6 +363,8 @@ class ClinicSession:
         """
         if self.plan is None:
             raise InputError.single("program", None, "a built program (check the person's details first)")
+        # A handout is a door too: the program is checked before anything is printed.
+        _api("safety", "assert_safe")(self.plan, self.screening, door="handout", record=self.record)
         sensor = self.latest_sensor_summary()  # the clinician's page shows it when there is one
         if fmt == "pdf":
             return _api("handout", "render_pdf")(self.plan, audience=audience, paper=paper, sensor_summary=sensor,
@@ -341,6 +422,9 @@ class ClinicSession:
         except ConflictError as exc:
             self.notice = f"Not saved: {exc}. This program stays open here."
             return None
+        except PlanRequestRefused as exc:  # the store's own safety check (UnsafeProgram)
+            self.notice = "Not saved. " + self.plain_refusal(exc)
+            return None
         self.saved_version = int(version)
         return self.saved_version
 
@@ -378,6 +462,9 @@ class ClinicSession:
             out.append({"version": row["version"], "based_on_version": row.get("based_on_version"),
                         "clinician": row.get("clinician"), "saved": row.get("created"),
                         "weeks": summary.get("weeks"), "max_impact_level": summary.get("max_impact_level"),
+                        "template": (f"{summary['template']}@{summary['template_version']}"
+                                     if summary.get("template") and summary.get("template_version")
+                                     else summary.get("template")),
                         "note": row.get("note")})
         return out
 
@@ -398,4 +485,11 @@ class ClinicSession:
         self.options = dict(_api("planner", "fixed_options")(self.plan))
         self.swaps = list(_api("planner", "plan_swaps")(self.plan))
         self.saved_version = int(latest)
+        self.clearance = ((self.plan.cleared_by, self.plan.cleared_at)
+                          if self.plan.cleared_by and self.plan.cleared_at else None)
         self.refusal = None
+        try:  # a stored program from an older version may break a rule added since: say so
+            _api("safety", "assert_safe")(self.plan, self.screening, door="saved program", record=self.record)
+        except PlanRequestRefused as exc:
+            self.refusal = ("This saved program breaks a safety rule; change it before printing or saving. "
+                            + self.plain_refusal(exc))

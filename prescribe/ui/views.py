@@ -28,8 +28,10 @@ from .explain_view import ExplainView
 from .exercise_view import ExerciseView
 from .history_view import history_html
 from .program_view import ProgramView, progression_html
+from .safety_view import ClearanceView
 from .wording import field_words, plain
 from .session import IMPACT_LABELS, ClinicSession, EngineMissing
+from .templates_view import TemplatesView, program_notice_html
 
 log = logging.getLogger("prescribe.ui")
 
@@ -370,6 +372,7 @@ class ClinicApp:
         self.live = SessionsView(self)
         from .sensor_view import SensorPanel  # worn-sensor section
         self.sensor_panel = SensorPanel(self)
+        self.templates_view = TemplatesView(self.session)  # the clinic lead's section (loads when opened)
         title = w.HTML("<h1 style='font-size:22px;margin:4px 0'>prescribe: bone-loading program builder</h1>"
                        "<p>Decision support for clinicians. Work down the page: person, screening, program, "
                        "handout, save.</p>")
@@ -382,7 +385,7 @@ class ClinicApp:
         self.widget = w.VBox([w.HTML(STYLE), title, self.errors.widget, self.top_cautions, self.clinic_settings.widget,
                               self.person_section, self.screening_section, self.program_section,
                               self.handout_section, self.store_section, self.live.widget,
-                              self.sensor_panel.widget, self.template_review.widget])
+                              self.sensor_panel.widget, self.templates_view.widget, self.template_review.widget])
         self.widget.add_class("pr-app")
         self.warm_thread: threading.Thread | None = None
         self._warm_lock = threading.Lock()
@@ -527,8 +530,9 @@ class ClinicApp:
         self.dose.add_class("pr-dose")
         self.week_table = w.HTML("", layout=w.Layout(max_height="420px", overflow="auto"))
         self.week_table.add_class("pr-week-table")
+        self.clearance = ClearanceView(self)  # draft status and clearance (safety_view.py)
         self.program_section = self._section("3. Program", "pr-section-program", [
-            w.HBox([self.start_level, self.weeks]),
+            self.clearance.widget, w.HBox([self.start_level, self.weeks]),
             w.HBox(list(self.sessions.values())),
             swap.widget, self.exercise_view.widget, self.refusal, self.program_view.widget, self.dose,
             self.chart_box, w.HTML("<h3>Week by week</h3>"), self.week_table])
@@ -712,6 +716,7 @@ class ClinicApp:
             self._syncing = False
         self._refresh_swap_candidates()
         self.program_view.refresh()
+        self.clearance.refresh()
         figures = s.dose_figures()
         self.dose.value = ("<p>" + " &middot; ".join(f"{_esc(k.replace('_', ' '))}: <b>{_esc(v)}</b>"
                                                      for k, v in figures.items()) + "</p>") if figures else ""
@@ -747,7 +752,7 @@ class ClinicApp:
         self.load_select.options = [("- choose -", None)] + [(p, p) for p in people]
         if current in people:
             self.load_select.value = current
-        self.history.value = history_html(versions)
+        self.history.value = history_html(versions) + program_notice_html(self.session)
         try:
             self.template_review.refresh()
         except PrescribeError as exc:

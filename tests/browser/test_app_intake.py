@@ -41,13 +41,13 @@ def test_bad_input_shows_the_fields_message_and_saves_nothing(app_page, app_serv
     age_msg = page.locator(".pr-msg-age_years")
     age_msg.wait_for(state="visible")
     page.wait_for_function("document.querySelector('.pr-msg-age_years').innerText.length > 0")
-    assert "Age must be a whole number from 18 to 110 (years), not 12." in age_msg.inner_text()
-    assert "Height is required" in page.locator(".pr-msg-height_cm").inner_text()
+    assert "age_years must be a whole number from 18 to 110 (years), not 12." in age_msg.inner_text()
+    assert "height_cm is required" in page.locator(".pr-msg-height_cm").inner_text()
     assert page.locator(".pr-msg-body_mass_kg").inner_text().strip() == ""
     # Nothing screened, nothing saved.
     assert "Check the person's details" in page.locator(".pr-screening").inner_text()
     shot(page, "02-intake-bad-input", of=".pr-section-person")
     page.locator(".pr-store-save").click()
     page.wait_for_function("document.querySelector('.pr-error').innerText.length > 0")
-    assert "record" in page.locator(".pr-error").first.inner_text()  # the page's own (the live panel has another)
+    assert "record" in page.locator(".pr-error").first.inner_text()
     assert "DEMO-BAD-1" not in _stored_ids(app_server.db_path)

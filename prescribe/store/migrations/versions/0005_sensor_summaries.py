@@ -1,14 +1,14 @@
 """Summaries of worn-sensor recordings, stored with the person (never the raw signal).
 
 Revision ID: 0005
-Revises: 0003
+Revises: 0004
 """
 
 from alembic import op
 import sqlalchemy as sa
 
 revision = "0005"
-down_revision = "0003"
+down_revision = "0004"
 branch_labels = None
 depends_on = None
 

@@ -1,0 +1,165 @@
+"""The stored caseload as a batch CSV, and the what-if of a draft rule library or template.
+
+The what-if is checked against screening and planning each invented person one by one
+(the per-record evaluator, `prescribe.screening.screen`, and `build_plan`), not against
+its own vectorised path.
+"""
+
+from __future__ import annotations
+
+import json
+import shutil
+import tomllib
+
+import pandas as pd
+import pytest
+
+from prescribe.batch_io import read_batch_csv, records_to_frame
+from prescribe.caseload import PROGRAM_FIELDS, SCREENING_FIELDS, frame_from_dicts, whatif
+from prescribe.planner_rules import TEMPLATE_DIR
+from prescribe.rules import DEFAULT_RULES_DIR, load_rules
+from prescribe.screening import screen
+from prescribe.store import open_store
+from prescribe.template_library import add_document, resolve
+from prescribe.template_review import random_records, reference_records
+
+from conftest import run_cli
+
+
+@pytest.fixture
+def caseload(tmp_path):
+    """A store with the reference panel and 60 random invented people."""
+    path = tmp_path / "caseload.db"
+    people = reference_records() + random_records(60, seed=7)
+    with open_store(str(path)) as store:
+        for rec in people:
+            store.save_patient(rec, screen(rec), clinician="Demo Physio (invented)")
+    return path, people
+
+
+@pytest.fixture
+def draft_rules(tmp_path):
+    """The shipped rules with the osteopenia boundary moved from -2.5 to -2.0 (a draft to test)."""
+    folder = tmp_path / "rules"
+    shutil.copytree(DEFAULT_RULES_DIR, folder)
+    f = folder / "bone_density.toml"
+    text = f.read_text()
+    assert '{ feature = "lowest_t_score", op = ">", value = -2.5 }' in text
+    f.write_text(text.replace('{ feature = "lowest_t_score", op = ">", value = -2.5 }',
+                              '{ feature = "lowest_t_score", op = ">", value = -2.0 }', 1))
+    return folder
+
+
+def _fields(result) -> dict:
+    out = {k: (sorted(v) if isinstance(v, list) and k != "flags" else v) for k, v in result.items()}
+    out["flags"] = sorted(f["rule"] for f in result["flags"])
+    return out
+
+
+def test_frame_from_stored_dicts_equals_the_batch_frame(caseload):
+    _, people = caseload
+    expected = records_to_frame(people)
+    got = frame_from_dicts([r.model_dump(mode="json") for r in people])
+    pd.testing.assert_frame_equal(got, expected)
+
+
+def test_export_is_the_batch_csv_the_batch_screen_reads(caseload, tmp_path):
+    path, people = caseload
+    out = tmp_path / "caseload.csv"
+    done = run_cli("caseload", "export", "--out", str(out), "--db", str(path))
+    assert done.returncode == 0, done.stderr
+    assert json.loads(done.stdout)["people"] == len(people)
+    frame = read_batch_csv(out)
+    by_id = {r.patient_id: r for r in people}
+    assert sorted(frame["patient_id"]) == sorted(by_id)
+    back = records_to_frame(sorted(people, key=lambda r: r.patient_id))
+    pd.testing.assert_frame_equal(frame, back)
+    screened = run_cli("screen", "--batch", str(out), "--out", str(tmp_path / "r.csv"))
+    assert screened.returncode == 0, screened.stderr
+
+
+def test_whatif_rules_lists_exactly_the_people_whose_screening_changes_one_by_one(caseload, draft_rules):
+    path, people = caseload
+    rules = load_rules(draft_rules)
+    with open_store(str(path)) as store:
+        result = whatif(store, rules=rules, rules_label=str(draft_rules))
+    expected = {}
+    for rec in people:  # the per-record evaluator, person by person
+        before = _fields(screen(rec).model_dump(mode="json"))
+        after = _fields(screen(rec, rules).model_dump(mode="json"))
+        diff = {f"screening.{k}": (before[k], after[k]) for k in SCREENING_FIELDS if before[k] != after[k]}
+        if diff:
+            expected[rec.patient_id] = diff
+    got = {p["patient_id"]: {c["field"]: (c["before"], c["after"]) for c in p["changes"]} for p in result.changes}
+    assert got == expected
+    assert expected, "the draft should change someone in this caseload"
+    # The rule-set version differs, and is not a change by itself.
+    assert result.before_ruleset_version != result.after_ruleset_version
+    assert all(c["field"] != "screening.ruleset_version" for p in result.changes for c in p["changes"])
+    assert result.people_checked == len(people)
+
+
+def test_whatif_with_the_shipped_rules_changes_nobody(caseload):
+    path, _ = caseload
+    with open_store(str(path)) as store:
+        assert whatif(store, rules=load_rules()).changes == []
+
+
+def test_whatif_template_cached_equals_uncached_and_names_program_fields(caseload):
+    path, people = caseload
+    doc = tomllib.loads((TEMPLATE_DIR / "standard.toml").read_text())
+    doc["name"] = "riverside_standard"
+    doc["impact"]["impacts_target_level2"] = 40
+    with open_store(str(path)) as store:
+        add_document(store, doc, "Lead A")
+        tv = resolve("riverside_standard@1", store, purpose="read")
+        cached = whatif(store, template=tv, template_label=tv.ref)
+        plain = whatif(store, template=tv, template_label=tv.ref, use_cache=False)
+    assert cached.changes == plain.changes
+    fields = {c["field"] for p in cached.changes for c in p["changes"]}
+    assert fields and fields <= {f"program.{k}" for k in PROGRAM_FIELDS}
+    changed = {p["patient_id"] for p in cached.changes}
+    # A person whose cap is moderate impact (PANEL-03, osteoporosis) meets the lower target.
+    assert "PANEL-03" in changed
+
+
+def test_whatif_command_writes_the_changes_csv(caseload, draft_rules, tmp_path):
+    path, _ = caseload
+    out = tmp_path / "changes.csv"
+    done = run_cli("caseload", "whatif", "--rules", str(draft_rules), "--out", str(out), "--db", str(path))
+    assert done.returncode == 0, done.stderr
+    report = json.loads(done.stdout)
+    lines = out.read_text().splitlines()
+    assert lines[0] == "patient_id,field,before,after"
+    assert len(lines) - 1 == report["rows_written"] == sum(len(p["changes"]) for p in report["changes"])
+    assert "\r[" not in done.stderr  # no progress bar when stderr is not a terminal
+    bad = run_cli("caseload", "whatif", "--rules", str(tmp_path / "nowhere"), "--db", str(path))
+    assert bad.returncode == 2 and "--rules" in bad.stderr
+    bad = run_cli("caseload", "whatif", "--template", "nosuch@1", "--db", str(path))
+    assert bad.returncode == 2 and "--template" in bad.stderr
+
+
+def test_text_progress_draws_one_line_and_ends_it():
+    import io
+    from prescribe.caseload import text_progress
+    out = io.StringIO()
+    show = text_progress(out)
+    for done in (0, 50, 50, 100):
+        show(done, 100)
+    text = out.getvalue()
+    assert text.count("\r[") == 3  # the repeated 50% is not redrawn
+    assert "[##########..........]  50%  50 / 100 people" in text and text.endswith("100 / 100 people\n")
+
+
+def test_export_never_writes_a_cell_a_spreadsheet_would_run(tmp_path):
+    # OWASP CSV Injection guidance: a text cell starting with = + - @ is marked as text.
+    from prescribe.records import parse_record
+    path = tmp_path / "c.db"
+    rec = parse_record({"patient_id": "=HYPERLINK(1)", "age_years": 70, "sex": "female", "body_mass_kg": 60,
+                        "height_cm": 160})
+    with open_store(str(path)) as store:
+        store.save_patient(rec, screen(rec))
+    out = tmp_path / "c.csv"
+    assert run_cli("caseload", "export", "--out", str(out), "--db", str(path)).returncode == 0
+    assert out.read_text().splitlines()[1].startswith("'=HYPERLINK(1)")
+    assert read_batch_csv(out)["patient_id"].tolist() == ["=HYPERLINK(1)"]
