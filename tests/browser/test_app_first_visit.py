@@ -37,6 +37,16 @@ def _nbsp(text: str) -> str:
     return text.replace("\xa0", " ")
 
 
+def _choose_named(page, css_class: str, name: str) -> None:
+    """Pick the entry of an exercise list that starts with ``name`` (the lists show names with details)."""
+    page.wait_for_function(  # the list follows the other choice after a round trip
+        "([css, name]) => Array.from(document.querySelectorAll('.' + css + ' select option'))"
+        ".some(o => o.text.replace(/\u00a0/g, ' ').startsWith(name + ' ('))", arg=[css_class, name])
+    options = page.locator(f".{css_class} select option").all_inner_texts()
+    label = next(o for o in options if _nbsp(o).startswith(name + " ("))
+    page.locator(f".{css_class} select").select_option(label=label)
+
+
 def _internal_names() -> set[str]:
     """Every snake_case name the page must not show: the record's field names (nested ones
     too) and the catalogue's exercise ids."""
@@ -112,10 +122,23 @@ def test_new_person_to_a_reviewed_program_in_plain_words(app_page, app_server):
         ".startsWith(name + ' (level'); }", arg=new)
     shot(page, "44-swap-done", of=".pr-section-program")
 
-    # 4. Refusals in plain words: a start level above what the screening allows...
+    # 4. Refusals in plain words: a swap into an exercise the program already has (never merged)...
+    in_program = [_nbsp(o).split(" (level")[0]
+                  for o in page.locator(".pr-exercise-select select option").all_inner_texts()]
+    names = {e.name: e for e in default_catalogue().all()}
+    old, new = next((a, b) for a in in_program for b in in_program
+                    if a != b and names[a].category == names[b].category == "resistance")
+    _choose_named(page, "pr-exercise-select", old)
+    _choose_named(page, "pr-replacement-select", new)
+    page.locator(".pr-swap-button").click()
+    merged = _wait_text(page, ".pr-refusal", "already in the program")
+    assert merged.startswith(f"{new} is already in the program") and "_" not in merged
+    assert page.locator(".pr-swap-confirm").is_hidden()
+    shot(page, "45a-merge-refused", of=".pr-section-program")
+    # ...and a start level above what the screening allows.
     choose(page, "pr-option-start_level", "3 - high impact")
-    reason = _wait_text(page, ".pr-refusal", "above")
-    assert "_" not in reason and "start level 3" in reason.lower()
+    reason = _wait_text(page, ".pr-refusal", "above what the screening allows")
+    assert "_" not in reason and "Start level 3" in reason and "previous program is kept" in reason
     shot(page, "45-refused-in-words", of=".pr-section-program")
 
     # 5. The history keeps a note written with the save, with a readable date.

@@ -41,8 +41,8 @@ def test_bad_input_shows_the_fields_message_and_saves_nothing(app_page, app_serv
     age_msg = page.locator(".pr-msg-age_years")
     age_msg.wait_for(state="visible")
     page.wait_for_function("document.querySelector('.pr-msg-age_years').innerText.length > 0")
-    assert "age_years must be a whole number from 18 to 110 (years), not 12." in age_msg.inner_text()
-    assert "height_cm is required" in page.locator(".pr-msg-height_cm").inner_text()
+    assert "Age must be a whole number from 18 to 110 (years), not 12." in age_msg.inner_text()
+    assert "Height is required" in page.locator(".pr-msg-height_cm").inner_text()
     assert page.locator(".pr-msg-body_mass_kg").inner_text().strip() == ""
     # Nothing screened, nothing saved.
     assert "Check the person's details" in page.locator(".pr-screening").inner_text()

@@ -32,6 +32,9 @@ def _name(exercise_id: str) -> str:
 
 def _choose_named(page, css_class: str, exercise_id: str) -> None:
     """Pick the entry of an exercise list that names ``exercise_id`` (the lists show names, never ids)."""
+    page.wait_for_function(  # the list follows the other choice after a round trip
+        "([css, name]) => Array.from(document.querySelectorAll('.' + css + ' select option'))"
+        ".some(o => o.text.replace(/\u00a0/g, ' ').startsWith(name + ' ('))", arg=[css_class, _name(exercise_id)])
     options = page.locator(f".{css_class} select option").all_inner_texts()
     label = next(o for o in options if o.replace("\xa0", " ").startswith(_name(exercise_id) + " ("))
     page.locator(f".{css_class} select").select_option(label=label)
