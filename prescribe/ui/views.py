@@ -334,7 +334,7 @@ def screening_html(screening) -> str:
     ]
     rows = "".join(f'<tr class="pr-glance-{i}"><th>{_esc(k)}</th><td>{_esc(v)}</td></tr>' for i, (k, v) in enumerate(glance))
     flags = "".join(
-        f'<div class="pr-flag pr-flag-{_esc(f.severity)}" data-rule="{_esc(f.rule)}"><b>{_esc(f.title or f.rule)}</b> '
+        f'<div class="pr-flag pr-flag-{_esc(f.severity)}" data-rule="{_esc(f.rule)}"><b>{_esc(f.title or plain(f.rule))}</b> '
         f'<small>[{_esc(SEVERITIES.get(f.severity, f.severity))}]</small><br>{_esc(f.message)}'
         f'<br><small>Source: {_esc(f.source)}</small></div>' for f in s.flags) or "<p>No rule fired.</p>"
     version = f"<p><small>Rule set {_esc(s.ruleset_version)}</small></p>" if s.ruleset_version else ""
