@@ -270,8 +270,10 @@ def test_app_refused_swap_is_shown_in_the_refusal_box(tmp_db):
     before = app.session.plan
     app.swap_button.click()
     shown = html.unescape(app.refusal.value)
-    assert "pr-refusal-box" in shown and "Refused:" in shown and "back_squat" in shown
-    assert app.session.plan is before
+    # The exercises are named as the clinician knows them, never by their ids.
+    assert "pr-refusal-box" in shown and "Refused:" in shown and "Back squat" in shown
+    assert "back_squat" not in shown
+    assert app.session.plan is before and app.program_view.swap.pending is None
 
 
 # --------------------------------------------------------------------------------------
