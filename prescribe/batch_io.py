@@ -366,7 +366,7 @@ def iter_batch_csv(path: str | Path, chunk_rows: int = CHUNK_ROWS,
     with text:
         try:
             while True:
-                table = [row for row in islice(reader, chunk_rows) if any(cell.strip() for cell in row)]
+                table = [row for row in islice(reader, chunk_rows) if any(map(str.strip, row))]
                 if not table and header is not None:
                     break
                 if header is None:
@@ -504,23 +504,51 @@ def _format_column(values: np.ndarray) -> np.ndarray:
     return np.array([spreadsheet_text(v) if isinstance(v, str) else _fmt(v) for v in values.tolist()], dtype=object)
 
 
-def _text_frame(df: pd.DataFrame) -> pd.DataFrame:
-    """The frame as the text of its cells: booleans true/false, absent empty, formulas marked."""
-    columns = {}
-    for i in range(df.shape[1]):
-        col = df.iloc[:, i]
-        extension = isinstance(col.dtype, pd.api.extensions.ExtensionDtype)
-        columns[i] = _format_column(col.to_numpy(dtype=object) if extension else col.to_numpy())
-    return pd.DataFrame(columns, index=pd.RangeIndex(len(df)), dtype=object)
+#: Characters that make the csv module quote a cell (delimiter, quote, line ends).
+_QUOTE_TRIGGERS = re.compile(r'[,"\r\n]')
+
+
+def _csv_field(text: str) -> str:
+    """A cell as the csv module writes it (minimal quoting): as it is unless it holds a
+    delimiter, a quote or a line end, in which case the csv module itself quotes it."""
+    if not _QUOTE_TRIGGERS.search(text):
+        return text
+    buf = io.StringIO()
+    csv.writer(buf, lineterminator="\n").writerow([text])
+    return buf.getvalue()[:-1]
+
+
+def _column_fields(values: np.ndarray) -> np.ndarray:
+    """Each cell of a column as written in the CSV, formatted and quoted once per distinct value."""
+    if values.dtype.kind == "O" and pd.api.types.infer_dtype(values, skipna=True) in ("string", "empty"):
+        codes, uniques = pd.factorize(values)            # None and NaN: code -1, an empty cell
+        return np.array([_csv_field(spreadsheet_text(u)) for u in uniques.tolist()] + [""], dtype=object)[codes]
+    cells = _format_column(values)
+    if values.dtype.kind in "biuf":                      # numbers, true and false: never quoted
+        return cells
+    return np.array([_csv_field(c) for c in cells.tolist()], dtype=object)
 
 
 def _csv_bytes(df: pd.DataFrame, header: bool) -> bytes:
-    buf = io.StringIO()
+    """The CSV text of a frame, built a column at a time: each column's cells are formatted and
+    quoted once per distinct value, then the columns are joined with whole-array string
+    additions (a per-cell CSV writer spends most of its time scanning the long, repeated
+    cautions cells)."""
+    out = ""
     if header:
-        csv.writer(buf, lineterminator="\n").writerow(list(df.columns))
-    if len(df):
-        _text_frame(df).to_csv(buf, header=False, index=False, lineterminator="\n")
-    return buf.getvalue().encode("utf-8")
+        names = [_csv_field(str(c)) for c in df.columns]
+        out = (",".join(names) if names != [""] else '""') + "\n"
+    if len(df) and df.shape[1]:
+        line = None
+        for i in range(df.shape[1]):
+            col = df.iloc[:, i]
+            extension = isinstance(col.dtype, pd.api.extensions.ExtensionDtype)
+            fields = _column_fields(col.to_numpy(dtype=object) if extension else col.to_numpy())
+            line = fields if line is None else line + "," + fields
+        if df.shape[1] == 1:
+            line[line == ""] = '""'                      # the csv module's one empty field
+        out += "\n".join(line.tolist()) + "\n"
+    return out.encode("utf-8")
 
 
 def frame_to_csv_text(df: pd.DataFrame) -> str:

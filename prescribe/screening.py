@@ -27,6 +27,7 @@ from __future__ import annotations
 import csv
 from dataclasses import dataclass
 from functools import lru_cache
+from itertools import compress
 from pathlib import Path
 from typing import Any, Callable
 
@@ -502,6 +503,34 @@ class Engine:
             out[:, i] = evaluate_vector(r.when, feats)
         return out
 
+    def _combine(self, patterns: np.ndarray) -> dict[str, list | np.ndarray]:
+        """The combined effects of each distinct fired-rule pattern (patterns x rules, bool), by
+        the rules of :meth:`outcome` (the property tests keep the two identical): numbers and
+        yes/no effects as reductions over the rules, texts joined in rule order."""
+        rules = self.rules
+        none = np.zeros(len(rules), dtype=bool)
+        caps = np.array([3 if r.effect.max_impact_level is None else r.effect.max_impact_level for r in rules])
+        ranks = np.array([CATEGORY_RANK[r.effect.category] if r.effect.category else -1 for r in rules])
+        categories = {rank: name for name, rank in CATEGORY_RANK.items()}
+        marks = patterns.reshape(len(patterns), len(rules))
+
+        def any_of(flag: str) -> np.ndarray:
+            says = np.array([bool(getattr(r.effect, flag)) for r in rules], dtype=bool) if rules else none
+            return (marks & says).any(axis=1)
+
+        fired = [list(compress(rules, row)) for row in marks.tolist()]
+        rank = np.where(marks, ranks, -1).max(axis=1, initial=-1)
+        return {
+            "category": [categories.get(k) for k in rank.tolist()],
+            "max_impact_level": np.where(marks, caps, 3).min(axis=1, initial=3),
+            "falls_risk": any_of("falls_risk"), "refer": any_of("refer"),
+            "balance_first": any_of("balance_first"), "supervision": any_of("supervision"),
+            "avoid": [LIST_SEP.join(sorted({a for r in f for a in r.effect.avoid})) for f in fired],
+            "flags": [LIST_SEP.join(r.id for r in f) for f in fired],
+            "cautions": [CAUTION_SEP.join(with_standard([r.effect.caution for r in f if r.effect.caution]))
+                         for f in fired],
+        }
+
     def fired_matrix(self, df: pd.DataFrame) -> np.ndarray:
         """Boolean (rows x rules) matrix of fired rules, rules in ``self.rules`` order."""
         return self._fired(frame_features(df), len(df))
@@ -511,36 +540,34 @@ class Engine:
 
         The conditions are evaluated on whole feature arrays; the fired rules' effects are then
         combined once per distinct pattern of fired rules (a caseload has far fewer patterns than
-        people) by :meth:`outcome`, the same code the per-record evaluator uses, and spread back
-        to the rows.
+        people, :meth:`_combine`) and spread back to the rows.
         """
         n = len(df)
         feats, tscores = _frame_features(df, fractures)
         rows, inverse = self._fired_patterns(feats, n)
         lowest, site = _lowest_site(tscores, feats["lowest_t_score"])
-        bits = [1 << i for i in range(len(self.rules))]
-        outcomes = [self.outcome(sum(b for b, on in zip(bits, row) if on)) for row in rows.tolist()]
+        effect = self._combine(rows)
 
-        def per_pattern(values: list, dtype) -> np.ndarray:
-            return np.array(values, dtype=dtype).reshape(len(outcomes))[inverse]
+        def per_pattern(values, dtype) -> np.ndarray:
+            return np.asarray(values, dtype=dtype).reshape(len(rows))[inverse]
 
-        category = per_pattern([o.category for o in outcomes], object)
+        category = per_pattern(effect["category"], object)
         none = np.equal(category, None)
         category[none] = np.where(np.isnan(lowest[none]), "unknown", "normal")
         columns = {
             "patient_id": _text_column(df, "patient_id", n).copy(),
             "bone_density_category": category,
-            "falls_risk": per_pattern([o.falls_risk for o in outcomes], bool),
-            "max_impact_level": per_pattern([o.max_impact_level for o in outcomes], np.int64),
-            "avoid": per_pattern([LIST_SEP.join(o.avoid) for o in outcomes], object),
-            "refer": per_pattern([o.refer for o in outcomes], bool),
-            "balance_first": per_pattern([o.balance_first for o in outcomes], bool),
-            "supervision": per_pattern([o.supervision for o in outcomes], bool),
-            "flags": per_pattern([LIST_SEP.join(o.rules) for o in outcomes], object),
+            "falls_risk": per_pattern(effect["falls_risk"], bool),
+            "max_impact_level": per_pattern(effect["max_impact_level"], np.int64),
+            "avoid": per_pattern(effect["avoid"], object),
+            "refer": per_pattern(effect["refer"], bool),
+            "balance_first": per_pattern(effect["balance_first"], bool),
+            "supervision": per_pattern(effect["supervision"], bool),
+            "flags": per_pattern(effect["flags"], object),
             "lowest_t_score": lowest,
             "lowest_t_score_site": site,
             "ruleset_version": _constant_text(n, self.version),
-            "cautions": per_pattern([CAUTION_SEP.join(o.cautions) for o in outcomes], object),
+            "cautions": per_pattern(effect["cautions"], object),
         }
         # Text columns stay object arrays (no per-cell type inference on 100k rows).
         # copy=False: each column keeps its own array (no consolidation copy into 2-D blocks).
