@@ -335,7 +335,7 @@ def _decoding_error(path, exc: UnicodeDecodeError) -> InputError:
     return InputError.single("batch file", str(path), f"a readable UTF-8 CSV file ({exc.__class__.__name__})")
 
 
-def iter_batch_csv(path: str | Path, chunk_rows: int = CHUNK_ROWS,
+def iter_batch_csv(path: str | Path, chunk_rows: int | None = None,
                    progress: Callable[[int, int], None] | None = None) -> Iterator[Caseload]:
     """Read and validate a caseload CSV a chunk of rows at a time (bounded memory).
 
@@ -345,6 +345,7 @@ def iter_batch_csv(path: str | Path, chunk_rows: int = CHUNK_ROWS,
     :func:`read_batch_csv`.  A caller that writes results must therefore write them so that
     nothing is kept unless the whole iteration ends without an error (:class:`ResultsWriter`).
 
+    ``chunk_rows`` rows are read at a time (:data:`CHUNK_ROWS` when not given);
     ``progress(bytes_read, file_size)`` is called after each chunk.
 
     Raises
@@ -354,6 +355,7 @@ def iter_batch_csv(path: str | Path, chunk_rows: int = CHUNK_ROWS,
         required or unknown column, or any bad row (field ``row N (patient_id X): column``).
     """
     p = Path(path)
+    chunk_rows = chunk_rows or CHUNK_ROWS
     check_file_size(p, "batch file", CSV_MAX_BYTES)
     text, raw = _open_text(p)
     size = os.fstat(raw.fileno()).st_size
@@ -366,12 +368,14 @@ def iter_batch_csv(path: str | Path, chunk_rows: int = CHUNK_ROWS,
     with text:
         try:
             while True:
-                table = [row for row in islice(reader, chunk_rows) if any(map(str.strip, row))]
-                if not table and header is not None:
+                read = list(islice(reader, chunk_rows))
+                if not read:
                     break
+                table = [row for row in read if any(map(str.strip, row))]      # blank rows are skipped
+                del read
                 if header is None:
                     if not table:
-                        break
+                        continue
                     header = [h.strip() for h in table.pop(0)]
                     try:
                         _check_columns(header, str(path))
