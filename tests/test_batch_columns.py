@@ -272,3 +272,40 @@ def test_a_structural_problem_late_in_the_file_wins_over_bad_rows_as_before(tmp_
         read_batch_csv(path)
     assert [p.field for p in caught.value.problems] == ["row 7 (patient_id NTC-9)"]
     assert "17 cells, one per header column" in str(caught.value)
+
+
+# --- the progress bar: on a terminal only ---------------------------------------------------------
+
+def test_progress_bar_goes_to_a_terminal_and_never_to_a_pipe(tmp_path, cli):
+    import os
+    import pty
+    import subprocess
+    import sys
+    from pathlib import Path
+
+    path = _write(tmp_path, _caseload_rows(30))
+    piped = cli("screen", "--batch", str(path), "--out", str(tmp_path / "piped.csv"))
+    assert piped.returncode == 0 and piped.stderr == ""
+    exe = Path(sys.executable).with_name("prescribe")
+    cmd = [str(exe)] if exe.exists() else [sys.executable, "-m", "prescribe.cli"]
+    master, slave = pty.openpty()
+    try:
+        proc = subprocess.run([*cmd, "screen", "--batch", str(path), "--out", str(tmp_path / "tty.csv")],
+                              stdout=subprocess.PIPE, stderr=slave, timeout=300)
+        os.close(slave)
+        shown = b""
+        while True:
+            try:
+                data = os.read(master, 4096)
+            except OSError:
+                break
+            if not data:
+                break
+            shown += data
+    finally:
+        os.close(master)
+    assert proc.returncode == 0
+    text = shown.decode("utf-8")
+    assert "screening [" in text and "] 30 people" in text, text
+    assert json.loads(proc.stdout)["patients"] == 30            # stdout stays the JSON summary alone
+    assert (tmp_path / "tty.csv").read_bytes() == (tmp_path / "piped.csv").read_bytes()
