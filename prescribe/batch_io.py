@@ -9,11 +9,13 @@ One row per person; the columns are the record's fields flattened (see
   with low_trauma ``y`` or ``n``, e.g. ``vertebra:14:y;wrist:60:n`` (empty = none);
 - ``conditions`` is condition codes joined by ``;``.
 
-Every row is validated with the patient record's own rules
-(:func:`prescribe.records.parse_record`); a bad row raises
+Files are read a chunk of rows at a time (:func:`iter_batch_csv`) and validated a column at a
+time with the patient record's own rules (:mod:`prescribe.batch_columns`); a bad row raises
 :class:`~prescribe.errors.InputError` whose field names the row and the column,
 e.g. ``row 7 (patient_id P-007): age_years``.  Rows are numbered from 1 for the
-first row under the header.
+first row under the header.  :func:`rows_to_records` validates rows one record at a time
+(the record model itself) and is the reference the column-wise reader is tested against.
+Results are written a column at a time (:class:`ResultsWriter`).
 """
 
 from __future__ import annotations

@@ -198,9 +198,8 @@ def _fracture_features(df: pd.DataFrame, n: int, fractures: FractureColumns | No
     if fractures is None:
         fractures, _, reasons = fracture_columns(_text_column(df, "fractures", n, raw=True))
         if reasons:
-            pos = min(reasons)
-            cell = str(df["fractures"].iloc[pos]).strip()
-            raise InputError.single("fractures", cell, f"{FRACTURES_ALLOWED} ({reasons[pos]})")
+            pos = min(reasons)                  # the first bad cell, as it is in the frame
+            raise InputError.single("fractures", df["fractures"].iloc[pos], f"{FRACTURES_ALLOWED} ({reasons[pos]})")
     count = fractures.low_trauma_count
     return {"low_trauma_fracture_count": count, "low_trauma_fracture": count > 0,
             "low_trauma_vertebral_fracture": fractures.low_trauma_vertebral,
