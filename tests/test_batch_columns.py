@@ -309,3 +309,15 @@ def test_progress_bar_goes_to_a_terminal_and_never_to_a_pipe(tmp_path, cli):
     assert "screening [" in text and "] 30 people" in text, text
     assert json.loads(proc.stdout)["patients"] == 30            # stdout stays the JSON summary alone
     assert (tmp_path / "tty.csv").read_bytes() == (tmp_path / "piped.csv").read_bytes()
+
+
+def test_a_bad_output_path_is_reported_after_the_caseloads_own_problems_as_before(tmp_path):
+    rows = _caseload_rows(3)
+    good = _write(tmp_path, rows, "good.csv")
+    rows[1]["age_years"] = "12"
+    bad = _write(tmp_path, rows, "bad.csv")
+    nowhere = str(tmp_path / "missing" / "out.csv")
+    code, _, stderr = _run(["screen", "--batch", str(bad), "--out", nowhere])
+    assert code == 2 and "row 2 (patient_id NTC-00001): age_years" in stderr and "existing folder" not in stderr
+    code, _, stderr = _run(["screen", "--batch", str(good), "--out", nowhere])
+    assert code == 2 and "output file" in stderr and "a path in an existing folder" in stderr

@@ -5,6 +5,7 @@ from __future__ import annotations
 import os
 import sys
 from collections import Counter
+from contextlib import contextmanager
 from pathlib import Path
 
 from ..cautions import with_standard
@@ -126,10 +127,11 @@ def _run_batch(in_path: str, out_path: str, rules=None, table: bool = False) -> 
     try:
         out = ResultsWriter(out_path, RESULT_COLUMNS)
     except InputError:
-        for _ in chunks:                             # the caseload's own problems are reported first
-            pass
+        with _finished_line(bar):
+            for _ in chunks:                         # the caseload's own problems are reported first
+                pass
         raise
-    with out:
+    with out, _finished_line(bar):
         for chunk in chunks:
             results = engine.screen_frame(chunk.frame, chunk.fractures)
             out.write(results)                       # to the temporary file: whole file or nothing
@@ -174,13 +176,28 @@ class _ProgressBar:
 
     def __init__(self, stream):
         self.stream = stream
+        self.open = False                            # a bar is drawn and its line not ended
 
     def update(self, done_bytes: int, total_bytes: int) -> None:
         share = min(1.0, done_bytes / total_bytes) if total_bytes else 1.0
         filled = int(share * self.WIDTH)
         self.stream.write(f"\rscreening [{'#' * filled}{'.' * (self.WIDTH - filled)}] {share:4.0%}")
         self.stream.flush()
+        self.open = True
 
     def done(self, rows: int) -> None:
         self.stream.write(f"\rscreening [{'#' * self.WIDTH}] {rows:,} people\n")
         self.stream.flush()
+        self.open = False
+
+
+@contextmanager
+def _finished_line(bar: "_ProgressBar | None"):
+    """On an error, end the progress bar's line so that the message starts on a line of its own."""
+    try:
+        yield
+    except BaseException:
+        if bar is not None and bar.open:
+            bar.stream.write("\n")
+            bar.open = False
+        raise
