@@ -505,29 +505,44 @@ class Engine:
     def _combine(self, patterns: np.ndarray) -> dict[str, list | np.ndarray]:
         """The combined effects of each distinct fired-rule pattern (patterns x rules, bool), by
         the rules of :meth:`outcome` (the property tests keep the two identical): numbers and
-        yes/no effects as reductions over the rules, texts joined in rule order."""
+        yes/no effects as reductions over the rules, texts joined in rule (or code) order."""
         rules = self.rules
-        none = np.zeros(len(rules), dtype=bool)
+        marks = patterns.reshape(len(patterns), len(rules))
+
+        def says(values) -> np.ndarray:
+            return np.array(values, dtype=bool).reshape(len(rules))
+
+        def any_of(flag: str) -> np.ndarray:
+            return (marks & says([getattr(r.effect, flag) for r in rules])).any(axis=1)
+
+        def joined(texts: list[str], chosen: np.ndarray, sep: str) -> list[str]:
+            return [sep.join(compress(texts, row)) for row in chosen.tolist()]
+
         caps = np.array([3 if r.effect.max_impact_level is None else r.effect.max_impact_level for r in rules])
         ranks = np.array([CATEGORY_RANK[r.effect.category] if r.effect.category else -1 for r in rules])
         categories = {rank: name for name, rank in CATEGORY_RANK.items()}
-        marks = patterns.reshape(len(patterns), len(rules))
-
-        def any_of(flag: str) -> np.ndarray:
-            says = np.array([bool(getattr(r.effect, flag)) for r in rules], dtype=bool) if rules else none
-            return (marks & says).any(axis=1)
-
-        fired = [list(compress(rules, row)) for row in marks.tolist()]
         rank = np.where(marks, ranks, -1).max(axis=1, initial=-1)
+        codes = sorted({a for r in rules for a in r.effect.avoid})
+        avoids = np.array([[a in r.effect.avoid for a in codes] for r in rules], dtype=bool).reshape(len(rules),
+                                                                                                   len(codes))
+        avoided = (marks.astype(np.int64) @ avoids.astype(np.int64)) > 0
+        with_caution = [i for i, r in enumerate(rules) if r.effect.caution]
+        texts = [rules[i].effect.caution for i in with_caution]
+        if len(set(texts)) == len(texts) and not set(texts) & set(with_standard()):
+            head = CAUTION_SEP.join(with_standard())    # distinct texts: no duplicate to drop
+            cautions = [head + CAUTION_SEP + extra if extra else head
+                        for extra in joined(texts, marks[:, with_caution], CAUTION_SEP)]
+        else:
+            cautions = [CAUTION_SEP.join(with_standard(list(compress(texts, row))))
+                        for row in marks[:, with_caution].tolist()]
         return {
             "category": [categories.get(k) for k in rank.tolist()],
             "max_impact_level": np.where(marks, caps, 3).min(axis=1, initial=3),
             "falls_risk": any_of("falls_risk"), "refer": any_of("refer"),
             "balance_first": any_of("balance_first"), "supervision": any_of("supervision"),
-            "avoid": [LIST_SEP.join(sorted({a for r in f for a in r.effect.avoid})) for f in fired],
-            "flags": [LIST_SEP.join(r.id for r in f) for f in fired],
-            "cautions": [CAUTION_SEP.join(with_standard([r.effect.caution for r in f if r.effect.caution]))
-                         for f in fired],
+            "avoid": joined(codes, avoided, LIST_SEP),
+            "flags": joined([r.id for r in rules], marks, LIST_SEP),
+            "cautions": cautions,
         }
 
     def fired_matrix(self, df: pd.DataFrame) -> np.ndarray:
