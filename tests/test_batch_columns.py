@@ -321,3 +321,48 @@ def test_a_bad_output_path_is_reported_after_the_caseloads_own_problems_as_befor
     assert code == 2 and "row 2 (patient_id NTC-00001): age_years" in stderr and "existing folder" not in stderr
     code, _, stderr = _run(["screen", "--batch", str(good), "--out", nowhere])
     assert code == 2 and "output file" in stderr and "a path in an existing folder" in stderr
+
+
+# --- the column-wise writer writes what the csv module writes -----------------------------------
+
+_CELL_TEXT = st.text(alphabet=st.sampled_from(list('ab ,"\n\r;=+-@\t\'|1.')), max_size=8)
+
+
+@SETTINGS
+@given(st.lists(st.tuples(_CELL_TEXT, st.one_of(st.none(), st.just(float("nan")), st.floats(-1e20, 1e20)),
+                          st.booleans(), st.integers(-5, 5), st.one_of(st.none(), _CELL_TEXT)),
+                max_size=12), st.booleans())
+def test_results_text_is_what_the_csv_module_writes_cell_by_cell(rows, one_column):
+    # The reference: the csv module's writer, fed each cell formatted as docs/rules.md says
+    # (text guarded against formulas, true/false, whole numbers without '.0', absent empty).
+    import math
+
+    import pandas as pd
+
+    from prescribe.batch_io import frame_to_csv_text, spreadsheet_text
+
+    frame = pd.DataFrame({"text": pd.Series([r[0] for r in rows], dtype=object),
+                          "number": pd.Series([r[1] for r in rows], dtype="float64"),
+                          "yes": pd.Series([r[2] for r in rows], dtype=bool),
+                          "count": pd.Series([r[3] for r in rows], dtype="int64"),
+                          "maybe": pd.Series([r[4] for r in rows], dtype=object)})
+    if one_column:
+        frame = frame[["text"]]
+
+    def cell(v):
+        if v is None or (isinstance(v, float) and math.isnan(v)):
+            return ""
+        if isinstance(v, bool):
+            return "true" if v else "false"
+        if isinstance(v, float):
+            return str(int(v)) if v.is_integer() and abs(v) < 1e15 else repr(v)
+        if isinstance(v, int):
+            return str(v)
+        return spreadsheet_text(v)
+
+    buf = io.StringIO()
+    writer = csv.writer(buf, lineterminator="\n")
+    writer.writerow(list(frame.columns))
+    for values in frame.astype(object).itertuples(index=False):
+        writer.writerow([cell(v) for v in values])
+    assert frame_to_csv_text(frame) == buf.getvalue()
