@@ -11,7 +11,10 @@ timeouts sized to the machine: prescribe.ui.server) and drives Debian's chromium
 3. churn: thirty page opens and closes in a row; afterwards no more kernels alive than the
    pool (no page is open);
 4. cost: memory (resident) of each idle page's kernel, and CPU seconds per extra page
-   (the kernels' and the server's CPU over the burst, divided by its pages).
+   (the kernels' and the server's CPU over the burst, divided by its pages);
+5. baseline: a bare one-widget Voila page served with the same command, opened alone and ten
+   at once in the same run, so the burst's cost of the app itself shows apart from what any
+   Voila page costs on this machine.
 
 Run: ``.venv/bin/python benchmarks/bench_app_load.py [--burst 10] [--churn 30]``.  Exits 0
 either way (a benchmark, not a test); prints the figures and whether each goal was met.
@@ -114,6 +117,48 @@ async def open_page(context, url: str) -> tuple[float, bool, object]:
     return float("inf"), busy, page
 
 
+BARE_NOTEBOOK = {
+    "cells": [{"cell_type": "code", "execution_count": None, "id": "bare", "metadata": {}, "outputs": [],
+               "source": "import ipywidgets as w\nb = w.Button(description='Go')\nb.add_class('bench-button')\nb"}],
+    "metadata": {"kernelspec": {"display_name": "Python 3", "language": "python", "name": "python3"}},
+    "nbformat": 4, "nbformat_minor": 5}
+
+
+async def bare_baseline(burst: int) -> tuple[float, list[float]]:
+    """A bare one-widget page served alike: one page alone (median of 3), then ``burst`` at once."""
+    global READY
+    import json
+    with tempfile.TemporaryDirectory(prefix="bench-bare-") as tmp:
+        notebook = Path(tmp) / "bare.ipynb"
+        notebook.write_text(json.dumps(BARE_NOTEBOOK))
+        port = free_port()
+        proc = subprocess.Popen(voila_command(port, notebook), env=voila_environment(str(Path(tmp) / "b.db")),
+                                stdout=subprocess.DEVNULL, stderr=subprocess.STDOUT, start_new_session=True)
+        ready, READY = READY, ".bench-button"
+        try:
+            await asyncio.sleep(15)
+            url = f"http://127.0.0.1:{port}/"
+            async with async_playwright() as p:
+                browser = await p.chromium.launch(executable_path=CHROMIUM, args=ARGS, headless=True)
+                context = await browser.new_context()
+                single = []
+                for _ in range(3):
+                    t, _, page = await open_page(context, url)
+                    single.append(t)
+                    await page.close(run_before_unload=True)
+                    await asyncio.sleep(8)
+                results = await asyncio.gather(*(open_page(context, url) for _ in range(burst)))
+                await browser.close()
+        finally:
+            READY = ready
+            proc.terminate()
+            try:
+                proc.wait(timeout=30)
+            except subprocess.TimeoutExpired:
+                proc.kill()
+    return statistics.median(single), sorted(t for t, _, _ in results)
+
+
 async def run(args) -> dict:
     limits = server_limits()
     with tempfile.TemporaryDirectory(prefix="bench-load-") as tmp:
@@ -160,6 +205,7 @@ async def run(args) -> dict:
                 proc.kill()
     times = [t for t, _, _ in results]
     med_single = statistics.median(single)
+    bare_single, bare_burst = await bare_baseline(args.burst)
     return {
         "machine": {"cpus": limits.cpus, "memory_mb": limits.memory_mb},
         "limits": {"max_kernels": limits.max_kernels, "pool": limits.pool_size},
@@ -170,6 +216,9 @@ async def run(args) -> dict:
         "churn": args.churn, "kernels_alive_after_churn": alive_after_churn,
         "idle_page_mb": idle_mb, "cpu_s_per_extra_page": (cpu1 - cpu0) / args.burst,
         "burst_new_kernels": len(burst_kernels), "outside_requests": len(outside),
+        "bare_single_s": bare_single, "bare_burst_s": bare_burst,
+        "bare_burst_ratio": max(bare_burst) / bare_single,
+        "app_vs_bare_burst": max(times) / max(bare_burst),
     }
 
 
@@ -191,6 +240,9 @@ def main(argv: list[str] | None = None) -> int:
           f"blank {f['burst_blank']}, busy notice seen on {f['burst_busy_seen']}; slowest "
           f"{f['burst_slowest_ratio']:.1f}x the single page (goal <= {GOAL_BURST:g}x, none blank): "
           f"{'MET' if ok else 'NOT MET'}")
+    print(f"baseline, a bare one-widget Voila page served alike: alone {f['bare_single_s']:.2f} s; "
+          f"{f['burst']} at once, slowest {max(f['bare_burst_s']):.1f} s = {f['bare_burst_ratio']:.1f}x alone; "
+          f"the app's slowest burst page is {f['app_vs_bare_burst']:.1f}x the bare burst's slowest")
     print(f"{f['churn']} opens and closes in a row: {f['kernels_alive_after_churn']} kernels alive after "
           f"(pool {f['limits']['pool']}, no page open): "
           f"{'MET' if f['kernels_alive_after_churn'] <= f['limits']['pool'] else 'NOT MET'}")

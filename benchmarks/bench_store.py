@@ -25,7 +25,7 @@ from pathlib import Path
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "tests"))
 
-from prescribe.store import api, open_store  # noqa: E402
+from prescribe.store import api, engine, open_store  # noqa: E402
 from test_store_support import plan, record, screening  # noqa: E402
 
 
@@ -63,7 +63,7 @@ def _open_with_alembic_check(path: str) -> None:
 
 
 def _saves_ms(folder: Path, synchronous: str, n: int = 40) -> float:
-    api.SQLITE_SYNCHRONOUS = synchronous
+    engine.SQLITE_SYNCHRONOUS = synchronous
     try:
         with open_store(str(folder / f"sync-{synchronous}.db")) as store:
             store.save_patient(record(), screening())
@@ -75,7 +75,7 @@ def _saves_ms(folder: Path, synchronous: str, n: int = 40) -> float:
 
             return _median_ms(save, n)
     finally:
-        api.SQLITE_SYNCHRONOUS = "FULL"
+        engine.SQLITE_SYNCHRONOUS = "FULL"
 
 
 def _operations_ms(url: str, n: int = 30) -> dict[str, float]:

@@ -9,11 +9,13 @@ One row per person; the columns are the record's fields flattened (see
   with low_trauma ``y`` or ``n``, e.g. ``vertebra:14:y;wrist:60:n`` (empty = none);
 - ``conditions`` is condition codes joined by ``;``.
 
-Every row is validated with the patient record's own rules
-(:func:`prescribe.records.parse_record`); a bad row raises
+Files are read a chunk of rows at a time (:func:`iter_batch_csv`) and validated a column at a
+time with the patient record's own rules (:mod:`prescribe.batch_columns`); a bad row raises
 :class:`~prescribe.errors.InputError` whose field names the row and the column,
 e.g. ``row 7 (patient_id P-007): age_years``.  Rows are numbered from 1 for the
-first row under the header.
+first row under the header.  :func:`rows_to_records` validates rows one record at a time
+(the record model itself) and is the reference the column-wise reader is tested against.
+Results are written a column at a time (:class:`ResultsWriter`).
 """
 
 from __future__ import annotations
@@ -21,99 +23,34 @@ from __future__ import annotations
 import csv
 import io
 import math
+import os
 import re
+import sys
+from dataclasses import dataclass
+from itertools import islice
 from pathlib import Path
-from typing import Any, Iterable, Iterator
+from typing import Any, BinaryIO, Callable, Iterable, Iterator
 
 import numpy as np
 import pandas as pd
 
+from .batch_columns import (FLOAT_COLUMNS as _FLOAT_COLUMNS, FRACTURES_ALLOWED, INT_COLUMNS as _INT_COLUMNS,
+                            RECORD_COLUMNS, REQUIRED_COLUMNS, TEXT_COLUMNS as _TEXT_COLUMNS, FractureColumns,
+                            format_cell as _fmt, format_fractures, fracture_columns, parse_fractures,
+                            validate_columns)
 from .errors import FieldProblem, InputError
-from .fileio import CSV_MAX_BYTES, check_file_size, write_atomically
-from .records import CONDITIONS, FRACTURE_SITES, T_SCORE_SITES, PatientRecord, parse_record
+from .fileio import CSV_MAX_BYTES, check_file_size, open_atomically, write_atomically
+from .records import CONDITIONS, T_SCORE_SITES, PatientRecord, parse_record
 
-#: The batch file's columns, in the order files are written.
-RECORD_COLUMNS: tuple[str, ...] = (
-    "patient_id", "age_years", "sex", "body_mass_kg", "height_cm",
-    "t_score_lumbar_spine", "t_score_femoral_neck", "t_score_total_hip",
-    "fractures", "falls_past_year", "timed_up_and_go_s", "chair_stand_30s", "tandem_stance_s",
-    "glucocorticoids_mg_per_day", "glucocorticoids_months", "conditions", "pain_score",
-)
-#: Columns a batch file must have (the record's required fields).
-REQUIRED_COLUMNS: tuple[str, ...] = ("patient_id", "age_years", "sex", "body_mass_kg", "height_cm")
+__all__ = ["RECORD_COLUMNS", "REQUIRED_COLUMNS", "FRACTURES_ALLOWED", "CHUNK_ROWS", "Caseload",
+           "parse_fractures", "format_fractures", "fracture_columns", "spreadsheet_text",
+           "from_spreadsheet_text", "record_to_row", "row_to_dict", "rows_to_records", "records_to_frame",
+           "frame_to_rows", "frame_to_records", "read_batch_csv", "iter_batch_csv", "frame_to_csv_text",
+           "write_batch_csv", "write_results_csv", "ResultsWriter"]
 
-_INT_COLUMNS = ("age_years", "falls_past_year", "chair_stand_30s", "pain_score")
-_FLOAT_COLUMNS = ("body_mass_kg", "height_cm", "t_score_lumbar_spine", "t_score_femoral_neck",
-                  "t_score_total_hip", "timed_up_and_go_s", "tandem_stance_s",
-                  "glucocorticoids_mg_per_day", "glucocorticoids_months")
-_TEXT_COLUMNS = ("patient_id", "sex", "fractures", "conditions")
-
-FRACTURES_ALLOWED = ("items 'site:months_ago:y|n' joined by ';' (site one of "
-                     + ", ".join(FRACTURE_SITES) + "; months_ago a number from 0 to 1200; "
-                     "y = low trauma, n = not), or empty for none")
-
-
-# ---------------------------------------------------------------------------
-# The compact fracture cell
-# ---------------------------------------------------------------------------
-
-def parse_fractures(text: str) -> list[tuple[str, float, bool]]:
-    """Parse a compact fracture cell into ``(site, months_ago, low_trauma)`` tuples.
-
-    Raises
-    ------
-    ValueError
-        When an item is not ``site:months_ago:y|n`` with a known site and a number
-        from 0 to 1200.
-    """
-    text = text.strip()
-    if not text:
-        return []
-    out = []
-    for item in text.split(";"):
-        parts = item.strip().split(":")
-        if len(parts) != 3:
-            raise ValueError(f"item {item!r} is not site:months_ago:y|n")
-        site, months_text, trauma = (p.strip() for p in parts)
-        if site not in FRACTURE_SITES:
-            raise ValueError(f"unknown site {site!r}")
-        try:
-            months = float(months_text)
-        except ValueError:
-            raise ValueError(f"months_ago {months_text!r} is not a number") from None
-        if not (math.isfinite(months) and 0 <= months <= 1200):
-            raise ValueError(f"months_ago {months_text!r} is outside 0 to 1200")
-        if trauma not in ("y", "n"):
-            raise ValueError(f"low-trauma mark {trauma!r} is not y or n")
-        out.append((site, months, trauma == "y"))
-    return out
-
-
-def format_fractures(fractures: Iterable[Any]) -> str:
-    """The compact cell for a list of fractures (models or dicts)."""
-    items = []
-    for f in fractures:
-        d = f if isinstance(f, dict) else f.model_dump()
-        items.append(f"{d['site']}:{_fmt(d['months_ago'])}:{'y' if d['low_trauma'] else 'n'}")
-    return ";".join(items)
-
-
-def _fmt(value: Any) -> str:
-    """A cell for one value: empty for absent, whole numbers without '.0', floats round-trip exact."""
-    if value is None:
-        return ""
-    if isinstance(value, (bool, np.bool_)):
-        return "true" if value else "false"
-    if isinstance(value, (int, np.integer)):
-        return str(int(value))
-    if isinstance(value, (float, np.floating)):
-        v = float(value)
-        if math.isnan(v):
-            return ""
-        if v.is_integer() and abs(v) < 1e15:
-            return str(int(v))
-        return repr(v)
-    return str(value)
+#: Rows read, validated and screened at a time: about 90 MB above the interpreter's own at the
+#: peak (cells, typed columns, results text); larger chunks use more memory and are no faster.
+CHUNK_ROWS = 10_000
 
 
 # ---------------------------------------------------------------------------
@@ -369,8 +306,50 @@ def _check_columns(header: list[str], source: str) -> None:
         raise InputError(problems, source)
 
 
-def read_batch_csv(path: str | Path) -> pd.DataFrame:
-    """Read and validate a caseload CSV into a DataFrame of flattened records.
+@dataclass(frozen=True)
+class Caseload:
+    """One validated chunk of a caseload: typed columns for the screening.
+
+    ``frame`` is the flattened records (the shape :func:`records_to_frame` makes, the compact
+    cells in their normal form); ``fractures`` the per-person fracture figures, read once from
+    the cells; ``first_row`` the number of the chunk's first row (1 for the first row under
+    the header).
+    """
+
+    frame: pd.DataFrame
+    fractures: FractureColumns
+    first_row: int
+
+
+def _open_text(path: str | Path) -> tuple[io.TextIOWrapper, BinaryIO]:
+    """The caseload as text (UTF-8, byte-order mark dropped, newlines as the whole-file reader
+    sees them) and the binary file under it (whose position tells how far reading has come)."""
+    try:
+        raw = open(path, "rb")
+    except FileNotFoundError:
+        raise InputError.single("batch file", str(path), "an existing, readable CSV file") from None
+    except (IsADirectoryError, PermissionError) as exc:
+        raise InputError.single("batch file", str(path),
+                                f"a readable UTF-8 CSV file ({exc.__class__.__name__})") from None
+    return io.TextIOWrapper(raw, encoding="utf-8-sig", newline=None), raw
+
+
+def _decoding_error(path, exc: UnicodeDecodeError) -> InputError:
+    return InputError.single("batch file", str(path), f"a readable UTF-8 CSV file ({exc.__class__.__name__})")
+
+
+def iter_batch_csv(path: str | Path, chunk_rows: int | None = None,
+                   progress: Callable[[int, int], None] | None = None) -> Iterator[Caseload]:
+    """Read and validate a caseload CSV a chunk of rows at a time (bounded memory).
+
+    Chunks are yielded while every row so far is valid.  After the first problem the rest
+    of the file is still read and checked, without yielding, and one :class:`InputError`
+    with every problem is raised at the end; the problems and their order are those of
+    :func:`read_batch_csv`.  A caller that writes results must therefore write them so that
+    nothing is kept unless the whole iteration ends without an error (:class:`ResultsWriter`).
+
+    ``chunk_rows`` rows are read at a time (:data:`CHUNK_ROWS` when not given);
+    ``progress(bytes_read, file_size)`` is called after each chunk.
 
     Raises
     ------
@@ -379,61 +358,245 @@ def read_batch_csv(path: str | Path) -> pd.DataFrame:
         required or unknown column, or any bad row (field ``row N (patient_id X): column``).
     """
     p = Path(path)
+    chunk_rows = chunk_rows or CHUNK_ROWS
     check_file_size(p, "batch file", CSV_MAX_BYTES)
-    try:
-        text = p.read_text(encoding="utf-8-sig")
-    except FileNotFoundError:
-        raise InputError.single("batch file", str(path), "an existing, readable CSV file") from None
-    except (IsADirectoryError, PermissionError, UnicodeDecodeError) as exc:
-        raise InputError.single("batch file", str(path),
-                                f"a readable UTF-8 CSV file ({exc.__class__.__name__})") from None
-    reader = csv.reader(io.StringIO(text, newline=""), strict=True)
-    try:
-        table = [row for row in reader]
-    except csv.Error as exc:
-        raise InputError.single("batch file", f"{path} (line {reader.line_num})",
-                                f"well-formed CSV with standard double-quote quoting ({exc})") from None
-    table = [row for row in table if any(cell.strip() for cell in row)]
-    if not table:
+    text, raw = _open_text(p)
+    size = os.fstat(raw.fileno()).st_size
+    reader = csv.reader(text, strict=True)
+    problems: list[FieldProblem] = []
+    fatal: InputError | None = None          # a structural problem: reported alone, as before
+    seen_ids: dict[str, int] = {}
+    header: list[str] | None = None
+    number = 0                               # rows under the header, blank rows not counted
+    with text:
+        try:
+            while True:
+                read = list(islice(reader, chunk_rows))
+                if not read:
+                    break
+                table = [row for row in read if any(map(str.strip, row))]      # blank rows are skipped
+                del read
+                if header is None:
+                    if not table:
+                        continue
+                    header = [h.strip() for h in table.pop(0)]
+                    try:
+                        _check_columns(header, str(path))
+                    except InputError as err:
+                        fatal = err
+                first = number + 1
+                number += len(table)
+                if fatal is not None:
+                    continue
+                ragged = next((i for i, cells in enumerate(table) if len(cells) != len(header)), None)
+                if ragged is not None:
+                    cells = table[ragged]
+                    fatal = InputError.single(_row_label(first + ragged, dict(zip(header, cells))),
+                                              f"{len(cells)} cells", f"{len(header)} cells, one per header column",
+                                              source=str(path))
+                    continue
+                chunk = _validate_chunk(header, table, first, seen_ids, problems)
+                if progress is not None:
+                    progress(raw.tell(), size)
+                if chunk is not None and not problems:
+                    yield chunk
+        except UnicodeDecodeError as exc:
+            raise _decoding_error(path, exc) from None
+        except csv.Error as exc:
+            line = reader.line_num
+            try:                              # a file that is not UTF-8 is reported as such first
+                while text.read(1 << 20):
+                    pass
+            except UnicodeDecodeError as dec:
+                raise _decoding_error(path, dec) from None
+            raise InputError.single("batch file", f"{path} (line {line})",
+                                    f"well-formed CSV with standard double-quote quoting ({exc})") from None
+    if header is None:
         raise InputError.single("batch file", str(path), "a CSV file with a header row and one row per person")
-    header = [h.strip() for h in table[0]]
-    _check_columns(header, str(path))
-    rows = []
-    for number, cells in enumerate(table[1:], start=1):
-        if len(cells) != len(header):
-            row = dict(zip(header, cells))
-            raise InputError.single(_row_label(number, row), f"{len(cells)} cells",
-                                    f"{len(header)} cells, one per header column", source=str(path))
-        row = dict(zip(header, cells))
-        for col in _TEXT_COLUMNS:
-            if col in row:
-                row[col] = from_spreadsheet_text(row[col])
-        rows.append(row)
-    try:
-        return records_to_frame(rows_to_records(rows))
-    except InputError as err:
-        raise InputError(err.problems, str(path)) from None
+    if fatal is not None:
+        raise fatal
+    if problems:
+        raise InputError(problems, str(path))
+
+
+def _validate_chunk(header: list[str], table: list[list[str]], first: int, seen_ids: dict[str, int],
+                    problems: list[FieldProblem]) -> Caseload | None:
+    """Validate a chunk of rows column-wise; add its problems (with the row) to ``problems``."""
+    n = len(table)
+    if not n:
+        return None
+    columns = list(zip(*table))
+    cells = {}
+    for col, values in zip(header, columns):
+        array = np.array(values, dtype=object)
+        if col in _TEXT_COLUMNS:
+            array = _without_marks(array)
+        cells[col] = array
+    frame, fractures, found = validate_columns(cells, n)
+    pids = frame["patient_id"].to_numpy()
+    bad = np.zeros(n, dtype=bool)
+    bad[found.rows()] = True
+    # A patient_id already used by an earlier valid row (rows with other problems are skipped).
+    for pos in np.flatnonzero(~bad).tolist():
+        pid, row = pids[pos], first + pos
+        earlier = seen_ids.setdefault(pid, row)
+        if earlier != row:
+            bad[pos] = True
+            found.items.append((pos, 2, 0, FieldProblem("patient_id", pid,
+                                                        f"an id not already used (row {earlier} has it)")))
+    for pos, _phase, _order, problem in sorted(found.items, key=lambda item: item[:3]):
+        label = _row_label(first + pos, {"patient_id": pids[pos]})
+        problems.append(FieldProblem(f"{label}: {problem.field}", problem.value, problem.allowed, problem.kind))
+    if bad.any():
+        return None
+    return Caseload(frame, fractures, first)
+
+
+def _without_marks(cells: np.ndarray) -> np.ndarray:
+    """Text cells with the spreadsheet's text mark removed (only cells that start with it are looked at)."""
+    marked = [i for i, c in enumerate(cells.tolist()) if c[:1] == TEXT_MARK]
+    for i in marked:
+        cells[i] = from_spreadsheet_text(cells[i])
+    return cells
+
+
+def read_batch_csv(path: str | Path) -> pd.DataFrame:
+    """Read and validate a caseload CSV into a DataFrame of flattened records.
+
+    The whole caseload in one frame; :func:`iter_batch_csv` reads it a chunk at a time.
+
+    Raises
+    ------
+    InputError
+        For an unreadable file, malformed CSV (bad quoting, ragged rows), a missing
+        required or unknown column, or any bad row (field ``row N (patient_id X): column``).
+    """
+    frames = [chunk.frame for chunk in iter_batch_csv(path)]
+    if not frames:
+        return records_to_frame([])
+    return pd.concat(frames, ignore_index=True) if len(frames) > 1 else frames[0]
 
 
 def _atomic_write(path: str | Path, text: str) -> None:
     """Write ``text`` to ``path`` in one step: a reader never sees a partial file."""
+    _check_output(path)
+    write_atomically(Path(path), text, "output file")
+
+
+def _check_output(path: str | Path) -> None:
     target = Path(path)
     if target.is_dir():
         raise InputError.single("output file", str(path), "a file path, not a folder")
     if not target.parent.exists():
         raise InputError.single("output file", str(path), "a path in an existing folder")
-    write_atomically(target, text, "output file")
+
+
+# ---------------------------------------------------------------------------
+# Writing: a column at a time
+# ---------------------------------------------------------------------------
+
+def _format_column(values: np.ndarray) -> np.ndarray:
+    """Each cell's text (as :func:`frame_to_csv_text` writes it), worked out once per distinct value."""
+    kind = values.dtype.kind
+    if kind == "b":
+        return np.where(values, "true", "false").astype(object)
+    if kind in "iu":
+        return values.astype(str).astype(object)
+    if kind == "f":
+        codes, uniques = pd.factorize(values)
+        return np.array([_fmt(v) for v in uniques.tolist()] + [""], dtype=object)[codes]
+    if kind == "O" and pd.api.types.infer_dtype(values, skipna=True) in ("string", "empty"):
+        codes, uniques = pd.factorize(values)            # None and NaN: code -1, an empty cell
+        return np.array([spreadsheet_text(v) for v in uniques.tolist()] + [""], dtype=object)[codes]
+    return np.array([spreadsheet_text(v) if isinstance(v, str) else _fmt(v) for v in values.tolist()], dtype=object)
+
+
+#: Characters that make the csv module quote a cell (delimiter, quote, line ends).
+_QUOTE_TRIGGERS = re.compile(r'[,"\r\n]')
+
+
+def _csv_field(text: str) -> str:
+    """A cell as the csv module writes it (minimal quoting): as it is unless it holds a
+    delimiter, a quote or a line end, in which case the csv module itself quotes it."""
+    if not _QUOTE_TRIGGERS.search(text):
+        return text
+    buf = io.StringIO()
+    csv.writer(buf, lineterminator="\n").writerow([text])
+    return buf.getvalue()[:-1]
+
+
+def _column_fields(values: np.ndarray) -> np.ndarray:
+    """Each cell of a column as written in the CSV, formatted and quoted once per distinct value."""
+    if values.dtype.kind == "O" and pd.api.types.infer_dtype(values, skipna=True) in ("string", "empty"):
+        codes, uniques = pd.factorize(values)            # None and NaN: code -1, an empty cell
+        return np.array([_csv_field(spreadsheet_text(u)) for u in uniques.tolist()] + [""], dtype=object)[codes]
+    cells = _format_column(values)
+    if values.dtype.kind in "biuf":                      # numbers, true and false: never quoted
+        return cells
+    return np.array([_csv_field(c) for c in cells.tolist()], dtype=object)
+
+
+def _csv_bytes(df: pd.DataFrame, header: bool) -> bytes:
+    """The CSV text of a frame, built a column at a time: each column's cells are formatted and
+    quoted once per distinct value, then the columns are joined with whole-array string
+    additions (a per-cell CSV writer spends most of its time scanning the long, repeated
+    cautions cells)."""
+    out = ""
+    if header:
+        names = [_csv_field(str(c)) for c in df.columns]
+        out = (",".join(names) if names != [""] else '""') + "\n"
+    if len(df) and df.shape[1]:
+        line = None
+        for i in range(df.shape[1]):
+            col = df.iloc[:, i]
+            extension = isinstance(col.dtype, pd.api.extensions.ExtensionDtype)
+            fields = _column_fields(col.to_numpy(dtype=object) if extension else col.to_numpy())
+            line = fields if line is None else line + "," + fields
+        if df.shape[1] == 1:
+            line[line == ""] = '""'                      # the csv module's one empty field
+        out += "\n".join(line.tolist()) + "\n"
+    return out.encode("utf-8")
 
 
 def frame_to_csv_text(df: pd.DataFrame) -> str:
     """CSV text of any DataFrame with our cell formatting (booleans true/false, absent empty)."""
-    buf = io.StringIO()
-    writer = csv.writer(buf, lineterminator="\n")
-    columns = list(df.columns)
-    writer.writerow(columns)
-    for values in zip(*(df[c].tolist() for c in columns)):
-        writer.writerow([spreadsheet_text(v) if isinstance(v, str) else _fmt(v) for v in values])
-    return buf.getvalue()
+    return _csv_bytes(df, header=True).decode("utf-8")
+
+
+class ResultsWriter:
+    """Screening results written a chunk at a time, put in place only when all went well.
+
+    ``with ResultsWriter(path, columns) as out: out.write(frame)``: the header and the chunks
+    go to a temporary file beside ``path`` (made when the writer is made, so a bad output path
+    is refused before any work), which replaces ``path`` when the block ends without an
+    exception; on any exception (bad input found late in the caseload, a full disk) it is
+    removed and an earlier file at ``path`` is left untouched.
+    """
+
+    def __init__(self, path: str | Path, columns: Iterable[str]):
+        _check_output(path)
+        self.path = Path(path)
+        self.columns = list(columns)
+        self.rows = 0
+        self._context = open_atomically(self.path, "output file")
+        self._fh: BinaryIO = self._context.__enter__()
+        try:
+            self._fh.write(_csv_bytes(pd.DataFrame(columns=self.columns), header=True))
+        except BaseException:
+            self._context.__exit__(*sys.exc_info())
+            raise
+
+    def __enter__(self) -> "ResultsWriter":
+        return self
+
+    def write(self, df: pd.DataFrame) -> None:
+        if list(df.columns) != self.columns:
+            raise ValueError(f"results columns {list(df.columns)} are not {self.columns}")
+        self._fh.write(_csv_bytes(df, header=False))
+        self.rows += len(df)
+
+    def __exit__(self, *exc) -> bool:
+        return bool(self._context.__exit__(*exc))
 
 
 def write_batch_csv(records: Iterable[PatientRecord], path: str | Path) -> None:
@@ -454,4 +617,5 @@ def write_results_csv(df: pd.DataFrame, path: str | Path) -> None:
 
     Written to a temporary file and renamed, so ``path`` is either the whole result or untouched.
     """
-    _atomic_write(path, frame_to_csv_text(df))
+    with ResultsWriter(path, df.columns) as out:
+        out.write(df)

@@ -6,7 +6,9 @@ from __future__ import annotations
 import json
 import os
 import tempfile
+from contextlib import contextmanager
 from pathlib import Path
+from typing import BinaryIO, Iterator
 
 from .errors import InputError
 
@@ -18,8 +20,22 @@ def write_atomically(path: str | Path, data: str | bytes, field: str = "output f
     on any failure the temporary file is removed and ``path`` is left as it was.
     A folder that cannot be written raises :class:`InputError` naming ``field``.
     """
-    target = Path(path)
     payload = data.encode("utf-8") if isinstance(data, str) else data
+    with open_atomically(path, field) as fh:
+        fh.write(payload)
+    return Path(path)
+
+
+@contextmanager
+def open_atomically(path: str | Path, field: str = "output file") -> Iterator[BinaryIO]:
+    """A binary file to write ``path`` in pieces, put in place in one step when the block ends.
+
+    The pieces go to a temporary file in the same folder, which replaces ``path`` only when
+    the ``with`` block ends without an exception; otherwise the temporary file is removed
+    and ``path`` is left as it was (a reader never sees a partial file).  A folder that
+    cannot be written raises :class:`InputError` naming ``field``.
+    """
+    target = Path(path)
     try:
         fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".partial",
                                    dir=target.parent if str(target.parent) else ".")
@@ -27,12 +43,11 @@ def write_atomically(path: str | Path, data: str | bytes, field: str = "output f
         raise InputError.single(field, str(path), f"a file in a writable folder ({exc.strerror})") from None
     try:
         with os.fdopen(fd, "wb") as fh:
-            fh.write(payload)
+            yield fh
         os.replace(tmp, target)
     finally:
         if os.path.exists(tmp):
             os.unlink(tmp)
-    return target
 
 
 # ---------------------------------------------------------------------------

@@ -25,19 +25,20 @@ This module gives decision support only; a licensed clinician reviews every resu
 from __future__ import annotations
 
 import csv
-import re
 from dataclasses import dataclass
 from functools import lru_cache
+from itertools import compress
 from pathlib import Path
 from typing import Any, Callable
 
 import numpy as np
 import pandas as pd
 
-from .batch_io import FRACTURES_ALLOWED, RECORD_COLUMNS, REQUIRED_COLUMNS, parse_fractures, records_to_frame
+from .batch_columns import FRACTURES_ALLOWED, RECORD_COLUMNS, REQUIRED_COLUMNS, FractureColumns, fracture_columns
+from .batch_io import records_to_frame
 from .cautions import with_standard
 from .errors import FieldProblem, InputError
-from .records import CONDITIONS, FRACTURE_SITES, T_SCORE_SITES, Flag, PatientRecord, ScreeningResult
+from .records import CONDITIONS, T_SCORE_SITES, Flag, PatientRecord, ScreeningResult
 from .rules import (BOOL, CATEGORY_RANK, FEATURES, NUMBER, SEVERITY_RANK, AllOf, AnyOf, Condition, Not, Rule,
                     RuleSet, Test, load_rules)
 
@@ -185,198 +186,25 @@ def _column(df: pd.DataFrame, name: str, n: int) -> np.ndarray:
 
 
 def _text_column(df: pd.DataFrame, name: str, n: int, raw: bool = False) -> np.ndarray:
-    """A text column as an object array ('' for absent); may share the frame's memory (read only).
-
-    With ``raw``, absent cells are left as they are (NaN or None) for a caller that handles them.
-    """
+    """A text column as an object array ('' for absent; with ``raw``, absent cells left as they are)."""
     if name not in df.columns:
         return np.full(n, "", dtype=object)
     col = df[name]
-    values = col.to_numpy(dtype=object)
-    # A scan for non-text cells is several times cheaper than the per-cell missing-value check.
-    if raw or not len(values) or pd.api.types.infer_dtype(values, skipna=False) == "string":
-        return values
-    return col.to_numpy(dtype=object, na_value="")
+    return col.to_numpy(dtype=object) if raw else col.to_numpy(dtype=object, na_value="")
 
 
-def _fracture_aggregates_slow(uniques: list[str]) -> tuple[np.ndarray, ...]:
-    """Per distinct cell: low-trauma count, low-trauma vertebral, hip, most recent months, low-trauma hip.
-
-    Validating fallback for cells the fast path does not take (spaces, bad items); raises
-    InputError naming the bad cell.
-    """
-    k = len(uniques)
-    count, vert = np.zeros(k), np.zeros(k, dtype=bool)
-    hip, last = np.zeros(k, dtype=bool), np.full(k, np.nan)
-    lt_hip = np.zeros(k, dtype=bool)
-    for j, text in enumerate(uniques):
-        try:
-            items = parse_fractures(text)
-        except ValueError as exc:
-            raise InputError.single("fractures", text, f"{FRACTURES_ALLOWED} ({exc})") from None
-        for site, months, low_trauma in items:
-            count[j] += low_trauma
-            vert[j] |= low_trauma and site == "vertebra"
-            lt_hip[j] |= low_trauma and site == "hip"
-            hip[j] |= site == "hip"
-            if np.isnan(last[j]) or months < last[j]:
-                last[j] = months
-    return count, vert, hip, last, lt_hip
-
-
-_SITE_BYTES = {site: np.frombuffer(site.encode("ascii"), dtype=np.uint8) for site in FRACTURE_SITES}
-_SITE_WIDTH = max(map(len, FRACTURE_SITES))
-_SITE_WORDS = {site: np.uint64(int.from_bytes(site.encode("ascii"), "little")) for site in FRACTURE_SITES
-               if len(site) <= 8}
-_LOW_BYTES = np.array([(1 << (8 * k)) - 1 for k in range(9)], dtype=np.uint64)  # mask of the k low bytes
-_POW10 = 10.0 ** np.arange(23)
-_MAX_DIGITS = 15  # a mantissa of up to 15 digits is exact in float64
-
-
-_PLAIN_NUMBER = re.compile(r"[0-9]*\.?[0-9]*")
-
-
-def _months_by_value(words: np.ndarray) -> np.ndarray | None:
-    """Months from numbers of at most 8 characters, each given as its bytes in one word.
-
-    A caseload repeats few distinct numbers, so each distinct one is checked and read once with
-    Python's ``float``; None when one is not plain digits with at most one '.'.
-    """
-    inverse, uniq = pd.factorize(words)
-    values = []
-    for word in uniq.tolist():
-        text = int(word).to_bytes(8, "little").rstrip(b"\0").decode("ascii")
-        if not (_PLAIN_NUMBER.fullmatch(text) and 1 <= sum(c.isdigit() for c in text) <= _MAX_DIGITS):
-            return None
-        values.append(float(text))
-    return np.array(values, dtype=np.float64)[inverse]
-
-
-def _months_by_position(raw: np.ndarray, c1: np.ndarray, num_len: np.ndarray) -> np.ndarray | None:
-    """Months from the numbers after each item's first colon, read by Horner's rule one
-    character position at a time across all items (exact for up to 15 digits: an exact
-    integer divided by an exact power of ten rounds like ``float(text)``); None when one is not
-    plain digits with at most one '.'."""
-    mantissa = np.zeros(len(c1))
-    n_digits = np.zeros(len(c1), dtype=np.int64)
-    n_dots = np.zeros(len(c1), dtype=np.int64)
-    frac = np.zeros(len(c1), dtype=np.int64)           # digits after the '.'
-    for j in range(int(num_len.max())):
-        inside = num_len > j
-        b = raw[np.minimum(c1 + 1 + j, raw.size - 1)]
-        digit = inside & (b >= 48) & (b <= 57)
-        dot = inside & (b == 46)
-        if (inside & ~(digit | dot)).any():
-            return None
-        mantissa = np.where(digit, mantissa * 10.0 + (b - 48.0), mantissa)
-        n_digits += digit
-        frac += digit & (n_dots > 0)
-        n_dots += dot
-        if (n_digits > _MAX_DIGITS).any() or (n_dots > 1).any():
-            return None
-    if (n_digits < 1).any():
-        return None
-    return mantissa / _POW10[frac]
-
-
-def _fracture_aggregates_fast(cells: list[str]) -> tuple[np.ndarray, ...] | None:
-    """The same aggregates as the slow path, parsing every cell at once on its bytes with numpy.
-
-    Handles the plain form ``site:digits[.digits]:y|n``; returns None when any cell has anything
-    else (spaces, exponents, bad items, a cell that is not text), and the slow path then parses
-    or rejects it.  A number of at most 15 digits is read as an exact integer divided by an exact
-    power of ten, which IEEE division rounds correctly: the same float as Python's ``float(text)``.
-    """
-    k = len(cells)
-    count, vert = np.zeros(k), np.zeros(k, dtype=bool)
-    hip, last = np.zeros(k, dtype=bool), np.full(k, np.nan)
-    lt_hip = np.zeros(k, dtype=bool)
-    if not k:
-        return count, vert, hip, last, lt_hip
-    try:
-        raw = np.frombuffer("\n".join(cells).encode("ascii"), dtype=np.uint8)
-    except (TypeError, UnicodeEncodeError):
-        return None
-    if not raw.size:
-        return count, vert, hip, last, lt_hip
-    seps = np.flatnonzero((raw == 59) | (raw == 10))          # ';' between items, newline between cells
-    newline = raw[seps] == 10
-    if np.count_nonzero(newline) != k - 1 or (raw == 0).any():
-        return None                                         # a newline or NUL inside a cell
-    start = np.concatenate(([0], seps + 1))
-    end = np.concatenate((seps, [raw.size]))
-    cell = np.concatenate(([0], np.cumsum(newline)))        # which cell each segment is in
-    # An empty segment is an empty cell only when both its ends are cell ends.
-    after_nl = np.concatenate(([True], newline))
-    before_nl = np.concatenate((newline, [True]))
-    empty = start == end
-    if (empty & ~(after_nl & before_nl)).any():
-        return None
-    start, end, cell = start[~empty], end[~empty], cell[~empty]
-    if not len(start):
-        return count, vert, hip, last, lt_hip
-    colons = np.flatnonzero(raw == 58)
-    if len(colons) != 2 * len(start):
-        return None
-    c1, c2 = colons[0::2], colons[1::2]
-    if not ((c1 > start).all() and (c2 > c1 + 1).all() and (end == c2 + 2).all()):
-        return None                                         # each item: site, ':', number, ':', one mark
-    mark = raw[c2 + 1]
-    if not ((mark == ord("y")) | (mark == ord("n"))).all():
-        return None
-    site_len = c1 - start
-    # The 8 bytes from any position as one little-endian word: a stride-1 uint64 view over the
-    # text reads them in one gather; bytes past the field are masked off.
-    padded = np.concatenate((raw, np.zeros(8, dtype=np.uint8)))
-    words = np.ndarray(shape=(raw.size,), dtype="<u8", buffer=padded, strides=(1,))
-    if _SITE_WIDTH <= 8:
-        word = words[start] & _LOW_BYTES[np.minimum(site_len, 8)]
-        known = np.isin(word, np.array(list(_SITE_WORDS.values()), dtype=np.uint64)) & (site_len <= 8)
-        is_vertebra, is_hip = word == _SITE_WORDS["vertebra"], word == _SITE_WORDS["hip"]
-    else:
-        is_vertebra = np.zeros(len(start), dtype=bool)
-        is_hip = np.zeros(len(start), dtype=bool)
-        known = np.zeros(len(start), dtype=bool)
-        for name, code in _SITE_BYTES.items():
-            cand = np.flatnonzero(site_len == len(code))
-            same = np.ones(len(cand), dtype=bool)
-            for j, byte in enumerate(code):
-                same &= raw[start[cand] + j] == byte
-            known[cand[same]] = True
-            if name == "vertebra":
-                is_vertebra[cand[same]] = True
-            elif name == "hip":
-                is_hip[cand[same]] = True
-    if not known.all():
-        return None
-    # The number between the colons: digits with at most one '.'.
-    num_len = c2 - c1 - 1
-    if num_len.max() <= 8:
-        months = _months_by_value(words[c1 + 1] & _LOW_BYTES[num_len])
-    else:
-        months = _months_by_position(raw, c1, num_len)
-    if months is None or (months > 1200).any():
-        return None
-    low = mark == ord("y")
-    count[:] = np.bincount(cell, weights=low, minlength=k)
-    vert[:] = np.bincount(cell, weights=low & is_vertebra, minlength=k) > 0
-    hip[:] = np.bincount(cell, weights=is_hip, minlength=k) > 0
-    lt_hip[:] = np.bincount(cell, weights=low & is_hip, minlength=k) > 0
-    first = np.flatnonzero(np.concatenate(([True], cell[1:] != cell[:-1])))
-    last[cell[first]] = np.minimum.reduceat(months, first)
-    return count, vert, hip, last, lt_hip
-
-
-def _fracture_features(df: pd.DataFrame, n: int) -> dict[str, np.ndarray]:
-    """Fracture features for the column of compact fracture cells, parsed in bulk."""
-    aggregates = _fracture_aggregates_fast(_text_column(df, "fractures", n, raw=True).tolist())
-    if aggregates is None:                  # absent or unusual cells: fill, then parse or reject
-        texts = _text_column(df, "fractures", n).tolist()
-        aggregates = _fracture_aggregates_fast(texts) or _fracture_aggregates_slow(texts)
-    count, vert, hip, last, lt_hip = aggregates
+def _fracture_features(df: pd.DataFrame, n: int, fractures: FractureColumns | None) -> dict[str, np.ndarray]:
+    """Fracture features from the per-person figures (read from the compact cells when not given)."""
+    if fractures is None:
+        fractures, _, reasons = fracture_columns(_text_column(df, "fractures", n, raw=True))
+        if reasons:
+            pos = min(reasons)                  # the first bad cell, as it is in the frame
+            raise InputError.single("fractures", df["fractures"].iloc[pos], f"{FRACTURES_ALLOWED} ({reasons[pos]})")
+    count = fractures.low_trauma_count
     return {"low_trauma_fracture_count": count, "low_trauma_fracture": count > 0,
-            "low_trauma_vertebral_fracture": vert, "low_trauma_hip_fracture": lt_hip, "hip_fracture": hip,
-            "months_since_last_fracture": last}
+            "low_trauma_vertebral_fracture": fractures.low_trauma_vertebral,
+            "low_trauma_hip_fracture": fractures.low_trauma_hip, "hip_fracture": fractures.hip,
+            "months_since_last_fracture": fractures.months_since_last}
 
 
 def _condition_features(cells: np.ndarray) -> dict[str, np.ndarray]:
@@ -389,17 +217,20 @@ def _condition_features(cells: np.ndarray) -> dict[str, np.ndarray]:
     return out
 
 
-def frame_features(df: pd.DataFrame) -> dict[str, np.ndarray]:
+def frame_features(df: pd.DataFrame, fractures: FractureColumns | None = None) -> dict[str, np.ndarray]:
     """The derived features of every row of a frame of flattened records, as arrays.
 
     Numbers are float64 with NaN for absent; flags are bool; ``sex`` is an object array.
     The frame is expected to hold validated records (:func:`prescribe.batch_io.read_batch_csv`
-    or :func:`prescribe.batch_io.records_to_frame`).
+    or :func:`prescribe.batch_io.records_to_frame`).  ``fractures``, when given, are the
+    per-person fracture figures the reader already worked out (:class:`prescribe.batch_io.Caseload`);
+    otherwise they are read from the frame's compact fracture cells.
     """
-    return _frame_features(df)[0]
+    return _frame_features(df, fractures)[0]
 
 
-def _frame_features(df: pd.DataFrame) -> tuple[dict[str, np.ndarray], list[np.ndarray]]:
+def _frame_features(df: pd.DataFrame, fractures: FractureColumns | None = None
+                    ) -> tuple[dict[str, np.ndarray], list[np.ndarray]]:
     """:func:`frame_features` and the T-score columns it read (T_SCORE_SITES order), for reuse."""
     n = len(df)
     missing = [c for c in REQUIRED_COLUMNS if c not in df.columns]
@@ -442,7 +273,7 @@ def _frame_features(df: pd.DataFrame) -> tuple[dict[str, np.ndarray], list[np.nd
         "glucocorticoid_months": np.where(np.isnan(mg) | np.isnan(months), 0.0, months),
         "pain_score": np.nan_to_num(pain, nan=0.0),
     }
-    feats.update(_fracture_features(df, n))
+    feats.update(_fracture_features(df, n, fractures))
     feats.update(_condition_features(_text_column(df, "conditions", n, raw=True)))
     return feats, tscores
 
@@ -554,72 +385,6 @@ def _unique_rows(matrix: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     return rows, np.asarray(inverse).reshape(-1)
 
 
-_TABLE_CHARS = 3 << 19  # about the most text one subset table may hold (1.5 M characters)
-
-
-def _chunk_size(labels: list[str]) -> int:
-    """Labels per subset table: up to 13 (8192 texts), fewer for long labels so that a table
-    holds at most about :data:`_TABLE_CHARS` characters."""
-    mean = max(1.0, sum(map(len, labels)) / max(1, len(labels)))
-    size = 13
-    while size > 4 and (1 << size) * size / 2 * mean > _TABLE_CHARS:
-        size -= 1
-    return size
-
-
-@lru_cache(maxsize=16)
-def _chunk_table(labels: tuple[str, ...], sep: str, lead: bool) -> np.ndarray:
-    """The ``sep``-joined text of every subset of a few labels, indexed by its bit pattern (kept
-    for the next call); with ``lead``, each non-empty text starts with ``sep`` (to append)."""
-    texts = [sep.join(lab for j, lab in enumerate(labels) if v >> j & 1) for v in range(1 << len(labels))]
-    return np.array([sep + t if lead and t else t for t in texts], dtype=object)
-
-
-def _join_columns(marks: np.ndarray, labels: list[str], sep: str,
-                  finish: Callable[[np.ndarray], np.ndarray] | None = None) -> np.ndarray:
-    """Per column of a (labels x items) boolean matrix, the labels of its true rows joined by
-    ``sep``, in label order.
-
-    Works a chunk of labels at a time (:func:`_chunk_size`): an item's marks for the chunk make a
-    code that picks the chunk's text from a table of every subset's text, and chunks are joined
-    with one whole-array string addition.  Up to 62 labels, the text is made once per distinct
-    code.  No Python loop runs over the items.  ``finish``, when given, maps an array of joined
-    texts to the final texts (applied once per distinct text when it can be).
-    """
-    finish = finish or (lambda texts: texts)
-    n, size = marks.shape[1], _chunk_size(labels)
-    codes = []
-    for c0 in range(0, len(labels), size):
-        code = np.zeros(n, dtype=np.int64)
-        for j in range(min(size, len(labels) - c0)):
-            code |= marks[c0 + j].astype(np.int64) << j
-        codes.append(code)
-    if len(labels) <= 62 and codes:
-        key = codes[0]
-        for i, code in enumerate(codes[1:], start=1):
-            key = key | (code << (size * i))      # bit of label c is bit c: at most bit 61
-        inverse, uniq = pd.factorize(key)
-        if len(uniq) < n:
-            uniq = np.asarray(uniq, dtype=np.int64)
-            codes = [(uniq >> (size * i)) & ((1 << size) - 1) for i in range(len(codes))]
-            return finish(_join_codes(codes, labels, sep, len(uniq), size))[inverse]
-    return finish(_join_codes(codes, labels, sep, n, size))
-
-
-def _join_codes(codes: list[np.ndarray], labels: list[str], sep: str, n: int, size: int) -> np.ndarray:
-    """The ``n`` texts of :func:`_join_columns` from each chunk's subset codes."""
-    out = _constant_text(n, "")
-    filled = np.zeros(n, dtype=bool)
-    for i, code in enumerate(codes):
-        chunk = tuple(labels[size * i:size * (i + 1)])
-        some = code != 0
-        first, more = some & ~filled, some & filled
-        out[first] = _chunk_table(chunk, sep, False)[code[first]]
-        out[more] = out[more] + _chunk_table(chunk, sep, True)[code[more]]
-        filled |= some
-    return out
-
-
 @dataclass(frozen=True)
 class Outcome:
     """What a set of fired rules means, before the per-person fields are added."""
@@ -653,17 +418,6 @@ class Engine:
         self._flags = {r.id: Flag(rule=r.id, severity=r.severity, message=r.message, source=r.source,
                                   title=r.title, max_impact_level=r.effect.max_impact_level,
                                   avoid=list(r.effect.avoid)) for r in self.rules}
-        # Effects as arrays, for the vectorised evaluator.
-        self._caps = np.array([3 if r.effect.max_impact_level is None else r.effect.max_impact_level
-                               for r in self.rules], dtype=np.int8)
-        self._cat_rank = np.array([CATEGORY_RANK[r.effect.category] if r.effect.category else -1
-                                   for r in self.rules], dtype=np.int8)
-        self._effect_flag = {k: np.array([getattr(r.effect, k) for r in self.rules], dtype=bool)
-                             for k in ("falls_risk", "refer", "balance_first", "supervision")}
-        self._avoid_codes = sorted({a for r in self.rules for a in r.effect.avoid})
-        self._avoid_matrix = np.array([[a in r.effect.avoid for a in self._avoid_codes] for r in self.rules],
-                                      dtype=bool).reshape(len(self.rules), len(self._avoid_codes))
-        self._caution_idx = np.array([i for i, r in enumerate(self.rules) if r.effect.caution], dtype=np.intp)
 
     # -- shared: fired rules -> outcome ------------------------------------------------
     def outcome(self, mask: int) -> Outcome:
@@ -748,72 +502,91 @@ class Engine:
             out[:, i] = evaluate_vector(r.when, feats)
         return out
 
+    def _combine(self, patterns: np.ndarray) -> dict[str, list | np.ndarray]:
+        """The combined effects of each distinct fired-rule pattern (patterns x rules, bool), by
+        the rules of :meth:`outcome` (the property tests keep the two identical): numbers and
+        yes/no effects as reductions over the rules, texts joined in rule (or code) order."""
+        rules = self.rules
+        marks = patterns.reshape(len(patterns), len(rules))
+
+        def says(values) -> np.ndarray:
+            return np.array(values, dtype=bool).reshape(len(rules))
+
+        def any_of(flag: str) -> np.ndarray:
+            return (marks & says([getattr(r.effect, flag) for r in rules])).any(axis=1)
+
+        def joined(texts: list[str], chosen: np.ndarray, sep: str) -> list[str]:
+            return [sep.join(compress(texts, row)) for row in chosen.tolist()]
+
+        caps = np.array([3 if r.effect.max_impact_level is None else r.effect.max_impact_level for r in rules])
+        ranks = np.array([CATEGORY_RANK[r.effect.category] if r.effect.category else -1 for r in rules])
+        categories = {rank: name for name, rank in CATEGORY_RANK.items()}
+        rank = np.where(marks, ranks, -1).max(axis=1, initial=-1)
+        codes = sorted({a for r in rules for a in r.effect.avoid})
+        avoids = np.array([[a in r.effect.avoid for a in codes] for r in rules], dtype=bool).reshape(len(rules),
+                                                                                                   len(codes))
+        avoided = (marks.astype(np.int64) @ avoids.astype(np.int64)) > 0
+        with_caution = [i for i, r in enumerate(rules) if r.effect.caution]
+        texts = [rules[i].effect.caution for i in with_caution]
+        if len(set(texts)) == len(texts) and not set(texts) & set(with_standard()):
+            head = CAUTION_SEP.join(with_standard())    # distinct texts: no duplicate to drop
+            cautions = [head + CAUTION_SEP + extra if extra else head
+                        for extra in joined(texts, marks[:, with_caution], CAUTION_SEP)]
+        else:
+            cautions = [CAUTION_SEP.join(with_standard(list(compress(texts, row))))
+                        for row in marks[:, with_caution].tolist()]
+        return {
+            "category": [categories.get(k) for k in rank.tolist()],
+            "max_impact_level": np.where(marks, caps, 3).min(axis=1, initial=3),
+            "falls_risk": any_of("falls_risk"), "refer": any_of("refer"),
+            "balance_first": any_of("balance_first"), "supervision": any_of("supervision"),
+            "avoid": joined(codes, avoided, LIST_SEP),
+            "flags": joined([r.id for r in rules], marks, LIST_SEP),
+            "cautions": cautions,
+        }
+
     def fired_matrix(self, df: pd.DataFrame) -> np.ndarray:
         """Boolean (rows x rules) matrix of fired rules, rules in ``self.rules`` order."""
         return self._fired(frame_features(df), len(df))
 
-    def screen_frame(self, df: pd.DataFrame) -> pd.DataFrame:
+    def screen_frame(self, df: pd.DataFrame, fractures: FractureColumns | None = None) -> pd.DataFrame:
         """The vectorised evaluator: one result row per input row (see :func:`screen_batch`).
 
-        Effects are combined once per distinct pattern of fired rules (a caseload has far fewer
-        patterns than people), then spread back to the rows.
+        The conditions are evaluated on whole feature arrays; the fired rules' effects are then
+        combined once per distinct pattern of fired rules (a caseload has far fewer patterns than
+        people, :meth:`_combine`) and spread back to the rows.
         """
         n = len(df)
-        feats, tscores = _frame_features(df)
+        feats, tscores = _frame_features(df, fractures)
         rows, inverse = self._fired_patterns(feats, n)
         lowest, site = _lowest_site(tscores, feats["lowest_t_score"])
-        # Effects per distinct pattern, on a (rules x patterns) matrix: each "did any fired rule
-        # say so" is one reduction over the rules that say so.
-        marks = np.ascontiguousarray(rows.T)
-        patterns = marks.shape[1]
+        effect = self._combine(rows)
 
-        def any_fired(which: np.ndarray) -> np.ndarray:
-            return marks[which].any(axis=0) if which.any() else np.zeros(patterns, dtype=bool)
+        def per_pattern(values, dtype) -> np.ndarray:
+            return np.asarray(values, dtype=dtype).reshape(len(rows))[inverse]
 
-        rank = np.full(patterns, -1, dtype=np.intp)          # strongest category rank, -1 for none
-        for level in sorted(set(self._cat_rank[self._cat_rank >= 0].tolist())):
-            rank[any_fired(self._cat_rank >= level)] = level
-        cap = np.full(patterns, 3, dtype=np.int64)           # lowest impact cap, 3 when none caps
-        for level in sorted(set(self._caps.tolist()), reverse=True):
-            cap[any_fired(self._caps <= level)] = level
-        names = list(CATEGORY_RANK)
-        code = rank[inverse]
-        none = code < 0
-        code[none] = np.where(np.isnan(lowest[none]), len(names), len(names) + 1)
-        category = np.array([*names, "unknown", "normal"], dtype=object)[code]
-        avoid = np.array([any_fired(self._avoid_matrix[:, j]) for j in range(len(self._avoid_codes))],
-                         dtype=bool).reshape(len(self._avoid_codes), patterns)
-        any_effect = {k: any_fired(v)[inverse] for k, v in self._effect_flag.items()}
+        category = per_pattern(effect["category"], object)
+        none = np.equal(category, None)
+        category[none] = np.where(np.isnan(lowest[none]), "unknown", "normal")
         columns = {
             "patient_id": _text_column(df, "patient_id", n).copy(),
             "bone_density_category": category,
-            "falls_risk": any_effect["falls_risk"],
-            "max_impact_level": cap[inverse],
-            "avoid": _join_columns(avoid, self._avoid_codes, LIST_SEP)[inverse],
-            "refer": any_effect["refer"],
-            "balance_first": any_effect["balance_first"],
-            "supervision": any_effect["supervision"],
-            "flags": _join_columns(marks, [r.id for r in self.rules], LIST_SEP)[inverse],
+            "falls_risk": per_pattern(effect["falls_risk"], bool),
+            "max_impact_level": per_pattern(effect["max_impact_level"], np.int64),
+            "avoid": per_pattern(effect["avoid"], object),
+            "refer": per_pattern(effect["refer"], bool),
+            "balance_first": per_pattern(effect["balance_first"], bool),
+            "supervision": per_pattern(effect["supervision"], bool),
+            "flags": per_pattern(effect["flags"], object),
             "lowest_t_score": lowest,
             "lowest_t_score_site": site,
             "ruleset_version": _constant_text(n, self.version),
-            "cautions": self._caution_text(marks)[inverse],
+            "cautions": per_pattern(effect["cautions"], object),
         }
         # Text columns stay object arrays (no per-cell type inference on 100k rows).
         # copy=False: each column keeps its own array (no consolidation copy into 2-D blocks).
         return pd.DataFrame({k: pd.Series(v, index=df.index, dtype=v.dtype, copy=False) for k, v in columns.items()},
                             columns=list(RESULT_COLUMNS), copy=False)
-
-    def _caution_text(self, marks: np.ndarray) -> np.ndarray:
-        """The cautions cell for each distinct fired-rule pattern (standard ones first), given the
-        (rules x patterns) matrix of fired rules."""
-        texts = [self.rules[i].effect.caution for i in self._caution_idx]
-        head = CAUTION_SEP.join(with_standard())
-        if len(set(texts)) == len(texts) and not set(texts) & set(with_standard()):
-            return _join_columns(marks[self._caution_idx], texts, CAUTION_SEP,
-                                 lambda extra: np.where(extra == "", head, head + CAUTION_SEP + extra))
-        return np.array([CAUTION_SEP.join(with_standard([texts[j] for j in np.flatnonzero(col)]))
-                         for col in marks[self._caution_idx].T], dtype=object)
 
     def results_from_frame(self, out: pd.DataFrame) -> list[ScreeningResult]:
         """ScreeningResult objects from the frame :meth:`screen_frame` returned."""
@@ -882,7 +655,8 @@ def screen(record: PatientRecord, rules: RuleSet | None = None) -> ScreeningResu
     return engine_for(rules).screen(record)
 
 
-def screen_batch(df: pd.DataFrame, rules: RuleSet | None = None) -> pd.DataFrame:
+def screen_batch(df: pd.DataFrame, rules: RuleSet | None = None,
+                 fractures: FractureColumns | None = None) -> pd.DataFrame:
     """Screen a caseload at once (vectorised evaluator).
 
     Parameters
@@ -892,6 +666,9 @@ def screen_batch(df: pd.DataFrame, rules: RuleSet | None = None) -> pd.DataFrame
         :func:`prescribe.batch_io.records_to_frame`).
     rules : RuleSet, optional
         Another rule set; the shipped one when omitted.
+    fractures : FractureColumns, optional
+        The per-person fracture figures already read from the cells (the batch reader's
+        :class:`prescribe.batch_io.Caseload` carries them); read from ``df`` when omitted.
 
     Returns
     -------
@@ -899,7 +676,7 @@ def screen_batch(df: pd.DataFrame, rules: RuleSet | None = None) -> pd.DataFrame
         One row a person, columns :data:`RESULT_COLUMNS`; ``avoid`` and ``flags`` are
         ``;``-joined, ``cautions`` is ``' | '``-joined.
     """
-    return engine_for(rules).screen_frame(df)
+    return engine_for(rules).screen_frame(df, fractures)
 
 
 def results_from_frame(out: pd.DataFrame, rules: RuleSet | None = None) -> list[ScreeningResult]:

@@ -11,13 +11,12 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from prescribe.batch_io import (RECORD_COLUMNS, format_fractures, frame_to_records, parse_fractures,
-                                read_batch_csv, record_to_row, records_to_frame, write_batch_csv,
-                                write_results_csv)
+from prescribe.batch_io import (RECORD_COLUMNS, format_fractures, fracture_columns, frame_to_records,
+                                parse_fractures, read_batch_csv, record_to_row, records_to_frame,
+                                write_batch_csv, write_results_csv)
 from prescribe.errors import InputError
 from prescribe.records import load_record
-from prescribe.screening import (RESULT_COLUMNS, _fracture_aggregates_fast, _fracture_aggregates_slow,
-                                 results_from_frame, screen, screen_batch)
+from prescribe.screening import RESULT_COLUMNS, results_from_frame, screen, screen_batch
 
 HEADER = ",".join(RECORD_COLUMNS)
 ROW_OK = "NTC-0100,72,female,61.5,158,-2.7,-2.1,,vertebra:14:y;wrist:60:n,1,12.5,9,8,5,6,knee_osteoarthritis;thoracic_kyphosis,2"
@@ -66,15 +65,36 @@ def test_fracture_cell_format():
             parse_fractures(bad)
 
 
+def _item_parser_figures(cells):
+    """The per-person fracture figures worked out with the item parser, one cell at a time."""
+    count, vert, lt_hip, hip, last = [], [], [], [], []
+    for text in cells:
+        items = parse_fractures(text)
+        count.append(float(sum(low for _, _, low in items)))
+        vert.append(any(low and site == "vertebra" for site, _, low in items))
+        lt_hip.append(any(low and site == "hip" for site, _, low in items))
+        hip.append(any(site == "hip" for site, _, _ in items))
+        last.append(min((m for _, m, _ in items), default=np.nan))
+    return [np.array(count), np.array(vert, dtype=bool), np.array(lt_hip, dtype=bool),
+            np.array(hip, dtype=bool), np.array(last)]
+
+
+def _column_parser_figures(cells):
+    columns, normal, reasons = fracture_columns(cells)
+    assert reasons == {}
+    assert list(normal) == [format_fractures(parse_fractures(c)) for c in cells]
+    return [columns.low_trauma_count, columns.low_trauma_vertebral, columns.low_trauma_hip, columns.hip,
+            columns.months_since_last]
+
+
 @pytest.mark.parametrize("cells", [
     ["", "vertebra:14:y;wrist:60:n", "hip:2.5:n", "vertebra:0.00001:y;vertebra:3:y", "other:0:n;rib:.5:y"],
     ["", ""], ["pelvis:1200:y"], ["humerus:0.1:n;humerus:0.3:y;hip:007.250:n", "rib:1.:y"],
     ["other:1199.99999999999:n;wrist:0.00000000000001:y"],
 ])
-def test_bulk_fracture_parser_agrees_with_the_item_parser(cells):
-    fast, slow = _fracture_aggregates_fast(cells), _fracture_aggregates_slow(cells)
-    assert fast is not None
-    for a, b in zip(fast, slow):
+def test_column_fracture_parser_agrees_with_the_item_parser(cells):
+    for a, b in zip(_column_parser_figures(cells), _item_parser_figures(cells)):
+        assert a.dtype == b.dtype
         assert np.array_equal(a, b, equal_nan=True)
 
 
@@ -84,29 +104,52 @@ _SITES = st.sampled_from(["vertebra", "hip", "wrist", "humerus", "pelvis", "rib"
 @settings(max_examples=60, deadline=None)
 @given(st.lists(st.lists(st.tuples(_SITES, st.integers(0, 120_000).map(lambda c: c / 100), st.booleans()),
                          max_size=4), max_size=8))
-def test_bulk_fracture_parser_takes_and_agrees_on_plain_cells(cell_items):
-    # Months with at most two decimals, as a clinic writes them: the plain form the bulk parser
-    # is for. It must take every such cell (never hand it over) and agree with the item parser.
+def test_column_fracture_parser_agrees_on_plain_cells(cell_items):
+    # Months with at most two decimals, as a clinic writes them.
     cells = [format_fractures({"site": s, "months_ago": m, "low_trauma": lt} for s, m, lt in items)
              for items in cell_items]
-    fast, slow = _fracture_aggregates_fast(cells), _fracture_aggregates_slow(cells)
-    assert fast is not None
-    for a, b in zip(fast, slow):
+    for a, b in zip(_column_parser_figures(cells), _item_parser_figures(cells)):
         assert np.array_equal(a, b, equal_nan=True)
 
 
-@pytest.mark.parametrize("cell", ["hip:1e-05:y", "hip:0.30000000000000004:y", " hip:3:y", "hip:3:x", "hip:3:y;",
-                                  "knee:3:y", "hip:3", "hip::y", "hip:1.2.3:y", "hip:1201:y", "hip:-1:y"])
-def test_bulk_fracture_parser_hands_unusual_cells_over(cell):
-    assert _fracture_aggregates_fast(["wrist:3:n", cell]) is None
+@settings(max_examples=60, deadline=None)
+@given(st.lists(st.lists(st.tuples(_SITES, st.floats(0, 1200, allow_nan=False, allow_infinity=False),
+                                   st.booleans(), st.sampled_from(["{}", " {} ", "{}  "]),
+                                   st.sampled_from([repr, lambda m: f"{m:e}", lambda m: f"{m:.20f}", str])),
+                         max_size=4), max_size=8))
+def test_column_fracture_parser_agrees_on_unusual_but_valid_numbers(cell_items):
+    # Exponents, 20 decimals, spaces around items and parts: valid, and read exactly as float() reads them.
+    cells = [";".join(pad.format(f"{s}: {fmt(m)} :{'y' if lt else 'n'}") for s, m, lt, pad, fmt in items)
+             for items in cell_items]
+    for a, b in zip(_column_parser_figures(cells), _item_parser_figures(cells)):
+        assert np.array_equal(a, b, equal_nan=True)
+
+
+@pytest.mark.parametrize("cell", ["hip:1e-05:y", "hip:0.30000000000000004:y", " hip:3:y", "hip: 1_0 :n"])
+def test_column_fracture_parser_takes_unusual_valid_cells(cell):
+    # These went to a slower parser before; now the one column parser reads them like the item parser.
+    cells = ["wrist:3:n", cell]
+    for a, b in zip(_column_parser_figures(cells), _item_parser_figures(cells)):
+        assert np.array_equal(a, b, equal_nan=True)
+
+
+@pytest.mark.parametrize("cell", ["hip:3:x", "hip:3:y;", "knee:3:y", "hip:3", "hip::y", "hip:1.2.3:y",
+                                  "hip:1201:y", "hip:-1:y", "hip:nan:y", "hip:inf:y"])
+def test_column_fracture_parser_names_each_bad_cell_with_the_item_parsers_reason(cell):
+    columns, normal, reasons = fracture_columns(["wrist:3:n", cell, "", cell])
+    with pytest.raises(ValueError) as caught:
+        parse_fractures(cell)
+    assert reasons == {1: str(caught.value), 3: str(caught.value)}
+    assert list(normal) == ["wrist:3:n", "", "", ""]
+    assert list(columns.low_trauma_count) == [0.0, 0.0, 0.0, 0.0]
 
 
 def test_bulk_fracture_parser_hands_unusual_cells_to_the_item_parser():
-    assert _fracture_aggregates_fast([" hip:3:y"]) is None
-    assert _fracture_aggregates_fast(["hip:3:x"]) is None
-    with pytest.raises(InputError, match="fractures"):
+    # A frame handed straight to the screening: a bad fracture cell is bad input naming the cell.
+    with pytest.raises(InputError, match="fractures") as caught:
         screen_batch(pd.DataFrame({"patient_id": ["A"], "age_years": [70], "sex": ["female"],
                                    "body_mass_kg": [60.0], "height_cm": [160.0], "fractures": ["knee:3:y"]}))
+    assert "unknown site 'knee'" in str(caught.value) and "'knee:3:y'" in str(caught.value)
 
 
 # --- bad rows: the field names the row (numbered from 1 under the header) and the column ----------

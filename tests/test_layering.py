@@ -50,3 +50,21 @@ def test_no_module_outside_ui_imports_widgets():
     if bad:  # name the culprits: import each alone
         culprits = [m for m in modules if _widget_modules_after_import([m])[1]]
         raise AssertionError(f"{', '.join(culprits)} import {bad}")
+
+
+#: Modules above the domain: storage, handouts, the app, the command line, and the modules that
+#: compose the domain with the store (the demo, the caseload what-if, the template library).
+ABOVE_DOMAIN = ("prescribe.store", "prescribe.handout", "prescribe.ui", "prescribe.cli")
+COMPOSERS = ("prescribe.demo", "prescribe.caseload", "prescribe.template_library")
+
+
+def test_the_domain_never_imports_the_store_the_handout_or_the_app():
+    domain = [m for m in non_ui_modules() if not m.startswith(ABOVE_DOMAIN) and m not in COMPOSERS]
+    assert "prescribe.safety" in domain and "prescribe.planner" in domain
+    code = ("import importlib, sys\n"
+            f"for name in {domain!r}:\n"
+            "    importlib.import_module(name)\n"
+            f"print(','.join(sorted(m for m in sys.modules if m.startswith({ABOVE_DOMAIN!r}))))")
+    proc = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=300)
+    assert proc.returncode == 0, proc.stderr
+    assert proc.stdout.strip() == "", f"the domain imports {proc.stdout.strip()}"

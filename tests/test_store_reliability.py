@@ -199,7 +199,9 @@ def _pause(conn, cursor, statement, parameters, context, executemany):
     if statement.lstrip().upper().startswith("CREATE TABLE"):
         seen.append(statement.split("(")[0].split()[-1])
         if len(seen) == k:
-            marker.write_text(f"in transaction: {conn.in_transaction()}; created {seen[-1]}")
+            partial = marker.with_suffix(".partial")  # written whole, then renamed: never read half-written
+            partial.write_text(f"in transaction: {conn.in_transaction()}; created {seen[-1]}")
+            partial.replace(marker)
             time.sleep(600)
 
 from prescribe.store import open_store

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import asyncio
+import concurrent.futures
 from pathlib import Path
 
 import pytest
@@ -44,6 +45,13 @@ def test_bad_limits_are_bad_input_naming_the_option(kwargs, field):
         app_cmd.voila_command(8866, Path("clinic.ipynb"), **kwargs)
 
 
+def _run(coroutine):
+    """Run a coroutine on a loop of its own in another thread (other tests may leave a loop
+    running in this one)."""
+    with concurrent.futures.ThreadPoolExecutor(max_workers=1) as pool:
+        return pool.submit(asyncio.run, coroutine).result()
+
+
 def test_no_kernel_is_started_past_the_limit():
     manager = server.LimitedKernelManager(max_kernels=2)
     started = []
@@ -57,10 +65,10 @@ def test_no_kernel_is_started_past_the_limit():
     base.start_kernel = fake_start
     try:
         manager.list_kernel_ids = lambda: ["a"]
-        assert asyncio.run(manager.start_kernel(env={})) == "k"
+        assert _run(manager.start_kernel(env={})) == "k"
         manager.list_kernel_ids = lambda: ["a", "b"]
         with pytest.raises(web.HTTPError) as refused:
-            asyncio.run(manager.start_kernel(env={"VOILA_PREHEAT": "True"}))
+            _run(manager.start_kernel(env={"VOILA_PREHEAT": "True"}))
         assert refused.value.status_code == 503
     finally:
         base.start_kernel = original

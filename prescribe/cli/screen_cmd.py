@@ -5,6 +5,7 @@ from __future__ import annotations
 import os
 import sys
 from collections import Counter
+from contextlib import contextmanager
 from pathlib import Path
 
 from ..cautions import with_standard
@@ -111,32 +112,92 @@ def _print_table(result) -> None:
 
 
 def _run_batch(in_path: str, out_path: str, rules=None, table: bool = False) -> int:
-    from ..batch_io import read_batch_csv, write_results_csv
-    from ..screening import RULESET_VERSION, screen_batch
+    """Screen the caseload a chunk at a time: read and validate a chunk, screen it, append its
+    results to a temporary file that replaces OUT.csv only when the whole caseload was valid."""
+    from ..batch_io import ResultsWriter, iter_batch_csv
+    from ..screening import RESULT_COLUMNS, engine_for
 
-    frame = read_batch_csv(in_path)          # raises InputError before anything is written
-    results = screen_batch(frame, rules)
-    write_results_csv(results, out_path)     # atomic: whole file or nothing
+    engine = engine_for(rules)
+    counts: Counter = Counter()
+    levels: Counter = Counter()
+    refer = falls = 0
+    shown = []
+    bar = _ProgressBar(sys.stderr) if sys.stderr.isatty() else None
+    chunks = iter_batch_csv(in_path, progress=bar.update if bar else None)
+    try:
+        out = ResultsWriter(out_path, RESULT_COLUMNS)
+    except InputError:
+        with _finished_line(bar):
+            for _ in chunks:                         # the caseload's own problems are reported first
+                pass
+        raise
+    with out, _finished_line(bar):
+        for chunk in chunks:
+            results = engine.screen_frame(chunk.frame, chunk.fractures)
+            out.write(results)                       # to the temporary file: whole file or nothing
+            counts.update(results["bone_density_category"].tolist())
+            levels.update(results["max_impact_level"].tolist())
+            refer += int(results["refer"].sum())
+            falls += int(results["falls_risk"].sum())
+            if table:
+                shown.append(results[["patient_id", "bone_density_category", "max_impact_level", "refer",
+                                      "falls_risk", "flags"]])
+    if bar:
+        bar.done(out.rows)
     if table:
+        rows = [r for part in shown for r in part.itertuples()]
         emit_table([{"patient_id": r.patient_id, "category": r.bone_density_category,
                      "max_level": r.max_impact_level, "refer": "YES" if r.refer else "no",
                      "falls_risk": "yes" if r.falls_risk else "no", "flags": r.flags.replace(";", ", ")}
-                    for r in results.itertuples()],
+                    for r in rows],
                    ["patient_id", "category", "max_level", "refer", "falls_risk", "flags"])
-        sys.stdout.write(f"\n{len(results)} patients written to {out_path}\nCautions:\n")
+        sys.stdout.write(f"\n{out.rows} patients written to {out_path}\nCautions:\n")
         for c in with_standard():
             sys.stdout.write(f"- {c}\n")
         return 0
-    counts = Counter(results["bone_density_category"].tolist())
     emit_json({
         "input": in_path,
         "output": out_path,
-        "patients": int(len(results)),
-        "ruleset_version": rules.version if rules is not None else RULESET_VERSION,
+        "patients": out.rows,
+        "ruleset_version": engine.version,
         "by_category": {c: int(counts.get(c, 0)) for c in _CATEGORIES},
-        "refer": int(results["refer"].sum()),
-        "falls_risk": int(results["falls_risk"].sum()),
-        "by_max_impact_level": {str(k): int((results["max_impact_level"] == k).sum()) for k in range(4)},
+        "refer": refer,
+        "falls_risk": falls,
+        "by_max_impact_level": {str(k): int(levels.get(k, 0)) for k in range(4)},
         "cautions": with_standard(),
     })
     return 0
+
+
+class _ProgressBar:
+    """A one-line progress bar on a terminal (stderr), redrawn after each chunk."""
+
+    WIDTH = 30
+
+    def __init__(self, stream):
+        self.stream = stream
+        self.open = False                            # a bar is drawn and its line not ended
+
+    def update(self, done_bytes: int, total_bytes: int) -> None:
+        share = min(1.0, done_bytes / total_bytes) if total_bytes else 1.0
+        filled = int(share * self.WIDTH)
+        self.stream.write(f"\rscreening [{'#' * filled}{'.' * (self.WIDTH - filled)}] {share:4.0%}")
+        self.stream.flush()
+        self.open = True
+
+    def done(self, rows: int) -> None:
+        self.stream.write(f"\rscreening [{'#' * self.WIDTH}] {rows:,} people\n")
+        self.stream.flush()
+        self.open = False
+
+
+@contextmanager
+def _finished_line(bar: "_ProgressBar | None"):
+    """On an error, end the progress bar's line so that the message starts on a line of its own."""
+    try:
+        yield
+    except BaseException:
+        if bar is not None and bar.open:
+            bar.stream.write("\n")
+            bar.open = False
+        raise

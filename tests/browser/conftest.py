@@ -83,6 +83,15 @@ def wait_for_port(host: str, port: int, proc: subprocess.Popen, timeout_s: float
     raise RuntimeError(f"{host}:{port} did not answer within {timeout_s} s")
 
 
+def stop(proc: subprocess.Popen, timeout_s: float = 20) -> None:
+    """Stop a server this test started: politely, then for good."""
+    proc.terminate()
+    try:
+        proc.wait(timeout=timeout_s)
+    except subprocess.TimeoutExpired:
+        proc.kill()
+
+
 class AppServer:
     def __init__(self, url: str, db_path: Path, proc: subprocess.Popen, log: Path):
         self.url, self.db_path, self.proc, self.log = url, db_path, proc, log
@@ -111,11 +120,7 @@ def app_server(tmp_path_factory):
         wait_for_port("127.0.0.1", port, proc)
         yield AppServer(url, db_path, proc, log)
     finally:
-        proc.terminate()
-        try:
-            proc.wait(timeout=15)
-        except subprocess.TimeoutExpired:
-            proc.kill()
+        stop(proc, 15)
         if SHOTS.exists():
             shutil.copy(log, SHOTS / "server.log")
 

@@ -15,7 +15,7 @@ import time
 from contextlib import contextmanager
 from pathlib import Path
 
-from .conftest import PAGE_TIMEOUT_MS, free_port, prescribe_exe, shot, wait_for_port
+from .conftest import PAGE_TIMEOUT_MS, free_port, prescribe_exe, shot, stop, wait_for_port
 
 #: Opening the app executes this notebook's cells: the slow one never answers in time.
 SLOW_NOTEBOOK = {
@@ -39,11 +39,7 @@ def server(tmp_path: Path, *args: str):
         wait_for_port("127.0.0.1", port, proc)
         yield f"http://127.0.0.1:{port}/", log
     finally:
-        proc.terminate()
-        try:
-            proc.wait(timeout=20)
-        except subprocess.TimeoutExpired:
-            proc.kill()
+        stop(proc)
 
 
 def test_past_the_page_limit_a_page_says_busy_and_gets_in_by_itself(tmp_path, context):
@@ -94,8 +90,4 @@ def test_a_kernel_that_does_not_answer_shows_a_message_and_a_way_to_try_again(tm
         shot(page, "load-kernel-timeout")
         assert "timed out" in log.read_text().lower()
     finally:
-        proc.terminate()
-        try:
-            proc.wait(timeout=20)
-        except subprocess.TimeoutExpired:
-            proc.kill()
+        stop(proc)

@@ -1,4 +1,4 @@
-"""Alembic environment of the store: always run from code (prescribe.store.api).
+"""Alembic environment of the store: always run from code (prescribe.store.engine).
 
 The caller hands over an open connection already inside a write transaction
 (``config.attributes["connection"]``), so a migration is one transaction that
