@@ -221,9 +221,7 @@ def option_range(name: str) -> tuple[int, int]:
 def fixed_options(plan: Plan) -> dict[str, Any]:
     """The options the clinician fixed when the plan was built (its ``options.fixed``), as
     :class:`PlanOptions` keywords, so the same program can be rebuilt with one change."""
-    recorded = _extra(plan, "options") or {}
-    if not isinstance(recorded, dict):
-        return {}
+    recorded = plan.options or {}
     out = {}
     for name in recorded.get("fixed") or ():
         if name in PlanOptions.model_fields and name in recorded:
@@ -234,9 +232,7 @@ def fixed_options(plan: Plan) -> dict[str, Any]:
 
 def plan_swaps(plan: Plan) -> list[tuple[str, str]]:
     """The swaps :func:`replace_exercise` made on this plan, oldest first, as (old_id, new_id)."""
-    swaps = _extra(plan, "swaps") or []
-    return [(str(s["old"]), str(s["new"])) for s in swaps
-            if isinstance(s, dict) and "old" in s and "new" in s]
+    return [(s.old, s.new) for s in plan.swaps or ()]
 
 
 # =========================================================================================
@@ -1078,22 +1074,17 @@ def weekly_summary(plan: Plan) -> pd.DataFrame:
     """One row a week: the columns of :data:`SUMMARY_COLUMNS` (``sessions`` is a count)."""
     rows = []
     for w in plan.weeks:
-        extra = w.model_extra or {}
+        weekly_oi = w.weekly_osteogenic_index
         rows.append({
-            "week": w.week, "phase": extra.get("phase", ""), "impact_level": w.impact_level,
+            "week": w.week, "phase": w.phase, "impact_level": w.impact_level,
             "impacts_per_session": w.impacts_per_session, "sessions": len(w.sessions),
-            "weekly_osteogenic_index": extra.get("weekly_osteogenic_index",
-                                                 round(sum(s.osteogenic_index for s in w.sessions), 2)),
-            "weak_window": bool(extra.get("weak_window", False)), "reassessment": w.reassessment,
+            "weekly_osteogenic_index": round(sum(s.osteogenic_index for s in w.sessions), 2)
+            if weekly_oi is None else weekly_oi,
+            "weak_window": bool(w.weak_window), "reassessment": w.reassessment,
             # Read from the exercises, so a week never states more than it prescribes.
             "resistance_intensity_pct_1rm": prescribed_pct_1rm(x for s in w.sessions for x in s.exercises),
         })
     return pd.DataFrame(rows, columns=SUMMARY_COLUMNS)
-
-
-def _extra(model, key, default=None):
-    extra = getattr(model, "model_extra", None) or {}
-    return extra.get(key, default)
 
 
 #: The rule number of docs/plan.md each rule of :mod:`prescribe.safety` belongs to (for check_plan's text).

@@ -366,11 +366,6 @@ def _session_facts(kind: str, xs) -> _SessionFacts:
     return _SessionFacts(impacts, top, pct, rpe, vol, balance, frozenset(dirs), tuple(landing))
 
 
-def _extra(model, key, default=None):
-    extra = getattr(model, "model_extra", None) or {}
-    return extra.get(key, default)
-
-
 # =========================================================================================
 # The rules (one function a rule)
 # =========================================================================================
@@ -456,7 +451,7 @@ def rule_bout_split(f: _Facts) -> Iterator[SafetyViolation]:
                 if s.day != day:
                     continue
                 for x in sf.landing:
-                    gap = _extra(x, "bout_gap_hours")
+                    gap = x.bout_gap_hours
                     if x.bouts < need or gap is None or gap < MIN_BOUT_GAP_H:
                         yield SafetyViolation(
                             "bout_split", wk.week, x.exercise_id,
@@ -550,7 +545,7 @@ def rule_weak_window(f: _Facts) -> Iterator[SafetyViolation]:
                         + " (no increase of any kind in weeks 3-5)", SRC_REMODEL)
     for j in range(1, n):
         wk = f.weeks[j]
-        if not (wk.model_extra or {}).get("weak_window"):
+        if not wk.weak_window:
             continue
         for attr, what, allowed, fmt in _MEASURES:
             values = getattr(f, attr)
@@ -732,13 +727,8 @@ def rule_falls_risk_limits(f: _Facts) -> Iterator[SafetyViolation]:
 
 def rule_swap_same_kind(f: _Facts) -> Iterator[SafetyViolation]:
     """A swap keeps the kind of movement and the person's limits."""
-    swaps = _extra(f.plan, "swaps") or []
-    if not isinstance(swaps, list):
-        return
-    for sw in swaps:
-        if not isinstance(sw, dict):
-            continue
-        old_id, new_id = str(sw.get("old")), str(sw.get("new"))
+    for sw in f.plan.swaps or ():
+        old_id, new_id = sw.old, sw.new
         old, new = f.entries.get(old_id), f.entries.get(new_id)
         if old is None or new is None:
             yield SafetyViolation("swap_same_kind", None, new_id,
@@ -870,14 +860,14 @@ def limits_for(plan: Plan, screening: ScreeningResult | None = None, *,
     if record is not None:
         found.append(("re-screened record", rescreen(record)))
     cap = min(s.max_impact_level for _, s in found)
-    plan_cap = _extra(plan, "max_impact_level")
-    if isinstance(plan_cap, int) and not isinstance(plan_cap, bool) and 0 <= plan_cap < cap:
+    plan_cap = plan.max_impact_level
+    if plan_cap is not None and 0 <= plan_cap < cap:
         cap = plan_cap  # the template's own cap can only lower the screening's
     avoid = frozenset(p for _, s in found for p in s.avoid)
-    max_imp = _extra(plan, "max_impacts_per_session", IMPACTS_CEILING)
-    if not isinstance(max_imp, int) or isinstance(max_imp, bool) or max_imp < 0:
+    max_imp = plan.max_impacts_per_session
+    if max_imp is None or max_imp < 0:
         max_imp = IMPACTS_CEILING
-    if max_imp > IMPACTS_CEILING and not _extra(plan, "max_impacts_reason", ""):
+    if max_imp > IMPACTS_CEILING and not plan.max_impacts_reason:
         max_imp = IMPACTS_CEILING
     return Limits(
         cap=cap, avoid=avoid,
@@ -885,7 +875,7 @@ def limits_for(plan: Plan, screening: ScreeningResult | None = None, *,
         refer=any(s.refer for _, s in found),
         supervision=any(s.supervision for _, s in found),
         spine_sparing=bool(avoid & SPINAL_PATTERNS)
-        or _extra(plan, "spine_sparing") is True,
+        or plan.spine_sparing is True,
         max_impacts=max_imp,
         origins=tuple(name for name, _ in found),
     )

@@ -305,18 +305,14 @@ class ClinicSession:
     def chart_series(self) -> ChartSeries:
         """The per-week numbers of the program (empty lists before a program exists)."""
         weeks = self.plan.weeks if self.plan else []
-        def extra(w, name, default):
-            value = getattr(w, name, None)
-            if value is None and w.model_extra:
-                value = w.model_extra.get(name)
-            return default if value is None else value
         return ChartSeries(
             week=[w.week for w in weeks],
             impacts_per_session=[w.impacts_per_session for w in weeks],
             impact_level=[w.impact_level for w in weeks],
-            osteogenic_index=[float(extra(w, "weekly_osteogenic_index",
-                                          sum(s.osteogenic_index for s in w.sessions))) for w in weeks],
-            weak_window=[bool(extra(w, "weak_window", False)) for w in weeks],
+            osteogenic_index=[float(sum(s.osteogenic_index for s in w.sessions)
+                                    if w.weekly_osteogenic_index is None else w.weekly_osteogenic_index)
+                              for w in weeks],
+            weak_window=[bool(w.weak_window) for w in weeks],
         )
 
     def week_rows(self) -> list[dict]:
