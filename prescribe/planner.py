@@ -59,9 +59,11 @@ from . import __version__
 from .cautions import with_standard
 from .dose import daily_osteogenic_index, osteogenic_index
 from .errors import FieldProblem, InputError, PlanRequestRefused
-from .plan_schema import PLAN_FORMAT_VERSION, Plan, PlannedExercise, PlannedSession, PlannedWeek
+from .catalogue import IMPACT_LEVEL_LABELS
+from .plan_schema import (PLAN_FORMAT_VERSION, Plan, PlannedExercise, PlannedSession, PlannedWeek,
+                          in_weak_window)
 from .planner_rules import IMPACTS_CEILING, ResistancePhase, Template, load_template, template_names
-from .option_limits import OPTION_RANGES
+from .option_limits import OPTION_DEFAULTS, OPTION_RANGES
 from .records import PatientRecord, ScreeningResult
 from .safety import SUPERVISED_FROM_PCT_1RM, pct_1rm as _pct_1rm
 
@@ -69,7 +71,7 @@ __all__ = ["PlanOptions", "build_plan", "weekly_summary", "check_plan", "replace
            "reassessment_weeks", "option_range", "fixed_options", "plan_swaps", "IMPACT_LABELS",
            "SUMMARY_COLUMNS"]
 
-IMPACT_LABELS: dict[int, str] = {0: "no impact", 1: "low impact", 2: "moderate impact", 3: "high impact"}
+IMPACT_LABELS = IMPACT_LEVEL_LABELS  # the catalogue's, next to the level boundaries
 
 #: Columns of :func:`weekly_summary`, in order.
 SUMMARY_COLUMNS: list[str] = ["week", "phase", "impact_level", "impacts_per_session", "sessions",
@@ -171,11 +173,13 @@ class PlanOptions(BaseModel):
 
     model_config = ConfigDict(extra="forbid", frozen=True, strict=True)
 
-    weeks: int = Field(26, ge=OPTION_RANGES["weeks"][0], le=OPTION_RANGES["weeks"][1])
+    weeks: int = Field(OPTION_DEFAULTS["weeks"], ge=OPTION_RANGES["weeks"][0], le=OPTION_RANGES["weeks"][1])
     start_level: int | None = Field(None, ge=OPTION_RANGES["start_level"][0], le=OPTION_RANGES["start_level"][1])
-    impact_sessions_per_week: int = Field(3, ge=OPTION_RANGES["impact_sessions_per_week"][0],
+    impact_sessions_per_week: int = Field(OPTION_DEFAULTS["impact_sessions_per_week"],
+                                          ge=OPTION_RANGES["impact_sessions_per_week"][0],
                                           le=OPTION_RANGES["impact_sessions_per_week"][1])
-    resistance_sessions_per_week: int = Field(2, ge=OPTION_RANGES["resistance_sessions_per_week"][0],
+    resistance_sessions_per_week: int = Field(OPTION_DEFAULTS["resistance_sessions_per_week"],
+                                              ge=OPTION_RANGES["resistance_sessions_per_week"][0],
                                               le=OPTION_RANGES["resistance_sessions_per_week"][1])
     balance_sessions_per_week: int | None = Field(None, ge=OPTION_RANGES["balance_sessions_per_week"][0],
                                                   le=OPTION_RANGES["balance_sessions_per_week"][1])
@@ -637,7 +641,7 @@ class _Builder:
 
         def window_pos(w: int) -> int:
             """The largest position (3-5) of week w inside a window, else 0."""
-            return max((w - s + 1 for s in starts if 3 <= w - s + 1 <= 5), default=0)
+            return max((w - s + 1 for s in starts if in_weak_window(w - s + 1)), default=0)
 
         for w in range(1, self.options.weeks + 1):
             step_up = False
@@ -646,7 +650,7 @@ class _Builder:
                 asked = requested is not None and w in requested
                 if pos:
                     if asked:
-                        first = max(s for s in starts if 3 <= w - s + 1 <= 5)
+                        first = max(s for s in starts if in_weak_window(w - s + 1))
                         self._refuse_step(w, "rule 3", f"week {w} is week {w - first + 1} after the new or larger "
                                           f"stimulus of week {first}: weeks 3 to 5 after it carry no escalation "
                                           "(resorption precedes formation; Eriksen 1986)")
@@ -823,7 +827,8 @@ class _Builder:
         k_i, k_r = opts.impact_sessions_per_week, opts.resistance_sessions_per_week
         k_b = opts.balance_sessions_per_week
         if k_b is None:
-            k_b = tpl.balance["sessions_falls_risk"] if self.falls else 3
+            k_b = (tpl.balance["sessions_falls_risk"] if self.falls
+                   else OPTION_DEFAULTS["balance_sessions_per_week"])
         bal_minutes = tpl.balance["minutes_falls_risk"] if self.falls else None
         impact_days = _IMPACT_DAYS[k_i]
         res_days = _RESISTANCE_DAYS[k_r]

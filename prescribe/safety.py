@@ -25,8 +25,9 @@ from dataclasses import dataclass, field
 from functools import lru_cache
 from typing import Callable, Iterable, Iterator
 
+from .catalogue import IMPACT_LEVEL_LABELS
 from .errors import UnsafeProgram
-from .plan_schema import Plan
+from .plan_schema import Plan, weak_window_weeks
 from .records import PatientRecord, ScreeningResult
 
 __all__ = ["SafetyViolation", "Limits", "Rule", "RULES", "check_program", "assert_safe", "limits_for",
@@ -84,7 +85,7 @@ IMPACTS_CEILING = 100
 #: session at 80-85% 1RM and above was supervised).
 SUPERVISED_FROM_PCT_1RM = 80.0
 
-IMPACT_LABELS: dict[int, str] = {0: "no impact", 1: "low impact", 2: "moderate impact", 3: "high impact"}
+IMPACT_LABELS = IMPACT_LEVEL_LABELS  # the catalogue's, next to the level boundaries
 
 #: Spine-sparing limits for resistance work (see SRC_SPINE).
 SPINE_MAX_SETS = 3
@@ -529,7 +530,7 @@ def rule_weak_window(f: _Facts) -> Iterator[SafetyViolation]:
     for i in _stimulus_starts(f):
         if i + 1 >= n:
             continue
-        for j in (i + 2, i + 3, i + 4):
+        for j in sorted(weak_window_weeks([i])):  # 0-based indices of weeks 3-5 from index i
             if j >= n:
                 break
             for attr, what, allowed, fmt in _MEASURES:

@@ -121,3 +121,35 @@ def test_a_typed_field_of_the_wrong_kind_is_named():
     with pytest.raises(PlanFileError) as info:
         parse_plan(minimal_plan(swaps=[{"old": "brisk_walk"}]))
     assert "swaps" in str(info.value)
+
+
+def test_the_weak_window_is_weeks_3_to_5_after_each_step_up():
+    # PRODUCT.md: weeks 3-5 after a new or larger stimulus (the step-up week is week 1).
+    from prescribe.plan_schema import in_weak_window, weak_window_weeks
+
+    assert weak_window_weeks([1]) == {3, 4, 5}
+    assert weak_window_weeks([1, 9]) == {3, 4, 5, 11, 12, 13}
+    assert [p for p in range(0, 8) if in_weak_window(p)] == [3, 4, 5]
+
+
+def test_one_table_of_impact_level_labels():
+    import prescribe.handout.content as content
+    import prescribe.planner as planner
+    import prescribe.safety as safety
+    from prescribe.catalogue import IMPACT_LEVEL_LABELS
+
+    assert IMPACT_LEVEL_LABELS == {0: "no impact", 1: "low impact", 2: "moderate impact", 3: "high impact"}
+    assert planner.IMPACT_LABELS is IMPACT_LEVEL_LABELS and safety.IMPACT_LABELS is IMPACT_LEVEL_LABELS
+    assert content.LEVEL_LABELS is IMPACT_LEVEL_LABELS
+    assert content.LEVEL_WORDS[2] == "moderate impact (like skipping or gentle stamps)"
+
+
+def test_the_plan_command_help_states_the_option_table(cli):
+    from prescribe.option_limits import OPTION_DEFAULTS, OPTION_RANGES
+
+    done = cli("plan", "--help")
+    text = " ".join(done.stdout.split())
+    low, high = OPTION_RANGES["weeks"]
+    assert f"program length, {low}-{high} weeks (default {OPTION_DEFAULTS['weeks']})" in text
+    low, high = OPTION_RANGES["resistance_sessions_per_week"]
+    assert f"resistance sessions a week, {low}-{high} (default 2)" in text

@@ -15,22 +15,18 @@ from dataclasses import dataclass, field, replace
 from functools import lru_cache
 from typing import Any
 
+from ..catalogue import IMPACT_LEVEL_LABELS
 from ..cautions import with_standard
-from ..plan_schema import Plan, PlannedExercise, PlannedWeek
+from ..plan_schema import Plan, PlannedExercise, PlannedWeek, weak_window_weeks
 
 DAY_NAMES = ("Monday", "Tuesday", "Wednesday", "Thursday", "Friday", "Saturday", "Sunday")
 DAY_SHORT = ("Mon", "Tue", "Wed", "Thu", "Fri", "Sat", "Sun")
 
-#: Our impact scale (PRODUCT.md), in plain words for the person.
-LEVEL_WORDS = {0: "no impact (feet stay on the floor)", 1: "low impact (like brisk walking)",
-               2: "moderate impact (like skipping or gentle stamps)", 3: "high impact (like jumps and hops)"}
-LEVEL_LABELS = {0: "no impact", 1: "low impact", 2: "moderate impact", 3: "high impact"}
-
-#: Weeks after a step-up (the step-up week counts as week 1) when bone is transiently
-#: weaker because resorption runs ahead of formation: weeks 3 to 5.  Remodelling
-#: sequence: Eriksen 1986, Endocr Rev 7:379 (resorption about 3 weeks); remodelling
-#: transient: Heaney, Yates & Santora 1997, J Bone Miner Res 12:1143.
-WEAK_WINDOW_OFFSETS = (2, 3, 4)
+#: Our impact scale (PRODUCT.md): the catalogue's labels, with an example for the person.
+LEVEL_LABELS = IMPACT_LEVEL_LABELS
+LEVEL_EXAMPLES = {0: "feet stay on the floor", 1: "like brisk walking", 2: "like skipping or gentle stamps",
+                  3: "like jumps and hops"}
+LEVEL_WORDS = {level: f"{label} ({LEVEL_EXAMPLES[level]})" for level, label in IMPACT_LEVEL_LABELS.items()}
 
 #: Hours between bouts that restore mechanosensitivity: Robling, Burr & Turner 2001,
 #: J Exp Biol 204:3389-3399 ("approximately 8 h of recovery was sufficient").
@@ -114,7 +110,7 @@ def week_facts(plan: Plan) -> list[WeekFacts]:
             steps.append(previous is not None and wk.impact_level > previous)
         previous = wk.impact_level
     step_weeks = [wk.week for wk, s in zip(weeks, steps) if s]
-    derived_weak = {s + k for s in step_weeks for k in WEAK_WINDOW_OFFSETS}
+    derived_weak = weak_window_weeks(step_weeks)
     out = []
     for wk, step in zip(weeks, steps):
         weak = wk.weak_window if wk.weak_window is not None else wk.week in derived_weak

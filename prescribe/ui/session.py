@@ -18,14 +18,14 @@ import threading
 from dataclasses import dataclass
 from typing import Any
 
+from ..catalogue import IMPACT_LEVEL_LABELS
 from ..cautions import with_standard
 from ..errors import ConflictError, InputError, NotFoundError, PlanRequestRefused, PrescribeError
 from ..records import PatientRecord, parse_record
 from ..settings import current_clinician, hub_login, require_role
 
-#: Our impact scale (PRODUCT.md): level -> plain label.
-IMPACT_LABELS: dict[int, str] = {0: "0 - no impact", 1: "1 - low impact", 2: "2 - moderate impact",
-                                 3: "3 - high impact"}
+#: Our impact scale (PRODUCT.md): level -> "level - label", from the catalogue's labels.
+IMPACT_LABELS: dict[int, str] = {level: f"{level} - {label}" for level, label in IMPACT_LEVEL_LABELS.items()}
 
 
 class EngineMissing(PrescribeError):
@@ -233,7 +233,7 @@ class ClinicSession:
                     + f" [rule {v.rule}]" + kept)
         if exc.field == "start_level" and self.screening is not None:
             cap = self.screening.max_impact_level
-            label = IMPACT_LABELS[cap].split(" - ", 1)[1]
+            label = IMPACT_LEVEL_LABELS[cap]
             if exc.value is not None and exc.value > cap:
                 return f"Refused: Start level {exc.value} is above what the screening allows ({cap}, {label})." + kept
             return f"Refused: Start level {exc.value} is above what the program's template allows: {exc.reason}." + kept
