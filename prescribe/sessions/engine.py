@@ -345,7 +345,7 @@ def compose_weeks(weeks: list[dict], week: int, back: int) -> tuple[list[tuple[i
     idx = first
     while idx < n:
         k = len(seq)  # 0-based new week
-        if s is not None and 3 <= k - s + 1 <= 5 and seq:
+        if s is not None and in_weak_window(k - s + 1) and seq:
             base = doses[seq[s + 1][0]]
             if doses[idx][0] > prev_level or _exceeds(doses[idx], base):
                 notes.append(f"week {k + 1} repeats the dose of week {k} (weeks 3-5 after the step-up in "
