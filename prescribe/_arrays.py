@@ -12,6 +12,7 @@ from typing import Any
 import numpy as np
 
 from .errors import InputError
+from .records import BODY_MASS_RANGE_KG
 
 
 def checked(name: str, value: Any, *, low: float | None = None, high: float | None = None,
@@ -59,11 +60,13 @@ def out(result: Any, *inputs: Any):
 #: Standard acceleration of gravity [m/s^2] (CGPM 1901 conventional value).
 G = 9.80665
 
-#: Body mass accepted by the models [kg]: the patient record's range (records.py).
-BODY_MASS_RANGE_KG = (25.0, 300.0)
-
-
-def body_mass(value: Any) -> np.ndarray:
+def body_mass(value: Any, name: str = "body_mass_kg") -> np.ndarray:
+    """``value`` checked against the patient record's body-mass range (records.py), as an array."""
     lo, hi = BODY_MASS_RANGE_KG
-    return checked("body_mass_kg", value, low=lo, high=hi,
-                   allowed=f"a body mass from {lo:g} to {hi:g} kg")
+    return checked(name, value, low=lo, high=hi, allowed=body_mass_allowed())
+
+
+def body_mass_allowed() -> str:
+    """What a body mass may be, in words: "a body mass from 25 to 300 kg"."""
+    lo, hi = BODY_MASS_RANGE_KG
+    return f"a body mass from {lo:g} to {hi:g} kg"

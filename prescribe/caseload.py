@@ -229,7 +229,7 @@ def _program_figures(record, screening, tpl, catalogue, cache: dict | None) -> d
         figures["refusals"] = [f"planner: {exc}"]
     else:
         figures = plan_figures(plan, tpl)
-        figures["spine_sparing"] = bool((plan.model_extra or {}).get("spine_sparing"))
+        figures["spine_sparing"] = bool(plan.spine_sparing)
         figures["refusals"] = sorted(f"{v['rule']} week {v['week']}" for v in safety_violations(plan, screening))
         figures = {k: figures.get(k) for k in PROGRAM_FIELDS}
     if cache is not None:

@@ -16,7 +16,7 @@ from typing import Any, Iterable, Sequence
 
 import numpy as np
 
-from ._arrays import checked, out
+from ._arrays import body_mass, checked, out
 from .catalogue import DIRECTIONS, Catalogue, default_catalogue
 from .cautions import with_standard
 from .errors import InputError
@@ -466,8 +466,7 @@ def session_dose(exercise_id: str, cycles: int, bouts: int = 1, gap_hours: float
     }
     notes: list[str] = []
     if body_mass_kg is not None:
-        mass = float(checked("body_mass_kg", body_mass_kg, low=25, high=300,
-                             allowed="a body mass from 25 to 300 kg"))
+        mass = float(body_mass(body_mass_kg))
         result["body_mass_kg"] = mass
         result["peak_force_n"] = round(bw_to_newtons(ex.peak_grf_bw, mass), 1)
         result["peak_force_range_n"] = [round(bw_to_newtons(v, mass), 1) for v in ex.peak_grf_range_bw]

@@ -18,7 +18,7 @@ from typing import Any
 
 import numpy as np
 
-from ._arrays import BODY_MASS_RANGE_KG, G, checked
+from ._arrays import G, body_mass, checked
 from .bone_loads import (CORTICAL_MODULUS_MPA, FEMORAL_NECK_YOUNG_BMD_G_CM2,
                          FEMORAL_NECK_YOUNG_SD_G_CM2, T_SCORE_RANGE, anchored_contact_force_bw,
                          density_ratio_from_t_score, density_scaled, shaft_stresses_mpa,
@@ -194,9 +194,7 @@ def _r(value: float, digits: int = 2) -> float:
 
 
 def _inputs(body_mass_kg, t_score, external_load_kg, ex: Exercise) -> tuple[float, float, float]:
-    lo, hi = BODY_MASS_RANGE_KG
-    mass = float(checked("body_mass_kg", body_mass_kg, low=lo, high=hi,
-                         allowed=f"a body mass from {lo:g} to {hi:g} kg"))
+    mass = float(body_mass(body_mass_kg))
     t_lo, t_hi = T_SCORE_RANGE
     t = float(checked("t_score", t_score, low=t_lo, high=t_hi, allowed=f"a T-score from {t_lo:g} to {t_hi:g}"))
     load = float(checked("external_load_kg", external_load_kg, low=0, high=MAX_EXTERNAL_LOAD_KG,

@@ -1,13 +1,17 @@
 """The plan: what ``prescribe plan`` prints and the handout, the store and the app read.
 
-PRODUCT.md fixes the fields other parts rely on; the planner may add fields.
+PRODUCT.md fixes the fields other parts rely on.  Every field the planner, the safety
+check, the sessions engine or the handout writes or reads is typed here, optional with a
+default so that older plan files still read; the planner adds a field only by typing it
+here (``tests/test_plan_schema.py`` checks that a built plan carries no untyped field).
+Unknown fields in a plan file (from another tool) are kept as they are (docs/plan.md).
 A plan file from another ``plan_format_version`` major is refused with a clear error.
 """
 
 from __future__ import annotations
 
 from datetime import date, timedelta
-from typing import Any, Literal
+from typing import Any, Iterable, Literal
 
 from pydantic import BaseModel, ConfigDict, Field, ValidationError, field_validator
 
@@ -18,9 +22,32 @@ PLAN_FORMAT_VERSION = "1.0"
 
 SessionKind = Literal["impact", "resistance", "balance", "mixed"]
 
+#: The weak window: weeks 3 to 5 counted from a new or larger stimulus (the step-up week
+#: is week 1), when bone is transiently weaker because resorption runs ahead of formation;
+#: no increase of any kind then (PRODUCT.md).  Remodelling sequence: Eriksen 1986, Endocr
+#: Rev 7:379 (resorption about 3 weeks); remodelling transient: Heaney, Yates & Santora
+#: 1997, J Bone Miner Res 12:1143.  First and last position, inclusive.
+WEAK_WINDOW_WEEKS: tuple[int, int] = (3, 5)
+
+
+def in_weak_window(position: int) -> bool:
+    """Whether the week at ``position`` after a step up (the step-up week is 1) is in the weak window."""
+    first, last = WEAK_WINDOW_WEEKS
+    return first <= position <= last
+
+
+def weak_window_weeks(step_up_weeks: Iterable[int]) -> set[int]:
+    """The weeks inside the weak window of any of ``step_up_weeks`` (week numbers, or 0-based indices)."""
+    first, last = WEAK_WINDOW_WEEKS
+    return {s + k - 1 for s in step_up_weeks for k in range(first, last + 1)}
+
+#: A figure written as a whole number or a decimal; kept as written (60 stays 60, 8.0 stays 8.0).
+Number = int | float
+
 
 class _Open(BaseModel):
-    # Extra fields are kept: the planner may add fields without breaking readers.
+    # Unknown fields of a plan file (another tool's) are kept and written back unchanged;
+    # prescribe itself reads and writes only the typed fields (docs/plan.md, "Unknown fields").
     model_config = ConfigDict(extra="allow")
 
 
@@ -40,6 +67,13 @@ class PlannedExercise(_Open):
     patterns: list[str] = Field(default_factory=list)
     supervised: bool = Field(False, description="Done only with a clinician or trainer present "
                                                 "(80% 1RM or more, or high impact).")
+    rest_s: Number | None = Field(None, ge=0, description="Rest between sets [s].")
+    bout_gap_hours: Number | None = Field(None, ge=0, description="Hours between the bouts of a split "
+                                                                  "session [h] (null with one bout).")
+    notes: str = Field("", description="How to do it, in plain words.")
+    load_kg: Number | None = Field(None, ge=0, description="Working load from the logged sessions [kg] "
+                                                           "(an adjusted program; docs/sessions.md).")
+    load_note: str | None = Field(None, description="How the working load was found.")
 
 
 class PlannedSession(_Open):
@@ -57,6 +91,24 @@ class PlannedWeek(_Open):
     impacts_per_session: int = Field(ge=0)
     reassessment: bool = False
     sessions: list[PlannedSession]
+    phase: str = Field("", description="The week's phase in words (impact and resistance).")
+    impact_phase: str | None = Field(None, description="The impact part of the phase.")
+    resistance_phase: str | None = Field(None, description="The resistance phase's name.")
+    weak_window: bool | None = Field(None, description="Weeks 3-5 after a step up or the start: no "
+                                                       "increase of any kind (null: not recorded).")
+    step_up: bool | None = Field(None, description="A new or larger stimulus starts this week "
+                                                   "(null: not recorded).")
+    resistance_intensity_pct_1rm: Number | None = Field(None, ge=0, description="The week's highest "
+                                                        "resistance load [% 1RM], null when by effort.")
+    weekly_osteogenic_index: Number | None = Field(None, ge=0, description="Sum of the sessions' "
+                                                   "osteogenic index [BW] (null: not recorded).")
+    impact_volume: Number | None = Field(None, ge=0, description="Impact dose a session, in "
+                                                                 "impact_volume_unit.")
+    impact_volume_unit: str | None = Field(None, description='"reps", "minutes" or "impacts".')
+    balance_minutes_per_session: Number | None = Field(None, ge=0, description="Balance work a "
+                                                                               "session [min].")
+    dose_of_week: int | None = Field(None, ge=1, description="In an adjusted program: the original "
+                                                             "week whose dose this week repeats.")
 
 
 class PlanTemplate(_Open):
@@ -68,6 +120,33 @@ class PlanTemplate(_Open):
     version: int | None = Field(None, ge=1, description="The template's version (1 for a shipped file "
                                                          "unless it says otherwise).")
     origin: str | None = Field(None, description='"shipped" (a file of the package) or "clinic" (the store).')
+
+
+class PlanSwap(_Open):
+    """One exercise swapped for another by ``replace_exercise``."""
+
+    old: str
+    new: str
+
+
+class PlanAdjustment(_Open):
+    """The session-based advice an adjusted program applies (docs/sessions.md)."""
+
+    decision: str
+    week: int
+    as_of: str
+    reasons: list[dict[str, Any]] = Field(default_factory=list)
+    changes: list[str] = Field(default_factory=list)
+    session_ruleset_version: str | None = None
+
+
+class PlanPause(_Open):
+    """A program paused until a clinician has assessed the person (docs/sessions.md)."""
+
+    from_week: int
+    since: str
+    reason: str = ""
+    until: str = ""
 
 
 class Plan(_Open):
@@ -103,6 +182,26 @@ class Plan(_Open):
     draft: bool = False
     cleared_by: str | None = Field(None, min_length=1, max_length=120)
     cleared_at: str | None = Field(None, description="ISO 8601 UTC time of the clearance.")
+    # What the planner was asked and the limits it built to.
+    options: dict[str, Any] | None = Field(None, description="The planner's options, with the names the "
+                                                             "clinician fixed under \"fixed\".")
+    swaps: list[PlanSwap] = Field(default_factory=list, description="Exercises swapped since the plan was "
+                                                                    "built, oldest first.")
+    max_impacts_per_session: int | None = Field(None, description="The template's ceiling of impacts a "
+                                                                  "session.")
+    max_impacts_reason: str | None = Field(None, description="Why the template's ceiling is above the "
+                                                             "usual one (empty otherwise).")
+    start_level: int | None = Field(None, description="Impact level of week 1.")
+    top_level: int | None = Field(None, description="Highest impact level the plan builds to.")
+    max_impact_level: int | None = Field(None, description="The impact cap the plan was built to.")
+    avoid: list[str] | None = Field(None, description="Movement patterns the plan avoids.")
+    spine_sparing: bool | None = Field(None, description="Spine-sparing variants and loads throughout.")
+    goals: list[str] | None = Field(None, description="Goals in plain words (the handout writes its own "
+                                                      "when absent).")
+    body_mass_kg: Number | None = Field(None, description="Body mass for the explained loads [kg].")
+    # An adjusted program (docs/sessions.md).
+    adjustment: PlanAdjustment | None = None
+    paused: PlanPause | None = None
 
 
 def parse_plan(data: Any, source: str | None = None) -> Plan:

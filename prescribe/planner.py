@@ -59,9 +59,11 @@ from . import __version__
 from .cautions import with_standard
 from .dose import daily_osteogenic_index, osteogenic_index
 from .errors import FieldProblem, InputError, PlanRequestRefused
-from .plan_schema import PLAN_FORMAT_VERSION, Plan, PlannedExercise, PlannedSession, PlannedWeek
+from .catalogue import IMPACT_LEVEL_LABELS
+from .plan_schema import (PLAN_FORMAT_VERSION, Plan, PlannedExercise, PlannedSession, PlannedWeek,
+                          in_weak_window)
 from .planner_rules import IMPACTS_CEILING, ResistancePhase, Template, load_template, template_names
-from .option_limits import OPTION_RANGES
+from .option_limits import OPTION_DEFAULTS, OPTION_RANGES
 from .records import PatientRecord, ScreeningResult
 from .safety import SUPERVISED_FROM_PCT_1RM, pct_1rm as _pct_1rm
 
@@ -69,7 +71,7 @@ __all__ = ["PlanOptions", "build_plan", "weekly_summary", "check_plan", "replace
            "reassessment_weeks", "option_range", "fixed_options", "plan_swaps", "IMPACT_LABELS",
            "SUMMARY_COLUMNS"]
 
-IMPACT_LABELS: dict[int, str] = {0: "no impact", 1: "low impact", 2: "moderate impact", 3: "high impact"}
+IMPACT_LABELS = IMPACT_LEVEL_LABELS  # the catalogue's, next to the level boundaries
 
 #: Columns of :func:`weekly_summary`, in order.
 SUMMARY_COLUMNS: list[str] = ["week", "phase", "impact_level", "impacts_per_session", "sessions",
@@ -171,11 +173,13 @@ class PlanOptions(BaseModel):
 
     model_config = ConfigDict(extra="forbid", frozen=True, strict=True)
 
-    weeks: int = Field(26, ge=OPTION_RANGES["weeks"][0], le=OPTION_RANGES["weeks"][1])
+    weeks: int = Field(OPTION_DEFAULTS["weeks"], ge=OPTION_RANGES["weeks"][0], le=OPTION_RANGES["weeks"][1])
     start_level: int | None = Field(None, ge=OPTION_RANGES["start_level"][0], le=OPTION_RANGES["start_level"][1])
-    impact_sessions_per_week: int = Field(3, ge=OPTION_RANGES["impact_sessions_per_week"][0],
+    impact_sessions_per_week: int = Field(OPTION_DEFAULTS["impact_sessions_per_week"],
+                                          ge=OPTION_RANGES["impact_sessions_per_week"][0],
                                           le=OPTION_RANGES["impact_sessions_per_week"][1])
-    resistance_sessions_per_week: int = Field(2, ge=OPTION_RANGES["resistance_sessions_per_week"][0],
+    resistance_sessions_per_week: int = Field(OPTION_DEFAULTS["resistance_sessions_per_week"],
+                                              ge=OPTION_RANGES["resistance_sessions_per_week"][0],
                                               le=OPTION_RANGES["resistance_sessions_per_week"][1])
     balance_sessions_per_week: int | None = Field(None, ge=OPTION_RANGES["balance_sessions_per_week"][0],
                                                   le=OPTION_RANGES["balance_sessions_per_week"][1])
@@ -221,9 +225,7 @@ def option_range(name: str) -> tuple[int, int]:
 def fixed_options(plan: Plan) -> dict[str, Any]:
     """The options the clinician fixed when the plan was built (its ``options.fixed``), as
     :class:`PlanOptions` keywords, so the same program can be rebuilt with one change."""
-    recorded = _extra(plan, "options") or {}
-    if not isinstance(recorded, dict):
-        return {}
+    recorded = plan.options or {}
     out = {}
     for name in recorded.get("fixed") or ():
         if name in PlanOptions.model_fields and name in recorded:
@@ -234,9 +236,7 @@ def fixed_options(plan: Plan) -> dict[str, Any]:
 
 def plan_swaps(plan: Plan) -> list[tuple[str, str]]:
     """The swaps :func:`replace_exercise` made on this plan, oldest first, as (old_id, new_id)."""
-    swaps = _extra(plan, "swaps") or []
-    return [(str(s["old"]), str(s["new"])) for s in swaps
-            if isinstance(s, dict) and "old" in s and "new" in s]
+    return [(s.old, s.new) for s in plan.swaps or ()]
 
 
 # =========================================================================================
@@ -641,7 +641,7 @@ class _Builder:
 
         def window_pos(w: int) -> int:
             """The largest position (3-5) of week w inside a window, else 0."""
-            return max((w - s + 1 for s in starts if 3 <= w - s + 1 <= 5), default=0)
+            return max((w - s + 1 for s in starts if in_weak_window(w - s + 1)), default=0)
 
         for w in range(1, self.options.weeks + 1):
             step_up = False
@@ -650,7 +650,7 @@ class _Builder:
                 asked = requested is not None and w in requested
                 if pos:
                     if asked:
-                        first = max(s for s in starts if 3 <= w - s + 1 <= 5)
+                        first = max(s for s in starts if in_weak_window(w - s + 1))
                         self._refuse_step(w, "rule 3", f"week {w} is week {w - first + 1} after the new or larger "
                                           f"stimulus of week {first}: weeks 3 to 5 after it carry no escalation "
                                           "(resorption precedes formation; Eriksen 1986)")
@@ -827,7 +827,8 @@ class _Builder:
         k_i, k_r = opts.impact_sessions_per_week, opts.resistance_sessions_per_week
         k_b = opts.balance_sessions_per_week
         if k_b is None:
-            k_b = tpl.balance["sessions_falls_risk"] if self.falls else 3
+            k_b = (tpl.balance["sessions_falls_risk"] if self.falls
+                   else OPTION_DEFAULTS["balance_sessions_per_week"])
         bal_minutes = tpl.balance["minutes_falls_risk"] if self.falls else None
         impact_days = _IMPACT_DAYS[k_i]
         res_days = _RESISTANCE_DAYS[k_r]
@@ -1078,22 +1079,17 @@ def weekly_summary(plan: Plan) -> pd.DataFrame:
     """One row a week: the columns of :data:`SUMMARY_COLUMNS` (``sessions`` is a count)."""
     rows = []
     for w in plan.weeks:
-        extra = w.model_extra or {}
+        weekly_oi = w.weekly_osteogenic_index
         rows.append({
-            "week": w.week, "phase": extra.get("phase", ""), "impact_level": w.impact_level,
+            "week": w.week, "phase": w.phase, "impact_level": w.impact_level,
             "impacts_per_session": w.impacts_per_session, "sessions": len(w.sessions),
-            "weekly_osteogenic_index": extra.get("weekly_osteogenic_index",
-                                                 round(sum(s.osteogenic_index for s in w.sessions), 2)),
-            "weak_window": bool(extra.get("weak_window", False)), "reassessment": w.reassessment,
+            "weekly_osteogenic_index": round(sum(s.osteogenic_index for s in w.sessions), 2)
+            if weekly_oi is None else weekly_oi,
+            "weak_window": bool(w.weak_window), "reassessment": w.reassessment,
             # Read from the exercises, so a week never states more than it prescribes.
             "resistance_intensity_pct_1rm": prescribed_pct_1rm(x for s in w.sessions for x in s.exercises),
         })
     return pd.DataFrame(rows, columns=SUMMARY_COLUMNS)
-
-
-def _extra(model, key, default=None):
-    extra = getattr(model, "model_extra", None) or {}
-    return extra.get(key, default)
 
 
 #: The rule number of docs/plan.md each rule of :mod:`prescribe.safety` belongs to (for check_plan's text).

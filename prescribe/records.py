@@ -120,6 +120,11 @@ class Glucocorticoids(_Strict):
                           json_schema_extra=_meta("months", (0, 120)))
 
 
+#: Body mass accepted anywhere in prescribe [kg] (the record, the models, the sensor
+#: readers and the command line read it from here).
+BODY_MASS_RANGE_KG: tuple[int, int] = (25, 300)
+
+
 class PatientRecord(_Strict):
     """What the screening and the planner need to know about one person.
 
@@ -136,7 +141,7 @@ class PatientRecord(_Strict):
     age_years: int = Field(ge=18, le=110, description="Age in whole years.",
                            json_schema_extra=_meta("years", (40, 95), "Age"))
     sex: Sex = Field(description="Sex, as used by the published norms.", json_schema_extra=_meta(label="Sex"))
-    body_mass_kg: float = Field(ge=25, le=300, description="Body mass.",
+    body_mass_kg: float = Field(ge=BODY_MASS_RANGE_KG[0], le=BODY_MASS_RANGE_KG[1], description="Body mass.",
                                 json_schema_extra=_meta("kg", (40, 120), "Body mass", 0.5))
     height_cm: float = Field(ge=100, le=230, description="Standing height.",
                              json_schema_extra=_meta("cm", (140, 195), "Height", 0.5))

@@ -25,8 +25,9 @@ from dataclasses import dataclass, field
 from functools import lru_cache
 from typing import Callable, Iterable, Iterator
 
+from .catalogue import IMPACT_LEVEL_LABELS
 from .errors import UnsafeProgram
-from .plan_schema import Plan
+from .plan_schema import Plan, weak_window_weeks
 from .records import PatientRecord, ScreeningResult
 
 __all__ = ["SafetyViolation", "Limits", "Rule", "RULES", "check_program", "assert_safe", "limits_for",
@@ -84,7 +85,7 @@ IMPACTS_CEILING = 100
 #: session at 80-85% 1RM and above was supervised).
 SUPERVISED_FROM_PCT_1RM = 80.0
 
-IMPACT_LABELS: dict[int, str] = {0: "no impact", 1: "low impact", 2: "moderate impact", 3: "high impact"}
+IMPACT_LABELS = IMPACT_LEVEL_LABELS  # the catalogue's, next to the level boundaries
 
 #: Spine-sparing limits for resistance work (see SRC_SPINE).
 SPINE_MAX_SETS = 3
@@ -366,11 +367,6 @@ def _session_facts(kind: str, xs) -> _SessionFacts:
     return _SessionFacts(impacts, top, pct, rpe, vol, balance, frozenset(dirs), tuple(landing))
 
 
-def _extra(model, key, default=None):
-    extra = getattr(model, "model_extra", None) or {}
-    return extra.get(key, default)
-
-
 # =========================================================================================
 # The rules (one function a rule)
 # =========================================================================================
@@ -456,7 +452,7 @@ def rule_bout_split(f: _Facts) -> Iterator[SafetyViolation]:
                 if s.day != day:
                     continue
                 for x in sf.landing:
-                    gap = _extra(x, "bout_gap_hours")
+                    gap = x.bout_gap_hours
                     if x.bouts < need or gap is None or gap < MIN_BOUT_GAP_H:
                         yield SafetyViolation(
                             "bout_split", wk.week, x.exercise_id,
@@ -534,7 +530,7 @@ def rule_weak_window(f: _Facts) -> Iterator[SafetyViolation]:
     for i in _stimulus_starts(f):
         if i + 1 >= n:
             continue
-        for j in (i + 2, i + 3, i + 4):
+        for j in sorted(weak_window_weeks([i])):  # 0-based indices of weeks 3-5 from index i
             if j >= n:
                 break
             for attr, what, allowed, fmt in _MEASURES:
@@ -550,7 +546,7 @@ def rule_weak_window(f: _Facts) -> Iterator[SafetyViolation]:
                         + " (no increase of any kind in weeks 3-5)", SRC_REMODEL)
     for j in range(1, n):
         wk = f.weeks[j]
-        if not (wk.model_extra or {}).get("weak_window"):
+        if not wk.weak_window:
             continue
         for attr, what, allowed, fmt in _MEASURES:
             values = getattr(f, attr)
@@ -732,13 +728,8 @@ def rule_falls_risk_limits(f: _Facts) -> Iterator[SafetyViolation]:
 
 def rule_swap_same_kind(f: _Facts) -> Iterator[SafetyViolation]:
     """A swap keeps the kind of movement and the person's limits."""
-    swaps = _extra(f.plan, "swaps") or []
-    if not isinstance(swaps, list):
-        return
-    for sw in swaps:
-        if not isinstance(sw, dict):
-            continue
-        old_id, new_id = str(sw.get("old")), str(sw.get("new"))
+    for sw in f.plan.swaps or ():
+        old_id, new_id = sw.old, sw.new
         old, new = f.entries.get(old_id), f.entries.get(new_id)
         if old is None or new is None:
             yield SafetyViolation("swap_same_kind", None, new_id,
@@ -870,14 +861,14 @@ def limits_for(plan: Plan, screening: ScreeningResult | None = None, *,
     if record is not None:
         found.append(("re-screened record", rescreen(record)))
     cap = min(s.max_impact_level for _, s in found)
-    plan_cap = _extra(plan, "max_impact_level")
-    if isinstance(plan_cap, int) and not isinstance(plan_cap, bool) and 0 <= plan_cap < cap:
+    plan_cap = plan.max_impact_level
+    if plan_cap is not None and 0 <= plan_cap < cap:
         cap = plan_cap  # the template's own cap can only lower the screening's
     avoid = frozenset(p for _, s in found for p in s.avoid)
-    max_imp = _extra(plan, "max_impacts_per_session", IMPACTS_CEILING)
-    if not isinstance(max_imp, int) or isinstance(max_imp, bool) or max_imp < 0:
+    max_imp = plan.max_impacts_per_session
+    if max_imp is None or max_imp < 0:
         max_imp = IMPACTS_CEILING
-    if max_imp > IMPACTS_CEILING and not _extra(plan, "max_impacts_reason", ""):
+    if max_imp > IMPACTS_CEILING and not plan.max_impacts_reason:
         max_imp = IMPACTS_CEILING
     return Limits(
         cap=cap, avoid=avoid,
@@ -885,7 +876,7 @@ def limits_for(plan: Plan, screening: ScreeningResult | None = None, *,
         refer=any(s.refer for _, s in found),
         supervision=any(s.supervision for _, s in found),
         spine_sparing=bool(avoid & SPINAL_PATTERNS)
-        or _extra(plan, "spine_sparing") is True,
+        or plan.spine_sparing is True,
         max_impacts=max_imp,
         origins=tuple(name for name, _ in found),
     )

@@ -191,14 +191,13 @@ def plan_figures(plan, tpl: Template) -> dict:
     full = _full_volume(tpl, top)
     to_full = None
     for w in weeks:
-        vol = (w.model_extra or {}).get("impact_volume")
+        vol = w.impact_volume
         if w.impact_level == top and vol is not None and vol >= full:
             to_full = w.week
             break
-    pcts = [(w.model_extra or {}).get("resistance_intensity_pct_1rm") for w in weeks]
-    pcts = [p for p in pcts if p is not None]
-    total = sum((w.model_extra or {}).get("weekly_osteogenic_index",
-                                          sum(s.osteogenic_index for s in w.sessions)) for w in weeks)
+    pcts = [w.resistance_intensity_pct_1rm for w in weeks if w.resistance_intensity_pct_1rm is not None]
+    total = sum(sum(s.osteogenic_index for s in w.sessions) if w.weekly_osteogenic_index is None
+                else w.weekly_osteogenic_index for w in weeks)
     return {"weeks": len(weeks), "top_impact_level": int(top), "weeks_to_full_volume": to_full,
             "peak_impacts": int(max(w.impacts_per_session for w in weeks)),
             "peak_intensity_pct_1rm": float(max(pcts)) if pcts else None,

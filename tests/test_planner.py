@@ -116,9 +116,9 @@ def test_osteopenia_progresses_to_high_impact_one_level_at_a_time(osteopenia):
     tpl = load_template("standard")
     for i in range(1, len(plan.weeks)):
         if levels[i] > levels[i - 1]:
-            prev = plan.weeks[i - 1].model_extra
+            prev = plan.weeks[i - 1]
             full = {1: tpl.impact["level1_minutes_full"], 2: tpl.impact["impacts_target_level2"]}[levels[i - 1]]
-            assert prev["impact_volume"] == full
+            assert prev.impact_volume == full
 
 
 def test_osteopenia_impacts_build_toward_50_to_100(osteopenia):
@@ -134,7 +134,7 @@ def test_osteopenia_impacts_build_toward_50_to_100(osteopenia):
     # More than 50 a day: split into bouts at least 4 h apart (Robling, Burr & Turner 2001:
     # about 8 h restores mechanosensitivity).
     split = [x for x in _exercises(plan) if x.impact_level >= 2 and x.impacts and x.bouts > 1]
-    assert split and all(x.model_extra["bout_gap_hours"] >= 4 for x in split)
+    assert split and all(x.bout_gap_hours >= 4 for x in split)
 
 
 def test_osteopenia_resistance_reaches_liftmor_dose_after_technique_phase(osteopenia):
@@ -143,11 +143,11 @@ def test_osteopenia_resistance_reaches_liftmor_dose_after_technique_phase(osteop
     _, _, plan = osteopenia
     first = [x for s in plan.weeks[0].sessions if s.kind == "resistance" for x in s.exercises]
     assert all("1RM" not in x.intensity for x in first)
-    assert plan.weeks[0].model_extra["resistance_intensity_pct_1rm"] is None
+    assert plan.weeks[0].resistance_intensity_pct_1rm is None
     last = [x for s in plan.weeks[-1].sessions if s.kind == "resistance" for x in s.exercises]
     heavy = [x for x in last if x.intensity in ("80% 1RM", "85% 1RM")]
     assert heavy and all((x.sets, x.reps) == (5, 5) for x in heavy)
-    pct = [w.model_extra["resistance_intensity_pct_1rm"] for w in plan.weeks]
+    pct = [w.resistance_intensity_pct_1rm for w in plan.weeks]
     nums = [p for p in pct if p is not None]
     assert nums == sorted(nums) and 80 <= nums[-1] <= 85
     assert any("Watson" in s for s in plan.sources)
@@ -206,12 +206,12 @@ def test_vertebral_fracture_resistance_is_spine_sparing_at_moderate_load(vertebr
     assert not any(cat.get(x.exercise_id).loaded_by_1rm for x in res)
     # Dosed by effort (Brooke-Wavell et al. 2022: technique first, then loads built to 8-12RM),
     # never by a heavy % 1RM.
-    pct = [w.model_extra["resistance_intensity_pct_1rm"] for w in plan.weeks]
+    pct = [w.resistance_intensity_pct_1rm for w in plan.weeks]
     assert all(p is None or p <= 70 for p in pct)
     assert all(x.reps is None or 8 <= x.reps <= 12 for x in res)
     # Back-extensor work is part of it (Giangregorio et al. 2014; common practice).
     assert any(x.category == "back_extensor" for x in res)
-    assert plan.model_extra["spine_sparing"] is True
+    assert plan.spine_sparing is True
     assert any("spine" in c.lower() for c in plan.cautions)
 
 
@@ -280,7 +280,7 @@ def test_weak_window_holds_level_and_impacts():
     # Resorption precedes formation after a new stimulus (Eriksen 1986; Heaney et al. 1997):
     # weeks 3-5 after a step-up carry no higher level and no more impacts than week 2.
     plan = build_plan(_record(), _screening(), PlanOptions(weeks=52), created=CREATED)
-    steps = [i for i, w in enumerate(plan.weeks) if w.model_extra["step_up"]]
+    steps = [i for i, w in enumerate(plan.weeks) if w.step_up]
     assert len(steps) >= 3
     for i in steps:
         w2 = plan.weeks[i + 1]
@@ -288,7 +288,7 @@ def test_weak_window_holds_level_and_impacts():
             if j < len(plan.weeks):
                 assert plan.weeks[j].impact_level <= w2.impact_level
                 assert plan.weeks[j].impacts_per_session <= w2.impacts_per_session
-                assert plan.weeks[j].model_extra["weak_window"] is True
+                assert plan.weeks[j].weak_window is True
 
 
 def test_two_directions_from_moderate_impact_on():
@@ -323,8 +323,8 @@ def test_clinician_options_are_applied():
     assert "stamp_gentle" not in {x.exercise_id for x in _exercises(plan)}
     w = plan.weeks[0]
     assert len(_days(w, {"impact", "mixed"})) == 4 and len(_days(w, {"resistance"})) == 3
-    assert plan.model_extra["options"]["exclude"] == ["stamp_gentle"]
-    assert "start_level" in plan.model_extra["options"]["fixed"]
+    assert plan.options["exclude"] == ["stamp_gentle"]
+    assert "start_level" in plan.options["fixed"]
     assert check_plan(plan) == []
 
 
@@ -453,7 +453,7 @@ def _edited(plan, edit):
 
 def test_check_plan_finds_each_kind_of_violation(osteopenia):
     _, _, plan = osteopenia
-    step = next(i for i, w in enumerate(plan.weeks) if w.model_extra["step_up"] and w.impact_level == 2)
+    step = next(i for i, w in enumerate(plan.weeks) if w.step_up and w.impact_level == 2)
 
     def more_impacts_in_window(d):
         wk = d["weeks"][step + 2]

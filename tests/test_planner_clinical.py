@@ -50,7 +50,7 @@ def test_uncontrolled_hypertension_plan_never_states_more_than_it_prescribes():
     for week, row in zip(plan.weeks, table.itertuples()):
         given = [p for x in _resistance(week) if (p := _pct(x.intensity)) is not None]
         top = max(given) if given else None
-        assert week.model_extra["resistance_intensity_pct_1rm"] == top
+        assert week.resistance_intensity_pct_1rm == top
         assert (row.resistance_intensity_pct_1rm if row.resistance_intensity_pct_1rm == row.resistance_intensity_pct_1rm
                 else None) == top
         assert top is None or top <= 70
@@ -86,7 +86,7 @@ def test_spine_sparing_strength_keeps_progressing_by_effort_toward_8_to_12rm(tem
     rec = _record(patient_id="ELM-0104", age_years=71, t_scores={"lumbar_spine": -2.9},
                   fractures=[{"site": "vertebra", "months_ago": 10, "low_trauma": True}])
     plan = _plan(rec, weeks=40, template=template)
-    assert plan.model_extra["spine_sparing"] is True
+    assert plan.spine_sparing is True
     efforts = []
     for week in plan.weeks:
         main = [x for x in _resistance(week) if x.category == "resistance"]
@@ -96,7 +96,7 @@ def test_spine_sparing_strength_keeps_progressing_by_effort_toward_8_to_12rm(tem
     final = plan.weeks[-1]
     last = [x for x in _resistance(final) if x.category == "resistance"]
     assert all((x.sets, x.reps) == (3, 8) and "8-12RM" in x.intensity for x in last)
-    assert all("add 2-10%" in x.model_extra["notes"] for x in last)
+    assert all("add 2-10%" in x.notes for x in last)
     # The effort asked for never drops and changes at least every 6 weeks until the final phase:
     # no block of 13 weeks at one load.
     changes = [i for i in range(1, len(efforts)) if efforts[i] != efforts[i - 1]]
@@ -140,7 +140,7 @@ def test_standard_plan_reaches_liftmor_dose_after_practice():
     for w in range(first, first + LIFT_PRACTICE_WEEKS):
         x = by_week[w]["back_squat"]
         assert (x.sets, x.reps, x.intensity) == (3, 8, "50% 1RM")
-        assert "practice" in x.model_extra["notes"].lower()
+        assert "practice" in x.notes.lower()
     assert by_week[26]["back_squat"].intensity == "85% 1RM"
     assert (by_week[26]["back_squat"].sets, by_week[26]["back_squat"].reps) == (5, 5)
 
@@ -178,7 +178,7 @@ def test_frail_person_on_a_spine_sparing_program_still_reaches_loaded_work():
     rec = _record(patient_id="ELM-0108", age_years=72, chair_stand_30s=7, t_scores={"lumbar_spine": -2.9},
                   fractures=[{"site": "vertebra", "months_ago": 14, "low_trauma": True}])
     plan = _plan(rec, weeks=26)
-    assert plan.model_extra["spine_sparing"] is True
+    assert plan.spine_sparing is True
     first_phase = {x.exercise_id for w in plan.weeks[:6] for x in _resistance(w)}
     assert "sit_to_stand" in first_phase and "goblet_box_squat" not in first_phase
     later = {x.exercise_id for w in plan.weeks[12:] for x in _resistance(w)}

@@ -150,7 +150,7 @@ def direct_violations(plan, screening) -> list[str]:
             total = sum(x.impacts for x in xs)
             if total > 50:
                 for x in xs:
-                    gap = (x.model_extra or {}).get("bout_gap_hours")
+                    gap = x.bout_gap_hours
                     if x.impacts and (x.bouts < math.ceil(total / 50) or gap is None or gap < 4):
                         bad.append(f"rule 4 bouts, week {wk.week} day {day}")
         # Rule 5: from moderate impact on, at least two loading directions in the week.
@@ -172,7 +172,7 @@ def _weeks_at_full_before(plan, week: int) -> int:
     """How many weeks in a row before ``week`` the plan held its impact work at full volume."""
     n = 0
     for w in reversed(plan.weeks[:week - 1]):
-        if not str((w.model_extra or {}).get("phase", "")).startswith("full volume"):
+        if not w.phase.startswith("full volume"):
             break
         n += 1
     return n
@@ -190,7 +190,7 @@ def refusal_is_justified(record, screening, options, refused) -> None:
     levels = [w.impact_level for w in plan.weeks]
     before = levels[week - 2]  # the level of the week before the refused step-up
     if refused.rule == "rule 1":  # already at the highest level allowed
-        assert before >= (plan.model_extra or {})["top_level"], (week, before)
+        assert before >= plan.top_level, (week, before)
     elif refused.rule == "rule 3":  # inside weeks 3-5 after a new or larger stimulus of either kind
         # An impact step-up (the first week counts), or a change of the resistance work (a new
         # phase): no escalation of any kind in its weeks 3-5 (Eriksen 1986; Heaney et al. 1997).

@@ -120,9 +120,9 @@ def test_a_week_labelled_no_increase_never_adds_weight(plans, name):
     _, plan = plans[name]
     previous = None
     for w in plan.weeks:
-        pct = w.model_extra["resistance_intensity_pct_1rm"] or 0
-        if w.model_extra["weak_window"]:
-            assert "no increase" in w.model_extra["phase"]
+        pct = w.resistance_intensity_pct_1rm or 0
+        if w.weak_window:
+            assert "no increase" in w.phase
             assert pct <= previous
             assert w.impacts_per_session <= prev_impacts and w.impact_level <= prev_level
         previous, prev_impacts, prev_level = pct, w.impacts_per_session, w.impact_level
@@ -240,7 +240,7 @@ def test_one_level_at_a_time(plans):
 
 def _window(plan, level):
     """(week 1, week 2) of the window after the step-up to ``level``."""
-    i = next(i for i, w in enumerate(plan.weeks) if w.impact_level == level and w.model_extra["step_up"])
+    i = next(i for i, w in enumerate(plan.weeks) if w.impact_level == level and w.step_up)
     return plan.weeks[i].week, plan.weeks[i + 1].week
 
 
@@ -279,7 +279,7 @@ def test_a_heavier_phase_opens_its_own_window(plans):
     # A resistance step (e.g. 70% -> 80% 1RM) is a larger stimulus too: impacts may not rise
     # in its weeks 3-5.
     _, plan = plans["osteopenia"]
-    pct = [w.model_extra["resistance_intensity_pct_1rm"] or 0 for w in plan.weeks]
+    pct = [w.resistance_intensity_pct_1rm or 0 for w in plan.weeks]
     i = next(i for i in range(1, len(pct)) if pct[i] > pct[i - 1] and plan.weeks[i].impact_level >= 2)
     week = plan.weeks[i + 3].week
     n2 = plan.weeks[i + 1].impacts_per_session

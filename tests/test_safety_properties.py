@@ -90,7 +90,7 @@ def oracle(plan, record) -> list[str]:
             if total > 50:
                 need = math.ceil(total / 50)
                 for x in day_ex.get(day, []):
-                    gap = (x.model_extra or {}).get("bout_gap_hours")
+                    gap = x.bout_gap_hours
                     if x.bouts < need or gap is None or gap < 4:
                         bad.append(f"week {wk.week} day {day}: bouts")
         if falls and len(days_balance) < 2:

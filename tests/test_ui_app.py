@@ -55,7 +55,7 @@ def test_program_table_and_charts_follow_the_plan(app):
     assert app.charts is not None
     assert list(app.charts.level_line.y) == [w.impact_level for w in plan.weeks]
     assert list(app.charts.impact_bars.y) == [w.impacts_per_session for w in plan.weeks]
-    weak = [bool((w.model_extra or {}).get("weak_window")) for w in plan.weeks]
+    weak = [bool(w.weak_window) for w in plan.weeks]
     # The shading outline is two points a week (its start and end), 1 over weak weeks.
     assert [bool(v) for v in app.charts.shade2.y[::2]] == weak
     assert [bool(v) for v in app.charts.shade2.y[1::2]] == weak

@@ -95,7 +95,7 @@ def test_log_shows_the_advice_at_once_and_apply_stores_the_new_version(app, tmp_
     live.advise_button.click()  # advice again with no new session: shown, but not applicable twice
     assert "already applies the advice" in live.advice_view.value and live.apply_button.disabled is True
     # the program section and the handout follow the new version
-    assert app.session.plan.model_extra["adjustment"]["decision"] == "step_back"
+    assert app.session.plan.adjustment.decision == "step_back"
     assert b"week" in app.session.handout("html")
     # the charts: the logged pain in week 7, weak windows shaded
     charts = live.charts

@@ -7,7 +7,7 @@ import sys
 from ..catalogue import CATEGORIES, default_catalogue
 from ..cautions import SHORT_CAUTION, STANDARD_CAUTIONS
 from ..dose import MAX_BOUTS, session_dose
-from ..records import MOVEMENT_PATTERNS
+from ..records import BODY_MASS_RANGE_KG, MOVEMENT_PATTERNS
 from .output import emit_json, emit_table
 
 TABLE_COLUMNS = ["exercise_id", "name", "category", "impact_level", "peak_grf_bw",
@@ -51,7 +51,7 @@ def register(sub) -> None:
     d.add_argument("--gap-hours", type=float, default=8.0, metavar="H",
                    help="rest between bouts in hours (0-24, default 8)")
     d.add_argument("--body-mass-kg", type=float, default=None, metavar="M",
-                   help="body mass in kg (25-300): adds the peak force in newtons")
+                   help="body mass in kg ({}-{}): adds the peak force in newtons".format(*BODY_MASS_RANGE_KG))
     d.add_argument("--table", action="store_true", help="key figures as text instead of JSON")
     d.set_defaults(func=run_dose)
 

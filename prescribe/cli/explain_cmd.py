@@ -5,6 +5,7 @@ from __future__ import annotations
 import sys
 
 from ..explain import DEFAULT_BODY_MASS_KG, DEFAULT_T_SCORE, explain_exercise
+from ..records import BODY_MASS_RANGE_KG
 from .output import emit_json, emit_table
 
 TABLE_KEYS = ["exercise_id", "name", "body_mass_kg", "t_score", "external_load_kg", "peak_grf_bw",
@@ -23,7 +24,7 @@ def register(sub) -> None:
                     "every assumption and source.  Estimates for explaining a program, not predictions.")
     p.add_argument("exercise_id", metavar="EXERCISE_ID", help="a catalogue id (see `prescribe exercises`)")
     p.add_argument("--body-mass-kg", type=float, default=None, metavar="M",
-                   help=f"body mass in kg (25-300; default {DEFAULT_BODY_MASS_KG:g})")
+                   help="body mass in kg ({}-{}; default {:g})".format(*BODY_MASS_RANGE_KG, DEFAULT_BODY_MASS_KG))
     p.add_argument("--t-score", type=float, default=None, metavar="T",
                    help=f"the person's lowest T-score (-7 to +5; default {DEFAULT_T_SCORE:g}, the WHO "
                         "threshold of osteoporosis)")

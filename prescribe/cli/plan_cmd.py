@@ -7,6 +7,7 @@ import sys
 from datetime import date
 
 from ..errors import FieldProblem, InputError
+from ..option_limits import OPTION_DEFAULTS, range_text
 from ..plan_schema import parse_day
 from ..records import load_record
 from .output import emit_json, emit_table
@@ -34,7 +35,8 @@ def register(sub) -> None:
                     "balance work (JSON; --table for the weekly summary). Decision support only: a licensed "
                     "clinician reviews every program. The plan format is documented in docs/plan.md.")
     p.add_argument("patient", metavar="PATIENT.json", help="the patient record (JSON)")
-    p.add_argument("--weeks", type=_whole, default=None, metavar="N", help="program length, 8-52 weeks (default 26)")
+    p.add_argument("--weeks", type=_whole, default=None, metavar="N",
+                   help=f"program length, {range_text('weeks')} weeks (default {OPTION_DEFAULTS['weeks']})")
     p.add_argument("--template", default=None, metavar="NAME[@VERSION]",
                    help="template: a shipped one (standard, gentle or post_vertebral_fracture) or an approved "
                         "clinic version from the store; a bare NAME is its newest approved version (default: "
@@ -42,12 +44,16 @@ def register(sub) -> None:
     p.add_argument("--db", help="the store holding the clinic's templates (default: $PRESCRIBE_DB, else "
                                 "~/.local/share/prescribe/prescribe.db); read only for a clinic template")
     p.add_argument("--start-level", type=_whole, default=None, metavar="L",
-                   help="impact level to start at, 0-3 (never above the screening's cap)")
-    p.add_argument("--impact-sessions", type=_whole, default=None, metavar="K", help="impact sessions a week, 1-7 (default 3)")
+                   help=f"impact level to start at, {range_text('start_level')} (never above the screening's cap)")
+    p.add_argument("--impact-sessions", type=_whole, default=None, metavar="K",
+                   help=f"impact sessions a week, {range_text('impact_sessions_per_week')} "
+                        f"(default {OPTION_DEFAULTS['impact_sessions_per_week']})")
     p.add_argument("--resistance-sessions", type=_whole, default=None, metavar="K",
-                   help="resistance sessions a week, 1-3 (default 2)")
+                   help=f"resistance sessions a week, {range_text('resistance_sessions_per_week')} "
+                        f"(default {OPTION_DEFAULTS['resistance_sessions_per_week']})")
     p.add_argument("--balance-sessions", type=_whole, default=None, metavar="K",
-                   help="balance sessions a week, 2-7 (default 3; 4 when falls risk is flagged)")
+                   help=f"balance sessions a week, {range_text('balance_sessions_per_week')} "
+                        f"(default {OPTION_DEFAULTS['balance_sessions_per_week']}; 4 when falls risk is flagged)")
     p.add_argument("--exclude", nargs="+", default=[], metavar="ID", help="exercise ids to leave out")
     p.add_argument("--include", nargs="+", default=[], metavar="ID", help="exercise ids to prefer")
     p.add_argument("--step-up-weeks", nargs="+", type=_whole, default=[], metavar="W",

@@ -37,10 +37,10 @@ def register(sub) -> None:
 
 def run_sensor(args) -> int:
     from ..sensor import summarise_file, summarise_for_person
-    from .._arrays import checked
+    from .._arrays import body_mass
 
     if args.body_mass_kg is not None:
-        checked("--body-mass-kg", args.body_mass_kg, low=25, high=300, allowed="a body mass from 25 to 300 kg")
+        body_mass(args.body_mass_kg, "--body-mass-kg")
     if args.patient is None:
         summary = summarise_file(args.file, args.format, site=args.site, body_mass_kg=args.body_mass_kg,
                                  start=args.start)

@@ -15,22 +15,18 @@ from dataclasses import dataclass, field, replace
 from functools import lru_cache
 from typing import Any
 
+from ..catalogue import IMPACT_LEVEL_LABELS
 from ..cautions import with_standard
-from ..plan_schema import Plan, PlannedExercise, PlannedWeek
+from ..plan_schema import Plan, PlannedExercise, PlannedWeek, weak_window_weeks
 
 DAY_NAMES = ("Monday", "Tuesday", "Wednesday", "Thursday", "Friday", "Saturday", "Sunday")
 DAY_SHORT = ("Mon", "Tue", "Wed", "Thu", "Fri", "Sat", "Sun")
 
-#: Our impact scale (PRODUCT.md), in plain words for the person.
-LEVEL_WORDS = {0: "no impact (feet stay on the floor)", 1: "low impact (like brisk walking)",
-               2: "moderate impact (like skipping or gentle stamps)", 3: "high impact (like jumps and hops)"}
-LEVEL_LABELS = {0: "no impact", 1: "low impact", 2: "moderate impact", 3: "high impact"}
-
-#: Weeks after a step-up (the step-up week counts as week 1) when bone is transiently
-#: weaker because resorption runs ahead of formation: weeks 3 to 5.  Remodelling
-#: sequence: Eriksen 1986, Endocr Rev 7:379 (resorption about 3 weeks); remodelling
-#: transient: Heaney, Yates & Santora 1997, J Bone Miner Res 12:1143.
-WEAK_WINDOW_OFFSETS = (2, 3, 4)
+#: Our impact scale (PRODUCT.md): the catalogue's labels, with an example for the person.
+LEVEL_LABELS = IMPACT_LEVEL_LABELS
+LEVEL_EXAMPLES = {0: "feet stay on the floor", 1: "like brisk walking", 2: "like skipping or gentle stamps",
+                  3: "like jumps and hops"}
+LEVEL_WORDS = {level: f"{label} ({LEVEL_EXAMPLES[level]})" for level, label in IMPACT_LEVEL_LABELS.items()}
 
 #: Hours between bouts that restore mechanosensitivity: Robling, Burr & Turner 2001,
 #: J Exp Biol 204:3389-3399 ("approximately 8 h of recovery was sufficient").
@@ -68,16 +64,6 @@ def evidence(plan: Plan) -> list[str]:
         if pages not in cited:
             out.append(text)
     return out
-
-
-def extra(model: Any, name: str, default: Any = None) -> Any:
-    """An optional field the planner may add (kept by the plan schema as an extra)."""
-    extras = getattr(model, "model_extra", None) or {}
-    return extras.get(name, default)
-
-
-def has_extra(model: Any, name: str) -> bool:
-    return name in (getattr(model, "model_extra", None) or {})
 
 
 def pct_1rm(intensity: str) -> float | None:
@@ -118,29 +104,28 @@ def week_facts(plan: Plan) -> list[WeekFacts]:
     steps: list[bool] = []
     previous = None
     for wk in weeks:
-        if has_extra(wk, "step_up"):
-            steps.append(bool(extra(wk, "step_up")))
+        if wk.step_up is not None:
+            steps.append(wk.step_up)
         else:
             steps.append(previous is not None and wk.impact_level > previous)
         previous = wk.impact_level
     step_weeks = [wk.week for wk, s in zip(weeks, steps) if s]
-    derived_weak = {s + k for s in step_weeks for k in WEAK_WINDOW_OFFSETS}
+    derived_weak = weak_window_weeks(step_weeks)
     out = []
     for wk, step in zip(weeks, steps):
-        weak = bool(extra(wk, "weak_window")) if has_extra(wk, "weak_window") else wk.week in derived_weak
+        weak = wk.weak_window if wk.weak_window is not None else wk.week in derived_weak
         # The load is read from the week's exercises, never from the week's summary field: the
         # handout must not state a higher intensity than the program prescribes.
         found = [p for ex in _exercises(wk) if (p := pct_1rm(ex.intensity)) is not None]
         pct = max(found) if found else None
         session_oi = [s.osteogenic_index for s in wk.sessions]
-        weekly = extra(wk, "weekly_osteogenic_index")
-        weekly = float(weekly) if isinstance(weekly, (int, float)) else float(sum(session_oi))
+        weekly = float(sum(session_oi) if wk.weekly_osteogenic_index is None else wk.weekly_osteogenic_index)
         loading = [ex for ex in _exercises(wk) if ex.impact_level >= 1]
         directions = sorted({d for ex in loading for d in ex.directions})
         out.append(WeekFacts(
             week=wk.week, impact_level=wk.impact_level, impacts_per_session=wk.impacts_per_session,
             step_up=step, weak_window=weak, resistance_pct_1rm=pct, reassessment=wk.reassessment,
-            phase=str(extra(wk, "phase") or ""), weekly_oi=weekly,
+            phase=wk.phase, weekly_oi=weekly,
             max_session_oi=max(session_oi, default=0.0),
             peak_grf_bw=max((ex.peak_grf_bw for ex in loading), default=0.0),
             directions=tuple(directions), sessions=len(wk.sessions)))
@@ -253,8 +238,8 @@ def dose_text(ex: PlannedExercise) -> str:
         # A sentence of its own: short sentences read more easily than one long one.
         words = plain_intensity(ex.intensity)
         text += f". {words[:1].upper()}{words[1:]}"
-    load = extra(ex, "load_kg")  # a working load from the logged sessions (docs/sessions.md)
-    if isinstance(load, (int, float)) and not isinstance(load, bool) and load > 0:
+    load = ex.load_kg  # a working load from the logged sessions (docs/sessions.md)
+    if load is not None and load > 0:
         text += f": about {load:g} kg"
     if ex.supervised:
         text += ". Supervised only: with your clinician or trainer there"
@@ -308,7 +293,7 @@ def week_lines(week: PlannedWeek) -> list[Line]:
     for session in sorted(week.sessions, key=lambda s: s.day):
         for ex in session.exercises:
             key = (ex.exercise_id, ex.sets, ex.reps, ex.impacts, ex.minutes, ex.bouts, ex.intensity,
-                   extra(ex, "load_kg"))
+                   ex.load_kg)
             first.setdefault(key, ex)
             days = by_key.setdefault(key, [])
             if session.day not in days:
@@ -541,9 +526,8 @@ def all_cautions(plan: Plan) -> list[str]:
 
 def goals(plan: Plan) -> list[str]:
     """The plan's ``goals`` when the planner gives them, else plain goals from its content."""
-    given = extra(plan, "goals")
-    if isinstance(given, list) and all(isinstance(g, str) for g in given) and given:
-        return list(given)
+    if plan.goals:
+        return list(plan.goals)
     kinds = {s.kind for w in plan.weeks for s in w.sessions}
     out = []
     if plan.screening.max_impact_level >= 2 and any(w.impacts_per_session for w in plan.weeks):
@@ -610,10 +594,10 @@ def weeks_phrase(weeks: list[int]) -> str:
 
 def bout_advice(plan: Plan) -> list[str]:
     """How to split landings into bouts, from the plan's own numbers."""
-    gaps = {extra(ex, "bout_gap_hours") for w in plan.weeks for ex in _exercises(w) if ex.bouts > 1}
-    gaps = {g for g in gaps if isinstance(g, (int, float)) and g > 0} or {DEFAULT_BOUT_GAP_HOURS}
-    rests = {extra(ex, "rest_s") for w in plan.weeks for ex in _exercises(w) if ex.impacts}
-    rests = sorted(r for r in rests if isinstance(r, (int, float)) and r > 0)
+    gaps = {ex.bout_gap_hours for w in plan.weeks for ex in _exercises(w) if ex.bouts > 1}
+    gaps = {g for g in gaps if g is not None and g > 0} or {DEFAULT_BOUT_GAP_HOURS}
+    rests = {ex.rest_s for w in plan.weeks for ex in _exercises(w) if ex.impacts}
+    rests = sorted(r for r in rests if r is not None and r > 0)
     gap = min(gaps)
     out = [f"When a day has more than one bout, leave at least {gap:g} hours between bouts "
            "(for example one in the morning and one in the evening). Bone responds better to "
@@ -717,10 +701,8 @@ def exercise_guides(plan: Plan, lookup=None) -> list[ExerciseGuide]:
     notes: dict[str, list[str]] = {}
     for wk in sorted(plan.weeks, key=lambda w: w.week):
         for ex in _exercises(wk):
-            note = extra(ex, "notes")
-            for text in (note if isinstance(note, list) else [note]):
-                if isinstance(text, str) and text and text not in notes.setdefault(ex.exercise_id, []):
-                    notes[ex.exercise_id].append(text)
+            if ex.notes and ex.notes not in notes.setdefault(ex.exercise_id, []):
+                notes[ex.exercise_id].append(ex.notes)
             if ex.exercise_id in seen:
                 continue
             entry = lookup(ex.exercise_id)

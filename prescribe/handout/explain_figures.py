@@ -204,12 +204,6 @@ class Explained:
     bars: Figure
 
 
-def _plan_value(plan: Any, name: str) -> Any:
-    value = getattr(plan, name, None)
-    extra = getattr(plan, "model_extra", None) or {}
-    return value if value is not None else extra.get(name)
-
-
 def plan_explanations(plan: Any, body_mass_kg: float | None = None, t_score: float | None = None,
                       catalogue=None) -> list[Explained]:
     """The hardest exercise of each kind in ``plan`` (highest hip contact force), explained.
@@ -222,7 +216,7 @@ def plan_explanations(plan: Any, body_mass_kg: float | None = None, t_score: flo
     from ..catalogue import default_catalogue
 
     cat = catalogue or default_catalogue()
-    mass = body_mass_kg if body_mass_kg is not None else _plan_value(plan, "body_mass_kg")
+    mass = body_mass_kg if body_mass_kg is not None else plan.body_mass_kg
     if t_score is None and getattr(plan, "screening", None) is not None:
         t_score = plan.screening.lowest_t_score
     seen: dict[str, str] = {}

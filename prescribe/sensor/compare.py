@@ -15,24 +15,22 @@ from __future__ import annotations
 
 from datetime import date, datetime, timedelta
 from ..errors import InputError
+from ..plan_schema import weak_window_weeks
 
-#: Weeks 3 to 5 after a step-up (the step-up week is week 1) are the weak window,
-#: when bone is transiently weaker (PRODUCT.md; Eriksen 1986, Endocr Rev 7:379).
-WEAK_WINDOW_OFFSETS = (2, 3, 4)
 
 
 def weak_weeks(plan: dict) -> set[int]:
     """Program weeks inside a weak window: the planner's flag, else weeks 3-5 after a step-up."""
     weeks = sorted(plan.get("weeks") or [], key=lambda w: w["week"])
     flagged = {w["week"] for w in weeks if w.get("weak_window")}
-    if any("weak_window" in w for w in weeks):
+    if any(w.get("weak_window") is not None for w in weeks):
         return flagged
     steps, previous = [], None
     for w in weeks:
         if w.get("step_up") or (previous is not None and w["impact_level"] > previous):
             steps.append(w["week"])
         previous = w["impact_level"]
-    return {s + k for s in steps for k in WEAK_WINDOW_OFFSETS}
+    return weak_window_weeks(steps)
 
 
 def planned_by_date(plan: dict, start: date) -> dict[str, dict]:

@@ -19,7 +19,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from .._arrays import G, checked
+from .._arrays import G, body_mass, checked
 from ..errors import InputError
 
 __all__ = [
@@ -268,7 +268,7 @@ def neugebauer_peak_grf_n(acc_g, body_mass_kg, running):
     not valid beyond running.
     """
     a = np.asarray(acc_g, dtype=float)
-    m = checked("body_mass_kg", body_mass_kg, low=25, high=300, allowed="a body mass from 25 to 300 kg")
+    m = body_mass(body_mass_kg)
     r = np.asarray(running, dtype=float)
     c = NEUGEBAUER_COEF
     return np.exp(c["b0"] + c["b_acc"] * a + c["b_mass"] * m + c["b_run"] * r + c["b_acc_run"] * a * r)
@@ -302,7 +302,7 @@ def peak_grf_bw_from_net_g(peak_g, body_mass_kg):
     secondary source).
     """
     g = np.asarray(peak_g, dtype=float)
-    m = float(checked("body_mass_kg", body_mass_kg, low=25, high=300, allowed="a body mass from 25 to 300 kg"))
+    m = float(body_mass(body_mass_kg))
     acc = g + 1.0
     micro = _micro_g(g)
     running = micro >= _micro_g(NEUGEBAUER_RUN_FROM_NET_G)

@@ -14,7 +14,7 @@ from typing import Any
 import numpy as np
 
 from ..cautions import with_standard
-from .._arrays import checked
+from .._arrays import body_mass
 from ..errors import FieldProblem, InputError
 from . import impacts as im
 
@@ -73,8 +73,7 @@ class ImpactCounter:
                  source: str | None = None):
         if site not in SITES:
             raise InputError.single("--site", site, "one of " + ", ".join(SITES))
-        self.body_mass_kg = float(np.asarray(checked("body_mass_kg", body_mass_kg, low=25, high=300,
-                                                         allowed="a body mass from 25 to 300 kg")))
+        self.body_mass_kg = float(np.asarray(body_mass(body_mass_kg)))
         self.site, self.start_epoch_s, self.refractory_s, self.source = site, start_epoch_s, refractory_s, source
         self.samples = 0
         self.first_t: float | None = None

@@ -34,7 +34,7 @@ from statistics import mean
 from typing import Any, Iterable
 
 from ..cautions import with_standard
-from ..plan_schema import Plan, program_week
+from ..plan_schema import WEAK_WINDOW_WEEKS, Plan, in_weak_window, program_week
 from .loads import MAX_REPS_FOR_ESTIMATE, brzycki_1rm, round_load
 from .records import SessionRecord
 from .rules import RANK, SessionRule, SessionRuleSet, default_rules
@@ -345,7 +345,7 @@ def compose_weeks(weeks: list[dict], week: int, back: int) -> tuple[list[tuple[i
     idx = first
     while idx < n:
         k = len(seq)  # 0-based new week
-        if s is not None and 3 <= k - s + 1 <= 5 and seq:
+        if s is not None and in_weak_window(k - s + 1) and seq:
             base = doses[seq[s + 1][0]]
             if doses[idx][0] > prev_level or _exceeds(doses[idx], base):
                 notes.append(f"week {k + 1} repeats the dose of week {k} (weeks 3-5 after the step-up in "
@@ -437,7 +437,7 @@ def _adjusted(plan: dict, week: int, decision: str, reasons: list[dict], e1rm: d
             if k >= week:
                 s, pos = window_position(weeks, k)
                 w["step_up"] = k in ups
-                w["weak_window"] = 3 <= pos <= 5
+                w["weak_window"] = in_weak_window(pos)
         if len(weeks) > len(old) and not weeks[-1].get("reassessment"):
             weeks[-1]["reassessment"] = True
         if decision == "progress":
@@ -501,7 +501,7 @@ def assess(plan: Plan | dict, sessions: Iterable[LoggedSession], *, today: date 
             reasons = [r for r in reasons if r["rule"] != "session.as_planned"]
         win = rules.by_kind("weak_window")
         if win:
-            lo, hi = win[0].params.get("window_weeks", [3, 5])
+            lo, hi = win[0].params.get("window_weeks", WEAK_WINDOW_WEEKS)
             s, pos = window_position(plan["weeks"], week)
             if s is not None and lo <= pos <= hi:
                 decision = "hold"

@@ -9,6 +9,7 @@ import math
 from dataclasses import dataclass, field
 from statistics import mean
 
+from ..plan_schema import in_weak_window
 from .engine import LoggedSession, window_position
 
 
@@ -45,7 +46,7 @@ def weekly_progress(plan: dict, sessions: list[LoggedSession]) -> WeeklyProgress
     for i, w in enumerate(weeks, start=1):
         out.week.append(i)
         _, pos = window_position(weeks, i)
-        out.weak_window.append(3 <= pos <= 5)
+        out.weak_window.append(in_weak_window(pos))
         out.impacts_planned.append(sum(int(s.get("impacts") or 0) for s in w.get("sessions", [])))
         out.minutes_planned.append(round(sum(float(x.get("minutes") or 0) for s in w.get("sessions", [])
                                              for x in s.get("exercises", [])), 1))

@@ -18,7 +18,7 @@ from dataclasses import dataclass, field
 from datetime import date, datetime, timedelta
 from typing import Any, Iterable
 
-from ..handout.content import DAY_NAMES, LEVEL_LABELS, extra, pct_1rm
+from ..handout.content import DAY_NAMES, LEVEL_LABELS, pct_1rm
 
 #: The supervision rule's threshold of load (PRODUCT.md: supervision wherever 80% 1RM or
 #: more, or high impact, is prescribed).
@@ -79,7 +79,7 @@ def load_words(ex: Any) -> str:
         parts.append(f"{words} effort, {intensity}" if "(" in intensity else f"{words} effort ({intensity})")
     elif intensity:
         parts.append(intensity)
-    kg = extra(ex, "load_kg")
+    kg = ex.load_kg
     if isinstance(kg, (int, float)) and not isinstance(kg, bool) and kg > 0:
         parts.append(f"about {kg:g} kg")
     return ", ".join(parts) or "as shown by the clinician"
@@ -96,7 +96,7 @@ def dose_words(ex: Any) -> str:
         if sets:
             text += f" in {sets} set{'s' if sets != 1 else ''}"
         if bouts > 1:
-            gap = extra(ex, "bout_gap_hours")
+            gap = ex.bout_gap_hours
             text += f", split into {bouts} bouts" + (f" about {gap:g} h apart" if gap else "")
         parts.append(text)
     elif sets and reps:
@@ -121,7 +121,7 @@ def supervised(ex: Any, screening: Any = None) -> bool:
     impact, level 3), or a screening that asks for supervised sessions: any of them makes it
     supervised (the safe side; the safety check refuses a program whose marks break the rule).
     """
-    if getattr(ex, "supervised", None) is True or extra(ex, "supervised") is True:
+    if ex.supervised:
         return True
     pct = pct_1rm(getattr(ex, "intensity", "") or "")
     if pct is not None and pct >= SUPERVISED_FROM_PCT_1RM:
@@ -212,7 +212,7 @@ def week_days(plan: Any, week: int, screening: Any = None) -> list[DayPlan]:
         for ex in session.exercises:
             day.lines.append(ExerciseLine(ex.exercise_id, ex.name, dose_words(ex), load_words(ex),
                                           level_words(ex.impact_level), supervised(ex, screening),
-                                          str(extra(ex, "notes") or "")))
+                                          str(ex.notes or "")))
     return [days[d] for d in sorted(days, key=lambda d: (days[d].date or date.min, d))]
 
 
@@ -241,8 +241,8 @@ def impact_work_words(week: Any) -> str:
     """The week's impact work: impacts a session where impacts apply, else minutes or reps."""
     if week.impacts_per_session:
         return f"{week.impacts_per_session} impacts per session"
-    unit = extra(week, "impact_volume_unit")
-    volume = extra(week, "impact_volume")
+    unit = week.impact_volume_unit
+    volume = week.impact_volume
     exercises = [x for s in week.sessions for x in s.exercises if x.category == "impact"]
     minutes = max((x.minutes or 0 for x in exercises), default=0)
     if unit == "minutes" or minutes:
@@ -253,7 +253,7 @@ def impact_work_words(week: Any) -> str:
 
 
 def strength_words(week: Any) -> str:
-    phase = str(extra(week, "resistance_phase") or "")
+    phase = str(week.resistance_phase or "")
     pct = [p for s in week.sessions for x in s.exercises if (p := pct_1rm(x.intensity)) is not None]
     load = f", up to {max(pct):g}% 1RM" if pct else ""
     return (phase or "strength") + load if (phase or pct) else ""
@@ -264,10 +264,10 @@ def progression(plan: Any) -> list[StageRow]:
     rows: list[StageRow] = []
     for wk in sorted(plan.weeks, key=lambda w: w.week):
         row = StageRow(wk.week, wk.week, level_words(wk.impact_level), impact_work_words(wk),
-                       strength_words(wk), bool(extra(wk, "weak_window", False)))
+                       strength_words(wk), bool(wk.weak_window))
         last = rows[-1] if rows else None
         same = last is not None and (last.level, last.impact_work, last.strength, last.weak_window) == (
-            row.level, row.impact_work, row.strength, row.weak_window) and not extra(wk, "step_up", False)
+            row.level, row.impact_work, row.strength, row.weak_window) and not wk.step_up
         if same:
             last.last = wk.week
         else:

@@ -60,8 +60,9 @@ def progression_html(plan: Any) -> str:
         return "<p><i>Nothing yet.</i></p>"
     rows = []
     for wk in sorted(plan.weeks, key=lambda w: w.week):
-        weak = bool(pm.extra(wk, "weak_window", False))
-        oi = pm.extra(wk, "weekly_osteogenic_index", sum(s.osteogenic_index for s in wk.sessions))
+        weak = bool(wk.weak_window)
+        oi = (sum(s.osteogenic_index for s in wk.sessions) if wk.weekly_osteogenic_index is None
+              else wk.weekly_osteogenic_index)
         rows.append(
             f'<tr class="{"pr-stage-weak" if weak else ""}"><td>{wk.week}</td><td>{_esc(pm.level_words(wk.impact_level))}</td>'
             f"<td>{_esc(pm.impact_work_words(wk))}</td><td>{_esc(pm.strength_words(wk))}</td>"

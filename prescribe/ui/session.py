@@ -18,14 +18,14 @@ import threading
 from dataclasses import dataclass, field
 from typing import Any
 
+from ..catalogue import IMPACT_LEVEL_LABELS
 from ..cautions import with_standard
 from ..errors import ConflictError, InputError, NotFoundError, PlanRequestRefused, PrescribeError
 from ..records import PatientRecord, parse_record
 from ..settings import current_clinician, hub_login, require_role
 
-#: Our impact scale (PRODUCT.md): level -> plain label.
-IMPACT_LABELS: dict[int, str] = {0: "0 - no impact", 1: "1 - low impact", 2: "2 - moderate impact",
-                                 3: "3 - high impact"}
+#: Our impact scale (PRODUCT.md): level -> "level - label", from the catalogue's labels.
+IMPACT_LABELS: dict[int, str] = {level: f"{level} - {label}" for level, label in IMPACT_LEVEL_LABELS.items()}
 
 
 class EngineMissing(PrescribeError):
@@ -243,7 +243,7 @@ class ClinicSession:
                     + f" [rule {v.rule}]" + kept)
         if exc.field == "start_level" and self.screening is not None:
             cap = self.screening.max_impact_level
-            label = IMPACT_LABELS[cap].split(" - ", 1)[1]
+            label = IMPACT_LEVEL_LABELS[cap]
             if exc.value is not None and exc.value > cap:
                 return f"Refused: Start level {exc.value} is above what the screening allows ({cap}, {label})." + kept
             return f"Refused: Start level {exc.value} is above what the program's template allows: {exc.reason}." + kept
@@ -315,18 +315,14 @@ class ClinicSession:
     def chart_series(self) -> ChartSeries:
         """The per-week numbers of the program (empty lists before a program exists)."""
         weeks = self.plan.weeks if self.plan else []
-        def extra(w, name, default):
-            value = getattr(w, name, None)
-            if value is None and w.model_extra:
-                value = w.model_extra.get(name)
-            return default if value is None else value
         return ChartSeries(
             week=[w.week for w in weeks],
             impacts_per_session=[w.impacts_per_session for w in weeks],
             impact_level=[w.impact_level for w in weeks],
-            osteogenic_index=[float(extra(w, "weekly_osteogenic_index",
-                                          sum(s.osteogenic_index for s in w.sessions))) for w in weeks],
-            weak_window=[bool(extra(w, "weak_window", False)) for w in weeks],
+            osteogenic_index=[float(sum(s.osteogenic_index for s in w.sessions)
+                                    if w.weekly_osteogenic_index is None else w.weekly_osteogenic_index)
+                              for w in weeks],
+            weak_window=[bool(w.weak_window) for w in weeks],
             impact_minutes=[float(max((x.minutes or 0.0 for s in w.sessions for x in s.exercises
                                        if x.category == "impact" and x.impact_level <= 1), default=0.0))
                             for w in weeks],
