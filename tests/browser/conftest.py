@@ -129,9 +129,8 @@ class OutsideRequests(list):
     """Requests to anywhere but 127.0.0.1 (each was aborted)."""
 
 
-@pytest.fixture
-def app_page(app_server, context):
-    """A page of the app, with every outside request aborted and recorded; fails the test if any."""
+def keep_local(context) -> OutsideRequests:
+    """Abort every request of ``context`` that does not go to 127.0.0.1; return the list they go to."""
     outside = OutsideRequests()
 
     def guard(route):
@@ -143,6 +142,13 @@ def app_page(app_server, context):
             route.abort()
 
     context.route("**/*", guard)
+    return outside
+
+
+@pytest.fixture
+def app_page(app_server, context):
+    """A page of the app, with every outside request aborted and recorded; fails the test if any."""
+    outside = keep_local(context)
     page = context.new_page()
     page.set_default_timeout(30_000)
     page.outside_requests = outside

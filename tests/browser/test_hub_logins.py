@@ -16,14 +16,14 @@ import subprocess
 import sys
 import time
 from pathlib import Path
-from urllib.parse import urlparse
 
 import pytest
 
 from hub_support import stop_hub
 from prescribe.store import open_store
 
-from .conftest import CHROMIUM_ARGS, LOCAL_HOSTS, ROOT, SHOTS, _require_chromium, free_port, shot, type_into, wait_for_port
+from .conftest import (CHROMIUM_ARGS, ROOT, SHOTS, _require_chromium, free_port, keep_local, shot, type_into,
+                       wait_for_port)
 
 pytestmark = pytest.mark.browser
 
@@ -92,17 +92,7 @@ def hub_browser(playwright):
 def _login(browser, hub, user: str):
     """A fresh browser context (its own cookies) logged in as ``user``, on the app page."""
     context = browser.new_context(viewport={"width": 1280, "height": 1400})
-    outside: list[str] = []
-
-    def guard(route):
-        host = urlparse(route.request.url).hostname
-        if route.request.url.startswith(("data:", "blob:", "about:")) or host in LOCAL_HOSTS:
-            route.continue_()
-        else:
-            outside.append(route.request.url)
-            route.abort()
-
-    context.route("**/*", guard)
+    outside = keep_local(context)
     page = context.new_page()
     page.set_default_timeout(60_000)
     page.goto(f"{hub['url']}/hub/login")
