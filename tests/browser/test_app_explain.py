@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import pytest
 
+from prescribe.catalogue import default_catalogue
 from prescribe.explain import explain_exercise
 
 from .conftest import choose, open_app, shot, type_into
@@ -41,7 +42,10 @@ def test_pick_an_exercise_and_see_what_the_bone_feels(app_page, app_server):
     values = select.locator("option").evaluate_all("opts => opts.map(o => o.textContent)")
     assert len(values) >= 2
     label = values[-1]
-    exercise_id = label[label.rindex("(") + 1:-1]
+    # The list shows names only (no ids on the page): find the exercise by its name.
+    # (ipywidgets shows spaces in option labels as no-break spaces).
+    name = label.replace("\xa0", " ")
+    exercise_id = next(e.exercise_id for e in default_catalogue().all() if e.name == name)
     expected = explain_exercise(exercise_id, body_mass_kg=58, t_score=-2.4)
     select.select_option(label=label)
     # The widgets update one after another: wait for the last one (the key figures).
