@@ -78,7 +78,8 @@ def test_upload_a_recording_and_see_planned_against_delivered(app_page, app_serv
     page.wait_for_function("() => document.querySelectorAll('.pr-sensor-chart-days rect.bar').length >= 6")
     table = page.locator(".pr-sensor-table").inner_text()
     assert "three_days.csv" in table and "delivered" in table
-    assert "does not replace clinical judgment" in page.locator(".pr-section-sensor").inner_text()
+    # The standard cautions stay in view at the top of the page (the sections add their own).
+    assert "does not replace clinical judgment" in page.locator(".pr-cautions-always").inner_text()
     shot(page, "60-sensor-planned-delivered", of=".pr-section-sensor")
     with open_store(str(app_server.db_path)) as store:
         saved = store.sensor_summaries(PERSON)
