@@ -256,11 +256,11 @@ N_PLANS = 10_000
 
 def test_rules_hold_in_10000_clinic_like_plans():
     """Seeds 0-9,999 (reproducible: a failure names its seed). The coverage is asserted, so the
-    headline stays true: measured when written, 27.5% of the plans reached moderate or high
-    impact; since a 30-s chair stand below the norm (frail) caps impact at low and a fragility
-    hip or vertebral fracture is osteoporosis whatever the T-score, 22.8% do; 5.6% split a day's
-    impacts into bouts, 14% are refused a step-up week (each refusal checked) and 12% a start
-    level above the cap."""
+    headline stays true. Measured on 2026-12-02 with the current rules and safety check: 22.7% of
+    the plans reach moderate or high impact (27.5% before a 30-s chair stand below the norm capped
+    impact at low and a fragility hip or vertebral fracture counted as osteoporosis), 5.5% split a
+    day's impacts into bouts, 14.1% are refused a step-up week (each refusal checked) and 12.4% a
+    start level above the cap."""
     seen = {"level_2_3": 0, "split": 0, "refused_step_up": 0, "refused_start": 0}
     for seed in range(N_PLANS):
         try:
