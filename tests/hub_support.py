@@ -15,6 +15,27 @@ import subprocess
 from pathlib import Path
 
 
+def wait_for_hub(base: str, proc: subprocess.Popen, log: Path, timeout_s: float = 90.0) -> None:
+    """Return once the proxy routes to the hub and the hub answers (its port alone is not enough:
+    the proxy listens, and answers 404, before the hub has added its route)."""
+    import time
+
+    import requests
+
+    deadline = time.monotonic() + timeout_s
+    while True:
+        if proc.poll() is not None:
+            raise RuntimeError(f"the hub exited: {log.read_text()[-2000:]}")
+        try:
+            if requests.get(f"{base}/hub/api", timeout=2).status_code == 200:
+                return
+        except requests.RequestException:
+            pass
+        if time.monotonic() > deadline:
+            raise RuntimeError(f"the hub did not answer within {timeout_s:g} s")
+        time.sleep(0.2)
+
+
 def stop_hub(proc: subprocess.Popen, hub_dir: Path, timeout_s: float = 60.0) -> None:
     if proc.poll() is None:
         proc.send_signal(signal.SIGTERM)

@@ -13,12 +13,11 @@ import re
 import socket
 import subprocess
 import sys
-import time
 from pathlib import Path
 
 import pytest
 
-from hub_support import stop_hub
+from hub_support import stop_hub, wait_for_hub
 
 ROOT = Path(__file__).resolve().parents[1]
 PROXY_BIN = ROOT / "deploy" / "proxy" / "node_modules" / ".bin"
@@ -52,19 +51,7 @@ def hub(tmp_path_factory):
                                 stdout=out, stderr=subprocess.STDOUT, start_new_session=True)
     base = f"http://127.0.0.1:{port}"
     try:
-        import requests
-        deadline = time.monotonic() + 90
-        while True:  # ready when the proxy routes to the hub and the hub answers
-            if proc.poll() is not None:
-                pytest.fail(f"the hub exited: {log.read_text()[-2000:]}")
-            try:
-                if requests.get(f"{base}/hub/api", timeout=2).status_code == 200:
-                    break
-            except requests.RequestException:
-                pass
-            if time.monotonic() > deadline:
-                pytest.fail("the hub did not answer within 90 s")
-            time.sleep(0.2)
+        wait_for_hub(base, proc, log)
         yield {"url": base, "log": log}
     finally:
         stop_hub(proc, folder)

@@ -19,11 +19,10 @@ from pathlib import Path
 
 import pytest
 
-from hub_support import stop_hub
+from hub_support import stop_hub, wait_for_hub
 from prescribe.store import open_store
 
-from .conftest import (CHROMIUM_ARGS, ROOT, SHOTS, _require_chromium, free_port, keep_local, shot, type_into,
-                       wait_for_port)
+from .conftest import CHROMIUM_ARGS, ROOT, SHOTS, _require_chromium, free_port, keep_local, shot, type_into
 
 pytestmark = pytest.mark.browser
 
@@ -74,7 +73,7 @@ def hub(tmp_path_factory):
         proc = subprocess.Popen([str(Path(sys.executable).with_name("jupyterhub")), "-f", str(config)],
                                 cwd=folder, env=env, stdout=out, stderr=subprocess.STDOUT, start_new_session=True)
     try:
-        wait_for_port("127.0.0.1", port, proc, timeout_s=90)
+        wait_for_hub(f"http://127.0.0.1:{port}", proc, log)
         yield {"url": f"http://127.0.0.1:{port}", "password": password, "db": str(db), "log": log}
     finally:
         stop_hub(proc, folder)  # the hub stops the clinicians' servers, its culler and its proxy
