@@ -343,3 +343,16 @@ def test_a_clinician_may_not_approve_a_template_and_a_lead_may(tmp_db, monkeypat
     assert row["status"] == "approved" and row["approved_by"] == "lena.vos"
     assert "Approved" in lead.template_review.status.value
     assert lead.template_review.drafts.options == (("- no drafts -", None),)
+
+
+def test_the_program_starts_today_or_on_the_chosen_day(app):
+    # PRODUCT.md: week N runs from start_date + 7(N-1) days; today unless the clinician chooses.
+    import datetime
+    assert app.session.plan.start_date == datetime.date.today().isoformat()
+    assert app.start_date.value == datetime.date.today()
+    app.start_date.value = datetime.date(2026, 12, 7)
+    assert app.session.refusal is None, app.session.refusal
+    assert app.session.plan.start_date == "2026-12-07"
+    # Not a date: refused naming the value, the program keeps its start.
+    assert not app.session.set_start_date("next Monday")
+    assert "next Monday" in app.session.refusal and app.session.plan.start_date == "2026-12-07"

@@ -16,6 +16,7 @@ from __future__ import annotations
 import importlib
 import threading
 from dataclasses import dataclass, field
+from datetime import date
 from typing import Any
 
 from ..catalogue import IMPACT_LEVEL_LABELS
@@ -87,6 +88,8 @@ class ClinicSession:
         #: The stored record version this record was opened at (None: a new person).
         self.record_version: int | None = None
         self.clearance: tuple[str, str] | None = None  # (who, when) a clinician cleared a referred person
+        #: The first day of week 1 (YYYY-MM-DD) chosen for the program; None: today, as on the command line.
+        self.start_date: str | None = None
 
     @property
     def cautions(self) -> list[str]:
@@ -114,6 +117,7 @@ class ClinicSession:
         if self.record is None or self.record.patient_id != record.patient_id:
             self.options, self.swaps, self.saved_version, self.clearance = {}, [], None, None
             self.record_version = None
+            self.start_date = None
         self.record = record
         self.screening = _api("screening", "screen")(record)
         self.plan = None
@@ -152,6 +156,8 @@ class ClinicSession:
                     plan = replace(plan, old, new)
                     applied.append((old, new))
             plan = self._cleared(plan)
+            # Week N runs from start_date + 7(N-1) days (PRODUCT.md): today unless the clinician chose.
+            plan = plan.model_copy(update={"start_date": self.start_date or date.today().isoformat()})
             # The one safety check (docs/safety.md): a refusal keeps the old program.
             assert_safe(plan, self.screening, door="app", record=self.record)
             return plan
@@ -164,6 +170,26 @@ class ClinicSession:
         if template_note:
             self.program_note = template_note + (" " + self.program_note if self.program_note else "")
         self.options, self.plan, self.swaps = options, plan, applied
+        return True
+
+    def set_start_date(self, value: date | str | None) -> bool:
+        """Choose the first day of week 1 and rebuild the program with it (None: today).
+
+        A value that is not a date sets ``refusal`` naming it and changes nothing.
+        """
+        if value is None or value == "":
+            chosen = None
+        else:
+            try:
+                chosen = value.isoformat() if isinstance(value, date) else date.fromisoformat(str(value)).isoformat()
+            except ValueError:
+                self.refusal = f"Start date must be a date such as 2026-12-07, not {str(value)!r}."
+                return False
+        before = self.start_date
+        self.start_date = chosen
+        if self.record is not None and not self.build():
+            self.start_date = before
+            return False
         return True
 
     def session_choices(self, kind: str) -> list[int]:
@@ -483,6 +509,7 @@ class ClinicSession:
         self.saved_version = int(latest)
         self.clearance = ((self.plan.cleared_by, self.plan.cleared_at)
                           if self.plan.cleared_by and self.plan.cleared_at else None)
+        self.start_date = self.plan.start_date
         self.refusal = None
         try:  # a stored program from an older version may break a rule added since: say so
             _api("safety", "assert_safe")(self.plan, self.screening, door="saved program", record=self.record)

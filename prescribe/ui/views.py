@@ -15,6 +15,7 @@ import os
 import sys
 import threading
 import traceback
+from datetime import date
 from typing import Any, Callable
 
 import ipywidgets as w
@@ -498,6 +499,9 @@ class ClinicApp:
         self.weeks = w.Text(value="", placeholder="weeks", description="Weeks",
                             continuous_update=False, layout=w.Layout(width="170px"))
         self.weeks.add_class("pr-option-weeks")
+        self.start_date = w.DatePicker(description="Week 1 starts", style={"description_width": "100px"})
+        self.start_date.add_class("pr-option-start_date")
+        self.start_date.observe(lambda ch: self.on_start_date_change(), names="value")
         self.sessions: dict[str, w.Dropdown] = {}
         for kind in ("impact", "resistance", "balance"):
             dd = w.Dropdown(options=[("planner's choice", AUTO)] + [(str(n), n) for n in
@@ -532,7 +536,7 @@ class ClinicApp:
         self.week_table.add_class("pr-week-table")
         self.clearance = ClearanceView(self)  # draft status and clearance (safety_view.py)
         self.program_section = self._section("3. Program", "pr-section-program", [
-            self.clearance.widget, w.HBox([self.start_level, self.weeks]),
+            self.clearance.widget, w.HBox([self.start_level, self.weeks, self.start_date]),
             w.HBox(list(self.sessions.values())),
             swap.widget, self.exercise_view.widget, self.refusal, self.program_view.widget, self.dose,
             self.chart_box, w.HTML("<h3>Week by week</h3>"), self.week_table])
@@ -630,6 +634,13 @@ class ClinicApp:
         self.session.build(**changes)
         self.refresh(store=False)
 
+    @guarded("Changing the start date")
+    def on_start_date_change(self) -> None:
+        if self._syncing or self.session.record is None:
+            return
+        self.session.set_start_date(self.start_date.value)
+        self.refresh(store=False)
+
     @guarded("Listing the replacements")
     def on_exercise_chosen(self) -> None:
         self._refresh_swap_candidates()
@@ -709,6 +720,8 @@ class ClinicApp:
             first_level = s.plan.weeks[0].impact_level if s.plan else None
             self.start_level.value = s.options.get("start_level", first_level)
             self.weeks.value = str(s.options.get("weeks", len(s.plan.weeks) if s.plan else ""))
+            start = s.plan.start_date if s.plan is not None else None
+            self.start_date.value = date.fromisoformat(start) if start else None
             for kind, dd in self.sessions.items():
                 dd.value = s.options.get(f"{kind}_sessions_per_week", AUTO)
             self.program_view.swap.refresh_exercises()
