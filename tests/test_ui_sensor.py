@@ -66,7 +66,9 @@ def test_upload_counts_compares_stores_and_draws(tmp_db):
     s = panel.summary
     assert s["impacts"] == 16 and s["stored"] is True
     assert panel.progress.value == 1.0
-    # Planned figures come from the saved program: week 1 from the day it was saved (no start date yet).
+    # Planned figures come from the saved program: week 1 from its start date (the app's default:
+    # today, the day it was saved).
+    assert app.session.plan.start_date == first.isoformat()
     plan = app.session.plan.model_dump(mode="json")
     week1 = {x["day"]: x["impacts"] for x in plan["weeks"][0]["sessions"]}
     days = s["plan"]["days"]
@@ -78,7 +80,7 @@ def test_upload_counts_compares_stores_and_draws(tmp_db):
     assert list(panel.day_chart.bars.y[0]) == [d["planned_impacts"] for d in days]
     assert list(panel.week_chart.bars.x) == ["week 1"]
     text = html.unescape(panel.table.value)
-    assert "week.csv" in text and "no start_date" in text
+    assert "week.csv" in text and "no start_date" not in text
     assert app.session.store.sensor_summaries("DEMO-SENSOR-1")[0]["summary"]["impacts"] == 16
     # The clinician's handout page gains the same chart.
     doc = app.session.handout("html", "clinician").decode("utf-8")
