@@ -324,25 +324,27 @@ def test_a_clinician_may_not_approve_a_template_and_a_lead_may(tmp_db, monkeypat
     monkeypatch.setenv("PRESCRIBE_HUB_ROLE", "clinician")
     app = make_app(tmp_db)
     app.refresh()
-    panel = app.template_review
+    panel = app.templates_view
+    panel.open()  # the clinic templates section is built when it is opened
     assert "role: <b class='pr-role'>clinician</b>" in panel.role.value
     panel.drafts.value = "Osteopenia start (invented clinic)@1"
-    panel.approve_button.click()
+    panel.approve_draft_button.click()
     assert "mara.teal" in app.errors.last and "clinic lead" in app.errors.last
-    assert "Not approved" in panel.status.value
+    assert "Not approved" in panel.draft_status.value
     assert [t["status"] for t in app.session.store.templates()] == ["draft"]
     monkeypatch.setenv("JUPYTERHUB_USER", "lena.vos")
     monkeypatch.setenv("PRESCRIBE_HUB_ROLE", "lead")
     lead = make_app(tmp_db)
     lead.refresh()
-    assert "lead" in lead.template_review.role.value
-    lead.template_review.drafts.value = "Osteopenia start (invented clinic)@1"
-    lead.template_review.approve_button.click()
+    lead.templates_view.open()
+    assert "lead" in lead.templates_view.role.value
+    lead.templates_view.drafts.value = "Osteopenia start (invented clinic)@1"
+    lead.templates_view.approve_draft_button.click()
     assert lead.errors.last == "", lead.errors.last
     [row] = lead.session.store.templates()
     assert row["status"] == "approved" and row["approved_by"] == "lena.vos"
-    assert "Approved" in lead.template_review.status.value
-    assert lead.template_review.drafts.options == (("- no drafts -", None),)
+    assert "Approved" in lead.templates_view.draft_status.value
+    assert lead.templates_view.drafts.options == (("- no drafts -", None),)
 
 
 def test_the_program_starts_today_or_on_the_chosen_day(app):
@@ -356,3 +358,33 @@ def test_the_program_starts_today_or_on_the_chosen_day(app):
     # Not a date: refused naming the value, the program keeps its start.
     assert not app.session.set_start_date("next Monday")
     assert "next Monday" in app.session.refusal and app.session.plan.start_date == "2026-12-07"
+
+
+def _widget_models() -> int:
+    import warnings
+    import ipywidgets
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", DeprecationWarning)  # Widget.widgets: the registry of live models
+        return len(ipywidgets.Widget.widgets)
+
+
+def test_a_page_builds_only_what_a_first_visit_shows(tmp_db):
+    # Every widget is a model the server sends and the browser builds when the page opens
+    # (benchmarks/bench_app.py measures the time); the sections a first visit does not use
+    # are built when opened.  Was 1,198 models with every section built at once.
+    before = _widget_models()
+    app = ClinicApp(ClinicSession(store_url=tmp_db), warm_up=True)
+    opened = _widget_models() - before
+    assert not (app.live.section.built or app.sensor_panel.section.built or app.templates_view.section.built)
+    assert opened < 450, f"{opened} widget models at page open"
+    app.templates_view.open()
+    assert app.templates_view.section.built and _widget_models() - before > opened + 300
+    assert "standard@1" in app.templates_view.list_box.value  # filled when opened
+
+
+def test_opening_a_saved_program_opens_the_live_session_and_sensor_sections(app):
+    app.clinician.value = "AB"
+    app.save_button.click()
+    assert app.errors.last == "", app.errors.last
+    assert app.live.section.is_open and app.sensor_panel.section.is_open
+    assert "this week: week 1" in app.live.status.value

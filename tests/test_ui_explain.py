@@ -59,7 +59,8 @@ def test_panel_offers_the_program_and_explains_the_pick_for_this_person(app):
     marker = f"{expected['peak_stress_mpa']['compression']:.0f} MPa"
     assert marker in view.figures.value
     assert f"{expected['joint_contact_force_n']:.0f} N" in view.numbers.value
-    assert "does not replace clinical judgment" in view.cautions.value
+    # The standard cautions stay in the one box on top of the page; the panel adds its own.
+    assert "does not replace clinical judgment" in app.top_cautions.value
     assert "do not predict a fracture" in view.cautions.value
 
 

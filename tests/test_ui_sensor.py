@@ -26,6 +26,7 @@ def make_app(db):
         app.intake.inputs[key].value = value
     app.submit_button.click()
     assert app.errors.last == "", app.errors.last
+    app.sensor_panel.open()  # the section is built when opened (a saved program opens it by itself)
     return app
 
 
@@ -107,6 +108,7 @@ def test_a_bad_file_shows_what_is_wrong_and_stores_nothing(tmp_db):
 
 def test_counting_needs_a_person_and_a_file(tmp_db):
     app = ClinicApp(ClinicSession(store_url=tmp_db))
+    app.sensor_panel.open()
     app.sensor_panel.count_button.click()
     assert "person" in app.errors.last
     app = make_app(tmp_db)

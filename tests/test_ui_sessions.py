@@ -35,8 +35,12 @@ def app(tmp_db):
 
 def test_without_a_saved_person_the_panel_says_what_to_do(tmp_db):
     app = ClinicApp(ClinicSession(store_url=tmp_db))
+    assert not app.live.section.built  # nothing to log yet: the section waits to be opened
+    app.live.open()
     assert "Open a saved person" in app.live.status.value and app.live.rows == []
-    assert "does not replace clinical judgment" in app.live.cautions.value
+    # The standard cautions stay in the box on top of the page; the panel shows its own.
+    assert "does not replace clinical judgment" in app.top_cautions.value
+    assert "stop the session and assess" in app.live.cautions.value
 
 
 def test_this_week_shows_the_days_exercises_prefilled_as_prescribed(app):

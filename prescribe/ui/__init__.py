@@ -1,7 +1,7 @@
 """The clinic app (ipywidgets and bqplot): the only package that imports them.
 
 ``ClinicSession`` (state and actions, no widgets) lives in :mod:`prescribe.ui.session`;
-``ClinicApp`` (the widgets) in :mod:`prescribe.ui.views`.  Both are imported lazily so
+``ClinicApp`` (the widgets) in :mod:`prescribe.ui.app` (assembled from the section modules).  Both are imported lazily so
 ``import prescribe.ui.session`` never loads ipywidgets.
 """
 
@@ -12,7 +12,7 @@ __all__ = ["ClinicApp", "ClinicSession", "notebook_json"]
 
 def __getattr__(name: str):
     if name == "ClinicApp":
-        from .views import ClinicApp
+        from .app import ClinicApp
         return ClinicApp
     if name == "ClinicSession":
         from .session import ClinicSession

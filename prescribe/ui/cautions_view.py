@@ -17,6 +17,26 @@ HANDOUT_CAUTIONS = (
     "usual cautions and the clinic's contact.",
 )
 
+#: What the live-session panel asks of the clinician (common practice; the symptoms and falls
+#: that stop a session are the session rules' own, data/session_rules.toml).
+LIVE_CAUTIONS = (
+    "Any symptom ticked below means stop the session and assess the person before going on; "
+    "a fall since the last session is assessed before any loading.",
+    "The advice is a suggestion from the clinic's rules, with its reasons: you decide. Applying it stores a "
+    "new program version that passes the same safety check as every program.",
+)
+#: What the worn-sensor panel says of its counts (common practice).
+SENSOR_CAUTIONS = (
+    "Impacts counted from a worn sensor are estimates from acceleration at the hip, not forces at the bone; "
+    "check the wear time before reading a low count as missed sessions.",
+)
+
+
+def specific(items) -> list[str]:
+    """``items`` without the standard cautions (those stay in the box on top of the page)."""
+    standard = set(STANDARD_CAUTIONS)
+    return [c for c in items or () if c not in standard]
+
 
 def section_cautions(session) -> dict[str, list[str]]:
     """Section css class -> its specific cautions (standard ones left to the top box)."""

@@ -20,8 +20,9 @@ from typing import Any
 
 import ipywidgets as w
 
-from ..cautions import with_standard
 from ..errors import PrescribeError
+from .cautions_view import specific
+from .common import cautions_html
 
 log = logging.getLogger("prescribe.ui")
 
@@ -50,8 +51,9 @@ class ExplainView:
         self.figures.add_class("pr-explain-figures")
         self.numbers = w.HTML("")
         self.numbers.add_class("pr-explain-figures-numbers")
-        self.cautions = w.HTML(self._cautions_html())
+        self.cautions = w.HTML("")  # the panel's own cautions; the standard ones stay in the box on top
         self.cautions.add_class("pr-cautions-box")
+        self.cautions.add_class("pr-explain-cautions")
         intro = w.HTML("<h3 style='margin:10px 0 4px 0;color:#1f3b57'>The loads explained</h3>"
                        "<p style='margin:0 0 4px 0'>What one exercise of this program does to the hip joint and "
                        "the thigh bone, to show the person. Estimates from published relations.</p>")
@@ -141,6 +143,4 @@ class ExplainView:
 
     @staticmethod
     def _cautions_html(items: list[str] | None = None) -> str:
-        items = items or with_standard()
-        return ('<div class="pr-cautions"><b>Cautions</b><ul>' +
-                "".join(f"<li>{_esc(c)}</li>" for c in items) + "</ul></div>")
+        return cautions_html(specific(items), "Cautions for this part")

@@ -16,7 +16,6 @@ import ipywidgets as w
 
 from ..errors import InputError
 from . import program_model as pm
-from .session import EngineMissing
 from .wording import exercise_names, plain
 
 CSS = """
@@ -154,11 +153,8 @@ class SwapPanel:
 
     def refresh_candidates(self, prefer: str | None = None) -> None:
         """The session's candidates by name, level and force; keeps the chosen one selected."""
-        try:
-            current = self.exercise_select.value
-            candidates = self.app.session.swap_candidates(current) if current else []
-        except EngineMissing:
-            candidates = []
+        current = self.exercise_select.value
+        candidates = self.app.session.swap_candidates(current) if current else []
         entries = self._entries()
         options = []
         for cid, name in candidates:

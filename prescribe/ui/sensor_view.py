@@ -1,7 +1,7 @@
 """The app's worn-sensor panel: upload a recording for the open person, watch it being read,
 see planned against delivered per day and per week.
 
-A :class:`SensorPanel` sits over a :class:`~prescribe.ui.views.ClinicApp` (its session,
+A :class:`SensorPanel` sits over a :class:`~prescribe.ui.app.ClinicApp` (its session,
 lock and error area) and exposes ``.widget``.  The counting is
 :func:`prescribe.sensor.summarise_for_person`; the store keeps the summary (never the
 raw signal).  Widgets carry stable CSS classes (``pr-sensor-...``) for browser tests.
@@ -17,6 +17,8 @@ from typing import Any
 import ipywidgets as w
 
 from ..errors import InputError, NotFoundError, PrescribeError
+from .cautions_view import SENSOR_CAUTIONS
+from .common import LazySection, cautions_html, guarded
 
 SUFFIXES = (".csv", ".cwa", ".bin")
 #: Largest upload [bytes]: the app server's websocket limit (prescribe/cli/app_cmd.py).
@@ -62,6 +64,18 @@ class SensorPanel:
     def __init__(self, app) -> None:
         self.app = app
         self.summary: dict | None = None
+        self.day_chart: PlannedDeliveredChart | None = None
+        self.week_chart: PlannedDeliveredChart | None = None
+        self.section = LazySection("7. Worn sensor: delivered against planned", "pr-section-sensor", self._build,
+                                   after=self.show_latest)
+        self.widget = self.section.widget
+
+    def open(self) -> None:
+        """Build the panel (if need be) and show it open."""
+        self.section.open()
+
+    def _build(self) -> list:
+        """The panel's widgets (built the first time the section is opened)."""
         self.upload = w.FileUpload(accept=",".join(SUFFIXES), multiple=False, description="Choose file")
         self.upload.add_class("pr-sensor-upload")
         self.site = w.Dropdown(options=[("worn at the hip", "hip"), ("worn at the wrist", "wrist")], value="hip",
@@ -78,26 +92,26 @@ class SensorPanel:
         self.progress.add_class("pr-sensor-progress")
         self.status = w.HTML("")
         self.status.add_class("pr-sensor-status")
-        self.day_chart: PlannedDeliveredChart | None = None
-        self.week_chart: PlannedDeliveredChart | None = None
         self.chart_box = w.VBox([])
         self.chart_box.add_class("pr-sensor-charts")
         self.table = w.HTML("")
         self.table.add_class("pr-sensor-table")
-        self.widget = app._section("6. Worn sensor: delivered against planned", "pr-section-sensor", [
+        cautions = w.HTML(cautions_html(list(SENSOR_CAUTIONS), "Cautions for this part"))
+        cautions.add_class("pr-cautions-box")
+        cautions.add_class("pr-sensor-cautions")
+        return [
             w.HTML("<p>A recording from a sensor worn at the hip: CSV (time_s, x_g, y_g, z_g), Axivity .cwa or "
                    "GENEActiv .bin. Impacts are counted per band of peak acceleration and set beside the "
                    "person's stored program. Only the summary is stored, never the signal. Files up to 256 MB here "
                    "(a week at the hip in .cwa is well under that); a larger one with <code>prescribe sensor</code>.</p>"),
             w.HBox([self.upload, self.site, self.keep]), w.HBox([self.count_button, self.progress]),
-            self.status, self.chart_box, self.table])
+            self.status, self.chart_box, self.table, cautions]
 
     # -- actions ----------------------------------------------------------------------
     def _report(self, share: float) -> None:
         self.progress.value = max(0.0, min(1.0, float(share)))
 
     def on_count(self) -> None:
-        from .views import guarded  # the app's error handling (shown in the page, never lost)
         guarded("Counting the recording")(SensorPanel._count)(self)
 
     @property
@@ -169,8 +183,14 @@ class SensorPanel:
             return None, None
 
     def show_latest(self) -> None:
-        """Show the open person's newest stored recording (or clear the panel)."""
+        """Show the open person's newest stored recording (or clear the panel).
+
+        The panel is built when it is opened, or here as soon as a saved person's program is open."""
         session = self.app.session
+        if not self.section.built:
+            if session.record is not None and session.saved_version is not None:
+                self.section.open()  # builds, then comes back here through ``after``
+            return
         latest = None
         if session.record is not None:
             try:

@@ -2,7 +2,7 @@
 
 A :class:`ClinicSession` holds one person's record, their screening, the planner
 options the clinician chose, the program built from them and the messages to show.
-The views in :mod:`prescribe.ui.views` read it and call its methods; nothing here
+The sections of :mod:`prescribe.ui.app` read it and call its methods; nothing here
 imports ipywidgets or bqplot.
 
 Expected problems never raise out of the session: bad input becomes per-field
@@ -13,7 +13,6 @@ to show in its error area.
 
 from __future__ import annotations
 
-import importlib
 import threading
 from dataclasses import dataclass, field
 from datetime import date
@@ -29,22 +28,36 @@ from ..settings import current_clinician, hub_login, require_role
 IMPACT_LABELS: dict[int, str] = {level: f"{level} - {label}" for level, label in IMPACT_LEVEL_LABELS.items()}
 
 
-class EngineMissing(PrescribeError):
-    """A part of the library the app needs is not installed in this version."""
+# The engines load on first use, not when the page opens (the intake form needs none of
+# them); ClinicSession.load_engines loads them in the background once the page is shown.
+def _planner():
+    from .. import planner
+    return planner
 
 
-def _api(module: str, name: str):
-    """``prescribe.<module>.<name>``, or :class:`EngineMissing` when that part is not there."""
-    try:
-        mod = importlib.import_module(f"prescribe.{module}")
-    except ModuleNotFoundError as exc:
-        if exc.name and exc.name.startswith(f"prescribe.{module}"):
-            raise EngineMissing(f"this version of prescribe has no {module} module yet") from None
-        raise
-    try:
-        return getattr(mod, name)
-    except AttributeError:
-        raise EngineMissing(f"prescribe.{module} has no {name} yet") from None
+def _safety():
+    from .. import safety
+    return safety
+
+
+def _screening():
+    from .. import screening
+    return screening
+
+
+def _catalogue():
+    from .. import catalogue
+    return catalogue
+
+
+def _handout():
+    from .. import handout
+    return handout
+
+
+def _store():
+    from .. import store
+    return store
 
 
 @dataclass
@@ -119,7 +132,7 @@ class ClinicSession:
             self.record_version = None
             self.start_date = None
         self.record = record
-        self.screening = _api("screening", "screen")(record)
+        self.screening = _screening().screen(record)
         self.plan = None
         self.build()
         return True
@@ -134,12 +147,8 @@ class ClinicSession:
         if self.record is None:
             self.refusal = "Enter and check the person's details first."
             return False
-        try:
-            build_plan, plan_options = _api("planner", "build_plan"), _api("planner", "PlanOptions")
-            replace, assert_safe = _api("planner", "replace_exercise"), _api("safety", "assert_safe")
-        except EngineMissing as exc:
-            self.refusal = f"The program cannot be built here: {exc}."
-            return False
+        build_plan, plan_options = _planner().build_plan, _planner().PlanOptions
+        replace, assert_safe = _planner().replace_exercise, _safety().assert_safe
         # None means "the planner's choice": the option is dropped, not passed on.
         options = {k: v for k, v in {**self.options, **changes}.items() if v is not None}
         applied: list[tuple[str, str]] = []
@@ -210,7 +219,7 @@ class ClinicSession:
         if merge:
             self.refusal = merge
             return False
-        replace, assert_safe = _api("planner", "replace_exercise"), _api("safety", "assert_safe")
+        replace, assert_safe = _planner().replace_exercise, _safety().assert_safe
 
         def make():
             plan = replace(self.plan, old_id, new_id)
@@ -279,7 +288,7 @@ class ClinicSession:
     @property
     def is_draft(self) -> bool:
         """True while the program is a draft: the screening refers the person and no clearance is recorded."""
-        return self.plan is not None and _api("safety", "is_draft")(self.plan)
+        return self.plan is not None and _safety().is_draft(self.plan)
 
     def clear(self, clinician: str) -> bool:
         """Record that ``clinician`` has cleared this person for the program (who and when).
@@ -291,7 +300,7 @@ class ClinicSession:
             self.refusal = "Build a program first."
             return False
         try:
-            plan = _api("safety", "record_clearance")(self.plan, clinician)
+            plan = _safety().record_clearance(self.plan, clinician)
         except InputError as exc:
             self.refusal = f"Not cleared: {exc}"
             return False
@@ -303,7 +312,7 @@ class ClinicSession:
         """``plan`` with this visit's recorded clearance, if any."""
         if self.clearance is None:
             return plan
-        return _api("safety", "record_clearance")(plan, *self.clearance)
+        return _safety().record_clearance(plan, *self.clearance)
 
     def exclude(self, exercise_id: str) -> bool:
         """Leave ``exercise_id`` out of the program (the planner picks what replaces it)."""
@@ -325,7 +334,7 @@ class ClinicSession:
         """(exercise_id, name) of catalogue entries of the same category, within the impact cap."""
         if self.plan is None or self.screening is None:
             return []
-        catalogue = _api("catalogue", "default_catalogue")()
+        catalogue = _catalogue().default_catalogue()
         current = catalogue.get(exercise_id)
         cap = self.screening.max_impact_level
         avoid = set(self.screening.avoid)
@@ -354,17 +363,16 @@ class ClinicSession:
                             for w in weeks],
         )
 
+    @staticmethod
+    def load_engines() -> None:
+        """Import the screening, planning and safety engines (slow once), so the first check is quick."""
+        _screening(), _planner(), _safety()
+
     def week_rows(self) -> list[dict]:
         """One row a week for the program table."""
         if self.plan is None:
             return []
-        try:
-            frame = _api("planner", "weekly_summary")(self.plan)
-            return frame.to_dict(orient="records")
-        except (EngineMissing, AttributeError):
-            s = self.chart_series()
-            return [{"week": w, "impact_level": lv, "impacts_per_session": n, "weekly_osteogenic_index": round(oi, 1)}
-                    for w, lv, n, oi in zip(s.week, s.impact_level, s.impacts_per_session, s.osteogenic_index)]
+        return _planner().weekly_summary(self.plan).to_dict(orient="records")
 
     def dose_figures(self) -> dict[str, float]:
         """Headline dose figures of the program (for the line under the charts)."""
@@ -386,12 +394,12 @@ class ClinicSession:
         if self.plan is None:
             raise InputError.single("program", None, "a built program (check the person's details first)")
         # A handout is a door too: the program is checked before anything is printed.
-        _api("safety", "assert_safe")(self.plan, self.screening, door="handout", record=self.record)
+        _safety().assert_safe(self.plan, self.screening, door="handout", record=self.record)
         sensor = self.latest_sensor_summary()  # the clinician's page shows it when there is one
         if fmt == "pdf":
-            return _api("handout", "render_pdf")(self.plan, audience=audience, paper=paper, sensor_summary=sensor,
+            return _handout().render_pdf(self.plan, audience=audience, paper=paper, sensor_summary=sensor,
                                                  large_print=large_print)
-        html = _api("handout", "render_html")(self.plan, audience=audience, paper=paper, sensor_summary=sensor,
+        html = _handout().render_html(self.plan, audience=audience, paper=paper, sensor_summary=sensor,
                                               large_print=large_print)
         return html.encode("utf-8") if isinstance(html, str) else html
 
@@ -401,7 +409,7 @@ class ClinicSession:
             return None
         try:
             rows = self.store.sensor_summaries(self.record.patient_id)
-        except (NotFoundError, EngineMissing, AttributeError):
+        except NotFoundError:
             return None
         return rows[-1]["summary"] if rows else None
 
@@ -410,7 +418,7 @@ class ClinicSession:
     def store(self):
         with self._store_lock:  # the app may read the store from its warm-up thread too
             if self._store is None:
-                self._store = _api("store", "open_store")(self.store_url)
+                self._store = _store().open_store(self.store_url)
         return self._store
 
     def save(self, clinician: str | None = None, note: str = "") -> int | None:
@@ -504,15 +512,15 @@ class ClinicSession:
         self.plan = parse_plan(self.store.get_program(patient_id, version), source=f"saved program of {patient_id}")
         # What the clinician chose for the saved program, so a change rebuilds that program
         # with one difference rather than the planner's defaults.
-        self.options = dict(_api("planner", "fixed_options")(self.plan))
-        self.swaps = list(_api("planner", "plan_swaps")(self.plan))
+        self.options = dict(_planner().fixed_options(self.plan))
+        self.swaps = list(_planner().plan_swaps(self.plan))
         self.saved_version = int(latest)
         self.clearance = ((self.plan.cleared_by, self.plan.cleared_at)
                           if self.plan.cleared_by and self.plan.cleared_at else None)
         self.start_date = self.plan.start_date
         self.refusal = None
         try:  # a stored program from an older version may break a rule added since: say so
-            _api("safety", "assert_safe")(self.plan, self.screening, door="saved program", record=self.record)
+            _safety().assert_safe(self.plan, self.screening, door="saved program", record=self.record)
         except PlanRequestRefused as exc:
             self.refusal = ("This saved program breaks a safety rule; change it before printing or saving. "
                             + self.plain_refusal(exc))

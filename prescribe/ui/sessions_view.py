@@ -23,7 +23,8 @@ import ipywidgets as w
 from ..errors import InputError, NotFoundError
 from ..plan_schema import parse_day, program_week
 from ..sessions.records import SYMPTOMS, parse_session
-from .views import ErrorArea, _cautions_html, _esc, cautions_box, guarded
+from .cautions_view import LIVE_CAUTIONS
+from .common import ErrorArea, LazySection, cautions_html, esc, guarded
 
 #: The per-exercise entries, in the order shown: (record field, label, integer?).
 EXERCISE_FIELDS = (("sets_done", "sets", True), ("reps_done", "reps", True), ("impacts_done", "impacts", True),
@@ -67,7 +68,7 @@ class _ExerciseRow:
         dose = planned.get("intensity") or ""
         if planned.get("load_note"):
             dose += f" - {planned['load_note']}"
-        self.label = w.HTML(f"<b>{_esc(label)}</b><br><small>{_esc(dose)}</small>",
+        self.label = w.HTML(f"<b>{esc(label)}</b><br><small>{esc(dose)}</small>",
                             layout=w.Layout(width="260px"))
         self.inputs: dict[str, w.Text] = {}
         for key, short, _whole in EXERCISE_FIELDS:
@@ -105,6 +106,17 @@ class SessionsView:
         self.rows: list[_ExerciseRow] = []
         self.advice: dict | None = None
         self.charts = None
+        self.section = LazySection("6. Live session: log, advise, adjust", "pr-section-sessions", self._build,
+                                   after=self.refresh)
+        self.widget = self.section.widget
+
+    def open(self) -> None:
+        """Build the panel (if need be) and show it open."""
+        self.section.open()
+
+    # -- building ---------------------------------------------------------------------------
+    def _build(self) -> list:
+        """The panel's widgets (built the first time the section is opened)."""
         self.status = w.HTML("")
         self.status.add_class("pr-live-status")
         self.date = w.Text(value=date.today().isoformat(), description="Date", layout=w.Layout(width="220px"))
@@ -132,7 +144,7 @@ class SessionsView:
         self.note.add_class("pr-live-note")
         for key in ("symptoms", "fell_since_last", "note", "session_date", "exercises", "clinician"):
             self.msgs[key] = self._msg(key)
-        self.clinician = w.Text(value=getattr(app.session, "clinician", ""), description="Clinician *",
+        self.clinician = w.Text(value=getattr(self.app.session, "clinician", ""), description="Clinician *",
                                 placeholder="your name or initials")
         self.clinician.add_class("pr-live-clinician")
         self.log_button = w.Button(description="Log session and advise", button_style="primary",
@@ -152,10 +164,11 @@ class SessionsView:
         self.log_status.add_class("pr-live-log-status")
         self.chart_box = w.VBox([])
         self.chart_box.add_class("pr-live-charts")
-        self.cautions = cautions_box()
+        self.cautions = w.HTML(cautions_html(list(LIVE_CAUTIONS), "Cautions for this part"))
+        self.cautions.add_class("pr-cautions-box")
         self.cautions.add_class("pr-live-cautions")
-        self.widget = w.VBox([
-            w.HTML("<h2>6. Live session: log, advise, adjust</h2>"), self.errors.widget, self.status,
+        return [
+            self.errors.widget, self.status,
             w.HBox([self.date, self.day]), self.rows_box, self.msgs["exercises"],
             w.HBox([self.fields["pain_during"], self.fields["pain_next_morning"], self.fields["session_rpe"]]),
             w.HTML("<b>Symptoms today</b> (any of these: stop and assess)"),
@@ -164,10 +177,8 @@ class SessionsView:
             self.note, self.msgs["note"], self.msgs["session_date"],
             w.HBox([self.clinician, self.msgs["clinician"]]),
             w.HBox([self.log_button, self.advise_button, self.apply_button]), self.log_status,
-            self.advice_view, self.chart_box, self.cautions])
-        self.widget.add_class("pr-section-sessions")
+            self.advice_view, self.chart_box, self.cautions]
 
-    # -- building ---------------------------------------------------------------------------
     def _msg(self, key: str) -> w.HTML:
         box = w.HTML("")
         box.add_class("pr-msg")
@@ -210,8 +221,14 @@ class SessionsView:
         return min(max(program_week(plan_start(plan), day), 1), len(plan["weeks"]))
 
     def refresh(self) -> None:
-        """Follow the app's person and program (called by the app after every change)."""
-        self.cautions.value = _cautions_html(self.app.session.cautions)
+        """Follow the app's person and program (called by the app after every change).
+
+        The panel is built when it is opened, or here as soon as a saved program is open."""
+        if not self.section.built:
+            if self._ready():
+                with self.lock:
+                    self.section.open()  # builds, then comes back here through ``after``
+            return
         if not self._ready():
             self.status.value = ("<p><i>Open a saved person with a saved program (section 1, or save it in "
                                  "section 5) to log sessions here.</i></p>")
@@ -223,12 +240,12 @@ class SessionsView:
         week = self.current_week()
         wk = plan["weeks"][week - 1]
         paused = plan.get("paused")
-        self.status.value = (f"<p><b>{_esc(self.patient_id)}</b>: program version {self.app.session.saved_version}, "
-                             f"started {_esc(plan.get('start_date') or str(plan.get('created', ''))[:10])}; "
+        self.status.value = (f"<p><b>{esc(self.patient_id)}</b>: program version {self.app.session.saved_version}, "
+                             f"started {esc(plan.get('start_date') or str(plan.get('created', ''))[:10])}; "
                              f"<b>this week: week {week}</b> of {len(plan['weeks'])} "
-                             f"({_esc(wk.get('phase', ''))})."
+                             f"({esc(wk.get('phase', ''))})."
                              + (f' <span class="pr-msg">Paused from week {paused["from_week"]}: '
-                                f'{_esc(paused.get("reason", ""))}</span>' if paused else "") + "</p>")
+                                f'{esc(paused.get("reason", ""))}</span>' if paused else "") + "</p>")
         days = sorted({s["day"] for s in wk["sessions"]})
         names = {1: "Mon", 2: "Tue", 3: "Wed", 4: "Thu", 5: "Fri", 6: "Sat", 7: "Sun"}
         options = [(f"day {d} ({names[d]}): " + " + ".join(s["kind"] for s in wk["sessions"] if s["day"] == d), d)
@@ -294,11 +311,11 @@ class SessionsView:
                     i = -1
                 done = [r for r in self.rows if r.done.value]
                 if 0 <= i < len(done):
-                    done[i].msg.value = f'<span class="pr-msg">{_esc(p.message)}</span>'
+                    done[i].msg.value = f'<span class="pr-msg">{esc(p.message)}</span>'
                     continue
             key = field.split("[")[0].split(".")[0]
             box = self.msgs.get(key) or self.msgs["session_date"]
-            box.value = f'<span class="pr-msg">{_esc(p.message)}</span>'
+            box.value = f'<span class="pr-msg">{esc(p.message)}</span>'
 
     @guarded("Logging the session")
     def on_log(self) -> bool:
@@ -321,7 +338,7 @@ class SessionsView:
             return False
         self.app.session.clinician = who
         self.log_status.value = (f"<span>Session {out['session_id']} logged for week {out['week']} "
-                                 f"({_esc(record.session_date)}).</span>")
+                                 f"({esc(record.session_date)}).</span>")
         self._advise()
         return True
 
@@ -357,7 +374,7 @@ class SessionsView:
         self.apply_button.disabled = True
         self.advice_view.value = (advice_html(out) +
                                   f'<p class="pr-live-applied"><b>Applied</b>: stored as program version {version} '
-                                  f'(based on version {out["based_on_version"]}) by {_esc(who)}.</p>')
+                                  f'(based on version {out["based_on_version"]}) by {esc(who)}.</p>')
         refresh = getattr(self.app, "refresh", None)
         if refresh is not None:
             refresh()
@@ -389,16 +406,16 @@ class SessionsView:
 def advice_html(advice: dict) -> str:
     """The advice as the panel shows it: the decision, its reasons with sources, what changes."""
     decision = advice["decision"]
-    reasons = "".join(f"<li>{_esc(r['message'])} <small>[{_esc(r['rule'])}; source: {_esc(r['source'])}]</small></li>"
+    reasons = "".join(f"<li>{esc(r['message'])} <small>[{esc(r['rule'])}; source: {esc(r['source'])}]</small></li>"
                       for r in advice["reasons"])
-    changes = "".join(f"<li>{_esc(c)}</li>" for c in advice["changes"])
-    loads = "".join(f"<li>{_esc(e)}: about {_esc(v['kg'])} kg estimated 1RM ({_esc(v['method'])})</li>"
+    changes = "".join(f"<li>{esc(c)}</li>" for c in advice["changes"])
+    loads = "".join(f"<li>{esc(e)}: about {esc(v['kg'])} kg estimated 1RM ({esc(v['method'])})</li>"
                     for e, v in advice.get("estimated_1rm", {}).items() if v.get("kg"))
     return (f'<div class="pr-live-decision pr-live-decision-{decision.replace("_", "-")}">'
-            f'<p><b>Next step for week {advice["week"]}: {_esc(DECISION_TEXT.get(decision, decision))}</b></p>'
+            f'<p><b>Next step for week {advice["week"]}: {esc(DECISION_TEXT.get(decision, decision))}</b></p>'
             f"<p>Why:</p><ul>{reasons}</ul><p>What the adjusted program changes:</p><ul>{changes}</ul>"
             + (f"<p>Working loads:</p><ul>{loads}</ul>" if loads else "")
-            + (f'<p class="pr-live-already">{_esc(advice["already_applied"])}.</p>'
+            + (f'<p class="pr-live-already">{esc(advice["already_applied"])}.</p>'
                if advice.get("already_applied") else "") + "</div>")
 
 

@@ -10,8 +10,11 @@
 - two versions compared over the reference panel, with charts;
 - the caseload what-if, with a progress bar and a table of who would change.
 
-The section is an accordion that loads nothing until it is opened, so the clinician's
-page opens as fast as before.  Widgets carry stable ``pr-tpl-...`` CSS classes.
+The section is shown by its title and built the first time it is opened (nothing is
+built or read before), so the clinician's page opens as fast as without it.  At its top,
+the drafts waiting for review with an Approve button (clinic leads only: a clinician
+sees the drafts and, on Approve, a refusal that says who may; under JupyterHub the
+approver recorded is the login).  Widgets carry stable ``pr-tpl-...`` CSS classes.
 """
 
 from __future__ import annotations
@@ -22,7 +25,8 @@ from typing import Any
 
 import ipywidgets as w
 
-from ..errors import FieldProblem, InputError, PrescribeError
+from ..errors import FieldProblem, InputError, NotPermittedError, PrescribeError
+from .common import ErrorArea, LazySection, guarded
 
 _ESC = html.escape
 
@@ -76,16 +80,31 @@ def program_notice_html(session) -> str:
 class TemplatesView:
     """The clinic lead's section over a :class:`~prescribe.ui.session.ClinicSession` (its store)."""
 
-    def __init__(self, session) -> None:
-        from ..planner_rules import CERTAINTY_LEVELS, template_fields
-
+    def __init__(self, session, app=None) -> None:
+        """The section over ``session``; inside the app, ``app`` (its error area for the drafts' Approve)."""
         self.session = session
-        self.fields = template_fields()
+        self.app = app
+        self.errors = app.errors if app is not None else ErrorArea()  # what @guarded uses
+        self.lock = app.lock if app is not None else threading.RLock()
         self.loaded = False
         self.current = None          # the TemplateVersion shown in the form
         self.last_compare: dict | None = None
         self.last_whatif = None
         self._lock = threading.RLock()
+        self.section = LazySection("8. Clinic templates (clinic lead)", "pr-section-templates", self._build,
+                                   after=self.refresh)
+        self.widget = self.section.widget
+
+    def open(self) -> None:
+        """Build the section (if need be) and show it open."""
+        self.section.open()
+
+    def _build(self) -> list:
+        """The section's widgets (built the first time it is opened)."""
+        from ..planner_rules import CERTAINTY_LEVELS, template_fields
+
+        session = self.session
+        self.fields = template_fields()
 
         def button(text, css, style=""):
             b = w.Button(description=text, button_style=style, layout=w.Layout(width="auto"))
@@ -98,9 +117,19 @@ class TemplatesView:
             return box
 
         self.error = html_box("pr-tpl-error")
+        login = getattr(session, "login", None)  # under the hub, the login: recorded, never typed
         self.clinician = w.Text(value=getattr(session, "clinician", "") or "", description="Clinician *",
-                                placeholder="your name or initials")
+                                placeholder="your name or initials", disabled=login is not None)
         self.clinician.add_class("pr-tpl-clinician")
+
+        # Drafts waiting for a clinic lead: the quickest way to approve one.
+        self.role = html_box("pr-template-role")
+        self.drafts = w.Dropdown(options=[("- no drafts -", None)], description="Draft",
+                                 layout=w.Layout(width="420px"))
+        self.drafts.add_class("pr-template-drafts")
+        self.approve_draft_button = button("Approve (clinic lead)", "pr-template-approve", "warning")
+        self.approve_draft_button.on_click(lambda _b: self.on_approve_draft())
+        self.draft_status = html_box("pr-template-status")
         self.list_box = html_box("pr-tpl-list")
         self.refresh_button = button("Refresh list", "pr-tpl-refresh")
         self.refresh_button.on_click(lambda _b: self.refresh())
@@ -194,27 +223,22 @@ class TemplatesView:
             f"<li>{_esc(c)}</li>" for c in with_standard(
                 ["A template's figures over invented people are a review aid; every program built from it is "
                  "reviewed by a licensed clinician."])) + "</ul></div>")
-        body = w.VBox([
-            self.error, w.HBox([self.clinician, self.refresh_button]), self.list_box,
+        return [
+            w.HTML("<p>A clinic lead reviews and approves the clinic's program templates; approved versions "
+                   "never change. Approving confirms the template fits local guidelines; it does not replace "
+                   "each person's clinical review.</p>"),
+            self.error, w.HBox([self.clinician, self.refresh_button]), self.role,
+            w.HTML("<h3>Drafts waiting for review</h3>"), w.HBox([self.drafts, self.approve_draft_button]),
+            self.draft_status, w.HTML("<h3>All versions</h3>"), self.list_box,
             w.HTML("<h3>Template</h3>"), w.HBox([self.select, self.open_button]), self.doc_status, self.form,
             w.HBox([self.check_button, self.save_button, self.review_by, self.approve_button, self.retire_button]),
             self.status, self.check_result,
             w.HTML("<h3>Compare two versions</h3>"), w.HBox([self.compare_a, self.compare_b, self.compare_button]),
             self.compare_table, self.compare_fields, self.chart_box,
             w.HTML("<h3>Caseload what-if</h3>"), w.HBox([self.whatif_template, self.whatif_rules]),
-            w.HBox([self.whatif_button, self.progress]), self.whatif_table, cautions])
-        body.add_class("pr-tpl-body")
-        self.widget = w.Accordion(children=[body])
-        self.widget.set_title(0, "6. Clinic templates (clinic lead)")
-        self.widget.selected_index = None
-        self.widget.add_class("pr-section-templates")
-        self.widget.observe(self._on_toggle, names="selected_index")
+            w.HBox([self.whatif_button, self.progress]), self.whatif_table, cautions]
 
     # -- plumbing ---------------------------------------------------------------------
-    def _on_toggle(self, change) -> None:
-        if change["new"] == 0 and not self.loaded:
-            self.refresh()
-
     def _run(self, action: str, fn, *args):
         with self._lock:
             try:
@@ -248,6 +272,9 @@ class TemplatesView:
 
     # -- list -------------------------------------------------------------------------
     def refresh(self) -> None:
+        """Re-read the versions and the drafts (nothing to do until the section is built)."""
+        if not self.section.built:
+            return
         self._run("Listing the templates", self._refresh)
 
     def _refresh(self) -> None:
@@ -270,8 +297,41 @@ class TemplatesView:
         if self.compare_b.value == self.compare_a.value and len(refs) > 1:
             self.compare_b.value = refs[1][1]
         self.loaded = True
+        self._refresh_drafts()
         if self.current is None and refs:
             self._open(self.select.value)
+
+    # -- drafts waiting for a lead --------------------------------------------------------
+    def _refresh_drafts(self) -> None:
+        from ..settings import clinician_role
+
+        who = self.clinician.value.strip()
+        role = clinician_role(who) if who else "clinician"
+        shown = _esc(who) if who else "(type your name above)"
+        self.role.value = f"<p>Signed in as <b>{shown}</b>, role: <b class='pr-role'>{role}</b>.</p>"
+        options = [(f"{t['name']} v{t['version']} (by {t['created_by']})", f"{t['name']}@{t['version']}")
+                   for t in self.session.draft_templates()]
+        current = self.drafts.value
+        self.drafts.options = options or [("- no drafts -", None)]
+        if current in [v for _, v in options]:
+            self.drafts.value = current
+
+    @guarded("Approving the template")
+    def on_approve_draft(self) -> None:
+        """Approve the draft chosen in the list (clinic leads only; refused in the page otherwise)."""
+        choice = self.drafts.value
+        if not choice:
+            raise InputError.single("draft", choice, "a draft template chosen from the list")
+        name, version = choice.rsplit("@", 1)
+        try:
+            who = self.session.approve_template(name, int(version), self.clinician.value)
+        except NotPermittedError as exc:  # shown here too, beside the button that was refused
+            self.draft_status.value = (f'<div class="pr-error-box pr-template-refused" role="alert">Not approved: '
+                                       f'{_esc(exc)}</div>')
+            raise
+        self.draft_status.value = (f'<div class="pr-notice-box">Approved {_esc(name)} version {version} '
+                                   f'as {_esc(who)}.</div>')
+        self._refresh()
 
     # -- the form ---------------------------------------------------------------------
     def on_open(self) -> None:

@@ -35,7 +35,9 @@ def test_pick_an_exercise_and_see_what_the_bone_feels(app_page, app_server):
     page.locator(".pr-explain-figures svg.pr-explain-stress-strain").wait_for(state="visible", timeout=60_000)
     assert page.locator(".pr-explain-figures svg.pr-explain-bars").count() == 1
     assert "times your body weight" in page.locator(".pr-explain-words").inner_text()
-    assert "does not replace clinical judgment" in panel.inner_text()
+    # The panel's own caution; the standard ones stay in the one box on top of the page.
+    assert "do not predict a fracture" in panel.inner_text()
+    assert "does not replace clinical judgment" in page.locator(".pr-cautions-always").inner_text()
 
     # Pick another exercise of the program: the words and the pictures follow it.
     select = page.locator(".pr-explain-select select")

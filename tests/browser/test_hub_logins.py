@@ -119,6 +119,12 @@ def _save_person(page, patient_id: str) -> str:
     return page.locator(".pr-store-status").inner_text()
 
 
+def _open_templates(page) -> None:
+    """Open section 8 (built when opened) and wait for its drafts list."""
+    page.locator(".pr-section-templates .jupyter-widget-Collapse-header").first.click()
+    page.locator(".pr-template-role").wait_for(state="visible", timeout=60_000)
+
+
 def _approve(page) -> None:
     page.locator(".pr-template-drafts select").first.select_option(index=0)
     page.locator(".pr-template-approve").click()
@@ -143,6 +149,7 @@ def test_each_save_is_recorded_under_its_login_and_only_a_lead_approves(hub, hub
         shot(clinician, "hub-10-clinician-saved", of=".pr-section-store")
 
         # A clinician may not approve a clinic template: refused, with who may.
+        _open_templates(clinician)
         assert "clinician" in clinician.locator(".pr-template-role").inner_text()
         _approve(clinician)
         clinician.locator(".pr-error .pr-error-box").wait_for(state="visible", timeout=30_000)
@@ -152,6 +159,7 @@ def test_each_save_is_recorded_under_its_login_and_only_a_lead_approves(hub, hub
         shot(clinician, "hub-11-clinician-refused", of=".pr-section-templates")
 
         # The lead (a member of the hub's clinic-leads group) may.
+        _open_templates(lead)
         assert "lead" in lead.locator(".pr-template-role").inner_text()
         _approve(lead)
         lead.wait_for_function("() => { const e = document.querySelector('.pr-template-status');"

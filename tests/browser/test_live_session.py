@@ -57,7 +57,8 @@ def test_log_advise_apply_and_chart(app_page, app_server):
     # the charts show the logged week; the cautions are on the panel
     page.locator(".pr-live-chart-pain svg").first.wait_for(state="visible")
     assert page.locator(".pr-live-charts .bqplot").count() == 3
-    _wait_text(page, ".pr-section-sessions .pr-cautions", "does not replace clinical judgment")
+    _wait_text(page, ".pr-section-sessions .pr-cautions", "stop the session and assess")
+    _wait_text(page, ".pr-cautions-always", "does not replace clinical judgment")  # the one box on top
     shot(page, "live-02-applied", of=".pr-section-sessions")
     with open_store(str(app_server.db_path)) as store:
         assert len(store.sessions(PID)) == 1
