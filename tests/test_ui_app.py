@@ -388,3 +388,17 @@ def test_opening_a_saved_program_opens_the_live_session_and_sensor_sections(app)
     assert app.errors.last == "", app.errors.last
     assert app.live.section.is_open and app.sensor_panel.section.is_open
     assert "this week: week 1" in app.live.status.value
+
+
+def test_a_change_is_not_lost_to_a_redraw_that_ran_before_it_was_applied(app):
+    # The warm-up's redraw may set the controls back to the program's options between the
+    # clinician's choice arriving and its rebuild (both wait for the app's lock): the rebuild
+    # uses the value the change carried.
+    assert app.session.plan.weeks[0].impact_level == 1
+    app._syncing = True
+    app.start_level.value = 2  # the clinician's choice reaches the widget...
+    app.start_level.value = 1  # ...and a redraw sets it back before the rebuild runs
+    app._syncing = False
+    app.on_option_change(app.start_level, 2)
+    assert app.errors.last == "", app.errors.last
+    assert app.session.plan.weeks[0].impact_level == 2 and app.start_level.value == 2

@@ -34,7 +34,7 @@ class ProgramSection:
         self.weeks.add_class("pr-option-weeks")
         self.start_date = w.DatePicker(description="Week 1 starts", style={"description_width": "100px"})
         self.start_date.add_class("pr-option-start_date")
-        self.start_date.observe(lambda ch: self.on_start_date_change(), names="value")
+        self.start_date.observe(lambda ch: self.on_start_date_change(ch["new"]), names="value")
         self.sessions: dict[str, w.Dropdown] = {}
         for kind in ("impact", "resistance", "balance"):
             dd = w.Dropdown(options=[("planner's choice", AUTO)] + [(str(n), n) for n in
@@ -43,9 +43,11 @@ class ProgramSection:
                             style={"description_width": "initial"}, layout=w.Layout(width="330px"))
             dd.add_class(f"pr-option-{kind}_sessions_per_week")
             self.sessions[kind] = dd
-        for control in (self.start_level, *self.sessions.values()):
-            control.observe(lambda ch: self.on_option_change(), names="value")
-        self.weeks.observe(lambda ch: self.on_option_change(), names="value")
+        # Each change carries its own new value: a redraw running meanwhile (the warm-up's) sets the
+        # controls back to the program's options before this change is applied, and the
+        # clinician's choice must not be lost to it.
+        for control in (self.start_level, self.weeks, *self.sessions.values()):
+            control.observe(lambda ch, c=control: self.on_option_change(c, ch["new"]), names="value")
         # The program day by day, the progression and the swap panel (program_view.py).
         self.program_view = ProgramView(self)
         swap = self.program_view.swap
@@ -75,27 +77,31 @@ class ProgramSection:
             self.chart_box, w.HTML("<h3>Week by week</h3>"), self.week_table])
 
     @guarded("Changing the program")
-    def on_option_change(self) -> None:
+    def on_option_change(self, control: w.Widget | None = None, new: Any = None) -> None:
+        """Rebuild the program with the options shown, ``control`` at its ``new`` value."""
         if self._syncing or self.session.record is None:
             return
+
+        def value(widget):
+            return new if widget is control else widget.value
         changes: dict[str, Any] = {}
-        if self.start_level.value is not None:
-            changes["start_level"] = self.start_level.value
-        weeks = form_spec.convert_text(self.weeks.value, "integer")
+        if value(self.start_level) is not None:
+            changes["start_level"] = value(self.start_level)
+        weeks = form_spec.convert_text(value(self.weeks), "integer")
         if weeks is not None:
             changes["weeks"] = weeks
         for kind, dd in self.sessions.items():
             # Back to "planner's choice" clears the option (None), rather than keeping the last number.
-            changes[f"{kind}_sessions_per_week"] = None if dd.value == AUTO else dd.value
+            changes[f"{kind}_sessions_per_week"] = None if value(dd) == AUTO else value(dd)
         self.program_view.swap.status.value = ""  # what the last swap changed no longer describes the page
         self.session.build(**changes)
         self.refresh(store=False)
 
     @guarded("Changing the start date")
-    def on_start_date_change(self) -> None:
+    def on_start_date_change(self, new: date | None = None) -> None:
         if self._syncing or self.session.record is None:
             return
-        self.session.set_start_date(self.start_date.value)
+        self.session.set_start_date(new if new is not None else self.start_date.value)
         self.refresh(store=False)
 
     @guarded("Listing the replacements")
