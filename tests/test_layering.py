@@ -15,8 +15,8 @@ import prescribe
 
 FORBIDDEN = ("ipywidgets", "bqplot", "voila")
 #: Modules that must exist: the checks below would be hollow without them.
-CORE = ("prescribe.records", "prescribe.errors", "prescribe.rules", "prescribe.screening",
-        "prescribe.catalogue", "prescribe.dose", "prescribe.mechanics", "prescribe.planner",
+CORE = ("prescribe.records", "prescribe.errors", "prescribe.screening.rules", "prescribe.screening",
+        "prescribe.catalogue", "prescribe.loading.dose", "prescribe.loading.mechanics", "prescribe.planner",
         "prescribe.handout", "prescribe.store")
 
 

@@ -740,7 +740,7 @@ def exercise_guides(plan: Plan, lookup=None) -> list[ExerciseGuide]:
 
 @lru_cache(maxsize=256)
 def _drawing(pose, title: str) -> str:
-    from ..drawings import pose_svg
+    from ..catalogue.drawings import pose_svg
     return pose_svg(pose, title)
 
 

@@ -22,11 +22,11 @@ from typing import Any, Iterable, Iterator, Literal
 import numpy as np
 from pydantic import BaseModel, ConfigDict, Field, ValidationError, model_validator
 
-from .errors import CatalogueError, InputError
+from ..errors import CatalogueError, InputError
 from .poses import Pose
-from .records import MOVEMENT_PATTERNS
+from ..records import MOVEMENT_PATTERNS
 
-DEFAULT_PATH = Path(__file__).with_name("data") / "exercises.toml"
+DEFAULT_PATH = Path(__file__).parent.parent / "data" / "exercises.toml"
 
 CATEGORIES: dict[str, str] = {
     "impact": "Weight-bearing impact work at levels 1-3 (walking, stamps, heel drops, jumps, hops).",
@@ -130,7 +130,7 @@ class Exercise(BaseModel):
     source: str = Field(min_length=5)
     source_kind: Literal[tuple(SOURCE_KINDS)]  # type: ignore[valid-type]
     model_inputs: ModelInputs | None = None
-    #: Start and end position as joint angles, drawn by :mod:`prescribe.drawings`
+    #: Start and end position as joint angles, drawn by :mod:`prescribe.catalogue.drawings`
     #: (format: docs/catalogue.md, "Pose data").
     pose: Pose | None = None
 

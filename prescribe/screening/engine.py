@@ -1,6 +1,6 @@
 """The screening engine: one rule library, two evaluators.
 
-The rules (:mod:`prescribe.rules`, data files under ``prescribe/data/rules``) are
+The rules (:mod:`prescribe.screening.rules`, data files under ``prescribe/data/rules``) are
 evaluated either for one person (:func:`screen`, a plain per-record evaluator) or
 for a whole caseload at once (:func:`screen_batch`, a vectorised numpy/pandas
 evaluator over a DataFrame of flattened records).  Both compute the same derived
@@ -36,13 +36,13 @@ import pandas as pd
 
 from .batch_columns import FRACTURES_ALLOWED, RECORD_COLUMNS, REQUIRED_COLUMNS, FractureColumns, fracture_columns
 from .batch_io import records_to_frame
-from .cautions import with_standard
-from .errors import FieldProblem, InputError
-from .records import CONDITIONS, T_SCORE_SITES, Flag, PatientRecord, ScreeningResult
+from ..cautions import with_standard
+from ..errors import FieldProblem, InputError
+from ..records import CONDITIONS, T_SCORE_SITES, Flag, PatientRecord, ScreeningResult
 from .rules import (BOOL, CATEGORY_RANK, FEATURES, NUMBER, SEVERITY_RANK, AllOf, AnyOf, Condition, Not, Rule,
                     RuleSet, Test, load_rules)
 
-NORMS_FILE = Path(__file__).with_name("data") / "norms" / "chair_stand_30s.csv"
+NORMS_FILE = Path(__file__).parent.parent / "data" / "norms" / "chair_stand_30s.csv"
 
 #: Columns of the frame :func:`screen_batch` returns (and of the results CSV).
 RESULT_COLUMNS: tuple[str, ...] = (
@@ -114,7 +114,7 @@ def _bmi(mass_kg, height_cm):
 def record_features(rec: dict) -> dict[str, Any]:
     """The derived features of one record given as a dict (``PatientRecord.model_dump()`` shape).
 
-    Missing numbers are ``None``.  See :data:`prescribe.rules.FEATURES` for the vocabulary.
+    Missing numbers are ``None``.  See :data:`prescribe.screening.rules.FEATURES` for the vocabulary.
     """
     ts = rec.get("t_scores") or {}
     lowest = None
@@ -221,9 +221,9 @@ def frame_features(df: pd.DataFrame, fractures: FractureColumns | None = None) -
     """The derived features of every row of a frame of flattened records, as arrays.
 
     Numbers are float64 with NaN for absent; flags are bool; ``sex`` is an object array.
-    The frame is expected to hold validated records (:func:`prescribe.batch_io.read_batch_csv`
-    or :func:`prescribe.batch_io.records_to_frame`).  ``fractures``, when given, are the
-    per-person fracture figures the reader already worked out (:class:`prescribe.batch_io.Caseload`);
+    The frame is expected to hold validated records (:func:`prescribe.screening.batch_io.read_batch_csv`
+    or :func:`prescribe.screening.batch_io.records_to_frame`).  ``fractures``, when given, are the
+    per-person fracture figures the reader already worked out (:class:`prescribe.screening.batch_io.Caseload`);
     otherwise they are read from the frame's compact fracture cells.
     """
     return _frame_features(df, fractures)[0]
@@ -662,13 +662,13 @@ def screen_batch(df: pd.DataFrame, rules: RuleSet | None = None,
     Parameters
     ----------
     df : pandas.DataFrame
-        Flattened, validated records (:func:`prescribe.batch_io.read_batch_csv` or
-        :func:`prescribe.batch_io.records_to_frame`).
+        Flattened, validated records (:func:`prescribe.screening.batch_io.read_batch_csv` or
+        :func:`prescribe.screening.batch_io.records_to_frame`).
     rules : RuleSet, optional
         Another rule set; the shipped one when omitted.
     fractures : FractureColumns, optional
         The per-person fracture figures already read from the cells (the batch reader's
-        :class:`prescribe.batch_io.Caseload` carries them); read from ``df`` when omitted.
+        :class:`prescribe.screening.batch_io.Caseload` carries them); read from ``df`` when omitted.
 
     Returns
     -------
