@@ -10,6 +10,9 @@ Impact levels (PRODUCT.md) follow from force, not from the name:
 * level 1: peak ground reaction force below 2.0 BW;
 * level 2: 2.0 to 4.0 BW, both boundaries included;
 * level 3: above 4.0 BW.
+
+Each entry may carry its start and end position as joint angles (:mod:`.poses`), drawn
+as SVG by :mod:`.drawings`.
 """
 
 from __future__ import annotations
@@ -152,10 +155,6 @@ class Exercise(BaseModel):
         if len(set(self.directions)) != len(self.directions):
             raise ValueError("directions must not repeat")
         return self
-
-    @property
-    def impact_level_label(self) -> str:
-        return IMPACT_LEVEL_LABELS[self.impact_level]
 
     @property
     def balance_demand_rank(self) -> int:
