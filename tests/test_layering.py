@@ -68,3 +68,23 @@ def test_the_domain_never_imports_the_store_the_handout_or_the_app():
     proc = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=300)
     assert proc.returncode == 0, proc.stderr
     assert proc.stdout.strip() == "", f"the domain imports {proc.stdout.strip()}"
+
+
+#: What the science of loading may not import: the screening, the planner, the sessions, the
+#: sensors, the store, the handout, the app and the command line (it stands on numpy, the
+#: records, the errors and the exercise catalogue only).
+ABOVE_LOADING = ("prescribe.screening", "prescribe.planning", "prescribe.planner", "prescribe.sessions",
+                 "prescribe.sensor", "prescribe.store", "prescribe.handout", "prescribe.ui", "prescribe.cli")
+
+
+def test_the_loading_science_imports_nothing_above_the_catalogue():
+    loading = [m for m in non_ui_modules() if m == "prescribe.loading" or m.startswith("prescribe.loading.")]
+    assert {"prescribe.loading.dose", "prescribe.loading.mechanics", "prescribe.loading.bone_loads",
+            "prescribe.loading.explain"} <= set(loading)
+    code = ("import importlib, sys\n"
+            f"for name in {loading!r}:\n"
+            "    importlib.import_module(name)\n"
+            f"print(','.join(sorted(m for m in sys.modules if m.startswith({ABOVE_LOADING!r}))))")
+    proc = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=300)
+    assert proc.returncode == 0, proc.stderr
+    assert proc.stdout.strip() == "", f"prescribe.loading imports {proc.stdout.strip()}"
