@@ -88,3 +88,54 @@ def test_the_loading_science_imports_nothing_above_the_catalogue():
     proc = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=300)
     assert proc.returncode == 0, proc.stderr
     assert proc.stdout.strip() == "", f"prescribe.loading imports {proc.stdout.strip()}"
+
+
+def _package_imports(package: str) -> dict[str, set[str]]:
+    """Each module of ``package`` (walked) and the modules of the same package it imports,
+    read from its source: every import statement, at the top, in a function or under
+    ``TYPE_CHECKING``."""
+    import ast
+    import importlib.util
+
+    pkg = importlib.import_module(package)
+    names = [package] + [m.name for m in pkgutil.walk_packages(pkg.__path__, package + ".")
+                         if ".migrations" not in m.name]
+    graph: dict[str, set[str]] = {}
+    for name in names:
+        spec = importlib.util.find_spec(name)
+        tree = ast.parse(open(spec.origin, encoding="utf-8").read())
+        is_pkg = spec.submodule_search_locations is not None
+        base = name if is_pkg else name.rsplit(".", 1)[0]
+        found = set()
+        for node in ast.walk(tree):
+            if isinstance(node, ast.ImportFrom):
+                if node.level:
+                    parts = base.split(".")
+                    root = ".".join(parts[:len(parts) - node.level + 1])
+                    target = f"{root}.{node.module}" if node.module else root
+                else:
+                    target = node.module or ""
+                found.add(target)
+                found.update(f"{target}.{a.name}" for a in node.names)
+            elif isinstance(node, ast.Import):
+                found.update(a.name for a in node.names)
+        graph[name] = {t for t in found if t in names and t != name}
+    return graph
+
+
+def test_no_two_store_modules_import_each_other_in_a_loop():
+    graph = _package_imports("prescribe.store")
+    assert {"prescribe.store.api", "prescribe.store.engine", "prescribe.store.people"} <= set(graph)
+    loops = []
+
+    def visit(node: str, path: list[str]) -> None:
+        for nxt in sorted(graph[node]):
+            if nxt in path:
+                loops.append(path[path.index(nxt):] + [nxt])
+            elif nxt != "prescribe.store":   # the package's front imports its modules, never the reverse
+                visit(nxt, path + [nxt])
+
+    for start in graph:
+        if start != "prescribe.store":
+            visit(start, [start])
+    assert not loops, f"import loops in the store: {loops[0]}"
