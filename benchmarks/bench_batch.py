@@ -36,7 +36,7 @@ import pandas as pd
 sys.path.insert(0, str(Path(__file__).parent))
 from bench_screening import invented_caseload  # noqa: E402
 
-from prescribe.batch_io import frame_to_csv_text  # noqa: E402
+from prescribe.screening.batch_io import frame_to_csv_text  # noqa: E402
 from prescribe.cli import main  # noqa: E402
 
 REPEATS = 5

@@ -13,8 +13,8 @@ import time
 
 import numpy as np
 
-from prescribe.dose import RECOVERY_TAU_HOURS, daily_osteogenic_index
-from prescribe.mechanics import landing_peak_grf_bw
+from prescribe.loading.dose import RECOVERY_TAU_HOURS, daily_osteogenic_index
+from prescribe.loading.mechanics import landing_peak_grf_bw
 
 
 def loop_daily_oi(grf, cycles, bouts, gaps):

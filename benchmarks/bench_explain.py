@@ -15,7 +15,7 @@ import sys
 import time
 
 from prescribe.catalogue import default_catalogue
-from prescribe.explain import explain_exercise, force_bars, stress_strain_picture
+from prescribe.loading.explain import explain_exercise, force_bars, stress_strain_picture
 from prescribe.handout.explain_figures import explanation_figures
 
 GOAL_MS = 5.0

@@ -6,7 +6,7 @@ flattened records, the loop gets plain record dicts (the ``PatientRecord.model_d
 shape), both built before the clocks start.  The batch timing includes parsing the
 compact fracture and condition cells; the loop timing includes building each result dict.
 A third line times the batch evaluator given the fracture figures the caseload reader has
-already read (``prescribe.batch_io.Caseload.fractures``), the path ``screen --batch`` takes.
+already read (``prescribe.screening.batch_io.Caseload.fractures``), the path ``screen --batch`` takes.
 
 Goal: 100k in under 0.5 s, and at least 50x faster than the loop. Both sides are measured\nalike: one warm-up call each, then five timed calls each; medians are compared.
 
@@ -23,7 +23,7 @@ import time
 import numpy as np
 import pandas as pd
 
-from prescribe.batch_columns import fracture_columns
+from prescribe.screening.batch_columns import fracture_columns
 from prescribe.records import CONDITIONS, FRACTURE_SITES
 from prescribe.records import parse_record
 from prescribe.screening import default_engine, screen
@@ -128,7 +128,7 @@ def main() -> int:
     # then REPEATS timed calls each; the median is quoted, min and max shown.
     b_wall, b_cpu, result = _timed(lambda: engine.screen_frame(df))
     # The command's path: the caseload reader has already read the fracture cells into typed
-    # columns (prescribe.batch_io.Caseload), so the screening gets those instead of the text.
+    # columns (prescribe.screening.batch_io.Caseload), so the screening gets those instead of the text.
     typed, _, _ = fracture_columns(df["fractures"].to_numpy(dtype=object))
     t_wall, t_cpu, typed_result = _timed(lambda: engine.screen_frame(df, typed))
     l_wall, l_cpu, loop = _timed(lambda: [engine.screen_dict(d) for d in dicts])

@@ -31,12 +31,12 @@ sys.path.insert(0, str(Path(__file__).resolve().parent))
 
 from bench_screening import frame_to_record_dicts, invented_caseload  # noqa: E402
 
-from prescribe.batch_io import read_batch_csv, write_results_csv  # noqa: E402
+from prescribe.screening.batch_io import read_batch_csv, write_results_csv  # noqa: E402
 from prescribe.caseload import whatif, write_caseload_csv  # noqa: E402
 from prescribe.planner import PlanOptions, build_plan  # noqa: E402
 from prescribe.planner_rules import TEMPLATE_DIR, load_template, parse_template  # noqa: E402
 from prescribe.records import parse_record  # noqa: E402
-from prescribe.rules import DEFAULT_RULES_DIR, load_rules  # noqa: E402
+from prescribe.screening.rules import DEFAULT_RULES_DIR, load_rules  # noqa: E402
 from prescribe.screening import screen, screen_batch  # noqa: E402
 from prescribe.store import now_utc, open_store  # noqa: E402
 from prescribe.store import models as m  # noqa: E402

@@ -29,8 +29,8 @@ from typing import Any, Callable, Iterable
 import numpy as np
 import pandas as pd
 
-from .batch_io import (RECORD_COLUMNS, _FLOAT_COLUMNS, _TEXT_COLUMNS, _atomic_write, _fmt, format_fractures,
-                       spreadsheet_text)
+from .screening.batch_io import (RECORD_COLUMNS, _FLOAT_COLUMNS, _TEXT_COLUMNS, _atomic_write, _fmt, format_fractures,
+                                 spreadsheet_text)
 from .cautions import with_standard
 from .records import T_SCORE_SITES
 

@@ -57,7 +57,7 @@ from pydantic import BaseModel, ConfigDict, Field, ValidationError
 
 from . import __version__
 from .cautions import with_standard
-from .dose import daily_osteogenic_index, osteogenic_index
+from .loading.dose import daily_osteogenic_index, osteogenic_index
 from .errors import FieldProblem, InputError, PlanRequestRefused
 from .catalogue import IMPACT_LEVEL_LABELS
 from .plan_schema import (PLAN_FORMAT_VERSION, Plan, PlannedExercise, PlannedSession, PlannedWeek,
@@ -450,7 +450,7 @@ def _exercise(e: _Ex, **kw) -> dict:
 def _session_oi(exercises: list[dict]) -> float:
     """Turner's osteogenic index of a session: the sum over its exercises [BW].
 
-    Level 2-3 impacts use :func:`prescribe.dose.daily_osteogenic_index` with the
+    Level 2-3 impacts use :func:`prescribe.loading.dose.daily_osteogenic_index` with the
     documented bouts and gap; minutes of walking-type work count
     :data:`STEPS_PER_MINUTE` cycles a minute; repetitions count one cycle each;
     balance holds are static and count none (Turner 1998: bone responds to dynamic load).
@@ -468,7 +468,7 @@ def _session_oi(exercises: list[dict]) -> float:
 
 @lru_cache(maxsize=4096)
 def _oi(peak_grf_bw: float, cycles: int, bouts: int = 1, gap_hours: float = 8.0) -> float:
-    """:func:`prescribe.dose.daily_osteogenic_index` as a float, remembered (plans repeat doses)."""
+    """:func:`prescribe.loading.dose.daily_osteogenic_index` as a float, remembered (plans repeat doses)."""
     if bouts == 1:
         return float(osteogenic_index(peak_grf_bw, cycles))
     return float(daily_osteogenic_index(peak_grf_bw, cycles, bouts, gap_hours))

@@ -14,8 +14,8 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from prescribe import batch_io
-from prescribe.batch_io import RECORD_COLUMNS, iter_batch_csv, read_batch_csv, record_to_row, rows_to_records
+from prescribe.screening import batch_io
+from prescribe.screening.batch_io import RECORD_COLUMNS, iter_batch_csv, read_batch_csv, record_to_row, rows_to_records
 from prescribe.cli import main
 from prescribe.errors import InputError
 from prescribe.screening import RESULT_COLUMNS, screen
@@ -339,7 +339,7 @@ def test_results_text_is_what_the_csv_module_writes_cell_by_cell(rows, one_colum
 
     import pandas as pd
 
-    from prescribe.batch_io import frame_to_csv_text, spreadsheet_text
+    from prescribe.screening.batch_io import frame_to_csv_text, spreadsheet_text
 
     frame = pd.DataFrame({"text": pd.Series([r[0] for r in rows], dtype=object),
                           "number": pd.Series([r[1] for r in rows], dtype="float64"),

@@ -11,9 +11,9 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from prescribe.batch_io import (RECORD_COLUMNS, format_fractures, fracture_columns, frame_to_records,
-                                parse_fractures, read_batch_csv, record_to_row, records_to_frame,
-                                write_batch_csv, write_results_csv)
+from prescribe.screening.batch_io import (RECORD_COLUMNS, format_fractures, fracture_columns, frame_to_records,
+                                          parse_fractures, read_batch_csv, record_to_row, records_to_frame,
+                                          write_batch_csv, write_results_csv)
 from prescribe.errors import InputError
 from prescribe.records import load_record
 from prescribe.screening import RESULT_COLUMNS, results_from_frame, screen, screen_batch

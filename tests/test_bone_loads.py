@@ -7,12 +7,12 @@ import math
 import numpy as np
 import pytest
 
-from prescribe.bone_loads import (CORTICAL_MODULUS_MPA, anchored_contact_force_bw,
-                                  carter_hayes_modulus_mpa, carter_hayes_strength_mpa,
-                                  density_ratio_from_t_score, density_scaled, shaft_stresses_mpa,
-                                  stress_strain_curve)
+from prescribe.loading.bone_loads import (CORTICAL_MODULUS_MPA, anchored_contact_force_bw,
+                                          carter_hayes_modulus_mpa, carter_hayes_strength_mpa,
+                                          density_ratio_from_t_score, density_scaled, shaft_stresses_mpa,
+                                          stress_strain_curve)
 from prescribe.errors import InputError
-from prescribe.mechanics import CORTICAL_STRENGTH_MPA, axial_stress_mpa, tube_bending_stress_mpa
+from prescribe.loading.mechanics import CORTICAL_STRENGTH_MPA, axial_stress_mpa, tube_bending_stress_mpa
 
 # Bergmann et al. 2001, J Biomech 34:859-871: hip contact force walking at about 4 km/h
 # 238% BW, upstairs 251% BW, downstairs 260% BW (published_facts E, status V).
@@ -107,7 +107,7 @@ def test_shaft_stresses_match_the_mechanics_formulas():
     area = math.pi / 4 * (big ** 2 - small ** 2)
     assert s["area_mm2"] == pytest.approx(area)
     assert s["axial"] == pytest.approx(axial_stress_mpa(force, area))
-    # The bending part is the tube formula of prescribe.mechanics with M = F e.
+    # The bending part is the tube formula of prescribe.loading.mechanics with M = F e.
     assert s["bending"] == pytest.approx(tube_bending_stress_mpa(force * e / 1000.0, big, small))
     assert s["compression"] == pytest.approx(s["axial"] + s["bending"])
     assert s["tension"] == pytest.approx(s["bending"] - s["axial"])

@@ -14,10 +14,10 @@ import tomllib
 import pandas as pd
 import pytest
 
-from prescribe.batch_io import read_batch_csv, records_to_frame
+from prescribe.screening.batch_io import read_batch_csv, records_to_frame
 from prescribe.caseload import PROGRAM_FIELDS, SCREENING_FIELDS, frame_from_dicts, whatif
 from prescribe.planner_rules import TEMPLATE_DIR
-from prescribe.rules import DEFAULT_RULES_DIR, load_rules
+from prescribe.screening.rules import DEFAULT_RULES_DIR, load_rules
 from prescribe.screening import screen
 from prescribe.store import open_store
 from prescribe.template_library import add_document, resolve

@@ -95,7 +95,7 @@ def test_links_point_to_entries_and_planner_fields_present():
 
 
 def test_model_estimated_entries_match_the_landing_model():
-    from prescribe import mechanics as mech
+    from prescribe.loading import mechanics as mech
     for ex in CAT:
         if ex.source_kind != "model":
             continue

@@ -8,7 +8,7 @@ from pathlib import Path
 
 import pytest
 
-from prescribe.batch_io import RECORD_COLUMNS
+from prescribe.screening.batch_io import RECORD_COLUMNS
 from prescribe.cautions import STANDARD_CAUTIONS
 
 PATIENTS = Path(__file__).parent / "data" / "patients"
@@ -93,7 +93,7 @@ def test_table_shows_flags_sources_and_cautions(cli):
 def test_batch_writes_one_row_a_patient_and_a_summary(cli, tmp_path):
     records = [json.loads(p.read_text()) for p in sorted(PATIENTS.glob("*.json"))]
     in_csv, out_csv = tmp_path / "in.csv", tmp_path / "out.csv"
-    from prescribe.batch_io import write_batch_csv
+    from prescribe.screening.batch_io import write_batch_csv
     from prescribe.records import parse_record
     write_batch_csv([parse_record(r) for r in records], in_csv)
     proc = cli("screen", "--batch", str(in_csv), "--out", str(out_csv))
@@ -170,7 +170,7 @@ def test_draft_rules_rescreen_a_caseload(cli, tmp_path):
     # A clinic lead tries a draft library: the TUG cut-off moved from 12 s (CDC STEADI) to 15 s.
     import shutil
 
-    from prescribe.rules import DEFAULT_RULES_DIR
+    from prescribe.screening.rules import DEFAULT_RULES_DIR
     draft = tmp_path / "draft"
     shutil.copytree(DEFAULT_RULES_DIR, draft)
     path = draft / "falls_balance.toml"

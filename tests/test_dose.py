@@ -8,10 +8,10 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from prescribe import dose
-from prescribe.dose import (RECOVERY_TAU_HOURS, bout_contributions, carter_daily_stimulus,
-                            cycle_share, daily_osteogenic_index, direction_variety,
-                            osteogenic_index, recovered_sensitivity, session_dose, split_cycles)
+from prescribe.loading import dose
+from prescribe.loading.dose import (RECOVERY_TAU_HOURS, bout_contributions, carter_daily_stimulus,
+                                    cycle_share, daily_osteogenic_index, direction_variety,
+                                    osteogenic_index, recovered_sensitivity, session_dose, split_cycles)
 from prescribe.errors import InputError
 
 # Santos-Rocha, Oliveira & Veloso 2006, Br J Sports Med 40:860-866, step aerobics:
@@ -250,7 +250,7 @@ def test_session_dose_bad_input():
 def test_dose_module_does_not_import_widgets():
     import subprocess
     import sys
-    code = "import prescribe.dose, prescribe.mechanics, prescribe.catalogue, sys; print('ipywidgets' in sys.modules, 'bqplot' in sys.modules)"
+    code = "import prescribe.loading.dose, prescribe.loading.mechanics, prescribe.catalogue, sys; print('ipywidgets' in sys.modules, 'bqplot' in sys.modules)"
     res = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True)
     assert res.stdout.strip() == "False False"
 

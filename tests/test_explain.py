@@ -7,8 +7,8 @@ import pytest
 
 from prescribe.catalogue import default_catalogue
 from prescribe.errors import InputError
-from prescribe.explain import (DEFAULT_BODY_MASS_KG, DEFAULT_T_SCORE, FEMUR_SHAFT,
-                               HIP_MEASURED_MAX_BW, explain_exercise, force_bars, stress_strain_picture)
+from prescribe.loading.explain import (DEFAULT_BODY_MASS_KG, DEFAULT_T_SCORE, FEMUR_SHAFT,
+                                       HIP_MEASURED_MAX_BW, explain_exercise, force_bars, stress_strain_picture)
 
 G = 9.80665
 CONTRACT = {"exercise_id", "body_mass_kg", "peak_grf_bw", "peak_grf_n", "joint_contact_force_bw",
@@ -199,7 +199,7 @@ def test_explain_is_domain_code():
     # Layering (DEVELOPERS.md): domain code never imports the widgets, the store or the handout.
     import subprocess
     import sys
-    code = ("import sys, prescribe.explain, prescribe.bone_loads\n"
+    code = ("import sys, prescribe.loading.explain, prescribe.loading.bone_loads\n"
             "bad = sorted(m for m in sys.modules if m.split('.')[0] in ('ipywidgets', 'bqplot', 'voila')\n"
             "             or m.startswith(('prescribe.store', 'prescribe.handout', 'prescribe.ui')))\n"
             "print(','.join(bad))")

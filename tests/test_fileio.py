@@ -8,8 +8,8 @@ import json
 import pytest
 
 from prescribe import fileio
-from prescribe.batch_io import (from_spreadsheet_text, read_batch_csv, spreadsheet_text, write_batch_csv,
-                                write_results_csv)
+from prescribe.screening.batch_io import (from_spreadsheet_text, read_batch_csv, spreadsheet_text, write_batch_csv,
+                                          write_results_csv)
 from prescribe.errors import InputError
 from prescribe.records import parse_record
 from prescribe.screening import screen_batch
@@ -73,7 +73,7 @@ def test_a_file_at_the_size_cap_is_read(tmp_path):
 def test_batch_csv_over_its_cap_is_refused(tmp_path, monkeypatch):
     path = tmp_path / "in.csv"
     path.write_text("patient_id,age_years,sex,body_mass_kg,height_cm\nNTC-1,70,female,60,160\n", encoding="utf-8")
-    monkeypatch.setattr("prescribe.batch_io.CSV_MAX_BYTES", 10)
+    monkeypatch.setattr("prescribe.screening.batch_io.CSV_MAX_BYTES", 10)
     with pytest.raises(InputError, match="at most 10 bytes"):
         read_batch_csv(path)
 

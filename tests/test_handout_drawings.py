@@ -10,7 +10,7 @@ from pypdf import PdfReader
 
 from handout_fixtures import whole_catalogue_plan
 from prescribe.catalogue import default_catalogue
-from prescribe.drawings import PROP
+from prescribe.catalogue.drawings import PROP
 from prescribe.handout import render_html, render_pdf
 from prescribe.handout.content import short_name
 from prescribe.settings import Clinic

@@ -7,10 +7,10 @@ import re
 import pytest
 
 from handout_fixtures import make_plan
-from prescribe.explain import explain_exercise
+from prescribe.loading.explain import explain_exercise
 from prescribe.handout import render_html
 from prescribe.handout.explain_figures import (force_bars_svg, plan_explanations, stress_strain_svg)
-from prescribe.explain import force_bars, stress_strain_picture
+from prescribe.loading.explain import force_bars, stress_strain_picture
 from prescribe.plan_schema import parse_plan
 
 

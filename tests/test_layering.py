@@ -15,8 +15,8 @@ import prescribe
 
 FORBIDDEN = ("ipywidgets", "bqplot", "voila")
 #: Modules that must exist: the checks below would be hollow without them.
-CORE = ("prescribe.records", "prescribe.errors", "prescribe.rules", "prescribe.screening",
-        "prescribe.catalogue", "prescribe.dose", "prescribe.mechanics", "prescribe.planner",
+CORE = ("prescribe.records", "prescribe.errors", "prescribe.screening.rules", "prescribe.screening",
+        "prescribe.catalogue", "prescribe.loading.dose", "prescribe.loading.mechanics", "prescribe.planner",
         "prescribe.handout", "prescribe.store")
 
 
@@ -68,3 +68,74 @@ def test_the_domain_never_imports_the_store_the_handout_or_the_app():
     proc = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=300)
     assert proc.returncode == 0, proc.stderr
     assert proc.stdout.strip() == "", f"the domain imports {proc.stdout.strip()}"
+
+
+#: What the science of loading may not import: the screening, the planner, the sessions, the
+#: sensors, the store, the handout, the app and the command line (it stands on numpy, the
+#: records, the errors and the exercise catalogue only).
+ABOVE_LOADING = ("prescribe.screening", "prescribe.planning", "prescribe.planner", "prescribe.sessions",
+                 "prescribe.sensor", "prescribe.store", "prescribe.handout", "prescribe.ui", "prescribe.cli")
+
+
+def test_the_loading_science_imports_nothing_above_the_catalogue():
+    loading = [m for m in non_ui_modules() if m == "prescribe.loading" or m.startswith("prescribe.loading.")]
+    assert {"prescribe.loading.dose", "prescribe.loading.mechanics", "prescribe.loading.bone_loads",
+            "prescribe.loading.explain"} <= set(loading)
+    code = ("import importlib, sys\n"
+            f"for name in {loading!r}:\n"
+            "    importlib.import_module(name)\n"
+            f"print(','.join(sorted(m for m in sys.modules if m.startswith({ABOVE_LOADING!r}))))")
+    proc = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=300)
+    assert proc.returncode == 0, proc.stderr
+    assert proc.stdout.strip() == "", f"prescribe.loading imports {proc.stdout.strip()}"
+
+
+def _package_imports(package: str) -> dict[str, set[str]]:
+    """Each module of ``package`` (walked) and the modules of the same package it imports,
+    read from its source: every import statement, at the top, in a function or under
+    ``TYPE_CHECKING``."""
+    import ast
+    import importlib.util
+
+    pkg = importlib.import_module(package)
+    names = [package] + [m.name for m in pkgutil.walk_packages(pkg.__path__, package + ".")
+                         if ".migrations" not in m.name]
+    graph: dict[str, set[str]] = {}
+    for name in names:
+        spec = importlib.util.find_spec(name)
+        tree = ast.parse(open(spec.origin, encoding="utf-8").read())
+        is_pkg = spec.submodule_search_locations is not None
+        base = name if is_pkg else name.rsplit(".", 1)[0]
+        found = set()
+        for node in ast.walk(tree):
+            if isinstance(node, ast.ImportFrom):
+                if node.level:
+                    parts = base.split(".")
+                    root = ".".join(parts[:len(parts) - node.level + 1])
+                    target = f"{root}.{node.module}" if node.module else root
+                else:
+                    target = node.module or ""
+                found.add(target)
+                found.update(f"{target}.{a.name}" for a in node.names)
+            elif isinstance(node, ast.Import):
+                found.update(a.name for a in node.names)
+        graph[name] = {t for t in found if t in names and t != name}
+    return graph
+
+
+def test_no_two_store_modules_import_each_other_in_a_loop():
+    graph = _package_imports("prescribe.store")
+    assert {"prescribe.store.api", "prescribe.store.engine", "prescribe.store.people"} <= set(graph)
+    loops = []
+
+    def visit(node: str, path: list[str]) -> None:
+        for nxt in sorted(graph[node]):
+            if nxt in path:
+                loops.append(path[path.index(nxt):] + [nxt])
+            elif nxt != "prescribe.store":   # the package's front imports its modules, never the reverse
+                visit(nxt, path + [nxt])
+
+    for start in graph:
+        if start != "prescribe.store":
+            visit(start, [start])
+    assert not loops, f"import loops in the store: {loops[0]}"

@@ -8,11 +8,11 @@ import numpy as np
 import pytest
 
 from prescribe.errors import InputError
-from prescribe.mechanics import (CARTILAGE_FRICTION, CORTICAL_STRENGTH_MPA, JOINT_PRESETS,
-                                 axial_stress_mpa, bw_to_newtons, friction_force_n,
-                                 joint_contact_force_bw, landing_peak_force_n,
-                                 landing_peak_grf_bw, loading_rate_bw_s, safety_factor,
-                                 tube_bending_stress_mpa)
+from prescribe.loading.mechanics import (CARTILAGE_FRICTION, CORTICAL_STRENGTH_MPA, JOINT_PRESETS,
+                                         axial_stress_mpa, bw_to_newtons, friction_force_n,
+                                         joint_contact_force_bw, landing_peak_force_n,
+                                         landing_peak_grf_bw, loading_rate_bw_s, safety_factor,
+                                         tube_bending_stress_mpa)
 
 G = 9.80665
 

@@ -2,7 +2,7 @@
 
 Sanity of every entry's start and end position: joint angles within human ranges
 (American Academy of Orthopaedic Surgeons 1965 average ranges, from memory; see
-prescribe.poses.JOINT_RANGES), segment lengths the same in both positions, and the feet
+prescribe.catalogue.poses.JOINT_RANGES), segment lengths the same in both positions, and the feet
 (or the seat, or the body lying down) on the floor or a prop where the exercise has no
 flight phase.
 """
@@ -15,10 +15,10 @@ import xml.etree.ElementTree as ET
 import pytest
 
 from prescribe.catalogue import default_catalogue, load_catalogue
-from prescribe.drawings import pose_svg
+from prescribe.catalogue.drawings import pose_svg
 from prescribe.errors import CatalogueError
-from prescribe.poses import (HEAD_RADIUS, SEGMENTS, Pose, Posture, angles_out_of_range, contact_errors,
-                             key_points, segments)
+from prescribe.catalogue.poses import (HEAD_RADIUS, SEGMENTS, Pose, Posture, angles_out_of_range, contact_errors,
+                                       key_points, segments)
 
 SVG = "{http://www.w3.org/2000/svg}"
 #: How far a point may be from the surface it rests on: 1.5% of body height, about

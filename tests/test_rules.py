@@ -10,7 +10,7 @@ import pytest
 
 from prescribe.errors import RuleFileError
 from prescribe.records import CONDITIONS, parse_record
-from prescribe.rules import DEFAULT_RULES_DIR, FEATURES, load_rules
+from prescribe.screening.rules import DEFAULT_RULES_DIR, FEATURES, load_rules
 from prescribe.screening import RULESET_VERSION, screen, screen_many
 
 FAMILIES = {"bone_density", "fractures", "falls_balance", "medication", "conditions", "pain"}

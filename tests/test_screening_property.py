@@ -7,8 +7,8 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from prescribe.batch_io import frame_to_records, record_to_row, records_to_frame, rows_to_records
-from prescribe.rules import load_rules
+from prescribe.screening.batch_io import frame_to_records, record_to_row, records_to_frame, rows_to_records
+from prescribe.screening.rules import load_rules
 from prescribe.screening import results_from_frame, screen, screen_batch, screen_many
 
 from strategies import valid_records
@@ -69,7 +69,7 @@ def test_every_feature_is_the_same_in_both_evaluators(records):
     # (missing = None for one person, NaN in the arrays), so a future rule cannot diverge.
     import math
 
-    from prescribe.rules import FEATURES
+    from prescribe.screening.rules import FEATURES
     from prescribe.screening import frame_features, record_features
 
     arrays = frame_features(records_to_frame(records))

@@ -7,7 +7,7 @@ import re
 
 import pytest
 
-from prescribe.explain import explain_exercise
+from prescribe.loading.explain import explain_exercise
 from prescribe.ui import ClinicApp, ClinicSession
 
 # An invented woman of 62, 64 kg, femoral-neck T-score -2.6 (osteoporosis: WHO 1994).
@@ -91,7 +91,7 @@ def test_a_changed_program_keeps_the_choice_or_moves_to_one_still_there(app):
 def test_an_exercise_missing_from_the_catalogue_is_said_in_the_panel(app, monkeypatch):
     _submit(app)
     view = app.explain_view
-    from prescribe import explain as explain_module
+    from prescribe.loading import explain as explain_module
     from prescribe.errors import InputError
 
     def refuse(exercise_id, **_kw):

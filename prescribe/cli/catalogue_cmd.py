@@ -6,7 +6,7 @@ import sys
 
 from ..catalogue import CATEGORIES, default_catalogue
 from ..cautions import SHORT_CAUTION, STANDARD_CAUTIONS
-from ..dose import MAX_BOUTS, session_dose
+from ..loading.dose import MAX_BOUTS, session_dose
 from ..records import BODY_MASS_RANGE_KG, MOVEMENT_PATTERNS
 from .output import emit_json, emit_table
 

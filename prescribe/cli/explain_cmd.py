@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import sys
 
-from ..explain import DEFAULT_BODY_MASS_KG, DEFAULT_T_SCORE, explain_exercise
+from ..loading.explain import DEFAULT_BODY_MASS_KG, DEFAULT_T_SCORE, explain_exercise
 from ..records import BODY_MASS_RANGE_KG
 from .output import emit_json, emit_table
 

@@ -77,7 +77,7 @@ def _rules(args):
     if not args.rules:
         return None
     from ..errors import RuleFileError
-    from ..rules import load_rules
+    from ..screening.rules import load_rules
 
     try:
         return load_rules(args.rules)
@@ -114,7 +114,7 @@ def _print_table(result) -> None:
 def _run_batch(in_path: str, out_path: str, rules=None, table: bool = False) -> int:
     """Screen the caseload a chunk at a time: read and validate a chunk, screen it, append its
     results to a temporary file that replaces OUT.csv only when the whole caseload was valid."""
-    from ..batch_io import ResultsWriter, iter_batch_csv
+    from ..screening.batch_io import ResultsWriter, iter_batch_csv
     from ..screening import RESULT_COLUMNS, engine_for
 
     engine = engine_for(rules)

@@ -1,6 +1,6 @@
 """The loads explained, drawn: a stress-strain picture and a bar picture as inline SVG.
 
-The points come from :mod:`prescribe.explain` (tested there as data); this module only
+The points come from :mod:`prescribe.loading.explain` (tested there as data); this module only
 draws them, in dark marks on white with numbers on the axes, ``<title>``/``<desc>`` for
 screen readers and every piece of text escaped.  The handout's clinician page and the
 app's explanation panel show the same SVG.
@@ -16,7 +16,7 @@ from dataclasses import dataclass
 from html import escape
 from typing import Any
 
-from ..explain import explain_exercise, force_bars, stress_strain_picture
+from ..loading.explain import explain_exercise, force_bars, stress_strain_picture
 
 WIDTH, HEIGHT = 760, 360
 LEFT, RIGHT, TOP, BOTTOM = 92, 30, 30, 72
@@ -79,7 +79,7 @@ def _fmt(v: float) -> str:
 
 
 def stress_strain_svg(picture: dict[str, Any], svg_id: str = "explain-ss") -> Figure:
-    """Draw :func:`prescribe.explain.stress_strain_picture`: two curves and the exercise's marker."""
+    """Draw :func:`prescribe.loading.explain.stress_strain_picture`: two curves and the exercise's marker."""
     healthy, person = picture["curves"]["healthy"], picture["curves"]["this_person"]
     marker = picture["marker"]
     x_top, x_step = _nice(max(healthy["strain_pct"] + person["strain_pct"]) * 1.08)
@@ -141,7 +141,7 @@ def stress_strain_svg(picture: dict[str, Any], svg_id: str = "explain-ss") -> Fi
 
 
 def force_bars_svg(bars: list[dict[str, Any]], title: str, svg_id: str = "explain-bars") -> Figure:
-    """Draw :func:`prescribe.explain.force_bars`: one bar each, in body weights, newtons written on top."""
+    """Draw :func:`prescribe.loading.explain.force_bars`: one bar each, in body weights, newtons written on top."""
     pw, ph = WIDTH - LEFT - RIGHT, HEIGHT - TOP - BOTTOM - 40
     top, step = _nice(max(b["bw"] for b in bars) * 1.12)
     band = pw / len(bars)
@@ -187,7 +187,7 @@ def force_bars_svg(bars: list[dict[str, Any]], title: str, svg_id: str = "explai
 
 
 def explanation_figures(result: dict[str, Any], prefix: str = "explain") -> tuple[Figure, Figure]:
-    """Both pictures of one :func:`prescribe.explain.explain_exercise` result."""
+    """Both pictures of one :func:`prescribe.loading.explain.explain_exercise` result."""
     ss = stress_strain_svg(stress_strain_picture(result), svg_id=f"{prefix}-ss")
     bars = force_bars_svg(force_bars(result), f"{result['name']}: forces side by side", svg_id=f"{prefix}-bars")
     return ss, bars

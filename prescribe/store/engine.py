@@ -23,7 +23,7 @@ import sqlite3
 from contextlib import contextmanager
 from datetime import datetime, timezone
 from pathlib import Path
-from typing import TYPE_CHECKING, Any, Iterator
+from typing import Any, Iterator, Self
 
 from sqlalchemy import create_engine, event, text
 from sqlalchemy.engine import Connection, Engine, make_url
@@ -31,9 +31,6 @@ from sqlalchemy.exc import ArgumentError, DBAPIError, IntegrityError, NoSuchModu
 
 from ..errors import ConflictError, InputError, StoreError
 from . import models as m
-
-if TYPE_CHECKING:
-    from .api import Store
 
 #: The newest schema revision this version knows (a test checks it against Alembic's head).
 HEAD_REVISION = "0006"
@@ -180,7 +177,7 @@ class StoreBase:
     def close(self) -> None:
         self.engine.dispose()
 
-    def __enter__(self) -> "Store":
+    def __enter__(self) -> Self:
         return self
 
     def __exit__(self, *exc) -> None:

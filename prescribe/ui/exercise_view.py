@@ -2,7 +2,7 @@
 
 Shows the exercise chosen in the program section and, when one is chosen, the exercise it
 would be swapped for, each drawn from the catalogue's pose data by
-:func:`prescribe.drawings.pose_svg` (the same drawing the handout prints).
+:func:`prescribe.catalogue.drawings.pose_svg` (the same drawing the handout prints).
 """
 
 from __future__ import annotations
@@ -12,7 +12,7 @@ import html
 import ipywidgets as w
 
 from ..catalogue import default_catalogue
-from ..drawings import pose_svg
+from ..catalogue.drawings import pose_svg
 
 STYLE = """<style>
 .pr-exercise-drawing .pr-pose { display: inline-block; width: 300px; margin: 4px 16px 4px 0; vertical-align: top; }

@@ -3,7 +3,7 @@
 Beside the program: a list of the program's exercises; for the one picked, two sentences
 in plain words for the person, the stress-strain picture and the force bars (the same
 inline SVG as the clinician's handout page), a line of key figures and the cautions.
-The numbers come from :func:`prescribe.explain.explain_exercise` for the person's body
+The numbers come from :func:`prescribe.loading.explain.explain_exercise` for the person's body
 mass and lowest T-score; nothing here computes a load.
 
 Stable CSS classes: ``pr-explain`` (the panel), ``pr-explain-select``,
@@ -94,7 +94,7 @@ class ExplainView:
             self.words.value = self.figures.value = self.numbers.value = ""
             return
         try:
-            from ..explain import explain_exercise
+            from ..loading.explain import explain_exercise
             from ..handout.explain_figures import explanation_figures
 
             mass, t = self.person()

@@ -567,7 +567,7 @@ class TemplatesView:
         folder = self.whatif_rules.value.strip()
         if folder:
             from ..errors import RuleFileError
-            from ..rules import load_rules
+            from ..screening.rules import load_rules
             try:
                 rules = load_rules(folder)
             except (RuleFileError, OSError) as exc:

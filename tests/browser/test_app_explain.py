@@ -9,7 +9,7 @@ from __future__ import annotations
 import pytest
 
 from prescribe.catalogue import default_catalogue
-from prescribe.explain import explain_exercise
+from prescribe.loading.explain import explain_exercise
 
 from .conftest import choose, open_app, shot, type_into
 

@@ -1,11 +1,12 @@
 """The screening engine: one rule library, two evaluators.
 
-The rules (:mod:`prescribe.rules`, data files under ``prescribe/data/rules``) are
+The rules (:mod:`.rules`, data files under ``prescribe/data/rules``) are
 evaluated either for one person (:func:`screen`, a plain per-record evaluator) or
 for a whole caseload at once (:func:`screen_batch`, a vectorised numpy/pandas
 evaluator over a DataFrame of flattened records).  Both compute the same derived
-features (one function each, :func:`record_features` and :func:`frame_features`),
-test the same conditions and combine the fired rules' effects by the rules below,
+features (one function each, :func:`.features.record_features` and
+:func:`.features.frame_features`), test the same conditions (:mod:`.conditions`)
+and combine the fired rules' effects by the rules below,
 so a person gets the same result either way (a property test checks every feature
 and every result field of random records both ways).
 
@@ -24,25 +25,22 @@ This module gives decision support only; a licensed clinician reviews every resu
 
 from __future__ import annotations
 
-import csv
 from dataclasses import dataclass
 from functools import lru_cache
 from itertools import compress
-from pathlib import Path
-from typing import Any, Callable
+from typing import Any
 
 import numpy as np
 import pandas as pd
 
-from .batch_columns import FRACTURES_ALLOWED, RECORD_COLUMNS, REQUIRED_COLUMNS, FractureColumns, fracture_columns
+from ..cautions import with_standard
+from ..errors import InputError
+from ..records import T_SCORE_SITES, Flag, PatientRecord, ScreeningResult
+from .batch_columns import FractureColumns
 from .batch_io import records_to_frame
-from .cautions import with_standard
-from .errors import FieldProblem, InputError
-from .records import CONDITIONS, T_SCORE_SITES, Flag, PatientRecord, ScreeningResult
-from .rules import (BOOL, CATEGORY_RANK, FEATURES, NUMBER, SEVERITY_RANK, AllOf, AnyOf, Condition, Not, Rule,
-                    RuleSet, Test, load_rules)
-
-NORMS_FILE = Path(__file__).with_name("data") / "norms" / "chair_stand_30s.csv"
+from .conditions import compile_scalar, evaluate_vector
+from .features import _frame_features, _lowest_site, _text_column, record_features
+from .rules import CATEGORY_RANK, SEVERITY_RANK, Rule, RuleSet, load_rules
 
 #: Columns of the frame :func:`screen_batch` returns (and of the results CSV).
 RESULT_COLUMNS: tuple[str, ...] = (
@@ -55,321 +53,6 @@ LIST_SEP = ";"
 #: Separator of the cautions cell.
 CAUTION_SEP = " | "
 
-
-# ---------------------------------------------------------------------------
-# Norms: 30-second chair stand
-# ---------------------------------------------------------------------------
-
-@lru_cache(maxsize=1)
-def chair_stand_norms() -> dict[str, np.ndarray]:
-    """Lower bound of the normal 30-s chair stand range by sex, indexed by age (years, 0-110).
-
-    NaN under 60 years (no norm); ages above 94 use the 90-94 band.
-
-    Returns
-    -------
-    dict
-        ``{"female": array, "male": array}``, each of length 111 [stands].
-
-    References
-    ----------
-    Rikli RE, Jones CJ (1999). Functional fitness normative scores for community-residing
-    older adults, ages 60-94. J Aging Phys Act 7:162-181 (normal range = middle 50%).
-    """
-    table = {"female": np.full(111, np.nan), "male": np.full(111, np.nan)}
-    with NORMS_FILE.open(encoding="utf-8") as fh:
-        rows = list(csv.DictReader(line for line in fh if not line.startswith("#")))
-    top: dict[str, tuple[int, float]] = {}
-    for row in rows:
-        lo, hi, low = int(row["age_min"]), int(row["age_max"]), float(row["normal_low"])
-        table[row["sex"]][lo:hi + 1] = low
-        if row["sex"] not in top or hi > top[row["sex"]][0]:
-            top[row["sex"]] = (hi, low)
-    for sex, (hi, low) in top.items():
-        table[sex][hi + 1:] = low
-    return table
-
-
-def chair_stand_norm_low(age_years: int, sex: str) -> float | None:
-    """Lower bound of the normal 30-s chair stand range [stands]; None under 60 years.
-
-    References
-    ----------
-    Rikli RE, Jones CJ (1999). J Aging Phys Act 7:162-181.
-    """
-    value = chair_stand_norms()[sex][min(int(age_years), 110)]
-    return None if np.isnan(value) else float(value)
-
-
-# ---------------------------------------------------------------------------
-# Derived features: scalar (one record) and vector (a frame)
-# ---------------------------------------------------------------------------
-
-def _bmi(mass_kg, height_cm):
-    """Body mass index [kg/m^2] of scalars or arrays (one formula, identical rounding for both)."""
-    metres = height_cm / 100.0
-    return mass_kg / (metres * metres)
-
-
-def record_features(rec: dict) -> dict[str, Any]:
-    """The derived features of one record given as a dict (``PatientRecord.model_dump()`` shape).
-
-    Missing numbers are ``None``.  See :data:`prescribe.rules.FEATURES` for the vocabulary.
-    """
-    ts = rec.get("t_scores") or {}
-    lowest = None
-    for site in T_SCORE_SITES:
-        v = ts.get(site)
-        if v is not None and (lowest is None or v < lowest):
-            lowest = v
-    fractures = rec.get("fractures") or ()
-    lt_count = 0
-    lt_vert = lt_hip = hip = False
-    last = None
-    for f in fractures:
-        if f["low_trauma"]:
-            lt_count += 1
-            if f["site"] == "vertebra":
-                lt_vert = True
-            elif f["site"] == "hip":
-                lt_hip = True
-        if f["site"] == "hip":
-            hip = True
-        m = f["months_ago"]
-        if last is None or m < last:
-            last = m
-    age, sex = rec["age_years"], rec["sex"]
-    norm = chair_stand_norm_low(age, sex)
-    chair = rec.get("chair_stand_30s")
-    gc = rec.get("glucocorticoids")
-    mass, height = rec["body_mass_kg"], rec["height_cm"]
-    feats: dict[str, Any] = {
-        "age_years": age,
-        "sex": sex,
-        "body_mass_kg": mass,
-        "bmi": _bmi(mass, height),
-        "lowest_t_score": lowest,
-        "t_score_measured": lowest is not None,
-        "low_trauma_fracture": lt_count > 0,
-        "low_trauma_fracture_count": lt_count,
-        "low_trauma_vertebral_fracture": lt_vert,
-        "low_trauma_hip_fracture": lt_hip,
-        "hip_fracture": hip,
-        "months_since_last_fracture": last,
-        "falls_past_year": rec.get("falls_past_year", 0),
-        "timed_up_and_go_s": rec.get("timed_up_and_go_s"),
-        "tandem_stance_s": rec.get("tandem_stance_s"),
-        "chair_stand_30s": chair,
-        "chair_stand_norm_low": norm,
-        "chair_stand_below_norm": chair is not None and norm is not None and chair < norm,
-        "glucocorticoid_mg_per_day": gc["mg_per_day"] if gc else 0.0,
-        "glucocorticoid_months": gc["months"] if gc else 0.0,
-        "pain_score": rec.get("pain_score", 0),
-    }
-    conditions = rec.get("conditions") or ()
-    for code in CONDITIONS:
-        feats[f"has_condition:{code}"] = code in conditions
-    return feats
-
-
-def _column(df: pd.DataFrame, name: str, n: int) -> np.ndarray:
-    """A numeric column as float64 (NaN for absent); all NaN when the column is missing."""
-    if name not in df.columns:
-        return np.full(n, np.nan)
-    col = df[name]
-    if pd.api.types.is_numeric_dtype(col.dtype) and not pd.api.types.is_bool_dtype(col.dtype):
-        return col.to_numpy(dtype="float64", na_value=np.nan)
-    try:
-        return pd.to_numeric(col, errors="raise").to_numpy(dtype="float64", na_value=np.nan)
-    except (ValueError, TypeError):
-        raise InputError.single(name, "non-numeric cells", "numbers, or empty when absent") from None
-
-
-def _text_column(df: pd.DataFrame, name: str, n: int, raw: bool = False) -> np.ndarray:
-    """A text column as an object array ('' for absent; with ``raw``, absent cells left as they are)."""
-    if name not in df.columns:
-        return np.full(n, "", dtype=object)
-    col = df[name]
-    return col.to_numpy(dtype=object) if raw else col.to_numpy(dtype=object, na_value="")
-
-
-def _fracture_features(df: pd.DataFrame, n: int, fractures: FractureColumns | None) -> dict[str, np.ndarray]:
-    """Fracture features from the per-person figures (read from the compact cells when not given)."""
-    if fractures is None:
-        fractures, _, reasons = fracture_columns(_text_column(df, "fractures", n, raw=True))
-        if reasons:
-            pos = min(reasons)                  # the first bad cell, as it is in the frame
-            raise InputError.single("fractures", df["fractures"].iloc[pos], f"{FRACTURES_ALLOWED} ({reasons[pos]})")
-    count = fractures.low_trauma_count
-    return {"low_trauma_fracture_count": count, "low_trauma_fracture": count > 0,
-            "low_trauma_vertebral_fracture": fractures.low_trauma_vertebral,
-            "low_trauma_hip_fracture": fractures.low_trauma_hip, "hip_fracture": fractures.hip,
-            "months_since_last_fracture": fractures.months_since_last}
-
-
-def _condition_features(cells: np.ndarray) -> dict[str, np.ndarray]:
-    codes, uniques = pd.factorize(cells)        # absent cells (NaN, None) get code -1
-    out = {}
-    sets = [set(c.strip() for c in text.split(";")) for text in uniques]
-    for code in CONDITIONS:
-        present = np.array([code in s for s in sets] + [False], dtype=bool)  # [-1]: absent, none
-        out[f"has_condition:{code}"] = present[codes]
-    return out
-
-
-def frame_features(df: pd.DataFrame, fractures: FractureColumns | None = None) -> dict[str, np.ndarray]:
-    """The derived features of every row of a frame of flattened records, as arrays.
-
-    Numbers are float64 with NaN for absent; flags are bool; ``sex`` is an object array.
-    The frame is expected to hold validated records (:func:`prescribe.batch_io.read_batch_csv`
-    or :func:`prescribe.batch_io.records_to_frame`).  ``fractures``, when given, are the
-    per-person fracture figures the reader already worked out (:class:`prescribe.batch_io.Caseload`);
-    otherwise they are read from the frame's compact fracture cells.
-    """
-    return _frame_features(df, fractures)[0]
-
-
-def _frame_features(df: pd.DataFrame, fractures: FractureColumns | None = None
-                    ) -> tuple[dict[str, np.ndarray], list[np.ndarray]]:
-    """:func:`frame_features` and the T-score columns it read (T_SCORE_SITES order), for reuse."""
-    n = len(df)
-    missing = [c for c in REQUIRED_COLUMNS if c not in df.columns]
-    unknown = [c for c in df.columns if c not in RECORD_COLUMNS]
-    if missing or unknown:
-        raise InputError([FieldProblem(f"column {c}", None, "a column of the batch frame (required)", "missing")
-                          for c in missing] +
-                         [FieldProblem(f"column {c}", c, "a known column (" + ", ".join(RECORD_COLUMNS) + ")",
-                                       "unknown_field") for c in unknown])
-    age = _column(df, "age_years", n)
-    sex = _text_column(df, "sex", n)
-    mass, height = _column(df, "body_mass_kg", n), _column(df, "height_cm", n)
-    tscores = [_column(df, f"t_score_{s}", n) for s in T_SCORE_SITES]
-    lowest = tscores[0]
-    for site_scores in tscores[1:]:
-        lowest = np.fmin(lowest, site_scores)   # pairwise: a reduce along a short axis is slow
-    norms = chair_stand_norms()
-    age_idx = np.clip(np.nan_to_num(age, nan=0.0), 0, 110).astype(np.intp)
-    female = sex == "female"
-    norm = np.where(female, norms["female"][age_idx], norms["male"][age_idx])
-    chair = _column(df, "chair_stand_30s", n)
-    mg = _column(df, "glucocorticoids_mg_per_day", n)
-    months = _column(df, "glucocorticoids_months", n)
-    falls = _column(df, "falls_past_year", n)
-    pain = _column(df, "pain_score", n)
-    feats: dict[str, np.ndarray] = {
-        "age_years": age,
-        "sex": sex,
-        "body_mass_kg": mass,
-        "bmi": _bmi(mass, height),
-        "lowest_t_score": lowest,
-        "t_score_measured": ~np.isnan(lowest),
-        "falls_past_year": np.nan_to_num(falls, nan=0.0),
-        "timed_up_and_go_s": _column(df, "timed_up_and_go_s", n),
-        "tandem_stance_s": _column(df, "tandem_stance_s", n),
-        "chair_stand_30s": chair,
-        "chair_stand_norm_low": norm,
-        "chair_stand_below_norm": chair < norm,  # NaN on either side compares False
-        "glucocorticoid_mg_per_day": np.where(np.isnan(mg) | np.isnan(months), 0.0, mg),
-        "glucocorticoid_months": np.where(np.isnan(mg) | np.isnan(months), 0.0, months),
-        "pain_score": np.nan_to_num(pain, nan=0.0),
-    }
-    feats.update(_fracture_features(df, n, fractures))
-    feats.update(_condition_features(_text_column(df, "conditions", n, raw=True)))
-    return feats, tscores
-
-
-def _lowest_site(tscores: list[np.ndarray], lowest: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Each row's lowest T-score and its site (first site in T_SCORE_SITES order on ties; NaN
-    and None when none was measured), from the per-site T-score columns and their minimum."""
-    idx = np.full(len(lowest), len(T_SCORE_SITES), dtype=np.intp)
-    value = np.full(len(lowest), np.nan)
-    for j in reversed(range(len(T_SCORE_SITES))):
-        first = tscores[j] == lowest                   # NaN never compares equal
-        idx = np.where(first, j, idx)
-        value = np.where(first, tscores[j], value)
-    return value, np.array([*T_SCORE_SITES, None], dtype=object)[idx]
-
-
-# ---------------------------------------------------------------------------
-# Conditions: compiled once, two evaluators
-# ---------------------------------------------------------------------------
-
-def _scalar_test(t: Test) -> Callable[[dict], bool]:
-    name, op, value = t.feature, t.op, t.value
-    if op == "missing":
-        return lambda f: f[name] is None
-    if op == "present":
-        return lambda f: f[name] is not None
-    compare = {
-        "<": lambda v: v < value, "<=": lambda v: v <= value, ">": lambda v: v > value,
-        ">=": lambda v: v >= value, "==": lambda v: v == value, "!=": lambda v: v != value,
-        "in": lambda v: v in value,
-    }[op]
-
-    def test(f: dict) -> bool:
-        v = f[name]
-        return v is not None and compare(v)
-    return test
-
-
-def compile_scalar(cond: Condition) -> Callable[[dict], bool]:
-    """A function of a feature dict that is true where ``cond`` holds (per-record evaluator)."""
-    if isinstance(cond, Test):
-        return _scalar_test(cond)
-    if isinstance(cond, AllOf):
-        parts = [compile_scalar(p) for p in cond.parts]
-        return lambda f: all(p(f) for p in parts)
-    if isinstance(cond, AnyOf):
-        parts = [compile_scalar(p) for p in cond.parts]
-        return lambda f: any(p(f) for p in parts)
-    if isinstance(cond, Not):
-        inner = compile_scalar(cond.part)
-        return lambda f: not inner(f)
-    raise TypeError(f"not a condition: {cond!r}")
-
-
-_COMPARE = {"<": np.less, "<=": np.less_equal, ">": np.greater, ">=": np.greater_equal,
-            "==": np.equal, "!=": np.not_equal}
-_NAN_FALSE = ("<", "<=", ">", ">=", "==")
-
-
-def evaluate_vector(cond: Condition, feats: dict[str, np.ndarray]) -> np.ndarray:
-    """Boolean array, true for rows where ``cond`` holds (vectorised evaluator)."""
-    if isinstance(cond, Test):
-        v = feats[cond.feature]
-        op, value = cond.op, cond.value
-        kind = FEATURES[cond.feature].kind
-        if kind == NUMBER and op in _NAN_FALSE:
-            return _COMPARE[op](v, value)           # NaN (absent) compares false: nothing to mask
-        absent = np.isnan(v) if kind == NUMBER else np.zeros(len(v), dtype=bool)
-        if op == "missing":
-            return absent
-        if op == "present":
-            return ~absent
-        if op == "in":
-            return np.isin(v, list(value)) & ~absent
-        if kind == BOOL:
-            v = v.astype(bool)
-        result = _COMPARE[op](v, value)
-        return np.asarray(result, dtype=bool) & ~absent
-    if isinstance(cond, AllOf):
-        out = evaluate_vector(cond.parts[0], feats)
-        for p in cond.parts[1:]:
-            out = out & evaluate_vector(p, feats)
-        return out
-    if isinstance(cond, AnyOf):
-        out = evaluate_vector(cond.parts[0], feats)
-        for p in cond.parts[1:]:
-            out = out | evaluate_vector(p, feats)
-        return out
-    if isinstance(cond, Not):
-        return ~evaluate_vector(cond.part, feats)
-    raise TypeError(f"not a condition: {cond!r}")
-
-
-# ---------------------------------------------------------------------------
-# The engine
-# ---------------------------------------------------------------------------
 
 def _unique_rows(matrix: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Distinct rows of a boolean matrix and, for each row, the index of its distinct row."""
@@ -545,10 +228,6 @@ class Engine:
             "cautions": cautions,
         }
 
-    def fired_matrix(self, df: pd.DataFrame) -> np.ndarray:
-        """Boolean (rows x rules) matrix of fired rules, rules in ``self.rules`` order."""
-        return self._fired(frame_features(df), len(df))
-
     def screen_frame(self, df: pd.DataFrame, fractures: FractureColumns | None = None) -> pd.DataFrame:
         """The vectorised evaluator: one result row per input row (see :func:`screen_batch`).
 
@@ -624,10 +303,6 @@ def default_engine() -> Engine:
     return Engine(load_rules())
 
 
-#: Version of the shipped rule library: release plus a short hash of the rule files.
-RULESET_VERSION: str = default_engine().version
-
-
 def engine_for(rules: RuleSet | None) -> Engine:
     return default_engine() if rules is None else Engine(rules)
 
@@ -662,13 +337,13 @@ def screen_batch(df: pd.DataFrame, rules: RuleSet | None = None,
     Parameters
     ----------
     df : pandas.DataFrame
-        Flattened, validated records (:func:`prescribe.batch_io.read_batch_csv` or
-        :func:`prescribe.batch_io.records_to_frame`).
+        Flattened, validated records (:func:`prescribe.screening.batch_io.read_batch_csv` or
+        :func:`prescribe.screening.batch_io.records_to_frame`).
     rules : RuleSet, optional
         Another rule set; the shipped one when omitted.
     fractures : FractureColumns, optional
         The per-person fracture figures already read from the cells (the batch reader's
-        :class:`prescribe.batch_io.Caseload` carries them); read from ``df`` when omitted.
+        :class:`prescribe.screening.batch_io.Caseload` carries them); read from ``df`` when omitted.
 
     Returns
     -------

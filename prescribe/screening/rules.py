@@ -19,11 +19,11 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, Union
 
-from .errors import RuleFileError
-from .records import CONDITIONS, MOVEMENT_PATTERNS, SEVERITIES
+from ..errors import RuleFileError
+from ..records import CONDITIONS, MOVEMENT_PATTERNS, SEVERITIES
 
 #: Where the shipped rule files live.
-DEFAULT_RULES_DIR = Path(__file__).with_name("data") / "rules"
+DEFAULT_RULES_DIR = Path(__file__).parent.parent / "data" / "rules"
 
 #: The release of the rule library; the hash of the files is appended at load time.
 RULESET_RELEASE = "2026.12-1"

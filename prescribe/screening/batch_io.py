@@ -10,7 +10,7 @@ One row per person; the columns are the record's fields flattened (see
 - ``conditions`` is condition codes joined by ``;``.
 
 Files are read a chunk of rows at a time (:func:`iter_batch_csv`) and validated a column at a
-time with the patient record's own rules (:mod:`prescribe.batch_columns`); a bad row raises
+time with the patient record's own rules (:mod:`prescribe.screening.batch_columns`); a bad row raises
 :class:`~prescribe.errors.InputError` whose field names the row and the column,
 e.g. ``row 7 (patient_id P-007): age_years``.  Rows are numbered from 1 for the
 first row under the header.  :func:`rows_to_records` validates rows one record at a time
@@ -38,9 +38,9 @@ from .batch_columns import (FLOAT_COLUMNS as _FLOAT_COLUMNS, FRACTURES_ALLOWED, 
                             RECORD_COLUMNS, REQUIRED_COLUMNS, TEXT_COLUMNS as _TEXT_COLUMNS, FractureColumns,
                             format_cell as _fmt, format_fractures, fracture_columns, parse_fractures,
                             validate_columns)
-from .errors import FieldProblem, InputError
-from .fileio import CSV_MAX_BYTES, check_file_size, open_atomically, write_atomically
-from .records import CONDITIONS, T_SCORE_SITES, PatientRecord, parse_record
+from ..errors import FieldProblem, InputError
+from ..fileio import CSV_MAX_BYTES, check_file_size, open_atomically, write_atomically
+from ..records import CONDITIONS, T_SCORE_SITES, PatientRecord, parse_record
 
 __all__ = ["RECORD_COLUMNS", "REQUIRED_COLUMNS", "FRACTURES_ALLOWED", "CHUNK_ROWS", "Caseload",
            "parse_fractures", "format_fractures", "fracture_columns", "spreadsheet_text",

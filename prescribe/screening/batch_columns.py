@@ -8,7 +8,7 @@ T-scores, fracture items and condition lists), and the bounds, vocabularies and 
 :func:`prescribe.records.describe_allowed`), never from a second copy here.
 
 The problems found are exactly those that validating each row with
-:func:`prescribe.batch_io.rows_to_records` (one record model a row) finds, in the same order
+:func:`prescribe.screening.batch_io.rows_to_records` (one record model a row) finds, in the same order
 and with the same words; ``tests/test_batch_columns.py`` checks that on random rows with bad
 cells.  Within a row, problems with cells that cannot be read at all come first (numbers,
 then the glucocorticoid pair, then the fracture cell), then the record's own problems in
@@ -26,8 +26,8 @@ from typing import Any, Iterable, Sequence
 import numpy as np
 import pandas as pd
 
-from .errors import FieldProblem
-from .records import CONDITIONS, FIELD_META, FRACTURE_SITES, RECORD_SCHEMA, T_SCORE_SITES, describe_allowed
+from ..errors import FieldProblem
+from ..records import CONDITIONS, FIELD_META, FRACTURE_SITES, RECORD_SCHEMA, T_SCORE_SITES, describe_allowed
 
 #: The batch file's columns, in the order files are written.
 RECORD_COLUMNS: tuple[str, ...] = (
@@ -255,7 +255,7 @@ def _loc_of(column: str) -> tuple[str, ...]:
 
 
 NUMBER_COLUMNS: dict[str, NumberColumn] = {c: NumberColumn.of(c, _loc_of(c)) for c in INT_COLUMNS + FLOAT_COLUMNS}
-#: Order of the problems with unreadable cells within a row (as :func:`prescribe.batch_io.row_to_dict`).
+#: Order of the problems with unreadable cells within a row (as :func:`prescribe.screening.batch_io.row_to_dict`).
 CELL_ORDER = {c: i for i, c in enumerate(INT_COLUMNS + FLOAT_COLUMNS + ("glucocorticoids_pair", "fractures"))}
 #: Order of the record's own problems within a row (the record's field order).
 FIELD_ORDER = {c: i for i, c in enumerate(RECORD_COLUMNS)}
@@ -329,7 +329,7 @@ def validate_columns(cells: dict[str, np.ndarray], n: int) -> tuple[pd.DataFrame
     Returns
     -------
     (pandas.DataFrame, FractureColumns, ColumnProblems)
-        The flattened records (the shape of :func:`prescribe.batch_io.records_to_frame`;
+        The flattened records (the shape of :func:`prescribe.screening.batch_io.records_to_frame`;
         rows with problems hold placeholders), the fracture figures, and the problems.
     """
     problems = ColumnProblems([])

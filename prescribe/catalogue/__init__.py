@@ -10,6 +10,9 @@ Impact levels (PRODUCT.md) follow from force, not from the name:
 * level 1: peak ground reaction force below 2.0 BW;
 * level 2: 2.0 to 4.0 BW, both boundaries included;
 * level 3: above 4.0 BW.
+
+Each entry may carry its start and end position as joint angles (:mod:`.poses`), drawn
+as SVG by :mod:`.drawings`.
 """
 
 from __future__ import annotations
@@ -22,11 +25,11 @@ from typing import Any, Iterable, Iterator, Literal
 import numpy as np
 from pydantic import BaseModel, ConfigDict, Field, ValidationError, model_validator
 
-from .errors import CatalogueError, InputError
+from ..errors import CatalogueError, InputError
 from .poses import Pose
-from .records import MOVEMENT_PATTERNS
+from ..records import MOVEMENT_PATTERNS
 
-DEFAULT_PATH = Path(__file__).with_name("data") / "exercises.toml"
+DEFAULT_PATH = Path(__file__).parent.parent / "data" / "exercises.toml"
 
 CATEGORIES: dict[str, str] = {
     "impact": "Weight-bearing impact work at levels 1-3 (walking, stamps, heel drops, jumps, hops).",
@@ -130,7 +133,7 @@ class Exercise(BaseModel):
     source: str = Field(min_length=5)
     source_kind: Literal[tuple(SOURCE_KINDS)]  # type: ignore[valid-type]
     model_inputs: ModelInputs | None = None
-    #: Start and end position as joint angles, drawn by :mod:`prescribe.drawings`
+    #: Start and end position as joint angles, drawn by :mod:`prescribe.catalogue.drawings`
     #: (format: docs/catalogue.md, "Pose data").
     pose: Pose | None = None
 
@@ -152,10 +155,6 @@ class Exercise(BaseModel):
         if len(set(self.directions)) != len(self.directions):
             raise ValueError("directions must not repeat")
         return self
-
-    @property
-    def impact_level_label(self) -> str:
-        return IMPACT_LEVEL_LABELS[self.impact_level]
 
     @property
     def balance_demand_rank(self) -> int:

@@ -1,7 +1,7 @@
 """The loads explained: what the bone and the joint feel in one exercise, for one person.
 
-:func:`explain_exercise` applies the model functions of :mod:`prescribe.mechanics` and
-:mod:`prescribe.bone_loads` to one catalogue entry (the ``prescribe explain`` command,
+:func:`explain_exercise` applies the model functions of :mod:`prescribe.loading.mechanics` and
+:mod:`prescribe.loading.bone_loads` to one catalogue entry (the ``prescribe explain`` command,
 the app's explanation panel and the clinician's handout page read it), and lists every
 assumption and source it used.  :func:`stress_strain_picture` and :func:`force_bars`
 give the points of the two pictures as plain data; drawing them is the caller's job.
@@ -18,16 +18,16 @@ from typing import Any
 
 import numpy as np
 
-from ._arrays import G, body_mass, checked
+from .._arrays import G, body_mass, checked
 from .bone_loads import (CORTICAL_MODULUS_MPA, FEMORAL_NECK_YOUNG_BMD_G_CM2,
                          FEMORAL_NECK_YOUNG_SD_G_CM2, T_SCORE_RANGE, anchored_contact_force_bw,
                          density_ratio_from_t_score, density_scaled, shaft_stresses_mpa,
                          stress_strain_curve)
-from .catalogue import Catalogue, Exercise, default_catalogue
-from .cautions import with_standard
-from .errors import InputError
+from ..catalogue import Catalogue, Exercise, default_catalogue
+from ..cautions import with_standard
+from ..errors import InputError
 from .mechanics import CARTILAGE_FRICTION, CORTICAL_STRENGTH_MPA, JOINT_PRESETS
-from .records import TScores
+from ..records import TScores
 
 __all__ = ["explain_exercise", "stress_strain_picture", "force_bars", "Motion", "MOTIONS",
            "motion_of", "DEFAULT_BODY_MASS_KG", "DEFAULT_T_SCORE", "FEMUR_SHAFT",
@@ -233,7 +233,7 @@ def explain_exercise(exercise_id: str, body_mass_kg: float | None = None, t_scor
 
     References
     ----------
-    See :data:`MOTIONS`, :data:`FEMUR_SHAFT` and :mod:`prescribe.bone_loads`.
+    See :data:`MOTIONS`, :data:`FEMUR_SHAFT` and :mod:`prescribe.loading.bone_loads`.
     """
     cat = catalogue or default_catalogue()
     ex = cat.get(exercise_id)
@@ -461,7 +461,7 @@ def plain_words(result: dict[str, Any]) -> list[str]:
 def stress_strain_picture(result: dict[str, Any]) -> dict[str, Any]:
     """The stress-strain picture of an explanation as data: two curves and a marker.
 
-    Healthy and this person's cortical bone in compression (:func:`prescribe.bone_loads.
+    Healthy and this person's cortical bone in compression (:func:`prescribe.loading.bone_loads.
     stress_strain_curve`): the person's curve is less stiff and breaks at a lower stress;
     both leave the origin on a straight line (no toe region) and have a short plastic
     region.  The marker sits on the person's curve at the exercise's peak compressive

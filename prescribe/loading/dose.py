@@ -16,10 +16,10 @@ from typing import Any, Iterable, Sequence
 
 import numpy as np
 
-from ._arrays import body_mass, checked, out
-from .catalogue import DIRECTIONS, Catalogue, default_catalogue
-from .cautions import with_standard
-from .errors import InputError
+from .._arrays import body_mass, checked, out
+from ..catalogue import DIRECTIONS, Catalogue, default_catalogue
+from ..cautions import with_standard
+from ..errors import InputError
 from .mechanics import bw_to_newtons
 
 __all__ = [

@@ -5,7 +5,7 @@ front), whether the movement has a flight phase, and two postures, ``start`` and
 A posture is a set of joint angles in degrees plus the points that rest on a surface
 (``contacts``) and the props in the picture.  :func:`key_points` turns a posture into 2D
 key points by forward kinematics over a body of fixed segment lengths; the drawing code
-(:mod:`prescribe.drawings`) draws them.  Pure functions, no I/O.
+(:mod:`prescribe.catalogue.drawings`) draws them.  Pure functions, no I/O.
 
 Angles (side view: the person faces right; front view: the person faces the viewer)::
 

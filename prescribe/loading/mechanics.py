@@ -10,8 +10,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from ._arrays import G, body_mass, checked, out
-from .errors import InputError
+from .._arrays import G, body_mass, checked, out
+from ..errors import InputError
 
 __all__ = [
     "landing_peak_grf_bw", "landing_peak_force_n", "loading_rate_bw_s", "bw_to_newtons",

@@ -14,8 +14,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from ._arrays import checked, out
-from .errors import InputError
+from .._arrays import checked, out
+from ..errors import InputError
 
 __all__ = [
     "anchored_contact_force_bw", "density_ratio_from_t_score", "carter_hayes_strength_mpa",
@@ -234,8 +234,8 @@ def shaft_stresses_mpa(force_n, outer_diameter_mm, inner_diameter_mm, eccentrici
     References
     ----------
     Normal stress and Euler-Bernoulli bending of an annulus (any mechanics of materials
-    text); compare :func:`prescribe.mechanics.axial_stress_mpa` and
-    :func:`prescribe.mechanics.tube_bending_stress_mpa`.
+    text); compare :func:`prescribe.loading.mechanics.axial_stress_mpa` and
+    :func:`prescribe.loading.mechanics.tube_bending_stress_mpa`.
     """
     f = checked("force_n", force_n, low=0)
     big = checked("outer_diameter_mm", outer_diameter_mm, low=0, low_open=True)

@@ -1,0 +1,100 @@
+"""A plan's figures week by week, as the charts, the tables and both audiences' pages read them.
+
+Fields the planner may add (``phase``, ``step_up``, ``weak_window``,
+``resistance_intensity_pct_1rm``, ``weekly_osteogenic_index``; per exercise ``rest_s``,
+``bout_gap_hours``, ``notes``) are used when present and derived when absent.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+from dataclasses import dataclass
+
+from ...cautions import with_standard
+from ...plan_schema import Plan, PlannedWeek, weak_window_weeks
+from .wording import pct_1rm
+
+
+@dataclass(frozen=True)
+class WeekFacts:
+    """One week of the plan as the charts and tables need it."""
+
+    week: int
+    impact_level: int
+    impacts_per_session: int
+    step_up: bool
+    weak_window: bool
+    resistance_pct_1rm: float | None
+    reassessment: bool
+    phase: str
+    weekly_oi: float
+    max_session_oi: float
+    peak_grf_bw: float
+    directions: tuple[str, ...]
+    sessions: int
+
+
+def week_facts(plan: Plan) -> list[WeekFacts]:
+    """Per-week figures, with the weak window derived when absent and the resistance load
+    always read from the exercises.
+
+    A step-up is a week whose impact level is higher than the week before (or a
+    week the planner marked ``step_up``).  Without the planner's ``weak_window``
+    flag, weeks 3 to 5 counted from each step-up (the step-up week is week 1) are
+    the weak window.
+    """
+    weeks = sorted(plan.weeks, key=lambda w: w.week)
+    steps: list[bool] = []
+    previous = None
+    for wk in weeks:
+        if wk.step_up is not None:
+            steps.append(wk.step_up)
+        else:
+            steps.append(previous is not None and wk.impact_level > previous)
+        previous = wk.impact_level
+    step_weeks = [wk.week for wk, s in zip(weeks, steps) if s]
+    derived_weak = weak_window_weeks(step_weeks)
+    out = []
+    for wk, step in zip(weeks, steps):
+        weak = wk.weak_window if wk.weak_window is not None else wk.week in derived_weak
+        # The load is read from the week's exercises, never from the week's summary field: the
+        # handout must not state a higher intensity than the program prescribes.
+        found = [p for ex in week_exercises(wk) if (p := pct_1rm(ex.intensity)) is not None]
+        pct = max(found) if found else None
+        session_oi = [s.osteogenic_index for s in wk.sessions]
+        weekly = float(sum(session_oi) if wk.weekly_osteogenic_index is None else wk.weekly_osteogenic_index)
+        loading = [ex for ex in week_exercises(wk) if ex.impact_level >= 1]
+        directions = sorted({d for ex in loading for d in ex.directions})
+        out.append(WeekFacts(
+            week=wk.week, impact_level=wk.impact_level, impacts_per_session=wk.impacts_per_session,
+            step_up=step, weak_window=weak, resistance_pct_1rm=pct, reassessment=wk.reassessment,
+            phase=wk.phase, weekly_oi=weekly,
+            max_session_oi=max(session_oi, default=0.0),
+            peak_grf_bw=max((ex.peak_grf_bw for ex in loading), default=0.0),
+            directions=tuple(directions), sessions=len(wk.sessions)))
+    return out
+
+
+def week_exercises(week: PlannedWeek):
+    """Every exercise of the week, session by session."""
+    for session in week.sessions:
+        yield from session.exercises
+
+
+def review_weeks(plan: Plan) -> list[tuple[int, str | None]]:
+    """(week, date or None) of every review the plan asks for."""
+    try:
+        start = dt.date.fromisoformat(str(plan.created)[:10])
+    except ValueError:
+        start = None
+    out = []
+    for wk in sorted(plan.weeks, key=lambda w: w.week):
+        if wk.reassessment:
+            when = start + dt.timedelta(weeks=wk.week - 1) if start else None
+            out.append((wk.week, when.strftime("%d %B %Y").lstrip("0") if when else None))
+    return out
+
+
+def all_cautions(plan: Plan) -> list[str]:
+    """The standard cautions first, then the plan's and the screening's own."""
+    return with_standard([*plan.cautions, *plan.screening.cautions])

@@ -1,0 +1,204 @@
+"""The derived features the rules test: one function for a record, one for a frame.
+
+:func:`record_features` works out the features of one person (the per-record evaluator);
+:func:`frame_features` those of every row of a caseload as arrays (the vectorised one).  A
+property test keeps the two identical feature by feature; a new feature is written for both
+(see :data:`prescribe.screening.rules.FEATURES` for the vocabulary).
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from ..errors import FieldProblem, InputError
+from ..records import CONDITIONS, T_SCORE_SITES
+from .batch_columns import FRACTURES_ALLOWED, RECORD_COLUMNS, REQUIRED_COLUMNS, FractureColumns, fracture_columns
+from .norms import chair_stand_norm_low, chair_stand_norms
+
+
+def _bmi(mass_kg, height_cm):
+    """Body mass index [kg/m^2] of scalars or arrays (one formula, identical rounding for both)."""
+    metres = height_cm / 100.0
+    return mass_kg / (metres * metres)
+
+
+def record_features(rec: dict) -> dict[str, Any]:
+    """The derived features of one record given as a dict (``PatientRecord.model_dump()`` shape).
+
+    Missing numbers are ``None``.  See :data:`prescribe.screening.rules.FEATURES` for the vocabulary.
+    """
+    ts = rec.get("t_scores") or {}
+    lowest = None
+    for site in T_SCORE_SITES:
+        v = ts.get(site)
+        if v is not None and (lowest is None or v < lowest):
+            lowest = v
+    fractures = rec.get("fractures") or ()
+    lt_count = 0
+    lt_vert = lt_hip = hip = False
+    last = None
+    for f in fractures:
+        if f["low_trauma"]:
+            lt_count += 1
+            if f["site"] == "vertebra":
+                lt_vert = True
+            elif f["site"] == "hip":
+                lt_hip = True
+        if f["site"] == "hip":
+            hip = True
+        m = f["months_ago"]
+        if last is None or m < last:
+            last = m
+    age, sex = rec["age_years"], rec["sex"]
+    norm = chair_stand_norm_low(age, sex)
+    chair = rec.get("chair_stand_30s")
+    gc = rec.get("glucocorticoids")
+    mass, height = rec["body_mass_kg"], rec["height_cm"]
+    feats: dict[str, Any] = {
+        "age_years": age,
+        "sex": sex,
+        "body_mass_kg": mass,
+        "bmi": _bmi(mass, height),
+        "lowest_t_score": lowest,
+        "t_score_measured": lowest is not None,
+        "low_trauma_fracture": lt_count > 0,
+        "low_trauma_fracture_count": lt_count,
+        "low_trauma_vertebral_fracture": lt_vert,
+        "low_trauma_hip_fracture": lt_hip,
+        "hip_fracture": hip,
+        "months_since_last_fracture": last,
+        "falls_past_year": rec.get("falls_past_year", 0),
+        "timed_up_and_go_s": rec.get("timed_up_and_go_s"),
+        "tandem_stance_s": rec.get("tandem_stance_s"),
+        "chair_stand_30s": chair,
+        "chair_stand_norm_low": norm,
+        "chair_stand_below_norm": chair is not None and norm is not None and chair < norm,
+        "glucocorticoid_mg_per_day": gc["mg_per_day"] if gc else 0.0,
+        "glucocorticoid_months": gc["months"] if gc else 0.0,
+        "pain_score": rec.get("pain_score", 0),
+    }
+    conditions = rec.get("conditions") or ()
+    for code in CONDITIONS:
+        feats[f"has_condition:{code}"] = code in conditions
+    return feats
+
+
+def _column(df: pd.DataFrame, name: str, n: int) -> np.ndarray:
+    """A numeric column as float64 (NaN for absent); all NaN when the column is missing."""
+    if name not in df.columns:
+        return np.full(n, np.nan)
+    col = df[name]
+    if pd.api.types.is_numeric_dtype(col.dtype) and not pd.api.types.is_bool_dtype(col.dtype):
+        return col.to_numpy(dtype="float64", na_value=np.nan)
+    try:
+        return pd.to_numeric(col, errors="raise").to_numpy(dtype="float64", na_value=np.nan)
+    except (ValueError, TypeError):
+        raise InputError.single(name, "non-numeric cells", "numbers, or empty when absent") from None
+
+
+def _text_column(df: pd.DataFrame, name: str, n: int, raw: bool = False) -> np.ndarray:
+    """A text column as an object array ('' for absent; with ``raw``, absent cells left as they are)."""
+    if name not in df.columns:
+        return np.full(n, "", dtype=object)
+    col = df[name]
+    return col.to_numpy(dtype=object) if raw else col.to_numpy(dtype=object, na_value="")
+
+
+def _fracture_features(df: pd.DataFrame, n: int, fractures: FractureColumns | None) -> dict[str, np.ndarray]:
+    """Fracture features from the per-person figures (read from the compact cells when not given)."""
+    if fractures is None:
+        fractures, _, reasons = fracture_columns(_text_column(df, "fractures", n, raw=True))
+        if reasons:
+            pos = min(reasons)                  # the first bad cell, as it is in the frame
+            raise InputError.single("fractures", df["fractures"].iloc[pos], f"{FRACTURES_ALLOWED} ({reasons[pos]})")
+    count = fractures.low_trauma_count
+    return {"low_trauma_fracture_count": count, "low_trauma_fracture": count > 0,
+            "low_trauma_vertebral_fracture": fractures.low_trauma_vertebral,
+            "low_trauma_hip_fracture": fractures.low_trauma_hip, "hip_fracture": fractures.hip,
+            "months_since_last_fracture": fractures.months_since_last}
+
+
+def _condition_features(cells: np.ndarray) -> dict[str, np.ndarray]:
+    codes, uniques = pd.factorize(cells)        # absent cells (NaN, None) get code -1
+    out = {}
+    sets = [set(c.strip() for c in text.split(";")) for text in uniques]
+    for code in CONDITIONS:
+        present = np.array([code in s for s in sets] + [False], dtype=bool)  # [-1]: absent, none
+        out[f"has_condition:{code}"] = present[codes]
+    return out
+
+
+def frame_features(df: pd.DataFrame, fractures: FractureColumns | None = None) -> dict[str, np.ndarray]:
+    """The derived features of every row of a frame of flattened records, as arrays.
+
+    Numbers are float64 with NaN for absent; flags are bool; ``sex`` is an object array.
+    The frame is expected to hold validated records (:func:`prescribe.screening.batch_io.read_batch_csv`
+    or :func:`prescribe.screening.batch_io.records_to_frame`).  ``fractures``, when given, are the
+    per-person fracture figures the reader already worked out (:class:`prescribe.screening.batch_io.Caseload`);
+    otherwise they are read from the frame's compact fracture cells.
+    """
+    return _frame_features(df, fractures)[0]
+
+
+def _frame_features(df: pd.DataFrame, fractures: FractureColumns | None = None
+                    ) -> tuple[dict[str, np.ndarray], list[np.ndarray]]:
+    """:func:`frame_features` and the T-score columns it read (T_SCORE_SITES order), for reuse."""
+    n = len(df)
+    missing = [c for c in REQUIRED_COLUMNS if c not in df.columns]
+    unknown = [c for c in df.columns if c not in RECORD_COLUMNS]
+    if missing or unknown:
+        raise InputError([FieldProblem(f"column {c}", None, "a column of the batch frame (required)", "missing")
+                          for c in missing] +
+                         [FieldProblem(f"column {c}", c, "a known column (" + ", ".join(RECORD_COLUMNS) + ")",
+                                       "unknown_field") for c in unknown])
+    age = _column(df, "age_years", n)
+    sex = _text_column(df, "sex", n)
+    mass, height = _column(df, "body_mass_kg", n), _column(df, "height_cm", n)
+    tscores = [_column(df, f"t_score_{s}", n) for s in T_SCORE_SITES]
+    lowest = tscores[0]
+    for site_scores in tscores[1:]:
+        lowest = np.fmin(lowest, site_scores)   # pairwise: a reduce along a short axis is slow
+    norms = chair_stand_norms()
+    age_idx = np.clip(np.nan_to_num(age, nan=0.0), 0, 110).astype(np.intp)
+    female = sex == "female"
+    norm = np.where(female, norms["female"][age_idx], norms["male"][age_idx])
+    chair = _column(df, "chair_stand_30s", n)
+    mg = _column(df, "glucocorticoids_mg_per_day", n)
+    months = _column(df, "glucocorticoids_months", n)
+    falls = _column(df, "falls_past_year", n)
+    pain = _column(df, "pain_score", n)
+    feats: dict[str, np.ndarray] = {
+        "age_years": age,
+        "sex": sex,
+        "body_mass_kg": mass,
+        "bmi": _bmi(mass, height),
+        "lowest_t_score": lowest,
+        "t_score_measured": ~np.isnan(lowest),
+        "falls_past_year": np.nan_to_num(falls, nan=0.0),
+        "timed_up_and_go_s": _column(df, "timed_up_and_go_s", n),
+        "tandem_stance_s": _column(df, "tandem_stance_s", n),
+        "chair_stand_30s": chair,
+        "chair_stand_norm_low": norm,
+        "chair_stand_below_norm": chair < norm,  # NaN on either side compares False
+        "glucocorticoid_mg_per_day": np.where(np.isnan(mg) | np.isnan(months), 0.0, mg),
+        "glucocorticoid_months": np.where(np.isnan(mg) | np.isnan(months), 0.0, months),
+        "pain_score": np.nan_to_num(pain, nan=0.0),
+    }
+    feats.update(_fracture_features(df, n, fractures))
+    feats.update(_condition_features(_text_column(df, "conditions", n, raw=True)))
+    return feats, tscores
+
+
+def _lowest_site(tscores: list[np.ndarray], lowest: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Each row's lowest T-score and its site (first site in T_SCORE_SITES order on ties; NaN
+    and None when none was measured), from the per-site T-score columns and their minimum."""
+    idx = np.full(len(lowest), len(T_SCORE_SITES), dtype=np.intp)
+    value = np.full(len(lowest), np.nan)
+    for j in reversed(range(len(T_SCORE_SITES))):
+        first = tscores[j] == lowest                   # NaN never compares equal
+        idx = np.where(first, j, idx)
+        value = np.where(first, tscores[j], value)
+    return value, np.array([*T_SCORE_SITES, None], dtype=object)[idx]
