@@ -68,9 +68,9 @@ DEMO_RECORDS: list[dict] = [
 
 def _planner():
     try:
-        from .planner import build_plan
+        from .planning import build_plan
     except ImportError as exc:
-        if exc.name not in ("prescribe.planner",):
+        if exc.name not in ("prescribe.planning",):
             raise
         return None
     return build_plan

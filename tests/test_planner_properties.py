@@ -23,8 +23,8 @@ from hypothesis import strategies as st
 
 from prescribe.errors import PlanRequestRefused
 from prescribe.plan_schema import parse_plan
-from prescribe.planner import PlanOptions, build_plan, check_plan
-from prescribe.planner_rules import load_template
+from prescribe.planning import PlanOptions, build_plan, check_plan
+from prescribe.planning.rules import load_template
 from prescribe.records import CONDITIONS, FRACTURE_SITES, parse_record
 from prescribe.screening import screen
 from strategies import valid_records

@@ -13,7 +13,7 @@ from ..plan_schema import Plan, parse_plan
 
 def assert_program_safe(plan: Plan | dict, screening=None, *, door: str = "", record=None) -> Plan:
     """Return the validated plan, or raise UnsafeProgram when the safety check finds a violation."""
-    from ..safety import assert_safe
+    from ..planning.safety import assert_safe
     parsed = plan if isinstance(plan, Plan) else parse_plan(plan, source=door or None)
     assert_safe(parsed, screening, door=door, record=record)
     return parsed

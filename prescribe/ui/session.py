@@ -135,8 +135,8 @@ class ClinicSession:
             self.refusal = "Enter and check the person's details first."
             return False
         try:
-            build_plan, plan_options = _api("planner", "build_plan"), _api("planner", "PlanOptions")
-            replace, assert_safe = _api("planner", "replace_exercise"), _api("safety", "assert_safe")
+            build_plan, plan_options = _api("planning", "build_plan"), _api("planning", "PlanOptions")
+            replace, assert_safe = _api("planning", "replace_exercise"), _api("planning.safety", "assert_safe")
         except EngineMissing as exc:
             self.refusal = f"The program cannot be built here: {exc}."
             return False
@@ -194,7 +194,7 @@ class ClinicSession:
 
     def session_choices(self, kind: str) -> list[int]:
         """The sessions a week the planner accepts for ``kind`` (impact, resistance, balance)."""
-        from ..option_limits import OPTION_RANGES  # not the planner: this runs while the page opens
+        from ..planning.options import OPTION_RANGES  # not the planner: this runs while the page opens
 
         low, high = OPTION_RANGES[f"{kind}_sessions_per_week"]
         return list(range(low, high + 1))
@@ -210,7 +210,7 @@ class ClinicSession:
         if merge:
             self.refusal = merge
             return False
-        replace, assert_safe = _api("planner", "replace_exercise"), _api("safety", "assert_safe")
+        replace, assert_safe = _api("planning", "replace_exercise"), _api("planning.safety", "assert_safe")
 
         def make():
             plan = replace(self.plan, old_id, new_id)
@@ -235,7 +235,7 @@ class ClinicSession:
             return None, None
         ref = f"{tpl.name}@{tpl.version}"
         try:
-            from ..template_library import resolve
+            from ..clinic.template_library import resolve
             return resolve(ref, self.store, purpose="plan").template(), None
         except (InputError, PrescribeError) as exc:
             return None, (f"The program was built from template {ref}, which can no longer build programs "
@@ -279,7 +279,7 @@ class ClinicSession:
     @property
     def is_draft(self) -> bool:
         """True while the program is a draft: the screening refers the person and no clearance is recorded."""
-        return self.plan is not None and _api("safety", "is_draft")(self.plan)
+        return self.plan is not None and _api("planning.safety", "is_draft")(self.plan)
 
     def clear(self, clinician: str) -> bool:
         """Record that ``clinician`` has cleared this person for the program (who and when).
@@ -291,7 +291,7 @@ class ClinicSession:
             self.refusal = "Build a program first."
             return False
         try:
-            plan = _api("safety", "record_clearance")(self.plan, clinician)
+            plan = _api("planning.safety", "record_clearance")(self.plan, clinician)
         except InputError as exc:
             self.refusal = f"Not cleared: {exc}"
             return False
@@ -303,7 +303,7 @@ class ClinicSession:
         """``plan`` with this visit's recorded clearance, if any."""
         if self.clearance is None:
             return plan
-        return _api("safety", "record_clearance")(plan, *self.clearance)
+        return _api("planning.safety", "record_clearance")(plan, *self.clearance)
 
     def exclude(self, exercise_id: str) -> bool:
         """Leave ``exercise_id`` out of the program (the planner picks what replaces it)."""
@@ -359,7 +359,7 @@ class ClinicSession:
         if self.plan is None:
             return []
         try:
-            frame = _api("planner", "weekly_summary")(self.plan)
+            frame = _api("tables", "weekly_summary")(self.plan)
             return frame.to_dict(orient="records")
         except (EngineMissing, AttributeError):
             s = self.chart_series()
@@ -386,7 +386,7 @@ class ClinicSession:
         if self.plan is None:
             raise InputError.single("program", None, "a built program (check the person's details first)")
         # A handout is a door too: the program is checked before anything is printed.
-        _api("safety", "assert_safe")(self.plan, self.screening, door="handout", record=self.record)
+        _api("planning.safety", "assert_safe")(self.plan, self.screening, door="handout", record=self.record)
         sensor = self.latest_sensor_summary()  # the clinician's page shows it when there is one
         if fmt == "pdf":
             return _api("handout", "render_pdf")(self.plan, audience=audience, paper=paper, sensor_summary=sensor,
@@ -504,15 +504,15 @@ class ClinicSession:
         self.plan = parse_plan(self.store.get_program(patient_id, version), source=f"saved program of {patient_id}")
         # What the clinician chose for the saved program, so a change rebuilds that program
         # with one difference rather than the planner's defaults.
-        self.options = dict(_api("planner", "fixed_options")(self.plan))
-        self.swaps = list(_api("planner", "plan_swaps")(self.plan))
+        self.options = dict(_api("planning", "fixed_options")(self.plan))
+        self.swaps = list(_api("planning", "plan_swaps")(self.plan))
         self.saved_version = int(latest)
         self.clearance = ((self.plan.cleared_by, self.plan.cleared_at)
                           if self.plan.cleared_by and self.plan.cleared_at else None)
         self.start_date = self.plan.start_date
         self.refusal = None
         try:  # a stored program from an older version may break a rule added since: say so
-            _api("safety", "assert_safe")(self.plan, self.screening, door="saved program", record=self.record)
+            _api("planning.safety", "assert_safe")(self.plan, self.screening, door="saved program", record=self.record)
         except PlanRequestRefused as exc:
             self.refusal = ("This saved program breaks a safety rule; change it before printing or saving. "
                             + self.plain_refusal(exc))

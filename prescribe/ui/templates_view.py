@@ -65,7 +65,7 @@ def program_notice_html(session) -> str:
     plan = getattr(session, "plan", None)
     if plan is None or getattr(session, "store_url", None) is None:
         return ""
-    from ..template_library import program_template_notice
+    from ..clinic.template_library import program_template_notice
     try:
         text = program_template_notice(plan, session.store)
     except PrescribeError:
@@ -77,7 +77,7 @@ class TemplatesView:
     """The clinic lead's section over a :class:`~prescribe.ui.session.ClinicSession` (its store)."""
 
     def __init__(self, session) -> None:
-        from ..planner_rules import CERTAINTY_LEVELS, template_fields
+        from ..planning.rules import CERTAINTY_LEVELS, template_fields
 
         self.session = session
         self.fields = template_fields()
@@ -251,7 +251,7 @@ class TemplatesView:
         self._run("Listing the templates", self._refresh)
 
     def _refresh(self) -> None:
-        from ..template_library import list_versions
+        from ..clinic.template_library import list_versions
 
         versions = list_versions(self.store)
         self.versions = versions
@@ -278,7 +278,7 @@ class TemplatesView:
         self._run("Showing the template", self._open, self.select.value)
 
     def _open(self, ref: str) -> None:
-        from ..template_library import resolve
+        from ..clinic.template_library import resolve
 
         tv = resolve(ref, self.store, purpose="read", field="template")
         self.current = tv
@@ -362,7 +362,7 @@ class TemplatesView:
         return self._run("Checking the template", self._check)
 
     def _check(self) -> dict:
-        from ..template_library import check_document
+        from ..clinic.template_library import check_document
 
         doc = self.document()
         report = check_document(doc, random_people=20)
@@ -387,7 +387,7 @@ class TemplatesView:
         return self._run("Saving the draft", self._save)
 
     def _save(self):
-        from ..template_library import add_document, field_problems
+        from ..clinic.template_library import add_document, field_problems
 
         who = self._who()
         doc = self.document()
@@ -442,8 +442,8 @@ class TemplatesView:
         return self._run("Comparing", self._compare)
 
     def _compare(self) -> dict:
-        from ..template_library import resolve
-        from ..template_review import compare_templates
+        from ..clinic.template_library import resolve
+        from ..planning.templates import compare_templates
 
         a = resolve(self.compare_a.value, self.store, purpose="read", field="A")
         b = resolve(self.compare_b.value, self.store, purpose="read", field="B")
@@ -500,8 +500,8 @@ class TemplatesView:
         return self._run("Running the what-if", self._whatif)
 
     def _whatif(self):
-        from ..caseload import whatif
-        from ..template_library import resolve
+        from ..clinic.caseload import whatif
+        from ..clinic.template_library import resolve
 
         rules = None
         folder = self.whatif_rules.value.strip()

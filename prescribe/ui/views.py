@@ -438,7 +438,7 @@ class ClinicApp:
     def warm_up(self) -> None:
         """Load the charts, the engines and the list of saved people."""
         import importlib
-        for module in ("prescribe.screening", "prescribe.planner"):
+        for module in ("prescribe.screening", "prescribe.planning.builder"):
             try:
                 importlib.import_module(module)
             except ModuleNotFoundError:

@@ -29,10 +29,10 @@ from typing import Any, Callable, Iterable
 import numpy as np
 import pandas as pd
 
-from .batch_io import (RECORD_COLUMNS, _FLOAT_COLUMNS, _TEXT_COLUMNS, _atomic_write, _fmt, format_fractures,
+from ..batch_io import (RECORD_COLUMNS, _FLOAT_COLUMNS, _TEXT_COLUMNS, _atomic_write, _fmt, format_fractures,
                        spreadsheet_text)
-from .cautions import with_standard
-from .records import T_SCORE_SITES
+from ..cautions import with_standard
+from ..records import T_SCORE_SITES
 
 #: Screening fields a what-if compares (list fields as sorted lists); ``flags`` are rule ids.
 SCREENING_FIELDS = ("bone_density_category", "falls_risk", "max_impact_level", "avoid", "refer",
@@ -208,9 +208,9 @@ def plan_key(record, screening) -> tuple:
 
 
 def _program_figures(record, screening, tpl, catalogue, cache: dict | None) -> dict:
-    from .errors import PlanRequestRefused, PrescribeError
-    from .planner import PlanOptions, build_plan
-    from .template_review import plan_figures, safety_violations
+    from ..errors import PlanRequestRefused, PrescribeError
+    from ..planning import PlanOptions, build_plan
+    from ..planning.templates import plan_figures, safety_violations
 
     key = None
     if cache is not None:
@@ -245,7 +245,7 @@ def whatif(store, *, rules=None, rules_label: str | None = None, template=None, 
     Returns a :class:`WhatIf` listing only the people with at least one changed field.
     ``progress(done, total)`` is called as people are done.
     """
-    from .screening import RULESET_VERSION, results_from_frame, screen_batch
+    from ..screening import RULESET_VERSION, results_from_frame, screen_batch
 
     people = store.caseload()
     dicts = [d for _, d in people]
@@ -261,9 +261,9 @@ def whatif(store, *, rules=None, rules_label: str | None = None, template=None, 
         if progress:
             progress(total, total)
     else:
-        from .catalogue import default_catalogue
-        from .planner_rules import load_template
-        from .records import parse_record
+        from ..catalogue import default_catalogue
+        from ..planning.rules import load_template
+        from ..records import parse_record
         from .template_library import resolve
 
         catalogue = default_catalogue()

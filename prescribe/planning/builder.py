@@ -1,47 +1,4 @@
-"""The graded progression planner: a person's record and screening -> a weekly program.
-
-The planner turns a :class:`~prescribe.records.PatientRecord` and its
-:class:`~prescribe.records.ScreeningResult` into a :class:`~prescribe.plan_schema.Plan`:
-week by week, impact, resistance and balance sessions, progressed the way bone
-adapts.  The plan format is documented in ``docs/plan.md``.
-
-The progression rules, each enforced here and checked by :func:`check_plan`:
-
-1. Never above the screening's ``max_impact_level``; never an exercise whose
-   movement patterns are in the screening's ``avoid`` list.
-2. Impact work starts at or below the person's tolerance and steps up one impact
-   level at a time, only after the current level has been held at full volume
-   (common practice).
-3. The weak window: counting a step-up week as week 1, weeks 3, 4 and 5 carry no
-   higher impact level and no more impacts a session than week 2 (resorption
-   precedes formation after a new stimulus: Eriksen 1986, Endocr Rev 7:379;
-   Heaney, Yates & Santora 1997, J Bone Miner Res 12:1143).  The first week of
-   the program counts as a step-up from no impact training.
-4. Impacts a session build toward 50-100 and stay at or below 100 unless a
-   template says otherwise with a reason; more than 50 in a day are split into
-   bouts at least 4 h apart (Robling, Burr & Turner 2001, J Exp Biol
-   204:3389-3399: about 8 h restores mechanosensitivity).
-5. From moderate impact (level 2) on, each week's impact work loads the skeleton
-   in at least two directions (Turner 1998, Bone 23:399-407: unusual strain
-   distributions are more osteogenic).
-6. Resistance work begins with a technique phase and, where screening allows,
-   progresses toward 5 x 5 at 80-85% 1RM (Watson et al. 2018, J Bone Miner Res
-   33:211-220; Beck et al. 2017, J Sci Med Sport 20(5):438-445), each barbell
-   lift practised at a light load for 4 weeks before it is loaded; after a
-   vertebral fracture or with high vertebral risk it keeps spine-sparing
-   variants (Giangregorio et al. 2014, Osteoporos Int 25:821-835) dosed by
-   effort and progressed toward 8-12RM (Brooke-Wavell et al. 2022); a frail
-   person does sit-to-stand before any loaded squat (common practice).  A
-   week's % 1RM is the highest its exercises are given.
-7. Balance work at least twice a week, first and more when falls risk is flagged
-   (Giangregorio et al. 2014).
-
-Session counts default to 3 impact, 3 balance and 2 resistance sessions a week
-(Kohrt et al. 2004, Med Sci Sports Exerc 36:1985-1996; Beck et al. 2017).
-
-This is decision support: every plan carries the standard cautions and must be
-reviewed by a licensed clinician.
-"""
+"""The builder: a record, its screening and the options -> a validated :class:`~prescribe.plan_schema.Plan`."""
 
 from __future__ import annotations
 
@@ -52,31 +9,24 @@ from datetime import datetime, timezone
 from functools import lru_cache
 from typing import Any, Iterable
 
-import pandas as pd
 from pydantic import BaseModel, ConfigDict, Field, ValidationError
 
-from . import __version__
-from .cautions import with_standard
-from .dose import daily_osteogenic_index, osteogenic_index
-from .errors import FieldProblem, InputError, PlanRequestRefused
-from .catalogue import IMPACT_LEVEL_LABELS
-from .plan_schema import (PLAN_FORMAT_VERSION, Plan, PlannedExercise, PlannedSession, PlannedWeek,
+from .. import __version__
+from ..cautions import with_standard
+from ..dose import daily_osteogenic_index, osteogenic_index
+from ..errors import FieldProblem, InputError, PlanRequestRefused
+from ..catalogue import IMPACT_LEVEL_LABELS
+from ..plan_schema import (PLAN_FORMAT_VERSION, Plan, PlannedExercise, PlannedSession, PlannedWeek,
                           in_weak_window)
-from .planner_rules import IMPACTS_CEILING, ResistancePhase, Template, load_template, template_names
-from .option_limits import OPTION_DEFAULTS, OPTION_RANGES
-from .records import PatientRecord, ScreeningResult
+from .rules import IMPACTS_CEILING, ResistancePhase, Template, load_template, template_names
+from .options import OPTION_DEFAULTS, OPTION_RANGES
+from ..records import PatientRecord, ScreeningResult
 from .safety import SUPERVISED_FROM_PCT_1RM, pct_1rm as _pct_1rm
 
-__all__ = ["PlanOptions", "build_plan", "weekly_summary", "check_plan", "replace_exercise", "prescribed_pct_1rm",
-           "reassessment_weeks", "option_range", "fixed_options", "plan_swaps", "IMPACT_LABELS",
-           "SUMMARY_COLUMNS"]
+__all__ = ["PlanOptions", "build_plan", "check_plan", "replace_exercise", "prescribed_pct_1rm",
+           "reassessment_weeks", "option_range", "fixed_options", "plan_swaps", "IMPACT_LABELS"]
 
 IMPACT_LABELS = IMPACT_LEVEL_LABELS  # the catalogue's, next to the level boundaries
-
-#: Columns of :func:`weekly_summary`, in order.
-SUMMARY_COLUMNS: list[str] = ["week", "phase", "impact_level", "impacts_per_session", "sessions",
-                              "weekly_osteogenic_index", "weak_window", "reassessment",
-                              "resistance_intensity_pct_1rm"]
 
 # --- sources the plan cites (only those actually used go into plan.sources) --------------
 SRC_KOHRT = "Kohrt et al. 2004, Med Sci Sports Exerc 36:1985-1996 (ACSM position stand: weight-bearing 3-5 and resistance 2-3 times a week)"
@@ -397,7 +347,7 @@ def _frail(record: PatientRecord, screening: ScreeningResult) -> bool:
         return True
     if record.chair_stand_30s is None:
         return False
-    from .screening import chair_stand_norm_low
+    from ..screening import chair_stand_norm_low
     low = chair_stand_norm_low(record.age_years, record.sex)
     return low is not None and record.chair_stand_30s < low
 
@@ -973,7 +923,7 @@ def _views_by_id(pool: Iterable[_Ex], ids: set[str]) -> list[_Ex]:
 @lru_cache(maxsize=1)
 def _ruleset_version() -> str:
     try:
-        from .screening import RULESET_VERSION
+        from ..screening import RULESET_VERSION
     except ImportError:  # the screening engine is optional for a caller giving a screening
         return "unknown"
     return str(RULESET_VERSION)
@@ -1034,7 +984,7 @@ def build_plan(record: PatientRecord, screening: ScreeningResult | None = None,
         # as the safety check does (docs/safety.md).
         screening = strictest_screening(screening, rescreen(record))
     if catalogue is None:
-        from .catalogue import default_catalogue
+        from ..catalogue import default_catalogue
         catalogue = default_catalogue()
     tpl = template if template is not None else load_template(options.template or _default_template(record))
     created = created or datetime.now(timezone.utc).replace(microsecond=0).isoformat()
@@ -1074,23 +1024,6 @@ def _assemble(data: dict) -> Plan:
 # =========================================================================================
 # Reading and checking plans
 # =========================================================================================
-
-def weekly_summary(plan: Plan) -> pd.DataFrame:
-    """One row a week: the columns of :data:`SUMMARY_COLUMNS` (``sessions`` is a count)."""
-    rows = []
-    for w in plan.weeks:
-        weekly_oi = w.weekly_osteogenic_index
-        rows.append({
-            "week": w.week, "phase": w.phase, "impact_level": w.impact_level,
-            "impacts_per_session": w.impacts_per_session, "sessions": len(w.sessions),
-            "weekly_osteogenic_index": round(sum(s.osteogenic_index for s in w.sessions), 2)
-            if weekly_oi is None else weekly_oi,
-            "weak_window": bool(w.weak_window), "reassessment": w.reassessment,
-            # Read from the exercises, so a week never states more than it prescribes.
-            "resistance_intensity_pct_1rm": prescribed_pct_1rm(x for s in w.sessions for x in s.exercises),
-        })
-    return pd.DataFrame(rows, columns=SUMMARY_COLUMNS)
-
 
 #: The rule number of docs/plan.md each rule of :mod:`prescribe.safety` belongs to (for check_plan's text).
 _PLAN_RULE_NUMBER = {
@@ -1136,7 +1069,7 @@ def replace_exercise(plan: Plan, old_id: str, new_id: str, catalogue=None) -> Pl
         (an :class:`InputError` and a :class:`PlanRequestRefused`).
     """
     if catalogue is None:
-        from .catalogue import default_catalogue
+        from ..catalogue import default_catalogue
         catalogue = default_catalogue()
     by_id = {e.exercise_id: e for e in _views(catalogue)}
     if new_id not in by_id:

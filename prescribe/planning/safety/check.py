@@ -25,10 +25,10 @@ from dataclasses import dataclass, field
 from functools import lru_cache
 from typing import Callable, Iterable, Iterator
 
-from .catalogue import IMPACT_LEVEL_LABELS
-from .errors import UnsafeProgram
-from .plan_schema import Plan, weak_window_weeks
-from .records import PatientRecord, ScreeningResult
+from ...catalogue import IMPACT_LEVEL_LABELS
+from ...errors import UnsafeProgram
+from ...plan_schema import Plan, weak_window_weeks
+from ...records import PatientRecord, ScreeningResult
 
 __all__ = ["SafetyViolation", "Limits", "Rule", "RULES", "check_program", "assert_safe", "limits_for",
            "strictest_screening", "rescreen", "pct_1rm", "rpe_top", "SUPERVISED_FROM_PCT_1RM",
@@ -927,8 +927,8 @@ def rescreen(record: PatientRecord) -> ScreeningResult:
 
 @lru_cache(maxsize=256)
 def _rescreen_json(text: str) -> ScreeningResult:
-    from .records import PatientRecord as _Record
-    from .screening import screen
+    from ...records import PatientRecord as _Record
+    from ...screening import screen
     return screen(_Record.model_validate_json(text))
 
 
@@ -952,7 +952,7 @@ def check_program(plan: Plan, screening: ScreeningResult | None = None, *, catal
         A subset of :data:`RULES` (default: all).
     """
     if catalogue is None:
-        from .catalogue import default_catalogue
+        from ...catalogue import default_catalogue
         catalogue = default_catalogue()
     limits = limits_for(plan, screening, record=record)
     facts = _Facts(plan, limits, catalogue, record)
@@ -994,7 +994,7 @@ def record_clearance(plan: Plan, cleared_by: str, cleared_at: str | None = None)
     """
     from datetime import datetime, timezone
 
-    from .errors import InputError
+    from ...errors import InputError
 
     who = cleared_by.strip() if isinstance(cleared_by, str) else cleared_by
     if not isinstance(who, str) or not 1 <= len(who) <= 120 or not who.isprintable():

@@ -29,10 +29,10 @@ from typing import Any, Iterable
 
 import numpy as np
 
-from .cautions import with_standard
-from .errors import PlanRequestRefused, PrescribeError
-from .planner_rules import Template
-from .records import CONDITIONS, PatientRecord, ScreeningResult, parse_record
+from ..cautions import with_standard
+from ..errors import PlanRequestRefused, PrescribeError
+from .rules import Template
+from ..records import CONDITIONS, PatientRecord, ScreeningResult, parse_record
 
 # =========================================================================================
 # The reference panel: invented people
@@ -107,7 +107,7 @@ def random_records(n: int, seed: int = 2026) -> list[PatientRecord]:
     safety check meets combinations that the panel does not list.
     """
     if isinstance(n, bool) or not isinstance(n, int) or n < 0:
-        from .errors import InputError
+        from ..errors import InputError
         raise InputError.single("random people", n, "a whole number of 0 or more")
     rng = np.random.default_rng(seed)
     sites = ("vertebra", "hip", "wrist", "humerus", "pelvis", "rib", "other")
@@ -157,7 +157,7 @@ def safety_violations(plan, screening: ScreeningResult | None = None) -> list[di
         return [{"rule": str(v.rule), "week": v.week, "exercise_id": v.exercise_id, "message": str(v.message),
                  "allowed": str(getattr(v, "allowed", "") or ""), "source": str(getattr(v, "source", "") or "")}
                 for v in check_program(plan, screening)]
-    from .planner import check_plan
+    from .builder import check_plan
     out = []
     for text in check_plan(plan, screening):
         m = _RULE_WEEK.match(text)
@@ -224,11 +224,11 @@ def panel_outcomes(tpl: Template, records: Iterable[PatientRecord], screenings: 
     A program the planner refuses, or one that breaks a safety rule, gives refusals
     naming the rule, the person and the week; nothing raises for a clinical reason.
     """
-    from .planner import PlanOptions, build_plan
-    from .screening import screen
+    from .builder import PlanOptions, build_plan
+    from ..screening import screen
 
     if catalogue is None:
-        from .catalogue import default_catalogue
+        from ..catalogue import default_catalogue
         catalogue = default_catalogue()
     screenings = {} if screenings is None else screenings
     options = PlanOptions(weeks=weeks)
