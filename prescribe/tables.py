@@ -9,7 +9,7 @@ from __future__ import annotations
 import pandas as pd
 
 from .plan_schema import Plan
-from .planning.builder import prescribed_pct_1rm
+from .planning.dosing import prescribed_pct_1rm
 
 __all__ = ["weekly_summary", "SUMMARY_COLUMNS"]
 

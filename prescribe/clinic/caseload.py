@@ -37,7 +37,7 @@ from ..records import T_SCORE_SITES
 #: Screening fields a what-if compares (list fields as sorted lists); ``flags`` are rule ids.
 SCREENING_FIELDS = ("bone_density_category", "falls_risk", "max_impact_level", "avoid", "refer",
                     "balance_first", "supervision", "flags")
-#: Program fields a what-if compares (see :func:`prescribe.template_review.plan_figures`).
+#: Program fields a what-if compares (see :func:`prescribe.planning.templates.plan_figures`).
 PROGRAM_FIELDS = ("top_impact_level", "weeks_to_full_volume", "peak_impacts", "peak_intensity_pct_1rm",
                   "total_osteogenic_index", "spine_sparing", "refusals")
 
@@ -240,7 +240,7 @@ def _program_figures(record, screening, tpl, catalogue, cache: dict | None) -> d
 def whatif(store, *, rules=None, rules_label: str | None = None, template=None, template_label: str | None = None,
            progress: Progress | None = None, use_cache: bool = True) -> WhatIf:
     """Who in the store would change under a draft rule library (``rules``, a RuleSet)
-    and/or a template (``template``, a :class:`~prescribe.template_library.TemplateVersion`).
+    and/or a template (``template``, a :class:`~prescribe.clinic.template_library.TemplateVersion`).
 
     Returns a :class:`WhatIf` listing only the people with at least one changed field.
     ``progress(done, total)`` is called as people are done.

@@ -12,7 +12,7 @@ versions can build programs (:func:`resolve` with ``purpose="plan"``); drafts an
 retired versions are refused with a message saying which versions can be used.
 
 This module sits beside the store (it reads and writes it); the domain checks it
-calls live in :mod:`prescribe.planner_rules` and :mod:`prescribe.template_review`.
+calls live in :mod:`prescribe.planning.rules` and :mod:`prescribe.planning.templates`.
 """
 
 from __future__ import annotations

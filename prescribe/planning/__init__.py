@@ -46,7 +46,13 @@ The package, one concern a module:
 
 - :mod:`.options`: the options the clinician fixes (:class:`PlanOptions`), their bounds and defaults;
 - :mod:`.rules`: the planner's rules table, as templates (``data/templates/*.toml``) with sources;
-- :mod:`.builder`: :func:`build_plan` and the thin :func:`check_plan`;
+- :mod:`.sources`: the sources a plan cites and the planner's fixed numbers;
+- :mod:`.selection`: which exercises (impact in two directions, resistance chains, balance);
+- :mod:`.progression`: week by week (impact levels and volumes, resistance phases, weeks 3-5);
+- :mod:`.dosing`: what each exercise of a session is given, and the session's osteogenic index;
+- :mod:`.layout`: the days of a week and what each session holds;
+- :mod:`.builder`: :func:`build_plan` (the builder joining the above) and the thin :func:`check_plan`;
+- :mod:`.editing`: swaps (:func:`replace_exercise`) and the options and swaps a plan was made with;
 - :mod:`.safety`: the one safety check of every program, its rules one function each;
 - :mod:`.templates`: the reference panel, template checks and comparison.
 
@@ -62,10 +68,10 @@ import importlib
 
 #: public name -> the module of this package that defines it
 _PUBLIC: dict[str, str] = {
-    "PlanOptions": "builder", "option_range": "builder", "fixed_options": "builder", "plan_swaps": "builder",
-    "build_plan": "builder", "check_plan": "builder", "replace_exercise": "builder",
-    "prescribed_pct_1rm": "builder", "reassessment_weeks": "builder", "IMPACT_LABELS": "builder",
-    "LIFT_PRACTICE_WEEKS": "builder",
+    "PlanOptions": "options", "option_range": "options", "OPTION_RANGES": "options", "OPTION_DEFAULTS": "options",
+    "build_plan": "builder", "check_plan": "builder", "IMPACT_LABELS": "builder",
+    "replace_exercise": "editing", "fixed_options": "editing", "plan_swaps": "editing",
+    "prescribed_pct_1rm": "dosing", "reassessment_weeks": "progression", "LIFT_PRACTICE_WEEKS": "sources",
 }
 
 __all__ = sorted(_PUBLIC)

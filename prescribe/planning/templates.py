@@ -1,7 +1,7 @@
 """Reviewing a program template before a clinic uses it: checks, a reference panel, comparison.
 
 Domain code only (no store, no widgets): the clinic lead's tools in
-:mod:`prescribe.template_library`, the command line and the app call these.
+:mod:`prescribe.clinic.template_library`, the command line and the app call these.
 
 - :data:`REFERENCE_PANEL`: twenty invented people covering the usual kinds of people a
   bone-health exercise service sees (osteopenia, osteoporosis, vertebral fracture,
@@ -147,7 +147,7 @@ def safety_violations(plan, screening: ScreeningResult | None = None) -> list[di
     """The safety rules a program breaks, each ``{rule, week, exercise_id, message, allowed, source}``.
 
     One function, so the shared safety check is used wherever it is installed
-    (:func:`prescribe.safety.check_program`), and the planner's own check otherwise.
+    (:func:`prescribe.planning.safety.check_program`), and the planner's own check otherwise.
     """
     try:
         from .safety import check_program  # type: ignore[attr-defined]
