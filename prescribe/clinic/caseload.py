@@ -1,6 +1,6 @@
 """The stored caseload as a batch file, and what a rule or template change would do to it.
 
-- :func:`export_rows` / :func:`write_caseload_csv`: the store's people as the batch CSV
+- :func:`record_row` / :func:`write_caseload_csv`: the store's people as the batch CSV
   that ``prescribe screen --batch`` reads (``docs/rules.md``).
 - :func:`whatif`: re-screen everyone under a draft rule library and/or re-plan them
   under a template, and list only the people whose screening or program would change,

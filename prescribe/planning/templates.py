@@ -140,32 +140,17 @@ def random_records(n: int, seed: int = 2026) -> list[PatientRecord]:
 # Safety check and the figures of one program
 # =========================================================================================
 
-_RULE_WEEK = re.compile(r"^(rule \d+):\s*week (\d+)")
-
-
 def safety_violations(plan, screening: ScreeningResult | None = None) -> list[dict]:
     """The safety rules a program breaks, each ``{rule, week, exercise_id, message, allowed, source}``.
 
-    One function, so the shared safety check is used wherever it is installed
-    (:func:`prescribe.planning.safety.check_program`), and the planner's own check otherwise.
+    One function, so the shared safety check (:func:`prescribe.planning.safety.check_program`)
+    is used wherever a template is reviewed.
     """
-    try:
-        from .safety import check_program  # type: ignore[attr-defined]
-    except ImportError:
-        check_program = None
-    if check_program is not None:
-        return [{"rule": str(v.rule), "week": v.week, "exercise_id": v.exercise_id, "message": str(v.message),
-                 "allowed": str(getattr(v, "allowed", "") or ""), "source": str(getattr(v, "source", "") or "")}
-                for v in check_program(plan, screening)]
-    from .builder import check_plan
-    out = []
-    for text in check_plan(plan, screening):
-        m = _RULE_WEEK.match(text)
-        exercise = next((x.exercise_id for w in plan.weeks for s in w.sessions for x in s.exercises
-                         if x.exercise_id in text), None)
-        out.append({"rule": m.group(1) if m else text.split(":", 1)[0], "week": int(m.group(2)) if m else None,
-                    "exercise_id": exercise, "message": text, "allowed": "", "source": ""})
-    return out
+    from .safety import check_program
+
+    return [{"rule": str(v.rule), "week": v.week, "exercise_id": v.exercise_id, "message": str(v.message),
+             "allowed": str(getattr(v, "allowed", "") or ""), "source": str(getattr(v, "source", "") or "")}
+            for v in check_program(plan, screening)]
 
 
 def _full_volume(tpl: Template, level: int) -> float:
