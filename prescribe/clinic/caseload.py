@@ -196,8 +196,8 @@ def plan_key(record, screening) -> tuple:
     balance-first, referral and supervision marks (and its cautions, which are text and
     change no figure), and from the record whether there is a vertebral fracture, whether
     there are two or more low-trauma fractures, and marked thoracic kyphosis
-    (``prescribe/planner.py``); the safety check reads the same screening marks
-    (``prescribe/safety.py``).  A test checks that cached and uncached what-ifs agree.
+    (``prescribe/planning/``); the safety check reads the same screening marks
+    (``prescribe/planning/safety/``).  A test checks that cached and uncached what-ifs agree.
     """
     s = screening
     return (s.bone_density_category, s.max_impact_level, tuple(sorted(s.avoid)), bool(s.falls_risk),

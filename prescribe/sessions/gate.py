@@ -1,6 +1,6 @@
 """The one safety check every program passes before it is saved or applied.
 
-A thin door to :func:`prescribe.safety.assert_safe`, so the session commands call it
+A thin door to :func:`prescribe.planning.safety.assert_safe`, so the session commands call it
 in one place.  A program that breaks a rule is refused with
 :class:`prescribe.errors.UnsafeProgram` (bad input, exit 2) naming the rule, the week,
 the exercise and what is allowed; nothing is stored.
