@@ -36,7 +36,6 @@ IMPACT_LABELS = IMPACT_LEVEL_LABELS  # the catalogue's, next to the level bounda
 class _Builder(_Selection, _Progression, _Dosing, _Layout):
     """Holds one plan's choices; :meth:`build` lays them out week by week and assembles the plan."""
 
-
     def __init__(self, record: PatientRecord, screening: ScreeningResult, options: PlanOptions,
                  catalogue, tpl: Template):
         self.record, self.screening, self.options, self.tpl = record, screening, options, tpl
@@ -75,7 +74,6 @@ class _Builder(_Selection, _Progression, _Dosing, _Layout):
         self._choose_impact()
         self._choose_resistance()
         self._choose_balance()
-
 
     def build(self, created: str) -> dict:
         opts, tpl = self.options, self.tpl
