@@ -23,7 +23,6 @@ from __future__ import annotations
 import contextlib
 import io
 import os
-import resource
 import statistics
 import subprocess
 import sys

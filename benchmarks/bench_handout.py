@@ -31,7 +31,7 @@ sys.path.insert(0, str(ROOT))
 
 from prescribe.handout import render_html, render_pdf  # noqa: E402
 from prescribe.handout.pdf import side_by_side  # noqa: E402
-from prescribe.planner import PlanOptions, build_plan  # noqa: E402
+from prescribe.planning import PlanOptions, build_plan  # noqa: E402
 from prescribe.records import parse_record  # noqa: E402
 from prescribe.settings import Clinic  # noqa: E402
 

@@ -27,7 +27,7 @@ ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 
 from prescribe.plan_schema import parse_plan  # noqa: E402
-from prescribe.planner import build_plan  # noqa: E402
+from prescribe.planning import build_plan  # noqa: E402
 from prescribe.records import CONDITIONS, FRACTURE_SITES, parse_record  # noqa: E402
 from prescribe.screening import screen  # noqa: E402
 

@@ -66,16 +66,6 @@ DEMO_RECORDS: list[dict] = [
 ]
 
 
-def _planner():
-    try:
-        from .planner import build_plan
-    except ImportError as exc:
-        if exc.name not in ("prescribe.planner",):
-            raise
-        return None
-    return build_plan
-
-
 #: Demo programs started this many weeks ago; the first person has their sessions logged.
 DEMO_WEEKS_DONE = 5
 DEMO_SESSIONS_FOR = "DEMO-0001"
@@ -104,14 +94,14 @@ def _seed_sessions(store, pid: str, plan: dict) -> int:
 
 
 def seed(store) -> list[dict]:
-    """Save the demo people (and a first program each, when the planner exists).
+    """Save the demo people and a first program each.
 
     Returns one line a person: what was done (``created`` or ``already present``)
     and the program version saved, if any.  Safe to run again.
     """
+    from .planning import build_plan
     from .screening import screen
 
-    build_plan = _planner()
     done = []
     for data in DEMO_RECORDS:
         record = parse_record(data, source="prescribe.demo")
@@ -126,7 +116,7 @@ def seed(store) -> list[dict]:
             line["person"] = "created"
             line["bone_density_category"] = screening.bone_density_category
         line["program_version"] = store.latest_program_version(pid)
-        if build_plan is not None and line["program_version"] is None:
+        if line["program_version"] is None:
             screening = screening or screen(record)
             try:
                 plan = build_plan(record, screening)
@@ -140,8 +130,6 @@ def seed(store) -> list[dict]:
                 line["program"] = "created"
                 if pid == DEMO_SESSIONS_FOR:
                     line["sessions"] = _seed_sessions(store, pid, plan_dict)
-        elif build_plan is None:
-            line["program"] = "planner not installed"
         done.append(line)
     return done
 

@@ -143,7 +143,7 @@ DEMO_RECORD = {
 
 def planner_plan(weeks: int, record: dict | None = None):
     """A real plan from the planner for the invented demo person."""
-    from prescribe.planner import PlanOptions, build_plan
+    from prescribe.planning import PlanOptions, build_plan
     from prescribe.records import parse_record
 
     return build_plan(parse_record(record or DEMO_RECORD), options=PlanOptions(weeks=weeks),

@@ -5,7 +5,7 @@ from __future__ import annotations
 from datetime import date, timedelta
 from functools import lru_cache
 
-from prescribe.planner import PlanOptions, build_plan
+from prescribe.planning import PlanOptions, build_plan
 from prescribe.records import parse_record
 from prescribe.sessions.engine import LoggedSession
 from prescribe.sessions.records import parse_session

@@ -15,13 +15,13 @@ import pandas as pd
 import pytest
 
 from prescribe.screening.batch_io import read_batch_csv, records_to_frame
-from prescribe.caseload import PROGRAM_FIELDS, SCREENING_FIELDS, frame_from_dicts, whatif
-from prescribe.planner_rules import TEMPLATE_DIR
+from prescribe.clinic.caseload import PROGRAM_FIELDS, SCREENING_FIELDS, frame_from_dicts, whatif
+from prescribe.planning.rules import TEMPLATE_DIR
 from prescribe.screening.rules import DEFAULT_RULES_DIR, load_rules
 from prescribe.screening import screen
 from prescribe.store import open_store
-from prescribe.template_library import add_document, resolve
-from prescribe.template_review import random_records, reference_records
+from prescribe.clinic.template_library import add_document, resolve
+from prescribe.planning.templates import random_records, reference_records
 
 from conftest import run_cli
 
@@ -141,7 +141,7 @@ def test_whatif_command_writes_the_changes_csv(caseload, draft_rules, tmp_path):
 
 def test_text_progress_draws_one_line_and_ends_it():
     import io
-    from prescribe.caseload import text_progress
+    from prescribe.clinic.caseload import text_progress
     out = io.StringIO()
     show = text_progress(out)
     for done in (0, 50, 50, 100):

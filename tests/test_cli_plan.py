@@ -9,7 +9,7 @@ import pytest
 from prescribe.cautions import STANDARD_CAUTIONS
 from prescribe.cli import main
 from prescribe.plan_schema import parse_plan
-from prescribe.planner import check_plan
+from prescribe.planning import check_plan
 
 from conftest import run_cli
 

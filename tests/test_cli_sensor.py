@@ -15,7 +15,7 @@ import numpy as np
 import pytest
 
 from prescribe.cli import main
-from prescribe.planner import build_plan
+from prescribe.planning import build_plan
 from prescribe.records import parse_record
 from prescribe.screening import screen
 from prescribe.sensor.compare import planned_by_date, weak_weeks

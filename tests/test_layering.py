@@ -16,7 +16,8 @@ import prescribe
 FORBIDDEN = ("ipywidgets", "bqplot", "voila")
 #: Modules that must exist: the checks below would be hollow without them.
 CORE = ("prescribe.records", "prescribe.errors", "prescribe.screening.rules", "prescribe.screening",
-        "prescribe.catalogue", "prescribe.loading.dose", "prescribe.loading.mechanics", "prescribe.planner",
+        "prescribe.catalogue", "prescribe.loading.dose", "prescribe.loading.mechanics", "prescribe.planning",
+        "prescribe.planning.safety", "prescribe.planning.options", "prescribe.clinic.caseload",
         "prescribe.handout", "prescribe.store")
 
 
@@ -55,12 +56,17 @@ def test_no_module_outside_ui_imports_widgets():
 #: Modules above the domain: storage, handouts, the app, the command line, and the modules that
 #: compose the domain with the store (the demo, the caseload what-if, the template library).
 ABOVE_DOMAIN = ("prescribe.store", "prescribe.handout", "prescribe.ui", "prescribe.cli")
-COMPOSERS = ("prescribe.demo", "prescribe.caseload", "prescribe.template_library")
+COMPOSERS = ("prescribe.demo", "prescribe.clinic")
+
+
+def _under(name: str, packages: tuple[str, ...]) -> bool:
+    return any(name == p or name.startswith(p + ".") for p in packages)
 
 
 def test_the_domain_never_imports_the_store_the_handout_or_the_app():
-    domain = [m for m in non_ui_modules() if not m.startswith(ABOVE_DOMAIN) and m not in COMPOSERS]
-    assert "prescribe.safety" in domain and "prescribe.planner" in domain
+    domain = [m for m in non_ui_modules() if not _under(m, ABOVE_DOMAIN + COMPOSERS)]
+    assert "prescribe.planning.safety" in domain and "prescribe.planning" in domain
+    assert not any(_under(m, COMPOSERS) for m in domain)
     code = ("import importlib, sys\n"
             f"for name in {domain!r}:\n"
             "    importlib.import_module(name)\n"
@@ -73,7 +79,7 @@ def test_the_domain_never_imports_the_store_the_handout_or_the_app():
 #: What the science of loading may not import: the screening, the planner, the sessions, the
 #: sensors, the store, the handout, the app and the command line (it stands on numpy, the
 #: records, the errors and the exercise catalogue only).
-ABOVE_LOADING = ("prescribe.screening", "prescribe.planning", "prescribe.planner", "prescribe.sessions",
+ABOVE_LOADING = ("prescribe.screening", "prescribe.planning", "prescribe.sessions",
                  "prescribe.sensor", "prescribe.store", "prescribe.handout", "prescribe.ui", "prescribe.cli")
 
 
@@ -139,3 +145,26 @@ def test_no_two_store_modules_import_each_other_in_a_loop():
         if start != "prescribe.store":
             visit(start, [start])
     assert not loops, f"import loops in the store: {loops[0]}"
+def planning_modules() -> list[str]:
+    import prescribe.planning
+    names = [m.name for m in pkgutil.walk_packages(prescribe.planning.__path__, "prescribe.planning.")]
+    return ["prescribe.planning", *sorted(names)]
+
+
+def test_planning_never_imports_pandas():
+    """The planner and its safety check stay free of pandas: tables of a plan are built
+    above them (prescribe.tables), so the planner loads fast in the app and at the command line."""
+    modules = planning_modules()
+    assert {"prescribe.planning.builder", "prescribe.planning.safety", "prescribe.planning.options",
+            "prescribe.planning.templates"} <= set(modules)
+    code = ("import importlib, sys\n"
+            f"for name in {modules!r}:\n"
+            "    importlib.import_module(name)\n"
+            "print(','.join(sorted(m for m in sys.modules if m.split('.')[0] == 'pandas')))")
+    proc = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=300)
+    assert proc.returncode == 0, proc.stderr
+    if proc.stdout.strip():  # name the culprits: import each alone
+        culprits = [m for m in modules if subprocess.run(
+            [sys.executable, "-c", f"import sys, {m}; print('pandas' in sys.modules)"],
+            capture_output=True, text=True, timeout=300).stdout.strip() == "True"]
+        raise AssertionError(f"{', '.join(culprits)} import pandas")

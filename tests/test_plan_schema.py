@@ -70,7 +70,7 @@ def _untyped(model, where="plan"):
 
 def test_every_field_the_planner_writes_is_typed():
     # The planner adds a field only by typing it in plan_schema (docs/plan.md "Unknown fields").
-    from prescribe.planner import PlanOptions, build_plan, replace_exercise
+    from prescribe.planning import PlanOptions, build_plan, replace_exercise
     from prescribe.records import parse_record
 
     record = parse_record({"patient_id": "TYP-0001", "age_years": 63, "sex": "female", "body_mass_kg": 66.0,
@@ -134,8 +134,8 @@ def test_the_weak_window_is_weeks_3_to_5_after_each_step_up():
 
 def test_one_table_of_impact_level_labels():
     import prescribe.handout.content as content
-    import prescribe.planner as planner
-    import prescribe.safety as safety
+    import prescribe.planning as planner
+    import prescribe.planning.safety as safety
     from prescribe.catalogue import IMPACT_LEVEL_LABELS
 
     assert IMPACT_LEVEL_LABELS == {0: "no impact", 1: "low impact", 2: "moderate impact", 3: "high impact"}
@@ -145,7 +145,7 @@ def test_one_table_of_impact_level_labels():
 
 
 def test_the_plan_command_help_states_the_option_table(cli):
-    from prescribe.option_limits import OPTION_DEFAULTS, OPTION_RANGES
+    from prescribe.planning.options import OPTION_DEFAULTS, OPTION_RANGES
 
     done = cli("plan", "--help")
     text = " ".join(done.stdout.split())

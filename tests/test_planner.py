@@ -15,9 +15,9 @@ from prescribe.cautions import STANDARD_CAUTIONS
 from prescribe.catalogue import default_catalogue
 from prescribe.errors import InputError, PlanRequestRefused
 from prescribe.plan_schema import parse_plan
-from prescribe.planner import (SUMMARY_COLUMNS, PlanOptions, build_plan, check_plan, reassessment_weeks,
-                               replace_exercise, weekly_summary)
-from prescribe.planner_rules import TemplateError, load_template, parse_template, template_names
+from prescribe.planning import PlanOptions, build_plan, check_plan, reassessment_weeks, replace_exercise
+from prescribe.tables import SUMMARY_COLUMNS, weekly_summary
+from prescribe.planning.rules import TemplateError, load_template, parse_template, template_names
 from prescribe.records import ScreeningResult, parse_record
 from prescribe.screening import screen
 
@@ -410,7 +410,7 @@ def test_gentle_template_is_slower_and_lower():
 
 def _raw_template():
     import tomllib
-    from prescribe.planner_rules import TEMPLATE_DIR
+    from prescribe.planning.rules import TEMPLATE_DIR
     return tomllib.loads((TEMPLATE_DIR / "standard.toml").read_text(encoding="utf-8"))
 
 
@@ -508,7 +508,7 @@ def test_replace_exercise_keeps_dose_and_checks_rules(osteopenia):
 
 
 def test_swaps_and_fixed_options_are_kept_with_the_plan():
-    from prescribe.planner import fixed_options, plan_swaps, replace_exercise
+    from prescribe.planning import fixed_options, plan_swaps, replace_exercise
 
     record = parse_record({"patient_id": "NTC-0301", "age_years": 64, "sex": "female", "body_mass_kg": 60,
                            "height_cm": 160, "t_scores": {"femoral_neck": -2.1}, "pain_score": 0})

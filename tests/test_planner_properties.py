@@ -1,7 +1,7 @@
 """Property tests: rules 1, 3, 4 and 5 hold in every plan, over 10,000 clinic-like random records
 (with the coverage of moderate and high impact, split bouts and refusals asserted).
 
-Each plan is held to the rules twice: by :func:`prescribe.planner.check_plan` and by
+Each plan is held to the rules twice: by :func:`prescribe.planning.check_plan` and by
 the independent checks written out below, so a bug in one is caught by the other.
 
 Sources of the rules: rule 1, the screening's own limits; rule 3, resorption precedes
@@ -23,8 +23,8 @@ from hypothesis import strategies as st
 
 from prescribe.errors import PlanRequestRefused
 from prescribe.plan_schema import parse_plan
-from prescribe.planner import PlanOptions, build_plan, check_plan
-from prescribe.planner_rules import load_template
+from prescribe.planning import PlanOptions, build_plan, check_plan
+from prescribe.planning.rules import load_template
 from prescribe.records import CONDITIONS, FRACTURE_SITES, parse_record
 from prescribe.screening import screen
 from strategies import valid_records

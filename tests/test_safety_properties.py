@@ -31,8 +31,8 @@ from hypothesis import strategies as st
 from prescribe.catalogue import default_catalogue
 from prescribe.errors import InputError, PlanRequestRefused
 from prescribe.plan_schema import parse_plan
-from prescribe.planner import PlanOptions, build_plan, replace_exercise
-from prescribe.safety import assert_safe, pct_1rm
+from prescribe.planning import PlanOptions, build_plan, replace_exercise
+from prescribe.planning.safety import assert_safe, pct_1rm
 from prescribe.screening import screen
 from test_planner_properties import seeded_options, seeded_record
 

@@ -19,7 +19,7 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from prescribe.plan_schema import parse_plan
-from prescribe.planner import PlanOptions, build_plan, check_plan
+from prescribe.planning import PlanOptions, build_plan, check_plan
 from prescribe.sessions.engine import LoggedSession, assess, step_up_weeks, week_dose, window_position
 from prescribe.sessions.records import SYMPTOMS, parse_session
 from session_support import START
@@ -43,7 +43,7 @@ def _safety(plan: dict) -> list:
     parsed = parse_plan(plan)
     problems = list(check_plan(parsed))
     try:
-        from prescribe.safety import check_program
+        from prescribe.planning.safety import check_program
     except ImportError:
         return problems
     return problems + [v.message for v in check_program(parsed)]

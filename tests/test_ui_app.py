@@ -237,10 +237,10 @@ def test_a_reopened_program_keeps_its_options_and_swaps_when_changed(app, tmp_db
 
 
 def test_session_choices_are_exactly_what_the_planner_accepts(app):
-    from prescribe.planner import PlanOptions
+    from prescribe.planning import PlanOptions
 
     from prescribe.errors import InputError
-    from prescribe.planner import option_range
+    from prescribe.planning import option_range
 
     for kind, dd in app.sessions.items():
         name = f"{kind}_sessions_per_week"

@@ -12,8 +12,8 @@ import tomllib
 
 import pytest
 
-from prescribe.planner_rules import TEMPLATE_DIR, template_fields
-from prescribe.template_review import random_records
+from prescribe.planning.rules import TEMPLATE_DIR, template_fields
+from prescribe.planning.templates import random_records
 from prescribe.ui import ClinicApp, ClinicSession
 from prescribe.ui.templates_view import TemplatesView
 
@@ -129,8 +129,8 @@ def test_the_app_has_the_section_and_marks_a_program_from_a_retired_version(tmp_
     tv.clinician.value = "Lead B"
     tv.on_approve()
     # A program built from clinic_standard@1, saved, then the version retired.
-    from prescribe.planner import build_plan
-    from prescribe.template_library import resolve
+    from prescribe.planning import build_plan
+    from prescribe.clinic.template_library import resolve
     store = app.session.store
     rec = random_records(1, seed=3)[0]
     plan = build_plan(rec, template=resolve("clinic_standard@1", store).template())
@@ -146,8 +146,8 @@ def test_the_app_has_the_section_and_marks_a_program_from_a_retired_version(tmp_
 
 
 def test_a_program_from_a_clinic_template_keeps_it_when_changed_in_the_app(tmp_db):
-    from prescribe.planner import build_plan
-    from prescribe.template_library import resolve
+    from prescribe.planning import build_plan
+    from prescribe.clinic.template_library import resolve
     session = ClinicSession(store_url=tmp_db)
     view = TemplatesView(session)
     view.widget.selected_index = 0

@@ -54,13 +54,7 @@ def build_parser() -> argparse.ArgumentParser:
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
     sub.required = True
     for name in COMMAND_MODULES:
-        try:
-            module = importlib.import_module(f"{__name__}.{name}")
-        except ModuleNotFoundError as exc:
-            if exc.name == f"{__name__}.{name}":
-                continue  # a command not built yet
-            raise
-        module.register(sub)
+        importlib.import_module(f"{__name__}.{name}").register(sub)
     return parser
 
 

@@ -40,7 +40,7 @@ def _open(args):
 
 
 def run_export(args) -> int:
-    from ..caseload import write_caseload_csv
+    from ..clinic.caseload import write_caseload_csv
 
     with _open(args) as store:
         people = store.caseload()
@@ -52,7 +52,7 @@ def run_export(args) -> int:
 
 
 def run_whatif(args) -> int:
-    from ..caseload import text_progress, whatif, write_whatif_csv
+    from ..clinic.caseload import text_progress, whatif, write_whatif_csv
 
     rules = None
     if args.rules:
@@ -64,7 +64,7 @@ def run_whatif(args) -> int:
     with _open(args) as store:
         tv = None
         if args.template:
-            from ..template_library import resolve
+            from ..clinic.template_library import resolve
             tv = resolve(args.template, store, purpose="read", field="--template")
         result = whatif(store, rules=rules, rules_label=args.rules, template=tv,
                         template_label=tv.ref if tv else None, progress=progress)

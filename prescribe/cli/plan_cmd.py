@@ -7,7 +7,7 @@ import sys
 from datetime import date
 
 from ..errors import FieldProblem, InputError
-from ..option_limits import OPTION_DEFAULTS, range_text
+from ..planning.options import OPTION_DEFAULTS, range_text
 from ..plan_schema import parse_day
 from ..records import load_record
 from .output import emit_json, emit_table
@@ -68,7 +68,7 @@ def register(sub) -> None:
 
 
 def _options(args):
-    from ..planner import PlanOptions
+    from ..planning import PlanOptions
 
     given = {"weeks": args.weeks, "start_level": args.start_level,
              "impact_sessions_per_week": args.impact_sessions,
@@ -103,8 +103,8 @@ def resolve_template(ref: str | None, db: str | None):
     """
     if ref is None:
         return None, None
-    from ..planner_rules import template_names
-    from ..template_library import parse_ref, resolve
+    from ..planning.rules import template_names
+    from ..clinic.template_library import parse_ref, resolve
 
     name, _ = parse_ref(ref, "--template")
     if name in template_names():
@@ -122,7 +122,8 @@ def resolve_template(ref: str | None, db: str | None):
 
 
 def run(args) -> int:
-    from ..planner import build_plan, weekly_summary
+    from ..planning import build_plan
+    from ..tables import weekly_summary
     from ..screening import screen
 
     shipped, clinic_template = resolve_template(args.template, args.db)
@@ -130,7 +131,7 @@ def run(args) -> int:
     options = _options(args)
     start = date.today() if args.start_date is None else parse_day(args.start_date, "--start-date")
     record = load_record(args.patient)
-    from ..safety import assert_safe, record_clearance
+    from ..planning.safety import assert_safe, record_clearance
 
     try:
         plan = build_plan(record, screen(record), options, template=clinic_template)

@@ -10,7 +10,6 @@ before the store is written: bad input (exit 2) stores nothing.
 from __future__ import annotations
 
 import json
-import os
 from datetime import date
 from pathlib import Path
 

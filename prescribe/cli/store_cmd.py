@@ -9,7 +9,6 @@ with a message naming the versions.
 from __future__ import annotations
 
 import json
-import sys
 from pathlib import Path
 
 from ..errors import InputError, NotFoundError
@@ -92,7 +91,8 @@ def run_save(args) -> int:
     from ..settings import current_clinician
     clinician = current_clinician(args.clinician)
     record = load_record(args.patient_file)  # bad input stops here, before the store is touched
-    screening, note = _screen(record)
+    from ..screening import screen
+    screening = screen(record)
     plan = None
     if getattr(args, "plan", None):
         from .session_cmd import checked_plan_file
@@ -107,29 +107,12 @@ def run_save(args) -> int:
                                        plan_note="saved with prescribe save --plan",
                                        based_on_version=args.based_on_version)
     out = {**saved, "db": store.where}
-    if screening is not None:
-        out["screening"] = {k: getattr(screening, k) for k in (
-            "bone_density_category", "falls_risk", "max_impact_level", "avoid", "refer", "ruleset_version")}
-        out["screening"]["flags"] = [f.rule for f in screening.flags]
-        out["cautions"] = list(screening.cautions)
-    else:
-        from ..cautions import with_standard
-        out["screening"] = None
-        out["cautions"] = with_standard()
-        print(f"prescribe save: {note}", file=sys.stderr)
+    out["screening"] = {k: getattr(screening, k) for k in (
+        "bone_density_category", "falls_risk", "max_impact_level", "avoid", "refer", "ruleset_version")}
+    out["screening"]["flags"] = [f.rule for f in screening.flags]
+    out["cautions"] = list(screening.cautions)
     emit_json(out)
     return 0
-
-
-def _screen(record):
-    """Screen the record with the rules, when the screening engine is installed."""
-    try:
-        from ..screening import screen
-    except ImportError as exc:
-        if exc.name not in ("prescribe.screening",):
-            raise
-        return None, "the screening engine is not available: the record was stored without a screening"
-    return screen(record), ""
 
 
 def run_export(args) -> int:

@@ -92,7 +92,7 @@ def _maybe_store(args):
 
 
 def _versioned(ref: str) -> tuple[str, int]:
-    from ..template_library import parse_ref
+    from ..clinic.template_library import parse_ref
     name, version = parse_ref(ref)
     if version is None:
         raise InputError.single("NAME@VERSION", ref, "a template name with its version, e.g. clinic_standard@2")
@@ -115,13 +115,13 @@ def _named(ref: str, store):
 
 
 def _clinic_only(name: str, ref: str) -> None:
-    from ..planner_rules import template_names
+    from ..planning.rules import template_names
     if name in template_names():
         raise InputError.single("NAME@VERSION", ref, "a clinic template version (shipped templates are read-only)")
 
 
 def run_list(args) -> int:
-    from ..template_library import list_versions
+    from ..clinic.template_library import list_versions
 
     store = _maybe_store(args)
     try:
@@ -139,7 +139,7 @@ def run_list(args) -> int:
 
 
 def run_show(args) -> int:
-    from ..template_library import document_text, parse_ref, resolve
+    from ..clinic.template_library import document_text, parse_ref, resolve
 
     name, _ = parse_ref(args.ref, "NAME[@VERSION]")
     store = None if _shipped(name) else _maybe_store(args)
@@ -153,12 +153,12 @@ def run_show(args) -> int:
 
 
 def _shipped(name: str) -> bool:
-    from ..planner_rules import template_names
+    from ..planning.rules import template_names
     return name in template_names()
 
 
 def run_check(args) -> int:
-    from ..template_library import check_document, read_document
+    from ..clinic.template_library import check_document, read_document
 
     if args.random < 0 or args.random > 10_000:
         raise InputError.single("--random", args.random, "a whole number from 0 to 10000")
@@ -179,7 +179,7 @@ def run_check(args) -> int:
 
 
 def run_add(args) -> int:
-    from ..template_library import add_document, field_problems, read_document
+    from ..clinic.template_library import add_document, field_problems, read_document
 
     doc = read_document(args.file)
     problems = field_problems(doc)       # bad input stops here, before the store is touched
@@ -203,7 +203,7 @@ def _lead(clinician: str, action: str) -> str:
 def run_approve(args) -> int:
     name, version = _versioned(args.ref)
     _clinic_only(name, args.ref)
-    from ..template_library import _from_row
+    from ..clinic.template_library import _from_row
     with _open(args) as store, _named(args.ref, store):
         row = store.approve_template(name, version, _lead(args.clinician, "approve_template"),
                                      review_by=args.review_by)
@@ -214,7 +214,7 @@ def run_approve(args) -> int:
 def run_retire(args) -> int:
     name, version = _versioned(args.ref)
     _clinic_only(name, args.ref)
-    from ..template_library import _from_row
+    from ..clinic.template_library import _from_row
     with _open(args) as store, _named(args.ref, store):
         row = store.retire_template(name, version, _lead(args.clinician, "retire_template"))
     emit_json(_from_row(row).listing())
@@ -226,7 +226,7 @@ def _side(ref: str, store, field: str):
     import dataclasses
     from pathlib import Path
 
-    from ..template_library import TemplateVersion, body_of, field_problems, read_document, resolve
+    from ..clinic.template_library import TemplateVersion, body_of, field_problems, read_document, resolve
 
     if ref.endswith(".toml") or Path(ref).is_file():
         doc = read_document(ref, field)
@@ -240,7 +240,7 @@ def _side(ref: str, store, field: str):
 
 
 def run_compare(args) -> int:
-    from ..template_review import compare_templates
+    from ..planning.templates import compare_templates
 
     store = _maybe_store(args)
     try:

@@ -10,9 +10,23 @@ Public interface::
 
 Every handout carries the standard cautions and defers to local guidelines and
 licensed clinical judgment.
+
+The renderer (Jinja2) loads on first use: the app's program view reads only the handout's
+wording (``prescribe.handout.content``) when a page opens.
 """
 
-from . import charts
-from .render import AUDIENCES, PAPERS, render_html, render_pdf, write_handout
+from __future__ import annotations
+
+import importlib
 
 __all__ = ["AUDIENCES", "PAPERS", "charts", "render_html", "render_pdf", "write_handout"]
+
+_FROM_RENDER = {"AUDIENCES", "PAPERS", "render_html", "render_pdf", "write_handout"}
+
+
+def __getattr__(name: str):
+    if name in _FROM_RENDER:
+        return getattr(importlib.import_module(".render", __name__), name)
+    if name in ("charts", "content", "pdf", "explain_figures", "sensor_chart"):
+        return importlib.import_module(f".{name}", __name__)
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")

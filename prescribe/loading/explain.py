@@ -119,7 +119,7 @@ def _lever_ratio(preset: dict[str, float]) -> float:
 _BERGMANN_2001 = "Bergmann G et al. 2001, J Biomech 34:859-871"
 _KELLER_1996 = "Keller TS et al. 1996, Clin Biomech 11(5):253-259"
 _KUTZNER_2010 = "Kutzner I et al. 2010, J Biomech 43:2164-2173 (from memory)"
-_LEVER = "static lever model (prescribe.mechanics.JOINT_PRESETS; lever arms from memory)"
+_LEVER = "static lever model (prescribe.loading.mechanics.JOINT_PRESETS; lever arms from memory)"
 
 MOTIONS: dict[str, Motion] = {
     "gait": Motion("gait", "walking-like steps, one leg at a time",

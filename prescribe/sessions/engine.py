@@ -25,7 +25,6 @@ Pure domain code: no store, no widgets; plans are plain dicts in and out.
 
 from __future__ import annotations
 
-import math
 import re
 from dataclasses import dataclass, field
 from functools import lru_cache

@@ -14,7 +14,7 @@ from sqlalchemy.engine import Connection
 from ..errors import ConflictError, InputError, NotFoundError
 from ..plan_schema import parse_plan
 from ..records import parse_record
-from ..safety import assert_safe
+from ..planning.safety import assert_safe
 from . import models as m
 from .engine import StoreBase, now_utc
 from .rows import _audit, _clinician, _dumps, _person, _text

@@ -31,13 +31,18 @@ IMPACT_LABELS: dict[int, str] = {level: f"{level} - {label}" for level, label in
 # The engines load on first use, not when the page opens (the intake form needs none of
 # them); ClinicSession.load_engines loads them in the background once the page is shown.
 def _planner():
-    from .. import planner
-    return planner
+    from .. import planning
+    return planning
 
 
 def _safety():
-    from .. import safety
+    from ..planning import safety
     return safety
+
+
+def _tables():
+    from .. import tables
+    return tables
 
 
 def _screening():
@@ -203,7 +208,7 @@ class ClinicSession:
 
     def session_choices(self, kind: str) -> list[int]:
         """The sessions a week the planner accepts for ``kind`` (impact, resistance, balance)."""
-        from ..option_limits import OPTION_RANGES  # not the planner: this runs while the page opens
+        from ..planning.options import OPTION_RANGES  # not the planner: this runs while the page opens
 
         low, high = OPTION_RANGES[f"{kind}_sessions_per_week"]
         return list(range(low, high + 1))
@@ -244,7 +249,7 @@ class ClinicSession:
             return None, None
         ref = f"{tpl.name}@{tpl.version}"
         try:
-            from ..template_library import resolve
+            from ..clinic.template_library import resolve
             return resolve(ref, self.store, purpose="plan").template(), None
         except (InputError, PrescribeError) as exc:
             return None, (f"The program was built from template {ref}, which can no longer build programs "
@@ -365,14 +370,16 @@ class ClinicSession:
 
     @staticmethod
     def load_engines() -> None:
-        """Import the screening, planning and safety engines (slow once), so the first check is quick."""
-        _screening(), _planner(), _safety()
+        """Import the screening, planning and safety engines and read the rules (slow once), so the
+        first check is quick."""
+        _screening().default_engine()
+        _planner().build_plan, _safety().assert_safe  # noqa: B018 - the lazy package loads on first use
 
     def week_rows(self) -> list[dict]:
         """One row a week for the program table."""
         if self.plan is None:
             return []
-        return _planner().weekly_summary(self.plan).to_dict(orient="records")
+        return _tables().weekly_summary(self.plan).to_dict(orient="records")
 
     def dose_figures(self) -> dict[str, float]:
         """Headline dose figures of the program (for the line under the charts)."""

@@ -13,7 +13,6 @@ Widgets carry stable CSS classes (``pr-live-...``) for browser tests.
 
 from __future__ import annotations
 
-import math
 import threading
 from datetime import date
 from typing import Any

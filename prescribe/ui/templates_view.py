@@ -2,7 +2,7 @@
 
 - the template list (shipped and clinic versions: status, author, approver, review dates);
 - a template shown as a form built from the template's own field metadata
-  (:func:`prescribe.planner_rules.template_fields`: bounds, unit, help), each number with
+  (:func:`prescribe.planning.rules.template_fields`: bounds, unit, help), each number with
   its source and certainty; editable into a new draft version, each bad value named
   beside its field;
 - check (fields and the safety check over the reference panel), approve (never by the
@@ -69,7 +69,7 @@ def program_notice_html(session) -> str:
     plan = getattr(session, "plan", None)
     if plan is None or getattr(session, "store_url", None) is None:
         return ""
-    from ..template_library import program_template_notice
+    from ..clinic.template_library import program_template_notice
     try:
         text = program_template_notice(plan, session.store)
     except PrescribeError:
@@ -101,7 +101,7 @@ class TemplatesView:
 
     def _build(self) -> list:
         """The section's widgets (built the first time it is opened)."""
-        from ..planner_rules import CERTAINTY_LEVELS, template_fields
+        from ..planning.rules import CERTAINTY_LEVELS, template_fields
 
         session = self.session
         self.fields = template_fields()
@@ -278,7 +278,7 @@ class TemplatesView:
         self._run("Listing the templates", self._refresh)
 
     def _refresh(self) -> None:
-        from ..template_library import list_versions
+        from ..clinic.template_library import list_versions
 
         versions = list_versions(self.store)
         self.versions = versions
@@ -338,7 +338,7 @@ class TemplatesView:
         self._run("Showing the template", self._open, self.select.value)
 
     def _open(self, ref: str) -> None:
-        from ..template_library import resolve
+        from ..clinic.template_library import resolve
 
         tv = resolve(ref, self.store, purpose="read", field="template")
         self.current = tv
@@ -422,7 +422,7 @@ class TemplatesView:
         return self._run("Checking the template", self._check)
 
     def _check(self) -> dict:
-        from ..template_library import check_document
+        from ..clinic.template_library import check_document
 
         doc = self.document()
         report = check_document(doc, random_people=20)
@@ -447,7 +447,7 @@ class TemplatesView:
         return self._run("Saving the draft", self._save)
 
     def _save(self):
-        from ..template_library import add_document, field_problems
+        from ..clinic.template_library import add_document, field_problems
 
         who = self._who()
         doc = self.document()
@@ -502,8 +502,8 @@ class TemplatesView:
         return self._run("Comparing", self._compare)
 
     def _compare(self) -> dict:
-        from ..template_library import resolve
-        from ..template_review import compare_templates
+        from ..clinic.template_library import resolve
+        from ..planning.templates import compare_templates
 
         a = resolve(self.compare_a.value, self.store, purpose="read", field="A")
         b = resolve(self.compare_b.value, self.store, purpose="read", field="B")
@@ -560,8 +560,8 @@ class TemplatesView:
         return self._run("Running the what-if", self._whatif)
 
     def _whatif(self):
-        from ..caseload import whatif
-        from ..template_library import resolve
+        from ..clinic.caseload import whatif
+        from ..clinic.template_library import resolve
 
         rules = None
         folder = self.whatif_rules.value.strip()

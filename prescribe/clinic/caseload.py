@@ -1,6 +1,6 @@
 """The stored caseload as a batch file, and what a rule or template change would do to it.
 
-- :func:`export_rows` / :func:`write_caseload_csv`: the store's people as the batch CSV
+- :func:`record_row` / :func:`write_caseload_csv`: the store's people as the batch CSV
   that ``prescribe screen --batch`` reads (``docs/rules.md``).
 - :func:`whatif`: re-screen everyone under a draft rule library and/or re-plan them
   under a template, and list only the people whose screening or program would change,
@@ -29,15 +29,15 @@ from typing import Any, Callable, Iterable
 import numpy as np
 import pandas as pd
 
-from .screening.batch_io import (RECORD_COLUMNS, _FLOAT_COLUMNS, _TEXT_COLUMNS, _atomic_write, _fmt, format_fractures,
+from ..screening.batch_io import (RECORD_COLUMNS, _FLOAT_COLUMNS, _TEXT_COLUMNS, _atomic_write, _fmt, format_fractures,
                                  spreadsheet_text)
-from .cautions import with_standard
-from .records import T_SCORE_SITES
+from ..cautions import with_standard
+from ..records import T_SCORE_SITES
 
 #: Screening fields a what-if compares (list fields as sorted lists); ``flags`` are rule ids.
 SCREENING_FIELDS = ("bone_density_category", "falls_risk", "max_impact_level", "avoid", "refer",
                     "balance_first", "supervision", "flags")
-#: Program fields a what-if compares (see :func:`prescribe.template_review.plan_figures`).
+#: Program fields a what-if compares (see :func:`prescribe.planning.templates.plan_figures`).
 PROGRAM_FIELDS = ("top_impact_level", "weeks_to_full_volume", "peak_impacts", "peak_intensity_pct_1rm",
                   "total_osteogenic_index", "spine_sparing", "refusals")
 
@@ -196,8 +196,8 @@ def plan_key(record, screening) -> tuple:
     balance-first, referral and supervision marks (and its cautions, which are text and
     change no figure), and from the record whether there is a vertebral fracture, whether
     there are two or more low-trauma fractures, and marked thoracic kyphosis
-    (``prescribe/planner.py``); the safety check reads the same screening marks
-    (``prescribe/safety.py``).  A test checks that cached and uncached what-ifs agree.
+    (``prescribe/planning/``); the safety check reads the same screening marks
+    (``prescribe/planning/safety/``).  A test checks that cached and uncached what-ifs agree.
     """
     s = screening
     return (s.bone_density_category, s.max_impact_level, tuple(sorted(s.avoid)), bool(s.falls_risk),
@@ -208,9 +208,9 @@ def plan_key(record, screening) -> tuple:
 
 
 def _program_figures(record, screening, tpl, catalogue, cache: dict | None) -> dict:
-    from .errors import PlanRequestRefused, PrescribeError
-    from .planner import PlanOptions, build_plan
-    from .template_review import plan_figures, safety_violations
+    from ..errors import PlanRequestRefused, PrescribeError
+    from ..planning import PlanOptions, build_plan
+    from ..planning.templates import plan_figures, safety_violations
 
     key = None
     if cache is not None:
@@ -240,12 +240,12 @@ def _program_figures(record, screening, tpl, catalogue, cache: dict | None) -> d
 def whatif(store, *, rules=None, rules_label: str | None = None, template=None, template_label: str | None = None,
            progress: Progress | None = None, use_cache: bool = True) -> WhatIf:
     """Who in the store would change under a draft rule library (``rules``, a RuleSet)
-    and/or a template (``template``, a :class:`~prescribe.template_library.TemplateVersion`).
+    and/or a template (``template``, a :class:`~prescribe.clinic.template_library.TemplateVersion`).
 
     Returns a :class:`WhatIf` listing only the people with at least one changed field.
     ``progress(done, total)`` is called as people are done.
     """
-    from .screening import RULESET_VERSION, results_from_frame, screen_batch
+    from ..screening import RULESET_VERSION, results_from_frame, screen_batch
 
     people = store.caseload()
     dicts = [d for _, d in people]
@@ -261,9 +261,9 @@ def whatif(store, *, rules=None, rules_label: str | None = None, template=None, 
         if progress:
             progress(total, total)
     else:
-        from .catalogue import default_catalogue
-        from .planner_rules import load_template
-        from .records import parse_record
+        from ..catalogue import default_catalogue
+        from ..planning.rules import load_template
+        from ..records import parse_record
         from .template_library import resolve
 
         catalogue = default_catalogue()

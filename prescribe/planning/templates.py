@@ -1,7 +1,7 @@
 """Reviewing a program template before a clinic uses it: checks, a reference panel, comparison.
 
 Domain code only (no store, no widgets): the clinic lead's tools in
-:mod:`prescribe.template_library`, the command line and the app call these.
+:mod:`prescribe.clinic.template_library`, the command line and the app call these.
 
 - :data:`REFERENCE_PANEL`: twenty invented people covering the usual kinds of people a
   bone-health exercise service sees (osteopenia, osteoporosis, vertebral fracture,
@@ -29,10 +29,10 @@ from typing import Any, Iterable
 
 import numpy as np
 
-from .cautions import with_standard
-from .errors import PlanRequestRefused, PrescribeError
-from .planner_rules import Template
-from .records import CONDITIONS, PatientRecord, ScreeningResult, parse_record
+from ..cautions import with_standard
+from ..errors import PlanRequestRefused, PrescribeError
+from .rules import Template
+from ..records import CONDITIONS, PatientRecord, ScreeningResult, parse_record
 
 # =========================================================================================
 # The reference panel: invented people
@@ -107,7 +107,7 @@ def random_records(n: int, seed: int = 2026) -> list[PatientRecord]:
     safety check meets combinations that the panel does not list.
     """
     if isinstance(n, bool) or not isinstance(n, int) or n < 0:
-        from .errors import InputError
+        from ..errors import InputError
         raise InputError.single("random people", n, "a whole number of 0 or more")
     rng = np.random.default_rng(seed)
     sites = ("vertebra", "hip", "wrist", "humerus", "pelvis", "rib", "other")
@@ -140,32 +140,17 @@ def random_records(n: int, seed: int = 2026) -> list[PatientRecord]:
 # Safety check and the figures of one program
 # =========================================================================================
 
-_RULE_WEEK = re.compile(r"^(rule \d+):\s*week (\d+)")
-
-
 def safety_violations(plan, screening: ScreeningResult | None = None) -> list[dict]:
     """The safety rules a program breaks, each ``{rule, week, exercise_id, message, allowed, source}``.
 
-    One function, so the shared safety check is used wherever it is installed
-    (:func:`prescribe.safety.check_program`), and the planner's own check otherwise.
+    One function, so the shared safety check (:func:`prescribe.planning.safety.check_program`)
+    is used wherever a template is reviewed.
     """
-    try:
-        from .safety import check_program  # type: ignore[attr-defined]
-    except ImportError:
-        check_program = None
-    if check_program is not None:
-        return [{"rule": str(v.rule), "week": v.week, "exercise_id": v.exercise_id, "message": str(v.message),
-                 "allowed": str(getattr(v, "allowed", "") or ""), "source": str(getattr(v, "source", "") or "")}
-                for v in check_program(plan, screening)]
-    from .planner import check_plan
-    out = []
-    for text in check_plan(plan, screening):
-        m = _RULE_WEEK.match(text)
-        exercise = next((x.exercise_id for w in plan.weeks for s in w.sessions for x in s.exercises
-                         if x.exercise_id in text), None)
-        out.append({"rule": m.group(1) if m else text.split(":", 1)[0], "week": int(m.group(2)) if m else None,
-                    "exercise_id": exercise, "message": text, "allowed": "", "source": ""})
-    return out
+    from .safety import check_program
+
+    return [{"rule": str(v.rule), "week": v.week, "exercise_id": v.exercise_id, "message": str(v.message),
+             "allowed": str(getattr(v, "allowed", "") or ""), "source": str(getattr(v, "source", "") or "")}
+            for v in check_program(plan, screening)]
 
 
 def _full_volume(tpl: Template, level: int) -> float:
@@ -224,11 +209,11 @@ def panel_outcomes(tpl: Template, records: Iterable[PatientRecord], screenings: 
     A program the planner refuses, or one that breaks a safety rule, gives refusals
     naming the rule, the person and the week; nothing raises for a clinical reason.
     """
-    from .planner import PlanOptions, build_plan
-    from .screening import screen
+    from .builder import PlanOptions, build_plan
+    from ..screening import screen
 
     if catalogue is None:
-        from .catalogue import default_catalogue
+        from ..catalogue import default_catalogue
         catalogue = default_catalogue()
     screenings = {} if screenings is None else screenings
     options = PlanOptions(weeks=weeks)

@@ -14,9 +14,9 @@ from dataclasses import dataclass, field
 from functools import lru_cache
 from pathlib import Path
 
-from .errors import InputError, PrescribeError
+from ..errors import InputError, PrescribeError
 
-TEMPLATE_DIR = Path(__file__).resolve().parent / "data" / "templates"
+TEMPLATE_DIR = Path(__file__).resolve().parent.parent / "data" / "templates"
 
 #: Above this many impacts a session a template must give a reason (issue 4, rule 4).
 IMPACTS_CEILING = 100
@@ -294,7 +294,7 @@ def template_problems(data) -> list:
     Empty for a template :func:`parse_template` accepts.  Unlike :func:`parse_template`,
     which stops at the first problem, this names them all (``prescribe template check``).
     """
-    from .errors import FieldProblem
+    from ..errors import FieldProblem
 
     if not isinstance(data, dict):
         return [FieldProblem("template", data, "a TOML document with name, [impact], [resistance], [balance] "

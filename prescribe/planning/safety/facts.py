@@ -1,0 +1,221 @@
+"""What the rules read: the plan's figures and the catalogue's, gathered once for all rules.
+
+A built plan shares exercise models between sessions and weeks; the figures of a session
+are computed once per distinct set of exercises (the check runs at every door, so it is
+kept fast: ``benchmarks/bench_safety.py``).
+"""
+
+from __future__ import annotations
+
+import re
+from dataclasses import dataclass, field
+from functools import lru_cache
+from typing import Iterator
+
+from ...plan_schema import Plan
+from ...records import PatientRecord
+from .model import Limits
+
+#: Categories of strength-type work (resistance, back extensors, posture).
+STRENGTH_CATEGORIES = frozenset({"resistance", "back_extensor", "posture"})
+_BALANCE_RANK = {"none": 0, "low": 1, "moderate": 2, "high": 3}
+
+_PCT_1RM = re.compile(r"(\d+(?:\.\d+)?)\s*(?:[-\u2013to ]+\s*(\d+(?:\.\d+)?))?\s*%\s*(?:of\s*)?1\s*-?\s*RM",
+                      re.IGNORECASE)
+
+
+@lru_cache(maxsize=1024)
+def pct_1rm(intensity: str | None) -> float | None:
+    """The highest %1RM an intensity text prescribes ("80% 1RM", "80-85% 1RM"), or None."""
+    if not intensity:
+        return None
+    found = [float(b or a) for a, b in _PCT_1RM.findall(intensity)]
+    return max(found) if found else None
+
+
+_RPE = re.compile(r"RPE\s*(\d+(?:\.\d+)?)(?:\s*[-\u2013]\s*(\d+(?:\.\d+)?))?", re.IGNORECASE)
+
+
+@lru_cache(maxsize=1024)
+def rpe_top(intensity: str | None) -> float | None:
+    """The highest Borg CR10 effort an intensity text prescribes ("RPE 5-6" gives 6), or None."""
+    if not intensity:
+        return None
+    found = [float(b or a) for a, b in _RPE.findall(intensity)]
+    return max(found) if found else None
+
+
+@dataclass(frozen=True)
+class _CatEntry:
+    """What the check needs of one catalogue entry."""
+
+    exercise_id: str
+    category: str
+    impact_level: int
+    peak_grf_bw: float
+    directions: frozenset[str]
+    patterns: frozenset[str]
+    dose_unit: str
+    balance_rank: int
+    spine_sparing: bool
+    loaded: bool
+    family: str
+    depth: int
+    patterns_list: list = field(default_factory=list)    # sorted, as the planner writes them
+    directions_list: list = field(default_factory=list)  # in catalogue order, as the planner writes them
+
+
+def _catalogue_entries(catalogue) -> dict[str, _CatEntry]:
+    cached = getattr(catalogue, "_safety_entries", None)
+    if cached is not None:
+        return cached
+    raw = {e.exercise_id: e for e in catalogue.all()}
+
+    def root(e):
+        depth, seen = 0, {e.exercise_id}
+        while e.regression and e.regression in raw and raw[e.regression].category == e.category \
+                and e.regression not in seen:
+            e = raw[e.regression]
+            seen.add(e.exercise_id)
+            depth += 1
+        return e.exercise_id, depth
+
+    out = {}
+    for e in raw.values():
+        fam, depth = root(e)
+        equipment = " ".join(e.equipment).lower()
+        out[e.exercise_id] = _CatEntry(
+            exercise_id=e.exercise_id, category=e.category, impact_level=int(e.impact_level),
+            peak_grf_bw=float(e.peak_grf_bw), directions=frozenset(e.directions), patterns=frozenset(e.patterns),
+            dose_unit=e.dose_unit, balance_rank=_BALANCE_RANK.get(e.balance_demand, 1),
+            spine_sparing=bool(e.spine_sparing),
+            loaded=bool(e.loaded_by_1rm or e.grf_plus_external_load)
+            or any(w in equipment for w in ("dumbbell", "kettlebell", "barbell", "band", "plates", "bar")),
+            family=fam, depth=depth, patterns_list=sorted(e.patterns), directions_list=list(e.directions))
+    try:
+        object.__setattr__(catalogue, "_safety_entries", out)
+    except (AttributeError, TypeError):
+        pass
+    return out
+
+
+@dataclass(frozen=True)
+class _SessionFacts:
+    """What the rules read of one session's exercises (computed once per distinct session)."""
+
+    impacts: int            # level 2-3 landings, all exercises
+    top: int                # highest impact level
+    pct: float              # highest %1RM (0 if none)
+    rpe: float              # highest effort of resistance work (resistance sessions; 0 if none)
+    vol: int                # sets x repetitions of resistance work (resistance sessions)
+    balance: bool           # holds balance work
+    dirs: frozenset[str]    # loading directions of level 2-3 work
+    landing: tuple          # level 2-3 exercises with impacts (for bouts)
+
+
+class _Facts:
+    """The plan and its limits, with each week's and session's figures computed once for all rules.
+
+    A built plan shares exercise models between sessions and weeks; the figures of a
+    session are computed once per distinct set of exercises, and the per-exercise rules
+    see each distinct (exercise, session kind, supervised) once, at its first week.
+    """
+
+    def __init__(self, plan: Plan, limits: Limits, catalogue, record: PatientRecord | None = None):
+        self.plan, self.limits, self.record = plan, limits, record
+        self.catalogue = catalogue
+        self.entries = _catalogue_entries(catalogue)
+        self.weeks = plan.weeks
+        self.levels: list[int] = []        # per week: highest impact level
+        self.session_max: list[int] = []   # per week: largest session's level 2-3 impacts
+        self.res_pct: list[float] = []     # per week: highest %1RM
+        self.res_rpe: list[float] = []     # per week: highest effort of resistance work
+        self.res_vol: list[int] = []       # per week: largest resistance session's sets x repetitions
+        self.week_sessions: list[list[tuple]] = []  # per week: (session, facts)
+        self.balance_days: list[set[int]] = []       # per week: days with balance work
+        self.resistance_days: list[list[int]] = []   # per week: days of resistance sessions
+        self.day_impacts: list[dict[int, int]] = []  # per week: level 2-3 landings a day (days with any)
+        self.count_mismatch: list[tuple] = []        # (week, session, facts) whose impacts do not add up
+        self.contexts: dict[tuple, tuple] = {}      # (id(x), kind, supervised) -> (week, session, x)
+        cache: dict[tuple, _SessionFacts] = {}
+        contexts = self.contexts
+        get = cache.get
+        for wk in plan.weeks:
+            pairs = []
+            bal_days: set[int] = set()
+            res_days: list[int] = []
+            day_imp: dict[int, int] = {}
+            for s in wk.sessions:
+                kind, sup, xs = s.kind, s.supervised, s.exercises
+                key = (kind, sup, *map(id, xs))
+                sf = get(key)
+                if sf is None:
+                    sf = cache[key] = _session_facts(kind, xs)
+                    for x in xs:
+                        ck = (id(x), kind, sup)
+                        if ck not in contexts:
+                            contexts[ck] = (wk.week, s, x)
+                pairs.append((s, sf))
+                if sf.impacts != s.impacts:
+                    self.count_mismatch.append((wk, s, sf))
+                if sf.balance:
+                    bal_days.add(s.day)
+                if kind == "resistance":
+                    res_days.append(s.day)
+                if sf.impacts:
+                    day_imp[s.day] = day_imp.get(s.day, 0) + sf.impacts
+            top = largest = vol = 0
+            pct = rpe = 0.0
+            for _, sf in pairs:
+                if sf.top > top:
+                    top = sf.top
+                if sf.impacts > largest:
+                    largest = sf.impacts
+                if sf.pct > pct:
+                    pct = sf.pct
+                if sf.rpe > rpe:
+                    rpe = sf.rpe
+                if sf.vol > vol:
+                    vol = sf.vol
+            self.week_sessions.append(pairs)
+            self.balance_days.append(bal_days)
+            self.resistance_days.append(res_days)
+            self.day_impacts.append(day_imp)
+            self.levels.append(top)
+            self.session_max.append(largest)
+            self.res_pct.append(pct)
+            self.res_rpe.append(rpe)
+            self.res_vol.append(vol)
+
+    def exercises(self) -> Iterator[tuple[int, object, object]]:
+        """(first week, session, exercise) for each distinct exercise in its session's kind."""
+        return iter(self.contexts.values())
+
+
+def _session_facts(kind: str, xs) -> _SessionFacts:
+    impacts = top = vol = 0
+    pct = rpe = 0.0
+    balance = False
+    dirs: set[str] = set()
+    landing = []
+    in_res = kind == "resistance"
+    for x in xs:
+        lv = x.impact_level
+        if lv > top:
+            top = lv
+        if lv >= 2:
+            impacts += x.impacts
+            dirs.update(x.directions)
+            if x.impacts > 0:
+                landing.append(x)
+        p = pct_1rm(x.intensity)
+        if p is not None and p > pct:
+            pct = p
+        if in_res:
+            r = rpe_top(x.intensity)
+            if r is not None and r > rpe:
+                rpe = r
+            vol += (x.sets or 0) * (x.reps or 0)
+        if x.category == "balance" and (x.minutes or x.sets or x.reps):
+            balance = True
+    return _SessionFacts(impacts, top, pct, rpe, vol, balance, frozenset(dirs), tuple(landing))

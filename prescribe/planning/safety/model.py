@@ -1,0 +1,69 @@
+"""What the safety check reports and holds a program to: :class:`SafetyViolation`,
+:class:`Limits` and :class:`Rule`."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import TYPE_CHECKING, Callable, Iterable
+
+if TYPE_CHECKING:
+    from .facts import _Facts
+
+#: Impacts a session at most, unless a template gives a reason (Clissold et al. 2022).
+IMPACTS_CEILING = 100
+
+
+@dataclass(frozen=True)
+class SafetyViolation:
+    """One broken rule: where (week, exercise), what is wrong, what is allowed, and why.
+
+    ``rule`` is a short id from :data:`RULES` (e.g. ``"impact_cap"``); ``week`` and
+    ``exercise_id`` are None where the rule is about the whole plan; ``message`` is in
+    plain words; ``allowed`` says what the rule allows; ``source`` is its citation (or
+    "common practice").
+    """
+
+    rule: str
+    week: int | None
+    exercise_id: str | None
+    message: str
+    allowed: str
+    source: str
+
+    def text(self) -> str:
+        """One line naming the rule, the week, the exercise, the problem and what is allowed."""
+        where = [f"rule {self.rule}"]
+        if self.week is not None:
+            where.append(f"week {self.week}")
+        if self.exercise_id:
+            where.append(f"exercise {self.exercise_id}")
+        return f"{', '.join(where)}: {self.message}; allowed: {self.allowed}"
+
+    def as_dict(self) -> dict:
+        return {"rule": self.rule, "week": self.week, "exercise_id": self.exercise_id,
+                "message": self.message, "allowed": self.allowed, "source": self.source}
+
+
+@dataclass(frozen=True)
+class Limits:
+    """The limits a program is held to: the strictest of every screening the check found."""
+
+    cap: int
+    avoid: frozenset[str]
+    falls_risk: bool = False
+    refer: bool = False
+    supervision: bool = False
+    spine_sparing: bool = False
+    max_impacts: int = IMPACTS_CEILING
+    #: Where the limits come from, e.g. ("plan.screening", "re-screened plan.record").
+    origins: tuple[str, ...] = ()
+
+
+@dataclass(frozen=True)
+class Rule:
+    """One rule of the check: its id, a plain title, its source and the function that applies it."""
+
+    rule_id: str
+    title: str
+    source: str
+    check: Callable[["_Facts"], Iterable[SafetyViolation]] = field(repr=False)

@@ -1,0 +1,36 @@
+"""Tables of a plan for reading on screen or at the command line (pandas).
+
+The planner itself (:mod:`prescribe.planning`) never imports pandas; the readers that
+want a table (``prescribe plan``'s weekly table, the app's summary) build it here.
+"""
+
+from __future__ import annotations
+
+import pandas as pd
+
+from .plan_schema import Plan
+from .planning.dosing import prescribed_pct_1rm
+
+__all__ = ["weekly_summary", "SUMMARY_COLUMNS"]
+
+#: Columns of :func:`weekly_summary`, in order.
+SUMMARY_COLUMNS: list[str] = ["week", "phase", "impact_level", "impacts_per_session", "sessions",
+                              "weekly_osteogenic_index", "weak_window", "reassessment",
+                              "resistance_intensity_pct_1rm"]
+
+
+def weekly_summary(plan: Plan) -> pd.DataFrame:
+    """One row a week: the columns of :data:`SUMMARY_COLUMNS` (``sessions`` is a count)."""
+    rows = []
+    for w in plan.weeks:
+        weekly_oi = w.weekly_osteogenic_index
+        rows.append({
+            "week": w.week, "phase": w.phase, "impact_level": w.impact_level,
+            "impacts_per_session": w.impacts_per_session, "sessions": len(w.sessions),
+            "weekly_osteogenic_index": round(sum(s.osteogenic_index for s in w.sessions), 2)
+            if weekly_oi is None else weekly_oi,
+            "weak_window": bool(w.weak_window), "reassessment": w.reassessment,
+            # Read from the exercises, so a week never states more than it prescribes.
+            "resistance_intensity_pct_1rm": prescribed_pct_1rm(x for s in w.sessions for x in s.exercises),
+        })
+    return pd.DataFrame(rows, columns=SUMMARY_COLUMNS)
