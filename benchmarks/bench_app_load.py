@@ -90,6 +90,19 @@ def rss_mb(pid: int) -> float:
     return 0.0
 
 
+async def settle(server_pid: int, pool: int, limit_s: float = 300.0) -> None:
+    """Wait until the server has its pool of kernels and they are quiet (preheated): at least
+    ``pool`` kernels alive and under 0.2 CPU seconds spent by the server and its kernels in 2 s."""
+    deadline = time.monotonic() + limit_s
+    while time.monotonic() < deadline:
+        ids = kernels(server_pid)
+        before = cpu_s(server_pid) + sum(cpu_s(k) for k in ids)
+        await asyncio.sleep(2)
+        after = cpu_s(server_pid) + sum(cpu_s(k) for k in kernels(server_pid))
+        if len(ids) >= pool and after - before < 0.2:
+            return
+
+
 async def guard(context, outside: list) -> None:
     async def handler(route):
         url = route.request.url
@@ -135,8 +148,9 @@ async def bare_baseline(burst: int) -> tuple[float, list[float]]:
         proc = subprocess.Popen(voila_command(port, notebook), env=voila_environment(str(Path(tmp) / "b.db")),
                                 stdout=subprocess.DEVNULL, stderr=subprocess.STDOUT, start_new_session=True)
         ready, READY = READY, ".bench-button"
+        pool = server_limits().pool_size
         try:
-            await asyncio.sleep(15)
+            await settle(proc.pid, pool)
             url = f"http://127.0.0.1:{port}/"
             async with async_playwright() as p:
                 browser = await p.chromium.launch(executable_path=CHROMIUM, args=ARGS, headless=True)
@@ -146,7 +160,7 @@ async def bare_baseline(burst: int) -> tuple[float, list[float]]:
                     t, _, page = await open_page(context, url)
                     single.append(t)
                     await page.close(run_before_unload=True)
-                    await asyncio.sleep(8)
+                    await settle(proc.pid, pool)
                 results = await asyncio.gather(*(open_page(context, url) for _ in range(burst)))
                 await browser.close()
         finally:
@@ -170,7 +184,7 @@ async def run(args) -> dict:
                                 stderr=subprocess.STDOUT, start_new_session=True)
         outside: list[str] = []
         try:
-            await asyncio.sleep(15)  # the server up and its pool preheated
+            await settle(proc.pid, limits.pool_size)  # the server up and its pool preheated
             async with async_playwright() as p:
                 browser = await p.chromium.launch(executable_path=CHROMIUM, args=ARGS, headless=True)
                 context = await browser.new_context()
@@ -180,7 +194,7 @@ async def run(args) -> dict:
                     t, _, page = await open_page(context, url)
                     single.append(t)
                     await page.close(run_before_unload=True)
-                    await asyncio.sleep(8)  # the pool refilled
+                    await settle(proc.pid, limits.pool_size)  # the pool refilled
                 cpu0 = cpu_s(proc.pid) + sum(cpu_s(k) for k in kernels(proc.pid))
                 before = set(kernels(proc.pid))
                 results = await asyncio.gather(*(open_page(context, url) for _ in range(args.burst)))
@@ -190,11 +204,12 @@ async def run(args) -> dict:
                 idle_mb = [rss_mb(k) for k in kernels(proc.pid)]
                 for _, _, page in results:
                     await page.close(run_before_unload=True)
-                await asyncio.sleep(8)
+                await settle(proc.pid, limits.pool_size)
                 for _ in range(args.churn):
                     _, _, page = await open_page(context, url)
                     await page.close(run_before_unload=True)
-                await asyncio.sleep(10)  # unload beacons handled, pool refilled
+                await asyncio.sleep(10)  # unload beacons handled
+                await settle(proc.pid, limits.pool_size)  # pool refilled
                 alive_after_churn = len(kernels(proc.pid))
                 await browser.close()
         finally:

@@ -63,17 +63,23 @@ def _under(name: str, packages: tuple[str, ...]) -> bool:
     return any(name == p or name.startswith(p + ".") for p in packages)
 
 
+def _loaded_after_importing(modules: list[str], prefixes: tuple[str, ...]) -> str:
+    """The modules under ``prefixes`` loaded once ``modules`` are imported in a fresh interpreter."""
+    code = ("import importlib, sys\n"
+            f"for name in {modules!r}:\n"
+            "    importlib.import_module(name)\n"
+            f"print(','.join(sorted(m for m in sys.modules if m.startswith({prefixes!r}))))")
+    proc = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=300)
+    assert proc.returncode == 0, proc.stderr
+    return proc.stdout.strip()
+
+
 def test_the_domain_never_imports_the_store_the_handout_or_the_app():
     domain = [m for m in non_ui_modules() if not _under(m, ABOVE_DOMAIN + COMPOSERS)]
     assert "prescribe.planning.safety" in domain and "prescribe.planning" in domain
     assert not any(_under(m, COMPOSERS) for m in domain)
-    code = ("import importlib, sys\n"
-            f"for name in {domain!r}:\n"
-            "    importlib.import_module(name)\n"
-            f"print(','.join(sorted(m for m in sys.modules if m.startswith({ABOVE_DOMAIN!r}))))")
-    proc = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=300)
-    assert proc.returncode == 0, proc.stderr
-    assert proc.stdout.strip() == "", f"the domain imports {proc.stdout.strip()}"
+    found = _loaded_after_importing(domain, ABOVE_DOMAIN)
+    assert found == "", f"the domain imports {found}"
 
 
 #: What the science of loading may not import: the screening, the planner, the sessions, the
@@ -87,13 +93,8 @@ def test_the_loading_science_imports_nothing_above_the_catalogue():
     loading = [m for m in non_ui_modules() if m == "prescribe.loading" or m.startswith("prescribe.loading.")]
     assert {"prescribe.loading.dose", "prescribe.loading.mechanics", "prescribe.loading.bone_loads",
             "prescribe.loading.explain"} <= set(loading)
-    code = ("import importlib, sys\n"
-            f"for name in {loading!r}:\n"
-            "    importlib.import_module(name)\n"
-            f"print(','.join(sorted(m for m in sys.modules if m.startswith({ABOVE_LOADING!r}))))")
-    proc = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=300)
-    assert proc.returncode == 0, proc.stderr
-    assert proc.stdout.strip() == "", f"prescribe.loading imports {proc.stdout.strip()}"
+    found = _loaded_after_importing(loading, ABOVE_LOADING)
+    assert found == "", f"prescribe.loading imports {found}"
 
 
 def _package_imports(package: str) -> dict[str, set[str]]:

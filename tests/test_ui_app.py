@@ -371,12 +371,13 @@ def _widget_models() -> int:
 def test_a_page_builds_only_what_a_first_visit_shows(tmp_db):
     # Every widget is a model the server sends and the browser builds when the page opens
     # (benchmarks/bench_app.py measures the time); the sections a first visit does not use
-    # are built when opened.  Was 1,198 models with every section built at once.
+    # are built when opened, and default layouts and styles are shared.  Was 1,198 models
+    # with every section built at once and a model of each kind for every widget.
     before = _widget_models()
     app = ClinicApp(ClinicSession(store_url=tmp_db), warm_up=True)
     opened = _widget_models() - before
     assert not (app.live.section.built or app.sensor_panel.section.built or app.templates_view.section.built)
-    assert opened < 450, f"{opened} widget models at page open"
+    assert opened < 300, f"{opened} widget models at page open"
     app.templates_view.open()
     assert app.templates_view.section.built and _widget_models() - before > opened + 300
     assert "standard@1" in app.templates_view.list_box.value  # filled when opened
@@ -402,3 +403,29 @@ def test_a_change_is_not_lost_to_a_redraw_that_ran_before_it_was_applied(app):
     app.on_option_change(app.start_level, 2)
     assert app.errors.last == "", app.errors.last
     assert app.session.plan.weeks[0].impact_level == 2 and app.start_level.value == 2
+
+
+def test_widgets_share_their_default_layout_and_no_change_reaches_the_others(tmp_db):
+    # Half the models a page opened with were default Layouts and Styles; they are shared now
+    # (common.share_plain_models).  A layout the code changes (shown, hidden) must never be the
+    # shared one, or hiding one box would hide every box: run the page's changes and look.
+    import ipywidgets as w
+    app = make_app(tmp_db)
+    shared = app.screening_view.layout
+    sharing = [x for x in (app.intake_status, app.refusal, app.dose, app.history, app.store_status)
+               if x.layout is shared]
+    assert len(sharing) >= 4
+    defaults = {k: getattr(w.Layout(), k) for k in shared.keys if not k.startswith("_")}
+    type_person(app)
+    app.start_level.value = 2
+    first = app.exercise_select.options[1][1]
+    app.exercise_select.value = first
+    if len(app.replacement_select.options) > 1:
+        app.replacement_select.value = app.replacement_select.options[1][1]
+        app.swap_button.click()
+        app.program_view.swap.cancel_button.click()
+    app.clinician.value = "AB"
+    app.save_button.click()
+    app.on_new()
+    assert {k: getattr(shared, k) for k in defaults} == defaults
+    assert app.clearance.controls.layout is not shared and app.program_view.swap.confirm_box.layout is not shared

@@ -24,7 +24,7 @@ import ipywidgets as w
 
 from .cautions_view import section_cautions
 from .clinic_view import ClinicSettingsForm
-from .common import STYLE, ErrorArea, cautions_box, cautions_html, guarded, section_box
+from .common import STYLE, ErrorArea, cautions_box, cautions_html, guarded, section_box, share_plain_models
 from .explain_view import ExplainView
 from .handout_section import HandoutSection
 from .intake_view import IntakeForm, screening_html
@@ -82,6 +82,7 @@ class ClinicApp(PersonSection, ProgramSection, HandoutSection, StoreSection):
                               self.handout_section, self.store_section, self.live.widget,
                               self.sensor_panel.widget, self.templates_view.widget])
         self.widget.add_class("pr-app")
+        share_plain_models(self.widget)  # about half the models a page opens with (common.py)
         self.warm_thread: threading.Thread | None = None
         self._warm_lock = threading.Lock()
         if warm_up:

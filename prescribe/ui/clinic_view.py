@@ -14,6 +14,7 @@ import ipywidgets as w
 
 from ..errors import InputError
 from .. import settings
+from .common import own_layout
 
 
 class ClinicSettingsForm:
@@ -35,10 +36,10 @@ class ClinicSettingsForm:
         self.save_button.on_click(lambda _b: self.save())
         self.status = w.HTML("")
         self.status.add_class("pr-clinic-status")
-        self.form = w.VBox([
+        self.form = own_layout(w.VBox([
             w.HTML("<p><b>Your clinic</b>: handouts tell the person to call the clinic. Enter its name and phone "
                    "once; they are kept in the clinic settings file and printed on every handout.</p>"),
-            self.name, self.contact, w.HBox([self.save_button, self.message])])
+            self.name, self.contact, w.HBox([self.save_button, self.message])]))
         self.widget = w.VBox([self.form, self.status])
         self.widget.add_class("pr-clinic-settings")
         self.refresh()

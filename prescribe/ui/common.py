@@ -221,3 +221,61 @@ class LazySection:
     def _on_toggle(self, change) -> None:
         if change["new"] == 0:
             self.ensure_built()
+
+
+def own_layout(widget: w.Widget) -> w.Widget:
+    """Mark ``widget`` as one whose layout the code changes (shown, hidden): it keeps its own."""
+    widget._prescribe_own_layout = True
+    return widget
+
+
+def share_plain_models(root: w.Widget) -> int:
+    """Let the widgets under ``root`` with a default layout or style share one of each.
+
+    Every ipywidget brings its own Layout and Style models even when nothing is set on them:
+    about half of the models a page opens with.  Each model is work for the server and,
+    mostly, for the browser when the page opens, so widgets whose layout and style are the
+    defaults share one model per kind and the unused ones are closed.  A widget whose layout
+    the code changes later is marked with :func:`own_layout` and keeps its own.  Returns the
+    number of models closed.
+    """
+    plain_layout = w.Layout()
+    shared_styles: dict[type, w.Widget] = {}
+    closed = 0
+    seen: set[str] = set()
+
+    def is_default(model: w.Widget) -> bool:
+        fresh = type(model)()
+        try:
+            return all(getattr(model, k) == getattr(fresh, k) for k in model.keys if not k.startswith("_"))
+        finally:
+            fresh.close()
+
+    def visit(widget: w.Widget) -> None:
+        nonlocal closed
+        if widget.model_id in seen:
+            return
+        seen.add(widget.model_id)
+        layout = getattr(widget, "layout", None)
+        if (isinstance(layout, w.Layout) and layout is not plain_layout
+                and not getattr(widget, "_prescribe_own_layout", False) and is_default(layout)):
+            widget.layout = plain_layout
+            layout.close()
+            closed += 1
+        style = getattr(widget, "style", None)
+        if isinstance(style, w.Widget) and type(style).__module__.startswith("ipywidgets"):
+            kind = type(style)
+            if shared_styles.get(kind) is not style and is_default(style):
+                if kind not in shared_styles:
+                    shared_styles[kind] = kind()
+                widget.style = shared_styles[kind]
+                style.close()
+                closed += 1
+        for child in getattr(widget, "children", ()) or ():
+            if isinstance(child, w.Widget):
+                visit(child)
+
+    visit(root)
+    if not closed:
+        plain_layout.close()
+    return closed

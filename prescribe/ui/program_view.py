@@ -16,6 +16,7 @@ import ipywidgets as w
 
 from ..errors import InputError
 from . import program_model as pm
+from .common import own_layout
 from .wording import exercise_names, plain
 
 CSS = """
@@ -107,8 +108,8 @@ class SwapPanel:
         self.confirm_button.add_class("pr-swap-confirm")
         self.cancel_button = w.Button(description="Cancel", layout=w.Layout(width="auto"))
         self.cancel_button.add_class("pr-swap-cancel")
-        self.confirm_box = w.VBox([self.confirm_text, w.HBox([self.confirm_button, self.cancel_button])],
-                                  layout=w.Layout(display="none"))
+        self.confirm_box = own_layout(w.VBox([self.confirm_text, w.HBox([self.confirm_button, self.cancel_button])],
+                                             layout=w.Layout(display="none")))  # shown while a swap waits
         self.confirm_box.add_class("pr-swap-confirm-area")
         self.status = w.HTML("")
         self.status.add_class("pr-swap-status")

@@ -13,6 +13,8 @@ import html
 
 import ipywidgets as w
 
+from .common import own_layout
+
 
 class ClearanceView:
     """Draft status and the control that records a clinician's clearance."""
@@ -27,7 +29,7 @@ class ClearanceView:
         self.button = w.Button(description="Record clearance", button_style="warning", layout=w.Layout(width="auto"))
         self.button.add_class("pr-clearance-record")
         self.button.on_click(lambda _b: self.on_clear())
-        self.controls = w.HBox([self.name, self.button])
+        self.controls = own_layout(w.HBox([self.name, self.button]))  # shown and hidden
         self.widget = w.VBox([self.status, self.controls])
         self.widget.add_class("pr-clearance")
 
