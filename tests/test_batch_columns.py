@@ -134,6 +134,8 @@ def test_random_rows_with_bad_cells_get_exactly_the_record_models_problems(tmp_p
     # Random valid people, some with one bad cell of a random kind (several kinds in one file):
     # the column-wise reader reports exactly what validating each row with the record model does.
     first_id = people[0][0].patient_id
+    # The first row's own id is not "used before": that kind spoils only a later row.
+    people = [(r, None if i == 0 and kind == "id used before" else kind) for i, (r, kind) in enumerate(people)]
     rows = [record_to_row(r) if kind is None else _spoil(record_to_row(r), kind, first_id) for r, kind in people]
     path = _write(tmp_path_factory.mktemp("rows"), rows)
     if all(kind is None for _, kind in people):
