@@ -10,8 +10,9 @@ timeouts sized to the machine: prescribe.ui.server) and drives Debian's chromium
    goal: the slowest within 4x the single page's median;
 3. churn: thirty page opens and closes in a row; afterwards no more kernels alive than the
    pool (no page is open);
-4. cost: memory (resident) of each idle page's kernel, and CPU seconds per extra page
-   (the kernels' and the server's CPU over the burst, divided by its pages);
+4. cost: memory (resident) of each idle page's kernel, CPU seconds per extra page (the
+   kernels' and the server's CPU over the burst, divided by its pages), and the processor
+   time of the server, the kernels and the browser over the burst, for the app and the bare page;
 5. baseline: a bare one-widget Voila page served with the same command, opened alone and ten
    at once in the same run, so the burst's cost of the app itself shows apart from what any
    Voila page costs on this machine.
@@ -38,7 +39,7 @@ ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 
 from prescribe.cli.app_cmd import notebook_path, voila_command, voila_environment  # noqa: E402
-from prescribe.ui.server import server_limits  # noqa: E402
+from prescribe.ui.server import POOL_REFILL_DELAY_S, server_limits  # noqa: E402
 
 CHROMIUM = "/usr/bin/chromium"
 ARGS = ["--no-sandbox", "--disable-gpu", "--disable-dev-shm-usage", "--disable-background-networking",
@@ -80,6 +81,39 @@ def cpu_s(pid: int) -> float:
         return 0.0
 
 
+def browser_cpu_s() -> float:
+    """Processor time of the chromium processes this benchmark started (its descendants)."""
+    parent: dict[int, int] = {}
+    for entry in Path("/proc").iterdir():
+        if entry.name.isdigit():
+            try:
+                parent[int(entry.name)] = int((entry / "stat").read_text().rsplit(")", 1)[1].split()[1])
+            except (OSError, ValueError, IndexError):
+                continue
+    me, total = os.getpid(), 0.0
+    for pid in parent:
+        p, seen = pid, 0
+        while p in parent and p != me and seen < 64:
+            p, seen = parent[p], seen + 1
+        if p == me:
+            try:
+                if b"chromium" in Path(f"/proc/{pid}/cmdline").read_bytes():
+                    total += cpu_s(pid)
+            except OSError:
+                continue
+    return total
+
+
+def burst_cpu(server_pid: int) -> dict[str, float]:
+    """Processor seconds so far: the server, its kernels alive now, and the browser."""
+    return {"server": cpu_s(server_pid), "kernels": sum(cpu_s(k) for k in kernels(server_pid)),
+            "browser": browser_cpu_s()}
+
+
+def spent(before: dict[str, float], after: dict[str, float]) -> dict[str, float]:
+    return {k: after[k] - before[k] for k in before}
+
+
 def rss_mb(pid: int) -> float:
     try:
         for line in Path(f"/proc/{pid}/status").read_text().splitlines():
@@ -91,8 +125,11 @@ def rss_mb(pid: int) -> float:
 
 
 async def settle(server_pid: int, pool: int, limit_s: float = 300.0) -> None:
-    """Wait until the server has its pool of kernels and they are quiet (preheated): at least
-    ``pool`` kernels alive and under 0.2 CPU seconds spent by the server and its kernels in 2 s."""
+    """Wait until the server has its pool of kernels and they are quiet (preheated): the pool's
+    refill delay passed, at least ``pool`` kernels alive and under 0.2 CPU seconds spent by the
+    server and its kernels in 2 s.  (A kernel count alone can include a closed page's kernel
+    while the pool's replacement still waits out its delay.)"""
+    await asyncio.sleep(POOL_REFILL_DELAY_S + 1)
     deadline = time.monotonic() + limit_s
     while time.monotonic() < deadline:
         ids = kernels(server_pid)
@@ -137,7 +174,7 @@ BARE_NOTEBOOK = {
     "nbformat": 4, "nbformat_minor": 5}
 
 
-async def bare_baseline(burst: int) -> tuple[float, list[float]]:
+async def bare_baseline(burst: int) -> tuple[float, list[float], dict[str, float]]:
     """A bare one-widget page served alike: one page alone (median of 3), then ``burst`` at once."""
     global READY
     import json
@@ -161,7 +198,9 @@ async def bare_baseline(burst: int) -> tuple[float, list[float]]:
                     single.append(t)
                     await page.close(run_before_unload=True)
                     await settle(proc.pid, pool)
+                cpu0 = burst_cpu(proc.pid)
                 results = await asyncio.gather(*(open_page(context, url) for _ in range(burst)))
+                cpu = spent(cpu0, burst_cpu(proc.pid))
                 await browser.close()
         finally:
             READY = ready
@@ -170,7 +209,7 @@ async def bare_baseline(burst: int) -> tuple[float, list[float]]:
                 proc.wait(timeout=30)
             except subprocess.TimeoutExpired:
                 proc.kill()
-    return statistics.median(single), sorted(t for t, _, _ in results)
+    return statistics.median(single), sorted(t for t, _, _ in results), cpu
 
 
 async def run(args) -> dict:
@@ -195,11 +234,11 @@ async def run(args) -> dict:
                     single.append(t)
                     await page.close(run_before_unload=True)
                     await settle(proc.pid, limits.pool_size)  # the pool refilled
-                cpu0 = cpu_s(proc.pid) + sum(cpu_s(k) for k in kernels(proc.pid))
+                cpu0 = burst_cpu(proc.pid)
                 before = set(kernels(proc.pid))
                 results = await asyncio.gather(*(open_page(context, url) for _ in range(args.burst)))
                 burst_kernels = [k for k in kernels(proc.pid) if k not in before]
-                cpu1 = cpu_s(proc.pid) + sum(cpu_s(k) for k in kernels(proc.pid))
+                cpu = spent(cpu0, burst_cpu(proc.pid))
                 await asyncio.sleep(3)
                 idle_mb = [rss_mb(k) for k in kernels(proc.pid)]
                 for _, _, page in results:
@@ -220,7 +259,7 @@ async def run(args) -> dict:
                 proc.kill()
     times = [t for t, _, _ in results]
     med_single = statistics.median(single)
-    bare_single, bare_burst = await bare_baseline(args.burst)
+    bare_single, bare_burst, bare_cpu = await bare_baseline(args.burst)
     return {
         "machine": {"cpus": limits.cpus, "memory_mb": limits.memory_mb},
         "limits": {"max_kernels": limits.max_kernels, "pool": limits.pool_size},
@@ -229,7 +268,8 @@ async def run(args) -> dict:
         "burst_blank": sum(t == float("inf") for t in times),
         "burst_slowest_ratio": max(times) / med_single,
         "churn": args.churn, "kernels_alive_after_churn": alive_after_churn,
-        "idle_page_mb": idle_mb, "cpu_s_per_extra_page": (cpu1 - cpu0) / args.burst,
+        "idle_page_mb": idle_mb, "cpu_s_per_extra_page": (cpu["server"] + cpu["kernels"]) / args.burst,
+        "burst_cpu_s": cpu, "bare_burst_cpu_s": bare_cpu,
         "burst_new_kernels": len(burst_kernels), "outside_requests": len(outside),
         "bare_single_s": bare_single, "bare_burst_s": bare_burst,
         "bare_burst_ratio": max(bare_burst) / bare_single,
@@ -267,6 +307,11 @@ def main(argv: list[str] | None = None) -> int:
               f"(min {min(idle):.0f}, max {max(idle):.0f}, {len(idle)} kernels)")
     print(f"CPU per extra page over the burst (kernels and server): {f['cpu_s_per_extra_page']:.2f} s; "
           f"requests off 127.0.0.1: {f['outside_requests']}")
+    app, bare = f["burst_cpu_s"], f["bare_burst_cpu_s"]
+    print(f"processor time over the burst of {f['burst']}: app server {app['server']:.2f} s, kernels "
+          f"{app['kernels']:.2f} s, browser {app['browser']:.2f} s; bare page server {bare['server']:.2f} s, "
+          f"kernels {bare['kernels']:.2f} s, browser {bare['browser']:.2f} s (the browser runs on the same "
+          f"processors as the server here)")
     return 0
 
 
