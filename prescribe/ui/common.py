@@ -199,10 +199,13 @@ class LazySection:
         return self.widget.selected_index == 0
 
     def open(self) -> None:
-        """Build the section if it is not built yet, and show it open."""
-        self.ensure_built()
+        """Show the section open, and build it if it is not built yet.
+
+        Opened first, built second: the browser then draws the section's widgets into a shown
+        panel (a chart drawn into a closed panel could keep a zero size)."""
         if self.widget.selected_index != 0:
-            self.widget.selected_index = 0
+            self.widget.selected_index = 0  # the toggle observer builds it
+        self.ensure_built()
 
     def ensure_built(self) -> None:
         if self.built or self._building:
