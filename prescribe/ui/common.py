@@ -226,6 +226,22 @@ class LazySection:
             self.ensure_built()
 
 
+class LazyPanel:
+    """A panel shown as a :class:`LazySection`: ``.widget`` is the section, :meth:`open` opens it.
+
+    Subclasses set ``self.section`` in ``__init__``."""
+
+    section: LazySection
+
+    @property
+    def widget(self) -> w.Accordion:
+        return self.section.widget
+
+    def open(self) -> None:
+        """Show the section open, building it if need be."""
+        self.section.open()
+
+
 def own_layout(widget: w.Widget) -> w.Widget:
     """Mark ``widget`` as one whose layout the code changes (shown, hidden): it keeps its own."""
     widget._prescribe_own_layout = True
@@ -247,12 +263,15 @@ def share_plain_models(root: w.Widget) -> int:
     closed = 0
     seen: set[str] = set()
 
+    defaults: dict[type, dict] = {}  # one fresh model of each kind, read once
+
     def is_default(model: w.Widget) -> bool:
-        fresh = type(model)()
-        try:
-            return all(getattr(model, k) == getattr(fresh, k) for k in model.keys if not k.startswith("_"))
-        finally:
+        kind = type(model)
+        if kind not in defaults:
+            fresh = kind()
+            defaults[kind] = {k: getattr(fresh, k) for k in fresh.keys if not k.startswith("_")}
             fresh.close()
+        return all(getattr(model, k) == v for k, v in defaults[kind].items())
 
     def visit(widget: w.Widget) -> None:
         nonlocal closed

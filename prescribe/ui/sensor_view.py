@@ -18,7 +18,7 @@ import ipywidgets as w
 
 from ..errors import InputError, NotFoundError, PrescribeError
 from .cautions_view import SENSOR_CAUTIONS
-from .common import LazySection, cautions_html, guarded
+from .common import LazyPanel, LazySection, cautions_html, guarded
 
 SUFFIXES = (".csv", ".cwa", ".bin")
 #: Largest upload [bytes]: the app server's websocket limit (prescribe/cli/app_cmd.py).
@@ -58,7 +58,7 @@ class PlannedDeliveredChart:
             self.bars.y = [planned, delivered]
 
 
-class SensorPanel:
+class SensorPanel(LazyPanel):
     """Upload, count and compare; ``.widget`` is the section shown in the app."""
 
     def __init__(self, app) -> None:
@@ -68,11 +68,6 @@ class SensorPanel:
         self.week_chart: PlannedDeliveredChart | None = None
         self.section = LazySection("7. Worn sensor: delivered against planned", "pr-section-sensor", self._build,
                                    after=self.show_latest)
-        self.widget = self.section.widget
-
-    def open(self) -> None:
-        """Build the panel (if need be) and show it open."""
-        self.section.open()
 
     def _build(self) -> list:
         """The panel's widgets (built the first time the section is opened)."""

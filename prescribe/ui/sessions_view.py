@@ -23,7 +23,7 @@ from ..errors import InputError, NotFoundError
 from ..plan_schema import parse_day, program_week
 from ..sessions.records import SYMPTOMS, parse_session
 from .cautions_view import LIVE_CAUTIONS
-from .common import ErrorArea, LazySection, cautions_html, esc, guarded
+from .common import ErrorArea, LazyPanel, LazySection, cautions_html, esc, guarded
 
 #: The per-exercise entries, in the order shown: (record field, label, integer?).
 EXERCISE_FIELDS = (("sets_done", "sets", True), ("reps_done", "reps", True), ("impacts_done", "impacts", True),
@@ -95,7 +95,7 @@ class _ExerciseRow:
         return out
 
 
-class SessionsView:
+class SessionsView(LazyPanel):
     """The live-session panel over a :class:`ClinicApp` (its session, store and lock)."""
 
     def __init__(self, app) -> None:
@@ -107,11 +107,6 @@ class SessionsView:
         self.charts = None
         self.section = LazySection("6. Live session: log, advise, adjust", "pr-section-sessions", self._build,
                                    after=self.refresh)
-        self.widget = self.section.widget
-
-    def open(self) -> None:
-        """Build the panel (if need be) and show it open."""
-        self.section.open()
 
     # -- building ---------------------------------------------------------------------------
     def _build(self) -> list:

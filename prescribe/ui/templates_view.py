@@ -26,7 +26,7 @@ from typing import Any
 import ipywidgets as w
 
 from ..errors import FieldProblem, InputError, NotPermittedError, PrescribeError
-from .common import ErrorArea, LazySection, guarded
+from .common import ErrorArea, LazyPanel, LazySection, guarded
 
 _ESC = html.escape
 
@@ -77,7 +77,7 @@ def program_notice_html(session) -> str:
     return f'<div class="pr-notice-box pr-template-notice" role="status">{_esc(text)}</div>' if text else ""
 
 
-class TemplatesView:
+class TemplatesView(LazyPanel):
     """The clinic lead's section over a :class:`~prescribe.ui.session.ClinicSession` (its store)."""
 
     def __init__(self, session, app=None) -> None:
@@ -93,11 +93,6 @@ class TemplatesView:
         self._lock = threading.RLock()
         self.section = LazySection("8. Clinic templates (clinic lead)", "pr-section-templates", self._build,
                                    after=self.refresh)
-        self.widget = self.section.widget
-
-    def open(self) -> None:
-        """Build the section (if need be) and show it open."""
-        self.section.open()
 
     def _build(self) -> list:
         """The section's widgets (built the first time it is opened)."""
