@@ -103,3 +103,73 @@ def test_an_exercise_missing_from_the_catalogue_is_said_in_the_panel(app, monkey
     assert view.result is None and view.figures.value == ""
     assert "cannot be explained" in view.status.value and "exercise_id" in view.status.value
     assert app.errors.last == ""  # the rest of the page is not disturbed
+
+
+def test_a_pick_made_while_the_page_refreshes_in_the_background_is_what_the_panel_shows(app):
+    """The page refreshes from background threads (warm-up, a page taking a preheated kernel)
+    while the clinician's pick arrives in the kernel's own thread: the pick stays, and the
+    words, pictures and figures all describe the exercise the list shows."""
+    import threading
+
+    _submit(app)
+    view = app.explain_view
+    ids = [v for _, v in view.select.options]
+    assert len(ids) >= 2
+    stop = threading.Event()
+
+    def refresher():
+        while not stop.is_set():
+            app.refresh(store=False)
+
+    import sys
+
+    threads = [threading.Thread(target=refresher) for _ in range(2)]
+    interval = sys.getswitchinterval()
+    sys.setswitchinterval(1e-6)  # switch threads as often as possible: the race shows in a few picks
+    for t in threads:
+        t.start()
+    try:
+        for n in range(60):
+            pick = ids[n % len(ids)]
+            view.select.value = pick
+            assert view.select.value == pick  # a refresh of the same program leaves the pick alone
+    finally:
+        stop.set()
+        for t in threads:
+            t.join()
+        sys.setswitchinterval(interval)
+    shown = view.select.value
+    assert shown == ids[59 % len(ids)]
+    assert view.result["exercise_id"] == shown
+    expected = explain_exercise(shown, body_mass_kg=64, t_score=-2.6)
+    words = html.unescape(view.words.value)
+    assert all(sentence in words for sentence in expected["plain_words"])
+    assert f"{expected['joint_contact_force_n']:.0f} N" in view.numbers.value
+
+
+def test_a_refresh_does_not_set_the_list_back_over_a_pick_that_arrived_while_it_ran(app):
+    """The pick lands between the refresh reading the choice and writing the list (the order
+    that once set a clinician's pick back to the first exercise on the page)."""
+    _submit(app)
+    view = app.explain_view
+    ids = [v for _, v in view.select.options]
+    first, last = ids[0], ids[-1]
+    assert view.select.value == first
+    pending = {"pick": last}
+
+    class PickArrivesMidway(type(view.select)):
+        def __setattr__(self, name, value):
+            if name in ("options", "value") and pending.get("pick"):
+                pick = pending.pop("pick")
+                super().__setattr__("value", pick)  # the clinician's pick, from the browser
+            super().__setattr__(name, value)
+
+    view.select.__class__ = PickArrivesMidway
+    try:
+        app.refresh(store=False)
+        if pending.get("pick"):  # the refresh wrote neither list nor choice: the pick comes after it
+            view.select.value = pending.pop("pick")
+    finally:
+        view.select.__class__ = PickArrivesMidway.__mro__[1]
+    assert view.select.value == last
+    assert view.result["exercise_id"] == last

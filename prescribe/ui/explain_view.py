@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import html
 import logging
+import threading
 import traceback
 from typing import Any
 
@@ -61,6 +62,11 @@ class ExplainView:
                               self.cautions])
         self.widget.add_class("pr-explain")
         self._syncing = False
+        self._options: list[tuple[str, str]] = []
+        # A page refresh runs in a background thread (warm-up, a page taking a preheated kernel)
+        # while the clinician's pick arrives in the kernel's own: one at a time, each reading the
+        # choice when it runs, so the last word is always the exercise shown in the list.
+        self._lock = threading.RLock()
 
     # -- state ------------------------------------------------------------------
     def person(self) -> tuple[float | None, float | None]:
@@ -73,21 +79,28 @@ class ExplainView:
     def refresh(self) -> None:
         """Follow the program: offer its exercises, keep the choice where it is still there."""
         exercises = self.session.plan_exercises() if self.session.plan is not None else []
-        keep = self.select.value
-        ids = [i for i, _ in exercises]
-        self._syncing = True
-        try:
-            self.select.options = [(name, i) for i, name in exercises]  # names only: no ids on the page
-            self.select.value = keep if keep in ids else (ids[0] if ids else None)
-        finally:
-            self._syncing = False
-        self.show()
+        options = [(name, i) for i, name in exercises]  # names only: no ids on the page
+        with self._lock:
+            if options != self._options:  # the same list: leave the clinician's pick alone
+                keep = self.select.value
+                ids = [i for _, i in options]
+                self._syncing = True
+                try:
+                    self.select.options = options
+                    self.select.value = keep if keep in ids else (ids[0] if ids else None)
+                    self._options = options
+                finally:
+                    self._syncing = False
+            self.show()
 
     def show(self) -> None:
         """Explain the chosen exercise (or say why there is nothing to show)."""
-        if self._syncing:
-            return
-        exercise_id = self.select.value
+        with self._lock:  # a pick arriving during a refresh waits for it, then shows what is chosen
+            if self._syncing:  # the refresh's own change of list: it shows once it is done
+                return
+            self._show(self.select.value)
+
+    def _show(self, exercise_id: str | None) -> None:
         if not exercise_id:
             self.result = None
             self.status.value = EMPTY

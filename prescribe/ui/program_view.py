@@ -264,9 +264,10 @@ class ProgramView:
         mark = " (this week)" if getattr(plan, "start_date", None) else " (first week)"
         options = [(f"Week {wk.week}" + (mark if wk.week == this else ""), wk.week) for wk in plan.weeks]
         self._plan_shown = plan
-        self.week_select.options = options
-        weeks = [v for _, v in options]
-        self.week_select.value = keep if keep in weeks else this
+        if list(self.week_select.options) != options or keep is None:  # the same weeks: leave the pick alone
+            self.week_select.options = options
+            weeks = [v for _, v in options]
+            self.week_select.value = keep if keep in weeks else this
         self._show_week()
         self.stages.value = stages_html(plan)
 

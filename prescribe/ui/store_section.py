@@ -57,9 +57,11 @@ class StoreSection:
             self.history.value = f'<p class="pr-msg">The store could not be read: {esc(exc)}</p>'
             return
         self.sensor_panel.show_latest()
-        current = self.load_select.value
-        self.load_select.options = [("- choose -", None)] + [(p, p) for p in people]
-        if current in people:
-            self.load_select.value = current
+        options = [("- choose -", None)] + [(p, p) for p in people]
+        if list(self.load_select.options) != options:  # the same people: leave the pick alone
+            current = self.load_select.value
+            self.load_select.options = options
+            if current in people:
+                self.load_select.value = current
         self.history.value = history_html(versions) + program_notice_html(self.session)
         self.templates_view.refresh()  # the drafts waiting for review, once the section is open
