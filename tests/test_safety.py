@@ -151,6 +151,29 @@ def test_impact_cap_at_and_above(plans):
     assert "impact_cap" not in rules_of(check_program(plan))
 
 
+def test_a_relabelled_exercise_is_reported_once_at_its_first_week(plans):
+    # A hand edit gives the program's first impact exercise another impact level in every week it
+    # appears: the other rules read the plan's figures, so the catalogue check refuses it and
+    # names the first week; one line, not one a week (common practice: one message a fault).
+    _, plan = plans["osteopenia"]
+    data = plan.model_dump(mode="json")
+    hits = [(w["week"], x) for w, _, x in exercises(data) if x["impact_level"] >= 1]
+    assert hits
+    target = hits[0][1]["exercise_id"]
+    weeks = sorted({wk for wk, x in hits if x["exercise_id"] == target})
+
+    def relabel(d):
+        for _, _, x in exercises(d, exercise_id=target):
+            x["impact_level"] = 0 if x["impact_level"] else 1
+        recount(d)
+
+    found = [v for v in check_program(edited(plan, relabel)) if v.rule == "catalogue_match"]
+    assert len(found) == 1, [(v.week, v.exercise_id) for v in found]
+    assert found[0].exercise_id == target and found[0].week == weeks[0]
+    assert "impact level" in found[0].message and "catalogue" in found[0].message
+    assert "catalogue_match" not in rules_of(check_program(plan))
+
+
 def test_avoided_pattern(plans):
     # Beck et al. 2017: loaded spine flexion not recommended; the screening lists the patterns.
     _, plan = plans["osteoporosis"]

@@ -77,7 +77,7 @@ def rule_catalogue_match(f: _Facts) -> Iterator[SafetyViolation]:
             wrong.append(f"patterns {sorted(x.patterns)} (catalogue: {sorted(e.patterns)})")
         if not set(x.directions) <= e.directions:
             wrong.append(f"directions {sorted(x.directions)} (catalogue: {sorted(e.directions)})")
-        if wrong and (x.exercise_id, week) not in reported:
+        if wrong and x.exercise_id not in reported:  # once an exercise, at its first wrong week
             reported.add(x.exercise_id)
             yield SafetyViolation("catalogue_match", week, x.exercise_id,
                                   f"{x.exercise_id} is given {'; '.join(wrong)}",
