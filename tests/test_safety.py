@@ -564,3 +564,20 @@ def test_refusal_names_rule_week_exercise_and_what_is_allowed(plans):
                                             ("70 % of 1RM", 70, None), ("", None, None)])
 def test_intensity_parsing(text, pct, rpe):
     assert pct_1rm(text) == pct and rpe_top(text) == rpe
+
+
+def test_every_part_reads_intensity_text_with_the_one_reader():
+    # One reader for the plan's intensity text: the planner's week figures, the safety check, the
+    # session advice, the handout and the app cannot read different loads from the same words.
+    import prescribe.intensity as intensity
+    from prescribe.handout import content
+    from prescribe.planning import dosing
+    from prescribe.sessions import engine
+    from prescribe.ui import program_model
+
+    for reader in (pct_1rm, content.pct_1rm, dosing._pct_1rm, engine.pct_1rm, program_model.pct_1rm):
+        assert reader is intensity.pct_1rm
+    # A hand-written range gives its top in every part (the check and the week figure agree).
+    assert dosing.prescribed_pct_1rm([{"intensity": "80-85% 1RM"}, {"intensity": "70 % of 1 RM"}]) == 85
+    # LIFTMOR's supervised loads began at 80% 1RM (Watson et al. 2018, J Bone Miner Res 33:211-220).
+    assert program_model.SUPERVISED_FROM_PCT_1RM == intensity.SUPERVISED_FROM_PCT_1RM == 80

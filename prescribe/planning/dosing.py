@@ -9,13 +9,12 @@ editing of a plan (:mod:`prescribe.planning.editing`).
 from __future__ import annotations
 
 import math
-import re
 from functools import lru_cache
 from typing import Any, Iterable
 
 from ..loading.dose import daily_osteogenic_index, osteogenic_index
 from .rules import ResistancePhase
-from .safety import SUPERVISED_FROM_PCT_1RM, pct_1rm as _pct_1rm
+from ..intensity import SUPERVISED_FROM_PCT_1RM, pct_1rm as _pct_1rm
 from .selection import _Ex
 from .sources import (IMPACT_REST_S, IMPACTS_PER_SET, LIFT_PRACTICE_PCT, LIFT_PRACTICE_REPS, LIFT_PRACTICE_SETS,
                       MIN_BOUT_GAP_H, STEPS_PER_MINUTE)
@@ -30,13 +29,10 @@ def prescribed_pct_1rm(exercises: Iterable[Any]) -> float | None:
     found = []
     for x in exercises:
         text = x.get("intensity") if isinstance(x, dict) else getattr(x, "intensity", "")
-        match = _PCT_1RM_TEXT.search(text or "")
-        if match:
-            found.append(float(match.group(1)))
+        pct = _pct_1rm(text)
+        if pct is not None:
+            found.append(pct)
     return max(found) if found else None
-
-
-_PCT_1RM_TEXT = re.compile(r"(\d+(?:\.\d+)?)\s*%\s*(?:of\s+)?1\s*RM", re.IGNORECASE)
 
 
 def _rpe_for(pct: float | None, fallback: str) -> str:

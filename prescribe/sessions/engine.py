@@ -25,20 +25,18 @@ Pure domain code: no store, no widgets; plans are plain dicts in and out.
 
 from __future__ import annotations
 
-import re
 from dataclasses import dataclass, field
-from functools import lru_cache
 from datetime import date
 from statistics import mean
 from typing import Any, Iterable
 
 from ..cautions import with_standard
+from ..intensity import pct_1rm
 from ..plan_schema import WEAK_WINDOW_WEEKS, Plan, in_weak_window, program_week
 from .loads import MAX_REPS_FOR_ESTIMATE, brzycki_1rm, round_load
 from .records import SessionRecord
 from .rules import RANK, SessionRule, SessionRuleSet, default_rules
 
-_PCT = re.compile(r"(\d+(?:\.\d+)?)\s*%\s*1RM", re.I)
 #: How far back each decision takes week W's dose (weeks).
 STEP = {"progress": 0, "hold": 1, "step_back": 2, "stop_and_refer": 0}
 
@@ -86,12 +84,6 @@ def plan_start(plan: dict) -> date:
     """The plan's start_date; an older plan without one starts on the day it was created."""
     text = plan.get("start_date") or str(plan.get("created", ""))[:10]
     return date.fromisoformat(text)
-
-
-@lru_cache(maxsize=256)
-def pct_1rm(intensity: str | None) -> float | None:
-    m = _PCT.search(intensity or "")
-    return float(m.group(1)) if m else None
 
 
 def week_dose(week: dict) -> tuple[float, ...]:

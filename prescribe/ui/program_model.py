@@ -18,11 +18,11 @@ from dataclasses import dataclass, field
 from datetime import date, datetime, timedelta
 from typing import Any, Iterable
 
-from ..handout.content import DAY_NAMES, LEVEL_LABELS, pct_1rm
+from ..handout.content import DAY_NAMES, LEVEL_LABELS
+from ..intensity import SUPERVISED_FROM_PCT_1RM, pct_1rm
 
 #: The supervision rule's threshold of load (PRODUCT.md: supervision wherever 80% 1RM or
 #: more, or high impact, is prescribed).
-SUPERVISED_FROM_PCT_1RM = 80.0
 SUPERVISED_FROM_LEVEL = 3
 
 _RPE = re.compile(r"RPE\s*(\d+(?:\.\d+)?)(?:\s*-\s*(\d+(?:\.\d+)?))?", re.IGNORECASE)

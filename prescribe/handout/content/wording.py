@@ -6,6 +6,7 @@ from __future__ import annotations
 import re
 
 from ...catalogue import IMPACT_LEVEL_LABELS
+from ...intensity import pct_1rm
 from ...plan_schema import PlannedExercise
 
 DAY_NAMES = ("Monday", "Tuesday", "Wednesday", "Thursday", "Friday", "Saturday", "Sunday")
@@ -16,15 +17,6 @@ LEVEL_LABELS = IMPACT_LEVEL_LABELS
 LEVEL_EXAMPLES = {0: "feet stay on the floor", 1: "like brisk walking", 2: "like skipping or gentle stamps",
                   3: "like jumps and hops"}
 LEVEL_WORDS = {level: f"{label} ({LEVEL_EXAMPLES[level]})" for level, label in IMPACT_LEVEL_LABELS.items()}
-
-_PCT_1RM = re.compile(r"(\d+(?:\.\d+)?)\s*%\s*(?:of\s+)?1\s*RM", re.IGNORECASE)
-
-
-def pct_1rm(intensity: str) -> float | None:
-    """The ``NN`` of an intensity such as ``"80% 1RM"``, or None."""
-    match = _PCT_1RM.search(intensity or "")
-    return float(match.group(1)) if match else None
-
 
 def week_range(first: int, last: int) -> str:
     return f"Week {first}" if first == last else f"Weeks {first}-{last}"

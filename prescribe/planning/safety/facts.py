@@ -7,11 +7,10 @@ kept fast: ``benchmarks/bench_safety.py``).
 
 from __future__ import annotations
 
-import re
 from dataclasses import dataclass, field
-from functools import lru_cache
 from typing import Iterator
 
+from ...intensity import pct_1rm, rpe_top  # noqa: F401 - read by the rules through this module
 from ...plan_schema import Plan
 from ...records import PatientRecord
 from .model import Limits
@@ -20,29 +19,6 @@ from .model import Limits
 STRENGTH_CATEGORIES = frozenset({"resistance", "back_extensor", "posture"})
 _BALANCE_RANK = {"none": 0, "low": 1, "moderate": 2, "high": 3}
 
-_PCT_1RM = re.compile(r"(\d+(?:\.\d+)?)\s*(?:[-\u2013to ]+\s*(\d+(?:\.\d+)?))?\s*%\s*(?:of\s*)?1\s*-?\s*RM",
-                      re.IGNORECASE)
-
-
-@lru_cache(maxsize=1024)
-def pct_1rm(intensity: str | None) -> float | None:
-    """The highest %1RM an intensity text prescribes ("80% 1RM", "80-85% 1RM"), or None."""
-    if not intensity:
-        return None
-    found = [float(b or a) for a, b in _PCT_1RM.findall(intensity)]
-    return max(found) if found else None
-
-
-_RPE = re.compile(r"RPE\s*(\d+(?:\.\d+)?)(?:\s*[-\u2013]\s*(\d+(?:\.\d+)?))?", re.IGNORECASE)
-
-
-@lru_cache(maxsize=1024)
-def rpe_top(intensity: str | None) -> float | None:
-    """The highest Borg CR10 effort an intensity text prescribes ("RPE 5-6" gives 6), or None."""
-    if not intensity:
-        return None
-    found = [float(b or a) for a, b in _RPE.findall(intensity)]
-    return max(found) if found else None
 
 
 @dataclass(frozen=True)

@@ -5,7 +5,8 @@ from __future__ import annotations
 
 from typing import Iterator
 
-from .facts import STRENGTH_CATEGORIES, _Facts, pct_1rm, rpe_top
+from ...intensity import SUPERVISED_FROM_PCT_1RM, pct_1rm, rpe_top
+from .facts import STRENGTH_CATEGORIES, _Facts
 from .model import SafetyViolation
 
 SRC_SPINE = ("Giangregorio et al. 2014, Osteoporos Int 25:821-835 (Too Fit To Fracture: spine-sparing "
@@ -19,9 +20,6 @@ SRC_SUPERVISION = ("Watson et al. 2018, J Bone Miner Res 33:211-220 (LIFTMOR: 5 
 SRC_RESISTANCE_DAYS = ("Kohrt et al. 2004, Med Sci Sports Exerc 36:1985-1996 (resistance exercise 2-3 times a "
                        "week); a rest day between resistance sessions is common practice")
 
-#: From this intensity on, resistance work is supervised (Watson et al. 2018, LIFTMOR: every
-#: session at 80-85% 1RM and above was supervised).
-SUPERVISED_FROM_PCT_1RM = 80.0
 
 #: Spine-sparing limits for resistance work (see SRC_SPINE).
 SPINE_MAX_SETS = 3

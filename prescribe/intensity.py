@@ -1,0 +1,40 @@
+"""Reading a plan's intensity text: the one reader of "% 1RM" and "RPE" figures.
+
+An exercise's ``intensity`` is free text in the plan ("70% 1RM", "80-85% 1RM", "RPE 5-6",
+"body weight"), written by the planner, a template or a hand edit. The planner's weekly
+figures, the safety check, the session advice, the handout and the app all read it here, so
+none of them can read a different load from the same words.
+"""
+
+from __future__ import annotations
+
+import re
+from functools import lru_cache
+
+#: From this intensity on, resistance work is supervised (Watson et al. 2018, J Bone Miner Res
+#: 33:211-220, LIFTMOR: every session at 80-85% 1RM and above was supervised).
+SUPERVISED_FROM_PCT_1RM = 80.0
+
+# "80% 1RM", "80 % of 1 RM", "80-85% 1RM", "80 to 85% 1-RM" (a range gives its top).
+_PCT_1RM = re.compile(r"(\d+(?:\.\d+)?)\s*(?:[-\u2013to ]+\s*(\d+(?:\.\d+)?))?\s*%\s*(?:of\s*)?1\s*-?\s*RM",
+                      re.IGNORECASE)
+# "RPE 5", "RPE 5-6" (Borg CR10 effort; a range gives its top).
+_RPE = re.compile(r"RPE\s*(\d+(?:\.\d+)?)(?:\s*[-\u2013]\s*(\d+(?:\.\d+)?))?", re.IGNORECASE)
+
+
+@lru_cache(maxsize=1024)
+def pct_1rm(intensity: str | None) -> float | None:
+    """The highest %1RM an intensity text prescribes ("80% 1RM", "80-85% 1RM" gives 85), or None."""
+    if not intensity:
+        return None
+    found = [float(b or a) for a, b in _PCT_1RM.findall(intensity)]
+    return max(found) if found else None
+
+
+@lru_cache(maxsize=1024)
+def rpe_top(intensity: str | None) -> float | None:
+    """The highest Borg CR10 effort an intensity text prescribes ("RPE 5-6" gives 6), or None."""
+    if not intensity:
+        return None
+    found = [float(b or a) for a, b in _RPE.findall(intensity)]
+    return max(found) if found else None
