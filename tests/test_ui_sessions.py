@@ -107,3 +107,17 @@ def test_log_shows_the_advice_at_once_and_apply_stores_the_new_version(app, tmp_
     pain = charts.pain.y[0]
     assert pain[6] == 7 and all(math.isnan(v) for i, v in enumerate(pain) if i != 6)
     assert list(charts.shades[0].y[:6]) == [0, 0, 1, 1, 1, 0]
+
+
+def test_the_clinicians_name_is_typed_once_for_the_page(app):
+    # Common practice: a form asks once for who is working. The save, live-session and template
+    # fields follow each other, and the panels built when opened start from the name already typed.
+    app.clinician.value = "PT Ash (invented)"
+    app.live.open()
+    assert app.live.clinician.value == "PT Ash (invented)"
+    app.templates_view.widget.selected_index = 0  # opening the section builds it
+    assert app.templates_view.clinician.value == "PT Ash (invented)"
+    app.live.clinician.value = "PT Ash B (invented)"
+    assert app.clinician.value == app.templates_view.clinician.value == "PT Ash B (invented)"
+    app.clinician.value = ""  # emptied in one place, empty in all: no save under an old name
+    assert app.live.clinician.value == app.templates_view.clinician.value == ""

@@ -24,7 +24,8 @@ import ipywidgets as w
 
 from .cautions_view import section_cautions
 from .clinic_view import ClinicSettingsForm
-from .common import STYLE, ErrorArea, cautions_box, cautions_html, guarded, section_box, share_plain_models
+from .common import (STYLE, ErrorArea, SharedName, cautions_box, cautions_html, guarded, section_box,
+                     share_plain_models)
 from .explain_view import ExplainView
 from .handout_section import HandoutSection
 from .intake_view import IntakeForm, screening_html
@@ -58,6 +59,7 @@ class ClinicApp(PersonSection, ProgramSection, HandoutSection, StoreSection):
         self.section_caution_boxes: dict[str, w.HTML] = {}
         self.errors = ErrorArea()
         self._syncing = False
+        self.names = SharedName()  # the clinician's name, typed once for the page's fields
         self.intake = IntakeForm(self.errors)
         self._build_person_section()
         self.screening_view = w.HTML("")

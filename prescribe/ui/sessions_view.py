@@ -141,6 +141,7 @@ class SessionsView(LazyPanel):
         self.clinician = w.Text(value=getattr(self.app.session, "clinician", ""), description="Clinician *",
                                 placeholder="your name or initials")
         self.clinician.add_class("pr-live-clinician")
+        self.app.names.add(self.clinician)
         self.log_button = w.Button(description="Log session and advise", button_style="primary",
                                    layout=w.Layout(width="auto"))
         self.log_button.add_class("pr-live-log")

@@ -20,6 +20,7 @@ class StoreSection:
                                 tooltip=("your login: every save is recorded under it" if login else
                                          "your name or initials, recorded with every save"))
         self.clinician.add_class("pr-store-clinician")
+        self.names.add(self.clinician)  # typed once for the page (common.SharedName)
         if login is not None:
             self.clinician.add_class("pr-store-clinician-login")
         self.save_note = w.Text(value="", description="Note", placeholder="why this version (optional)",

@@ -116,6 +116,8 @@ class TemplatesView(LazyPanel):
         self.clinician = w.Text(value=getattr(session, "clinician", "") or "", description="Clinician *",
                                 placeholder="your name or initials", disabled=login is not None)
         self.clinician.add_class("pr-tpl-clinician")
+        if self.app is not None:
+            self.app.names.add(self.clinician)
 
         # Drafts waiting for a clinic lead: the quickest way to approve one.
         self.role = html_box("pr-template-role")
