@@ -131,6 +131,9 @@ def test_adherence_under_two_thirds_repeats_the_week(plan):
     assert _decide(plan, done[:4], 7).decision == "progress"  # 4/5
     advice = _decide(plan, done[:3], 7)  # 3/5 = 0.6
     assert advice.decision == "hold" and _rules(advice) == ["session.adherence_low"]
+    # The clinician learns why, and that home sessions count once logged (common practice).
+    assert "3 of 5 sessions in week 6" in advice.reasons[0]["message"]
+    assert "at home count once each is logged with its date" in advice.reasons[0]["message"]
     assert advice.changes[0].startswith("week 7 repeats the dose of week 6")
     assert advice.program["weeks"][6]["dose_of_week"] == 6
 

@@ -76,6 +76,10 @@ class Advice:
 # small readers of a plan dict
 # ---------------------------------------------------------------------------------------
 
+#: Said with a low adherence: only logged sessions count, and a clinic often sees the person
+#: once a week while the other sessions are done at home.
+HOME_SESSIONS_COUNT = "; sessions the person did at home count once each is logged with its date"
+
 def plan_dict(plan: Plan | dict) -> dict:
     return plan.model_dump(mode="json") if isinstance(plan, Plan) else plan
 
@@ -241,7 +245,7 @@ def _evaluate(rules: SessionRuleSet, plan: dict, sessions: list[LoggedSession], 
             elif k == "break_days_at_least" and (today - start).days >= int(p["days"]):
                 fired.append(_reason(rule, f"nothing logged in the {(today - start).days} days since the start"))
             elif k == "adherence_below" and week >= 2:
-                fired.append(_reason(rule, f"0 sessions logged in week {week - 1}"))
+                fired.append(_reason(rule, f"0 sessions logged in week {week - 1}{HOME_SESSIONS_COUNT}"))
         elif k == "pain_during_above":
             if latest.record.pain_during > p["above"]:
                 fired.append(_reason(rule, f"{latest.record.pain_during}/10 on {latest.record.session_date}"))
@@ -273,7 +277,7 @@ def _evaluate(rules: SessionRuleSet, plan: dict, sessions: list[LoggedSession], 
                 planned = len({s.get("day") for s in weeks[last - 1].get("sessions", [])})
                 done = len({s.record.session_date for s in sessions if s.week == last})
                 if planned and done / planned < float(p["fraction"]):
-                    fired.append(_reason(rule, f"{done} of {planned} sessions in week {last}"))
+                    fired.append(_reason(rule, f"{done} of {planned} sessions in week {last}{HOME_SESSIONS_COUNT}"))
         elif k == "break_days_at_least":
             gap = (today - latest.record.day).days
             if gap >= int(p["days"]):
