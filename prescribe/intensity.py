@@ -22,19 +22,21 @@ _PCT_1RM = re.compile(r"(\d+(?:\.\d+)?)\s*(?:[-\u2013to ]+\s*(\d+(?:\.\d+)?))?\s
 _RPE = re.compile(r"RPE\s*(\d+(?:\.\d+)?)(?:\s*[-\u2013]\s*(\d+(?:\.\d+)?))?", re.IGNORECASE)
 
 
+def _top(pattern: re.Pattern, intensity: str | None) -> float | None:
+    """The highest figure ``pattern`` finds in the text (a range's top), or None."""
+    if not intensity:
+        return None
+    found = [float(b or a) for a, b in pattern.findall(intensity)]
+    return max(found) if found else None
+
+
 @lru_cache(maxsize=1024)
 def pct_1rm(intensity: str | None) -> float | None:
     """The highest %1RM an intensity text prescribes ("80% 1RM", "80-85% 1RM" gives 85), or None."""
-    if not intensity:
-        return None
-    found = [float(b or a) for a, b in _PCT_1RM.findall(intensity)]
-    return max(found) if found else None
+    return _top(_PCT_1RM, intensity)
 
 
 @lru_cache(maxsize=1024)
 def rpe_top(intensity: str | None) -> float | None:
     """The highest Borg CR10 effort an intensity text prescribes ("RPE 5-6" gives 6), or None."""
-    if not intensity:
-        return None
-    found = [float(b or a) for a, b in _RPE.findall(intensity)]
-    return max(found) if found else None
+    return _top(_RPE, intensity)
