@@ -429,3 +429,25 @@ def test_widgets_share_their_default_layout_and_no_change_reaches_the_others(tmp
     app.on_new()
     assert {k: getattr(shared, k) for k in defaults} == defaults
     assert app.clearance.controls.layout is not shared and app.program_view.swap.confirm_box.layout is not shared
+
+
+def test_a_list_refreshed_with_its_options_keeps_the_clinicians_pick():
+    # Common practice for forms: refreshing a list never moves the user's choice.
+    import ipywidgets as w
+
+    from prescribe.ui.common import set_options
+
+    people = w.Dropdown(options=[])
+    assert people.value is None
+    assert set_options(people, [("- choose -", None), ("A", "A"), ("B", "B")])
+    assert people.value is None  # the first option ("- choose -") is chosen
+    week = w.Dropdown(options=[])
+    assert set_options(week, [("Week 1", 1), ("Week 2", 2)]) and week.value == 1  # nothing chosen before
+    week.value = 2
+    changes = []
+    week.observe(changes.append, names="value")
+    assert not set_options(week, [("Week 1", 1), ("Week 2", 2)])  # the same list: left alone
+    assert week.value == 2 and changes == []
+    assert set_options(week, [("Week 1", 1), ("Week 2", 2), ("Week 3", 3)]) and week.value == 2  # still offered
+    assert set_options(week, [("Week 1", 1), ("Week 3", 3)], fallback=3) and week.value == 3  # gone: the fallback
+    assert set_options(week, [("Week 4", 4), ("Week 5", 5)], fallback=9) and week.value == 4  # no fallback: first

@@ -336,3 +336,30 @@ class SharedName:
                     field.value = change["new"]
         finally:
             self._busy = False
+
+
+_FIRST = object()
+
+
+def set_options(dropdown: w.Dropdown, options, fallback=_FIRST) -> bool:
+    """Give a list its options, keeping the clinician's pick.
+
+    A page is refreshed from background threads too (the warm-up, a page taking a preheated
+    kernel) while the clinician picks: a list whose options have not changed is left alone, so
+    a pick that arrives during a refresh is never set back.  When they change, the pick stays
+    where it is still offered, else ``fallback`` is chosen (by default the first option).
+    Returns whether the options changed.
+    """
+    options = list(options)
+    if list(dropdown.options) == options:
+        return False
+    keep = dropdown.value
+    values = [v for _, v in options]
+    dropdown.options = options
+    if keep in values:
+        dropdown.value = keep
+    elif fallback is not _FIRST and fallback in values:
+        dropdown.value = fallback
+    elif values:  # a list that had nothing chosen would stay so: choose the first
+        dropdown.value = values[0]
+    return True

@@ -23,7 +23,7 @@ import ipywidgets as w
 
 from ..errors import PrescribeError
 from .cautions_view import specific
-from .common import cautions_html
+from .common import cautions_html, set_options
 
 log = logging.getLogger("prescribe.ui")
 
@@ -62,7 +62,6 @@ class ExplainView:
                               self.cautions])
         self.widget.add_class("pr-explain")
         self._syncing = False
-        self._options: list[tuple[str, str]] = []
         # A page refresh runs in a background thread (warm-up, a page taking a preheated kernel)
         # while the clinician's pick arrives in the kernel's own: one at a time, each reading the
         # choice when it runs, so the last word is always the exercise shown in the list.
@@ -81,16 +80,11 @@ class ExplainView:
         exercises = self.session.plan_exercises() if self.session.plan is not None else []
         options = [(name, i) for i, name in exercises]  # names only: no ids on the page
         with self._lock:
-            if options != self._options:  # the same list: leave the clinician's pick alone
-                keep = self.select.value
-                ids = [i for _, i in options]
-                self._syncing = True
-                try:
-                    self.select.options = options
-                    self.select.value = keep if keep in ids else (ids[0] if ids else None)
-                    self._options = options
-                finally:
-                    self._syncing = False
+            self._syncing = True  # the list's own change of value shows once, below
+            try:
+                set_options(self.select, options)
+            finally:
+                self._syncing = False
             self.show()
 
     def show(self) -> None:

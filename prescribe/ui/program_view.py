@@ -16,7 +16,7 @@ import ipywidgets as w
 
 from ..errors import InputError
 from . import program_model as pm
-from .common import own_layout
+from .common import own_layout, set_options
 from .wording import exercise_names, plain
 
 CSS = """
@@ -264,10 +264,8 @@ class ProgramView:
         mark = " (this week)" if getattr(plan, "start_date", None) else " (first week)"
         options = [(f"Week {wk.week}" + (mark if wk.week == this else ""), wk.week) for wk in plan.weeks]
         self._plan_shown = plan
-        if list(self.week_select.options) != options or keep is None:  # the same weeks: leave the pick alone
-            self.week_select.options = options
-            weeks = [v for _, v in options]
-            self.week_select.value = keep if keep in weeks else this
+        if not set_options(self.week_select, options, fallback=this) and keep is None:
+            self.week_select.value = this  # a new program with the same weeks opens on this week
         self._show_week()
         self.stages.value = stages_html(plan)
 

@@ -23,7 +23,7 @@ from ..errors import InputError, NotFoundError
 from ..plan_schema import parse_day, program_week
 from ..sessions.records import SYMPTOMS, parse_session
 from .cautions_view import LIVE_CAUTIONS
-from .common import ErrorArea, LazyPanel, LazySection, cautions_html, esc, guarded
+from .common import ErrorArea, LazyPanel, LazySection, cautions_html, esc, guarded, set_options
 
 #: The per-exercise entries, in the order shown: (record field, label, integer?).
 EXERCISE_FIELDS = (("sets_done", "sets", True), ("reps_done", "reps", True), ("impacts_done", "impacts", True),
@@ -245,10 +245,8 @@ class SessionsView(LazyPanel):
         names = {1: "Mon", 2: "Tue", 3: "Wed", 4: "Thu", 5: "Fri", 6: "Sat", 7: "Sun"}
         options = [(f"day {d} ({names[d]}): " + " + ".join(s["kind"] for s in wk["sessions"] if s["day"] == d), d)
                    for d in days]
-        keep = self.day.value
-        self.day.options = options
         today = parse_day(self.date.value, "date").isoweekday() if self._date_ok() else None
-        self.day.value = keep if keep in days else (today if today in days else (days[0] if days else None))
+        set_options(self.day, options, fallback=today)
         self._build_rows()
         self._refresh_charts()
 

@@ -5,7 +5,7 @@ from __future__ import annotations
 import ipywidgets as w
 
 from ..errors import PrescribeError
-from .common import esc, guarded
+from .common import esc, guarded, set_options
 from .history_view import history_html
 from .templates_view import program_notice_html
 
@@ -58,11 +58,6 @@ class StoreSection:
             self.history.value = f'<p class="pr-msg">The store could not be read: {esc(exc)}</p>'
             return
         self.sensor_panel.show_latest()
-        options = [("- choose -", None)] + [(p, p) for p in people]
-        if list(self.load_select.options) != options:  # the same people: leave the pick alone
-            current = self.load_select.value
-            self.load_select.options = options
-            if current in people:
-                self.load_select.value = current
+        set_options(self.load_select, [("- choose -", None)] + [(p, p) for p in people])
         self.history.value = history_html(versions) + program_notice_html(self.session)
         self.templates_view.refresh()  # the drafts waiting for review, once the section is open

@@ -26,7 +26,7 @@ from typing import Any
 import ipywidgets as w
 
 from ..errors import FieldProblem, InputError, NotPermittedError, PrescribeError
-from .common import ErrorArea, LazyPanel, LazySection, guarded
+from .common import ErrorArea, LazyPanel, LazySection, guarded, set_options
 
 _ESC = html.escape
 
@@ -288,9 +288,7 @@ class TemplatesView(LazyPanel):
                                             "review_by", "change_note"], "pr-tpl-list-table")
         refs = [(f"{v.ref} ({v.status}, {v.origin})", v.ref) for v in versions]
         for dd in (self.select, self.compare_a, self.compare_b, self.whatif_template):
-            keep = dd.value
-            dd.options = refs
-            dd.value = keep if keep in [r for _, r in refs] else (refs[0][1] if refs else None)
+            set_options(dd, refs)
         if self.compare_b.value == self.compare_a.value and len(refs) > 1:
             self.compare_b.value = refs[1][1]
         self.loaded = True
@@ -308,10 +306,7 @@ class TemplatesView(LazyPanel):
         self.role.value = f"<p>Signed in as <b>{shown}</b>, role: <b class='pr-role'>{role}</b>.</p>"
         options = [(f"{t['name']} v{t['version']} (by {t['created_by']})", f"{t['name']}@{t['version']}")
                    for t in self.session.draft_templates()]
-        current = self.drafts.value
-        self.drafts.options = options or [("- no drafts -", None)]
-        if current in [v for _, v in options]:
-            self.drafts.value = current
+        set_options(self.drafts, options or [("- no drafts -", None)])
 
     @guarded("Approving the template")
     def on_approve_draft(self) -> None:
