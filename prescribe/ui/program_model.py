@@ -21,8 +21,8 @@ from typing import Any, Iterable
 from ..handout.content import DAY_NAMES, LEVEL_LABELS
 from ..intensity import SUPERVISED_FROM_PCT_1RM, pct_1rm
 
-#: The supervision rule's threshold of load (PRODUCT.md: supervision wherever 80% 1RM or
-#: more, or high impact, is prescribed).
+#: The supervision rule's thresholds (PRODUCT.md: supervision wherever 80% 1RM or more, or
+#: high impact, is prescribed): the load's is SUPERVISED_FROM_PCT_1RM (prescribe.intensity).
 SUPERVISED_FROM_LEVEL = 3
 
 _RPE = re.compile(r"RPE\s*(\d+(?:\.\d+)?)(?:\s*-\s*(\d+(?:\.\d+)?))?", re.IGNORECASE)

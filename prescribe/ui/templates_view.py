@@ -287,9 +287,8 @@ class TemplatesView(LazyPanel):
         self.list_box.value = _table(rows, ["ref", "status", "origin", "author", "approver", "approved_at",
                                             "review_by", "change_note"], "pr-tpl-list-table")
         refs = [(f"{v.ref} ({v.status}, {v.origin})", v.ref) for v in versions]
-        for dd in (self.select, self.compare_a, self.compare_b, self.whatif_template):
-            set_options(dd, refs)
-        if self.compare_b.value == self.compare_a.value and len(refs) > 1:
+        changed = [set_options(dd, refs) for dd in (self.select, self.compare_a, self.compare_b, self.whatif_template)]
+        if any(changed) and self.compare_b.value == self.compare_a.value and len(refs) > 1:  # a new list: A and B differ
             self.compare_b.value = refs[1][1]
         self.loaded = True
         self._refresh_drafts()
