@@ -18,9 +18,6 @@ from .rules import Template
 from .sources import (BALANCE_FIRST_WEEKS, BALANCE_STAGE_WEEKS, BALANCE_STAGE_WEEKS_FALLS, FRAIL_BODYWEIGHT_WEEKS,
                       NEVER_IN_RESISTANCE, RESISTANCE_CHAINS_MAX, SRC_ACSM_PROGRESSION, SRC_BROOKE, SRC_GIANG)
 
-_BALANCE_RANK = {"none": 0, "low": 1, "moderate": 2, "high": 3}
-
-
 @dataclass(frozen=True)
 class _Ex:
     """The planner's view of one catalogue entry (read once per catalogue)."""
@@ -54,7 +51,7 @@ def _views(catalogue) -> list[_Ex]:
             exercise_id=e.exercise_id, name=e.name, category=e.category,
             impact_level=int(e.impact_level), peak_grf_bw=float(e.peak_grf_bw),
             directions=tuple(e.directions), patterns=frozenset(e.patterns),
-            balance_rank=_BALANCE_RANK.get(getattr(e, "balance_demand", "low"), 1),
+            balance_rank=e.balance_demand_rank,
             dose_unit=getattr(e, "dose_unit", "reps"),
             progression=getattr(e, "progression", None), regression=getattr(e, "regression", None),
             spine_sparing=bool(getattr(e, "spine_sparing", False)),

@@ -17,8 +17,6 @@ from .model import Limits
 
 #: Categories of strength-type work (resistance, back extensors, posture).
 STRENGTH_CATEGORIES = frozenset({"resistance", "back_extensor", "posture"})
-_BALANCE_RANK = {"none": 0, "low": 1, "moderate": 2, "high": 3}
-
 
 
 @dataclass(frozen=True)
@@ -63,7 +61,7 @@ def _catalogue_entries(catalogue) -> dict[str, _CatEntry]:
         out[e.exercise_id] = _CatEntry(
             exercise_id=e.exercise_id, category=e.category, impact_level=int(e.impact_level),
             peak_grf_bw=float(e.peak_grf_bw), directions=frozenset(e.directions), patterns=frozenset(e.patterns),
-            dose_unit=e.dose_unit, balance_rank=_BALANCE_RANK.get(e.balance_demand, 1),
+            dose_unit=e.dose_unit, balance_rank=e.balance_demand_rank,
             spine_sparing=bool(e.spine_sparing),
             loaded=bool(e.loaded_by_1rm or e.grf_plus_external_load)
             or any(w in equipment for w in ("dumbbell", "kettlebell", "barbell", "band", "plates", "bar")),
