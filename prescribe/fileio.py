@@ -143,6 +143,17 @@ def parse_json_text(text: str, what: str = "JSON document", max_depth: int = JSO
     return data
 
 
+def read_text_file(path: str | Path, what: str = "file", kind: str = "text file") -> str:
+    """The UTF-8 text of a file; a missing, unreadable or non-UTF-8 file is bad input naming ``what``."""
+    try:
+        return Path(path).read_text(encoding="utf-8")
+    except FileNotFoundError:
+        raise InputError.single(what, str(path), f"an existing, readable {'file' if kind == 'text file' else kind}"
+                                ) from None
+    except (IsADirectoryError, PermissionError, UnicodeDecodeError) as exc:
+        raise InputError.single(what, str(path), f"a readable UTF-8 {kind} ({exc.__class__.__name__})") from None
+
+
 def read_json_file(path: str | Path, what: str = "file", max_bytes: int = JSON_MAX_BYTES,
                    max_depth: int = JSON_MAX_DEPTH) -> object:
     """Read a JSON file, turning every failure into an :class:`InputError` naming ``what``.
@@ -153,12 +164,7 @@ def read_json_file(path: str | Path, what: str = "file", max_bytes: int = JSON_M
     """
     p = Path(path)
     check_file_size(p, what, max_bytes)
-    try:
-        text = p.read_text(encoding="utf-8")
-    except FileNotFoundError:
-        raise InputError.single(what, str(path), "an existing, readable file") from None
-    except (IsADirectoryError, PermissionError, UnicodeDecodeError) as exc:
-        raise InputError.single(what, str(path), f"a readable UTF-8 text file ({exc.__class__.__name__})") from None
+    text = read_text_file(p, what)
     try:
         return parse_json_text(text, what, max_depth)
     except InputError as err:

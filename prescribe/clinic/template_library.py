@@ -26,6 +26,7 @@ from pathlib import Path
 from typing import Any
 
 from ..errors import FieldProblem, InputError, NotFoundError
+from ..fileio import read_text_file
 from ..planning.rules import TEMPLATE_DIR, Template, TemplateError, parse_template, template_names, template_problems
 
 SHIPPED_AUTHOR = "prescribe (shipped with the package)"
@@ -182,14 +183,7 @@ def resolve(ref: str, store=None, *, purpose: str = "plan", field: str = "--temp
 
 def read_document(path: str | Path, field: str = "FILE.toml") -> dict:
     """A template document from a TOML file (InputError for an unreadable or malformed file)."""
-    p = Path(path)
-    try:
-        text = p.read_text(encoding="utf-8")
-    except FileNotFoundError:
-        raise InputError.single(field, str(path), "an existing, readable TOML file") from None
-    except (IsADirectoryError, PermissionError, UnicodeDecodeError) as exc:
-        raise InputError.single(field, str(path), f"a readable UTF-8 TOML file ({exc.__class__.__name__})") from None
-    return parse_document(text, str(path), field)
+    return parse_document(read_text_file(path, field, "TOML file"), str(path), field)
 
 
 def parse_document(text: str, where: str = "template", field: str = "FILE.toml") -> dict:
