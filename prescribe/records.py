@@ -13,15 +13,22 @@ each naming the field, the value and what is allowed.
 from __future__ import annotations
 
 import math
+import re
 from pathlib import Path
 from typing import Any, Literal
 
-from pydantic import BaseModel, ConfigDict, Field, ValidationError, field_validator
+from pydantic import BaseModel, ConfigDict, Field, ValidationError, field_validator, model_serializer, model_validator
+from pydantic_core import PydanticCustomError
 
 from . import fileio
 from .errors import FieldProblem, InputError
 
-SCHEMA_VERSION = "1"
+SCHEMA_VERSION = "2"
+
+#: Record versions this release reads: 1 (the first stage's fields) and 2 (the third
+#: stage's: medicines, cancer, surgeries, Z-scores, menopause, cognition, living
+#: situation, the name the handout uses).  A record without ``record_version`` is version 1.
+RECORD_VERSIONS: tuple[int, ...] = (1, 2)
 
 #: Fracture sites the record accepts.
 FRACTURE_SITES: dict[str, str] = {
@@ -62,9 +69,73 @@ MOVEMENT_PATTERNS: dict[str, str] = {
 
 T_SCORE_SITES: tuple[str, ...] = ("lumbar_spine", "femoral_neck", "total_hip")
 
+#: Medicine classes the record accepts (``medications[].class``).  The vocabulary may grow;
+#: classes are never renamed.  What each class changes is in the rules (data/rules/medicines.toml).
+MEDICATION_CLASSES: dict[str, str] = {
+    "denosumab": "Denosumab (an antiresorptive injection every 6 months).",
+    "bisphosphonate": "A bisphosphonate (alendronate, risedronate, ibandronate, zoledronic acid).",
+    "romosozumab": "Romosozumab (a bone-forming monthly injection, 12 months).",
+    "teriparatide": "Teriparatide (a bone-forming daily injection).",
+    "abaloparatide": "Abaloparatide (a bone-forming daily injection).",
+    "menopausal_hormone_therapy": "Menopausal hormone therapy (oestrogen, with or without a progestogen).",
+    "serm": "A selective oestrogen receptor modulator (raloxifene, bazedoxifene).",
+    "glucocorticoid": "An oral glucocorticoid (give the dose under glucocorticoids as well).",
+    "androgen_deprivation": "Androgen deprivation therapy (for prostate cancer).",
+    "aromatase_inhibitor": "An aromatase inhibitor (anastrozole, letrozole, exemestane; for breast cancer).",
+    "anticoagulant": "An anticoagulant (warfarin, apixaban, rivaroxaban, dabigatran, edoxaban, heparins).",
+    "sedative_hypnotic": "A sedative or hypnotic (benzodiazepines, zopiclone, zolpidem and the like).",
+}
+
+#: Operations the record accepts (``surgeries[].procedure``).
+SURGERY_PROCEDURES: dict[str, str] = {
+    "hip_replacement": "Total or partial hip replacement (arthroplasty).",
+    "knee_replacement": "Total or partial knee replacement (arthroplasty).",
+    "spinal_fusion": "Fusion of spinal segments.",
+    "vertebroplasty": "Vertebroplasty or kyphoplasty (cement in a fractured vertebra).",
+    "other": "Another operation.",
+}
+
+#: The sides an operation may be on (``surgeries[].side``).
+SURGERY_SIDES: tuple[str, ...] = ("left", "right", "both", "none")
+
+#: Menopausal status (women).
+MENOPAUSE_STATUSES: dict[str, str] = {
+    "premenopausal": "Regular periods; before the menopausal transition.",
+    "perimenopausal": "In the menopausal transition (irregular periods).",
+    "postmenopausal": "Twelve months or more since the last period, or after removal of both ovaries.",
+}
+
+#: Cognitive impairment as assessed by the clinician.
+COGNITION_LEVELS: dict[str, str] = {
+    "none": "No cognitive impairment.",
+    "mild": "Mild cognitive impairment: manages a written home program with reminders.",
+    "moderate": "Moderate impairment (for example moderate dementia): cannot follow a written home program alone.",
+    "severe": "Severe impairment: needs another person for all exercise.",
+}
+
+#: What is known of bone metastases (``cancer.bone_metastases``).
+BONE_METASTASES: dict[str, str] = {
+    "excluded": "A clinician has recorded that there are no bone metastases.",
+    "unknown": "Not assessed or not known.",
+    "present": "Bone metastases are present.",
+}
+
+#: Spinal levels a vertebral fracture may name (``fractures[].level``): C1-C7, T1-T12, L1-L5.
+VERTEBRAL_LEVEL_PATTERN = r"^(C[1-7]|T([1-9]|1[0-2])|L[1-5])$"
+
+#: Fields that only a version-2 record has.
+RECORD_V2_FIELDS: tuple[str, ...] = ("display_name", "z_scores", "menopause", "medications", "cancer",
+                                     "surgeries", "cognition", "lives_alone", "has_carer")
+
 Sex = Literal["female", "male"]
 FractureSite = Literal["vertebra", "hip", "wrist", "humerus", "pelvis", "rib", "other"]
 ConditionCode = Literal[tuple(CONDITIONS)]  # type: ignore[valid-type]
+MedicationClass = Literal[tuple(MEDICATION_CLASSES)]  # type: ignore[valid-type]
+SurgeryProcedure = Literal[tuple(SURGERY_PROCEDURES)]  # type: ignore[valid-type]
+SurgerySide = Literal[SURGERY_SIDES]  # type: ignore[valid-type]
+MenopauseStatus = Literal[tuple(MENOPAUSE_STATUSES)]  # type: ignore[valid-type]
+CognitionLevel = Literal[tuple(COGNITION_LEVELS)]  # type: ignore[valid-type]
+MetastasesStatus = Literal[tuple(BONE_METASTASES)]  # type: ignore[valid-type]
 
 
 def _meta(unit: str | None = None, soft: tuple[float, float] | None = None, label: str | None = None,
@@ -102,6 +173,22 @@ class TScores(_Strict):
         return min(known, key=lambda kv: kv[1]) if known else None
 
 
+class ZScores(_Strict):
+    """Z-scores by DXA site (standard deviations from the mean for the person's age and sex)."""
+
+    lumbar_spine: float | None = Field(None, ge=-7, le=5, description="Z-score at the lumbar spine (L1-L4).",
+                                       json_schema_extra=_meta("SD", (-4.0, 2.0), "Lumbar spine Z-score", 0.1))
+    femoral_neck: float | None = Field(None, ge=-7, le=5, description="Z-score at the femoral neck.",
+                                       json_schema_extra=_meta("SD", (-4.0, 2.0), "Femoral neck Z-score", 0.1))
+    total_hip: float | None = Field(None, ge=-7, le=5, description="Z-score at the total hip.",
+                                    json_schema_extra=_meta("SD", (-4.0, 2.0), "Total hip Z-score", 0.1))
+
+    def lowest(self) -> tuple[str, float] | None:
+        """The lowest Z-score and its site, or None when no site was measured."""
+        known = [(site, getattr(self, site)) for site in T_SCORE_SITES if getattr(self, site) is not None]
+        return min(known, key=lambda kv: kv[1]) if known else None
+
+
 class Fracture(_Strict):
     """One past fracture."""
 
@@ -109,6 +196,60 @@ class Fracture(_Strict):
     months_ago: float = Field(ge=0, le=1200, description="How long ago, in months.",
                               json_schema_extra=_meta("months", (0, 240)))
     low_trauma: bool = Field(description="True for a fragility fracture: a fall from standing height or less, or no trauma.")
+    level: str | None = Field(None, pattern=VERTEBRAL_LEVEL_PATTERN,
+                              description="For a vertebral fracture: the vertebra, C1-C7, T1-T12 or L1-L5 (e.g. T12).",
+                              json_schema_extra={**_meta(label="Vertebral level"),
+                                                 "allowed": "a vertebra from C1-C7, T1-T12 or L1-L5 (e.g. 'T12')"})
+
+    @model_validator(mode="after")
+    def _level_only_for_vertebra(self) -> "Fracture":
+        if self.level is not None and self.site != "vertebra":
+            raise PydanticCustomError("level_site", "level applies to site vertebra only")
+        return self
+
+    @model_serializer(mode="wrap")
+    def _compact(self, handler):
+        data = handler(self)
+        if isinstance(data, dict) and data.get("level", 0) is None:
+            del data["level"]               # a version-1 fracture writes as it did
+        return data
+
+
+class Medication(_Strict):
+    """One medicine class the person takes or took."""
+
+    model_config = ConfigDict(extra="forbid", strict=True, frozen=True, populate_by_name=False,
+                              serialize_by_alias=True)
+
+    class_: MedicationClass = Field(alias="class", description="The medicine class.",
+                                    json_schema_extra=_meta(label="Medicine"))
+    months_on: float | None = Field(None, ge=0, le=1200, description="How long it has been (or was) taken, in months.",
+                                    json_schema_extra=_meta("months", (0, 120), "Months taken", 1))
+    months_since_last_dose: float | None = Field(
+        None, ge=0, le=1200, description="Months since the last dose or injection; 0 while taken daily; "
+        "empty when not known.", json_schema_extra=_meta("months", (0, 24), "Months since last dose", 0.5))
+
+
+class Cancer(_Strict):
+    """Cancer and what is known of bone metastases."""
+
+    active: bool = Field(description="Cancer under treatment or not in remission.")
+    bone_metastases: MetastasesStatus = Field(
+        "unknown", description="Bone metastases: excluded (a clinician has recorded none), unknown or present.",
+        json_schema_extra=_meta(label="Bone metastases"))
+
+
+class Surgery(_Strict):
+    """One operation that changes what loading is safe."""
+
+    procedure: SurgeryProcedure = Field(description="The operation.", json_schema_extra=_meta(label="Operation"))
+    side: SurgerySide = Field("none", description="The side operated on: left, right, both, or none (the spine).",
+                              json_schema_extra=_meta(label="Side"))
+    months_ago: float = Field(ge=0, le=1200, description="How long ago, in months.",
+                              json_schema_extra=_meta("months", (0, 120), "Months ago", 0.5))
+    surgeon_cleared_impact: bool = Field(False, description="The surgical team has cleared impact loading "
+                                         "(jumping, hopping, heel drops) for this joint.",
+                                         json_schema_extra=_meta(label="Surgeon cleared impact"))
 
 
 class Glucocorticoids(_Strict):
@@ -165,6 +306,29 @@ class PatientRecord(_Strict):
     pain_score: int = Field(0, ge=0, le=10, description="Current pain at intake, the person's baseline: 0 (none) "
                             "to 10 (worst imaginable). Pain during or after a session is logged with the session.",
                             json_schema_extra=_meta("0-10", (0, 10), "Baseline pain (at intake)"))
+    # Version 2 (PRODUCT.md "The patient record, version 2"): all optional.
+    record_version: Literal[1, 2] | None = Field(None, description="2 for a record with the version-2 fields; "
+                                                 "absent means 1.", json_schema_extra=_meta(label="Record version"))
+    display_name: str | None = Field(None, min_length=1, max_length=80, pattern=r"^\S(.*\S)?$",
+                                     description="How the person's own handout addresses them (kept out of "
+                                     "exports unless asked for).", json_schema_extra=_meta(label="Name on the handout"))
+    z_scores: ZScores = Field(default_factory=ZScores,
+                              description="DXA Z-scores by site: bone density is judged by them before the "
+                              "menopause and under 50.")
+    menopause: MenopauseStatus | None = Field(None, description="Menopausal status (women only).",
+                                              json_schema_extra=_meta(label="Menopause"))
+    medications: list[Medication] = Field(default_factory=list,
+                                          description="Medicines that change fracture, falls or bleeding risk, "
+                                          "with how long taken and the last dose.")
+    cancer: Cancer | None = Field(None, description="Cancer and what is known of bone metastases.")
+    surgeries: list[Surgery] = Field(default_factory=list,
+                                     description="Joint replacements and spinal operations, with side, date and "
+                                     "the surgeon's clearance.")
+    cognition: CognitionLevel | None = Field(None, description="Cognitive impairment: none, mild, moderate or severe.",
+                                             json_schema_extra=_meta(label="Cognitive impairment"))
+    lives_alone: bool | None = Field(None, description="Lives alone.", json_schema_extra=_meta(label="Lives alone"))
+    has_carer: bool | None = Field(None, description="Has a carer or family member who can help with exercise.",
+                                   json_schema_extra=_meta(label="Has a carer"))
 
     @field_validator("conditions")
     @classmethod
@@ -180,9 +344,48 @@ class PatientRecord(_Strict):
             raise ValueError("not a finite number")
         return value
 
+    @field_validator("display_name")
+    @classmethod
+    def _printable_name(cls, value: str | None) -> str | None:
+        if value is not None and any(not ch.isprintable() for ch in value):
+            raise PydanticCustomError("printable", "control or direction characters are not allowed")
+        return value
+
+    @model_validator(mode="after")
+    def _version_and_sex(self) -> "PatientRecord":
+        if self.menopause is not None and self.sex != "female":
+            raise PydanticCustomError("menopause_sex", "menopause applies to sex female only")
+        if self.record_version == 1:
+            used = [name for name in RECORD_V2_FIELDS if name in self.model_fields_set]
+            if used:
+                raise PydanticCustomError("record_version", "record_version 1 cannot hold {fields}",
+                                          {"fields": ", ".join(used)})
+        return self
+
     @property
     def bmi(self) -> float:
         return self.body_mass_kg / (self.height_cm / 100.0) ** 2
+
+    @model_serializer(mode="wrap")
+    def _compact(self, handler):
+        """Version-2 fields left at their defaults are not written, so a version-1 record
+        writes as it did; a record that uses them writes ``record_version`` 2."""
+        data = handler(self)
+        if not isinstance(data, dict):
+            return data
+        for name in ("record_version", *RECORD_V2_FIELDS):
+            if name in data and _is_default(data[name]):
+                del data[name]
+        if self.version == 2:
+            data["record_version"] = 2
+        return data
+
+    @property
+    def version(self) -> int:
+        """The record version: 2 where a version-2 field is set or it says so, else 1."""
+        if self.record_version is not None:
+            return self.record_version
+        return 2 if any(name in self.model_fields_set for name in RECORD_V2_FIELDS) else 1
 
 
 #: Our three severity levels of a screening flag, strongest first.
@@ -274,6 +477,8 @@ def _resolve(node: dict, defs: dict) -> dict:
 def describe_allowed(loc: tuple) -> str:
     """Plain words for what the field at ``loc`` accepts, from the schema itself."""
     node = _field_schema(loc)
+    if "allowed" in node:
+        return node["allowed"]
     if loc and loc[-1] == "conditions":
         return "a list of distinct condition codes from: " + ", ".join(CONDITIONS)
     if "enum" in node:
@@ -324,22 +529,49 @@ def _loc_text(loc: tuple) -> str:
     return out
 
 
+def _is_default(value: Any) -> bool:
+    """A version-2 value that says nothing: null, an empty list, or an object of nulls."""
+    if value is None or value == []:
+        return True
+    return isinstance(value, dict) and all(v is None for v in value.values())
+
+
+_UNION_MEMBER = re.compile(r"^(float|int|str|bool|none|(literal|list|dict)\[.*\]|[A-Z][A-Za-z0-9_]*)$")
+
+#: Checks across fields (model validators): error type -> (the field it names, what is allowed).
+_CROSS_FIELD: dict[str, tuple[str, str]] = {
+    "level_site": ("level", "a vertebral level only where site is 'vertebra' (leave level empty for other sites)"),
+    "menopause_sex": ("menopause", "empty for sex 'male' (menopausal status is recorded for women)"),
+    "record_version": ("record_version", "2 (or leave it out) when version-2 fields (" + ", ".join(RECORD_V2_FIELDS)
+                       + ") are given"),
+}
+
+
 def problems_from_validation(err: ValidationError, data: Any) -> list[FieldProblem]:
     """One :class:`FieldProblem` per bad field, in the record's field order."""
     problems: list[FieldProblem] = []
     seen: set[str] = set()
     for e in err.errors(include_url=False):
         loc = tuple(p for p in e["loc"] if not (isinstance(p, str) and p in ("function-after", "function-before")))
-        # pydantic adds the union member name (e.g. 'float') to the location: drop it.
-        loc = tuple(p for p in loc if p not in ("float", "int", "str", "bool", "TScores", "Fracture",
-                                                  "Glucocorticoids", "list[Fracture]", "none"))
+        # pydantic adds the union member name (e.g. 'float', 'Fracture') to the location: drop it.
+        loc = tuple(p for p in loc if not (isinstance(p, str) and _UNION_MEMBER.match(p)))
+        etype = e["type"]
+        value = e.get("input", _MISSING)
+        cross = _CROSS_FIELD.get(etype)
+        if cross is not None:               # a check across fields: name the field it is about
+            sub, allowed = cross
+            loc = loc + (sub,)
+            value = value.get(sub) if isinstance(value, dict) else getattr(value, sub, value)
         field = _loc_text(loc) or "record"
         if field in seen:
             continue
         seen.add(field)
-        etype = e["type"]
-        value = e.get("input", _MISSING)
-        if etype == "missing":
+        if cross is not None:
+            problems.append(FieldProblem(field, value, allowed))
+        elif etype == "printable":
+            problems.append(FieldProblem(field, value, describe_allowed(loc) + " (printable characters only: "
+                                         "no control or text-direction characters)"))
+        elif etype == "missing":
             problems.append(FieldProblem(field, None, describe_allowed(loc), kind="missing"))
         elif etype == "extra_forbidden":
             parent = loc[:-1]
