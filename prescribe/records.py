@@ -395,7 +395,8 @@ SEVERITIES: dict[str, str] = {
     "note": "Note for the clinician.",
 }
 Severity = Literal["clear_first", "adapt", "note"]
-DensityCategory = Literal["normal", "osteopenia", "osteoporosis", "severe_osteoporosis", "unknown"]
+DensityCategory = Literal["normal", "osteopenia", "osteoporosis", "severe_osteoporosis", "unknown",
+                          "within_expected_range_for_age", "below_expected_range_for_age"]
 
 
 class Flag(BaseModel):
@@ -410,6 +411,9 @@ class Flag(BaseModel):
     title: str = ""
     max_impact_level: int | None = None
     avoid: list[str] = Field(default_factory=list)
+    until_cleared: bool = Field(False, description="The flag's referral and caps hold until a clinician "
+                                "records the clearance.")
+    lifted_by_clearance: bool = Field(False, description="A recorded clearance has lifted what this flag held.")
 
 
 class ScreeningResult(BaseModel):
@@ -431,6 +435,17 @@ class ScreeningResult(BaseModel):
     balance_first: bool = False
     supervision: bool = False
     ruleset_version: str = ""
+    # Version 2: which score judges bone density (ISCD: Z-score before the menopause and under 50).
+    density_reference: Literal["t_score", "z_score"] = "t_score"
+    lowest_z_score: float | None = None
+    lowest_z_score_site: str | None = None
+    max_pct_1rm: int | None = Field(None, description="Heaviest resistance load allowed [% 1RM]; null: no cap.")
+    carer_led: bool = Field(False, description="Sessions supervised or led by a carer, a short program, and the "
+                            "person's pages written for the carer.")
+    hold_volume: bool = Field(False, description="No rise in volume until a clinician records the clearance.")
+    person_notes: list[str] = Field(default_factory=list, description="What the fired rules say to the person "
+                                    "(or carer) on the person's pages.")
+    cleared: bool = Field(False, description="Screened with a recorded clearance (what waited for it is lifted).")
 
 
 # ---------------------------------------------------------------------------

@@ -13,7 +13,8 @@ from prescribe.records import CONDITIONS, parse_record
 from prescribe.screening.rules import DEFAULT_RULES_DIR, FEATURES, load_rules
 from prescribe.screening import RULESET_VERSION, screen, screen_many
 
-FAMILIES = {"bone_density", "fractures", "falls_balance", "medication", "conditions", "pain"}
+FAMILIES = {"bone_density", "fractures", "falls_balance", "medication", "conditions", "pain", "cancer", "surgery",
+            "person"}
 
 
 def test_shipped_library_loads_with_every_family():

@@ -40,13 +40,14 @@ from .batch_columns import FractureColumns
 from .batch_io import records_to_frame
 from .conditions import compile_scalar, evaluate_vector
 from .features import _frame_features, _lowest_site, _text_column, record_features
-from .rules import CATEGORY_RANK, SEVERITY_RANK, Rule, RuleSet, load_rules
+from .rules import CATEGORY_RANK, OUTCOME_FEATURES, SEVERITY_RANK, Rule, RuleSet, load_rules
 
 #: Columns of the frame :func:`screen_batch` returns (and of the results CSV).
 RESULT_COLUMNS: tuple[str, ...] = (
     "patient_id", "bone_density_category", "falls_risk", "max_impact_level", "avoid", "refer",
     "balance_first", "supervision", "flags", "lowest_t_score", "lowest_t_score_site",
-    "ruleset_version", "cautions",
+    "ruleset_version", "cautions", "density_reference", "lowest_z_score", "lowest_z_score_site",
+    "max_pct_1rm", "carer_led", "hold_volume",
 )
 #: Separator of list cells in the results frame (avoid, flags).
 LIST_SEP = ";"
@@ -81,6 +82,11 @@ class Outcome:
     supervision: bool
     rules: tuple[str, ...]
     cautions: tuple[str, ...]
+    max_pct_1rm: int | None = None
+    carer_led: bool = False
+    hold_volume: bool = False
+    person_notes: tuple[str, ...] = ()
+    lifted: tuple[str, ...] = ()     # fired rules whose held caps a recorded clearance lifted
 
 
 class Engine:
@@ -96,33 +102,49 @@ class Engine:
         order = sorted(range(len(ruleset.rules)), key=lambda i: (SEVERITY_RANK[ruleset.rules[i].severity], i))
         self.rules: tuple[Rule, ...] = tuple(ruleset.rules[i] for i in order)
         self._tests = [compile_scalar(r.when) for r in self.rules]
+        # Rules that test the screening's own falls-risk finding run after the rules that make it.
+        self._second = [any(f in OUTCOME_FEATURES for f in r.features) for r in self.rules]
+        self._falls_rules = [i for i, r in enumerate(self.rules) if r.effect.falls_risk and not self._second[i]]
         self._bit = {r.id: 1 << i for i, r in enumerate(self.rules)}
         self._outcomes: dict[int, Outcome] = {}
         self._flags = {r.id: Flag(rule=r.id, severity=r.severity, message=r.message, source=r.source,
                                   title=r.title, max_impact_level=r.effect.max_impact_level,
-                                  avoid=list(r.effect.avoid)) for r in self.rules}
+                                  avoid=list(r.effect.avoid), until_cleared=r.effect.until_cleared)
+                       for r in self.rules}
 
     # -- shared: fired rules -> outcome ------------------------------------------------
-    def outcome(self, mask: int) -> Outcome:
-        """The combined effect of the rules whose bits are set in ``mask`` (cached)."""
-        hit = self._outcomes.get(mask)
+    def outcome(self, mask: int, cleared: bool = False) -> Outcome:
+        """The combined effect of the rules whose bits are set in ``mask`` (cached).
+
+        With ``cleared`` (a clinician has recorded the clearance), what a rule held until then
+        (its referral, caps and volume hold) is lifted: :meth:`prescribe.screening.rules.Effect.once_cleared`.
+        """
+        key = (mask, cleared)
+        hit = self._outcomes.get(key)
         if hit is not None:
             return hit
         fired = [r for i, r in enumerate(self.rules) if mask >> i & 1]
-        caps = [r.effect.max_impact_level for r in fired if r.effect.max_impact_level is not None]
-        cats = [r.effect.category for r in fired if r.effect.category]
+        effects = [r.effect.once_cleared() if cleared else r.effect for r in fired]
+        caps = [e.max_impact_level for e in effects if e.max_impact_level is not None]
+        pcts = [e.max_pct_1rm for e in effects if e.max_pct_1rm is not None]
+        cats = [e.category for e in effects if e.category]
         out = Outcome(
             category=max(cats, key=CATEGORY_RANK.__getitem__) if cats else None,
-            falls_risk=any(r.effect.falls_risk for r in fired),
+            falls_risk=any(e.falls_risk for e in effects),
             max_impact_level=min(caps, default=3),
-            avoid=tuple(sorted({a for r in fired for a in r.effect.avoid})),
-            refer=any(r.effect.refer for r in fired),
-            balance_first=any(r.effect.balance_first for r in fired),
-            supervision=any(r.effect.supervision for r in fired),
+            avoid=tuple(sorted({a for e in effects for a in e.avoid})),
+            refer=any(e.refer for e in effects),
+            balance_first=any(e.balance_first for e in effects),
+            supervision=any(e.supervision for e in effects),
             rules=tuple(r.id for r in fired),
-            cautions=tuple(with_standard([r.effect.caution for r in fired if r.effect.caution])),
+            cautions=tuple(with_standard([e.caution for e in effects if e.caution])),
+            max_pct_1rm=min(pcts) if pcts else None,
+            carer_led=any(e.carer_led for e in effects),
+            hold_volume=any(e.hold_volume for e in effects),
+            person_notes=tuple(dict.fromkeys(e.person_note for e in effects if e.person_note)),
+            lifted=tuple(r.id for r in fired if cleared and r.effect.until_cleared),
         )
-        self._outcomes[mask] = out
+        self._outcomes[key] = out
         return out
 
     def mask_of(self, rule_ids: list[str] | tuple[str, ...]) -> int:
@@ -134,30 +156,44 @@ class Engine:
     # -- per-record evaluator ----------------------------------------------------------
     def fired_mask(self, feats: dict) -> int:
         mask = 0
+        second = self._second
         for i, test in enumerate(self._tests):
-            if test(feats):
+            if not second[i] and test(feats):
+                mask |= 1 << i
+        feats["falls_risk"] = any(mask >> i & 1 for i in self._falls_rules)
+        for i, test in enumerate(self._tests):
+            if second[i] and test(feats):
                 mask |= 1 << i
         return mask
 
-    def screen_dict(self, rec: dict) -> dict[str, Any]:
+    def screen_dict(self, rec: dict, cleared: bool = False) -> dict[str, Any]:
         """Plain-dict screening result of one record dict (no validation; used by the benchmark)."""
         feats = record_features(rec)
-        out = self.outcome(self.fired_mask(feats))
+        out = self.outcome(self.fired_mask(feats), cleared)
         lowest = feats["lowest_t_score"]
-        site = None
-        if lowest is not None:
-            site = next(s for s in T_SCORE_SITES if (rec.get("t_scores") or {}).get(s) == lowest)
-        category = out.category or ("normal" if lowest is not None else "unknown")
+        site = _site_of(rec.get("t_scores"), lowest)
+        lowest_z = feats["lowest_z_score"]
+        reference = feats["density_reference"]
+        # The WHO categories are for T-scores; before the menopause and under 50 only a Z-score
+        # rule names a category (ISCD 2019), so no rule means "unknown" there.
+        category = out.category or ("normal" if lowest is not None and reference == "t_score" else "unknown")
         return {"patient_id": rec["patient_id"], "bone_density_category": category,
                 "falls_risk": out.falls_risk, "max_impact_level": out.max_impact_level,
                 "avoid": list(out.avoid), "refer": out.refer, "rules": out.rules,
                 "cautions": list(out.cautions), "lowest_t_score": lowest, "lowest_t_score_site": site,
                 "balance_first": out.balance_first, "supervision": out.supervision,
-                "ruleset_version": self.version}
+                "ruleset_version": self.version, "density_reference": reference,
+                "lowest_z_score": lowest_z, "lowest_z_score_site": _site_of(rec.get("z_scores"), lowest_z),
+                "max_pct_1rm": out.max_pct_1rm, "carer_led": out.carer_led, "hold_volume": out.hold_volume,
+                "person_notes": list(out.person_notes), "cleared": cleared, "lifted": out.lifted}
 
-    def screen(self, record: PatientRecord) -> ScreeningResult:
-        d = self.screen_dict(record.model_dump())
-        d["flags"] = [self._flags[r] for r in d.pop("rules")]
+    def _flag_list(self, rules: tuple[str, ...], lifted: tuple[str, ...]) -> list[Flag]:
+        return [self._flags[r].model_copy(update={"lifted_by_clearance": True}) if r in lifted else self._flags[r]
+                for r in rules]
+
+    def screen(self, record: PatientRecord, cleared: bool = False) -> ScreeningResult:
+        d = self.screen_dict(record.model_dump(), cleared)
+        d["flags"] = self._flag_list(d.pop("rules"), d.pop("lifted"))
         return ScreeningResult(**d)
 
     # -- vectorised evaluator ----------------------------------------------------------
@@ -169,6 +205,7 @@ class Engine:
         is built and nothing is sorted.  Patterns come in order of first appearance.
         """
         count = len(self.rules)
+        self._vector_falls_risk(feats, n)
         if count > 64:
             return _unique_rows(self._fired(feats, n))
         dtype = np.uint32 if count <= 32 else np.uint64
@@ -178,6 +215,13 @@ class Engine:
         inverse, uniq = pd.factorize(keys)
         rows = ((np.asarray(uniq, dtype=dtype)[:, None] >> np.arange(count, dtype=dtype)) & 1).astype(bool)
         return rows, np.asarray(inverse, dtype=np.intp)
+
+    def _vector_falls_risk(self, feats: dict[str, np.ndarray], n: int) -> None:
+        """The first pass's falls-risk finding, for the rules that test it (see :meth:`fired_mask`)."""
+        risk = np.zeros(n, dtype=bool)
+        for i in self._falls_rules:
+            risk |= evaluate_vector(self.rules[i].when, feats)
+        feats["falls_risk"] = risk
 
     def _fired(self, feats: dict[str, np.ndarray], n: int) -> np.ndarray:
         out = np.zeros((n, len(self.rules)), dtype=bool)
@@ -218,7 +262,11 @@ class Engine:
         else:
             cautions = [CAUTION_SEP.join(with_standard(list(compress(texts, row))))
                         for row in marks[:, with_caution].tolist()]
+        pcts = np.array([101 if r.effect.max_pct_1rm is None else r.effect.max_pct_1rm for r in rules])
+        pct = np.where(marks, pcts, 101).min(axis=1, initial=101)
         return {
+            "max_pct_1rm": np.where(pct > 100, np.nan, pct.astype(float)),
+            "carer_led": any_of("carer_led"), "hold_volume": any_of("hold_volume"),
             "category": [categories.get(k) for k in rank.tolist()],
             "max_impact_level": np.where(marks, caps, 3).min(axis=1, initial=3),
             "falls_risk": any_of("falls_risk"), "refer": any_of("refer"),
@@ -236,7 +284,7 @@ class Engine:
         people, :meth:`_combine`) and spread back to the rows.
         """
         n = len(df)
-        feats, tscores = _frame_features(df, fractures)
+        feats, tscores, zscores = _frame_features(df, fractures)
         rows, inverse = self._fired_patterns(feats, n)
         lowest, site = _lowest_site(tscores, feats["lowest_t_score"])
         effect = self._combine(rows)
@@ -246,7 +294,9 @@ class Engine:
 
         category = per_pattern(effect["category"], object)
         none = np.equal(category, None)
-        category[none] = np.where(np.isnan(lowest[none]), "unknown", "normal")
+        by_t = feats["density_reference"] == "t_score"
+        category[none] = np.where(np.isnan(lowest[none]) | ~by_t[none], "unknown", "normal")
+        lowest_z, site_z = _lowest_site(zscores, feats["lowest_z_score"])
         columns = {
             "patient_id": _text_column(df, "patient_id", n).copy(),
             "bone_density_category": category,
@@ -261,6 +311,12 @@ class Engine:
             "lowest_t_score_site": site,
             "ruleset_version": _constant_text(n, self.version),
             "cautions": per_pattern(effect["cautions"], object),
+            "max_pct_1rm": per_pattern(effect["max_pct_1rm"], float),
+            "carer_led": per_pattern(effect["carer_led"], bool),
+            "hold_volume": per_pattern(effect["hold_volume"], bool),
+            "density_reference": np.asarray(feats["density_reference"], dtype=object),
+            "lowest_z_score": lowest_z,
+            "lowest_z_score_site": site_z,
         }
         # Text columns stay object arrays (no per-cell type inference on 100k rows).
         # copy=False: each column keeps its own array (no consolidation copy into 2-D blocks).
@@ -280,9 +336,14 @@ class Engine:
                 falls_risk=bool(row["falls_risk"]), max_impact_level=int(row["max_impact_level"]),
                 avoid=[a for a in str(row["avoid"]).split(LIST_SEP) if a], refer=bool(row["refer"]),
                 flags=[self._flags[r] for r in o.rules], cautions=list(o.cautions),
+                max_pct_1rm=None if np.isnan(row["max_pct_1rm"]) else int(row["max_pct_1rm"]),
+                carer_led=bool(row["carer_led"]), hold_volume=bool(row["hold_volume"]),
+                person_notes=list(o.person_notes),
                 lowest_t_score=lowest, lowest_t_score_site=_text_or_none(row["lowest_t_score_site"]),
                 balance_first=bool(row["balance_first"]), supervision=bool(row["supervision"]),
-                ruleset_version=row["ruleset_version"]))
+                ruleset_version=row["ruleset_version"], density_reference=row["density_reference"],
+                lowest_z_score=_number_or_none(row["lowest_z_score"]),
+                lowest_z_score_site=_text_or_none(row["lowest_z_score_site"])))
         return results
 
 
@@ -291,6 +352,17 @@ def _constant_text(n: int, text: str) -> np.ndarray:
     out = np.empty(n, dtype=object)
     out[:] = text
     return out
+
+
+def _number_or_none(value: Any) -> float | None:
+    return None if value is None or np.isnan(value) else float(value)
+
+
+def _site_of(scores: dict | None, lowest: float | None) -> str | None:
+    """The first site (T_SCORE_SITES order) whose score is ``lowest``; None when none was measured."""
+    if lowest is None:
+        return None
+    return next(s for s in T_SCORE_SITES if (scores or {}).get(s) == lowest)
 
 
 def _text_or_none(value: Any) -> str | None:
@@ -307,7 +379,7 @@ def engine_for(rules: RuleSet | None) -> Engine:
     return default_engine() if rules is None else Engine(rules)
 
 
-def screen(record: PatientRecord, rules: RuleSet | None = None) -> ScreeningResult:
+def screen(record: PatientRecord, rules: RuleSet | None = None, *, cleared: bool = False) -> ScreeningResult:
     """Screen one person (per-record evaluator).
 
     Parameters
@@ -316,6 +388,9 @@ def screen(record: PatientRecord, rules: RuleSet | None = None) -> ScreeningResu
         A validated record.
     rules : RuleSet, optional
         Another rule set (for example a draft library); the shipped one when omitted.
+    cleared : bool
+        A clinician has recorded the clearance: the referral, caps and volume hold that the
+        fired rules held until then are lifted (their flags say so); everything else stands.
 
     Returns
     -------
@@ -327,7 +402,7 @@ def screen(record: PatientRecord, rules: RuleSet | None = None) -> ScreeningResu
     ----------
     The rule files cite a source for each rule; see ``docs/rules.md``.
     """
-    return engine_for(rules).screen(record)
+    return engine_for(rules).screen(record, cleared)
 
 
 def screen_batch(df: pd.DataFrame, rules: RuleSet | None = None,

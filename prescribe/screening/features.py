@@ -14,7 +14,7 @@ import numpy as np
 import pandas as pd
 
 from ..errors import FieldProblem, InputError
-from ..records import CONDITIONS, T_SCORE_SITES
+from ..records import CONDITIONS, MEDICATION_CLASSES, SURGERY_PROCEDURES, T_SCORE_SITES
 from .batch_columns import FRACTURES_ALLOWED, RECORD_COLUMNS, REQUIRED_COLUMNS, FractureColumns, fracture_columns
 from .norms import chair_stand_norm_low, chair_stand_norms
 
@@ -23,6 +23,60 @@ def _bmi(mass_kg, height_cm):
     """Body mass index [kg/m^2] of scalars or arrays (one formula, identical rounding for both)."""
     metres = height_cm / 100.0
     return mass_kg / (metres * metres)
+
+
+#: Bone density is judged by Z-score under this age [years] (ISCD 2019 adult official positions).
+Z_SCORE_AGE_BELOW = 50
+
+
+def density_reference(age_years, sex, menopause) -> str:
+    """'z_score' for premenopausal women and anyone under 50, 't_score' otherwise.
+
+    References
+    ----------
+    International Society for Clinical Densitometry 2019, Adult Official Positions (Shuhart CR et
+    al. 2019, J Clin Densitom 22:453-471): in premenopausal women and men under 50 the Z-score, not
+    the T-score, is used; a Z-score of -2.0 or lower is "below the expected range for age".
+    """
+    if age_years < Z_SCORE_AGE_BELOW or (sex == "female" and menopause == "premenopausal"):
+        return "z_score"
+    return "t_score"
+
+
+def _lowest_of(scores: dict | None):
+    values = [v for v in ((scores or {}).get(site) for site in T_SCORE_SITES) if v is not None]
+    return min(values) if values else None
+
+
+def v2_record_features(rec: dict) -> dict[str, Any]:
+    """The features of the version-2 fields of one record dict (absent fields: their 'not recorded' value)."""
+    lowest_z = _lowest_of(rec.get("z_scores"))
+    menopause = rec.get("menopause")
+    cancer = rec.get("cancer") or {}
+    feats: dict[str, Any] = {
+        "density_reference": density_reference(rec["age_years"], rec["sex"], menopause),
+        "lowest_z_score": lowest_z,
+        "z_score_measured": lowest_z is not None,
+        "menopause": menopause or "unknown",
+        "cancer_active": bool(cancer.get("active", False)),
+        "bone_metastases": cancer.get("bone_metastases") or "unknown",
+        "cognition": rec.get("cognition") or "unknown",
+        "lives_alone": bool(rec.get("lives_alone")),
+        "has_carer": bool(rec.get("has_carer")),
+    }
+    meds = rec.get("medications") or ()
+    for code in MEDICATION_CLASSES:
+        listed = [m for m in meds if m.get("class") == code]
+        known = [m["months_since_last_dose"] for m in listed if m.get("months_since_last_dose") is not None]
+        feats[f"medication:{code}"] = bool(listed)
+        feats[f"months_since_last_dose:{code}"] = min(known) if known else None
+    ops = rec.get("surgeries") or ()
+    for code in SURGERY_PROCEDURES:
+        done = [s for s in ops if s["procedure"] == code]
+        feats[f"surgery:{code}"] = bool(done)
+        feats[f"months_since_surgery:{code}"] = min(s["months_ago"] for s in done) if done else None
+        feats[f"surgery_impact_uncleared:{code}"] = any(not s.get("surgeon_cleared_impact") for s in done)
+    return feats
 
 
 def record_features(rec: dict) -> dict[str, Any]:
@@ -83,6 +137,7 @@ def record_features(rec: dict) -> dict[str, Any]:
     conditions = rec.get("conditions") or ()
     for code in CONDITIONS:
         feats[f"has_condition:{code}"] = code in conditions
+    feats.update(v2_record_features(rec))
     return feats
 
 
@@ -144,8 +199,8 @@ def frame_features(df: pd.DataFrame, fractures: FractureColumns | None = None) -
 
 
 def _frame_features(df: pd.DataFrame, fractures: FractureColumns | None = None
-                    ) -> tuple[dict[str, np.ndarray], list[np.ndarray]]:
-    """:func:`frame_features` and the T-score columns it read (T_SCORE_SITES order), for reuse."""
+                    ) -> tuple[dict[str, np.ndarray], list[np.ndarray], list[np.ndarray]]:
+    """:func:`frame_features` and the T-score and Z-score columns it read (T_SCORE_SITES order), for reuse."""
     n = len(df)
     missing = [c for c in REQUIRED_COLUMNS if c not in df.columns]
     unknown = [c for c in df.columns if c not in RECORD_COLUMNS]
@@ -189,7 +244,33 @@ def _frame_features(df: pd.DataFrame, fractures: FractureColumns | None = None
     }
     feats.update(_fracture_features(df, n, fractures))
     feats.update(_condition_features(_text_column(df, "conditions", n, raw=True)))
-    return feats, tscores
+    feats.update(_v2_frame_defaults(df, n, age, sex))
+    zscores = [np.full(n, np.nan) for _ in T_SCORE_SITES]
+    return feats, tscores, zscores
+
+
+def _v2_frame_defaults(df: pd.DataFrame, n: int, age: np.ndarray, sex: np.ndarray) -> dict[str, np.ndarray]:
+    """The version-2 features of a frame without the version-2 columns: 'not recorded' everywhere."""
+    # TODO(batch v2): read the version-2 columns (helper branch batch-v2).
+    menopause = np.full(n, "unknown", dtype=object)
+    reference = np.where((age < Z_SCORE_AGE_BELOW) | ((sex == "female") & (menopause == "premenopausal")),
+                         "z_score", "t_score").astype(object)
+    feats: dict[str, np.ndarray] = {
+        "density_reference": reference,
+        "lowest_z_score": np.full(n, np.nan), "z_score_measured": np.zeros(n, dtype=bool),
+        "menopause": menopause, "cancer_active": np.zeros(n, dtype=bool),
+        "bone_metastases": np.full(n, "unknown", dtype=object),
+        "cognition": np.full(n, "unknown", dtype=object),
+        "lives_alone": np.zeros(n, dtype=bool), "has_carer": np.zeros(n, dtype=bool),
+    }
+    for code in MEDICATION_CLASSES:
+        feats[f"medication:{code}"] = np.zeros(n, dtype=bool)
+        feats[f"months_since_last_dose:{code}"] = np.full(n, np.nan)
+    for code in SURGERY_PROCEDURES:
+        feats[f"surgery:{code}"] = np.zeros(n, dtype=bool)
+        feats[f"months_since_surgery:{code}"] = np.full(n, np.nan)
+        feats[f"surgery_impact_uncleared:{code}"] = np.zeros(n, dtype=bool)
+    return feats
 
 
 def _lowest_site(tscores: list[np.ndarray], lowest: np.ndarray) -> tuple[np.ndarray, np.ndarray]:

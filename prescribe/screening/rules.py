@@ -20,7 +20,8 @@ from pathlib import Path
 from typing import Any, Union
 
 from ..errors import RuleFileError
-from ..records import CONDITIONS, MOVEMENT_PATTERNS, SEVERITIES
+from ..records import (BONE_METASTASES, COGNITION_LEVELS, CONDITIONS, MEDICATION_CLASSES, MENOPAUSE_STATUSES,
+                       MOVEMENT_PATTERNS, SEVERITIES, SURGERY_PROCEDURES)
 
 #: Where the shipped rule files live.
 DEFAULT_RULES_DIR = Path(__file__).parent.parent / "data" / "rules"
@@ -29,7 +30,9 @@ DEFAULT_RULES_DIR = Path(__file__).parent.parent / "data" / "rules"
 RULESET_RELEASE = "2026.12-1"
 
 #: Density categories a rule may set, weakest first (the strongest fired one wins).
-CATEGORY_RANK: dict[str, int] = {"normal": 0, "osteopenia": 1, "osteoporosis": 2, "severe_osteoporosis": 3}
+CATEGORY_RANK: dict[str, int] = {"normal": 0, "osteopenia": 1, "osteoporosis": 2, "severe_osteoporosis": 3,
+                                 # Judged by Z-score (before the menopause, under 50): never mixed with the above.
+                                 "within_expected_range_for_age": 4, "below_expected_range_for_age": 5}
 
 #: Severity order used to sort flags: strongest first.
 SEVERITY_RANK: dict[str, int] = {name: i for i, name in enumerate(SEVERITIES)}
@@ -87,12 +90,45 @@ _BASE_FEATURES: tuple[Feature, ...] = (
             "0 when none.", "mg/day"),
     Feature("glucocorticoid_months", NUMBER, "Months of glucocorticoid use; 0 when none.", "months"),
     Feature("pain_score", NUMBER, "Current pain, 0-10.", "0-10"),
+    # Version-2 record (PRODUCT.md "The patient record, version 2").
+    Feature("density_reference", TEXT, "Which score judges bone density: 'z_score' for premenopausal women "
+            "and anyone under 50 (ISCD official positions), 't_score' otherwise.", choices=("t_score", "z_score")),
+    Feature("lowest_z_score", NUMBER, "Lowest measured DXA Z-score of lumbar spine, femoral neck and total "
+            "hip; missing when no site was measured.", "SD"),
+    Feature("z_score_measured", BOOL, "At least one DXA Z-score was recorded."),
+    Feature("menopause", TEXT, "Menopausal status as recorded; 'unknown' when not recorded.",
+            choices=(*MENOPAUSE_STATUSES, "unknown")),
+    Feature("cancer_active", BOOL, "Cancer under treatment or not in remission."),
+    Feature("bone_metastases", TEXT, "What is known of bone metastases; 'unknown' when no cancer record "
+            "says otherwise.", choices=tuple(BONE_METASTASES)),
+    Feature("cognition", TEXT, "Cognitive impairment as recorded; 'unknown' when not recorded.",
+            choices=(*COGNITION_LEVELS, "unknown")),
+    Feature("lives_alone", BOOL, "Lives alone (false when not recorded)."),
+    Feature("has_carer", BOOL, "Has a carer who can help with exercise (false when not recorded)."),
+    Feature("falls_risk", BOOL, "The screening's own falls-risk finding: true when a rule that marks falls "
+            "risk fired. Worked out first; a rule that tests it is evaluated after those rules."),
 )
 
 #: Every feature a condition may name, by name.  ``has_condition:<code>`` exists for each condition code.
 FEATURES: dict[str, Feature] = {f.name: f for f in _BASE_FEATURES}
 for _code, _text in CONDITIONS.items():
     FEATURES[f"has_condition:{_code}"] = Feature(f"has_condition:{_code}", BOOL, f"Condition recorded: {_text}")
+for _code, _text in MEDICATION_CLASSES.items():
+    FEATURES[f"medication:{_code}"] = Feature(f"medication:{_code}", BOOL, f"Medicine listed (taken now or "
+                                              f"before): {_text}")
+    FEATURES[f"months_since_last_dose:{_code}"] = Feature(
+        f"months_since_last_dose:{_code}", NUMBER, f"Months since the last dose of: {_text} The most recent of "
+        "the listed entries; missing when not listed or not known.", "months")
+for _code, _text in SURGERY_PROCEDURES.items():
+    FEATURES[f"surgery:{_code}"] = Feature(f"surgery:{_code}", BOOL, f"Operation recorded: {_text}")
+    FEATURES[f"months_since_surgery:{_code}"] = Feature(
+        f"months_since_surgery:{_code}", NUMBER, f"Months since the most recent: {_text} Missing when none.", "months")
+    FEATURES[f"surgery_impact_uncleared:{_code}"] = Feature(
+        f"surgery_impact_uncleared:{_code}", BOOL, f"An operation of this kind whose surgical team has not "
+        f"cleared impact loading: {_text}")
+
+#: Features worked out from the screening's own first pass (see :data:`FEATURES` ``falls_risk``).
+OUTCOME_FEATURES: tuple[str, ...] = ("falls_risk",)
 
 #: Comparison operators and the feature kinds they apply to.
 OPERATORS: dict[str, tuple[str, ...]] = {
@@ -146,6 +182,21 @@ class Effect:
     falls_risk: bool = False
     category: str | None = None
     caution: str | None = None
+    # Version-2 effects (docs/rules.md "Effects").
+    max_pct_1rm: int | None = None          # the heaviest resistance load allowed [% 1RM]
+    carer_led: bool = False                 # supervised or carer-led sessions, a short program, carer's pages
+    hold_volume: bool = False               # no rise in volume until the clearance is recorded
+    person_note: str | None = None          # said to the person (or carer) on the person's pages
+    until_cleared: bool = False             # refer, the caps and hold_volume wait for a recorded clearance
+    after_clearance_max_impact_level: int | None = None   # the cap that stays once cleared
+
+    def once_cleared(self) -> "Effect":
+        """This effect after a clinician has recorded the clearance: what waited for it is lifted."""
+        if not self.until_cleared:
+            return self
+        from dataclasses import replace
+        return replace(self, refer=False, hold_volume=False, max_pct_1rm=None,
+                       max_impact_level=self.after_clearance_max_impact_level)
 
 
 @dataclass(frozen=True)
@@ -199,7 +250,8 @@ _RULE_ID = re.compile(r"^[a-z][a-z0-9_]*(\.[a-z0-9_]+)+$")
 _FILE_KEYS = {"family", "title", "description", "rules"}
 _RULE_KEYS = {"id", "title", "severity", "when", "effect", "message", "source", "certainty"}
 _EFFECT_KEYS = {"max_impact_level", "avoid", "balance_first", "supervision", "refer", "falls_risk",
-                "category", "caution"}
+                "category", "caution", "max_pct_1rm", "carer_led", "hold_volume", "person_note", "until_cleared",
+                "after_clearance_max_impact_level"}
 
 
 class _Bad(Exception):
@@ -299,6 +351,8 @@ def _parse_rule(entry: Any, family: str, file: str) -> Rule:
     used: list[str] = []
     when = _parse_condition(entry["when"], "when", used)
     effect = _parse_effect(entry.get("effect", {}))
+    if effect.falls_risk and any(f in OUTCOME_FEATURES for f in used):
+        raise _Bad("a rule that tests the screening's falls_risk cannot set falls_risk itself")
     if severity == "clear_first" and not effect.refer:
         raise _Bad("a clear_first rule must set effect.refer = true")
     source = _text(entry, "source")
@@ -375,13 +429,23 @@ def _parse_effect(node: Any) -> Effect:
     level = node.get("max_impact_level")
     if level is not None and (isinstance(level, bool) or not isinstance(level, int) or not 0 <= level <= 3):
         raise _Bad(f"effect.max_impact_level must be a whole number from 0 to 3, not {level!r}")
+    after = node.get("after_clearance_max_impact_level")
+    if after is not None and (isinstance(after, bool) or not isinstance(after, int) or not 0 <= after <= 3):
+        raise _Bad(f"effect.after_clearance_max_impact_level must be a whole number from 0 to 3, not {after!r}")
+    if after is not None and not node.get("until_cleared"):
+        raise _Bad("effect.after_clearance_max_impact_level needs until_cleared = true")
+    if after is not None and level is not None and after < level:
+        raise _Bad("effect.after_clearance_max_impact_level cannot be below max_impact_level (a clearance lifts)")
+    pct = node.get("max_pct_1rm")
+    if pct is not None and (isinstance(pct, bool) or not isinstance(pct, int) or not 0 < pct <= 100):
+        raise _Bad(f"effect.max_pct_1rm must be a whole number from 1 to 100, not {pct!r}")
     avoid = node.get("avoid", [])
     if not isinstance(avoid, list) or any(a not in MOVEMENT_PATTERNS for a in avoid):
         bad = [a for a in avoid if a not in MOVEMENT_PATTERNS] if isinstance(avoid, list) else avoid
         raise _Bad(f"effect.avoid must list movement-pattern codes from: {', '.join(MOVEMENT_PATTERNS)}; "
                    f"unknown: {bad!r}")
     flags = {}
-    for key in ("balance_first", "supervision", "refer", "falls_risk"):
+    for key in ("balance_first", "supervision", "refer", "falls_risk", "carer_led", "hold_volume", "until_cleared"):
         val = node.get(key, False)
         if not isinstance(val, bool):
             raise _Bad(f"effect.{key} must be true or false, not {val!r}")
@@ -389,8 +453,13 @@ def _parse_effect(node: Any) -> Effect:
     category = node.get("category")
     if category is not None and category not in CATEGORY_RANK:
         raise _Bad(f"effect.category must be one of {', '.join(CATEGORY_RANK)}, not {category!r}")
-    caution = node.get("caution")
-    if caution is not None and (not isinstance(caution, str) or not caution.strip()):
-        raise _Bad(f"effect.caution must be non-empty text, not {caution!r}")
+    texts = {}
+    for key in ("caution", "person_note"):
+        text = node.get(key)
+        if text is not None and (not isinstance(text, str) or not text.strip()):
+            raise _Bad(f"effect.{key} must be non-empty text, not {text!r}")
+        texts[key] = text.strip() if text else None
+    if flags["until_cleared"] and not (flags["refer"] or level is not None or pct is not None or flags["hold_volume"]):
+        raise _Bad("effect.until_cleared needs something to wait: refer, max_impact_level, max_pct_1rm or hold_volume")
     return Effect(max_impact_level=level, avoid=tuple(sorted(set(avoid))), category=category,
-                  caution=caution.strip() if caution else None, **flags)
+                  max_pct_1rm=pct, after_clearance_max_impact_level=after, **texts, **flags)
