@@ -65,6 +65,7 @@ MOVEMENT_PATTERNS: dict[str, str] = {
     "overhead_loading": "Holding or pressing a load above the head.",
     "breath_holding_strain": "Straining with a held breath (Valsalva), as in maximal lifts.",
     "deep_knee_flexion": "Bending the knee fully under load (deep squats, deep lunges).",
+    "narrow_base_stance": "Standing or walking heel-to-toe or on one leg (a base narrower than feet together).",
 }
 
 T_SCORE_SITES: tuple[str, ...] = ("lumbar_spine", "femoral_neck", "total_hip")

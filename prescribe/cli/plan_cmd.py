@@ -134,7 +134,10 @@ def run(args) -> int:
     from ..planning.safety import assert_safe, record_clearance
 
     try:
-        plan = build_plan(record, screen(record), options, template=clinic_template)
+        # A clearance recorded with the plan lifts what the screening held until then (docs/safety.md).
+        cleared = args.cleared_by is not None
+        plan = build_plan(record, screen(record, cleared=cleared), options, template=clinic_template,
+                          cleared=cleared)
     except InputError as exc:
         raise _named_as_options(exc) from None
     plan = plan.model_copy(update={"start_date": start.isoformat()})

@@ -87,6 +87,10 @@ def handout_context(plan: Plan, audience: str, paper: str, clinic: Clinic, senso
         "large_print": bool(large_print),
         "person": person, "clinician": clinician,
         "clinic": clinic, "short_caution": SHORT_CAUTION, "cautions": content.all_cautions(plan),
+        "person_cautions": content.person_cautions(plan) if person else None,
+        "person_notes": plan.screening.person_notes,
+        # Carer-led (screening carer_led): the person's pages speak to whoever helps (docs/handout.md).
+        "carer": bool(plan.screening.carer_led), "person_name": content.person_name(plan),
         "person_short_caution": PERSON_SHORT_CAUTION,
         "glance": content.at_a_glance(plan, facts),
         "goals": content.goals(plan) if person else None,

@@ -25,7 +25,8 @@ from .options import PlanOptions
 from .progression import _Progression
 from .rules import Template, load_template
 from .selection import _Selection, _views, _views_by_id
-from .sources import (SRC_BECK, SRC_CADENCE, SRC_KOHRT, SRC_REMODEL, SRC_ROBLING, SRC_TURNER_DIR, SRC_TURNER_OI,
+from .sources import (CARER_LED_MAX_DAYS, CARER_LED_MAX_EXERCISES, SRC_BECK, SRC_CADENCE, SRC_CARER_LED,
+                      SRC_HOLD_VOLUME, SRC_KOHRT, SRC_REMODEL, SRC_ROBLING, SRC_TURNER_DIR, SRC_TURNER_OI,
                       SRC_WATSON)
 
 __all__ = ["build_plan", "check_plan", "IMPACT_LABELS"]
@@ -35,6 +36,26 @@ IMPACT_LABELS = IMPACT_LEVEL_LABELS  # the catalogue's, next to the level bounda
 
 class _Builder(_Selection, _Progression, _Dosing, _Layout):
     """Holds one plan's choices; :meth:`build` lays them out week by week and assembles the plan."""
+
+    def _fit_carer_led(self, options: PlanOptions) -> None:
+        """A short program (screening ``carer_led``): at most CARER_LED_MAX_DAYS days a week.
+
+        Sessions a week the clinician did not fix are lowered to fit; a fixed number that does
+        not fit is refused, naming the option.
+        """
+        fixed = options.model_fields_set
+        wanted = {"impact_sessions_per_week": 2, "resistance_sessions_per_week": 1, "balance_sessions_per_week": 2}
+        update = {}
+        for name, value in wanted.items():
+            given = getattr(options, name)
+            if name in fixed and given is not None and given > value:
+                raise PlanRequestRefused("carer_led", f"{name} {given} is more than a short carer-led program "
+                                         f"holds ({value}; at most {CARER_LED_MAX_DAYS} days a week)",
+                                         field=name, value=given)
+            if name not in fixed:
+                update[name] = value
+        if update:
+            self.options = options = options.model_copy(update=update)
 
     def __init__(self, record: PatientRecord, screening: ScreeningResult, options: PlanOptions,
                  catalogue, tpl: Template):
@@ -67,6 +88,14 @@ class _Builder(_Selection, _Progression, _Dosing, _Layout):
                                      f"({self.cap}); the plan may not exceed it", field="start_level",
                                      value=options.start_level)
         self.falls = bool(screening.falls_risk or screening.balance_first)
+        # Version-2 limits (docs/plan.md "What the screening holds back"): the heaviest load,
+        # a short carer-led program, and the starting dose held until the clearance.
+        self.max_pct_1rm = screening.max_pct_1rm
+        self.carer_led = bool(screening.carer_led)
+        self.hold_volume = bool(screening.hold_volume)
+        if self.carer_led:
+            self._fit_carer_led(options)
+        options = self.options
         excluded = set(options.exclude)
         self.prefer = frozenset(options.include)
         self.pool = [e for e in views if e.exercise_id not in excluded and not (e.patterns & self.avoid)
@@ -103,8 +132,20 @@ class _Builder(_Selection, _Progression, _Dosing, _Layout):
         if self.screening.refer:
             self.cautions.insert(0, "Screening asks that a clinician clear this person before any loading: "
                                     "do not start this program until then.")
-        if self.screening.supervision:
+        if self.screening.supervision and not self.carer_led:
             self.cautions.append("Supervised sessions are advised for this person, at least at first.")
+        if self.carer_led:
+            self.sources.append(SRC_CARER_LED)
+            self.cautions.append("Every session is done with a clinician or a carer present: a short program on "
+                                 f"at most {CARER_LED_MAX_DAYS} days a week, {CARER_LED_MAX_EXERCISES} exercises a "
+                                 "session.")
+        if self.hold_volume:
+            self.sources.append(SRC_HOLD_VOLUME)
+            self.cautions.append("The program stays at its starting dose (no rise in volume, level or load) until "
+                                 "a clinician records the clearance after the medical and dietetic review.")
+        if self.max_pct_1rm is not None:
+            self.cautions.append(f"No resistance load above {self.max_pct_1rm}% 1RM until a clinician records "
+                                 "that the reason for this limit has gone (see the screening flags).")
         used_ids = {x["exercise_id"] for lst in (*used["impact"], *used["resistance"], *used["balance"])
                     for x in lst}
         ex_sources = [e.source for e in _views_by_id(self.pool, used_ids)]
@@ -160,7 +201,7 @@ def _default_template(record: PatientRecord) -> str:
 
 def build_plan(record: PatientRecord, screening: ScreeningResult | None = None,
                options: PlanOptions | None = None, catalogue=None, created: str | None = None,
-               *, template: Template | None = None) -> Plan:
+               *, template: Template | None = None, cleared: bool = False) -> Plan:
     """Build the graded program for one person.
 
     Parameters
@@ -179,6 +220,10 @@ def build_plan(record: PatientRecord, screening: ScreeningResult | None = None,
     template : Template, optional
         A template already resolved and validated (a clinic version from the store);
         it takes the place of ``options.template`` and the default choice.
+    cleared : bool
+        A clinician records the clearance with this program: the referral, caps and volume
+        hold that the screening rules held until a clearance are lifted (the caller records
+        who and when with :func:`prescribe.planning.safety.record_clearance`).
     Returns
     -------
     Plan
@@ -200,13 +245,13 @@ def build_plan(record: PatientRecord, screening: ScreeningResult | None = None,
     """
     options = options or PlanOptions()
     from .safety import rescreen, strictest_screening
-    if screening is None:
-        screening = rescreen(record)
+    if screening is None or (cleared and not screening.cleared):
+        screening = rescreen(record, cleared)
     else:
         # A screening given by the caller (perhaps from an older rule set) is held to the
         # record's screening with the current rules: the plan follows the stricter of the two,
         # as the safety check does (docs/safety.md).
-        screening = strictest_screening(screening, rescreen(record))
+        screening = strictest_screening(screening, rescreen(record, cleared))
     if catalogue is None:
         from ..catalogue import default_catalogue
         catalogue = default_catalogue()

@@ -15,6 +15,7 @@ from typing import Any, Iterable
 from ..loading.dose import daily_osteogenic_index, osteogenic_index
 from .rules import ResistancePhase
 from ..intensity import SUPERVISED_FROM_PCT_1RM, pct_1rm as _pct_1rm
+from .sources import CARER_LED_MAX_EXERCISES
 from .selection import _Ex
 from .sources import (IMPACT_REST_S, IMPACTS_PER_SET, LIFT_PRACTICE_PCT, LIFT_PRACTICE_REPS, LIFT_PRACTICE_SETS,
                       MIN_BOUT_GAP_H, STEPS_PER_MINUTE)
@@ -94,6 +95,8 @@ class _Dosing:
 
     def impact_exercises(self, level: int, vol: int) -> list[dict]:
         chosen = self.sets_by_level.get(level, [])
+        if self.carer_led:      # a short program: room for the balance work in a session
+            chosen = chosen[:CARER_LED_MAX_EXERCISES - 2]
         if level == 0:
             return [_exercise(e, sets=2, reps=vol, rest_s=60, intensity="RPE 3-4",
                               notes="Weight-bearing, feet on the ground; hold a support if needed.")
@@ -136,6 +139,8 @@ class _Dosing:
                 usable = [c for c in chain if lifts or not c.loaded_by_1rm] or chain[:1]
                 e = usable[-1]
             sets, reps, pct = ph.sets, ph.reps, ph.pct_1rm
+            if pct is not None and self.max_pct_1rm is not None:
+                pct = min(pct, float(self.max_pct_1rm))    # the screening's heaviest load allowed
             ex_note, ex_rest = note, rest
             if e.loaded_by_1rm and practice:
                 # Light practice of the same barbell lift before it is loaded (Watson et al. 2018).
@@ -154,6 +159,8 @@ class _Dosing:
                 intensity = _rpe_for(pct, ph.intensity)
             out.append(_exercise(e, sets=sets, reps=reps, intensity=intensity, rest_s=ex_rest, notes=ex_note))
         extra = []
+        if self.carer_led:
+            return out[:CARER_LED_MAX_EXERCISES], ph
         if self.back:
             extra.append(self.back[0] if ph.name == "technique" or len(self.back) == 1 else self.back[1])
         if self.posture:
@@ -169,6 +176,9 @@ class _Dosing:
         if not chosen:
             return []
         each = max(1.0, round(2 * minutes / len(chosen)) / 2)
+        _, held = self._stance_limit()
+        hold = ("hold 10-30 s at a time" if held is None else
+                f"hold up to {max(5, int(held)) if held < 30 else 30} s at a time (as long as held at the test)")
         return [_exercise(e, minutes=each, rest_s=30, intensity="challenging but safe",
-                          notes="Near a counter or stable support; hold 10-30 s at a time.") for e in chosen]
+                          notes=f"Near a counter or stable support; {hold}.") for e in chosen]
 

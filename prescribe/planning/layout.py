@@ -57,6 +57,8 @@ class _Layout:
         for w, (level, vol, step_up, weak, text, ph) in enumerate(schedule, start=1):
             b_stage = (w - 1) // (BALANCE_STAGE_WEEKS_FALLS if self.falls else BALANCE_STAGE_WEEKS)
             minutes = bal_minutes or min(tpl.balance["minutes_start"] + 5 * ((w - 1) // 4), tpl.balance["minutes_full"])
+            if self.hold_volume:
+                minutes = bal_minutes or tpl.balance["minutes_start"]
             if (level, vol) not in c_imp:
                 imp = self.impact_exercises(level, vol)
                 c_imp[level, vol] = (imp, _session_oi(imp),
@@ -71,6 +73,9 @@ class _Layout:
             imp, oi_i, n_imp = c_imp[level, vol]
             res, oi_r, pct_r = c_res[res_key]
             bal, oi_b = c_bal[b_stage, minutes]
+            if self.carer_led:  # every session with a clinician or the carer present
+                for x in (*imp, *res, *bal):
+                    x["supervised"] = True
             used_l23 = used_l23 or n_imp > 0
             sup_i, sup_r, sup_b = (any(x["supervised"] for x in lst) for lst in (imp, res, bal))
             sessions = []

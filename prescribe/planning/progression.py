@@ -71,7 +71,11 @@ class _Progression:
         for w in range(1, self.options.weeks + 1):
             step_up = False
             pos = window_pos(w)
-            if w > 1:
+            if w > 1 and self.hold_volume:
+                if requested is not None and w in requested:
+                    self._refuse_step(w, "hold_volume", "the screening holds the starting dose until a clinician "
+                                      "records the clearance (medical and dietetic review first)")
+            elif w > 1:
                 asked = requested is not None and w in requested
                 if pos:
                     if asked:
@@ -125,7 +129,9 @@ class _Progression:
             at_full = at_full + 1 if vol >= full else 0
             weak = bool(pos)
             label = IMPACT_LABELS[level]
-            if weak:
+            if self.hold_volume and w > 1:
+                text = f"hold {label} at the starting dose until cleared"
+            elif weak:
                 text = f"consolidate {label} (remodelling window: no increase)"
             elif step_up:
                 text = f"start {label}" if w == 1 else f"step up to {label}"

@@ -9,14 +9,19 @@ limits and the pool of allowed exercises.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Iterable
 
 from ..catalogue import IMPACT_LEVEL_LABELS as IMPACT_LABELS
-from ..records import PatientRecord, ScreeningResult
+from ..records import FIELD_META, PatientRecord, ScreeningResult
+from .progression import reassessment_weeks
 from .rules import Template
 from .sources import (BALANCE_FIRST_WEEKS, BALANCE_STAGE_WEEKS, BALANCE_STAGE_WEEKS_FALLS, FRAIL_BODYWEIGHT_WEEKS,
-                      NEVER_IN_RESISTANCE, RESISTANCE_CHAINS_MAX, SRC_ACSM_PROGRESSION, SRC_BROOKE, SRC_GIANG)
+                      NARROW_STANCE_PATTERN, NEVER_IN_RESISTANCE, RESISTANCE_CHAINS_MAX, SRC_ACSM_PROGRESSION,
+                      SRC_BALANCE_MEASURED, SRC_BROOKE, SRC_GIANG)
+
+#: The tandem stance test's full time [s]: the record's own bound (the test stops there).
+TANDEM_TEST_FULL_S: float = FIELD_META["tandem_stance_s"]["maximum"]
 
 @dataclass(frozen=True)
 class _Ex:
@@ -156,6 +161,19 @@ def _frail(record: PatientRecord, screening: ScreeningResult) -> bool:
 
 
 
+def _phases_within(phases, max_pct_1rm: float | None) -> tuple:
+    """The resistance phases up to the heaviest load allowed (screening ``max_pct_1rm``): phases above
+    it are left out and the last one kept runs to the end of the program."""
+    if max_pct_1rm is None:
+        return tuple(phases)
+    kept = [ph for ph in phases if ph.pct_1rm is None or ph.pct_1rm <= max_pct_1rm]
+    if not kept:
+        kept = [replace(phases[0], pct_1rm=float(max_pct_1rm))]
+    if len(kept) < len(phases):
+        kept[-1] = replace(kept[-1], weeks=0)
+    return tuple(kept)
+
+
 class _Selection:
     """The builder's choices of exercises (a mixin: the builder holds the state they read)."""
 
@@ -193,7 +211,8 @@ class _Selection:
 
     def _choose_resistance(self) -> None:
         self.spine_sparing, why = _spine_sparing(self.record, self.screening, self.tpl)
-        self.phases = self.tpl.spine_sparing_phases if self.spine_sparing else self.tpl.resistance_phases
+        self.phases = _phases_within(self.tpl.spine_sparing_phases if self.spine_sparing
+                                     else self.tpl.resistance_phases, self.max_pct_1rm)
         self.frail = _frail(self.record, self.screening)
         allowed = {e.exercise_id for e in self.pool
                    if not (e.patterns & NEVER_IN_RESISTANCE) and e.impact_level == 0
@@ -221,6 +240,12 @@ class _Selection:
     def _choose_balance(self) -> None:
         self.balance_pool = sorted((e for e in self.pool if e.category == "balance"),
                                    key=lambda e: (e.balance_rank, e.exercise_id not in self.prefer, e.order))
+        narrow_from, held = self._stance_limit()
+        if held is not None and any(NARROW_STANCE_PATTERN in e.patterns for e in self.balance_pool):
+            self.sources.append(SRC_BALANCE_MEASURED)
+            self.cautions.append(f"Tandem stance was held for {held:g} s of {TANDEM_TEST_FULL_S:g}: balance work "
+                                 "starts with feet together and stepping, holds no longer than the person held, and "
+                                 f"heel-to-toe or one-leg stance waits for the review (from week {narrow_from}).")
         if self.falls:
             self.sources.append(SRC_GIANG)
             impact = (f"impact work does not step above low impact in the first {BALANCE_FIRST_WEEKS} weeks"
@@ -228,6 +253,15 @@ class _Selection:
                       f"the clinician chose to start impact work at level {self.start} ({IMPACT_LABELS[self.start]})")
             self.cautions.append("Falls risk: balance work comes first in each session and is practised "
                                  f"next to a stable support, supervised at first; {impact}.")
+
+    def _stance_limit(self) -> tuple[int, float | None]:
+        """(first week narrow-base stance may be used, seconds held) where the person could not hold
+        the tandem stance test for its full time; (1, None) otherwise."""
+        held = self.record.tandem_stance_s
+        if held is None or held >= TANDEM_TEST_FULL_S:
+            return 1, None
+        reviews = reassessment_weeks(self.options.weeks)
+        return (reviews[0] + 1 if reviews else self.options.weeks + 1), held
 
     def _balance_set(self, week: int) -> list[_Ex]:
         """Three balance exercises, sliding toward harder ones every few weeks.
@@ -238,7 +272,13 @@ class _Selection:
         """
         stage_len = BALANCE_STAGE_WEEKS_FALLS if self.falls else BALANCE_STAGE_WEEKS
         stage = (week - 1) // stage_len + (0 if self.falls else 1)
+        if self.hold_volume:
+            stage = 0 if self.falls else 1
         pool = self.balance_pool
-        offset = max(0, min(stage, len(pool) - 3))
-        return sorted(pool[offset:offset + 3], key=lambda e: (e.balance_rank, e.order))
+        narrow_from, _ = self._stance_limit()
+        if week < narrow_from:
+            pool = [e for e in pool if NARROW_STANCE_PATTERN not in e.patterns]
+        count = 2 if self.carer_led else 3
+        offset = max(0, min(stage, len(pool) - count))
+        return sorted(pool[offset:offset + count], key=lambda e: (e.balance_rank, e.order))
 

@@ -59,3 +59,25 @@ SRC_ACSM_PROGRESSION = ("American College of Sports Medicine 2009, Progression m
 #: loaded spine flexion is not recommended (Beck et al. 2017); twisting under load
 #: likewise (Giangregorio et al. 2014).
 NEVER_IN_RESISTANCE = frozenset({"loaded_spinal_flexion", "loaded_spinal_twisting"})
+
+#: A carer-led or supervised program for a person who cannot follow a written home program
+#: alone (moderate or severe cognitive impairment, or living alone with falls risk): at most
+#: this many days a week with sessions and exercises a session (common practice: a short,
+#: routine program a carer can lead; Montero-Odasso et al. 2022, Age Ageing 51:afac205, from memory).
+CARER_LED_MAX_DAYS = 3
+CARER_LED_MAX_EXERCISES = 4
+SRC_CARER_LED = ("Montero-Odasso et al. 2022, World guidelines for falls prevention and management for older "
+                 "adults, Age Ageing 51:afac205 (supervised, tailored exercise with cognitive impairment; from "
+                 "memory); a short carer-led program of at most 3 days and 4 exercises a session: common practice")
+
+#: Narrow-base stance (heel-to-toe or one leg): where the person could not hold the tandem stance
+#: test for its full time, balance work starts below it and moves to it only after the first review
+#: (CDC STEADI 4-stage balance test: tandem stance held under 10 s means increased falls risk;
+#: starting within what was measured is common practice).
+NARROW_STANCE_PATTERN = "narrow_base_stance"
+SRC_BALANCE_MEASURED = ("CDC STEADI 4-stage balance test (tandem stance held under 10 s: increased falls risk); "
+                        "balance tasks start within what the person held: common practice")
+
+#: Why a program holds its starting dose (screening ``hold_volume``) until a clinician records the clearance.
+SRC_HOLD_VOLUME = ("Mountjoy et al. 2018, Br J Sports Med 52:687-697 (low energy availability and bone; from "
+                   "memory); no rise in volume before medical and dietetic review: common practice")

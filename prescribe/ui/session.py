@@ -137,7 +137,7 @@ class ClinicSession:
             self.record_version = None
             self.start_date = None
         self.record = record
-        self.screening = _screening().screen(record)
+        self.screening = _screening().screen(record, cleared=self.clearance is not None)
         self.plan = None
         self.build()
         return True
@@ -161,7 +161,8 @@ class ClinicSession:
         template, template_note = self._kept_template()
 
         def make():
-            plan = build_plan(self.record, self.screening, plan_options(**options), template=template)
+            plan = build_plan(self.record, self.screening, plan_options(**options), template=template,
+                              cleared=self.clearance is not None)
             for old, new in self.swaps:
                 # A swap applies while the exercise it replaced is still chosen by the planner and the
                 # replacement is not (a swap never merges two exercises of the program into one).
@@ -311,6 +312,10 @@ class ClinicSession:
             return False
         self.clearance = (plan.cleared_by, plan.cleared_at)
         self.plan, self.refusal = plan, None
+        if self.screening is not None and any(f.until_cleared for f in self.screening.flags):
+            # What waited for the clearance is lifted: screen again with it and rebuild.
+            self.screening = _screening().screen(self.record, cleared=True)
+            self.build()
         return True
 
     def _cleared(self, plan):
@@ -524,6 +529,8 @@ class ClinicSession:
         self.saved_version = int(latest)
         self.clearance = ((self.plan.cleared_by, self.plan.cleared_at)
                           if self.plan.cleared_by and self.plan.cleared_at else None)
+        if self.clearance is not None and self.record is not None:
+            self.screening = _screening().screen(self.record, cleared=True)
         self.start_date = self.plan.start_date
         self.refusal = None
         try:  # a stored program from an older version may break a rule added since: say so

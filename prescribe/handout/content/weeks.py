@@ -98,3 +98,17 @@ def review_weeks(plan: Plan) -> list[tuple[int, str | None]]:
 def all_cautions(plan: Plan) -> list[str]:
     """The standard cautions first, then the plan's and the screening's own."""
     return with_standard([*plan.cautions, *plan.screening.cautions])
+
+
+def person_cautions(plan: Plan) -> list[str]:
+    """The cautions of the person's pages: the standard ones, what the screening's rules say to the
+    person (``person_notes``), then the planner's own; never the screening's clinician-facing texts
+    (they are on the clinician's pages)."""
+    for_clinician = set(plan.screening.cautions)
+    return with_standard([*plan.screening.person_notes, *(c for c in plan.cautions if c not in for_clinician)])
+
+
+def person_name(plan: Plan) -> str:
+    """How the person's pages address the person: the record's display_name, else the pseudonymous id."""
+    record = plan.record
+    return record.display_name if record is not None and record.display_name else plan.patient_id

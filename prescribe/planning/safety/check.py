@@ -16,6 +16,9 @@ from .impact import (SRC_BOUTS, SRC_CEILING, SRC_DIRECTIONS, SRC_SCREENING, rule
 from .integrity import (SRC_CATALOGUE, SRC_FIGURES, SRC_SWAP, rule_catalogue_match, rule_impact_counts,
                         rule_same_person, rule_swap_same_kind, rule_week_figures)
 from .limits import limits_for
+from .person import (SRC_LOAD_CAP, rule_balance_within_measured, rule_carer_led, rule_hold_volume,
+                     rule_load_cap)
+from ..sources import SRC_BALANCE_MEASURED, SRC_CARER_LED, SRC_HOLD_VOLUME
 from .model import Rule, SafetyViolation
 from .progression import SRC_ONE_LEVEL, SRC_REMODEL, rule_one_level_at_a_time, rule_weak_window
 from .strength import (SRC_RESISTANCE_DAYS, SRC_SPINE, SRC_SUPERVISION, rule_resistance_days,
@@ -51,6 +54,13 @@ RULES: tuple[Rule, ...] = (
          rule_swap_same_kind),
     Rule("resistance_days", "At most 3 resistance sessions a week, not on consecutive days", SRC_RESISTANCE_DAYS,
          rule_resistance_days),
+    Rule("load_cap", "No resistance load above the screening's heaviest allowed", SRC_LOAD_CAP, rule_load_cap),
+    Rule("carer_led", "A short program, every session supervised or carer-led, where the person cannot exercise "
+         "alone", SRC_CARER_LED, rule_carer_led),
+    Rule("hold_volume", "The starting dose held until the clearance where the screening asks", SRC_HOLD_VOLUME,
+         rule_hold_volume),
+    Rule("balance_within_measured", "Balance tasks start within what the person was measured to hold",
+         SRC_BALANCE_MEASURED, rule_balance_within_measured),
     Rule("draft_until_cleared", "A draft until a clinician clears a referred person", SRC_DRAFT,
          rule_draft_until_cleared),
     Rule("same_person", "The records are the plan's own person's", SRC_FIGURES, rule_same_person),

@@ -21,13 +21,19 @@ def limits_for(plan: Plan, screening: ScreeningResult | None = None, *,
     refer and supervision are set if any says so.
     """
     found: list[tuple[str, ScreeningResult]] = []
-    if screening is not None:
+    # A clearance recorded on the plan (who and when) lifts what the rules held until then; a
+    # screening made before the clearance is then superseded by the records screened again with
+    # it, so it is left out where a record is there to screen (docs/safety.md "Clearance").
+    cleared = bool(plan.cleared_by and plan.cleared_at)
+    has_record = plan.record is not None or record is not None
+    if screening is not None and not (cleared and has_record and not screening.cleared):
         found.append(("screening given", screening))
-    found.append(("plan.screening", plan.screening))
+    if not (cleared and has_record and not plan.screening.cleared):
+        found.append(("plan.screening", plan.screening))
     if plan.record is not None:
-        found.append(("re-screened plan.record", rescreen(plan.record)))
+        found.append(("re-screened plan.record", rescreen(plan.record, cleared)))
     if record is not None:
-        found.append(("re-screened record", rescreen(record)))
+        found.append(("re-screened record", rescreen(record, cleared)))
     cap = min(s.max_impact_level for _, s in found)
     plan_cap = plan.max_impact_level
     if plan_cap is not None and 0 <= plan_cap < cap:
@@ -38,7 +44,11 @@ def limits_for(plan: Plan, screening: ScreeningResult | None = None, *,
         max_imp = IMPACTS_CEILING
     if max_imp > IMPACTS_CEILING and not plan.max_impacts_reason:
         max_imp = IMPACTS_CEILING
+    pcts = [s.max_pct_1rm for _, s in found if s.max_pct_1rm is not None]
     return Limits(
+        max_pct_1rm=min(pcts) if pcts else None,
+        carer_led=any(s.carer_led for _, s in found),
+        hold_volume=any(s.hold_volume for _, s in found),
         cap=cap, avoid=avoid,
         falls_risk=any(s.falls_risk or s.balance_first for _, s in found),
         refer=any(s.refer for _, s in found),
@@ -50,7 +60,8 @@ def limits_for(plan: Plan, screening: ScreeningResult | None = None, *,
     )
 
 
-_CATEGORY_ORDER = ("unknown", "normal", "osteopenia", "osteoporosis", "severe_osteoporosis")
+_CATEGORY_ORDER = ("unknown", "normal", "within_expected_range_for_age", "osteopenia",
+                   "below_expected_range_for_age", "osteoporosis", "severe_osteoporosis")
 
 
 def strictest_screening(*screenings: ScreeningResult) -> ScreeningResult:
@@ -75,6 +86,7 @@ def strictest_screening(*screenings: ScreeningResult) -> ScreeningResult:
     avoid: list[str] = []
     for scr in screenings:
         avoid.extend(p for p in scr.avoid if p not in avoid)
+    pcts = [s.max_pct_1rm for s in screenings if s.max_pct_1rm is not None]
     return first.model_copy(update={
         "bone_density_category": category,
         "falls_risk": any(s.falls_risk for s in screenings),
@@ -85,16 +97,22 @@ def strictest_screening(*screenings: ScreeningResult) -> ScreeningResult:
         "cautions": cautions,
         "balance_first": any(s.balance_first for s in screenings),
         "supervision": any(s.supervision for s in screenings),
+        "max_pct_1rm": min(pcts) if pcts else None,
+        "carer_led": any(s.carer_led for s in screenings),
+        "hold_volume": any(s.hold_volume for s in screenings),
+        "person_notes": list(dict.fromkeys(n for s in screenings for n in s.person_notes)),
+        "cleared": all(s.cleared for s in screenings),
     })
 
 
-def rescreen(record: PatientRecord) -> ScreeningResult:
-    """The record screened with the current rules (remembered: a plan is checked at many doors)."""
-    return _rescreen_json(record.model_dump_json())
+def rescreen(record: PatientRecord, cleared: bool = False) -> ScreeningResult:
+    """The record screened with the current rules (remembered: a plan is checked at many doors);
+    ``cleared``: with a recorded clearance (what waited for it lifted)."""
+    return _rescreen_json(record.model_dump_json(), cleared)
 
 
 @lru_cache(maxsize=256)
-def _rescreen_json(text: str) -> ScreeningResult:
+def _rescreen_json(text: str, cleared: bool = False) -> ScreeningResult:
     from ...records import PatientRecord as _Record
     from ...screening import screen
-    return screen(_Record.model_validate_json(text))
+    return screen(_Record.model_validate_json(text), cleared=cleared)

@@ -55,6 +55,9 @@ class Limits:
     supervision: bool = False
     spine_sparing: bool = False
     max_impacts: int = IMPACTS_CEILING
+    max_pct_1rm: int | None = None      # the heaviest resistance load allowed [% 1RM]
+    carer_led: bool = False             # a short program, every session supervised or carer-led
+    hold_volume: bool = False           # the starting dose held until the clearance
     #: Where the limits come from, e.g. ("plan.screening", "re-screened plan.record").
     origins: tuple[str, ...] = ()
 
