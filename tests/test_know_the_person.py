@@ -333,3 +333,18 @@ def test_a_version_1_record_reads_writes_and_screens_as_before():
     with pytest.raises(InputError) as err:
         parse_record({**v1, "record_version": 1, "cognition": "mild"})
     assert "record_version" in str(err.value)
+
+
+def test_the_apps_clearance_lifts_what_waited_and_rebuilds(tmp_path):
+    # Tsourdi et al. 2017, Bone 105:11-17 (from memory): the overdue-denosumab caps wait for the
+    # prescriber; once a clinician records the clearance in the app, the program is rebuilt without them.
+    from prescribe.ui.session import ClinicSession
+    session = ClinicSession(store_url=str(tmp_path / "store.db"))
+    assert session.submit(DENOSUMAB_LATE)
+    assert session.is_draft and max(w.impact_level for w in session.plan.weeks) <= 1
+    assert session.clear("Dr A. Nwosu")
+    assert not session.is_draft and session.screening.cleared
+    assert max(w.impact_level for w in session.plan.weeks) == 2
+    assert {"loaded_spinal_flexion", "loaded_spinal_twisting"} <= set(session.plan.screening.avoid)
+    from prescribe.ui.intake_view import screening_html
+    assert "Lifted by the recorded clearance" in screening_html(session.screening)

@@ -161,8 +161,16 @@ def screening_html(screening) -> str:
     s = screening
     t = "" if s.lowest_t_score is None else f" (lowest T-score {s.lowest_t_score:g}" + (
         f" at {esc(s.lowest_t_score_site.replace('_', ' '))})" if s.lowest_t_score_site else ")")
+    if s.density_reference == "z_score":
+        z = ("no Z-score recorded, so no category" if s.lowest_z_score is None else
+             f"lowest Z-score {s.lowest_z_score:g}" + (f" at {s.lowest_z_score_site.replace('_', ' ')}"
+                                                       if s.lowest_z_score_site else ""))
+        density = ("Bone density (by Z-score: before the menopause or under 50)",
+                   s.bone_density_category.replace("_", " ") + f" ({z})")
+    else:
+        density = ("Bone density category", s.bone_density_category.replace("_", " ") + t)
     glance = [
-        ("Bone density category", s.bone_density_category.replace("_", " ") + t),
+        density,
         ("Falls risk", "yes" if s.falls_risk else "no"),
         ("Highest impact level allowed", IMPACT_LABELS.get(s.max_impact_level, s.max_impact_level)),
         ("Movement patterns to avoid", ", ".join(p.replace("_", " ") for p in s.avoid) or "none"),
@@ -170,11 +178,21 @@ def screening_html(screening) -> str:
         ("Balance work first", "yes" if s.balance_first else "no"),
         ("Supervised sessions", "yes" if s.supervision else "no"),
     ]
+    if s.max_pct_1rm is not None:
+        glance.append(("Heaviest resistance load", f"{s.max_pct_1rm}% 1RM"))
+    if s.carer_led:
+        glance.append(("Sessions", "with a clinician or carer present; a short program; the person's pages are "
+                                   "written for the carer"))
+    if s.hold_volume:
+        glance.append(("Volume", "held at the starting dose until a clinician records the clearance"))
     rows = "".join(f'<tr class="pr-glance-{i}"><th>{esc(k)}</th><td>{esc(v)}</td></tr>' for i, (k, v) in enumerate(glance))
     flags = "".join(
         f'<div class="pr-flag pr-flag-{esc(f.severity)}" data-rule="{esc(f.rule)}"><b>{esc(f.title or plain(f.rule))}</b> '
         f'<small>[{esc(SEVERITIES.get(f.severity, f.severity))}]</small><br>{esc(f.message)}'
-        f'<br><small>Source: {esc(f.source)}</small></div>' for f in s.flags) or "<p>No rule fired.</p>"
+        + (' <b class="pr-lifted">Lifted by the recorded clearance.</b>' if f.lifted_by_clearance else
+           ' <b class="pr-until-cleared">Holds until a clinician records the clearance.</b>' if f.until_cleared
+           else "")
+        + f'<br><small>Source: {esc(f.source)}</small></div>' for f in s.flags) or "<p>No rule fired.</p>"
     version = f"<p><small>Rule set {esc(s.ruleset_version)}</small></p>" if s.ruleset_version else ""
     return (f'<table class="pr-table pr-glance">{rows}</table><h3>Flags ({len(s.flags)})</h3>'
             f'<div class="pr-flags">{flags}</div>{version}')
