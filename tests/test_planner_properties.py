@@ -201,6 +201,10 @@ def refusal_is_justified(record, screening, options, refused) -> None:
         assert any(3 <= week - s + 1 <= 5 for s in starts), (week, starts)
     elif refused.rule == "rule 7":  # balance first with falls risk, for the first weeks
         assert (screening.falls_risk or screening.balance_first) and week <= 4 and before + 1 >= 2
+    elif refused.rule == "hold_volume":  # the screening holds the starting dose until a clearance
+        # (BMI under 18.5: WHO 2000 TRS 894; medical and dietetic review first, common practice)
+        assert screening.hold_volume and not screening.cleared
+        assert len({(w.impact_level, w.impact_volume) for w in plan.weeks}) == 1
     elif refused.rule == "rule 2":  # the level not yet held at full volume long enough
         hold = load_template(plan.template.name).impact["hold_weeks_at_full"]
         assert _weeks_at_full_before(plan, week) < hold, (week, _weeks_at_full_before(plan, week))
