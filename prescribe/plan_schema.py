@@ -239,6 +239,19 @@ def week_start(start_date: date | str, week: int) -> date:
     return start + timedelta(days=7 * (int(week) - 1))
 
 
+def review_dates(plan: Plan) -> list[tuple[int, date | None]]:
+    """(week, first day of that week) of every review the plan asks for, in week order.
+
+    The one place a review week becomes a date: the handout, the app and the weekly table
+    read it.  Week N starts on start_date + 7(N-1) days (:func:`week_start`); a plan without
+    ``start_date`` (older plan files) gets no dates, never dates counted from ``created``
+    (the program may have begun later than the plan was made).
+    """
+    start = plan.start_date
+    return [(wk.week, week_start(start, wk.week) if start else None)
+            for wk in sorted(plan.weeks, key=lambda w: w.week) if wk.reassessment]
+
+
 def program_week(start_date: date | str, on: date | str | None = None) -> int:
     """The program week that ``on`` (default: today) falls in; week 1 starts on ``start_date``.
 

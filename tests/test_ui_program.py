@@ -18,6 +18,7 @@ from prescribe.ui import ClinicApp, ClinicSession
 from prescribe.ui import program_model as pm
 from prescribe.ui.charts import band_outline, weak_bands, whole_ticks
 from prescribe.ui.history_view import history_html
+from prescribe.ui.program_view import progression_html, stages_html
 from prescribe.ui.wording import exercise_names, field_words, plain
 
 # An invented woman of 62, femoral-neck T-score -2.6 (osteoporosis, WHO 1994): a program
@@ -131,6 +132,20 @@ def test_the_progression_at_a_glance_has_levels_work_strength_weak_windows_and_r
     assert all(f"week {w.week}" in stages for w in plan.weeks if w.reassessment)
     table = _text(app.week_table.value)
     assert "resistance intensity" not in table and "_" not in table
+
+
+def test_the_app_dates_each_review_from_the_programs_start_date(app):
+    # PRODUCT.md: week N runs from start_date + 7(N-1) days.
+    from datetime import date, timedelta
+
+    plan = app.session.plan.model_copy(update={"start_date": "2026-06-01"})
+    reviews = [w.week for w in plan.weeks if w.reassessment]
+    assert reviews
+    stages, weeks = _text(stages_html(plan)), _text(progression_html(plan))
+    for week in reviews:
+        when = date(2026, 6, 1) + timedelta(days=7 * (week - 1))
+        words = f"{when.day} {when.strftime('%B %Y')}"
+        assert words in stages and words in weeks
 
 
 def test_weeks_where_impacts_do_not_apply_say_minutes_not_zero_impacts(app):
