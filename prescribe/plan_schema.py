@@ -127,6 +127,8 @@ class PlanSwap(_Open):
 
     old: str
     new: str
+    week: int | None = Field(None, ge=1, description="The program week the swap was made in (null: not "
+                                                     "known, e.g. before the program began).")
 
 
 class PlanAdjustment(_Open):

@@ -187,6 +187,27 @@ def test_a_swap_asks_first_saying_what_will_change_and_then_says_what_changed(ap
     assert panel.confirm_box.layout.display == "none"
 
 
+def test_a_harder_swap_in_weeks_3_to_5_of_a_running_program_is_refused_in_plain_words(app):
+    # No increase of any kind in weeks 3-5 after a new stimulus (Eriksen 1986, Endocr Rev 7:379;
+    # Heaney, Yates & Santora 1997, J Bone Miner Res 12:1143): the program's start opens a window,
+    # so a swap to a harder exercise made in its week 3 is refused, naming the rule and the week.
+    from datetime import date, timedelta
+
+    from prescribe.catalogue import default_catalogue
+    from prescribe.planning.safety.facts import _catalogue_entries
+    from prescribe.planning.safety.progression import harder_reason
+
+    assert app.session.set_start_date(date.today() - timedelta(days=14))  # today is week 3
+    entries = _catalogue_entries(default_catalogue())
+    old, new = next((o, n) for o, _ in app.session.plan_exercises() for n, _ in app.session.swap_candidates(o)
+                    if harder_reason(entries[n], entries[o]) and entries[n].family == entries[o].family)
+    before = app.session.plan
+    assert app.session.swap(old, new) is False
+    assert app.session.plan is before
+    refusal = app.session.refusal
+    assert "[rule weak_window]" in refusal and "week 3" in refusal and new in refusal
+
+
 def test_cancel_changes_nothing(app):
     app.exercise_select.value = _swappable(app)
     before = app.session.plan
