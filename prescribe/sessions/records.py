@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import math
 from datetime import date
-from typing import Any, Literal
+from typing import Any, Iterable, Literal
 
 from pydantic import BaseModel, ConfigDict, Field, ValidationError, field_validator
 
@@ -164,3 +164,30 @@ def check_session_dates(session: SessionRecord, start_date: str | date | None, t
         if day < start:
             raise InputError.single("session_date", session.session_date,
                                     f"a date on or after the program's start_date {start.isoformat()}", source)
+
+
+def check_session_exercises(session: SessionRecord, plan: dict, catalogue_ids: Iterable[str],
+                            version: int | None = None, source: str | None = None) -> None:
+    """Refuse an exercise the catalogue does not have or the session's program version does not hold.
+
+    ``plan`` is the stored program version (a plan as JSON); every ``exercises[i].exercise_id``
+    must be one of its exercises (which are the catalogue's).  :class:`InputError` names each
+    wrong id and the program's ids.
+    """
+    known = set(catalogue_ids)
+    planned = sorted({str(x.get("exercise_id")) for w in plan.get("weeks") or () for s in w.get("sessions") or ()
+                      for x in s.get("exercises") or ()})
+    program = (f"program version {version} of {session.patient_id!r}" if version is not None
+               else f"the program of {session.patient_id!r}")
+    problems = []
+    for i, done in enumerate(session.exercises):
+        where = None
+        if done.exercise_id not in known:
+            where = "not in the exercise catalogue"
+        elif done.exercise_id not in planned:
+            where = f"not in {program}"
+        if where:
+            problems.append(FieldProblem(f"exercises[{i}].exercise_id", done.exercise_id,
+                                         f"an exercise of {program} ({where}): " + ", ".join(planned)))
+    if problems:
+        raise InputError(problems, source)
