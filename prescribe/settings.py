@@ -34,6 +34,7 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from .errors import InputError, NotPermittedError
+from .identifiers import check_identifier
 
 #: Environment variables the hub sets for each clinician's server.
 HUB_USER_ENV = "JUPYTERHUB_USER"
@@ -174,6 +175,7 @@ def current_clinician(explicit: str | None = None, *, required: bool = False) ->
     if explicit is not None and not isinstance(explicit, str):
         raise InputError.single("clinician", explicit, "text: the name or initials of the clinician")
     name = (explicit or "").strip()
+    check_identifier(name, "clinician")  # no NUL, control or invisible direction characters
     login = hub_login()
     if login is not None:
         if name and name != login:

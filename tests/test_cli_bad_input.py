@@ -140,3 +140,17 @@ def test_out_naming_an_existing_folder_exits_2_with_one_message(command, tmp_pat
     assert code == 2, err
     assert "--out" in err and str(folder) in err and "a file path, not a folder" in err and "Traceback" not in err
     assert list(folder.iterdir()) == [] and not (tmp_path / "store.db").exists()
+
+
+# ------------------------------------------------------------------ invisible characters in an id
+@pytest.mark.parametrize("ch", ["\x00", "\u202e"], ids=["NUL", "U+202E"])
+def test_a_patient_id_with_a_nul_or_a_direction_override_exits_2_naming_the_field(ch, tmp_path, capsys):
+    from prescribe.cli import main
+    path = tmp_path / "p.json"
+    data = json.loads(PERSON)
+    data["patient_id"] = f"NTC{ch}0012"
+    path.write_text(json.dumps(data), encoding="utf-8")
+    for cmd in ("screen", "plan"):
+        assert main([cmd, str(path)]) == 2
+        out, err = capsys.readouterr()
+        assert out == "" and "patient_id" in err and repr(data["patient_id"]) in err

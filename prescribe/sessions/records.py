@@ -15,6 +15,7 @@ from typing import Any, Iterable, Literal
 from pydantic import BaseModel, ConfigDict, Field, ValidationError, field_validator
 
 from ..errors import FieldProblem, InputError
+from ..identifiers import IDENTIFIER_CHARACTERS, identifier_text
 
 #: Symptom codes a session may carry (the vocabulary may grow; codes are never renamed).
 SYMPTOMS: dict[str, str] = {
@@ -32,11 +33,11 @@ SymptomCode = Literal["chest_pain", "dizziness", "unusual_breathlessness", "palp
 
 #: What each field accepts, in words (messages name it).
 ALLOWED: dict[str, str] = {
-    "patient_id": "the id of a stored person (1 to 64 characters)",
+    "patient_id": "the id of a stored person (1 to 64 characters, " + IDENTIFIER_CHARACTERS + ")",
     "session_date": "a date as YYYY-MM-DD, not in the future and not before the program's start_date",
     "program_version": "a stored program version of this person (a whole number from 1), or null for the latest",
     "exercises": "a list of {exercise_id, sets_done, reps_done, impacts_done, minutes_done, load_kg, rpe}",
-    "exercise_id": "an exercise id (1 to 64 characters)",
+    "exercise_id": "an exercise id (1 to 64 characters, " + IDENTIFIER_CHARACTERS + ")",
     "sets_done": "a whole number from 0 to 50, or null",
     "reps_done": "a whole number from 0 to 500 (repetitions in a set), or null",
     "impacts_done": "a whole number from 0 to 1000, or null",
@@ -72,6 +73,7 @@ class ExerciseDone(BaseModel):
     rpe: float | None = Field(None, ge=0, le=10, description="Effort of the exercise, Borg CR10 (0-10).")
 
     _f = field_validator("minutes_done", "load_kg", "rpe")(_finite)
+    _id = field_validator("exercise_id")(identifier_text)
 
 
 class SessionRecord(BaseModel):
@@ -91,6 +93,7 @@ class SessionRecord(BaseModel):
     note: str = Field("", max_length=2000)
 
     _f = field_validator("session_rpe")(_finite)
+    _id = field_validator("patient_id")(identifier_text)
 
     @field_validator("session_date")
     @classmethod
