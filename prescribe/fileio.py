@@ -143,10 +143,21 @@ def parse_json_text(text: str, what: str = "JSON document", max_depth: int = JSO
     return data
 
 
+#: How every input file is decoded: UTF-8, a leading byte-order mark dropped (editors on
+#: Windows save "UTF-8 with BOM"; the mark is not part of the data).
+INPUT_ENCODING = "utf-8-sig"
+
+
+def decode_text(raw: bytes) -> str:
+    """Input bytes as text (:data:`INPUT_ENCODING`); raises ``UnicodeDecodeError`` for non-UTF-8."""
+    return raw.decode(INPUT_ENCODING)
+
+
 def read_text_file(path: str | Path, what: str = "file", kind: str = "text file") -> str:
-    """The UTF-8 text of a file; a missing, unreadable or non-UTF-8 file is bad input naming ``what``."""
+    """The UTF-8 text of a file (a byte-order mark dropped); a missing, unreadable or non-UTF-8
+    file is bad input naming ``what``."""
     try:
-        return Path(path).read_text(encoding="utf-8")
+        return Path(path).read_text(encoding=INPUT_ENCODING)
     except FileNotFoundError:
         raise InputError.single(what, str(path), f"an existing, readable {'file' if kind == 'text file' else kind}"
                                 ) from None

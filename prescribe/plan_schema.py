@@ -127,6 +127,8 @@ class PlanSwap(_Open):
 
     old: str
     new: str
+    week: int | None = Field(None, ge=1, description="The program week the swap was made in (null: not "
+                                                     "known, e.g. before the program began).")
 
 
 class PlanAdjustment(_Open):
@@ -237,6 +239,19 @@ def week_start(start_date: date | str, week: int) -> date:
     """First day of program week ``week``: start_date + 7(week - 1) days."""
     start = parse_day(start_date, "start_date")
     return start + timedelta(days=7 * (int(week) - 1))
+
+
+def review_dates(plan: Plan) -> list[tuple[int, date | None]]:
+    """(week, first day of that week) of every review the plan asks for, in week order.
+
+    The one place a review week becomes a date: the handout, the app and the weekly table
+    read it.  Week N starts on start_date + 7(N-1) days (:func:`week_start`); a plan without
+    ``start_date`` (older plan files) gets no dates, never dates counted from ``created``
+    (the program may have begun later than the plan was made).
+    """
+    start = plan.start_date
+    return [(wk.week, week_start(start, wk.week) if start else None)
+            for wk in sorted(plan.weeks, key=lambda w: w.week) if wk.reassessment]
 
 
 def program_week(start_date: date | str, on: date | str | None = None) -> int:

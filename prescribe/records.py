@@ -280,6 +280,14 @@ class PatientRecord(_Strict):
     patient_id: str = Field(min_length=1, max_length=64, pattern=r"^\S(.*\S)?$",
                             description="Pseudonymous identifier, 1-64 characters, no leading or trailing space. No names needed.",
                             json_schema_extra=_meta(label="Patient ID"))
+
+    @field_validator("patient_id")
+    @classmethod
+    def _patient_id_characters(cls, value: str) -> str:
+        # No NUL, control or invisible direction characters: the one shared check (prescribe.identifiers).
+        from .identifiers import identifier_text
+        return identifier_text(value)
+
     age_years: int = Field(ge=18, le=110, description="Age in whole years.",
                            json_schema_extra=_meta("years", (40, 95), "Age"))
     sex: Sex = Field(description="Sex, as used by the published norms.", json_schema_extra=_meta(label="Sex"))

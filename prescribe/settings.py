@@ -34,6 +34,7 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from .errors import InputError, NotPermittedError
+from .identifiers import check_identifier
 
 #: Environment variables the hub sets for each clinician's server.
 HUB_USER_ENV = "JUPYTERHUB_USER"
@@ -51,11 +52,31 @@ def default_db_path() -> Path:
 
 
 def db_url(explicit: str | None = None) -> str:
-    """The SQLAlchemy URL of the store: ``--db``, then ``PRESCRIBE_DB``, then the default."""
+    """The SQLAlchemy URL of the store: ``--db``, then ``PRESCRIBE_DB``, then the default.
+
+    A SQLite store named by ``--db`` or ``PRESCRIBE_DB`` must be in a folder that exists
+    (:class:`InputError` naming the option and the path otherwise): a mistyped folder never
+    becomes a new, empty store elsewhere.  Only the default location's folder is created.
+    """
+    field = "--db" if explicit else "PRESCRIBE_DB" if os.environ.get("PRESCRIBE_DB") else None
     value = explicit or os.environ.get("PRESCRIBE_DB") or str(default_db_path())
     if "://" in value:
+        if field and value.startswith("sqlite:///"):
+            database = value[len("sqlite:///"):].split("?", 1)[0]
+            if database and database != ":memory:" and not database.startswith("file:"):
+                _folder_exists(Path(database), field, value)
         return value
-    return "sqlite:///" + str(Path(value).expanduser().resolve())
+    path = Path(value).expanduser().resolve()
+    if field:
+        _folder_exists(path, field, value)
+    return "sqlite:///" + str(path)
+
+
+def _folder_exists(path: Path, field: str, value: str) -> None:
+    folder = path.expanduser().parent
+    if not folder.is_dir():
+        raise InputError.single(field, value, f"a store file in a folder that exists: for {path} the folder "
+                                f"{folder} must exist (create it first, or name another file)")
 
 
 @dataclass(frozen=True)
@@ -154,6 +175,7 @@ def current_clinician(explicit: str | None = None, *, required: bool = False) ->
     if explicit is not None and not isinstance(explicit, str):
         raise InputError.single("clinician", explicit, "text: the name or initials of the clinician")
     name = (explicit or "").strip()
+    check_identifier(name, "clinician")  # no NUL, control or invisible direction characters
     login = hub_login()
     if login is not None:
         if name and name != login:

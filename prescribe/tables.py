@@ -8,7 +8,7 @@ from __future__ import annotations
 
 import pandas as pd
 
-from .plan_schema import Plan
+from .plan_schema import Plan, review_dates
 from .planning.dosing import prescribed_pct_1rm
 
 __all__ = ["weekly_summary", "SUMMARY_COLUMNS"]
@@ -16,12 +16,15 @@ __all__ = ["weekly_summary", "SUMMARY_COLUMNS"]
 #: Columns of :func:`weekly_summary`, in order.
 SUMMARY_COLUMNS: list[str] = ["week", "phase", "impact_level", "impacts_per_session", "sessions",
                               "weekly_osteogenic_index", "weak_window", "reassessment",
-                              "resistance_intensity_pct_1rm"]
+                              "resistance_intensity_pct_1rm", "review_date"]
 
 
 def weekly_summary(plan: Plan) -> pd.DataFrame:
-    """One row a week: the columns of :data:`SUMMARY_COLUMNS` (``sessions`` is a count)."""
+    """One row a week: the columns of :data:`SUMMARY_COLUMNS` (``sessions`` is a count; ``review_date``
+    the first day of a review week, YYYY-MM-DD, empty elsewhere or without a start date)."""
     rows = []
+    # A review week is dated by its first day, counted from the plan's start_date (none without one).
+    review_day = {week: when.isoformat() for week, when in review_dates(plan) if when is not None}
     for w in plan.weeks:
         weekly_oi = w.weekly_osteogenic_index
         rows.append({
@@ -32,5 +35,6 @@ def weekly_summary(plan: Plan) -> pd.DataFrame:
             "weak_window": bool(w.weak_window), "reassessment": w.reassessment,
             # Read from the exercises, so a week never states more than it prescribes.
             "resistance_intensity_pct_1rm": prescribed_pct_1rm(x for s in w.sessions for x in s.exercises),
+            "review_date": review_day.get(w.week),
         })
     return pd.DataFrame(rows, columns=SUMMARY_COLUMNS)

@@ -55,6 +55,11 @@ BAD_CELLS: dict[str, tuple[str, str, str]] = {
     "id missing": ("patient_id", "", "is required"),
     "id too long": ("patient_id", "X" * 65, "text of 1 to 64 characters"),
     "id with a line break": ("patient_id", "A\nB", "text of 1 to 64 characters"),
+    # NUL and invisible direction marks (prescribe.identifiers): refused as the record refuses them.
+    "id with a NUL": ("patient_id", "NTC\x000102", "text of 1 to 64 characters"),
+    "id with a direction override": ("patient_id", "NTC-\u202e2010", "text of 1 to 64 characters"),
+    "id with a direction isolate": ("patient_id", "\u2066NTC-0102\u2069", "text of 1 to 64 characters"),
+    "id with a right-to-left mark": ("patient_id", "NTC\u200f-0102", "text of 1 to 64 characters"),
     "fracture site unknown": ("fractures", "knee:3:y", "unknown site 'knee'"),
     "fracture months too long": ("fractures", "hip:1201:y", "outside 0 to 1200"),
     "fracture months not a number": ("fractures", "hip:soon:y", "is not a number"),

@@ -99,3 +99,58 @@ def test_batch_output_to_another_file_still_works(cli, tmp_path):
     proc = cli("screen", "--batch", str(caseload), "--out", str(tmp_path / "out.csv"))
     assert proc.returncode == 0, proc.stderr
     assert json.loads(proc.stdout)["patients"] == 1
+
+
+# ------------------------------------------------------------------ --out naming a folder
+#: One invocation of each command that takes --out, the folder put in by the test.
+OUT_COMMANDS = {
+    ("screen",): ["screen", "--batch", "in.csv"],
+    ("handout",): ["handout", "plan.json"],
+    ("export",): ["export", "NTC-0012"],
+    ("adjust",): ["adjust", "NTC-0012"],
+    ("caseload", "export"): ["caseload", "export"],
+    ("caseload", "whatif"): ["caseload", "whatif"],
+}
+
+
+def _commands_with_out(parser, path=()):
+    import argparse
+    for action in parser._actions:
+        if isinstance(action, argparse._SubParsersAction):
+            for name, sub in action.choices.items():
+                yield from _commands_with_out(sub, (*path, name))
+        elif "--out" in action.option_strings:
+            yield path
+
+
+def test_every_command_with_out_is_checked_here():
+    # Discovered from the parser: a new command with --out fails here until it is covered.
+    from prescribe.cli import build_parser
+    assert set(_commands_with_out(build_parser())) == set(OUT_COMMANDS)
+
+
+@pytest.mark.parametrize("command", sorted(OUT_COMMANDS), ids=" ".join)
+def test_out_naming_an_existing_folder_exits_2_with_one_message(command, tmp_path, capsys, monkeypatch):
+    from prescribe.cli import main
+    monkeypatch.setenv("PRESCRIBE_DB", str(tmp_path / "store.db"))
+    folder = tmp_path / "reports"
+    folder.mkdir()
+    code = main([*OUT_COMMANDS[command], "--out", str(folder)])
+    err = capsys.readouterr().err
+    assert code == 2, err
+    assert "--out" in err and str(folder) in err and "a file path, not a folder" in err and "Traceback" not in err
+    assert list(folder.iterdir()) == [] and not (tmp_path / "store.db").exists()
+
+
+# ------------------------------------------------------------------ invisible characters in an id
+@pytest.mark.parametrize("ch", ["\x00", "\u202e"], ids=["NUL", "U+202E"])
+def test_a_patient_id_with_a_nul_or_a_direction_override_exits_2_naming_the_field(ch, tmp_path, capsys):
+    from prescribe.cli import main
+    path = tmp_path / "p.json"
+    data = json.loads(PERSON)
+    data["patient_id"] = f"NTC{ch}0012"
+    path.write_text(json.dumps(data), encoding="utf-8")
+    for cmd in ("screen", "plan"):
+        assert main([cmd, str(path)]) == 2
+        out, err = capsys.readouterr()
+        assert out == "" and "patient_id" in err and repr(data["patient_id"]) in err

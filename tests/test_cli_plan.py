@@ -68,6 +68,16 @@ def test_plan_table_shows_weeks_and_cautions(patient):
     assert "Cautions:" in done.stdout and STANDARD_CAUTIONS[0] in done.stdout
 
 
+def test_plan_table_dates_the_reviews_from_the_start_date(patient):
+    done = run_cli("plan", patient(OSTEOPENIA), "--weeks", "16", "--start-date", "2026-06-01", "--table")
+    assert done.returncode == 0, done.stderr
+    header = next(line for line in done.stdout.splitlines() if line.startswith("week"))
+    assert "review_date" in header
+    # Reviews of a 16-week plan: weeks 8 and 16 (reassessment_weeks); week N starts on
+    # start_date + 7(N-1) days (PRODUCT.md).
+    assert "2026-07-20" in done.stdout and "2026-09-14" in done.stdout
+
+
 @pytest.mark.parametrize("args,words", [
     (["--weeks", "7"], ["--weeks", "7", "8 to 52"]),
     (["--weeks", "six"], ["--weeks", "'six'", "whole number"]),

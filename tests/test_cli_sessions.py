@@ -110,6 +110,17 @@ def test_session_add_and_list_and_bad_input_stores_nothing(cli, files, tmp_db):
     for path, words in bad:
         r = cli("session", "add", path)
         assert r.code == 2 and words in r.err and "Traceback" not in r.err, (words, r.err)
+    # An exercise the catalogue does not have, or one the program version does not hold: refused,
+    # naming the exercise id and the program's ids, nothing stored.
+    from prescribe.catalogue import default_catalogue
+    planned = sorted({x["exercise_id"] for w in json.loads(plan.read_text())["weeks"] for s in w["sessions"]
+                      for x in s["exercises"]})
+    outside = next(e.exercise_id for e in default_catalogue().all() if e.exercise_id not in planned)
+    for name, wrong in (("b7.json", "moonwalk"), ("b8.json", outside)):
+        done = [{"exercise_id": planned[0]}, {"exercise_id": wrong}]
+        r = cli("session", "add", _session(tmp, name, exercises=done))
+        assert r.code == 2 and "exercises[1].exercise_id" in r.err and repr(wrong) in r.err, r.err
+        assert all(i in r.err for i in planned) and "Traceback" not in r.err
     listed = cli("session", "list", PID).json
     assert [s["session_date"] for s in listed] == [earlier, date.today().isoformat()]  # oldest first
     assert listed[1]["exercises"][0]["load_kg"] == 12 and listed[1]["clinician"] == "EP Rowan"

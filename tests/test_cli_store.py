@@ -130,6 +130,28 @@ def test_export_from_a_missing_store_does_not_create_it(cli_here, tmp_path):
     assert not db.exists()
 
 
+@pytest.mark.parametrize("how", ["env", "--db", "url"])
+@pytest.mark.parametrize("command", [("db", "init"), ("save", "PERSON"), ("export", "CLI-0001")])
+def test_a_store_in_a_folder_that_does_not_exist_exits_2_and_creates_nothing(cli_here, tmp_path, person_file,
+                                                                              monkeypatch, how, command):
+    folder = tmp_path / "no" / "such" / "folder"
+    db = folder / "x.db"
+    args = [str(person_file) if a == "PERSON" else a for a in command]
+    monkeypatch.delenv("PRESCRIBE_DB", raising=False)
+    if how == "env":
+        monkeypatch.setenv("PRESCRIBE_DB", str(db))
+    else:
+        args += ["--db", str(db) if how == "--db" else "sqlite:///" + str(db)]
+    _fails(cli_here(*args), 2, str(db), "PRESCRIBE_DB" if how == "env" else "--db", "folder", "must exist")
+    assert not (tmp_path / "no").exists()
+
+
+def test_db_init_creates_the_store_file_in_an_existing_folder(cli_here, tmp_path):
+    db = tmp_path / "new.db"
+    assert _ok(cli_here("db", "init", "--db", str(db)))["db"] == str(db)
+    assert db.is_file()
+
+
 def test_import_over_a_different_person_exits_1_and_changes_nothing(cli_here, tmp_path, store_db, new_db,
                                                                   person_file):
     _ok(cli_here("save", str(person_file), "--clinician", "AB"))

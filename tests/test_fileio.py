@@ -115,3 +115,55 @@ def test_caseload_and_results_files_never_start_a_cell_with_a_formula(tmp_path):
     assert out[1]["lowest_t_score"] == "-2.7"
     for row in out:
         assert all(not v or v[0] not in "=+@\t\r" for v in row.values())
+
+
+# ------------------------------------------------------------------ a byte-order mark
+BOM = "\ufeff"
+
+
+def test_a_json_file_with_a_byte_order_mark_reads(tmp_path):
+    # Windows editors save "UTF-8 with BOM"; the mark is not part of the data.
+    path = tmp_path / "record.json"
+    path.write_text(BOM + '{"patient_id": "NTC-0100"}', encoding="utf-8")
+    assert fileio.read_json_file(path, "record") == {"patient_id": "NTC-0100"}
+    assert fileio.read_text_file(path, "record").startswith("{")
+
+
+def test_every_input_file_with_a_byte_order_mark_reads_at_the_command_line(tmp_path, capsys, monkeypatch):
+    from pathlib import Path
+
+    from prescribe.cli import main
+    from prescribe.plan_schema import parse_plan
+
+    monkeypatch.setenv("PRESCRIBE_DB", str(tmp_path / "store.db"))
+    person = Path(__file__).parent / "data" / "patients" / "NTC-0012.json"
+
+    def bom(name: str, text: str):
+        path = tmp_path / name
+        path.write_bytes((BOM + text).encode("utf-8"))
+        return str(path)
+
+    def ok(*args):
+        capsys.readouterr()
+        code = main(list(args))
+        out, err = capsys.readouterr()
+        assert code == 0, err
+        return out
+
+    record = bom("person.json", person.read_text(encoding="utf-8"))
+    assert json.loads(ok("screen", record))["patient_id"] == "NTC-0012"                  # a record
+    plan = bom("plan.json", ok("plan", record, "--weeks", "8", "--start-date", "2026-03-02"))
+    assert parse_plan(json.loads(open(plan, encoding="utf-8-sig").read())).patient_id == "NTC-0012"
+    ok("handout", plan, "--out", str(tmp_path / "h.html"))                                 # a plan
+    assert "NTC-0012" in (tmp_path / "h.html").read_text(encoding="utf-8")
+    ok("save", record, "--plan", plan)
+    session = bom("session.json", json.dumps({"patient_id": "NTC-0012", "session_date": "2026-03-03",
+                                              "pain_during": 0}))
+    assert json.loads(ok("session", "add", session))["week"] == 1                          # a session
+    header = "patient_id,age_years,sex,body_mass_kg,height_cm,t_score_lumbar_spine\n"
+    batch = bom("in.csv", header + "NTC-0200,66,female,60,160,-2.6\n")
+    ok("screen", "--batch", batch, "--out", str(tmp_path / "out.csv"))                     # a batch CSV
+    assert "NTC-0200" in (tmp_path / "out.csv").read_text(encoding="utf-8")
+    shipped = Path(fileio.__file__).parent / "data" / "templates" / "standard.toml"
+    template = bom("draft.toml", shipped.read_text(encoding="utf-8"))
+    ok("template", "check", template, "--random", "1")                                     # a template

@@ -20,8 +20,11 @@ DEMO_CLINIC = Clinic("Riverside Bone Health Clinic (demo)", "555-0100")
 SVG = "{http://www.w3.org/2000/svg}"
 
 
-def _plan(**kw):
-    return parse_plan(make_plan(**kw))
+def _plan(start_date=None, **kw):
+    data = make_plan(**kw)
+    if start_date is not None:
+        data["start_date"] = start_date
+    return parse_plan(data)
 
 
 # --- weak window, step-ups and loads -------------------------------------------------
@@ -105,10 +108,26 @@ def test_week_tables_print_each_instruction_once_and_say_what_stays():
 
 
 def test_review_weeks_and_next_review_date():
-    plan = _plan(weeks=16, reassess_every=8)
+    plan = _plan(weeks=16, reassess_every=8, start_date="2026-03-02")
     assert [w for w, _ in content.review_weeks(plan)] == [8, 16]
-    # Created 2026-03-02 (a Monday): week 8 starts 7 weeks later.
+    # Starts 2026-03-02 (a Monday): week 8 starts 7 weeks later.
     assert content.next_review(plan) == "Your next review is in week 8 (around 20 April 2026)."
+
+
+def test_review_dates_count_from_the_start_date_not_from_the_day_the_plan_was_made():
+    # Made on 2 March, started on 1 June: week N runs from start_date + 7(N-1) days (PRODUCT.md),
+    # so no review falls before the program begins.
+    plan = _plan(weeks=16, reassess_every=8, start_date="2026-06-01")
+    assert content.review_weeks(plan) == [(8, "20 July 2026"), (16, "14 September 2026")]
+    assert content.next_review(plan) == "Your next review is in week 8 (around 20 July 2026)."
+    html = render_html(plan, clinic=DEMO_CLINIC)
+    assert "20 July 2026" in html and "20 April 2026" not in html
+
+
+def test_a_plan_without_a_start_date_names_review_weeks_without_guessing_dates():
+    plan = _plan(weeks=16, reassess_every=8)
+    assert content.review_weeks(plan) == [(8, None), (16, None)]
+    assert content.next_review(plan) == "Your next review is in week 8."
 
 
 def test_guides_come_from_the_catalogue_with_its_easier_version():

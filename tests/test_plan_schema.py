@@ -8,7 +8,7 @@ import pytest
 
 from prescribe.cautions import STANDARD_CAUTIONS
 from prescribe.errors import PlanFileError
-from prescribe.plan_schema import PLAN_FORMAT_VERSION, parse_plan
+from prescribe.plan_schema import PLAN_FORMAT_VERSION, parse_plan, review_dates
 
 SCREENING = {
     "patient_id": "NTC-0100", "bone_density_category": "osteopenia", "falls_risk": False,
@@ -153,3 +153,15 @@ def test_the_plan_command_help_states_the_option_table(cli):
     assert f"program length, {low}-{high} weeks (default {OPTION_DEFAULTS['weeks']})" in text
     low, high = OPTION_RANGES["resistance_sessions_per_week"]
     assert f"resistance sessions a week, {low}-{high} (default 2)" in text
+
+
+def test_review_dates_are_the_first_days_of_the_review_weeks_counted_from_start_date():
+    # PRODUCT.md: week N runs from start_date + 7(N-1) days.
+    from datetime import date
+
+    from handout_fixtures import make_plan
+    data = make_plan(weeks=16, reassess_every=8)
+    data["start_date"] = "2026-06-01"
+    assert review_dates(parse_plan(data)) == [(8, date(2026, 7, 20)), (16, date(2026, 9, 14))]
+    del data["start_date"]  # an older plan file: weeks without dates, never dates from "created"
+    assert review_dates(parse_plan(data)) == [(8, None), (16, None)]

@@ -8,6 +8,8 @@ from __future__ import annotations
 
 import json
 
+from datetime import date, timedelta
+
 import pandas as pd
 import pytest
 
@@ -443,6 +445,19 @@ def test_weekly_summary_has_one_row_a_week(osteopenia):
     assert table["weak_window"].dtype == bool
     assert (table["weekly_osteogenic_index"] > 0).all()
     assert table["weekly_osteogenic_index"].iloc[-1] > table["weekly_osteogenic_index"].iloc[0]
+
+
+def test_weekly_summary_dates_each_review_from_the_start_date(osteopenia):
+    # PRODUCT.md: week N runs from start_date + 7(N-1) days; a review is dated by its week's first day.
+    _, _, plan = osteopenia
+    started = plan.model_copy(update={"start_date": "2026-06-01"})
+    table = weekly_summary(started)
+    reviews = table[table["reassessment"]]
+    assert len(reviews) >= 2
+    for week, day in zip(reviews["week"], reviews["review_date"]):
+        assert day == (date(2026, 6, 1) + timedelta(days=7 * (week - 1))).isoformat()
+    assert table.loc[~table["reassessment"], "review_date"].isna().all()
+    assert weekly_summary(plan.model_copy(update={"start_date": None}))["review_date"].isna().all()
 
 
 def _edited(plan, edit):

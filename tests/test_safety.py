@@ -310,6 +310,80 @@ def test_a_heavier_phase_opens_its_own_window(plans):
     assert any(v.rule == "weak_window" and v.week == week for v in found)
 
 
+def _bring_in(d, week, old_id, new_id, intensity=None):
+    """Week ``week`` does ``new_id`` where it did ``old_id`` (the dose kept, the figures the catalogue's)."""
+    for _, _, x in exercises(d, week=week, exercise_id=old_id):
+        x.update(catalogue_fields(new_id))
+        if intensity is not None:
+            x["intensity"] = intensity
+
+
+def test_the_planner_brings_a_barbell_lift_in_before_a_window_never_inside_it(plans):
+    # The osteopenia plan's lift practice (4 weeks before 70% 1RM, Watson et al. 2018) would start
+    # in week 3 of the window opened by its step-up: it starts earlier instead.
+    _, plan = plans["osteopenia"]
+    first = next(w.week for w in plan.weeks if any(x.exercise_id == "back_squat" for s in w.sessions
+                                                    for x in s.exercises))
+    assert not plan.weeks[first - 1].weak_window
+    assert not [v for v in check_program(plan) if v.rule == "weak_window"]
+
+
+def test_a_harder_exercise_brought_into_weeks_3_to_5_is_refused(plans):
+    # A goblet squat becoming a back squat at the same dose in week 3 of a window: the %1RM,
+    # effort and volume stay, but the back squat is the catalogue's progression of the goblet
+    # squat, a larger stimulus; no increase of any kind in weeks 3-5 (Eriksen 1986, Endocr Rev
+    # 7:379; Heaney, Yates & Santora 1997, J Bone Miner Res 12:1143).
+    _, plan = plans["osteopenia"]
+    start, w2 = _window(plan, 1)  # the program's start opens the first window
+    assert "goblet_box_squat" in {x.exercise_id for s in plan.weeks[w2 - 1].sessions for x in s.exercises}
+    week = start + 2
+    swapped = edited(plan, lambda d: _bring_in(d, week, "goblet_box_squat", "back_squat"))
+    found = [v for v in check_program(swapped) if v.rule == "weak_window"]
+    assert [(v.week, v.exercise_id) for v in found] == [(week, "back_squat")]
+    assert "goblet_box_squat" in found[0].message and "progression" in found[0].message
+    assert "goblet_box_squat" in found[0].allowed and "weeks 3-5" in found[0].allowed
+    # The same change in week 2 of the window (kept through the window) is no rise inside it.
+    from_week_2 = edited(plan, lambda d: [_bring_in(d, w, "goblet_box_squat", "back_squat")
+                                          for w in range(w2, week + 3)])
+    assert not [v for v in check_program(from_week_2) if v.rule == "weak_window" and v.week in range(w2, week + 3)]
+    # An easier exercise in the window is no escalation.
+    easier = edited(plan, lambda d: _bring_in(d, week, "goblet_box_squat", "sit_to_stand"))
+    assert not [v for v in check_program(easier) if v.rule == "weak_window"]
+
+
+def test_a_higher_force_impact_exercise_brought_into_weeks_3_to_5_is_refused(plans):
+    # Same impact level, a higher peak ground reaction force: a larger stimulus (same sources).
+    _, plan = plans["osteopenia"]
+    start, w2 = _window(plan, 2)
+    week = start + 3
+    cat = default_catalogue()
+    ids = {x.exercise_id for s in plan.weeks[week - 1].sessions for x in s.exercises}
+    old = next(i for i in sorted(ids) if cat.get(i).impact_level == 2)
+    new = next(e.exercise_id for e in cat.all() if e.impact_level == 2 and e.peak_grf_bw > cat.get(old).peak_grf_bw
+               and e.category == cat.get(old).category and e.exercise_id not in ids)
+    found = [v for v in check_program(edited(plan, lambda d: _bring_in(d, week, old, new))) if v.rule == "weak_window"]
+    assert found and found[0].week == week and found[0].exercise_id == new and "BW" in found[0].message
+
+
+def test_a_swap_made_inside_weeks_3_to_5_to_a_harder_exercise_is_refused(plans):
+    # Swapping a goblet squat for a back squat while the person is in week 3-5 of a window
+    # raises the load then: refused, naming the rule, the week and the exercise.
+    _, plan = plans["osteopenia"]
+    start, w2 = _window(plan, 1)
+    with pytest.raises(UnsafeProgram) as info:
+        replace_exercise(plan, "goblet_box_squat", "back_squat", week=start + 2)
+    found = [v for v in info.value.violations if v.rule == "weak_window"]
+    assert [(v.week, v.exercise_id) for v in found] == [(start + 2, "back_squat")]
+    assert "swap" in found[0].message and "goblet_box_squat" in found[0].allowed
+    # Made in week 2 of the window (or with no week known), the same swap is not refused by this rule.
+    for when in (w2, None):
+        swapped = replace_exercise(plan, "goblet_box_squat", "back_squat", week=when)
+        assert swapped.swaps[-1].week == when
+    # An easier swap inside the window is allowed.
+    easier = replace_exercise(plan, "goblet_box_squat", "sit_to_stand", week=start + 2)
+    assert easier.swaps[-1].new == "sit_to_stand"
+
+
 # --------------------------------------------------------------------------------------
 # Spine-sparing limits (Giangregorio et al. 2014; Brooke-Wavell et al. 2022; Beck et al. 2017)
 # --------------------------------------------------------------------------------------

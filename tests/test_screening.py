@@ -355,6 +355,19 @@ def test_condition_effect(run, code):
     assert set(result.avoid) <= set(MOVEMENT_PATTERNS)
 
 
+def test_the_pelvic_floor_cap_says_what_lifts_it(run):
+    # Impact waits for pelvic floor assessment and training (common practice): the flag and the
+    # caution say who assesses, and how the clinician records that the cap is lifted.
+    result = run(person(conditions=["pelvic_floor_dysfunction"]))
+    (flag,) = result.flags
+    caution = next(c for c in result.cautions if "elvic floor" in c)
+    for text in (flag.message, caution):
+        assert "pelvic health physiotherapist" in text and "assess" in text and "train" in text
+        assert "removing" in text and "pelvic_floor_dysfunction" in text and "clearance" in text
+    # ... and recording it lifts the cap: without the condition, the cap is the bone's alone.
+    assert run(person(conditions=[])).max_impact_level > result.max_impact_level
+
+
 # ---------------------------------------------------------------------------
 # How fired rules combine
 # ---------------------------------------------------------------------------

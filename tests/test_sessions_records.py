@@ -9,7 +9,7 @@ import pytest
 
 from prescribe.errors import InputError
 from prescribe.sessions.loads import brzycki_1rm, epley_1rm, round_load
-from prescribe.sessions.records import SYMPTOMS, check_session_dates, parse_session
+from prescribe.sessions.records import SYMPTOMS, check_session_dates, check_session_exercises, parse_session
 
 GOOD = {"patient_id": "SES-0001", "session_date": "2026-06-03", "program_version": 1,
         "exercises": [{"exercise_id": "goblet_box_squat", "sets_done": 3, "reps_done": 10, "load_kg": 12.5, "rpe": 6},
@@ -81,3 +81,20 @@ def test_epley_and_brzycki_against_their_formulas():
     arr = brzycki_1rm(np.array([20.0, 30.0]), np.array([5, 12]))
     assert arr.shape == (2,) and arr[0] == pytest.approx(22.5) and np.isnan(arr[1])
     assert round_load(21.3) == 21.5 and round_load(21.2) == 21.0
+
+
+def test_an_exercise_outside_the_catalogue_or_the_program_is_named_with_the_programs_ids():
+    plan = {"weeks": [{"sessions": [{"exercises": [{"exercise_id": "goblet_box_squat"},
+                                                   {"exercise_id": "brisk_walking"}]}]}]}
+    catalogue = {"goblet_box_squat", "brisk_walking", "back_squat"}
+    ok = parse_session({"patient_id": "SES-1", "session_date": "2026-03-02", "pain_during": 0,
+                        "exercises": [{"exercise_id": "brisk_walking"}]})
+    check_session_exercises(ok, plan, catalogue, 2)
+    for wrong, words in (("moonwalk", "not in the exercise catalogue"), ("back_squat", "not in program version 2")):
+        bad = parse_session({"patient_id": "SES-1", "session_date": "2026-03-02", "pain_during": 0,
+                             "exercises": [{"exercise_id": "brisk_walking"}, {"exercise_id": wrong}]})
+        with pytest.raises(InputError) as info:
+            check_session_exercises(bad, plan, catalogue, 2)
+        (problem,) = info.value.problems
+        assert problem.field == "exercises[1].exercise_id" and problem.value == wrong
+        assert words in problem.allowed and "brisk_walking, goblet_box_squat" in problem.allowed

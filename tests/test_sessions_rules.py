@@ -132,8 +132,18 @@ def test_adherence_under_two_thirds_repeats_the_week(plan):
     advice = _decide(plan, done[:3], 7)  # 3/5 = 0.6
     assert advice.decision == "hold" and _rules(advice) == ["session.adherence_low"]
     # The clinician learns why, and that home sessions count once logged (common practice).
-    assert "3 of 5 sessions in week 6" in advice.reasons[0]["message"]
-    assert "at home count once each is logged with its date" in advice.reasons[0]["message"]
+    # Which sessions were counted: the days of week 6 (start_date + 35 days to + 41 days, a Monday
+    # 6 July 2026 to a Sunday 12 July 2026) and the dates logged, so a clinic that logs only its
+    # visits sees why the count is low.
+    message = advice.reasons[0]["message"]
+    assert "3 of 5 planned sessions logged in week 6, between 6 and 12 July 2026" in message
+    days = [s.record.day for s in done[:3]]
+    assert "sessions on " + ", ".join(f"{d.day} {d:%B}" for d in days) in message
+    assert "at home count once each is logged with its date" in message
+    # Nothing logged at all: the same reason names the week's days and says none was logged.
+    none = _decide(plan, [], 7)
+    (low,) = [r for r in none.reasons if r["rule"] == "session.adherence_low"]
+    assert "0 of 5 planned sessions logged in week 6, between 6 and 12 July 2026 (none logged)" in low["message"]
     assert advice.changes[0].startswith("week 7 repeats the dose of week 6")
     assert advice.program["weeks"][6]["dose_of_week"] == 6
 

@@ -44,11 +44,23 @@ def test_every_connection_gets_wal_foreign_keys_busy_timeout_and_full_sync(sqlit
 
 
 def test_default_location_comes_from_the_environment(tmp_path, monkeypatch):
-    path = tmp_path / "nested" / "folder" / "env.db"
+    path = tmp_path / "env.db"
     monkeypatch.setenv("PRESCRIBE_DB", str(path))
     with open_store() as s:
         assert s.path == path.resolve()
-    assert path.exists()  # parent folders were created
+    assert path.exists()
+    # A named store in a folder that does not exist is refused, never created somewhere new.
+    missing = tmp_path / "nested" / "folder" / "env.db"
+    monkeypatch.setenv("PRESCRIBE_DB", str(missing))
+    with pytest.raises(InputError, match="PRESCRIBE_DB"):
+        open_store()
+    assert not (tmp_path / "nested").exists()
+    # Only the documented default location gets its folders made.
+    monkeypatch.delenv("PRESCRIBE_DB")
+    monkeypatch.setenv("XDG_DATA_HOME", str(tmp_path / "data"))
+    with open_store() as s:
+        assert s.path == (tmp_path / "data" / "prescribe" / "prescribe.db").resolve()
+    assert s.path.exists()
 
 
 def test_save_get_list_and_screenings(store):

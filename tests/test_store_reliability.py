@@ -389,6 +389,8 @@ def test_four_processes_creating_the_same_new_store_at_once(tmp_path, new_db):
     wait for the lock, see the new schema and carry on; nobody sees "locked"."""
     for attempt in range(3):
         db = new_db(f"fresh-{attempt}/store")
+        if "://" not in str(db):  # a named store's folder must exist (only the file is new)
+            Path(db).parent.mkdir(parents=True, exist_ok=True)
         outs = [tmp_path / f"fresh-{attempt}-{w}.out" for w in range(4)]
         procs = [_fork_run(_open_and_save, str(db), f"NEW-{w}", str(out)) for w, out in enumerate(outs)]
         for proc, out in zip(procs, outs):

@@ -18,6 +18,7 @@ from prescribe.ui import ClinicApp, ClinicSession
 from prescribe.ui import program_model as pm
 from prescribe.ui.charts import band_outline, weak_bands, whole_ticks
 from prescribe.ui.history_view import history_html
+from prescribe.ui.program_view import progression_html, stages_html
 from prescribe.ui.wording import exercise_names, field_words, plain
 
 # An invented woman of 62, femoral-neck T-score -2.6 (osteoporosis, WHO 1994): a program
@@ -133,6 +134,20 @@ def test_the_progression_at_a_glance_has_levels_work_strength_weak_windows_and_r
     assert "resistance intensity" not in table and "_" not in table
 
 
+def test_the_app_dates_each_review_from_the_programs_start_date(app):
+    # PRODUCT.md: week N runs from start_date + 7(N-1) days.
+    from datetime import date, timedelta
+
+    plan = app.session.plan.model_copy(update={"start_date": "2026-06-01"})
+    reviews = [w.week for w in plan.weeks if w.reassessment]
+    assert reviews
+    stages, weeks = _text(stages_html(plan)), _text(progression_html(plan))
+    for week in reviews:
+        when = date(2026, 6, 1) + timedelta(days=7 * (week - 1))
+        words = f"{when.day} {when.strftime('%B %Y')}"
+        assert words in stages and words in weeks
+
+
 def test_weeks_where_impacts_do_not_apply_say_minutes_not_zero_impacts(app):
     for wk in app.session.plan.weeks:
         words = pm.impact_work_words(wk)
@@ -170,6 +185,27 @@ def test_a_swap_asks_first_saying_what_will_change_and_then_says_what_changed(ap
     # The list keeps the swapped-in exercise chosen (not the first entry).
     assert app.exercise_select.value == new
     assert panel.confirm_box.layout.display == "none"
+
+
+def test_a_harder_swap_in_weeks_3_to_5_of_a_running_program_is_refused_in_plain_words(app):
+    # No increase of any kind in weeks 3-5 after a new stimulus (Eriksen 1986, Endocr Rev 7:379;
+    # Heaney, Yates & Santora 1997, J Bone Miner Res 12:1143): the program's start opens a window,
+    # so a swap to a harder exercise made in its week 3 is refused, naming the rule and the week.
+    from datetime import date, timedelta
+
+    from prescribe.catalogue import default_catalogue
+    from prescribe.planning.safety.facts import _catalogue_entries
+    from prescribe.planning.safety.progression import harder_reason
+
+    assert app.session.set_start_date(date.today() - timedelta(days=14))  # today is week 3
+    entries = _catalogue_entries(default_catalogue())
+    old, new = next((o, n) for o, _ in app.session.plan_exercises() for n, _ in app.session.swap_candidates(o)
+                    if harder_reason(entries[n], entries[o]) and entries[n].family == entries[o].family)
+    before = app.session.plan
+    assert app.session.swap(old, new) is False
+    assert app.session.plan is before
+    refusal = app.session.refusal
+    assert "[rule weak_window]" in refusal and "week 3" in refusal and new in refusal
 
 
 def test_cancel_changes_nothing(app):

@@ -62,6 +62,9 @@ def main(argv: list[str] | None = None) -> int:
     parser = build_parser()
     args = parser.parse_args(argv)
     try:
+        # One check for every command's --out: a file path, never a folder.
+        from .output import check_out_path
+        check_out_path(getattr(args, "out", None))
         result = args.func(args)
         return int(result or 0)
     except InputError as exc:

@@ -45,3 +45,16 @@ def emit_table(rows: Iterable[dict], columns: list[str], stream=None) -> None:
     stream.write("  ".join("-" * w for w in widths) + "\n")
     for row in cells:
         stream.write("  ".join(v.ljust(w) for v, w in zip(row, widths)).rstrip() + "\n")
+
+
+def check_out_path(value: str | None, option: str = "--out") -> None:
+    """Refuse an output path that names an existing folder (InputError naming ``option``).
+
+    The one check of every command's ``--out`` (:func:`prescribe.cli.main` runs it before
+    the command), so a folder is never half-written into or reported as a late I/O failure.
+    """
+    from pathlib import Path
+
+    from ..errors import InputError
+    if value is not None and Path(value).expanduser().is_dir():
+        raise InputError.single(option, value, f"a file path, not a folder ({value} is a folder)")

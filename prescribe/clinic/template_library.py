@@ -27,6 +27,7 @@ from typing import Any
 
 from ..errors import FieldProblem, InputError, NotFoundError
 from ..fileio import read_text_file
+from ..identifiers import check_identifier
 from ..planning.rules import TEMPLATE_DIR, Template, TemplateError, parse_template, template_names, template_problems
 
 SHIPPED_AUTHOR = "prescribe (shipped with the package)"
@@ -96,6 +97,7 @@ class TemplateVersion:
 
 def parse_ref(text: Any, field: str = "NAME@VERSION") -> tuple[str, int | None]:
     """``"clinic_standard@2"`` -> ``("clinic_standard", 2)``; ``"gentle"`` -> ``("gentle", None)``."""
+    check_identifier(text, field)  # no NUL, control or invisible direction characters
     m = _REF.match(text.strip()) if isinstance(text, str) else None
     if not m:
         raise InputError.single(field, text, NAME_ALLOWED)

@@ -32,12 +32,15 @@ def plan_swaps(plan: Plan) -> list[tuple[str, str]]:
     return [(s.old, s.new) for s in plan.swaps or ()]
 
 
-def replace_exercise(plan: Plan, old_id: str, new_id: str, catalogue=None) -> Plan:
+def replace_exercise(plan: Plan, old_id: str, new_id: str, catalogue=None, *, week: int | None = None) -> Plan:
     """A copy of ``plan`` with every use of ``old_id`` swapped for ``new_id``.
 
     The new exercise keeps the old one's dose (sets, reps, impacts, minutes, bouts,
     intensity) and brings its own level, force, directions and patterns; the week
-    and session figures are recomputed.
+    and session figures are recomputed.  ``week`` is the program week the swap is made
+    in (the person's current week of a running program; None before it begins): it is
+    recorded with the swap, and a swap to a more demanding exercise made in weeks 3-5
+    after a new or larger stimulus is refused (safety rule ``weak_window``).
 
     Raises
     ------
@@ -77,7 +80,9 @@ def replace_exercise(plan: Plan, old_id: str, new_id: str, catalogue=None) -> Pl
     if not found:
         raise InputError.single("old_id", old_id, "an exercise id used in this plan")
     # Kept with the plan, so a reopened program can be rebuilt with the same swaps.
-    data["swaps"] = [*(data.get("swaps") or []), {"old": old_id, "new": new_id}]
+    if week is not None and not (isinstance(week, int) and 1 <= week <= len(plan.weeks)):
+        raise InputError.single("week", week, f"a week of the program, 1 to {len(plan.weeks)}")
+    data["swaps"] = [*(data.get("swaps") or []), {"old": old_id, "new": new_id, "week": week}]
     new_plan = Plan.model_validate(data)
     from .safety import assert_safe
     assert_safe(new_plan, door=f"replacing {old_id} with {new_id}", catalogue=catalogue)

@@ -152,7 +152,7 @@ class _Progression:
         ``ph`` is the phase the joint schedule gives the week (:meth:`impact_schedule`).
         """
         lifts = self.lift_from is not None and week >= self.lift_from
-        practice = lifts and week < self.lift_from + LIFT_PRACTICE_WEEKS
+        practice = lifts and week < self.lift_loaded_from
         bodyweight = week <= self.bodyweight_until
         return ph, lifts and not bodyweight, practice, bodyweight
 
@@ -163,6 +163,11 @@ class _Progression:
         heavy = [w for w, ph in enumerate(phases, start=1) if ph.pct_1rm is not None and ph.pct_1rm >= LIFT_LOAD_FROM_PCT]
         # A barbell lift comes in LIFT_PRACTICE_WEEKS before its first loaded week, at a light load.
         self.lift_from = max(1, heavy[0] - LIFT_PRACTICE_WEEKS) if heavy else None
+        self.lift_loaded_from = heavy[0] if heavy else None  # practice lasts until the lift is loaded
+        # A barbell lift is a harder exercise than the form it replaces: never brought in during
+        # weeks 3-5 of a window (safety rule weak_window), so its practice starts earlier and lasts longer.
+        while self.lift_from is not None and self.lift_from > 1 and schedule[self.lift_from - 1][3]:
+            self.lift_from -= 1
         # Body-weight forms for the frail: the first (technique) phase, and at least 4 weeks.
         self.bodyweight_until = 0
         if self.frail:

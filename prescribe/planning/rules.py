@@ -15,6 +15,7 @@ from functools import lru_cache
 from pathlib import Path
 
 from ..errors import InputError, PrescribeError
+from ..identifiers import identifier_problem
 
 TEMPLATE_DIR = Path(__file__).resolve().parent.parent / "data" / "templates"
 
@@ -143,6 +144,8 @@ def parse_template(data: dict, file: str = "<template>") -> Template:
     name = data.get("name")
     if not isinstance(name, str) or not name:
         raise TemplateError(file, "name", "must be a non-empty text")
+    if identifier_problem(name):
+        raise TemplateError(file, "name", "must be a non-empty " + identifier_problem(name))
     imp_raw, res_raw, bal_raw, sources = data["impact"], data["resistance"], data["balance"], data["sources"]
     impact = {k: _int(imp_raw, k, b, file) for k, b in _IMPACT_INT_KEYS.items()}
     gap = imp_raw.get("bout_gap_hours")
@@ -303,6 +306,8 @@ def template_problems(data) -> list:
     name = data.get("name")
     if not isinstance(name, str) or not name.strip():
         problems.append(FieldProblem("name", name, "a non-empty text"))
+    elif identifier_problem(name):
+        problems.append(FieldProblem("name", name, "a non-empty " + identifier_problem(name)))
     tables = {}
     for table in ("impact", "resistance", "balance", "sources"):
         raw = data.get(table)

@@ -27,6 +27,7 @@ import numpy as np
 import pandas as pd
 
 from ..errors import FieldProblem
+from ..identifiers import identifier_problem
 from ..records import CONDITIONS, FIELD_META, FRACTURE_SITES, RECORD_SCHEMA, T_SCORE_SITES, describe_allowed
 
 #: The batch file's columns, in the order files are written.
@@ -339,13 +340,15 @@ def validate_columns(cells: dict[str, np.ndarray], n: int) -> tuple[pd.DataFrame
         return cells[col] if col in cells else empty
 
     frame: dict[str, Any] = {}
-    # patient_id: required text of 1-64 characters without surrounding spaces.
+    # patient_id: required text of 1-64 characters without surrounding spaces or control characters.
     pid, _ = _stripped(text("patient_id"))
     missing_id = pid == ""
     problems.add(np.flatnonzero(missing_id), 1, FIELD_ORDER["patient_id"],
                  lambda pos: FieldProblem("patient_id", None, FIELD_META["patient_id"]["allowed"], kind="missing"))
+    # The record's own rules: length, no surrounding spaces, and no control or invisible direction
+    # characters (the one shared check, prescribe.identifiers).
     bad_id = [i for i in np.flatnonzero(~missing_id)
-              if len(pid[i]) > _ID_MAX or not _ID_PATTERN.fullmatch(pid[i])] if n else []
+              if len(pid[i]) > _ID_MAX or not _ID_PATTERN.fullmatch(pid[i]) or identifier_problem(pid[i])] if n else []
     problems.add(bad_id, 1, FIELD_ORDER["patient_id"],
                  lambda pos: FieldProblem("patient_id", pid[pos], FIELD_META["patient_id"]["allowed"]))
     frame["patient_id"] = pid

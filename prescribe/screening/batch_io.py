@@ -39,7 +39,7 @@ from .batch_columns import (FLOAT_COLUMNS as _FLOAT_COLUMNS, FRACTURES_ALLOWED, 
                             format_cell as _fmt, format_fractures, fracture_columns, parse_fractures,
                             validate_columns)
 from ..errors import FieldProblem, InputError
-from ..fileio import CSV_MAX_BYTES, check_file_size, open_atomically, write_atomically
+from ..fileio import CSV_MAX_BYTES, INPUT_ENCODING, check_file_size, open_atomically, write_atomically
 from ..records import CONDITIONS, T_SCORE_SITES, PatientRecord, parse_record
 
 __all__ = ["RECORD_COLUMNS", "REQUIRED_COLUMNS", "FRACTURES_ALLOWED", "CHUNK_ROWS", "Caseload",
@@ -331,7 +331,7 @@ def _open_text(path: str | Path) -> tuple[io.TextIOWrapper, BinaryIO]:
     except (IsADirectoryError, PermissionError) as exc:
         raise InputError.single("batch file", str(path),
                                 f"a readable UTF-8 CSV file ({exc.__class__.__name__})") from None
-    return io.TextIOWrapper(raw, encoding="utf-8-sig", newline=None), raw
+    return io.TextIOWrapper(raw, encoding=INPUT_ENCODING, newline=None), raw
 
 
 def _decoding_error(path, exc: UnicodeDecodeError) -> InputError:

@@ -20,6 +20,7 @@ from pathlib import Path
 from typing import Any, Union
 
 from ..errors import RuleFileError
+from ..fileio import decode_text
 from ..records import (BONE_METASTASES, COGNITION_LEVELS, CONDITIONS, MEDICATION_CLASSES, MENOPAUSE_STATUSES,
                        MOVEMENT_PATTERNS, SEVERITIES, SURGERY_PROCEDURES)
 
@@ -299,7 +300,7 @@ def load_rules(directory: str | Path | None = None) -> RuleSet:
 def _load_file(path: Path, raw: bytes) -> list[Rule]:
     name = path.name
     try:
-        data = tomllib.loads(raw.decode("utf-8"))
+        data = tomllib.loads(decode_text(raw))
     except UnicodeDecodeError:
         raise RuleFileError(name, None, "is not UTF-8 text") from None
     except tomllib.TOMLDecodeError as exc:

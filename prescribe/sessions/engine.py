@@ -26,13 +26,13 @@ Pure domain code: no store, no widgets; plans are plain dicts in and out.
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from datetime import date
+from datetime import date, timedelta
 from statistics import mean
 from typing import Any, Iterable
 
 from ..cautions import with_standard
 from ..intensity import pct_1rm
-from ..plan_schema import WEAK_WINDOW_WEEKS, Plan, in_weak_window, program_week
+from ..plan_schema import WEAK_WINDOW_WEEKS, Plan, in_weak_window, program_week, week_start
 from .loads import MAX_REPS_FOR_ESTIMATE, brzycki_1rm, round_load
 from .records import SessionRecord
 from .rules import RANK, SessionRule, SessionRuleSet, default_rules
@@ -134,6 +134,21 @@ def window_position(weeks: list[dict], week: int) -> tuple[int | None, int]:
 # ---------------------------------------------------------------------------------------
 # the rules
 # ---------------------------------------------------------------------------------------
+
+def _adherence_detail(start: date, week: int, planned: int, days: list[date]) -> str:
+    """Which sessions the adherence count read: the week's days, the planned number, the dates logged."""
+    first = week_start(start, week)  # week N runs from start_date + 7(N-1) days
+    last = first + timedelta(days=6)
+    if (first.year, first.month) == (last.year, last.month):
+        span = f"{first.day} and {last.day} {last:%B %Y}"
+    elif first.year == last.year:
+        span = f"{first.day} {first:%B} and {last.day} {last:%B %Y}"
+    else:
+        span = f"{first.day} {first:%B %Y} and {last.day} {last:%B %Y}"
+    logged = ("sessions on " + ", ".join(f"{d.day} {d:%B}" for d in days)) if days else "none logged"
+    return (f"{len(days)} of {planned} planned sessions logged in week {week}, between {span} ({logged})"
+            f"{HOME_SESSIONS_COUNT}")
+
 
 def _reason(rule: SessionRule, detail: str = "") -> dict:
     msg = rule.message + (f" ({detail})" if detail else "")
@@ -245,7 +260,10 @@ def _evaluate(rules: SessionRuleSet, plan: dict, sessions: list[LoggedSession], 
             elif k == "break_days_at_least" and (today - start).days >= int(p["days"]):
                 fired.append(_reason(rule, f"nothing logged in the {(today - start).days} days since the start"))
             elif k == "adherence_below" and week >= 2:
-                fired.append(_reason(rule, f"0 sessions logged in week {week - 1}{HOME_SESSIONS_COUNT}"))
+                last = week - 1
+                planned = (len({s.get("day") for s in weeks[last - 1].get("sessions", [])})
+                           if last <= len(weeks) else 0)
+                fired.append(_reason(rule, _adherence_detail(start, last, planned, [])))
         elif k == "pain_during_above":
             if latest.record.pain_during > p["above"]:
                 fired.append(_reason(rule, f"{latest.record.pain_during}/10 on {latest.record.session_date}"))
@@ -277,7 +295,8 @@ def _evaluate(rules: SessionRuleSet, plan: dict, sessions: list[LoggedSession], 
                 planned = len({s.get("day") for s in weeks[last - 1].get("sessions", [])})
                 done = len({s.record.session_date for s in sessions if s.week == last})
                 if planned and done / planned < float(p["fraction"]):
-                    fired.append(_reason(rule, f"{done} of {planned} sessions in week {last}{HOME_SESSIONS_COUNT}"))
+                    days = sorted({s.record.day for s in sessions if s.week == last})
+                    fired.append(_reason(rule, _adherence_detail(start, last, planned, days)))
         elif k == "break_days_at_least":
             gap = (today - latest.record.day).days
             if gap >= int(p["days"]):

@@ -10,11 +10,12 @@ from __future__ import annotations
 
 import math
 from datetime import date
-from typing import Any, Literal
+from typing import Any, Iterable, Literal
 
 from pydantic import BaseModel, ConfigDict, Field, ValidationError, field_validator
 
 from ..errors import FieldProblem, InputError
+from ..identifiers import IDENTIFIER_CHARACTERS, identifier_text
 
 #: Symptom codes a session may carry (the vocabulary may grow; codes are never renamed).
 SYMPTOMS: dict[str, str] = {
@@ -32,11 +33,11 @@ SymptomCode = Literal["chest_pain", "dizziness", "unusual_breathlessness", "palp
 
 #: What each field accepts, in words (messages name it).
 ALLOWED: dict[str, str] = {
-    "patient_id": "the id of a stored person (1 to 64 characters)",
+    "patient_id": "the id of a stored person (1 to 64 characters, " + IDENTIFIER_CHARACTERS + ")",
     "session_date": "a date as YYYY-MM-DD, not in the future and not before the program's start_date",
     "program_version": "a stored program version of this person (a whole number from 1), or null for the latest",
     "exercises": "a list of {exercise_id, sets_done, reps_done, impacts_done, minutes_done, load_kg, rpe}",
-    "exercise_id": "an exercise id (1 to 64 characters)",
+    "exercise_id": "an exercise id (1 to 64 characters, " + IDENTIFIER_CHARACTERS + ")",
     "sets_done": "a whole number from 0 to 50, or null",
     "reps_done": "a whole number from 0 to 500 (repetitions in a set), or null",
     "impacts_done": "a whole number from 0 to 1000, or null",
@@ -72,6 +73,7 @@ class ExerciseDone(BaseModel):
     rpe: float | None = Field(None, ge=0, le=10, description="Effort of the exercise, Borg CR10 (0-10).")
 
     _f = field_validator("minutes_done", "load_kg", "rpe")(_finite)
+    _id = field_validator("exercise_id")(identifier_text)
 
 
 class SessionRecord(BaseModel):
@@ -91,6 +93,7 @@ class SessionRecord(BaseModel):
     note: str = Field("", max_length=2000)
 
     _f = field_validator("session_rpe")(_finite)
+    _id = field_validator("patient_id")(identifier_text)
 
     @field_validator("session_date")
     @classmethod
@@ -164,3 +167,30 @@ def check_session_dates(session: SessionRecord, start_date: str | date | None, t
         if day < start:
             raise InputError.single("session_date", session.session_date,
                                     f"a date on or after the program's start_date {start.isoformat()}", source)
+
+
+def check_session_exercises(session: SessionRecord, plan: dict, catalogue_ids: Iterable[str],
+                            version: int | None = None, source: str | None = None) -> None:
+    """Refuse an exercise the catalogue does not have or the session's program version does not hold.
+
+    ``plan`` is the stored program version (a plan as JSON); every ``exercises[i].exercise_id``
+    must be one of its exercises (which are the catalogue's).  :class:`InputError` names each
+    wrong id and the program's ids.
+    """
+    known = set(catalogue_ids)
+    planned = sorted({str(x.get("exercise_id")) for w in plan.get("weeks") or () for s in w.get("sessions") or ()
+                      for x in s.get("exercises") or ()})
+    program = (f"program version {version} of {session.patient_id!r}" if version is not None
+               else f"the program of {session.patient_id!r}")
+    problems = []
+    for i, done in enumerate(session.exercises):
+        where = None
+        if done.exercise_id not in known:
+            where = "not in the exercise catalogue"
+        elif done.exercise_id not in planned:
+            where = f"not in {program}"
+        if where:
+            problems.append(FieldProblem(f"exercises[{i}].exercise_id", done.exercise_id,
+                                         f"an exercise of {program} ({where}): " + ", ".join(planned)))
+    if problems:
+        raise InputError(problems, source)

@@ -10,6 +10,7 @@ from sqlalchemy import select
 from sqlalchemy.engine import Connection
 
 from ..errors import FieldProblem, InputError, NotFoundError
+from ..identifiers import check_identifier
 from ..settings import current_clinician, hub_login
 from . import models as m
 
@@ -50,6 +51,7 @@ def _clinician(value: Any, required: bool) -> str:
     """Who is writing.  Under JupyterHub it is always the login (JUPYTERHUB_USER), whatever
     the caller passed: an empty name becomes the login and a different one is refused
     (prescribe.settings.current_clinician), so every write records the login."""
+    check_identifier(value, "clinician")  # no NUL, control or invisible direction characters
     try:
         value = _text(value, "clinician", required=required and hub_login() is None, max_len=200)
     except InputError:

@@ -19,6 +19,11 @@ if TYPE_CHECKING:
     from ..sessions.records import SessionRecord
 
 
+def _catalogue_ids() -> set[str]:
+    from ..catalogue import default_catalogue
+    return {e.exercise_id for e in default_catalogue().all()}
+
+
 class SessionsMixin(StoreBase):
     """Session records and logs."""
 
@@ -63,9 +68,10 @@ class SessionsMixin(StoreBase):
         NotFoundError
             No such person.
         InputError
-            No such program version, no program stored yet, or a date out of range.
+            No such program version, no program stored yet, a date out of range, or an
+            exercise the catalogue or that program version does not have.
         """
-        from ..sessions.records import SessionRecord, check_session_dates
+        from ..sessions.records import SessionRecord, check_session_dates, check_session_exercises
         from ..plan_schema import program_week
         if not isinstance(session, SessionRecord):
             raise InputError.single("session", session, "a validated SessionRecord (prescribe.sessions.records)")
@@ -102,6 +108,7 @@ class SessionsMixin(StoreBase):
                 self._plan_cache[(pid, row.version)] = (row.created, plan)
             start = plan.get("start_date") or str(plan.get("created", ""))[:10] or None
             check_session_dates(session, start, today)
+            check_session_exercises(session, plan, _catalogue_ids(), row.version)
             week = program_week(start, session.session_date) if start else None
             sid = int(conn.execute(m.session_logs.insert().values(
                 patient_id=pid, program_version=row.version, session_date=session.session_date, done_json=done_json,

@@ -15,6 +15,7 @@ from typing import Any
 import ipywidgets as w
 
 from ..errors import InputError
+from ..handout.content import review_weeks
 from . import program_model as pm
 from .common import own_layout, set_options
 from .wording import exercise_names, plain
@@ -53,12 +54,24 @@ def days_html(days: list[pm.DayPlan]) -> str:
     return '<div class="pr-days">' + "".join(out) + "</div>"
 
 
+def _review_words(plan: Any) -> dict[int, str | None]:
+    """Review week -> its first day in words, counted from the start date (the handout's dates)."""
+    return dict(review_weeks(plan))
+
+
+def _review_cell(week: int, dates: dict[int, str | None], word: str = "review") -> str:
+    when = dates.get(week)
+    text = f"week {week}" if word == "week" else word
+    return f"{text} (from {when})" if when else text
+
+
 def progression_html(plan: Any) -> str:
     """One row a week: level, impact work (impacts, or minutes where impacts do not apply),
     strength phase and load, weak window, review."""
     if plan is None:
         return "<p><i>Nothing yet.</i></p>"
     rows = []
+    dates = _review_words(plan)
     for wk in sorted(plan.weeks, key=lambda w: w.week):
         weak = bool(wk.weak_window)
         oi = (sum(s.osteogenic_index for s in wk.sessions) if wk.weekly_osteogenic_index is None
@@ -66,7 +79,7 @@ def progression_html(plan: Any) -> str:
         rows.append(
             f'<tr class="{"pr-stage-weak" if weak else ""}"><td>{wk.week}</td><td>{_esc(pm.level_words(wk.impact_level))}</td>'
             f"<td>{_esc(pm.impact_work_words(wk))}</td><td>{_esc(pm.strength_words(wk))}</td>"
-            f"<td>{'weak window: hold' if weak else ''}</td><td>{'review' if wk.reassessment else ''}</td>"
+            f"<td>{'weak window: hold' if weak else ''}</td><td>{_esc(_review_cell(wk.week, dates)) if wk.reassessment else ''}</td>"
             f"<td>{float(oi):.1f}</td></tr>")
     return ('<table class="pr-table pr-weeks"><thead><tr><th>Week</th><th>Impact level</th>'
             "<th>Impact work (impacts per session, or minutes)</th><th>Strength phase and load</th>"
@@ -78,11 +91,13 @@ def stages_html(plan: Any) -> str:
     """The progression at a glance: a few rows of consecutive weeks with the same work."""
     if plan is None:
         return ""
+    dates = _review_words(plan)
     rows = "".join(
         f'<tr class="{"pr-stage-weak" if r.weak_window else ""}"><td>{_esc(r.weeks)}</td><td>{_esc(r.level)}</td>'
         f"<td>{_esc(r.impact_work)}</td><td>{_esc(r.strength)}</td>"
         f"<td>{'weak window: hold, add nothing' if r.weak_window else ''}</td>"
-        f"<td>{_esc(', '.join(f'week {w}' for w in r.reviews))}</td></tr>" for r in pm.progression(plan))
+        f"<td>{_esc(', '.join(_review_cell(w, dates, 'week') for w in r.reviews))}</td></tr>"
+        for r in pm.progression(plan))
     return ('<table class="pr-table pr-stage-table"><thead><tr><th>Weeks</th><th>Impact level</th><th>Impact work</th>'
             "<th>Strength</th><th>Weak window</th><th>Reviews</th></tr></thead><tbody>" + rows + "</tbody></table>")
 

@@ -228,7 +228,9 @@ class ClinicSession:
         replace, assert_safe = _planner().replace_exercise, _safety().assert_safe
 
         def make():
-            plan = replace(self.plan, old_id, new_id)
+            # The week the person is in (a running program): a harder swap in weeks 3-5 of a
+            # window is refused by the safety check (rule weak_window).
+            plan = replace(self.plan, old_id, new_id, week=self._running_week())
             assert_safe(plan, self.screening, door="app", record=self.record)
             return plan
         plan = self._attempt(make)
@@ -237,6 +239,15 @@ class ClinicSession:
         self.swaps.append((old_id, new_id))
         self.plan = plan
         return True
+
+    def _running_week(self) -> int | None:
+        """The program week of today for a program that has begun and not ended, else None."""
+        start = getattr(self.plan, "start_date", None)
+        if not start:
+            return None
+        from ..plan_schema import program_week
+        week = program_week(start)
+        return week if 1 <= week <= len(self.plan.weeks) else None
 
     def _kept_template(self):
         """The clinic template of the open program, kept when it is rebuilt: (Template or None, note).

@@ -11,7 +11,7 @@ import datetime as dt
 from dataclasses import dataclass
 
 from ...cautions import with_standard
-from ...plan_schema import Plan, PlannedWeek, weak_window_weeks
+from ...plan_schema import Plan, PlannedWeek, review_dates, weak_window_weeks
 from .wording import pct_1rm
 
 
@@ -82,17 +82,17 @@ def week_exercises(week: PlannedWeek):
 
 
 def review_weeks(plan: Plan) -> list[tuple[int, str | None]]:
-    """(week, date or None) of every review the plan asks for."""
-    try:
-        start = dt.date.fromisoformat(str(plan.created)[:10])
-    except ValueError:
-        start = None
-    out = []
-    for wk in sorted(plan.weeks, key=lambda w: w.week):
-        if wk.reassessment:
-            when = start + dt.timedelta(weeks=wk.week - 1) if start else None
-            out.append((wk.week, when.strftime("%d %B %Y").lstrip("0") if when else None))
-    return out
+    """(week, date in words or None) of every review the plan asks for.
+
+    The dates come from :func:`prescribe.plan_schema.review_dates` (counted from the plan's
+    ``start_date``); a plan without a start date gets weeks only.
+    """
+    return [(week, day_words(when) if when else None) for week, when in review_dates(plan)]
+
+
+def day_words(day: dt.date) -> str:
+    """A day as the pages print it: ``20 April 2026``."""
+    return f"{day.day} {day.strftime('%B %Y')}"
 
 
 def all_cautions(plan: Plan) -> list[str]:

@@ -6,7 +6,7 @@ from __future__ import annotations
 from typing import Iterator
 
 from ...plan_schema import weak_window_weeks
-from .facts import _Facts, pct_1rm, rpe_top
+from .facts import STRENGTH_CATEGORIES, _CatEntry, _Facts, pct_1rm, rpe_top
 from .model import SafetyViolation
 
 SRC_ONE_LEVEL = "common practice: impact work steps up one level at a time"
@@ -60,8 +60,11 @@ def rule_weak_window(f: _Facts) -> Iterator[SafetyViolation]:
 
     Counting the week of a new or larger stimulus (the start, a higher impact level, a
     higher resistance intensity) as week 1, weeks 3, 4 and 5 carry no higher impact
-    level, impacts a session, resistance intensity, effort or volume than week 2.  A week
-    the plan labels as a window ("no increase") rises above the week before in nothing.
+    level, impacts a session, resistance intensity, effort or volume than week 2, and no
+    loading exercise more demanding than the one it takes the place of in week 2
+    (:func:`harder_reason`); a swap made in one of those weeks (``swaps[].week``) is no
+    swap to a more demanding exercise.  A week the plan labels as a window ("no increase")
+    rises above the week before in nothing.
     """
     n = len(f.weeks)
     flagged: set[tuple[int, str]] = set()
@@ -95,6 +98,106 @@ def rule_weak_window(f: _Facts) -> Iterator[SafetyViolation]:
                     f"week {wk.week} is labelled a remodelling window (no increase) but raises {what} from "
                     f"{fmt.format(values[j - 1])} to {fmt.format(values[j])}",
                     "no increase of any kind in a week labelled as a window", SRC_REMODEL)
+    yield from _window_exercises(f, set())
+
+
+#: Categories whose exercises load the skeleton: a harder one of these is a larger stimulus.
+LOADING_CATEGORIES = STRENGTH_CATEGORIES | {"impact"}
+
+
+def harder_reason(new: _CatEntry, old: _CatEntry) -> str | None:
+    """Why exercise ``new`` asks more of the skeleton than ``old`` (None when it does not).
+
+    More demanding: a higher impact level; the catalogue's progression of it (the same
+    progression family, further along); for impact work, a higher peak ground reaction force.
+    The dose a swap keeps (%1RM, sets and repetitions) is compared by the week's own measures.
+    """
+    if new.impact_level > old.impact_level:
+        return f"impact level {new.impact_level}, above {old.exercise_id}'s {old.impact_level}"
+    if new.category == old.category and new.family == old.family and new.depth > old.depth:
+        steps = new.depth - old.depth
+        return (f"the catalogue's progression of {old.exercise_id} ({steps} step{'s' if steps > 1 else ''} "
+                "harder)")
+    if "impact" in (new.category, old.category) and new.peak_grf_bw > old.peak_grf_bw + 1e-9:
+        return (f"a peak ground reaction force of {new.peak_grf_bw:g} BW, above {old.exercise_id}'s "
+                f"{old.peak_grf_bw:g} BW")
+    return None
+
+
+def _week_ids(f: _Facts, j: int) -> set[str]:
+    return {x.exercise_id for s in f.weeks[j].sessions for x in s.exercises}
+
+
+def _harder_brought_in(f: _Facts, j: int, ref: int) -> Iterator[tuple[str, str, str]]:
+    """(new id, replaced id, why) for each loading exercise of week index ``j`` that takes the
+    place of a less demanding one of week index ``ref`` (same category, the same progression
+    family first)."""
+    now, before = _week_ids(f, j), _week_ids(f, ref)
+    gone = [f.entries[i] for i in sorted(before - now) if i in f.entries]
+    for new_id in sorted(now - before):
+        new = f.entries.get(new_id)
+        if new is None or new.category not in LOADING_CATEGORIES:
+            continue  # rule catalogue_match reports an unknown exercise
+        same = [g for g in gone if g.category == new.category]
+        family = [g for g in same if g.family == new.family]
+        pool = family or same
+        if not pool:
+            continue  # an added exercise: the week's impacts and volume measures read it
+        old = max(pool, key=lambda g: (g.depth, g.impact_level, g.peak_grf_bw))
+        why = harder_reason(new, old)
+        if why:
+            yield new_id, old.exercise_id, why
+
+
+def _window_weeks(f: _Facts) -> dict[int, tuple[int, int]]:
+    """0-based index of each week in weeks 3-5 of a window -> (index of its stimulus week, position)."""
+    out: dict[int, tuple[int, int]] = {}
+    for i in _stimulus_starts(f):
+        for j in sorted(weak_window_weeks([i])):
+            if j < len(f.weeks):
+                out.setdefault(j, (i, j - i + 1))
+    return out
+
+
+def _window_exercises(f: _Facts, flagged: set[tuple[int, str]]) -> Iterator[SafetyViolation]:
+    """A harder exercise in weeks 3-5, planned from week to week or swapped in during those weeks."""
+    windows = _window_weeks(f)
+    for j, (i, pos) in sorted(windows.items()):
+        if i + 1 >= len(f.weeks):
+            continue
+        for new_id, old_id, why in _harder_brought_in(f, j, i + 1):
+            if (j, new_id) in flagged:
+                continue
+            flagged.add((j, new_id))
+            wk = f.weeks[j]
+            yield SafetyViolation(
+                "weak_window", wk.week, new_id,
+                f"week {wk.week} (week {pos} after the new or larger stimulus of week {i + 1}) brings in "
+                f"{new_id} in place of {old_id}: {why}",
+                f"{old_id} or a less demanding substitute until week {i + 1 + 5} (no increase of any kind in "
+                "weeks 3-5)", SRC_REMODEL)
+    for sw in f.plan.swaps or ():
+        if sw.week is None or not 1 <= sw.week <= len(f.weeks):
+            continue
+        j = sw.week - 1
+        labelled = bool(f.weeks[j].weak_window)
+        if j not in windows and not labelled:
+            continue
+        new, old = f.entries.get(sw.new), f.entries.get(sw.old)
+        if new is None or old is None:
+            continue  # rule swap_same_kind reports it
+        why = harder_reason(new, old)
+        if not why or (j, sw.new) in flagged:
+            continue
+        flagged.add((j, sw.new))
+        when = (f"week {windows[j][1]} after the new or larger stimulus of week {windows[j][0] + 1}"
+                if j in windows else "a week labelled as a remodelling window")
+        end = windows[j][0] + 1 + 5 if j in windows else sw.week + 1
+        yield SafetyViolation(
+            "weak_window", sw.week, sw.new,
+            f"the swap of {sw.old} for {sw.new} made in week {sw.week} ({when}) raises the load: {sw.new} is {why}",
+            f"keep {sw.old} or swap to a less demanding exercise now; a harder one from week {end} "
+            "(no increase of any kind in weeks 3-5)", SRC_REMODEL)
 
 
 def _top_exercise(f: _Facts, j: int, attr: str) -> str | None:
