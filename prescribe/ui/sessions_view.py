@@ -163,7 +163,7 @@ class SessionsView(LazyPanel):
                                         layout=w.Layout(width="600px", height="50px"))
         self.resume_reason.add_class("pr-live-resume-reason")
         self.resume_button = w.Button(description="Resume the program", button_style="danger",
-                                      layout=w.Layout(width="auto"))
+                                      layout=w.Layout(width="190px", min_width="190px"))
         self.resume_button.add_class("pr-live-resume")
         self.resume_button.on_click(lambda _b: self.on_resume())
         self.resume_msg = w.HTML("")
