@@ -166,6 +166,30 @@ class NotFoundError(StoreError):
     """No such person or program in the store."""
 
 
+class ProgramPaused(InputError):
+    """A save, import or adjustment would replace a paused program (docs/sessions.md).
+
+    Bad input (the command line exits 2); nothing is stored.  The message says since when
+    and from which week the program is paused, why, and that a clinician lifts the pause
+    by recording the resumption with a reason (``prescribe resume``).
+    """
+
+    def __init__(self, patient_id: str, version: int, pause: dict, door: str = ""):
+        self.patient_id, self.version, self.pause, self.door = patient_id, version, dict(pause), door
+        since, week = pause.get("since", "?"), pause.get("from_week", "?")
+        reason = (pause.get("reason") or "").strip() or "no reason recorded"
+        allowed = (f"a program saved after a clinician records the resumption: `prescribe resume {patient_id} "
+                   "--clinician NAME --reason TEXT` (or Resume in the app's live-session section)")
+        self.problems = [FieldProblem("program", f"version {version}, paused since {since}", allowed)]
+        self.source = door or None
+        head = f"{door}: " if door else ""
+        Exception.__init__(self, (
+            f"{head}refused: the program of {patient_id!r} (version {version}) has been paused since {since} "
+            f"from week {week} for: {reason}. Nothing was stored. It stays paused until a clinician records "
+            f"the resumption with a reason: `prescribe resume {patient_id} --clinician NAME --reason TEXT` "
+            "(or Resume in the app's live-session section)."))
+
+
 def _jsonable(value: Any) -> Any:
     if value is None or isinstance(value, (bool, int, float, str)):
         return value

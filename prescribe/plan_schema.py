@@ -149,6 +149,21 @@ class PlanPause(_Open):
     since: str
     reason: str = ""
     until: str = ""
+    counts_from: str | None = Field(None, description="The date of the first session whose red flag paused the "
+                                                      "program: sessions from then on keep counting while it "
+                                                      "is paused (YYYY-MM-DD; null in older plans).")
+
+
+class PlanResume(_Open):
+    """The resumption a clinician recorded, lifting a pause (``prescribe resume``, docs/sessions.md)."""
+
+    by: str = Field(min_length=1, max_length=200, description="The clinician (the login under JupyterHub).")
+    at: str = Field(description="ISO 8601 UTC time the resumption was recorded.")
+    reason: str = Field(min_length=1, description="Why the program may go on, in the clinician's words.")
+    paused_version: int | None = Field(None, ge=1, description="The stored program version that was paused; "
+                                                               "only sessions logged after it count again.")
+    paused_since: str | None = Field(None, description="When the lifted pause began (YYYY-MM-DD).")
+    from_week: int | None = Field(None, ge=1, description="The week the lifted pause began.")
 
 
 class Plan(_Open):
@@ -204,6 +219,7 @@ class Plan(_Open):
     # An adjusted program (docs/sessions.md).
     adjustment: PlanAdjustment | None = None
     paused: PlanPause | None = None
+    resumed: PlanResume | None = Field(None, description="The recorded resumption that lifted the last pause.")
 
 
 def parse_plan(data: Any, source: str | None = None) -> Plan:

@@ -70,6 +70,17 @@ def _environment() -> Environment:
 #: The mark on every page of a draft program's handout.
 DRAFT_TEXT = "DRAFT: do not start this program until a clinician has cleared you for it"
 
+#: The word first on every page of the person's pages of a paused program (before the DRAFT mark).
+PAUSED_WORD = "PAUSED"
+
+
+def person_pause_text(clinic: Clinic) -> str:
+    """What a paused program's person's pages say first, in the person's own plain words
+    (never the clinician's reason); the clinic's contact from the settings when set."""
+    call = f"Call the clinic: {clinic.contact}." if clinic.contact else "Call the clinic."
+    return (f"{PAUSED_WORD}: Do not do these exercises until your clinician tells you to start again. {call} "
+            "Keep to your usual daily activities.")
+
 
 def handout_context(plan: Plan, audience: str, paper: str, clinic: Clinic, sensor_summary: dict | None = None,
                     large_print: bool = False) -> dict:
@@ -112,6 +123,10 @@ def handout_context(plan: Plan, audience: str, paper: str, clinic: Clinic, senso
         "has_weak": any(f.weak_window for f in facts),
         # A referred person's program not yet cleared: DRAFT on every page (docs/safety.md).
         "draft": is_draft(plan), "draft_text": DRAFT_TEXT,
+        # A paused program (docs/sessions.md): PAUSED first on every page of the person's pages,
+        # in their own words; the clinician's pages give the date, week and reason.
+        "pause": plan.paused, "resumed": plan.resumed, "paused_word": PAUSED_WORD,
+        "person_pause_text": person_pause_text(clinic),
         "minutes_only": any(f.impact_level >= 1 and not f.impacts_per_session for f in facts),
         "sensor_charts": sensor_charts(sensor_summary) if clinician else [],
     }

@@ -14,7 +14,10 @@ weeks before W are kept exactly as they were:
 * hold: week W repeats the dose of week W-1, the rest moves one week later;
 * step_back: week W takes the dose of week W-2, the rest moves two weeks later;
 * stop_and_refer: the program is paused from week W (nothing changes until a
-  clinician has assessed the person; every page then says so).
+  clinician has assessed the person; every page then says so).  A paused program stays
+  paused until a clinician records the resumption (:mod:`prescribe.sessions.pause`):
+  while it is paused the advice stays stop_and_refer and the red flags that paused it
+  keep counting; after the resumption only sessions logged after it count.
 
 Composing the new weeks never raises anything in weeks 3 to 5 after a step-up (the
 window restarts at every step-up of the new sequence): where the next week of the
@@ -34,6 +37,7 @@ from ..cautions import with_standard
 from ..intensity import pct_1rm
 from ..plan_schema import WEAK_WINDOW_WEEKS, Plan, in_weak_window, program_week, week_start
 from .loads import MAX_REPS_FOR_ESTIMATE, brzycki_1rm, round_load
+from .pause import active_pause, pause_caution
 from .records import SessionRecord
 from .rules import RANK, SessionRule, SessionRuleSet, default_rules
 
@@ -231,14 +235,39 @@ def _qualifying_lifts(rule: SessionRule, plan: dict, sessions: list[LoggedSessio
     return out
 
 
+def red_flag_scope(plan: dict, sessions: list[LoggedSession], version: int | None,
+                   counts_after_version: int | None = None) -> list[LoggedSession]:
+    """The sessions whose red flags (symptoms, falls) count, oldest first.
+
+    Those logged against ``version`` and the latest session; while the plan is paused also
+    every session from the first one that paused it (``paused.counts_from``) and those
+    logged against the version it paused, so the red flags keep counting until a
+    clinician records the resumption.  After a resumption (``counts_after_version``, else
+    the plan's ``resumed.paused_version``) only sessions logged against a later version count.
+    """
+    latest = sessions[-1] if sessions else None
+    pause = active_pause(plan)
+    if pause is not None:
+        since, before = pause.get("counts_from"), plan.get("based_on_version")
+        scope = [s for s in sessions if (since and s.record.session_date >= since)
+                 or (s.program_version is not None and s.program_version in (version, before))]
+    else:
+        scope = [s for s in sessions if version is not None and s.program_version == version]
+    if latest is not None and latest not in scope:
+        scope.append(latest)
+    after = counts_after_version or (plan.get("resumed") or {}).get("paused_version")
+    if after is not None:
+        scope = [s for s in scope if s.program_version is not None and s.program_version > after]
+    return scope
+
+
 def _evaluate(rules: SessionRuleSet, plan: dict, sessions: list[LoggedSession], week: int, today: date,
-              baseline_pain: int, version: int | None) -> tuple[list[dict], dict]:
+              baseline_pain: int, version: int | None,
+              counts_after_version: int | None = None) -> tuple[list[dict], dict]:
     fired: list[dict] = []
     lifts: dict = {}
     latest = sessions[-1] if sessions else None
-    scope = [s for s in sessions if version is not None and s.program_version == version]
-    if latest is not None and latest not in scope:
-        scope.append(latest)
+    scope = red_flag_scope(plan, sessions, version, counts_after_version)
     symptoms = {c for s in scope for c in s.record.symptoms}
     start = plan_start(plan)
     weeks = plan.get("weeks", [])
@@ -254,6 +283,10 @@ def _evaluate(rules: SessionRuleSet, plan: dict, sessions: list[LoggedSession], 
                 fired.append(_reason(rule, "reported at the session of " + ", ".join(falls)))
         elif k == "always":
             fired.append(_reason(rule))
+        elif k == "paused":
+            pause = active_pause(plan)
+            if pause is not None:
+                fired.append(_reason(rule, f"paused since {pause.get('since')} from week {pause.get('from_week')}"))
         elif latest is None:
             if k == "no_sessions":
                 fired.append(_reason(rule))
@@ -306,6 +339,18 @@ def _evaluate(rules: SessionRuleSet, plan: dict, sessions: list[LoggedSession], 
             if lifts:
                 fired.append(_reason(rule, "; ".join(f"{e}: {why}" for e, (_, _, why) in lifts.items())))
     return fired, lifts
+
+
+def _first_red_flag(rules: SessionRuleSet, plan: dict, sessions: list[LoggedSession], version: int | None,
+                    counts_after_version: int | None) -> str | None:
+    """The date of the first session in scope with a stop_and_refer red flag (a pause counts
+    its sessions from then on), or None."""
+    codes = {c for r in rules.rules if r.decision == "stop_and_refer" and r.kind == "symptom_any"
+             for c in r.params.get("codes", [])}
+    falls = any(r.decision == "stop_and_refer" and r.kind == "fell" for r in rules.rules)
+    days = [s.record.session_date for s in red_flag_scope(plan, sessions, version, counts_after_version)
+            if codes.intersection(s.record.symptoms) or (falls and s.record.fell_since_last)]
+    return min(days) if days else None
 
 
 # ---------------------------------------------------------------------------------------
@@ -420,20 +465,27 @@ def _copy_week(week: dict) -> dict:
 
 
 def _adjusted(plan: dict, week: int, decision: str, reasons: list[dict], e1rm: dict, lifts: dict,
-              last_loads: dict[str, float], today: date) -> tuple[dict, list[str]]:
+              last_loads: dict[str, float], today: date, counts_from: str | None = None,
+              pause_rules: frozenset[str] = frozenset()) -> tuple[dict, list[str]]:
     old = plan["weeks"]
     changes: list[str] = []
     new = dict(plan)
     new.pop("paused", None)
     if decision == "stop_and_refer":
         weeks = [_copy_week(w) for w in old]
-        new["paused"] = {"from_week": week, "since": today.isoformat(),
-                         "reason": "; ".join(r["message"] for r in reasons if r["decision"] == "stop_and_refer"),
-                         "until": "a clinician has assessed the person and decided how to go on"}
+        was = active_pause(plan)
+        reason = "; ".join(r["message"] for r in reasons
+                           if r["decision"] == "stop_and_refer" and r["rule"] not in pause_rules)
+        if was is not None:  # paused again: the same pause goes on, from its first week and day
+            new["paused"] = {**was, "reason": reason or was.get("reason", "")}
+        else:
+            new["paused"] = {"from_week": week, "since": today.isoformat(), "reason": reason,
+                             "until": "a clinician has assessed the person and decided how to go on",
+                             "counts_from": counts_from}
+            new.pop("resumed", None)  # a new pause: the earlier resumption no longer applies
         if 1 <= week <= len(weeks):
             weeks[week - 1]["reassessment"] = True
-        new["cautions"] = with_standard([f"Paused from week {week}: do not continue this program until a "
-                                         "clinician has assessed the person.", *plan.get("cautions", [])])
+        new["cautions"] = with_standard([pause_caution(new["paused"]["from_week"]), *plan.get("cautions", [])])
         changes.append(f"program paused from week {week}: no further loading until a clinician has assessed the "
                        "person; week {0} is marked for reassessment".format(week))
     else:
@@ -482,7 +534,7 @@ def _adjusted(plan: dict, week: int, decision: str, reasons: list[dict], e1rm: d
 
 def assess(plan: Plan | dict, sessions: Iterable[LoggedSession], *, today: date | None = None,
            baseline_pain: int = 0, program_version: int | None = None,
-           rules: SessionRuleSet | None = None) -> Advice:
+           rules: SessionRuleSet | None = None, counts_after_version: int | None = None) -> Advice:
     """The next step for one person.
 
     Parameters
@@ -498,7 +550,10 @@ def assess(plan: Plan | dict, sessions: Iterable[LoggedSession], *, today: date 
         The person's usual pain at intake (the record's ``pain_score``), 0-10.
     program_version : int, optional
         The stored version of ``plan``: red flags are looked for in the sessions logged
-        against it (and always in the latest session).
+        against it (and always in the latest session; see :func:`red_flag_scope`).
+    counts_after_version : int, optional
+        The paused version a clinician last lifted (``prescribe resume``): sessions logged
+        against it or an earlier version no longer count for the red flags.
     """
     rules = rules or default_rules()
     plan = plan_dict(plan)
@@ -506,7 +561,8 @@ def assess(plan: Plan | dict, sessions: Iterable[LoggedSession], *, today: date 
     sessions = sorted(sessions, key=lambda s: (s.record.session_date, s.session_id or 0))
     n = len(plan["weeks"])
     week = min(max(program_week(plan_start(plan), today), 1), n)
-    fired, lifts = _evaluate(rules, plan, sessions, week, today, baseline_pain, program_version)
+    fired, lifts = _evaluate(rules, plan, sessions, week, today, baseline_pain, program_version,
+                             counts_after_version)
     top = max((RANK[r["decision"]] for r in fired), default=0)
     decision = next(d for d, i in RANK.items() if i == top)
     if decision == "progress":
@@ -527,8 +583,10 @@ def assess(plan: Plan | dict, sessions: Iterable[LoggedSession], *, today: date 
                   [r for r in fired if r["decision"] != decision and r["decision"] != "progress"]
     e1rm = estimate_1rm(sessions)
     last_loads = {e: h[-1][1].load_kg for e, h in _lift_history(sessions).items()}
+    pause_rules = frozenset(r.id for r in rules.by_kind("paused"))
     program, changes = _adjusted(plan, week, decision, reasons, e1rm, lifts if decision == "progress" else {},
-                                 last_loads, today)
+                                 last_loads, today, _first_red_flag(rules, plan, sessions, program_version,
+                                                                    counts_after_version), pause_rules)
     cautions = with_standard([*(["Stop: refer for assessment before any further loading."]
                                 if decision == "stop_and_refer" else []), *plan.get("cautions", [])])
     for r in reasons:

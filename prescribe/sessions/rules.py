@@ -16,6 +16,7 @@ a message and a source.  The kinds (what the engine can test):
 ``reps_beyond_target``     a lift done with ``min_extra_reps`` or more beyond its target at the same load in
                            ``sessions_running`` sessions running, effort at most ``max_rpe``
 ``always``                 the default
+``paused``                 the program is paused (until a clinician records the resumption: ``prescribe resume``)
 ``weak_window``            next week is in weeks ``window_weeks`` after a step-up (turns progress into hold)
 """
 
@@ -35,7 +36,7 @@ DECISIONS = ("progress", "hold", "step_back", "stop_and_refer")
 RANK = {d: i for i, d in enumerate(DECISIONS)}
 KINDS = ("symptom_any", "fell", "pain_during_above", "pain_next_morning_above", "pain_not_settled", "pain_rising",
          "session_rpe_above", "adherence_below", "break_days_at_least", "no_sessions", "reps_beyond_target",
-         "always", "weak_window")
+         "always", "weak_window", "paused")
 RULES_FILE = "session_rules.toml"
 
 

@@ -1,8 +1,9 @@
 """The next step for a stored person: the session engine over the store's program and
-sessions, and ``apply`` storing the adjusted program as a new version based on the old.
+sessions, and ``apply`` storing the adjusted program as a new version based on the old;
+``resume_person`` recording the resumption of a paused program.
 
-Shared by ``prescribe adjust`` and the app's live-session panel, so both give the same
-advice and both pass the same safety check before anything is stored.
+Shared by ``prescribe adjust`` / ``prescribe resume`` and the app's live-session panel, so
+both give the same advice and both pass the same checks before anything is stored.
 """
 
 from __future__ import annotations
@@ -25,7 +26,9 @@ def adjust_person(store, patient_id: str, *, today: date, apply: bool = False, c
     if version is None:
         raise InputError.single("patient_id", patient_id, "a person with a stored program (store one with "
                                                           "`prescribe save PATIENT.json --plan PLAN.json`)")
-    advice = assess(plan, sessions, today=today, baseline_pain=record.pain_score, program_version=version)
+    resumed = store.last_resumption(patient_id)  # after a resumption only later sessions count
+    advice = assess(plan, sessions, today=today, baseline_pain=record.pain_score, program_version=version,
+                    counts_after_version=(resumed or {}).get("paused_version"))
     out = advice.as_dict()
     out["current_program_version"] = version
     # The current version already applies an adjustment worked out on the same day, with no
@@ -57,4 +60,24 @@ def adjust_person(store, patient_id: str, *, today: date, apply: bool = False, c
         out["based_on_version"] = version
         out["applied_by"] = clinician
     out["_program"] = program
+    return out
+
+
+def resume_person(store, patient_id: str, *, clinician: str | None, reason: str) -> dict:
+    """Record a clinician's resumption of a person's paused program (the next version, the
+    pause lifted); what ``prescribe resume`` prints and the app shows.
+
+    ``clinician`` goes through :func:`prescribe.settings.current_clinician` (under
+    JupyterHub the login).  Bad input (no program, not paused, a blank or too long reason,
+    no clinician) is an :class:`InputError`; an unknown person a ``NotFoundError``.
+    """
+    from ..cautions import with_standard
+    from ..settings import current_clinician
+    from ..sessions.pause import checked_reason
+    reason = checked_reason(reason, "reason")
+    who = current_clinician(clinician, required=True)
+    out = store.resume_program(patient_id, who, reason)
+    out["cautions"] = with_standard([
+        f"Resumed by {out['resumed_by']}: check the next step with `prescribe adjust {patient_id}` (or Advise in "
+        "the app) before the next session; after a long pause the advice may go back a step."])
     return out

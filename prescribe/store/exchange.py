@@ -21,7 +21,7 @@ from . import models as m
 from .bundle import BUNDLE_FORMAT_VERSION, BUNDLE_KIND, parse_bundle
 from .engine import HEAD_REVISION, StoreBase, now_utc
 from .people import _insert_screening
-from .programs import plan_summary
+from .programs import plan_summary, refuse_replacing_pause
 from .rows import _audit, _dumps, _person
 from .sessions import _session_row
 
@@ -65,6 +65,10 @@ class ExchangeMixin(StoreBase):
             if exists is not None:
                 if _comparable(_export(conn, pid)) == _comparable(b):
                     return {"patient_id": pid, "status": "unchanged", **_counts(b)}
+                # A bundle whose latest program would replace a paused one: refused as such (exit 2).
+                programs = sorted(b["programs"], key=lambda p: p["version"])
+                refuse_replacing_pause(conn, pid, programs[-1]["plan"] if programs else None,
+                                       f"import of a bundle of {pid!r}")
                 raise ConflictError(
                     f"{pid!r} is already in the store at {self.where} with different content; importing "
                     "would overwrite it, so nothing was imported. Export the stored person first, or "

@@ -2,6 +2,12 @@
 
 A program save names the version it was based on and is refused
 (:class:`ConflictError`) when that is not the latest: nothing is overwritten.
+
+A paused program binds (docs/sessions.md): every door that stores a program
+(``save_program``, ``save_patient(plan=...)``, ``import_bundle``, and through them the
+command line and the app) goes through :func:`refuse_replacing_pause`, which refuses
+(:class:`ProgramPaused`, exit 2) a program that would replace a paused one, unless it
+keeps the same pause; only :meth:`ProgramsMixin.resume_program` lifts it, with a reason.
 """
 
 from __future__ import annotations
@@ -11,10 +17,11 @@ import json
 from sqlalchemy import func, select
 from sqlalchemy.engine import Connection
 
-from ..errors import ConflictError, InputError, NotFoundError
+from ..errors import ConflictError, InputError, NotFoundError, ProgramPaused
 from ..plan_schema import parse_plan
 from ..records import parse_record
 from ..planning.safety import assert_safe
+from ..sessions.pause import active_pause, checked_reason, keeps_pause, lift_pause
 from . import models as m
 from .engine import StoreBase, now_utc
 from .rows import _audit, _clinician, _dumps, _person, _text
@@ -51,6 +58,66 @@ class ProgramsMixin(StoreBase):
                 raise _conflict(patient_id, based_on_version, latest)
             return _insert_program(conn, patient_id, at, clinician, plan_json, summary_json, based_on_version,
                                    note, action=action, audit_detail=audit_detail)
+
+    def resume_program(self, patient_id: str, clinician: str, reason: str) -> dict:
+        """Record the resumption of a paused program: the next version, with the pause lifted.
+
+        Who (the login under JupyterHub), when and why go on the new version (``resumed``)
+        and in the audit log (``program_resumed``).  The new version is based on the paused
+        one and passes the safety check against the stored record.  Returns
+        ``{patient_id, program_version, based_on_version, resumed_by, resumed_at, reason,
+        paused_since, paused_from_week}``.
+
+        Raises
+        ------
+        NotFoundError
+            No such person.
+        InputError
+            No program stored, the latest program is not paused, a blank or too long
+            reason, no clinician (outside the hub).
+        """
+        clinician = _clinician(clinician, required=True)
+        reason = checked_reason(reason)
+        at = now_utc()
+        with self._write() as conn:
+            row = _person(conn, patient_id, lock=True)
+            latest = conn.execute(select(m.program_versions.c.version, m.program_versions.c.plan_json)
+                                  .where(m.program_versions.c.patient_id == patient_id)
+                                  .order_by(m.program_versions.c.version.desc()).limit(1)).first()
+            if latest is None:
+                raise InputError.single("patient_id", patient_id, "a person with a stored program that is paused "
+                                        "(this person has no stored program)")
+            plan = json.loads(latest.plan_json)
+            pause = active_pause(plan)
+            if pause is None:
+                raise InputError.single("program", f"version {latest.version} of {patient_id!r} (not paused)",
+                                        "a paused program: only a paused program is resumed (a program is paused "
+                                        "when a clinician applies stop_and_refer advice with `prescribe adjust --apply`)")
+            new = lift_pause(plan, by=clinician, at=at, reason=reason, paused_version=latest.version)
+            parsed, plan_json, summary_json = _checked_plan(patient_id, new)
+            assert_safe(parsed, door=f"store: resuming the program of {patient_id!r}",
+                        record=parse_record(json.loads(row.record_json), source=f"store record {patient_id!r}"))
+            version = _insert_program(
+                conn, patient_id, at, clinician, plan_json, summary_json, latest.version,
+                f"resumed: {reason}", action="program_resumed", lifts_pause=True,
+                audit_detail={"reason": reason, "paused_version": latest.version,
+                              "paused_since": pause.get("since"), "paused_from_week": pause.get("from_week"),
+                              "pause_reason": pause.get("reason", "")})
+        return {"patient_id": patient_id, "program_version": version, "based_on_version": latest.version,
+                "resumed_by": clinician, "resumed_at": at, "reason": reason,
+                "paused_since": pause.get("since"), "paused_from_week": pause.get("from_week")}
+
+    def last_resumption(self, patient_id: str) -> dict | None:
+        """The latest recorded resumption of the person's program (its audit entry's detail
+        with ``at`` and ``clinician``), or None."""
+        with self._read() as conn:
+            _person(conn, patient_id)
+            row = conn.execute(select(m.audit_log).where(m.audit_log.c.patient_id == patient_id,
+                                                         m.audit_log.c.action == "program_resumed")
+                               .order_by(m.audit_log.c.id.desc()).limit(1)).first()
+        if row is None:
+            return None
+        return {**json.loads(row.detail_json), "at": row.at, "clinician": row.clinician}
 
     def program_versions(self, patient_id: str) -> list[dict]:
         """Every saved version of a person's program, oldest first (without the plans)."""
@@ -120,9 +187,28 @@ def _latest_program(conn: Connection, pid: str):
                         .order_by(m.program_versions.c.version.desc()).limit(1)).first()
 
 
+def refuse_replacing_pause(conn: Connection, pid: str, new_plan: dict | None, door: str) -> None:
+    """Refuse (:class:`ProgramPaused`) a program that would replace the person's paused one.
+
+    The one test of every door that stores a program (called inside its transaction, with
+    the person's row locked): allowed when the latest stored version is not paused, or
+    when ``new_plan`` keeps the same pause (stop_and_refer advice applied again).
+    """
+    row = conn.execute(select(m.program_versions.c.version, m.program_versions.c.plan_json)
+                       .where(m.program_versions.c.patient_id == pid)
+                       .order_by(m.program_versions.c.version.desc()).limit(1)).first()
+    if row is None or '"paused"' not in row.plan_json:
+        return
+    pause = active_pause(json.loads(row.plan_json))
+    if pause is not None and not keeps_pause(pause, new_plan):
+        raise ProgramPaused(pid, row.version, pause, door)
+
+
 def _insert_program(conn: Connection, pid: str, at: str, clinician: str, plan_json: str, summary_json: str,
                     based_on_version: int | None, note: str, *, action: str = "program_saved",
-                    audit_detail: dict | None = None) -> int:
+                    audit_detail: dict | None = None, lifts_pause: bool = False) -> int:
+    if not lifts_pause:  # only resume_program lifts a pause
+        refuse_replacing_pause(conn, pid, json.loads(plan_json), f"store: saving a program for {pid!r}")
     latest = conn.execute(select(func.max(m.program_versions.c.version))
                           .where(m.program_versions.c.patient_id == pid)).scalar()
     version = (latest or 0) + 1

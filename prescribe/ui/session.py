@@ -20,7 +20,7 @@ from typing import Any
 
 from ..catalogue import IMPACT_LEVEL_LABELS
 from ..cautions import with_standard
-from ..errors import ConflictError, InputError, NotFoundError, PlanRequestRefused, PrescribeError
+from ..errors import ConflictError, InputError, NotFoundError, PlanRequestRefused, PrescribeError, ProgramPaused
 from ..records import PatientRecord, parse_record
 from ..settings import current_clinician, hub_login, require_role
 
@@ -477,6 +477,10 @@ class ClinicSession:
             return None
         except PlanRequestRefused as exc:  # the store's own safety check (UnsafeProgram)
             self.notice = "Not saved. " + self.plain_refusal(exc)
+            return None
+        except ProgramPaused as exc:  # a paused program binds until a clinician records the resumption
+            self.notice = (f"Not saved: {exc} Resume it in section 6 (live session) with a reason first; "
+                           "this program stays open here.")
             return None
         self.saved_version = int(version)
         return self.saved_version

@@ -4,8 +4,10 @@ For the exercise physiologist with the person in the room.  Open a saved person 
 saved program (section 1), then: "this week" shows the day's exercises with their
 doses, pre-filled as prescribed; tick and correct what was done, enter pain, effort
 and symptoms; "Log session" stores it and shows the next-step advice with its reasons
-at once; "Apply" stores the adjusted program as a new version.  Bad entries get a
-message beside the field and nothing is saved.  Charts: planned against done and
+at once; "Apply" stores the adjusted program as a new version.  A paused program
+(stop_and_refer applied) shows "Resume the program": the clinician writes why it may go
+on and the resumption is recorded through the same function as ``prescribe resume``.
+Bad entries get a message beside the field and nothing is saved.  Charts: planned against done and
 pain and effort over the weeks, the weak windows shaded.
 
 Widgets carry stable CSS classes (``pr-live-...``) for browser tests.
@@ -155,6 +157,23 @@ class SessionsView(LazyPanel):
         self.apply_button.on_click(lambda _b: self.on_apply())
         self.advice_view = w.HTML("")
         self.advice_view.add_class("pr-live-advice")
+        # Resuming a paused program: shown only while the program is paused.
+        self.resume_reason = w.Textarea(value="", placeholder="why the program may go on (required), e.g. "
+                                        "assessed after the fall: no injury, cleared to continue",
+                                        layout=w.Layout(width="600px", height="50px"))
+        self.resume_reason.add_class("pr-live-resume-reason")
+        self.resume_button = w.Button(description="Resume the program", button_style="danger",
+                                      layout=w.Layout(width="190px", min_width="190px"))
+        self.resume_button.add_class("pr-live-resume")
+        self.resume_button.on_click(lambda _b: self.on_resume())
+        self.resume_msg = w.HTML("")
+        self.resume_msg.add_class("pr-live-resume-msg")
+        self.resume_box = w.VBox([
+            w.HTML("<b>This program is paused.</b> It stays paused until a clinician has assessed the person "
+                   "and records here why it may go on (the reason is kept with the program and in the audit "
+                   "log). Check the next step with Advise before the next session."),
+            self.resume_reason, w.HBox([self.resume_button, self.resume_msg])], layout=w.Layout(display="none"))
+        self.resume_box.add_class("pr-live-resume-box")
         self.log_status = w.HTML("")
         self.log_status.add_class("pr-live-log-status")
         self.chart_box = w.VBox([])
@@ -172,7 +191,7 @@ class SessionsView(LazyPanel):
             self.note, self.msgs["note"], self.msgs["session_date"],
             w.HBox([self.clinician, self.msgs["clinician"]]),
             w.HBox([self.log_button, self.advise_button, self.apply_button]), self.log_status,
-            self.advice_view, self.chart_box, self.cautions]
+            self.advice_view, self.resume_box, self.chart_box, self.cautions]
 
     def _msg(self, key: str) -> w.HTML:
         box = w.HTML("")
@@ -230,17 +249,23 @@ class SessionsView(LazyPanel):
             self.rows_box.children = []
             self.day.options = []
             self.apply_button.disabled = True
+            self.resume_box.layout.display = "none"
             return
         plan = self._plan()
         week = self.current_week()
         wk = plan["weeks"][week - 1]
-        paused = plan.get("paused")
+        paused, resumed = plan.get("paused"), plan.get("resumed")
+        self.resume_box.layout.display = None if paused else "none"
         self.status.value = (f"<p><b>{esc(self.patient_id)}</b>: program version {self.app.session.saved_version}, "
                              f"started {esc(plan.get('start_date') or str(plan.get('created', ''))[:10])}; "
                              f"<b>this week: week {week}</b> of {len(plan['weeks'])} "
                              f"({esc(wk.get('phase', ''))})."
-                             + (f' <span class="pr-msg">Paused from week {paused["from_week"]}: '
-                                f'{esc(paused.get("reason", ""))}</span>' if paused else "") + "</p>")
+                             + (f' <span class="pr-msg pr-live-paused">Paused from week {paused["from_week"]} '
+                                f'(since {esc(paused.get("since", ""))}): {esc(paused.get("reason", ""))}</span>'
+                                if paused else "")
+                             + (f' <span class="pr-live-resumed">Resumed by {esc(resumed.get("by", ""))} at '
+                                f'{esc(resumed.get("at", ""))}: {esc(resumed.get("reason", ""))}</span>'
+                                if resumed and not paused else "") + "</p>")
         days = sorted({s["day"] for s in wk["sessions"]})
         names = {1: "Mon", 2: "Tue", 3: "Wed", 4: "Thu", 5: "Fri", 6: "Sat", 7: "Sun"}
         options = [(f"day {d} ({names[d]}): " + " + ".join(s["kind"] for s in wk["sessions"] if s["day"] == d), d)
@@ -368,6 +393,44 @@ class SessionsView(LazyPanel):
         self.advice_view.value = (advice_html(out) +
                                   f'<p class="pr-live-applied"><b>Applied</b>: stored as program version {version} '
                                   f'(based on version {out["based_on_version"]}) by {esc(who)}.</p>')
+        refresh = getattr(self.app, "refresh", None)
+        if refresh is not None:
+            refresh()
+        else:
+            self.refresh()
+        return version
+
+    @guarded("Recording the resumption")
+    def on_resume(self) -> int | None:
+        """Record the resumption of the paused program (the reason is required); the same
+        function as ``prescribe resume``.  Returns the new program version, or None."""
+        from ..settings import hub_login
+        from ..store.adjust import resume_person
+        if not self._ready():
+            raise InputError.single("person", None, "a saved person with a saved program (open one first)")
+        self.resume_msg.value = ""
+        who = self.clinician.value.strip()
+        if not who and hub_login() is None:
+            self.msgs["clinician"].value = ('<span class="pr-msg">Enter your name or initials: the resumption is '
+                                            'recorded with who made it. Nothing was saved.</span>')
+            return None
+        try:
+            out = resume_person(self.app.session.store, self.patient_id, clinician=who or None,
+                                reason=self.resume_reason.value)
+        except InputError as exc:
+            self.resume_msg.value = ('<span class="pr-msg">Nothing was saved: '
+                                     + esc("; ".join(p.message for p in exc.problems) or str(exc)) + "</span>")
+            return None
+        version = out["program_version"]
+        self.app.session.load(self.patient_id)  # the program section and the handout follow the new version
+        self.resume_reason.value = ""
+        self.advice = None
+        self.apply_button.disabled = True
+        self.advice_view.value = (f'<p class="pr-live-resumed-note"><b>Resumed</b>: stored as program version '
+                                  f'{version} (based on version {out["based_on_version"]}, paused since '
+                                  f'{esc(out["paused_since"])}) by {esc(out["resumed_by"])}. Reason: '
+                                  f'{esc(out["reason"])}. Press Advise for the next step before the next '
+                                  f'session.</p>')
         refresh = getattr(self.app, "refresh", None)
         if refresh is not None:
             refresh()
