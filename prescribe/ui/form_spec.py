@@ -148,8 +148,8 @@ def intake_fields() -> list[FieldSpec]:
         specs.append(_spec_from_node(f"glucocorticoids.{prop}", _nested("Glucocorticoids", prop),
                                      ("glucocorticoids", prop), False))
     for prop in RECORD_SCHEMA["$defs"]["Cancer"]["properties"]:
-        specs.append(_spec_from_node(f"cancer.{prop}", _nested("Cancer", prop), ("cancer", prop),
-                                     prop in _required_in("Cancer")))
+        # Cancer is optional: its boxes are too (the record asks for 'active' once either is given).
+        specs.append(_spec_from_node(f"cancer.{prop}", _nested("Cancer", prop), ("cancer", prop), False))
     return specs
 
 

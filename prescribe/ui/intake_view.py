@@ -177,9 +177,11 @@ class IntakeForm:
                 unit = f" ({spec.unit})" if spec.unit else ""
                 text = "" if value is None else form_spec._num(value) if isinstance(value, (int, float)) \
                     else str(value)
-                widget = w.Text(value=text, description=f"{words.lower()}{unit}", tooltip=spec.help,
+                description = f"{words.lower()}{unit}"
+                widget = w.Text(value=text, description=description, tooltip=spec.help,
                                 placeholder="optional" if not spec.required else "",
-                                style={"description_width": "initial"}, layout=w.Layout(width="230px"))
+                                style={"description_width": "initial"},
+                                layout=w.Layout(width=f"{7 * len(description) + 100}px"))  # the words, then the box
             widget.add_class(f"pr-intake-{css}-{index}-{prop}")
             row[prop] = widget
         remove = w.Button(description="Remove", layout=w.Layout(width="80px"))
