@@ -217,7 +217,7 @@ def test_under_the_hub_save_records_the_login_and_refuses_another_name(cli_here,
 
 # An invented version-2 person: a postmenopausal woman on a bisphosphonate, whose handout calls her "Nell".
 PERSON_V2 = {**PERSON, "patient_id": "CLI-V2-01", "display_name": "Nell", "menopause": "postmenopausal",
-             "z_scores": {"lumbar_spine": -1.2}, "cognition": "none", "lives_alone": True, "has_carer": False,
+             "z_scores": {"lumbar_spine": -1.2}, "cognition": "none", "lives_alone": False, "has_carer": True,
              "medications": [{"class": "bisphosphonate", "months_on": 30, "months_since_last_dose": 0}]}
 
 
