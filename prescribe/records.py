@@ -121,6 +121,32 @@ BONE_METASTASES: dict[str, str] = {
     "present": "Bone metastases are present.",
 }
 
+#: Short words for codes that are not plain words themselves (the intake form's lists show
+#: these; the meanings above say more).  Carried in the JSON schema as ``choice_labels``.
+MEDICATION_LABELS: dict[str, str] = {
+    "denosumab": "Denosumab",
+    "bisphosphonate": "Bisphosphonate",
+    "romosozumab": "Romosozumab",
+    "teriparatide": "Teriparatide",
+    "abaloparatide": "Abaloparatide",
+    "menopausal_hormone_therapy": "Menopausal hormone therapy",
+    "serm": "SERM (raloxifene, bazedoxifene)",
+    "glucocorticoid": "Oral glucocorticoid",
+    "androgen_deprivation": "Androgen deprivation therapy",
+    "aromatase_inhibitor": "Aromatase inhibitor",
+    "anticoagulant": "Anticoagulant",
+    "sedative_hypnotic": "Sedative or hypnotic",
+}
+SURGERY_LABELS: dict[str, str] = {
+    "hip_replacement": "Hip replacement",
+    "knee_replacement": "Knee replacement",
+    "spinal_fusion": "Spinal fusion",
+    "vertebroplasty": "Vertebroplasty or kyphoplasty",
+    "other": "Another operation",
+}
+SURGERY_SIDE_LABELS: dict[str, str] = {"left": "left", "right": "right", "both": "both sides",
+                                       "none": "no side (spine)"}
+
 #: Spinal levels a vertebral fracture may name (``fractures[].level``): C1-C7, T1-T12, L1-L5.
 VERTEBRAL_LEVEL_PATTERN = r"^(C[1-7]|T([1-9]|1[0-2])|L[1-5])$"
 
@@ -223,7 +249,8 @@ class Medication(_Strict):
                               serialize_by_alias=True)
 
     class_: MedicationClass = Field(alias="class", description="The medicine class.",
-                                    json_schema_extra=_meta(label="Medicine"))
+                                    json_schema_extra={**_meta(label="Medicine"),
+                                                       "choice_labels": MEDICATION_LABELS})
     months_on: float | None = Field(None, ge=0, le=1200, description="How long it has been (or was) taken, in months.",
                                     json_schema_extra=_meta("months", (0, 120), "Months taken", 1))
     months_since_last_dose: float | None = Field(
@@ -234,7 +261,8 @@ class Medication(_Strict):
 class Cancer(_Strict):
     """Cancer and what is known of bone metastases."""
 
-    active: bool = Field(description="Cancer under treatment or not in remission.")
+    active: bool = Field(description="Cancer under treatment or not in remission.",
+                         json_schema_extra=_meta(label="Active cancer"))
     bone_metastases: MetastasesStatus = Field(
         "unknown", description="Bone metastases: excluded (a clinician has recorded none), unknown or present.",
         json_schema_extra=_meta(label="Bone metastases"))
@@ -243,9 +271,11 @@ class Cancer(_Strict):
 class Surgery(_Strict):
     """One operation that changes what loading is safe."""
 
-    procedure: SurgeryProcedure = Field(description="The operation.", json_schema_extra=_meta(label="Operation"))
+    procedure: SurgeryProcedure = Field(description="The operation.", json_schema_extra={**_meta(label="Operation"),
+                                                                      "choice_labels": SURGERY_LABELS})
     side: SurgerySide = Field("none", description="The side operated on: left, right, both, or none (the spine).",
-                              json_schema_extra=_meta(label="Side"))
+                              json_schema_extra={**_meta(label="Side"),
+                                                 "choice_labels": SURGERY_SIDE_LABELS})
     months_ago: float = Field(ge=0, le=1200, description="How long ago, in months.",
                               json_schema_extra=_meta("months", (0, 120), "Months ago", 0.5))
     surgeon_cleared_impact: bool = Field(False, description="The surgical team has cleared impact loading "

@@ -235,3 +235,49 @@ def test_under_the_hub_save_records_the_login_and_refuses_another_name(cli_here,
     _ok(cli_here("save", str(person_file)))
     with open_store(store_db) as store:
         assert {a["clinician"] for a in store.audit("CLI-0001")} == {"mara.teal"}
+
+
+# An invented version-2 person: a postmenopausal woman on a bisphosphonate, whose handout calls her "Nell".
+PERSON_V2 = {**PERSON, "patient_id": "CLI-V2-01", "display_name": "Nell", "menopause": "postmenopausal",
+             "z_scores": {"lumbar_spine": -1.2}, "cognition": "none", "lives_alone": False, "has_carer": True,
+             "medications": [{"class": "bisphosphonate", "months_on": 30, "months_since_last_dose": 0}]}
+
+
+def test_a_version_2_record_saves_and_the_store_counts_records_by_schema(cli_here, tmp_path, store_db,
+                                                                         person_file):
+    v2_file = tmp_path / "v2.json"
+    v2_file.write_text(json.dumps(PERSON_V2))
+    _ok(cli_here("save", str(person_file), "--clinician", "AB"))
+    saved = _ok(cli_here("save", str(v2_file), "--clinician", "AB"))
+    assert saved["status"] == "created" and saved["screening"]["flags"]
+    assert _ok(cli_here("db", "init"))["people_by_record_schema"] == {"1": 1, "2": 1}
+    with open_store(store_db) as store:
+        assert store.get_patient("CLI-V2-01").display_name == "Nell"
+
+
+def test_export_leaves_the_handouts_name_out_unless_asked_and_import_keeps_the_stored_one(cli_here, tmp_path,
+                                                                                          store_db, new_db):
+    v2_file = tmp_path / "v2.json"
+    v2_file.write_text(json.dumps(PERSON_V2))
+    _ok(cli_here("save", str(v2_file), "--clinician", "AB"))
+    with open_store(store_db) as store:
+        p = plan("CLI-V2-01")
+        p["record"] = store.get_patient("CLI-V2-01").model_dump(mode="json")
+        store.save_program("CLI-V2-01", p, "AB", None, note="start")
+    plain = _ok(cli_here("export", "CLI-V2-01"))
+    assert "Nell" not in json.dumps(plain) and "display_name" not in json.dumps(plain)
+    assert plain["person"]["record"]["record_version"] == 2 and plain["programs"][0]["plan"]["record"]["menopause"]
+    named = _ok(cli_here("export", "CLI-V2-01", "--with-display-name"))
+    assert named["person"]["record"]["display_name"] == "Nell" == named["programs"][0]["plan"]["record"]["display_name"]
+    out_file = tmp_path / "bundle.json"
+    assert _ok(cli_here("export", "CLI-V2-01", "--out", str(out_file)))["with_display_name"] is False
+    assert json.loads(out_file.read_text()) == plain
+    # Importing the bundle without the name where the person is stored: the same person, the name kept.
+    assert _ok(cli_here("import", str(out_file)))["status"] == "unchanged"
+    assert _ok(cli_here("export", "CLI-V2-01", "--with-display-name")) == named
+    # Into another store: the person without a name, re-screened the same.
+    other = new_db("other")
+    assert _ok(cli_here("import", str(out_file), "--db", str(other)))["status"] == "imported"
+    with open_store(other) as store:
+        assert store.get_patient("CLI-V2-01").display_name is None
+        assert store.get_patient("CLI-V2-01").medications[0].class_ == "bisphosphonate"

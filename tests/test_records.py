@@ -127,3 +127,34 @@ def test_field_meta_is_read_from_the_model():
     assert FIELD_META["timed_up_and_go_s"]["unit"] == "s"
     assert FIELD_META["patient_id"]["required"] and not FIELD_META["pain_score"]["required"]
     assert set(FIELD_META) == set(PatientRecord.model_fields)
+
+
+def test_prescribe_schema_prints_the_version_2_record_and_an_independent_validator_agrees(cli):
+    # The printed schema is the version-2 contract (PRODUCT.md "The patient record, version 2"):
+    # every new field, its vocabulary as the enum, and the short words the form shows.
+    from jsonschema import Draft202012Validator
+
+    from prescribe.records import MEDICATION_CLASSES, MEDICATION_LABELS, RECORD_V2_FIELDS, SURGERY_PROCEDURES
+    res = cli("schema")
+    assert res.returncode == 0, res.stderr
+    schema = json.loads(res.stdout)
+    assert schema["$comment"] == "schema version 2"
+    assert set(RECORD_V2_FIELDS) | {"record_version"} <= set(schema["properties"])
+    medicine = schema["$defs"]["Medication"]["properties"]["class"]
+    assert medicine["enum"] == list(MEDICATION_CLASSES) and medicine["choice_labels"] == MEDICATION_LABELS
+    assert schema["$defs"]["Surgery"]["properties"]["procedure"]["enum"] == list(SURGERY_PROCEDURES)
+    v2 = {**BASE, "record_version": 2, "display_name": "Rosa", "z_scores": {"femoral_neck": -1.0},
+          "menopause": "perimenopausal", "medications": [{"class": "denosumab", "months_since_last_dose": 8}],
+          "cancer": {"active": True, "bone_metastases": "unknown"},
+          "surgeries": [{"procedure": "knee_replacement", "side": "right", "months_ago": 6}],
+          "fractures": [{"site": "vertebra", "months_ago": 12, "low_trauma": True, "level": "L1"}],
+          "cognition": "moderate", "lives_alone": False, "has_carer": True}
+    validator = Draft202012Validator(schema)
+    assert list(validator.iter_errors(v2)) == []
+    assert parse_record(v2).version == 2
+    for bad in ({"medications": [{"class": "aspirin"}]}, {"fractures": [{"site": "vertebra", "months_ago": 1,
+                                                                         "low_trauma": True, "level": "T13"}]},
+                {"cancer": {"bone_metastases": "present"}}, {"record_version": 3}):
+        assert list(validator.iter_errors({**v2, **bad})), bad
+        with pytest.raises(InputError):
+            parse_record({**v2, **bad})

@@ -479,3 +479,97 @@ def test_under_the_hub_every_write_records_the_login(store, monkeypatch):
     monkeypatch.delenv("JUPYTERHUB_USER")
     bundle = store.export_patient("TEST-0001")
     assert bundle["programs"][0]["clinician"] == "mara.teal"
+
+
+# -- version-2 records: the schema column, and the handout's name kept out of exports ------------
+
+V2_FIELDS = {"display_name": "Rosa", "menopause": "postmenopausal", "z_scores": {"lumbar_spine": -0.9},
+             "medications": [{"class": "bisphosphonate", "months_on": 24, "months_since_last_dose": 0}],
+             "cognition": "none", "lives_alone": False, "has_carer": True}
+
+
+def _v2_plan(pid: str, rec) -> dict:
+    p = plan(pid)
+    p["record"] = rec.model_dump(mode="json")
+    return p
+
+
+def test_a_version_2_record_saves_reads_and_carries_its_schema_version(store):
+    store.save_patient(record("V1-0001"), screening("V1-0001"), "AB")
+    v2 = record("V2-0001", **V2_FIELDS)
+    assert v2.version == 2
+    store.save_patient(v2, screening("V2-0001"), "AB")
+    assert store.get_patient("V2-0001").model_dump() == v2.model_dump() and store.get_patient("V2-0001").medications[0].class_ == "bisphosphonate"
+    rows = {r["patient_id"]: r for r in store.list_patients()}
+    assert (rows["V1-0001"]["record_schema"], rows["V2-0001"]["record_schema"]) == (1, 2)
+    # The edit counter keeps its own meaning: a change is version 2 of the record, and a
+    # version-1 record given a version-2 field moves to schema 2.
+    out = store.save_patient(record("V1-0001", cognition="mild"), None, "CD", based_on_version=1)
+    assert out["record_version"] == 2 and sorted(out["changed_fields"]) == ["cognition", "record_version"]
+    rows = {r["patient_id"]: r for r in store.list_patients()}
+    assert (rows["V1-0001"]["record_schema"], rows["V1-0001"]["record_version"]) == (2, 2)
+    assert rows["V2-0001"]["record_version"] == 1
+
+
+def test_revision_0007_fills_the_record_schema_from_the_stored_records(new_db):
+    where = new_db("at0006")
+    _alembic_upgrade(where, "0006")
+    engine = create_engine(where if "://" in where else f"sqlite:///{where}")
+    rows = {"OLD-V1": record("OLD-V1"), "OLD-V2": record("OLD-V2", **V2_FIELDS)}
+    with engine.begin() as conn:
+        for pid, rec in rows.items():
+            conn.execute(text("INSERT INTO people (patient_id, record_json, created, updated, record_version) "
+                              "VALUES (:pid, :rec, '2026-11-01T00:00:00+00:00', '2026-11-02T00:00:00+00:00', 3)"),
+                         {"pid": pid, "rec": json.dumps(rec.model_dump(mode="json"))})
+    engine.dispose()
+    assert json.loads(json.dumps(rows["OLD-V2"].model_dump(mode="json")))["record_version"] == 2
+    with open_store(where) as s:
+        assert s.revision() == HEAD_REVISION == "0007"
+        listed = {r["patient_id"]: r for r in s.list_patients()}
+        assert {p: r["record_schema"] for p, r in listed.items()} == {"OLD-V1": 1, "OLD-V2": 2}
+        assert {p: r["record_version"] for p, r in listed.items()} == {"OLD-V1": 3, "OLD-V2": 3}  # untouched
+        assert s.get_patient("OLD-V2").model_dump() == rows["OLD-V2"].model_dump()
+
+
+def _names_in(bundle: dict) -> list[str]:
+    text = json.dumps(bundle)
+    return [m for m in ("Rosa", "Rosie") if m in text]
+
+
+def test_an_export_leaves_out_the_handouts_name_unless_asked_and_an_import_keeps_the_stored_one(store, new_db):
+    pid = "V2-0002"
+    store.save_patient(record(pid, **{**V2_FIELDS, "display_name": "Rosie"}), screening(pid), "AB")
+    rec = record(pid, **V2_FIELDS)  # the name corrected: the audit keeps the replaced value
+    store.save_patient(rec, screening(pid), "AB", plan=_v2_plan(pid, rec))
+    full = store.export_patient(pid, with_display_name=True)
+    assert full["person"]["record"]["display_name"] == "Rosa"
+    assert full["programs"][0]["plan"]["record"]["display_name"] == "Rosa"
+    assert [a["detail"]["previous"] for a in full["audit"] if a["action"] == "person_updated"] == \
+        [{"display_name": "Rosie"}]
+    plain = store.export_patient(pid)
+    assert _names_in(plain) == [] and _names_in(full) == ["Rosa", "Rosie"]
+    assert plain["person"]["record"]["record_version"] == 2  # still a version-2 record
+    assert plain["programs"][0]["plan"]["record"]["menopause"] == "postmenopausal"
+    assert [a["detail"]["changed_fields"] for a in plain["audit"] if a["action"] == "person_updated"] == \
+        [["display_name"]]
+    # Round trip into another store: the same bundle back, without the name.
+    with open_store(new_db("other")) as other:
+        assert other.import_bundle(plain)["status"] == "imported"
+        assert other.export_patient(pid) == plain and other.export_patient(pid, with_display_name=True) == plain
+        assert other.get_patient(pid).display_name is None and other.get_patient(pid).version == 2
+        assert other.list_patients()[0]["record_schema"] == 2
+    # Back into the first store: the same person apart from the name, so nothing changes and
+    # the stored name stays.
+    assert store.import_bundle(plain)["status"] == "unchanged"
+    assert store.get_patient(pid).display_name == "Rosa"
+    assert store.import_bundle(full)["status"] == "unchanged"
+    # A bundle that differs in anything else is still refused, name or no name.
+    changed = json.loads(json.dumps(plain))
+    changed["person"]["record"]["height_cm"] = 159.0
+    with pytest.raises(ConflictError):
+        store.import_bundle(changed)
+    renamed = json.loads(json.dumps(full))
+    renamed["person"]["record"]["display_name"] = "Rosalind"
+    with pytest.raises(ConflictError):
+        store.import_bundle(renamed)
+    assert store.get_patient(pid).display_name == "Rosa"

@@ -48,6 +48,8 @@ def register(sub) -> None:
     p = sub.add_parser("export", help="a person with all screenings and program versions, as one JSON bundle")
     p.add_argument("patient_id", metavar="PATIENT_ID")
     p.add_argument("--out", help="write the bundle to this file instead of stdout")
+    p.add_argument("--with-display-name", action="store_true",
+                   help="keep the name the person's handout uses (left out of every copy of the record by default)")
     p.add_argument("--db", help=DB_HELP)
     p.set_defaults(func=run_export)
 
@@ -76,8 +78,10 @@ def _open(args, create: bool = True):
 def run_init(args) -> int:
     from ..store import HEAD_REVISION
     with _open(args) as store:
+        people = store.list_patients()
+        schemas = {str(v): sum(1 for p in people if p["record_schema"] == v) for v in (1, 2)}
         emit_json({"db": store.where, "revision": store.revision(), "head_revision": HEAD_REVISION,
-                   "people": len(store.list_patients())})
+                   "people": len(people), "people_by_record_schema": schemas})
     return 0
 
 
@@ -118,14 +122,14 @@ def run_save(args) -> int:
 def run_export(args) -> int:
     with _open(args, create=False) as store:
         try:
-            bundle = store.export_patient(args.patient_id)
+            bundle = store.export_patient(args.patient_id, with_display_name=args.with_display_name)
         except NotFoundError:
             raise InputError.single("PATIENT_ID", args.patient_id,
                                     f"the id of a person in the store at {store.where}") from None
     if args.out:
         write_atomically(Path(args.out), json.dumps(bundle, indent=2, ensure_ascii=False) + "\n", "--out")
         emit_json({"patient_id": args.patient_id, "out": args.out, "screenings": len(bundle["screenings"]),
-                   "program_versions": len(bundle["programs"])})
+                   "program_versions": len(bundle["programs"]), "with_display_name": args.with_display_name})
     else:
         emit_json(bundle)
     return 0

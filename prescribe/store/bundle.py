@@ -7,6 +7,7 @@ malformed bundle changes nothing.  The format is described in docs/store.md.
 
 from __future__ import annotations
 
+import copy
 from datetime import date, datetime
 from typing import Any, Literal
 
@@ -133,6 +134,37 @@ class _Bundle(_Part):
     #: Optional: bundles written before worn-sensor summaries existed have none.
     sensor_summaries: list[_SensorSummary] = Field(default_factory=list)
     audit: list[_Audit]
+
+
+def _records(bundle: dict) -> list[dict]:
+    """Every copy of the person's record in a bundle: the person's own and each program's."""
+    out = [bundle.get("person", {}).get("record")]
+    out += [(p.get("plan") or {}).get("record") for p in bundle.get("programs") or []]
+    return [r for r in out if isinstance(r, dict)]
+
+
+def has_display_name(bundle: dict) -> bool:
+    """Whether any copy of the record in ``bundle`` (or an audit entry) carries the person's name."""
+    return any("display_name" in r for r in _records(bundle)) or any(
+        "display_name" in ((a.get("detail") or {}).get("previous") or {}) for a in bundle.get("audit") or [])
+
+
+def without_display_name(bundle: dict) -> dict:
+    """A copy of ``bundle`` without the name the person's handout uses.
+
+    The name is taken from the person's record, from the record embedded in each program
+    version's plan and from the replaced values kept in the audit log (``previous``); the
+    audit still says the field changed, never to what.  The screenings carry no copy of the
+    record.  ``record_version`` stays, so a record that was version 2 still reads as version 2.
+    """
+    out = copy.deepcopy(bundle)
+    for record in _records(out):
+        record.pop("display_name", None)
+    for entry in out.get("audit") or []:
+        previous = (entry.get("detail") or {}).get("previous")
+        if isinstance(previous, dict):
+            previous.pop("display_name", None)
+    return out
 
 
 def _where(loc: tuple) -> str:

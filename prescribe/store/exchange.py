@@ -18,7 +18,7 @@ from ..plan_schema import parse_plan
 from ..records import parse_record
 from ..planning.safety import assert_safe
 from . import models as m
-from .bundle import BUNDLE_FORMAT_VERSION, BUNDLE_KIND, parse_bundle
+from .bundle import BUNDLE_FORMAT_VERSION, BUNDLE_KIND, has_display_name, parse_bundle, without_display_name
 from .engine import HEAD_REVISION, StoreBase, now_utc
 from .people import _insert_screening
 from .programs import plan_summary, refuse_replacing_pause
@@ -43,17 +43,24 @@ class ExchangeMixin(StoreBase):
         return [{"id": r.id, "at": r.at, "action": r.action, "patient_id": r.patient_id,
                  "clinician": r.clinician, "detail": json.loads(r.detail_json)} for r in rows]
 
-    def export_patient(self, patient_id: str) -> dict:
-        """A person with every screening, program version, session log and audit entry."""
+    def export_patient(self, patient_id: str, *, with_display_name: bool = False) -> dict:
+        """A person with every screening, program version, session log and audit entry.
+
+        The name the person's handout uses (``display_name``) is left out of every copy of
+        the record unless ``with_display_name`` (:func:`~prescribe.store.bundle.without_display_name`).
+        """
         with self._read() as conn:
-            return _export(conn, patient_id)
+            bundle = _export(conn, patient_id)
+        return bundle if with_display_name else without_display_name(bundle)
 
     def import_bundle(self, bundle: dict) -> dict:
         """Add a person from an exported bundle, timestamps and version numbers kept.
 
         All or nothing.  A malformed bundle is an :class:`InputError`; a person who is
         already here with different content is a :class:`ConflictError` (nothing is
-        changed); the same content again is reported ``unchanged``.
+        changed); the same content again is reported ``unchanged``.  A bundle exported
+        without the person's name (the default) that matches the stored person apart from
+        the name is the same content: ``unchanged``, and the stored name is kept.
         """
         b = parse_bundle(bundle)
         pid = b["person"]["patient_id"]
@@ -63,7 +70,10 @@ class ExchangeMixin(StoreBase):
             exists = conn.execute(select(m.people.c.patient_id).where(m.people.c.patient_id == pid)
                                   .with_for_update()).first()
             if exists is not None:
-                if _comparable(_export(conn, pid)) == _comparable(b):
+                stored = _export(conn, pid)
+                if not has_display_name(b):  # a bundle without the name never wipes the stored one
+                    stored = without_display_name(stored)
+                if _comparable(stored) == _comparable(b):
                     return {"patient_id": pid, "status": "unchanged", **_counts(b)}
                 # A bundle whose latest program would replace a paused one: refused as such (exit 2).
                 programs = sorted(b["programs"], key=lambda p: p["version"])
@@ -75,7 +85,8 @@ class ExchangeMixin(StoreBase):
                     "import into another store.")
             person = b["person"]
             conn.execute(m.people.insert().values(patient_id=pid, record_json=_dumps(person["record"], "record"),
-                                                  created=person["created"], updated=person["updated"]))
+                                                  created=person["created"], updated=person["updated"],
+                                                  record_schema=parse_record(person["record"]).version))
             for s in b["screenings"]:
                 _insert_screening(conn, pid, s["created"], s["clinician"], s["result"])
             for p in b["programs"]:

@@ -27,6 +27,9 @@ people = Table(
     Column("updated", String(40), nullable=False),
     # revision 0006: 1 when created, +1 on every change of the record (optimistic concurrency)
     Column("record_version", Integer, nullable=False, server_default=text("1")),
+    # revision 0007: the record's schema version, 1 or 2 (PatientRecord.version), so a clinic
+    # can list who still has a version-1 record; not the edit counter above
+    Column("record_schema", Integer, nullable=False, server_default=text("1")),
 )
 
 #: Every screening ever saved for a person, with the rule-set version it came from.

@@ -71,7 +71,8 @@ class PeopleMixin(StoreBase):
                 try:
                     with conn.begin_nested():  # another server may create the same person this instant
                         conn.execute(m.people.insert().values(patient_id=pid, record_json=record_json,
-                                                              created=at, updated=at, record_version=1))
+                                                              created=at, updated=at, record_version=1,
+                                                              record_schema=record.version))
                 except IntegrityError:
                     row = _lock_person(conn, pid)
                     if row is None:
@@ -89,7 +90,8 @@ class PeopleMixin(StoreBase):
                 status, created, updated = "updated", row.created, at
                 done = conn.execute(m.people.update().where(m.people.c.patient_id == pid,
                                                             m.people.c.record_version == row.record_version)
-                                    .values(record_json=record_json, updated=at, record_version=version))
+                                    .values(record_json=record_json, updated=at, record_version=version,
+                                            record_schema=record.version))
                 if done.rowcount != 1:  # belt and braces: the row lock makes this unreachable
                     raise _record_conflict(conn, pid, based_on_version, _lock_person(conn, pid))
                 _audit(conn, at, "person_updated", pid, clinician,
@@ -131,7 +133,8 @@ class PeopleMixin(StoreBase):
 
     def list_patients(self) -> list[dict]:
         """Everyone in the store, most recently updated first, with the latest screening
-        category and program version."""
+        category and program version, the record's edit counter (``record_version``) and
+        its schema version (``record_schema``: 1 or 2)."""
         with self._read() as conn:
             latest_screen = (select(m.screenings.c.patient_id, func.max(m.screenings.c.id).label("sid"))
                              .group_by(m.screenings.c.patient_id).subquery())
@@ -139,7 +142,8 @@ class PeopleMixin(StoreBase):
                                   func.max(m.program_versions.c.version).label("version"))
                            .group_by(m.program_versions.c.patient_id).subquery())
             query = (select(m.people.c.patient_id, m.people.c.created, m.people.c.updated,
-                            m.people.c.record_version, m.screenings.c.bone_density_category,
+                            m.people.c.record_version, m.people.c.record_schema,
+                            m.screenings.c.bone_density_category,
                             m.screenings.c.created.label("screened"), latest_prog.c.version)
                      .select_from(m.people)
                      .outerjoin(latest_screen, latest_screen.c.patient_id == m.people.c.patient_id)
@@ -149,7 +153,8 @@ class PeopleMixin(StoreBase):
             rows = conn.execute(query).all()
         return [{"patient_id": r.patient_id, "created": r.created, "updated": r.updated,
                  "latest_category": r.bone_density_category, "latest_screening": r.screened,
-                 "latest_program_version": r.version, "record_version": r.record_version} for r in rows]
+                 "latest_program_version": r.version, "record_version": r.record_version,
+                 "record_schema": r.record_schema} for r in rows]
 
     def caseload(self) -> list[tuple[str, dict]]:
         """Everyone's stored record as ``(patient_id, record dict)``, by id, in one read.

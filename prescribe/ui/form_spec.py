@@ -9,15 +9,35 @@ is the record's own message ("age_years must be a whole number from 18 to 110 (y
 
 from __future__ import annotations
 
+import re
 from dataclasses import dataclass, field
 from typing import Any
 
-from ..records import CONDITIONS, FIELD_META, FRACTURE_SITES, RECORD_SCHEMA, T_SCORE_SITES, describe_allowed
+from ..records import (BONE_METASTASES, COGNITION_LEVELS, CONDITIONS, FIELD_META, FRACTURE_SITES,
+                       MEDICATION_CLASSES, MENOPAUSE_STATUSES, RECORD_SCHEMA, RECORD_V2_FIELDS, SURGERY_PROCEDURES,
+                       T_SCORE_SITES, describe_allowed)
 
-#: Top-level fields typed as text boxes (numbers are typed, never clamped by the widget).
-SCALAR_FIELDS: tuple[str, ...] = ("patient_id", "age_years", "sex", "body_mass_kg", "height_cm",
-                                  "falls_past_year", "timed_up_and_go_s", "chair_stand_30s",
-                                  "tandem_stance_s", "pain_score")
+#: Top-level fields with one box each: numbers and text are typed (never clamped by the
+#: widget), a vocabulary or yes/no is chosen from a list.
+SCALAR_FIELDS: tuple[str, ...] = ("patient_id", "display_name", "age_years", "sex", "menopause", "body_mass_kg",
+                                  "height_cm", "falls_past_year", "timed_up_and_go_s", "chair_stand_30s",
+                                  "tandem_stance_s", "pain_score", "cognition", "lives_alone", "has_carer")
+
+#: Fields shown and used for women only (the record refuses them for men).
+WOMEN_ONLY: tuple[str, ...] = ("menopause",)
+
+#: The lists of rows (one row an item): record field -> its item's definition in the schema.
+ROW_LISTS: dict[str, str] = {"fractures": "Fracture", "medications": "Medication", "surgeries": "Surgery"}
+
+#: What each code of a vocabulary means (hover text), by the record path of the field.
+CHOICE_HELP: dict[str, dict[str, str]] = {
+    "medications.class": MEDICATION_CLASSES, "surgeries.procedure": SURGERY_PROCEDURES,
+    "menopause": MENOPAUSE_STATUSES, "cognition": COGNITION_LEVELS,
+    "cancer.bone_metastases": BONE_METASTASES, "fractures.site": FRACTURE_SITES,
+}
+
+#: What a yes/no list shows (None: not given).
+YES_NO: tuple[tuple[str, bool], ...] = (("yes", True), ("no", False))
 
 
 @dataclass(frozen=True)
@@ -38,6 +58,19 @@ class FieldSpec:
     choices: tuple[str, ...] = ()
     soft_range: tuple[float, float] | None = None
     extra: dict = field(default_factory=dict)
+    #: Plain words for each of ``choices`` (the schema's ``choice_labels``, else the code as words).
+    choice_labels: tuple[str, ...] = ()
+
+    @property
+    def options(self) -> list[tuple[str, Any]]:
+        """(words shown, value) of a list: the vocabulary's codes, or yes and no."""
+        if self.kind == "boolean":
+            return list(YES_NO)
+        return list(zip(self.choice_labels or self.choices, self.choices))
+
+    def words(self, value: Any) -> str:
+        """The words a list shows for ``value``."""
+        return next((label for label, v in self.options if v == value), str(value))
 
     @property
     def placeholder(self) -> str:
@@ -65,40 +98,114 @@ def _nested(def_name: str, prop: str) -> dict:
     return node
 
 
+def _choice_labels(node: dict) -> tuple[str, ...]:
+    enum = node.get("enum", ())
+    labels = node.get("choice_labels") or {}
+    return tuple(labels.get(code, code.replace("_", " ")) for code in enum)
+
+
 def _spec_from_node(key: str, node: dict, loc: tuple, required: bool) -> FieldSpec:
     kind = "choice" if "enum" in node else node.get("type", "string")
     label = node.get("label") or f"{FIELD_META[loc[0]]['label']} - {str(loc[-1]).replace('_', ' ')}"
     soft = node.get("soft_range")
     return FieldSpec(key=key, label=label, kind=kind, unit=node.get("unit"), help=node.get("description", ""),
                      allowed=describe_allowed(loc), required=required,
-                     choices=tuple(node.get("enum", ())), soft_range=tuple(soft) if soft else None)
+                     choices=tuple(node.get("enum", ())), soft_range=tuple(soft) if soft else None,
+                     choice_labels=_choice_labels(node))
+
+
+def _required_in(def_name: str) -> set[str]:
+    return set(RECORD_SCHEMA["$defs"][def_name].get("required", ()))
+
+
+def _top_level(name: str) -> dict:
+    node = RECORD_SCHEMA["properties"][name]
+    for option in node.get("anyOf", []):
+        if option.get("type") != "null":
+            return {**option, **{k: v for k, v in node.items() if k != "anyOf"}}
+    return node
 
 
 def intake_fields() -> list[FieldSpec]:
-    """The scalar inputs of the form, in the record's order, then T-scores and glucocorticoids."""
+    """Every one-box input of the form: the top-level fields in :data:`SCALAR_FIELDS`' order,
+    then the T- and Z-scores by site, glucocorticoids and cancer."""
     specs: list[FieldSpec] = []
     for name in SCALAR_FIELDS:
         meta = FIELD_META[name]
-        node = dict(RECORD_SCHEMA["properties"][name])
+        node = _top_level(name)
         kind = meta["type"]
         if "enum" in node:
             kind = "choice"
         specs.append(FieldSpec(key=name, label=meta["label"], kind=kind, unit=meta["unit"],
                                help=meta["description"], allowed=meta["allowed"], required=meta["required"],
                                choices=tuple(node.get("enum", ())),
-                               soft_range=tuple(meta["soft_range"]) if meta["soft_range"] else None))
+                               soft_range=tuple(meta["soft_range"]) if meta["soft_range"] else None,
+                               choice_labels=_choice_labels(node)))
     for site in T_SCORE_SITES:
         specs.append(_spec_from_node(f"t_scores.{site}", _nested("TScores", site), ("t_scores", site), False))
+        specs.append(_spec_from_node(f"z_scores.{site}", _nested("ZScores", site), ("z_scores", site), False))
     for prop in ("mg_per_day", "months"):
         specs.append(_spec_from_node(f"glucocorticoids.{prop}", _nested("Glucocorticoids", prop),
                                      ("glucocorticoids", prop), False))
+    for prop in RECORD_SCHEMA["$defs"]["Cancer"]["properties"]:
+        # Cancer is optional: its boxes are too (the record asks for 'active' once either is given).
+        specs.append(_spec_from_node(f"cancer.{prop}", _nested("Cancer", prop), ("cancer", prop), False))
     return specs
 
 
+def row_fields(list_field: str) -> list[FieldSpec]:
+    """The inputs of one row of a list (``fractures``, ``medications``, ``surgeries``), in the
+    schema's order, each keyed ``LIST.PROP``."""
+    def_name = ROW_LISTS[list_field]
+    props = RECORD_SCHEMA["$defs"][def_name]["properties"]
+    required = _required_in(def_name)
+    return [_spec_from_node(f"{list_field}.{p}", _nested(def_name, p), (list_field, 0, p), p in required)
+            for p in props]
+
+
 def fracture_fields() -> list[FieldSpec]:
-    """The inputs of one fracture row (site, months ago, low trauma)."""
-    props = RECORD_SCHEMA["$defs"]["Fracture"]["properties"]
-    return [_spec_from_node(f"fractures.{p}", props[p], ("fractures", 0, p), True) for p in props]
+    """The inputs of one fracture row (site, months ago, low trauma, vertebral level)."""
+    return row_fields("fractures")
+
+
+def medication_fields() -> list[FieldSpec]:
+    """The inputs of one medicine row (class, months taken, months since the last dose)."""
+    return row_fields("medications")
+
+
+def surgery_fields() -> list[FieldSpec]:
+    """The inputs of one operation row (procedure, side, months ago, surgeon's clearance)."""
+    return row_fields("surgeries")
+
+
+def choice_help(key: str, code: str) -> str:
+    """What a vocabulary's code means (the record's own description), or ''."""
+    return CHOICE_HELP.get(key, {}).get(code, "")
+
+
+def plain_choices(field_path: str, message: str) -> str:
+    """A record message about ``field_path`` with its vocabulary's codes in the form's words.
+
+    "surgeries[0].procedure is required: one of 'hip_replacement', ..." lists the codes;
+    the form shows "one of 'Hip replacement', ...".  Only the vocabulary of the field the
+    message is about is replaced (``'none'`` is a side in one list, a level in another).
+    """
+    key = re.sub(r"\[\d+\]", "", field_path)
+    spec = _specs_by_key().get(key)
+    if spec is None or spec.kind not in ("choice", "boolean"):
+        return message
+    if spec.kind == "boolean":
+        return message.replace("true or false", "yes or no")
+    for code, words in zip(spec.choices, spec.choice_labels):
+        message = message.replace(f"'{code}'", f"'{words}'")
+    return message
+
+
+def _specs_by_key() -> dict[str, FieldSpec]:
+    specs = {s.key: s for s in intake_fields()}
+    for list_field in ROW_LISTS:
+        specs.update({s.key: s for s in row_fields(list_field)})
+    return specs
 
 
 def condition_choices() -> list[tuple[str, str]]:
@@ -140,53 +247,91 @@ def convert_text(text: Any, kind: str) -> Any:
     return text
 
 
+def shows_level(site: Any) -> bool:
+    """A fracture row shows (and uses) its vertebral level only for a vertebral fracture."""
+    return site == "vertebra"
+
+
+def _rows(list_field: str, rows: list[dict] | None) -> list[dict]:
+    kinds = {s.key.split(".", 1)[1]: s.kind for s in row_fields(list_field)}
+    out = []
+    for row in rows or []:
+        item = {}
+        for k, v in row.items():
+            value = convert_text(v, kinds.get(k, "string"))
+            if value is not None:
+                item[k] = value
+        if list_field == "fractures" and not shows_level(item.get("site")):
+            item.pop("level", None)
+        out.append(item)
+    return out
+
+
 def record_data(values: dict[str, Any], fractures: list[dict] | None = None,
-                conditions: list[str] | None = None, glucocorticoids_taken: bool = False) -> dict:
-    """The record dict from the form's raw values (keys as in :func:`intake_fields`).
+                conditions: list[str] | None = None, glucocorticoids_taken: bool = False, *,
+                medications: list[dict] | None = None, surgeries: list[dict] | None = None,
+                record_version: int | None = None) -> dict:
+    """The record dict from the form's raw values (keys as in :func:`intake_fields`; each row
+    a dict keyed by the item's fields, as in :func:`row_fields`).
 
     Empty optional boxes are left out, so the record's defaults apply; an empty required
-    box is left out too, so the record reports it as required.
+    box is left out too, so the record reports it as required.  Fields for women only
+    (:data:`WOMEN_ONLY`) are left out unless sex is female, as is a fracture's level unless
+    the fracture is vertebral.  ``record_version`` is passed on as it was (a reopened
+    record that said 2 keeps saying it).
     """
     kinds = {s.key: s.kind for s in intake_fields()}
     data: dict[str, Any] = {}
-    t_scores: dict[str, Any] = {}
-    gluco: dict[str, Any] = {}
+    nested: dict[str, dict[str, Any]] = {}
     for key, raw in values.items():
         value = convert_text(raw, kinds.get(key, "string"))
         if value is None:
             continue
-        if key.startswith("t_scores."):
-            t_scores[key.split(".", 1)[1]] = value
-        elif key.startswith("glucocorticoids."):
-            gluco[key.split(".", 1)[1]] = value
+        if key in WOMEN_ONLY and values.get("sex") != "female":
+            continue
+        head, _, tail = key.partition(".")
+        if tail:
+            nested.setdefault(head, {})[tail] = value
         else:
             data[key] = value
-    if t_scores:
-        data["t_scores"] = t_scores
+    if record_version is not None:
+        data["record_version"] = record_version
+    for head in ("t_scores", "z_scores", "cancer"):
+        if nested.get(head):
+            data[head] = nested[head]
     if glucocorticoids_taken:
-        data["glucocorticoids"] = gluco
-    if fractures:
-        kinds_f = {s.key.split(".", 1)[1]: s.kind for s in fracture_fields()}
-        rows = []
-        for row in fractures:
-            rows.append({k: convert_text(v, kinds_f.get(k, "string")) for k, v in row.items()
-                         if convert_text(v, kinds_f.get(k, "string")) is not None})
-        data["fractures"] = rows
+        data["glucocorticoids"] = nested.get("glucocorticoids", {})
+    for list_field, rows in (("fractures", fractures), ("medications", medications), ("surgeries", surgeries)):
+        if rows:
+            data[list_field] = _rows(list_field, rows)
     if conditions:
         data["conditions"] = list(conditions)
+    if data.get("record_version") == 1 and any(name in data for name in RECORD_V2_FIELDS):
+        del data["record_version"]  # a version-1 record given version-2 details becomes version 2
     return data
 
 
+def _box_value(spec: FieldSpec, value: Any) -> Any:
+    if spec.kind in ("choice", "boolean"):
+        return value
+    return "" if value is None else _num(value) if isinstance(value, (int, float)) else str(value)
+
+
 def form_values(record_dict: dict) -> dict:
-    """The reverse of :func:`record_data`: the text each box shows for a saved record."""
+    """The reverse of :func:`record_data`: what each box shows for a saved record.
+
+    One entry a box (text for a typed box, the value for a list), and under ``fractures``,
+    ``medications`` and ``surgeries`` one dict a row in the same form.
+    """
     out: dict[str, Any] = {}
     for spec in intake_fields():
         head, _, tail = spec.key.partition(".")
         value = record_dict.get(head)
         if tail:
             value = (value or {}).get(tail) if isinstance(value, dict) else None
-        if spec.kind == "choice":
-            out[spec.key] = value
-        else:
-            out[spec.key] = "" if value is None else _num(value) if isinstance(value, (int, float)) else str(value)
+        out[spec.key] = _box_value(spec, value)
+    for list_field in ROW_LISTS:
+        specs = {s.key.split(".", 1)[1]: s for s in row_fields(list_field)}
+        out[list_field] = [{k: _box_value(spec, item.get(k)) for k, spec in specs.items()}
+                           for item in record_dict.get(list_field) or []]
     return out

@@ -78,7 +78,7 @@ def plain(text: object) -> str:
     return _SNAKE.sub(lambda m: label(m.group(0)), out)
 
 
-_PATH = re.compile(r"\b([a-z][a-z0-9_]*)((?:\[\d+\])?(?:\.[a-z][a-z0-9_]*)*)")
+_PATH = re.compile(r"\b([a-z][a-z0-9_]*)((?:\[\d*\])?(?:\.[a-z][a-z0-9_]*)*)")
 
 
 def field_words(text: object) -> str:
@@ -86,7 +86,8 @@ def field_words(text: object) -> str:
 
     "age_years must be ... not 12." -> "Age must be ... not 12.";
     "fractures[0].months_ago ..." -> "Fractures (row 1) - months ago ...";
-    "t_scores.femoral_neck ..." -> "T scores - femoral neck ...".  The value and the
+    "t_scores.femoral_neck ..." -> "T scores - femoral neck ...";
+    "surgeries[].surgeon_cleared_impact" -> "Surgeries - surgeon cleared impact".  The value and the
     allowed range are kept word for word.
     """
     def one(m: re.Match) -> str:
@@ -94,9 +95,9 @@ def field_words(text: object) -> str:
         if head not in FIELD_META:
             return m.group(0)
         out = str(FIELD_META[head]["label"])
-        row = re.match(r"\[(\d+)\]", tail)
-        if row:
-            out += f" (row {int(row.group(1)) + 1})"
+        row = re.match(r"\[(\d*)\]", tail)
+        if row:  # "[2]" is a row of the form's list; "[]" (any row, as the rules write it) names none
+            out += f" (row {int(row.group(1)) + 1})" if row.group(1) else ""
             tail = tail[row.end():]
         for part in [p for p in tail.split(".") if p]:
             out += " - " + part.replace("_", " ")
