@@ -148,13 +148,18 @@ def plan_key(record, screening) -> tuple:
     change no figure), and from the record whether there is a vertebral fracture, whether
     there are two or more low-trauma fractures, and marked thoracic kyphosis
     (``prescribe/planning/``); the safety check reads the same screening marks
-    (``prescribe/planning/safety/``).  A test checks that cached and uncached what-ifs agree.
+    (``prescribe/planning/safety/``); version 2 adds the heaviest load, carer-led sessions and
+    the held volume from the screening, and from the record the frailty the planner reads (the
+    chair stand) and the tandem stance held.  A test checks that cached and uncached what-ifs agree.
     """
+    from ..planning.selection import _frail
+
     s = screening
     return (s.bone_density_category, s.max_impact_level, tuple(sorted(s.avoid)), bool(s.falls_risk),
             bool(s.balance_first), bool(s.refer), bool(s.supervision),
-            # Not read by the planner yet; in the key so that the cache stays right when they are.
-            s.max_pct_1rm, bool(s.carer_led), bool(s.hold_volume),
+            # The version-2 limits the planner reads (heaviest load, carer-led, volume held), whether
+            # it takes the person for frail, and the tandem stance held (balance starts within it).
+            s.max_pct_1rm, bool(s.carer_led), bool(s.hold_volume), _frail(record, s), record.tandem_stance_s,
             any(f.site == "vertebra" for f in record.fractures),
             sum(1 for f in record.fractures if f.low_trauma) >= 2,
             "thoracic_kyphosis" in record.conditions)
