@@ -258,3 +258,25 @@ def test_record_to_row_uses_every_column():
     row = record_to_row(rec)
     assert list(row) == list(RECORD_COLUMNS)
     assert row["glucocorticoids_mg_per_day"] == "7.5" and row["fractures"] == "humerus:2:n"
+
+
+def test_reads_a_version_2_row_and_writes_the_name_only_when_asked(tmp_path):
+    header = ",".join(RECORD_COLUMNS)
+    row = (ROW_OK.replace("vertebra:14:y;", "vertebra:14:y:T12;") +
+           ",2,-2.1,,,postmenopausal,denosumab:36:10;anticoagulant::0,TRUE,,hip_replacement:left:8:n,"
+           "moderate,True,false,Ada Example")
+    [rec] = frame_to_records(read_batch_csv(write(tmp_path, header, row)))
+    assert rec.record_version == 2 and rec.z_scores.lumbar_spine == -2.1 and rec.menopause == "postmenopausal"
+    assert [(m.class_, m.months_on, m.months_since_last_dose) for m in rec.medications] == [
+        ("denosumab", 36.0, 10.0), ("anticoagulant", None, 0.0)]
+    assert rec.cancer.active is True and rec.cancer.bone_metastases == "unknown"   # the record's default
+    assert [(s.procedure, s.side, s.months_ago, s.surgeon_cleared_impact) for s in rec.surgeries] == [
+        ("hip_replacement", "left", 8.0, False)]
+    assert rec.fractures[0].level == "T12" and rec.fractures[1].level is None
+    assert (rec.cognition, rec.lives_alone, rec.has_carer, rec.display_name) == ("moderate", True, False, "Ada Example")
+    plain, named = tmp_path / "plain.csv", tmp_path / "named.csv"
+    write_batch_csv([rec], plain)
+    write_batch_csv([rec], named, with_display_name=True)
+    assert "display_name" not in plain.read_text().splitlines()[0] and "Ada Example" not in plain.read_text()
+    assert frame_to_records(read_batch_csv(named)) == [rec]
+    assert frame_to_records(read_batch_csv(plain)) == [rec.model_copy(update={"display_name": None})]

@@ -763,7 +763,10 @@ def validate_columns(cells: dict[str, np.ndarray], n: int) -> tuple[pd.DataFrame
     active = flags["cancer_active"]
     metastases, _ = _stripped(text("cancer_bone_metastases"))
     cancer = ~flag_bad["cancer_active"] & ((active != None) | (metastases != ""))  # noqa: E711 (elementwise)
-    pairs = np.where(cancer, metastases + "|" + active.astype(str), "")
+    pairs = np.full(n, "", dtype=object)
+    with_cancer = np.flatnonzero(cancer)
+    if len(with_cancer):
+        pairs[with_cancer] = metastases[with_cancer] + "|" + active[with_cancer].astype(str)
     codes, uniques = pd.factorize(pairs)
     per_pair = []
     for key in uniques.tolist():
