@@ -15,7 +15,9 @@ Memory: 1,000,000 rows through the command in a fresh interpreter, peak resident
 (``resource.getrusage``) against the file size, beside the same for 100,000 rows, for the bare
 pandas read and write of the 1,000,000-row file, and for an interpreter that only imports.
 
-Run: ``.venv/bin/python benchmarks/bench_batch.py [--no-million]``
+With ``--v2`` the caseload also has the version-2 columns (``bench_screening.invented_caseload``).
+
+Run: ``.venv/bin/python benchmarks/bench_batch.py [--no-million] [--v2]``
 """
 
 from __future__ import annotations
@@ -43,9 +45,12 @@ SIZES = (1_000, 100_000)
 MILLION = 1_000_000
 
 
-def write_caseload(n: int, folder: Path) -> Path:
+V2 = "--v2" in sys.argv
+
+
+def write_caseload(n: int, folder: Path, v2: bool = False) -> Path:
     path = folder / f"caseload_{n}.csv"
-    path.write_text(frame_to_csv_text(invented_caseload(n)), encoding="utf-8")
+    path.write_text(frame_to_csv_text(invented_caseload(n, v2=v2)), encoding="utf-8")
     return path
 
 
@@ -53,7 +58,7 @@ def write_caseload_elsewhere(n: int, folder: Path) -> Path:
     """:func:`write_caseload` in a child interpreter (this process stays small)."""
     code = (f"import sys; sys.path.insert(0, {str(Path(__file__).parent)!r})\n"
             f"from bench_batch import write_caseload; from pathlib import Path\n"
-            f"print(write_caseload({n}, Path({str(folder)!r})))")
+            f"print(write_caseload({n}, Path({str(folder)!r}), v2={V2}))")
     proc = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
     return Path(proc.stdout.strip())
 
@@ -138,7 +143,7 @@ def main_bench() -> int:
         for n, src in files.items():
             runs[n] = timed_alike({"command": lambda: run_command(src, folder / "out_cmd.csv"),
                                    "pandas": lambda: run_pandas(src, folder / "out_pd.csv")})
-        print(f"each side: 1 warm-up call, then {REPEATS} timed calls taking turns with the other side; "
+        print(("caseload with the version-2 columns; " if V2 else "") + f"each side: 1 warm-up call, then {REPEATS} timed calls taking turns with the other side; "
               "medians compared; in process")
         for n in SIZES:
             size = files[n].stat().st_size

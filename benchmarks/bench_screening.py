@@ -10,7 +10,11 @@ already read (``prescribe.screening.batch_io.Caseload.fractures``), the path ``s
 
 Goal: 100k in under 0.5 s, and at least 50x faster than the loop. Both sides are measured\nalike: one warm-up call each, then five timed calls each; medians are compared.
 
-Run: ``.venv/bin/python benchmarks/bench_screening.py [N]``
+With ``--v2`` the invented people also have the version-2 columns (medicines, operations,
+Z-scores, menopause, cancer, cognition, living situation; shares like an invented clinic's), so
+the vectorised version-2 features are measured too.
+
+Run: ``.venv/bin/python benchmarks/bench_screening.py [N] [--v2]``
 """
 
 from __future__ import annotations
@@ -23,18 +27,56 @@ import time
 import numpy as np
 import pandas as pd
 
-from prescribe.screening.batch_columns import fracture_columns
+from prescribe.screening.batch_columns import LIST_COLUMNS, fracture_columns, parse_bool_cell, parse_items
 from prescribe.records import CONDITIONS, FRACTURE_SITES
 from prescribe.records import parse_record
 from prescribe.screening import default_engine, screen
 
-N = int(sys.argv[1]) if len(sys.argv) > 1 else 100_000
+_ARGS = [a for a in sys.argv[1:] if not a.startswith("--")]
+N = int(_ARGS[0]) if _ARGS else 100_000
+V2 = "--v2" in sys.argv
 LOOP_SAMPLE = 10_000  # the loop runs on this many when N is larger, and is scaled
 SEED = 20261201
 
 
-def invented_caseload(n: int, seed: int = SEED) -> pd.DataFrame:
-    """A DataFrame of ``n`` random valid flattened records (invented people)."""
+def _v2_columns(n: int, rng: np.random.Generator, sex: np.ndarray, age: np.ndarray) -> dict[str, np.ndarray]:
+    """Version-2 columns for ``n`` invented people (invented shares, not sourced)."""
+    def pick(choices: list[str], p: list[float]) -> np.ndarray:
+        return np.array(choices, dtype=object)[rng.choice(len(choices), size=n, p=p)]
+
+    meds = [f"denosumab:{rng.integers(1, 60)}:{rng.integers(0, 12)}" for _ in range(40)] + \
+        [f"bisphosphonate:{rng.integers(1, 60)}:0" for _ in range(20)] + ["anticoagulant::0", "sedative_hypnotic:12:0",
+                                                                          "aromatase_inhibitor:24:0;anticoagulant::0"]
+    medications = np.full(n, "", dtype=object)
+    on = np.flatnonzero(rng.random(n) < 0.5)
+    medications[on] = np.array(meds, dtype=object)[rng.integers(len(meds), size=len(on))]
+    ops = [f"{p}:{s}:{m}:{c}" for p in ("hip_replacement", "knee_replacement") for s in ("left", "right")
+           for m in (3, 8, 14, 30) for c in "yn"] + ["spinal_fusion:none:24:n", "vertebroplasty:none:6:n"]
+    surgeries = np.full(n, "", dtype=object)
+    on = np.flatnonzero(rng.random(n) < 0.2)
+    surgeries[on] = np.array(ops, dtype=object)[rng.integers(len(ops), size=len(on))]
+    cancer = rng.random(n) < 0.1
+    z = np.round(rng.normal(-1.0, 1.0, n).clip(-5, 3), 1)
+    z[rng.random(n) < 0.7] = np.nan
+    return {
+        "record_version": np.full(n, 2.0),
+        "z_score_lumbar_spine": z, "z_score_femoral_neck": np.full(n, np.nan), "z_score_total_hip": np.full(n, np.nan),
+        "menopause": np.where(sex == "female", pick(["", "premenopausal", "perimenopausal", "postmenopausal"],
+                                                    [0.3, 0.05, 0.05, 0.6]), "").astype(object),
+        "medications": medications,
+        "cancer_active": np.where(cancer, rng.random(n) < 0.5, None).astype(object),
+        "cancer_bone_metastases": np.where(cancer, pick(["excluded", "unknown", "present"], [0.5, 0.4, 0.1]),
+                                           "").astype(object),
+        "surgeries": surgeries,
+        "cognition": pick(["", "none", "mild", "moderate", "severe"], [0.4, 0.35, 0.15, 0.07, 0.03]),
+        "lives_alone": pick(["", "true", "false"], [0.4, 0.25, 0.35]),
+        "has_carer": pick(["", "true", "false"], [0.5, 0.2, 0.3]),
+    }
+
+
+def invented_caseload(n: int, seed: int = SEED, v2: bool = False) -> pd.DataFrame:
+    """A DataFrame of ``n`` random valid flattened records (invented people); ``v2``: with the
+    version-2 columns."""
     rng = np.random.default_rng(seed)
 
     def maybe(values: np.ndarray, p_missing: float) -> np.ndarray:
@@ -54,7 +96,7 @@ def invented_caseload(n: int, seed: int = SEED) -> pd.DataFrame:
     cond_bits = rng.random((n, len(codes))) < 0.08
     conditions = np.array([";".join(codes[row]) for row in cond_bits], dtype=object)
     gc = rng.random(n) < 0.15
-    return pd.DataFrame({
+    frame = pd.DataFrame({
         "patient_id": np.char.add("INV-", np.arange(n).astype(str)).astype(object),
         "age_years": rng.integers(40, 96, n),
         "sex": np.where(rng.random(n) < 0.75, "female", "male").astype(object),
@@ -73,6 +115,12 @@ def invented_caseload(n: int, seed: int = SEED) -> pd.DataFrame:
         "conditions": conditions,
         "pain_score": rng.integers(0, 8, n),
     })
+    if v2:
+        extra = _v2_columns(n, rng, frame["sex"].to_numpy(), frame["age_years"].to_numpy())
+        for col in ("lives_alone", "has_carer"):       # as the reader types them: True, False or None
+            extra[col] = np.array([parse_bool_cell(c) for c in extra[col].tolist()], dtype=object)
+        frame = frame.assign(**extra)
+    return frame
 
 
 def frame_to_record_dicts(df: pd.DataFrame) -> list[dict]:
@@ -99,6 +147,18 @@ def frame_to_record_dicts(df: pd.DataFrame) -> list[dict]:
             "conditions": [c for c in row["conditions"].split(";") if c],
             "pain_score": int(row["pain_score"]),
         })
+        if "record_version" in row:                     # the version-2 columns (``--v2``)
+            d = out[-1]
+            d["z_scores"] = {s: opt(row[f"z_score_{s}"]) for s in ("lumbar_spine", "femoral_neck", "total_hip")}
+            for col in ("menopause", "cognition"):
+                d[col] = row[col] or None
+            for col in ("medications", "surgeries"):
+                parse_item, to_dict, _ = LIST_COLUMNS[col]
+                d[col] = [to_dict(i) for i in parse_items(row[col], parse_item)]
+            if row["cancer_active"] is not None:
+                d["cancer"] = {"active": bool(row["cancer_active"]), "bone_metastases": row["cancer_bone_metastases"]}
+            for col in ("lives_alone", "has_carer"):
+                d[col] = row[col]
     return out
 
 
@@ -119,7 +179,7 @@ def _timed(fn, repeats: int = REPEATS) -> tuple[list[float], list[float], object
 
 def main() -> int:
     engine = default_engine()
-    df = invented_caseload(N)
+    df = invented_caseload(N, v2=V2)
     m = min(N, LOOP_SAMPLE)
     dicts = frame_to_record_dicts(df.head(m))
     records = [parse_record(d) for d in dicts]
@@ -145,7 +205,8 @@ def main() -> int:
         return f"median {med(xs) * k:.3f} s (min {min(xs) * k:.3f}, max {max(xs) * k:.3f})"
 
     how = "measured" if m == N else f"measured on {m:,}, scaled x{scale:g}"
-    print(f"patients: {N:,} invented (seed {SEED}); rules: {len(engine.rules)} ({engine.version})")
+    print(f"patients: {N:,} invented (seed {SEED}{', with the version-2 columns' if V2 else ''}); "
+          f"rules: {len(engine.rules)} ({engine.version})")
     print(f"each side: 1 warm-up call, then {REPEATS} timed calls; timings exclude pydantic validation "
           "in both; the batch includes parsing the fracture/condition cells")
     print(f"screen_batch (vectorised), {N:,}: wall {span(b_wall)}; CPU {span(b_cpu)}  goal < 0.5 s: "

@@ -15,6 +15,7 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from prescribe.screening import batch_io
+from prescribe.screening.batch_columns import TEXT_COLUMNS
 from prescribe.screening.batch_io import RECORD_COLUMNS, iter_batch_csv, read_batch_csv, record_to_row, rows_to_records
 from prescribe.cli import main
 from prescribe.errors import InputError
@@ -70,13 +71,54 @@ BAD_CELLS: dict[str, tuple[str, str, str]] = {
     "two conditions unknown": ("conditions", "gout; flu", "condition codes joined by ';' from:"),
     "condition twice": ("conditions", "knee_osteoarthritis;knee_osteoarthritis", "condition codes joined"),
     "id used before": ("patient_id", "<first>", "an id not already used (row 1 has it)"),
+    # Version 2: each kind as the record model words it (the item of a compact cell named).
+    "record version not whole": ("record_version", "1.5", "a whole number, or empty when absent"),
+    "record version unknown": ("record_version", "3", "one of 1, 2, not 3."),
+    "version 1 with version-2 fields": ("record_version", {"record_version": "1", "lives_alone": "true"},
+                                        "2 (or leave it out) when version-2 fields"),
+    "z-score too low": ("z_score_total_hip", "-8", "a number from -7 to 5 (SD), not -8.0."),
+    "z-score not a number": ("z_score_femoral_neck", "low", "a finite number, or empty when absent"),
+    "menopause unknown": ("menopause", "after", "one of 'premenopausal', 'perimenopausal', 'postmenopausal'"),
+    "menopause for a man": ("menopause", {"sex": "male", "menopause": "postmenopausal"},
+                            "empty for sex 'male' (menopausal status is recorded for women)"),
+    "medication class unknown": ("medications", "denosumb:36:10", "items whose class is one of 'denosumab'"),
+    "medication without class": ("medications", "denosumab:36:10; :3:1", "items whose class is one of"),
+    "medication months too long": ("medications", "denosumab:1300:", "items whose months_on is a number from 0 "
+                                   "to 1200 (months), not 'denosumab:1300:'."),
+    "two medication items bad": ("medications", "x:1:1;anticoagulant::1201", "months_since_last_dose is a number"),
+    "medication item short": ("medications", "denosumab:36", "is not class:months_on:months_since_last_dose"),
+    "medication months not a number": ("medications", "denosumab:soon:", "months_on 'soon' is not a number"),
+    "medication months not finite": ("medications", "denosumab::inf", "is not a finite number"),
+    "surgery procedure unknown": ("surgeries", "hip_resurfacing:left:3:n", "items whose procedure is one of"),
+    "surgery side unknown": ("surgeries", "hip_replacement:up:3:n", "items whose side is one of 'left'"),
+    "surgery mark": ("surgeries", "knee_replacement:left:3:maybe", "surgeon-cleared mark 'maybe' is not y or n"),
+    "surgery months missing": ("surgeries", "knee_replacement:left::y", "items whose months_ago is a number"),
+    "surgery months too long": ("surgeries", "spinal_fusion:none:1201:n", "a number from 0 to 1200 (months)"),
+    "surgery item short": ("surgeries", "spinal_fusion:none:3", "is not procedure:side:months_ago:y|n"),
+    "fracture level unknown": ("fractures", "vertebra:12:y:T13", "items whose level is a vertebra from C1-C7"),
+    "fracture level on a hip": ("fractures", "wrist:3:n;hip:12:y:T12", "items whose level is a vertebral level only "
+                                "where site is 'vertebra'"),
+    "fracture five parts": ("fractures", "vertebra:12:y:T12:L1", "is not site:months_ago:y|n[:level]"),
+    "cancer not true or false": ("cancer_active", "yes", "true or false, or empty when absent"),
+    "cancer metastases unknown": ("cancer_bone_metastases", {"cancer_active": "true", "cancer_bone_metastases": "maybe"},
+                                  "one of 'excluded', 'unknown', 'present'"),
+    "cancer metastases without active": ("cancer_active", {"cancer_active": "", "cancer_bone_metastases": "present"},
+                                         "cancer_active is required: true or false"),
+    "lives alone not true or false": ("lives_alone", "sometimes", "true or false, or empty when absent"),
+    "has carer not true or false": ("has_carer", "2", "true or false, or empty when absent"),
+    "cognition unknown": ("cognition", "poor", "one of 'none', 'mild', 'moderate', 'severe'"),
+    "display name with a line break": ("display_name", "Ann\nB", "text of 1 to 80 characters"),
+    "display name with a direction mark": ("display_name", "Ann\u202eB", "printable characters only"),
+    "display name too long": ("display_name", "A" * 81, "text of 1 to 80 characters"),
 }
 
 
 def _spoil(row: dict, kind: str, first_id: str) -> dict:
     column, cell, _ = BAD_CELLS[kind]
     row = dict(row)
-    if "|" in cell:                          # a glucocorticoid pair: dose|months
+    if isinstance(cell, dict):               # cells that are bad together (a check across fields)
+        row.update(cell)
+    elif "|" in cell:                        # a glucocorticoid pair: dose|months
         row["glucocorticoids_mg_per_day"], row["glucocorticoids_months"] = cell.split("|")
     elif cell == "<first>":
         row[column] = first_id
@@ -91,8 +133,7 @@ def _write(tmp_path, rows: list[dict], name: str = "in.csv"):
         writer = csv.DictWriter(fh, fieldnames=list(RECORD_COLUMNS), lineterminator="\n")
         writer.writeheader()
         for row in rows:
-            writer.writerow({c: batch_io.spreadsheet_text(v) if c in ("patient_id", "sex", "fractures", "conditions")
-                             else v for c, v in row.items()})
+            writer.writerow({c: batch_io.spreadsheet_text(v) if c in TEXT_COLUMNS else v for c, v in row.items()})
     return path
 
 
@@ -184,6 +225,12 @@ def _expected_row(result) -> dict:
         "lowest_t_score_site": result.lowest_t_score_site or "",
         "ruleset_version": result.ruleset_version,
         "cautions": " | ".join(result.cautions),
+        "density_reference": result.density_reference,
+        "lowest_z_score": number(result.lowest_z_score),
+        "lowest_z_score_site": result.lowest_z_score_site or "",
+        "max_pct_1rm": number(result.max_pct_1rm),
+        "carer_led": "true" if result.carer_led else "false",
+        "hold_volume": "true" if result.hold_volume else "false",
     }
 
 
@@ -193,7 +240,8 @@ _UNUSUAL = [repr, lambda m: f"{m:e}", lambda m: f"{m:.17f}", lambda m: f" {m!r} 
 def _unusual_fractures(record, style: int) -> str:
     """The record's fracture cell with valid but unusual numbers (exponents, long decimals, spaces)."""
     fmt = _UNUSUAL[style % len(_UNUSUAL)]
-    return ";".join(f"{f.site}:{fmt(f.months_ago)}:{'y' if f.low_trauma else 'n'}" for f in record.fractures)
+    return ";".join(f"{f.site}:{fmt(f.months_ago)}:{'y' if f.low_trauma else 'n'}" + (f":{f.level}" if f.level else "")
+                    for f in record.fractures)
 
 
 def _run(args: list[str]) -> tuple[int, str, str]:
@@ -278,7 +326,7 @@ def test_a_structural_problem_late_in_the_file_wins_over_bad_rows_as_before(tmp_
     with pytest.raises(InputError) as caught:
         read_batch_csv(path)
     assert [p.field for p in caught.value.problems] == ["row 7 (patient_id NTC-9)"]
-    assert "17 cells, one per header column" in str(caught.value)
+    assert f"{len(RECORD_COLUMNS)} cells, one per header column" in str(caught.value)
 
 
 # --- the progress bar: on a terminal only ---------------------------------------------------------

@@ -11,14 +11,15 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from prescribe.screening.batch_io import (RECORD_COLUMNS, format_fractures, fracture_columns, frame_to_records,
+from prescribe.screening.batch_io import (RECORD_COLUMNS, RECORD_V1_COLUMNS, format_fractures, fracture_columns, frame_to_records,
                                           parse_fractures, read_batch_csv, record_to_row, records_to_frame,
                                           write_batch_csv, write_results_csv)
 from prescribe.errors import InputError
 from prescribe.records import load_record
 from prescribe.screening import RESULT_COLUMNS, results_from_frame, screen, screen_batch
 
-HEADER = ",".join(RECORD_COLUMNS)
+#: A first-stage caseload (version-1 columns only): it reads as it did.
+HEADER = ",".join(RECORD_V1_COLUMNS)
 ROW_OK = "NTC-0100,72,female,61.5,158,-2.7,-2.1,,vertebra:14:y;wrist:60:n,1,12.5,9,8,5,6,knee_osteoarthritis;thoracic_kyphosis,2"
 
 
@@ -56,11 +57,16 @@ def test_patient_files_round_trip_through_csv(tmp_path):
 
 
 def test_fracture_cell_format():
-    assert parse_fractures("vertebra:14:y;wrist:60.5:n") == [("vertebra", 14.0, True), ("wrist", 60.5, False)]
+    assert parse_fractures("vertebra:14:y;wrist:60.5:n") == [("vertebra", 14.0, True, None), ("wrist", 60.5, False, None)]
     assert parse_fractures("") == [] and parse_fractures("  ") == []
     assert format_fractures([{"site": "hip", "months_ago": 2.0, "low_trauma": True},
                              {"site": "rib", "months_ago": 0.25, "low_trauma": False}]) == "hip:2:y;rib:0.25:n"
-    for bad in ("vertebra:14", "knee:3:y", "hip:soon:y", "hip:3:maybe", "hip:-1:y", "hip:nan:y"):
+    # A vertebra may name its level as a fourth part; the record checks the level itself.
+    assert parse_fractures("vertebra:12:y:T12; vertebra:3:n: ") == [("vertebra", 12.0, True, "T12"),
+                                                                      ("vertebra", 3.0, False, None)]
+    assert format_fractures([{"site": "vertebra", "months_ago": 12.0, "low_trauma": True, "level": "T12"},
+                             ("wrist", 3.0, False)]) == "vertebra:12:y:T12;wrist:3:n"
+    for bad in ("vertebra:14", "knee:3:y", "hip:soon:y", "hip:3:maybe", "hip:-1:y", "hip:nan:y", "vertebra:1:y:T1:x"):
         with pytest.raises(ValueError):
             parse_fractures(bad)
 
@@ -70,11 +76,11 @@ def _item_parser_figures(cells):
     count, vert, lt_hip, hip, last = [], [], [], [], []
     for text in cells:
         items = parse_fractures(text)
-        count.append(float(sum(low for _, _, low in items)))
-        vert.append(any(low and site == "vertebra" for site, _, low in items))
-        lt_hip.append(any(low and site == "hip" for site, _, low in items))
-        hip.append(any(site == "hip" for site, _, _ in items))
-        last.append(min((m for _, m, _ in items), default=np.nan))
+        count.append(float(sum(f.low_trauma for f in items)))
+        vert.append(any(f.low_trauma and f.site == "vertebra" for f in items))
+        lt_hip.append(any(f.low_trauma and f.site == "hip" for f in items))
+        hip.append(any(f.site == "hip" for f in items))
+        last.append(min((f.months_ago for f in items), default=np.nan))
     return [np.array(count), np.array(vert, dtype=bool), np.array(lt_hip, dtype=bool),
             np.array(hip, dtype=bool), np.array(last)]
 
@@ -252,3 +258,25 @@ def test_record_to_row_uses_every_column():
     row = record_to_row(rec)
     assert list(row) == list(RECORD_COLUMNS)
     assert row["glucocorticoids_mg_per_day"] == "7.5" and row["fractures"] == "humerus:2:n"
+
+
+def test_reads_a_version_2_row_and_writes_the_name_only_when_asked(tmp_path):
+    header = ",".join(RECORD_COLUMNS)
+    row = (ROW_OK.replace("vertebra:14:y;", "vertebra:14:y:T12;") +
+           ",2,-2.1,,,postmenopausal,denosumab:36:10;anticoagulant::0,TRUE,,hip_replacement:left:8:n,"
+           "moderate,True,false,Ada Example")
+    [rec] = frame_to_records(read_batch_csv(write(tmp_path, header, row)))
+    assert rec.record_version == 2 and rec.z_scores.lumbar_spine == -2.1 and rec.menopause == "postmenopausal"
+    assert [(m.class_, m.months_on, m.months_since_last_dose) for m in rec.medications] == [
+        ("denosumab", 36.0, 10.0), ("anticoagulant", None, 0.0)]
+    assert rec.cancer.active is True and rec.cancer.bone_metastases == "unknown"   # the record's default
+    assert [(s.procedure, s.side, s.months_ago, s.surgeon_cleared_impact) for s in rec.surgeries] == [
+        ("hip_replacement", "left", 8.0, False)]
+    assert rec.fractures[0].level == "T12" and rec.fractures[1].level is None
+    assert (rec.cognition, rec.lives_alone, rec.has_carer, rec.display_name) == ("moderate", True, False, "Ada Example")
+    plain, named = tmp_path / "plain.csv", tmp_path / "named.csv"
+    write_batch_csv([rec], plain)
+    write_batch_csv([rec], named, with_display_name=True)
+    assert "display_name" not in plain.read_text().splitlines()[0] and "Ada Example" not in plain.read_text()
+    assert frame_to_records(read_batch_csv(named)) == [rec]
+    assert frame_to_records(read_batch_csv(plain)) == [rec.model_copy(update={"display_name": None})]

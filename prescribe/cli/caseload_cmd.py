@@ -21,6 +21,8 @@ def register(sub) -> None:
     c.required = True
     q = c.add_parser("export", help="the store's people as a batch CSV")
     q.add_argument("--out", required=True, metavar="FILE.csv", help="where to write the CSV")
+    q.add_argument("--with-display-name", action="store_true",
+                   help="also write the name each person's handout uses (left out unless asked)")
     q.add_argument("--db", help=DB_HELP)
     q.set_defaults(func=run_export)
 
@@ -44,9 +46,9 @@ def run_export(args) -> int:
 
     with _open(args) as store:
         people = store.caseload()
-        n = write_caseload_csv((d for _, d in people), args.out)
+        n = write_caseload_csv((d for _, d in people), args.out, with_display_name=args.with_display_name)
         where = store.where
-    emit_json({"out": args.out, "people": n, "db": where,
+    emit_json({"out": args.out, "people": n, "db": where, "display_name": bool(args.with_display_name),
                "cautions": ["The file holds pseudonymous clinical records: keep it as you keep the store."]})
     return 0
 

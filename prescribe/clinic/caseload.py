@@ -1,7 +1,8 @@
 """The stored caseload as a batch file, and what a rule or template change would do to it.
 
 - :func:`record_row` / :func:`write_caseload_csv`: the store's people as the batch CSV
-  that ``prescribe screen --batch`` reads (``docs/rules.md``).
+  that ``prescribe screen --batch`` reads (``docs/rules.md``), version-2 fields included; the
+  name each person's handout uses only when asked (``--with-display-name``).
 - :func:`whatif`: re-screen everyone under a draft rule library and/or re-plan them
   under a template, and list only the people whose screening or program would change,
   with the before and after of each changed field.  The rule-set version, the template
@@ -29,14 +30,12 @@ from typing import Any, Callable, Iterable
 import numpy as np
 import pandas as pd
 
-from ..screening.batch_io import (RECORD_COLUMNS, _FLOAT_COLUMNS, _TEXT_COLUMNS, _atomic_write, _fmt, format_fractures,
-                                 spreadsheet_text)
+from ..screening.batch_io import _atomic_write, _fmt, dict_to_row, dicts_to_frame, spreadsheet_text, write_dicts_csv
 from ..cautions import with_standard
-from ..records import T_SCORE_SITES
 
 #: Screening fields a what-if compares (list fields as sorted lists); ``flags`` are rule ids.
 SCREENING_FIELDS = ("bone_density_category", "falls_risk", "max_impact_level", "avoid", "refer",
-                    "balance_first", "supervision", "flags")
+                    "balance_first", "supervision", "flags", "max_pct_1rm", "carer_led", "hold_volume")
 #: Program fields a what-if compares (see :func:`prescribe.planning.templates.plan_figures`).
 PROGRAM_FIELDS = ("top_impact_level", "weeks_to_full_volume", "peak_impacts", "peak_intensity_pct_1rm",
                   "total_osteogenic_index", "spine_sparing", "refusals")
@@ -49,71 +48,21 @@ Progress = Callable[[int, int], None]
 # =========================================================================================
 
 def record_row(d: dict) -> dict[str, str]:
-    """One batch-CSV row for a stored record dict (the same cells as :func:`batch_io.record_to_row`)."""
-    row = {c: "" for c in RECORD_COLUMNS}
-    for c in ("patient_id", "age_years", "sex", "body_mass_kg", "height_cm", "falls_past_year",
-              "timed_up_and_go_s", "chair_stand_30s", "tandem_stance_s", "pain_score"):
-        row[c] = _fmt(d.get(c))
-    t = d.get("t_scores") or {}
-    for site in T_SCORE_SITES:
-        row[f"t_score_{site}"] = _fmt(t.get(site))
-    row["fractures"] = format_fractures(d.get("fractures") or [])
-    g = d.get("glucocorticoids")
-    if g is not None:
-        row["glucocorticoids_mg_per_day"] = _fmt(g["mg_per_day"])
-        row["glucocorticoids_months"] = _fmt(g["months"])
-    row["conditions"] = ";".join(d.get("conditions") or [])
-    return row
+    """One batch-CSV row for a stored record dict (the cells of :func:`batch_io.record_to_row`)."""
+    return dict_to_row(d)
 
 
-def write_caseload_csv(dicts: Iterable[dict], path: str | Path) -> int:
-    """Write stored records as a batch CSV (whole file or nothing); returns the number of rows."""
-    buf = io.StringIO()
-    writer = csv.DictWriter(buf, fieldnames=list(RECORD_COLUMNS), lineterminator="\n")
-    writer.writeheader()
-    n = 0
-    for d in dicts:
-        row = record_row(d)
-        for col in _TEXT_COLUMNS:  # never a cell a spreadsheet would run as a formula
-            row[col] = spreadsheet_text(row[col])
-        writer.writerow(row)
-        n += 1
-    _atomic_write(path, buf.getvalue())
-    return n
+def write_caseload_csv(dicts: Iterable[dict], path: str | Path, *, with_display_name: bool = False) -> int:
+    """Write stored records as a batch CSV (whole file or nothing); returns the number of rows.
+
+    The name each person's handout uses (``display_name``) is left out unless ``with_display_name``.
+    """
+    return write_dicts_csv(dicts, path, with_display_name=with_display_name)
 
 
 def frame_from_dicts(dicts: list[dict]) -> pd.DataFrame:
     """The batch frame (:func:`batch_io.records_to_frame`'s columns and types) from stored record dicts."""
-    nan = float("nan")
-
-    def num(v):
-        return nan if v is None else float(v)
-
-    cols: dict[str, list] = {c: [] for c in RECORD_COLUMNS}
-    for d in dicts:
-        cols["patient_id"].append(d["patient_id"])
-        cols["age_years"].append(d["age_years"])
-        cols["sex"].append(d["sex"])
-        cols["body_mass_kg"].append(float(d["body_mass_kg"]))
-        cols["height_cm"].append(float(d["height_cm"]))
-        t = d.get("t_scores") or {}
-        for site in T_SCORE_SITES:
-            cols[f"t_score_{site}"].append(num(t.get(site)))
-        fr = d.get("fractures") or []
-        cols["fractures"].append(format_fractures(fr) if fr else "")
-        cols["falls_past_year"].append(d.get("falls_past_year") or 0)
-        for c in ("timed_up_and_go_s", "chair_stand_30s", "tandem_stance_s"):
-            cols[c].append(num(d.get(c)))
-        g = d.get("glucocorticoids")
-        cols["glucocorticoids_mg_per_day"].append(nan if g is None else float(g["mg_per_day"]))
-        cols["glucocorticoids_months"].append(nan if g is None else float(g["months"]))
-        cols["conditions"].append(";".join(d.get("conditions") or []))
-        cols["pain_score"].append(d.get("pain_score") or 0)
-    return pd.DataFrame({
-        c: pd.Series(v, dtype=("int64" if c in ("age_years", "falls_past_year", "pain_score") else
-                               "float64" if c in _FLOAT_COLUMNS or c == "chair_stand_30s" else object))
-        for c, v in cols.items()
-    })
+    return dicts_to_frame(dicts)
 
 
 # =========================================================================================
@@ -157,6 +106,8 @@ def _screen_lists(frame: pd.DataFrame) -> dict[str, np.ndarray]:
     out = {}
     for f in SCREENING_FIELDS:
         col = frame[f].to_numpy()
+        if f == "max_pct_1rm":                # NaN: no cap (None, as the per-record result says)
+            col = np.array([None if np.isnan(v) else int(v) for v in col.tolist()], dtype=object)
         if f in ("avoid", "flags"):
             col = np.array([";".join(sorted(x for x in str(v).split(";") if x)) if isinstance(v, str) else ""
                             for v in col], dtype=object)
@@ -197,11 +148,18 @@ def plan_key(record, screening) -> tuple:
     change no figure), and from the record whether there is a vertebral fracture, whether
     there are two or more low-trauma fractures, and marked thoracic kyphosis
     (``prescribe/planning/``); the safety check reads the same screening marks
-    (``prescribe/planning/safety/``).  A test checks that cached and uncached what-ifs agree.
+    (``prescribe/planning/safety/``); version 2 adds the heaviest load, carer-led sessions and
+    the held volume from the screening, and from the record the frailty the planner reads (the
+    chair stand) and the tandem stance held.  A test checks that cached and uncached what-ifs agree.
     """
+    from ..planning.selection import _frail
+
     s = screening
     return (s.bone_density_category, s.max_impact_level, tuple(sorted(s.avoid)), bool(s.falls_risk),
             bool(s.balance_first), bool(s.refer), bool(s.supervision),
+            # The version-2 limits the planner reads (heaviest load, carer-led, volume held), whether
+            # it takes the person for frail, and the tandem stance held (balance starts within it).
+            s.max_pct_1rm, bool(s.carer_led), bool(s.hold_volume), _frail(record, s), record.tandem_stance_s,
             any(f.site == "vertebra" for f in record.fractures),
             sum(1 for f in record.fractures if f.low_trauma) >= 2,
             "thoracic_kyphosis" in record.conditions)

@@ -3,11 +3,19 @@
 One row per person; the columns are the record's fields flattened (see
 :data:`RECORD_COLUMNS` and ``docs/rules.md``).  An empty cell means "absent".
 
-- ``t_scores`` becomes ``t_score_lumbar_spine``, ``t_score_femoral_neck``, ``t_score_total_hip``;
+- ``t_scores`` becomes ``t_score_lumbar_spine``, ``t_score_femoral_neck``, ``t_score_total_hip``,
+  and ``z_scores`` likewise ``z_score_...``;
 - ``glucocorticoids`` becomes ``glucocorticoids_mg_per_day`` and ``glucocorticoids_months``;
 - ``fractures`` is one compact cell: ``site:months_ago:low_trauma`` items joined by ``;``,
-  with low_trauma ``y`` or ``n``, e.g. ``vertebra:14:y;wrist:60:n`` (empty = none);
-- ``conditions`` is condition codes joined by ``;``.
+  with low_trauma ``y`` or ``n``, and for a vertebra an optional fourth part, its level,
+  e.g. ``vertebra:14:y:T12;wrist:60:n`` (empty = none);
+- ``conditions`` is condition codes joined by ``;``;
+- ``medications`` is ``class:months_on:months_since_last_dose`` items joined by ``;`` (an empty
+  part where not known), ``surgeries`` is ``procedure:side:months_ago:y|n`` items (y: the
+  surgeon has cleared impact);
+- ``cancer`` becomes ``cancer_active`` (true/false) and ``cancer_bone_metastases`` (both empty:
+  no cancer record); ``lives_alone`` and ``has_carer`` are true/false;
+- ``display_name`` is read, but written only when asked (:data:`PRIVATE_COLUMNS`).
 
 Files are read a chunk of rows at a time (:func:`iter_batch_csv`) and validated a column at a
 time with the patient record's own rules (:mod:`prescribe.screening.batch_columns`); a bad row raises
@@ -34,15 +42,18 @@ from typing import Any, BinaryIO, Callable, Iterable, Iterator
 import numpy as np
 import pandas as pd
 
-from .batch_columns import (FLOAT_COLUMNS as _FLOAT_COLUMNS, FRACTURES_ALLOWED, INT_COLUMNS as _INT_COLUMNS,
-                            RECORD_COLUMNS, REQUIRED_COLUMNS, TEXT_COLUMNS as _TEXT_COLUMNS, FractureColumns,
-                            format_cell as _fmt, format_fractures, fracture_columns, parse_fractures,
-                            validate_columns)
+from .batch_columns import (BOOL_COLUMNS, FLOAT_COLUMNS as _FLOAT_COLUMNS, FRACTURES_ALLOWED,
+                            INT_COLUMNS as _INT_COLUMNS, LIST_ALLOWED, LIST_COLUMNS, PRIVATE_COLUMNS,
+                            RECORD_COLUMNS, RECORD_V1_COLUMNS, REQUIRED_COLUMNS, TEXT_COLUMNS as _TEXT_COLUMNS,
+                            FractureColumns, bool_allowed, column_of, format_cell as _fmt, format_fractures,
+                            format_medications, format_surgeries, fracture_columns, frame_dtype, item_problem,
+                            parse_bool_cell, parse_fractures, parse_items, validate_columns)
 from ..errors import FieldProblem, InputError
 from ..fileio import CSV_MAX_BYTES, INPUT_ENCODING, check_file_size, open_atomically, write_atomically
 from ..records import CONDITIONS, T_SCORE_SITES, PatientRecord, parse_record
 
-__all__ = ["RECORD_COLUMNS", "REQUIRED_COLUMNS", "FRACTURES_ALLOWED", "CHUNK_ROWS", "Caseload",
+__all__ = ["RECORD_COLUMNS", "RECORD_V1_COLUMNS", "PRIVATE_COLUMNS", "REQUIRED_COLUMNS", "FRACTURES_ALLOWED",
+           "CHUNK_ROWS", "Caseload", "dict_to_row", "dicts_to_frame", "written_columns", "write_dicts_csv",
            "parse_fractures", "format_fractures", "fracture_columns", "spreadsheet_text",
            "from_spreadsheet_text", "record_to_row", "row_to_dict", "rows_to_records", "records_to_frame",
            "frame_to_rows", "frame_to_records", "read_batch_csv", "iter_batch_csv", "frame_to_csv_text",
@@ -95,21 +106,43 @@ def from_spreadsheet_text(cell: str) -> str:
 # Record <-> row
 # ---------------------------------------------------------------------------
 
-def record_to_row(record: PatientRecord) -> dict[str, str]:
-    """One CSV row (column -> cell text) for a record."""
-    d = record.model_dump()
+def dict_to_row(d: dict) -> dict[str, str]:
+    """One CSV row (column -> cell text) for a record dict (``PatientRecord.model_dump()`` shape, or
+    a stored record's JSON): every column, ``display_name`` included (see :func:`written_columns`)."""
     row = {c: "" for c in RECORD_COLUMNS}
     for c in ("patient_id", "age_years", "sex", "body_mass_kg", "height_cm", "falls_past_year",
-              "timed_up_and_go_s", "chair_stand_30s", "tandem_stance_s", "pain_score"):
-        row[c] = _fmt(d[c])
+              "timed_up_and_go_s", "chair_stand_30s", "tandem_stance_s", "pain_score", "record_version",
+              "menopause", "cognition", "lives_alone", "has_carer", "display_name"):
+        row[c] = _fmt(d.get(c))
+    t, z = d.get("t_scores") or {}, d.get("z_scores") or {}
     for site in T_SCORE_SITES:
-        row[f"t_score_{site}"] = _fmt(d["t_scores"][site])
-    row["fractures"] = format_fractures(d["fractures"])
-    if d["glucocorticoids"] is not None:
-        row["glucocorticoids_mg_per_day"] = _fmt(d["glucocorticoids"]["mg_per_day"])
-        row["glucocorticoids_months"] = _fmt(d["glucocorticoids"]["months"])
-    row["conditions"] = ";".join(d["conditions"])
+        row[f"t_score_{site}"] = _fmt(t.get(site))
+        row[f"z_score_{site}"] = _fmt(z.get(site))
+    row["fractures"] = format_fractures(d.get("fractures") or [])
+    g = d.get("glucocorticoids")
+    if g is not None:
+        row["glucocorticoids_mg_per_day"] = _fmt(g["mg_per_day"])
+        row["glucocorticoids_months"] = _fmt(g["months"])
+    row["conditions"] = ";".join(d.get("conditions") or [])
+    row["medications"] = format_medications(d.get("medications") or [])
+    row["surgeries"] = format_surgeries(d.get("surgeries") or [])
+    cancer = d.get("cancer")
+    if cancer is not None:
+        row["cancer_active"] = _fmt(cancer["active"])
+        row["cancer_bone_metastases"] = _fmt(cancer.get("bone_metastases"))
     return row
+
+
+def record_to_row(record: PatientRecord) -> dict[str, str]:
+    """One CSV row (column -> cell text) for a record, as its JSON writes it (``record_version`` 2
+    where version-2 fields are used)."""
+    return dict_to_row(record.model_dump())
+
+
+def written_columns(with_display_name: bool = False) -> list[str]:
+    """The columns a caseload file is written with: every column, the name the person's handout
+    uses (:data:`PRIVATE_COLUMNS`) only when asked."""
+    return [c for c in RECORD_COLUMNS if with_display_name or c not in PRIVATE_COLUMNS]
 
 
 def _row_label(number: int, row: dict[str, str]) -> str:
@@ -117,24 +150,11 @@ def _row_label(number: int, row: dict[str, str]) -> str:
     return f"row {number} (patient_id {pid})" if pid else f"row {number}"
 
 
-def _column_of(field: str) -> str:
-    """The batch column that holds the record field named in a FieldProblem."""
-    head = field.split("[")[0]
-    if head.startswith("t_scores."):
-        return "t_score_" + head.split(".", 1)[1]
-    if head.startswith("glucocorticoids."):
-        return "glucocorticoids_" + head.split(".", 1)[1]
-    if head.startswith("fractures"):
-        return "fractures"
-    if head == "glucocorticoids":
-        return "glucocorticoids_mg_per_day"
-    return head
-
-
 def row_to_dict(row: dict[str, str]) -> tuple[dict, list[FieldProblem]]:
     """Turn one row's cells into a record dict; problems with cells that cannot be converted.
 
-    The problems' fields are bare column names (the caller adds the row).
+    The problems' fields are bare column names (the caller adds the row).  A cell that cannot
+    be read is left out of the record (so is a cancer record whose true/false cell cannot be read).
     """
     data: dict[str, Any] = {}
     problems: list[FieldProblem] = []
@@ -167,9 +187,10 @@ def row_to_dict(row: dict[str, str]) -> tuple[dict, list[FieldProblem]]:
     for col in ("body_mass_kg", "height_cm", "timed_up_and_go_s", "tandem_stance_s"):
         if col in floats:
             data[col] = floats[col]
-    scores = {site: floats[f"t_score_{site}"] for site in T_SCORE_SITES if f"t_score_{site}" in floats}
-    if scores:
-        data["t_scores"] = scores
+    for kind in ("t_score", "z_score"):
+        scores = {site: floats[f"{kind}_{site}"] for site in T_SCORE_SITES if f"{kind}_{site}" in floats}
+        if scores:
+            data[f"{kind}s"] = scores
     mg, months = floats.get("glucocorticoids_mg_per_day"), floats.get("glucocorticoids_months")
     mg_text, months_text = cell("glucocorticoids_mg_per_day"), cell("glucocorticoids_months")
     if mg is not None and months is not None:
@@ -182,12 +203,40 @@ def row_to_dict(row: dict[str, str]) -> tuple[dict, list[FieldProblem]]:
                                      "glucocorticoids_months is given", kind="invalid"))
     fx_text = cell("fractures")
     try:
-        data["fractures"] = [{"site": s, "months_ago": m, "low_trauma": lt} for s, m, lt in parse_fractures(fx_text)]
+        data["fractures"] = [LIST_COLUMNS["fractures"][1](f) for f in parse_fractures(fx_text)]
     except ValueError as exc:
         problems.append(FieldProblem("fractures", fx_text, f"{FRACTURES_ALLOWED} ({exc})"))
+    flags: dict[str, bool | None] = {}
+    for col in BOOL_COLUMNS:
+        try:
+            flags[col] = parse_bool_cell(cell(col))
+        except ValueError:
+            problems.append(FieldProblem(col, cell(col), bool_allowed(col)))
+    for col in ("medications", "surgeries"):
+        parse_item, to_dict, _ = LIST_COLUMNS[col]
+        try:
+            items = [to_dict(i) for i in parse_items(cell(col), parse_item)]
+        except ValueError as exc:
+            problems.append(FieldProblem(col, cell(col), f"{LIST_ALLOWED[col]} ({exc})"))
+            continue
+        if items:
+            data[col] = items
     cond_text = cell("conditions")
     if cond_text:
         data["conditions"] = [c.strip() for c in cond_text.split(";") if c.strip()]
+    for col in ("menopause", "cognition", "display_name"):
+        if cell(col):
+            data[col] = cell(col)
+    for col in ("lives_alone", "has_carer"):
+        if flags.get(col) is not None:
+            data[col] = flags[col]
+    metastases = cell("cancer_bone_metastases")
+    if "cancer_active" in flags and (flags["cancer_active"] is not None or metastases):
+        data["cancer"] = {}
+        if flags["cancer_active"] is not None:
+            data["cancer"]["active"] = flags["cancer_active"]
+        if metastases:
+            data["cancer"]["bone_metastases"] = metastases
     return data, problems
 
 
@@ -212,13 +261,18 @@ def rows_to_records(rows: Iterable[dict[str, str]], start: int = 1) -> list[Pati
             record = parse_record(data)
         except InputError as err:
             for p in err.problems:
-                column = _column_of(p.field)
+                column = column_of(p.field)
                 if column in bad_columns:
                     continue
-                value = row.get(column, p.value) if column in ("fractures", "conditions") else p.value
-                allowed = ("condition codes joined by ';' from: " + ", ".join(CONDITIONS)
-                           if column == "conditions" else p.allowed)
-                problems.append(FieldProblem(f"{label}: {column}", value, allowed, p.kind))
+                item = item_problem(p, str(row.get(column) or ""))
+                if item is not None:                  # one item of a compact cell: that item, the part's words
+                    value, allowed, kind = item.value, item.allowed, item.kind
+                else:
+                    value = row.get(column, p.value) if column in ("fractures", "conditions") else p.value
+                    allowed = ("condition codes joined by ';' from: " + ", ".join(CONDITIONS)
+                               if column == "conditions" else p.allowed)
+                    kind = p.kind
+                problems.append(FieldProblem(f"{label}: {column}", value, allowed, kind))
             continue
         if cell_problems:
             continue
@@ -241,35 +295,51 @@ def records_to_frame(records: Iterable[PatientRecord]) -> pd.DataFrame:
     """A DataFrame of flattened records (the batch columns, typed).
 
     Numbers are float64 with NaN for absent, except ``age_years``, ``falls_past_year`` and
-    ``pain_score`` (int64); ``fractures`` and ``conditions`` hold the compact cell text.
+    ``pain_score`` (int64); the true/false columns hold True, False or None; the compact and
+    text cells hold their text ('' for absent).  Each record as its JSON writes it
+    (``record_version`` 2 where version-2 fields are used).
     """
-    cols: dict[str, list] = {c: [] for c in RECORD_COLUMNS}
+    return dicts_to_frame(r.model_dump() for r in records)
+
+
+def dicts_to_frame(dicts: Iterable[dict]) -> pd.DataFrame:
+    """:func:`records_to_frame` from record dicts (``model_dump()`` shape, or a stored record's JSON)."""
     nan = float("nan")
-    for r in records:
-        cols["patient_id"].append(r.patient_id)
-        cols["age_years"].append(r.age_years)
-        cols["sex"].append(r.sex)
-        cols["body_mass_kg"].append(float(r.body_mass_kg))
-        cols["height_cm"].append(float(r.height_cm))
+
+    def num(v):
+        return nan if v is None else float(v)
+
+    cols: dict[str, list] = {c: [] for c in RECORD_COLUMNS}
+    for d in dicts:
+        cols["patient_id"].append(d["patient_id"])
+        cols["age_years"].append(d["age_years"])
+        cols["sex"].append(d["sex"])
+        cols["body_mass_kg"].append(float(d["body_mass_kg"]))
+        cols["height_cm"].append(float(d["height_cm"]))
+        t, z = d.get("t_scores") or {}, d.get("z_scores") or {}
         for site in T_SCORE_SITES:
-            v = getattr(r.t_scores, site)
-            cols[f"t_score_{site}"].append(nan if v is None else float(v))
-        cols["fractures"].append(format_fractures(r.fractures))
-        cols["falls_past_year"].append(r.falls_past_year)
-        for c in ("timed_up_and_go_s", "chair_stand_30s", "tandem_stance_s"):
-            v = getattr(r, c)
-            cols[c].append(nan if v is None else float(v))
-        g = r.glucocorticoids
-        cols["glucocorticoids_mg_per_day"].append(nan if g is None else float(g.mg_per_day))
-        cols["glucocorticoids_months"].append(nan if g is None else float(g.months))
-        cols["conditions"].append(";".join(r.conditions))
-        cols["pain_score"].append(r.pain_score)
-    frame = pd.DataFrame({
-        c: pd.Series(v, dtype=("int64" if c in ("age_years", "falls_past_year", "pain_score") else
-                               "float64" if c in _FLOAT_COLUMNS or c == "chair_stand_30s" else object))
-        for c, v in cols.items()
-    })
-    return frame
+            cols[f"t_score_{site}"].append(num(t.get(site)))
+            cols[f"z_score_{site}"].append(num(z.get(site)))
+        cols["fractures"].append(format_fractures(d.get("fractures") or []))
+        cols["falls_past_year"].append(d.get("falls_past_year") or 0)
+        for c in ("timed_up_and_go_s", "chair_stand_30s", "tandem_stance_s", "record_version"):
+            cols[c].append(num(d.get(c)))
+        g = d.get("glucocorticoids")
+        cols["glucocorticoids_mg_per_day"].append(nan if g is None else float(g["mg_per_day"]))
+        cols["glucocorticoids_months"].append(nan if g is None else float(g["months"]))
+        cols["conditions"].append(";".join(d.get("conditions") or []))
+        cols["pain_score"].append(d.get("pain_score") or 0)
+        for c in ("menopause", "cognition", "display_name"):
+            cols[c].append(d.get(c) or "")
+        cols["medications"].append(format_medications(d.get("medications") or []))
+        cols["surgeries"].append(format_surgeries(d.get("surgeries") or []))
+        cancer = d.get("cancer")
+        cols["cancer_active"].append(None if cancer is None else bool(cancer["active"]))
+        cols["cancer_bone_metastases"].append("" if cancer is None else cancer["bone_metastases"])
+        for c in ("lives_alone", "has_carer"):
+            v = d.get(c)
+            cols[c].append(None if v is None else bool(v))
+    return pd.DataFrame({c: pd.Series(v, dtype=frame_dtype(c)) for c, v in cols.items()})
 
 
 def frame_to_rows(df: pd.DataFrame) -> Iterator[dict[str, str]]:
@@ -599,17 +669,30 @@ class ResultsWriter:
         return bool(self._context.__exit__(*exc))
 
 
-def write_batch_csv(records: Iterable[PatientRecord], path: str | Path) -> None:
-    """Write records as a caseload CSV (the format :func:`read_batch_csv` reads)."""
+def write_batch_csv(records: Iterable[PatientRecord], path: str | Path, *, with_display_name: bool = False) -> int:
+    """Write records as a caseload CSV (the format :func:`read_batch_csv` reads); returns the rows written.
+
+    The name the person's handout uses (``display_name``) is written only ``with_display_name``.
+    """
+    return write_dicts_csv((r.model_dump() for r in records), path, with_display_name=with_display_name)
+
+
+def write_dicts_csv(dicts: Iterable[dict], path: str | Path, *, with_display_name: bool = False) -> int:
+    """:func:`write_batch_csv` from record dicts (``model_dump()`` shape, or stored records' JSON):
+    the whole file or nothing; text cells guarded against spreadsheet formulas."""
+    columns = written_columns(with_display_name)
     buf = io.StringIO()
-    writer = csv.DictWriter(buf, fieldnames=list(RECORD_COLUMNS), lineterminator="\n")
+    writer = csv.DictWriter(buf, fieldnames=columns, lineterminator="\n", extrasaction="ignore")
     writer.writeheader()
-    for r in records:
-        row = record_to_row(r)
-        for col in _TEXT_COLUMNS:
+    n = 0
+    for d in dicts:
+        row = dict_to_row(d)
+        for col in _TEXT_COLUMNS:           # never a cell a spreadsheet would run as a formula
             row[col] = spreadsheet_text(row[col])
         writer.writerow(row)
+        n += 1
     _atomic_write(path, buf.getvalue())
+    return n
 
 
 def write_results_csv(df: pd.DataFrame, path: str | Path) -> None:

@@ -15,7 +15,8 @@ import pandas as pd
 
 from ..errors import FieldProblem, InputError
 from ..records import CONDITIONS, MEDICATION_CLASSES, SURGERY_PROCEDURES, T_SCORE_SITES
-from .batch_columns import FRACTURES_ALLOWED, RECORD_COLUMNS, REQUIRED_COLUMNS, FractureColumns, fracture_columns
+from .batch_columns import (FRACTURES_ALLOWED, LIST_ALLOWED, LIST_COLUMNS, RECORD_COLUMNS, REQUIRED_COLUMNS,
+                            FractureColumns, fracture_columns, parse_items)
 from .norms import chair_stand_norm_low, chair_stand_norms
 
 
@@ -244,32 +245,120 @@ def _frame_features(df: pd.DataFrame, fractures: FractureColumns | None = None
     }
     feats.update(_fracture_features(df, n, fractures))
     feats.update(_condition_features(_text_column(df, "conditions", n, raw=True)))
-    feats.update(_v2_frame_defaults(df, n, age, sex))
-    zscores = [np.full(n, np.nan) for _ in T_SCORE_SITES]
+    zscores = [_column(df, f"z_score_{s}", n) for s in T_SCORE_SITES]
+    feats.update(_v2_frame_features(df, n, age, sex, zscores))
     return feats, tscores, zscores
 
 
-def _v2_frame_defaults(df: pd.DataFrame, n: int, age: np.ndarray, sex: np.ndarray) -> dict[str, np.ndarray]:
-    """The version-2 features of a frame without the version-2 columns: 'not recorded' everywhere."""
-    # TODO(batch v2): read the version-2 columns (helper branch batch-v2).
-    menopause = np.full(n, "unknown", dtype=object)
+def _bool_column(df: pd.DataFrame, name: str, n: int) -> np.ndarray:
+    """A true/false column as bool (True only for a true cell; absent, None and NaN are false)."""
+    if name not in df.columns:
+        return np.zeros(n, dtype=bool)
+    col = df[name]
+    if pd.api.types.is_bool_dtype(col.dtype) and not isinstance(col.dtype, pd.api.extensions.ExtensionDtype):
+        return col.to_numpy(dtype=bool)
+    codes, uniques = pd.factorize(col.to_numpy(dtype=object))      # absent cells: code -1
+    truth = np.array([u is True or isinstance(u, np.bool_) and bool(u) or
+                      isinstance(u, str) and u.strip().lower() == "true" for u in uniques.tolist()] + [False],
+                     dtype=bool)
+    return truth[codes]
+
+
+def _list_cells(df: pd.DataFrame, column: str, n: int, vocabulary, code_key: str):
+    """Each distinct compact cell of a list column parsed once: ``(codes, items of each distinct cell)``.
+
+    Raises
+    ------
+    InputError
+        For a cell that cannot be read or an item outside the vocabulary (the frame was not validated).
+    """
+    codes, uniques = pd.factorize(_text_column(df, column, n, raw=True))
+    parse_item, to_dict, _ = LIST_COLUMNS[column]
+    parsed = []
+    for text in uniques.tolist():
+        try:
+            items = [to_dict(i) for i in parse_items(text, parse_item)]
+        except ValueError as exc:
+            raise InputError.single(column, text, f"{LIST_ALLOWED[column]} ({exc})") from None
+        for item in items:
+            if item.get(code_key) not in vocabulary:
+                raise InputError.single(column, text, f"{LIST_ALLOWED[column]} ({code_key} one of "
+                                        + ", ".join(vocabulary) + ")")
+        parsed.append(items)
+    return codes, parsed
+
+
+def _medication_features(df: pd.DataFrame, n: int) -> dict[str, np.ndarray]:
+    """Per medicine class: listed, and the fewest months since a known last dose (NaN: none known)."""
+    codes, cells = _list_cells(df, "medications", n, MEDICATION_CLASSES, "class")
+    listed = np.zeros((len(MEDICATION_CLASSES), len(cells) + 1), dtype=bool)    # [:, -1]: absent cell
+    since = np.full((len(MEDICATION_CLASSES), len(cells) + 1), np.nan)
+    index = {code: i for i, code in enumerate(MEDICATION_CLASSES)}
+    for j, items in enumerate(cells):
+        for m in items:
+            i = index[m["class"]]
+            listed[i, j] = True
+            last = m.get("months_since_last_dose")
+            if last is not None and not last >= since[i, j]:       # NaN (none yet) compares false
+                since[i, j] = last
+    out: dict[str, np.ndarray] = {}
+    for code, i in index.items():
+        out[f"medication:{code}"] = listed[i][codes]
+        out[f"months_since_last_dose:{code}"] = since[i][codes]
+    return out
+
+
+def _surgery_features(df: pd.DataFrame, n: int) -> dict[str, np.ndarray]:
+    """Per operation: done, the fewest months since, and whether one of them is not cleared for impact."""
+    codes, cells = _list_cells(df, "surgeries", n, SURGERY_PROCEDURES, "procedure")
+    done = np.zeros((len(SURGERY_PROCEDURES), len(cells) + 1), dtype=bool)
+    months = np.full((len(SURGERY_PROCEDURES), len(cells) + 1), np.nan)
+    uncleared = np.zeros((len(SURGERY_PROCEDURES), len(cells) + 1), dtype=bool)
+    index = {code: i for i, code in enumerate(SURGERY_PROCEDURES)}
+    for j, items in enumerate(cells):
+        for s in items:
+            i = index[s["procedure"]]
+            done[i, j] = True
+            if not s["months_ago"] >= months[i, j]:
+                months[i, j] = s["months_ago"]
+            uncleared[i, j] |= not s.get("surgeon_cleared_impact")
+    out: dict[str, np.ndarray] = {}
+    for code, i in index.items():
+        out[f"surgery:{code}"] = done[i][codes]
+        out[f"months_since_surgery:{code}"] = months[i][codes]
+        out[f"surgery_impact_uncleared:{code}"] = uncleared[i][codes]
+    return out
+
+
+def _word_column(df: pd.DataFrame, name: str, n: int, absent: str) -> np.ndarray:
+    """A text column with ``absent`` where a cell is empty or missing."""
+    cells = _text_column(df, name, n)
+    out = cells.copy()
+    out[cells == ""] = absent
+    return out
+
+
+def _v2_frame_features(df: pd.DataFrame, n: int, age: np.ndarray, sex: np.ndarray,
+                       zscores: list[np.ndarray]) -> dict[str, np.ndarray]:
+    """The version-2 features of a frame, as :func:`v2_record_features` works them out for each row
+    (a missing column: 'not recorded' everywhere)."""
+    menopause = _word_column(df, "menopause", n, "unknown")
     reference = np.where((age < Z_SCORE_AGE_BELOW) | ((sex == "female") & (menopause == "premenopausal")),
                          "z_score", "t_score").astype(object)
+    lowest_z = zscores[0]
+    for site_scores in zscores[1:]:
+        lowest_z = np.fmin(lowest_z, site_scores)
+    active = _bool_column(df, "cancer_active", n)
     feats: dict[str, np.ndarray] = {
         "density_reference": reference,
-        "lowest_z_score": np.full(n, np.nan), "z_score_measured": np.zeros(n, dtype=bool),
-        "menopause": menopause, "cancer_active": np.zeros(n, dtype=bool),
-        "bone_metastases": np.full(n, "unknown", dtype=object),
-        "cognition": np.full(n, "unknown", dtype=object),
-        "lives_alone": np.zeros(n, dtype=bool), "has_carer": np.zeros(n, dtype=bool),
+        "lowest_z_score": lowest_z, "z_score_measured": ~np.isnan(lowest_z),
+        "menopause": menopause, "cancer_active": active,
+        "bone_metastases": _word_column(df, "cancer_bone_metastases", n, "unknown"),
+        "cognition": _word_column(df, "cognition", n, "unknown"),
+        "lives_alone": _bool_column(df, "lives_alone", n), "has_carer": _bool_column(df, "has_carer", n),
     }
-    for code in MEDICATION_CLASSES:
-        feats[f"medication:{code}"] = np.zeros(n, dtype=bool)
-        feats[f"months_since_last_dose:{code}"] = np.full(n, np.nan)
-    for code in SURGERY_PROCEDURES:
-        feats[f"surgery:{code}"] = np.zeros(n, dtype=bool)
-        feats[f"months_since_surgery:{code}"] = np.full(n, np.nan)
-        feats[f"surgery_impact_uncleared:{code}"] = np.zeros(n, dtype=bool)
+    feats.update(_medication_features(df, n))
+    feats.update(_surgery_features(df, n))
     return feats
 
 
