@@ -30,6 +30,7 @@ def test_a_bundle_fills_the_form_marks_the_boxes_and_waits_for_the_clinician(tmp
     marked = app.fhir.marked_keys()
     assert {"patient_id", "age_years", "sex", "body_mass_kg", "height_cm", "t_scores.lumbar_spine"} <= set(marked)
     assert "timed_up_and_go_s" not in marked          # not in the Bundle: not marked
+    assert "t_scores.femoral_neck" not in marked      # another site of a score the Bundle gave
     status = html.unescape(app.fhir.import_status.value)
     assert "Observation/t" in status and "Check and screen" in status
     assert app.session.screening is None               # nothing screened until the clinician confirms

@@ -73,7 +73,9 @@ class ClinicApp(PersonSection, ProgramSection, HandoutSection, StoreSection):
         self._build_store_section()
         # The record system (FHIR R4): bring a person in (section 1), send the saved program (section 5).
         self.fhir = FhirPanel(self)
-        self.person_section.children += (self.fhir.import_widget,)
+        kids = list(self.person_section.children)
+        at = next((i + 1 for i, k in enumerate(kids) if self.load_select in getattr(k, "children", ())), len(kids))
+        self.person_section.children = tuple(kids[:at] + [self.fhir.import_widget] + kids[at:])
         self.store_section.children += (self.fhir.export_widget,)
         self.new_button.on_click(lambda _b: self.fhir.clear_marks())
         self.live = SessionsView(self)  # 6, the live-session panel (docs/sessions.md)

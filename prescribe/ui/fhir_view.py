@@ -74,7 +74,7 @@ class FhirPanel:
         result = read_bundle(parse_json_text(text, name), source=name)
         self.app.on_new()
         self.app.intake.fill(result.record.model_dump(mode="json"))
-        self._mark(result.filled_fields())
+        self._mark(sorted({p["field"].split("[")[0] for p in result.provenance}))
         self.last_import = result
         rows = "".join(f"<li>{esc(p['field'])}: {esc(p['resource'])}</li>" for p in result.provenance)
         unused = "".join(f"<li>{esc(n['resource'])}: {esc(n['why'])}</li>" for n in result.not_used)
@@ -94,7 +94,7 @@ class FhirPanel:
         self.clear_marks()
         inputs = self.app.intake.inputs
         for key, widget in inputs.items():
-            if key.split(".")[0] in fields:
+            if key in fields or key.split(".")[0] in fields:  # a score's own site, a whole object
                 widget.add_class(FILLED_CLASS)
                 self.marked.append(widget)
         for row in getattr(self.app.intake, "fracture_rows", []):
