@@ -309,6 +309,9 @@ def v2_records(draw):
         fx["months_ago"] = round(fx["months_ago"], 1)
         if fx["site"] == "vertebra" and draw(st.booleans()):
             fx["level"] = draw(st.sampled_from(["C7", "T4", "T12", "L1", "L5"]))
+    if not data.get("glucocorticoids") and draw(st.booleans()):   # drawn often: a field of its own resource
+        data["glucocorticoids"] = {"mg_per_day": draw(st.floats(0, 60).map(lambda v: round(v, 1))),
+                                   "months": draw(_months)}
     if data.get("glucocorticoids"):
         data["glucocorticoids"]["months"] = round(data["glucocorticoids"]["months"], 1)
     if draw(st.booleans()):
@@ -371,7 +374,9 @@ def test_export_then_import_gives_back_the_same_record_fields(record):
 
 
 def test_the_round_trip_reached_every_kind_of_field():
-    """Runs after the property (file order): the drawn records reached each case often enough."""
+    """The drawn records reached each case often enough (the property runs here when run alone)."""
+    if COUNTS["records"] == 0:
+        test_export_then_import_gives_back_the_same_record_fields()
     n = COUNTS["records"]
     assert n >= 100
     for key in ("v2", "fractures", "medications", "surgeries", "cancer", "glucocorticoids"):
