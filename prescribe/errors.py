@@ -26,10 +26,12 @@ class FieldProblem:
     field: str
     value: Any
     allowed: str
-    kind: str = "invalid"  # invalid | missing | unknown_field
+    kind: str = "invalid"  # invalid | missing | unknown_field | absent
 
     @property
     def message(self) -> str:
+        if self.kind == "absent":  # missing from a source document (a FHIR Bundle), named in its terms
+            return f"{self.field} is missing: {self.allowed}."
         if self.kind == "missing":
             return f"{self.field} is required: {self.allowed}."
         if self.kind == "unknown_field":

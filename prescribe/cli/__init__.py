@@ -33,6 +33,7 @@ COMMAND_MODULES = (
     "caseload_cmd",   # prescribe caseload export|whatif
     "explain_cmd",    # prescribe explain
     "sensor_cmd",     # prescribe sensor
+    "fhir_cmd",       # prescribe fhir import|export
 )
 
 

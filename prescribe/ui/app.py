@@ -27,6 +27,7 @@ from .clinic_view import ClinicSettingsForm
 from .common import (STYLE, ErrorArea, SharedName, cautions_box, cautions_html, guarded, section_box,
                      share_plain_models)
 from .explain_view import ExplainView
+from .fhir_view import FhirPanel
 from .handout_section import HandoutSection
 from .intake_view import IntakeForm, screening_html
 from .person_section import PersonSection
@@ -70,6 +71,13 @@ class ClinicApp(PersonSection, ProgramSection, HandoutSection, StoreSection):
         self.program_section.children += (self.explain_view.widget,)
         self._build_handout_section()
         self._build_store_section()
+        # The record system (FHIR R4): bring a person in (section 1), send the saved program (section 5).
+        self.fhir = FhirPanel(self)
+        kids = list(self.person_section.children)
+        at = next((i + 1 for i, k in enumerate(kids) if self.load_select in getattr(k, "children", ())), len(kids))
+        self.person_section.children = tuple(kids[:at] + [self.fhir.import_widget] + kids[at:])
+        self.store_section.children += (self.fhir.export_widget,)
+        self.new_button.on_click(lambda _b: self.fhir.clear_marks())
         self.live = SessionsView(self)  # 6, the live-session panel (docs/sessions.md)
         self.sensor_panel = SensorPanel(self)  # 7, worn sensor
         self.templates_view = TemplatesView(self.session, app=self)  # 8, the clinic lead's section

@@ -28,6 +28,7 @@ STYLE = """
 .pr-app { max-width: 1100px; font-size: 14px; }
 .pr-app h2 { font-size: 18px; margin: 18px 0 6px 0; border-bottom: 2px solid #1f3b57; color: #1f3b57; }
 .pr-msg { color: #a4161a; font-size: 13px; padding-left: 8px; }
+.pr-from-fhir input, .pr-from-fhir select, input.pr-from-fhir { background: #e6f2ff !important; outline: 2px solid #2b6cb0 !important; }
 .pr-field-label { line-height: 1.25; padding: 2px 0; }
 .pr-handout-download a { color: #1f3b57; font-weight: bold; text-decoration: underline; padding: 0 8px; }
 .pr-field-label small { color: #4a5561; }
