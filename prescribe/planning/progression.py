@@ -152,7 +152,7 @@ class _Progression:
         ``ph`` is the phase the joint schedule gives the week (:meth:`impact_schedule`).
         """
         lifts = self.lift_from is not None and week >= self.lift_from
-        practice = lifts and week < self.lift_from + LIFT_PRACTICE_WEEKS
+        practice = lifts and self.lift_practice and week < self.lift_from + LIFT_PRACTICE_WEEKS
         bodyweight = week <= self.bodyweight_until
         return ph, lifts and not bodyweight, practice, bodyweight
 
@@ -163,6 +163,9 @@ class _Progression:
         heavy = [w for w, ph in enumerate(phases, start=1) if ph.pct_1rm is not None and ph.pct_1rm >= LIFT_LOAD_FROM_PCT]
         # A barbell lift comes in LIFT_PRACTICE_WEEKS before its first loaded week, at a light load.
         self.lift_from = max(1, heavy[0] - LIFT_PRACTICE_WEEKS) if heavy else None
+        # A next block that starts in a loaded phase continues lifts the person already does
+        # (the previous block stood in that phase): no practice weeks again (docs/reassess.md).
+        self.lift_practice = not (getattr(self, "continuing", False) and heavy and heavy[0] == 1)
         # Body-weight forms for the frail: the first (technique) phase, and at least 4 weeks.
         self.bodyweight_until = 0
         if self.frail:
