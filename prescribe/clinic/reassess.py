@@ -111,7 +111,9 @@ def assess_retest(store, retest: RetestRecord, *, today: date | None = None, sou
         raise InputError.single("patient_id", pid, "a person with a stored program (store one with "
                                                    "`prescribe save PATIENT.json --plan PLAN.json`)", source)
     plan = store.get_program(pid)
-    start = date.fromisoformat(plan.get("start_date") or str(plan.get("created", ""))[:10])
+    first = plan if version == 1 else store.get_program(pid, 1)
+    # the program's start: the first version's (a next block starts later and may start after a retest)
+    start = date.fromisoformat(first.get("start_date") or str(first.get("created", ""))[:10])
     check_retest_date(retest, start, today, source)
     rows = store.retests(pid)
     if rows and retest.date < rows[-1]["date"]:

@@ -190,12 +190,21 @@ def next_block(plan: dict, record: PatientRecord, retest_day: date, *, template=
     else:
         options.pop("template", None)
     cleared = bool(cleared_by)
+    # Never above what the re-screened record and the template allow (a fall may lower the cap).
+    from ..planning.builder import _default_template
+    from ..planning.rules import load_template
+    from ..planning.safety import rescreen
+    tpl_obj = template if template is not None else load_template(options.get("template")
+                                                                 or _default_template(record))
+    cap = min(rescreen(record, cleared).max_impact_level, int(tpl_obj.impact["max_level"]))
+    if level > cap:
+        options["start_level"] = cap
     new = build_plan(record, options=PlanOptions(**options), created=created, template=template, cleared=cleared)
     if cleared:
         new = record_clearance(new, cleared_by, cleared_at)
     info = {"starts_on": starts_on.isoformat(), "continues_from_week": done_week, "retest_week": at_retest,
             "start_level": new.start_level, "start_phase": new.weeks[0].resistance_phase, "weeks": len(new.weeks),
-            "asked_start_level": level, "asked_start_phase": phase, "last_stimulus_week": last_up,
+            "asked_start_level": level, "asked_start_phase": phase, "cap": cap, "last_stimulus_week": last_up,
             "template": (new.template.name if new.template else None)}
     new = new.model_copy(update={"start_date": starts_on.isoformat(), "block": PlanBlock(
         after_retest=retest_day.isoformat(), continues_from_week=done_week, start_level=new.start_level,
