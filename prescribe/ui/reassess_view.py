@@ -82,7 +82,7 @@ class MeasureCharts:
             line = bq.Lines(x=np.array(days, dtype="datetime64[D]"), y=[float(v) for _, v in points],
                             scales={"x": x, "y": y}, marker="circle", colors=["#1f3b57"])
             fig = bq.Figure(title=f"{rule.label} ({rule.unit})", marks=[line],
-                            axes=[bq.Axis(scale=x, tick_format="%b %Y"), bq.Axis(scale=y, orientation="vertical")],
+                            axes=[bq.Axis(scale=x, tick_format="%b %Y"), bq.Axis(scale=y, side="left")],
                             fig_margin={"top": 36, "bottom": 36, "left": 50, "right": 16},
                             layout={"width": "320px", "height": "200px"})
             fig.add_class("pr-retest-chart")
@@ -261,7 +261,7 @@ class OutcomesPanel(LazyPanel):
                             colors=["#2e7d32", "#bdbdbd", "#c62828"], labels=["improved", "no real change", "worse"],
                             display_legend=True)
         self.figure = bq.Figure(title="People by their latest retest against their baseline", marks=[self.bars],
-                                axes=[bq.Axis(scale=self.x), bq.Axis(scale=self.y, orientation="vertical",
+                                axes=[bq.Axis(scale=self.x), bq.Axis(scale=self.y, side="left",
                                                                     label="people", tick_format="d")],
                                 legend_location="top-right", layout={"width": "100%", "height": "320px"},
                                 fig_margin={"top": 40, "bottom": 60, "left": 60, "right": 20})
