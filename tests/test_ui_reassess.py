@@ -89,4 +89,4 @@ def test_the_leads_outcomes_chart_counts_people_by_verdict(tmp_db):
     i = labels.index("Timed Up and Go")
     assert [list(s)[i] for s in view.bars.y] == [0, 0, 1]
     view.template.value = "standard"
-    assert "1 people with a stored retest" in view.table.value
+    assert "1 person with a stored retest" in view.table.value

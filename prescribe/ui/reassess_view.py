@@ -79,7 +79,7 @@ class MeasureCharts:
             y = bq.LinearScale()
             days = [date.fromisoformat(d) for d, _ in points]
             import numpy as np
-            line = bq.Lines(x=np.array(days, dtype="datetime64[D]"), y=[float(v) for _, v in points],
+            line = bq.Lines(x=np.array(days, dtype="datetime64[D]").astype("datetime64[ms]"), y=[float(v) for _, v in points],
                             scales={"x": x, "y": y}, marker="circle", colors=["#1f3b57"])
             fig = bq.Figure(title=f"{rule.label} ({rule.unit})", marks=[line],
                             axes=[bq.Axis(scale=x, tick_format="%b %Y"), bq.Axis(scale=y, side="left")],
@@ -259,11 +259,11 @@ class OutcomesPanel(LazyPanel):
         self.y = bq.LinearScale(min=0.0)
         self.bars = bq.Bars(x=[], y=[[], [], []], scales={"x": self.x, "y": self.y}, type="stacked",
                             colors=["#2e7d32", "#bdbdbd", "#c62828"], labels=["improved", "no real change", "worse"],
-                            display_legend=True)
+                            display_legend=True, padding=0.4)
+        self.y_axis = bq.Axis(scale=self.y, side="left", label="people", tick_format="d")
         self.figure = bq.Figure(title="People by their latest retest against their baseline", marks=[self.bars],
-                                axes=[bq.Axis(scale=self.x), bq.Axis(scale=self.y, side="left",
-                                                                    label="people", tick_format="d")],
-                                legend_location="top-right", layout={"width": "100%", "height": "320px"},
+                                axes=[bq.Axis(scale=self.x), self.y_axis],
+                                legend_location="top-left", layout={"width": "100%", "height": "320px"},
                                 fig_margin={"top": 40, "bottom": 60, "left": 60, "right": 20})
         self.figure.add_class("pr-outcomes-chart")
         self.table = w.HTML("")
@@ -291,13 +291,18 @@ class OutcomesPanel(LazyPanel):
         if self.result is None:
             return
         rows = [r for r in self.result["rows"] if r["template"] == self.template.value]
+        top = max([1, *(r["people"] for r in rows)])
+        step = max(1, -(-top // 8))
         with self.bars.hold_sync():
+            self.y.max = float(top) * 1.45  # room above the bars for the legend
+            self.y_axis.tick_values = list(range(0, top + step, step))
             self.bars.x = [r["label"] for r in rows]
             self.bars.y = [[r["improved"] for r in rows], [r["no real change"] for r in rows],
                            [r["worse"] for r in rows]]
         body = "".join(f"<tr><td>{_esc(r['label'])}</td><td>{r['improved']}</td><td>{r['no real change']}</td>"
                        f"<td>{r['worse']}</td><td>{r['people']}</td></tr>" for r in rows)
-        self.table.value = (f"<p>{self.result['people']} people with a stored retest.</p>"
+        n = self.result["people"]
+        self.table.value = (f"<p>{n} {'person' if n == 1 else 'people'} with a stored retest.</p>"
                             '<table class="pr-table pr-outcomes-rows"><thead><tr><th>Measure</th><th>Improved</th>'
                             "<th>No real change</th><th>Worse</th><th>People</th></tr></thead><tbody>"
                             + body + "</tbody></table>")
