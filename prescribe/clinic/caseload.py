@@ -355,10 +355,14 @@ def outcomes(store) -> dict:
 
     rules = measure_rules()
     order = {name: i for i, name in enumerate(rules)}
+    from collections import Counter
+
     counts: dict[tuple[str, str], list[int]] = {}
-    people = 0
-    for _pid, template, verdicts_json in store.retest_verdicts():
-        people += 1
+    rows = store.retest_verdicts()
+    people = len(rows)
+    # Many people share the same verdicts: each distinct (template, verdicts) is read once.
+    groups = Counter((template, verdicts_json) for _pid, template, verdicts_json in rows)
+    for (template, verdicts_json), n in groups.items():
         tpl = template or "(none recorded)"
         for measure, verdict in _json.loads(verdicts_json).items():
             if measure not in order or verdict not in VERDICTS:
@@ -368,7 +372,7 @@ def outcomes(store) -> dict:
                 row = counts.get(key)
                 if row is None:
                     row = counts[key] = [0, 0, 0]
-                row[k] += 1
+                row[k] += n
     rows = []
     for (tpl, measure), (imp, same, worse) in sorted(counts.items(),
                                                      key=lambda kv: (order[kv[0][1]], kv[0][0] != "(all)", kv[0][0])):

@@ -82,6 +82,23 @@ def _baseline_snapshot(record: PatientRecord) -> dict:
     return snap
 
 
+_PARSED: dict[tuple[str, str, int], tuple[dict, object]] = {}
+
+
+def _parsed(store, pid: str, version: int, plan: dict):
+    """The stored program version as a Plan, parsed once (a version never changes once stored)."""
+    key = (store.where, pid, version)
+    hit = _PARSED.get(key)
+    if hit is not None and hit[0] is plan:
+        return hit[1]
+    from ..plan_schema import parse_plan
+    parsed = parse_plan(plan, source=f"program version {version} of {pid!r}")
+    if len(_PARSED) >= 64:
+        _PARSED.clear()
+    _PARSED[key] = (plan, parsed)
+    return parsed
+
+
 def _template_of(store, plan: dict):
     """The clinic template the plan was built from (resolved from the store), or None for a shipped one."""
     tpl = plan.get("template") or {}
@@ -99,7 +116,6 @@ def assess_retest(store, retest: RetestRecord, *, today: date | None = None, sou
     ``_previous``, ``_based_on_record_version``, ``_based_on_version``, ``_verdicts``,
     ``_template``) that :func:`reassess_person` stores.
     """
-    from ..plan_schema import parse_plan
     from ..planning.safety import check_program, rescreen
 
     today = today or date.today()
@@ -110,8 +126,8 @@ def assess_retest(store, retest: RetestRecord, *, today: date | None = None, sou
     if version is None:
         raise InputError.single("patient_id", pid, "a person with a stored program (store one with "
                                                    "`prescribe save PATIENT.json --plan PLAN.json`)", source)
-    plan = store.get_program(pid)
-    first = plan if version == 1 else store.get_program(pid, 1)
+    _, plan = store.program_for_reading(pid, version)   # shared, read-only: versions never change
+    first = plan if version == 1 else store.program_for_reading(pid, 1)[1]
     # the program's start: the first version's (a next block starts later and may start after a retest)
     start = date.fromisoformat(first.get("start_date") or str(first.get("created", ""))[:10])
     check_retest_date(retest, start, today, source)
@@ -131,7 +147,7 @@ def assess_retest(store, retest: RetestRecord, *, today: date | None = None, sou
     decision, reasons = verdict.decision, verdict.reasons
     cautions = list(plan.get("cautions") or [])
     out_plan, next_info = None, None
-    broken = check_program(parse_plan(plan, source="the current program"), record=new_record)
+    broken = check_program(_parsed(store, pid, version, plan), record=new_record)
     if broken:
         first_v = broken[0]
         reasons.append({"rule": "reassess.current_program_unsafe", "decision": "hold",

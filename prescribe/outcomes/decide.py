@@ -161,8 +161,6 @@ def next_block(plan: dict, record: PatientRecord, retest_day: date, *, template=
     from ..planning import PlanOptions, build_plan
     from ..planning.editing import fixed_options
     from ..planning.safety import assert_safe, record_clearance
-    from ..plan_schema import parse_plan
-
     weeks = plan.get("weeks") or []
     if not weeks:
         raise InputError.single("program", plan.get("patient_id"), "a stored program with at least one week")
@@ -176,8 +174,7 @@ def next_block(plan: dict, record: PatientRecord, retest_day: date, *, template=
     starts_on = max(retest_day, week_start(start, begin_week))
     done_week = min(max(program_week(start, starts_on) - 1, 1), n)
     done = weeks[done_week - 1]
-    parsed_old = parse_plan(plan)
-    options = fixed_options(parsed_old)
+    options = fixed_options(plan)
     options.pop("step_up_weeks", None)
     level = int(done.get("impact_level", 0))
     phase = done.get("resistance_phase")

@@ -123,14 +123,15 @@ class RetestsMixin(StoreBase):
 
     def retest_verdicts(self) -> list[tuple[str, str | None, str]]:
         """Each person's latest retest as (patient_id, template, verdicts JSON), by id, in one read
-        (the caseload's outcomes)."""
-        latest = (select(m.retests.c.patient_id, func.max(m.retests.c.id).label("rid"))
-                  .group_by(m.retests.c.patient_id).subquery())
+        (the caseload's outcomes): every row in (patient_id, id) order, the last of each person kept."""
+        t = m.retests.c
         with self._read() as conn:
-            rows = conn.execute(select(m.retests.c.patient_id, m.retests.c.template, m.retests.c.verdicts_json)
-                                .join(latest, latest.c.rid == m.retests.c.id)
-                                .order_by(m.retests.c.patient_id)).all()
-        return [(r.patient_id, r.template, r.verdicts_json) for r in rows]
+            rows = conn.execute(select(t.patient_id, t.template, t.verdicts_json)
+                                .order_by(t.patient_id, t.retest_date, t.id)).all()
+        latest: dict[str, tuple[str, str | None, str]] = {}
+        for r in rows:
+            latest[r[0]] = (r[0], r[1], r[2])
+        return list(latest.values())
 
 
 def _row(r) -> dict:
