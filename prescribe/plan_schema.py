@@ -166,6 +166,18 @@ class PlanResume(_Open):
     from_week: int | None = Field(None, ge=1, description="The week the lifted pause began.")
 
 
+class PlanBlock(_Open):
+    """A next block after a retest (docs/reassess.md): where it continues from."""
+
+    after_retest: str = Field(description="The retest's date (YYYY-MM-DD).")
+    continues_from_week: int = Field(ge=1, description="The last week of the previous program done before "
+                                                       "this block starts.")
+    start_level: int | None = Field(None, ge=0, le=3, description="The impact level of week 1.")
+    start_phase: str | None = Field(None, description="The resistance phase of week 1.")
+    last_stimulus_week: int | None = Field(None, ge=1, description="The previous program's last week with a "
+                                                                   "new or larger stimulus (before the block).")
+
+
 class Plan(_Open):
     plan_format_version: str = PLAN_FORMAT_VERSION
     patient_id: str
@@ -220,6 +232,8 @@ class Plan(_Open):
     adjustment: PlanAdjustment | None = None
     paused: PlanPause | None = None
     resumed: PlanResume | None = Field(None, description="The recorded resumption that lifted the last pause.")
+    # A next block after a retest (docs/reassess.md).
+    block: PlanBlock | None = None
 
 
 def parse_plan(data: Any, source: str | None = None) -> Plan:

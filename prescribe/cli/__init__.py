@@ -29,6 +29,7 @@ COMMAND_MODULES = (
     "store_cmd",      # prescribe db, save, export, import
     "session_cmd",    # prescribe session add|list, prescribe adjust
     "resume_cmd",     # prescribe resume
+    "reassess_cmd",   # prescribe reassess, prescribe progress
     "template_cmd",   # prescribe template list|show|check|add|approve|retire|compare
     "caseload_cmd",   # prescribe caseload export|whatif
     "explain_cmd",    # prescribe explain

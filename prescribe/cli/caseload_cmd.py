@@ -1,5 +1,6 @@
-"""``prescribe caseload export | whatif``: the stored caseload as a batch CSV, and what a draft
-rule library or template would change for the people in the store."""
+"""``prescribe caseload export | whatif | outcomes``: the stored caseload as a batch CSV, what a draft
+rule library or template would change for the people in the store, and each measure's change across the
+caseload."""
 
 from __future__ import annotations
 
@@ -34,6 +35,12 @@ def register(sub) -> None:
     q.add_argument("--out", metavar="FILE.csv", help="also write the changes as CSV: patient_id, field, before, after")
     q.add_argument("--db", help=DB_HELP)
     q.set_defaults(func=run_whatif)
+
+    q = c.add_parser("outcomes", help="each measure's change across the caseload: how many improved, did not "
+                                      "change or worsened, by template (docs/reassess.md)")
+    q.add_argument("--out", metavar="FILE.csv", help="also write the counts as CSV")
+    q.add_argument("--db", help=DB_HELP)
+    q.set_defaults(func=run_outcomes)
 
 
 def _open(args):
@@ -75,4 +82,18 @@ def run_whatif(args) -> int:
         out["out"] = args.out
         out["rows_written"] = write_whatif_csv(result, args.out)
     emit_json(out)
+    return 0
+
+
+def run_outcomes(args) -> int:
+    from ..clinic.caseload import outcomes, write_outcomes_csv
+
+    if args.out and not args.out.lower().endswith(".csv"):
+        raise InputError.single("--out", args.out, "a file name ending in .csv")
+    with _open(args) as store:
+        result = outcomes(store)
+    if args.out:
+        result["out"] = args.out
+        result["rows_written"] = write_outcomes_csv(result, args.out)
+    emit_json(result)
     return 0

@@ -288,3 +288,66 @@ def text_progress(stream) -> Progress:
         stream.flush()
 
     return show
+
+
+# =========================================================================================
+# Outcomes: each measure's change across the caseload (docs/reassess.md)
+# =========================================================================================
+
+#: Columns of ``prescribe caseload outcomes --out``.
+OUTCOME_COLUMNS = ("template", "measure", "label", "improved", "no real change", "worse", "people")
+
+
+def outcomes(store) -> dict:
+    """Per measure and template, how many people improved, did not change, or worsened.
+
+    Each person counts once, by their latest retest's verdicts against their baseline
+    (:mod:`prescribe.outcomes.measures`), under the template of the program they were on.
+    Returns ``{people, rows: [{template, measure, label, improved, "no real change", worse,
+    people}], cautions}``; rows in the data file's measure order, then by template, with an
+    ``(all)`` row per measure over every template.
+    """
+    import json as _json
+
+    from ..outcomes.measures import VERDICTS, measure_rules
+
+    rules = measure_rules()
+    order = {name: i for i, name in enumerate(rules)}
+    from collections import Counter
+
+    counts: dict[tuple[str, str], list[int]] = {}
+    rows = store.retest_verdicts()
+    people = len(rows)
+    # Many people share the same verdicts: each distinct (template, verdicts) is read once.
+    groups = Counter((template, verdicts_json) for _pid, template, verdicts_json in rows)
+    for (template, verdicts_json), n in groups.items():
+        tpl = template or "(none recorded)"
+        for measure, verdict in _json.loads(verdicts_json).items():
+            if measure not in order or verdict not in VERDICTS:
+                continue
+            k = VERDICTS.index(verdict)
+            for key in ((tpl, measure), ("(all)", measure)):
+                row = counts.get(key)
+                if row is None:
+                    row = counts[key] = [0, 0, 0]
+                row[k] += n
+    rows = []
+    for (tpl, measure), (imp, same, worse) in sorted(counts.items(),
+                                                     key=lambda kv: (order[kv[0][1]], kv[0][0] != "(all)", kv[0][0])):
+        rows.append({"template": tpl, "measure": measure, "label": rules[measure].label, "improved": imp,
+                     "no real change": same, "worse": worse, "people": imp + same + worse})
+    return {"people": people, "rows": rows,
+            "cautions": with_standard(["Counts of people by their latest retest against their own baseline; a "
+                                       "program is one influence among many (medicines, illness, season): "
+                                       "read them as a prompt for review, not as proof that a template works."])}
+
+
+def write_outcomes_csv(result: dict, path: str | Path) -> int:
+    """The outcome rows as CSV (:data:`OUTCOME_COLUMNS`); returns the number of rows written."""
+    buf = io.StringIO()
+    w = csv.writer(buf, lineterminator="\n")
+    w.writerow(OUTCOME_COLUMNS)
+    for r in result["rows"]:
+        w.writerow([spreadsheet_text(str(r[c])) if isinstance(r[c], str) else r[c] for c in OUTCOME_COLUMNS])
+    _atomic_write(Path(path), buf.getvalue())
+    return len(result["rows"])

@@ -33,6 +33,9 @@ class PlanOptions(BaseModel):
     ``step_up_weeks`` fixes the weeks where the impact level rises (then only there);
     a week that would break rule 1, 2 or 3 (already at the cap, the level not yet held
     at full volume, or inside weeks 3-5 after the previous step-up) is refused.
+    ``start_phase`` names the resistance phase week 1 starts in (a next block continuing
+    from where the last one stood, docs/reassess.md); a phase the program's phases do not
+    hold (a spine-sparing program has its own) starts from the first, with a caution.
     """
 
     model_config = ConfigDict(extra="forbid", frozen=True, strict=True)
@@ -46,6 +49,7 @@ class PlanOptions(BaseModel):
     include: tuple[str, ...] = ()
     template: str | None = None
     step_up_weeks: tuple[int, ...] = ()
+    start_phase: str | None = Field(None, min_length=1, max_length=40)
 
     def __init__(self, **data: Any):
         for key in ("exclude", "include", "step_up_weeks"):
@@ -103,6 +107,7 @@ _OPTION_ALLOWED = {
     "include": "a list of exercise ids from the catalogue",
     "template": "one of " + ", ".join(template_names()) + ", or null for the default",
     "step_up_weeks": "a list of week numbers (whole numbers) where the clinician wants the impact level raised",
+    "start_phase": "the name of a resistance phase of the template (1 to 40 characters), or null for the first",
 }
 
 

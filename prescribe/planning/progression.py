@@ -152,7 +152,7 @@ class _Progression:
         ``ph`` is the phase the joint schedule gives the week (:meth:`impact_schedule`).
         """
         lifts = self.lift_from is not None and week >= self.lift_from
-        practice = lifts and week < self.lift_loaded_from
+        practice = lifts and self.lift_practice and week < self.lift_loaded_from
         bodyweight = week <= self.bodyweight_until
         return ph, lifts and not bodyweight, practice, bodyweight
 
@@ -168,6 +168,9 @@ class _Progression:
         # weeks 3-5 of a window (safety rule weak_window), so its practice starts earlier and lasts longer.
         while self.lift_from is not None and self.lift_from > 1 and schedule[self.lift_from - 1][3]:
             self.lift_from -= 1
+        # A next block that starts in a loaded phase continues lifts the person already does
+        # (the previous block stood in that phase): no practice weeks again (docs/reassess.md).
+        self.lift_practice = not (getattr(self, "continuing", False) and heavy and heavy[0] == 1)
         # Body-weight forms for the frail: the first (technique) phase, and at least 4 weeks.
         self.bodyweight_until = 0
         if self.frail:

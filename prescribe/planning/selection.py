@@ -213,6 +213,17 @@ class _Selection:
         self.spine_sparing, why = _spine_sparing(self.record, self.screening, self.tpl)
         self.phases = _phases_within(self.tpl.spine_sparing_phases if self.spine_sparing
                                      else self.tpl.resistance_phases, self.max_pct_1rm)
+        wanted = self.options.start_phase
+        self.continuing = False
+        if wanted is not None:
+            names = [ph.name for ph in self.phases]
+            if wanted in names:
+                # A next block continues in the phase the last one stood in (docs/reassess.md).
+                self.phases = tuple(self.phases[names.index(wanted):])
+                self.continuing = names.index(wanted) > 0
+            else:
+                self.cautions.append(f"Resistance work starts from the first phase ({names[0]}): this program's "
+                                     f"phases ({', '.join(names)}) do not include {wanted!r}, the phase asked for.")
         self.frail = _frail(self.record, self.screening)
         allowed = {e.exercise_id for e in self.pool
                    if not (e.patterns & NEVER_IN_RESISTANCE) and e.impact_level == 0

@@ -19,7 +19,7 @@ version it started from is refused the same way when someone changed the record
 in between.  An update keeps the replaced values in its audit entry.
 
 The methods live by table (:mod:`.people`, :mod:`.programs`, :mod:`.sessions`,
-:mod:`.templates`, :mod:`.sensors`, :mod:`.exchange`) over the plumbing in
+:mod:`.templates`, :mod:`.sensors`, :mod:`.retests`, :mod:`.exchange`) over the plumbing in
 :mod:`.engine`; this module assembles them into :class:`Store` and keeps every name
 other modules import from here.
 """
@@ -32,6 +32,7 @@ from .engine import (BUSY_TIMEOUT_MS, HEAD_REVISION, KNOWN_REVISIONS, MIGRATIONS
 from .exchange import LOCAL_ONLY_ACTIONS, ExchangeMixin, check_bundle_programs
 from .people import PeopleMixin
 from .programs import ProgramsMixin, plan_summary
+from .retests import RetestsMixin
 from .rows import _audit
 from .sensors import SensorsMixin
 from .sessions import SessionsMixin
@@ -58,5 +59,6 @@ def open_store(url: str | None = None, *, create: bool = True) -> "Store":
     return Store(db_url(url), create=create)
 
 
-class Store(PeopleMixin, ProgramsMixin, SessionsMixin, TemplatesMixin, SensorsMixin, ExchangeMixin):
+class Store(PeopleMixin, ProgramsMixin, SessionsMixin, TemplatesMixin, SensorsMixin, RetestsMixin,
+            ExchangeMixin):
     """One clinic's records.  Open it with :func:`open_store`; close it with :meth:`close`."""

@@ -112,6 +112,22 @@ class _SensorSummary(_Part):
         return value
 
 
+class _Retest(_Part):
+    """One retest (docs/reassess.md) with the record's measures it replaced and what it led to."""
+
+    created: str
+    clinician: str = Field(max_length=200)
+    retest: dict
+    previous: dict
+    result: dict
+    decision: Literal["continue", "hold", "refer"]
+    template: str | None = Field(None, max_length=120)
+    verdicts: dict = Field(default_factory=dict)
+    program_version: int | None = Field(None, ge=1)
+
+    _ts = field_validator("created")(_timestamp)
+
+
 class _Audit(_Part):
     at: str
     action: str = Field(min_length=1, max_length=40)
@@ -133,6 +149,8 @@ class _Bundle(_Part):
     sessions: list[_SessionEntry] = Field(default_factory=list)  # optional: older bundles have none
     #: Optional: bundles written before worn-sensor summaries existed have none.
     sensor_summaries: list[_SensorSummary] = Field(default_factory=list)
+    #: Optional: bundles written before retests existed have none.
+    retests: list[_Retest] = Field(default_factory=list)
     audit: list[_Audit]
 
 
@@ -257,6 +275,21 @@ def parse_bundle(data: Any, source: str | None = None) -> dict:
             problems.append(FieldProblem(f"sessions[{i}].session.patient_id", rec.patient_id,
                                          f"the bundle's patient_id {pid!r}"))
         out["sessions"][i]["session"] = rec.model_dump(mode="json")
+    from ..outcomes.retest import parse_retest
+    for i, r in enumerate(bundle.retests):
+        if r.program_version is not None and r.program_version not in versions:
+            problems.append(FieldProblem(f"retests[{i}].program_version", r.program_version,
+                                         "a program version in this bundle, or null"))
+        try:
+            rec = parse_retest(r.retest)
+        except InputError as exc:
+            problems.extend(FieldProblem(f"retests[{i}].retest.{q.field}", q.value, q.allowed, q.kind)
+                            for q in exc.problems)
+            continue
+        if rec.patient_id != pid:
+            problems.append(FieldProblem(f"retests[{i}].retest.patient_id", rec.patient_id,
+                                         f"the bundle's patient_id {pid!r}"))
+        out["retests"][i]["retest"] = rec.model_dump(mode="json")
     if problems:
         raise InputError(problems, source)
     return out

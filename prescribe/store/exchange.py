@@ -113,6 +113,12 @@ class ExchangeMixin(StoreBase):
                     patient_id=pid, created=s["created"], clinician=s["clinician"],
                     file_name=str(summary.get("file") or ""), recorded_from=summary.get("start"),
                     recorded_to=summary.get("end"), summary_json=_dumps(summary, "summary")))
+            for r in b.get("retests") or []:
+                conn.execute(m.retests.insert().values(
+                    patient_id=pid, retest_date=r["retest"]["date"], created=r["created"], clinician=r["clinician"],
+                    retest_json=_dumps(r["retest"], "retest"), previous_json=_dumps(r["previous"], "previous"),
+                    result_json=_dumps(r["result"], "result"), decision=r["decision"], template=r["template"],
+                    verdicts_json=_dumps(r["verdicts"], "verdicts"), program_version=r["program_version"]))
             for a in b["audit"]:
                 _audit(conn, a["at"], a["action"], pid, a["clinician"], a["detail"])
             _audit(conn, at, "bundle_imported", pid, "", {"bundle_format_version": b["bundle_format_version"],
@@ -188,6 +194,8 @@ def _export(conn: Connection, pid: str) -> dict:
                             .order_by(m.session_logs.c.session_date, m.session_logs.c.id)).all()
     sensors = conn.execute(select(m.sensor_summaries).where(m.sensor_summaries.c.patient_id == pid)
                            .order_by(m.sensor_summaries.c.created, m.sensor_summaries.c.id)).all()
+    retests = conn.execute(select(m.retests).where(m.retests.c.patient_id == pid)
+                           .order_by(m.retests.c.retest_date, m.retests.c.id)).all()
     audit = conn.execute(select(m.audit_log).where(m.audit_log.c.patient_id == pid,
                                                    m.audit_log.c.action.not_in(LOCAL_ONLY_ACTIONS))
                          .order_by(m.audit_log.c.id)).all()
@@ -210,6 +218,10 @@ def _export(conn: Connection, pid: str) -> dict:
                      for s in sessions if s.session_json is not None],
         "sensor_summaries": [{"created": r.created, "clinician": r.clinician, "summary": json.loads(r.summary_json)}
                              for r in sensors],
+        "retests": [{"created": r.created, "clinician": r.clinician, "retest": json.loads(r.retest_json),
+                     "previous": json.loads(r.previous_json), "result": json.loads(r.result_json),
+                     "decision": r.decision, "template": r.template, "verdicts": json.loads(r.verdicts_json),
+                     "program_version": r.program_version} for r in retests],
         "audit": [{"at": a.at, "action": a.action, "clinician": a.clinician, "detail": json.loads(a.detail_json)}
                   for a in audit],
     }
@@ -223,4 +235,5 @@ def _counts(b: dict) -> dict:
     return {"screenings": len(b["screenings"]), "program_versions": len(b["programs"]),
             "session_logs": len(b["session_logs"]), "sessions": len(b.get("sessions") or []),
             "sensor_summaries": len(b.get("sensor_summaries") or []),
+            "retests": len(b.get("retests") or []),
             "audit_entries": len(b["audit"])}

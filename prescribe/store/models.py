@@ -140,3 +140,28 @@ sensor_summaries = Table(
 )
 
 TABLES_0005 = TABLES_0004 + ("sensor_summaries",)
+
+# -- revision 0008: retests (docs/reassess.md) ---------------------------------------------
+
+#: One row a retest: what was measured, the record's measures it replaced (so the intake
+#: values stay the baseline), the comparison and decision, and the next block's version.
+retests = Table(
+    "retests", metadata,
+    Column("id", Integer, primary_key=True, autoincrement=True),
+    Column("patient_id", String(64), ForeignKey("people.patient_id"), nullable=False),
+    Column("retest_date", String(10), nullable=False),
+    Column("created", String(40), nullable=False),
+    Column("clinician", Text, nullable=False, default=""),
+    Column("retest_json", Text, nullable=False),
+    # the record's measures before this retest was applied (the first row's: the intake values)
+    Column("previous_json", Text, nullable=False),
+    Column("result_json", Text, nullable=False),
+    Column("decision", String(16), nullable=False),
+    # the template of the program the person was on, and {measure: verdict}: the caseload's outcomes
+    Column("template", String(120), nullable=True),
+    Column("verdicts_json", Text, nullable=False, default="{}"),
+    Column("program_version", Integer, nullable=True),
+    Index("ix_retests_patient", "patient_id", "retest_date", "id"),
+)
+
+TABLES_0009 = TABLES_0005 + ("retests",)

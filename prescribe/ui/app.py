@@ -32,6 +32,7 @@ from .handout_section import HandoutSection
 from .intake_view import IntakeForm, screening_html
 from .person_section import PersonSection
 from .program_section import ProgramSection
+from .reassess_view import OutcomesPanel, ReassessPanel
 from .sensor_view import SensorPanel
 from .session import ClinicSession
 from .sessions_view import SessionsView
@@ -81,16 +82,19 @@ class ClinicApp(PersonSection, ProgramSection, HandoutSection, StoreSection):
         self.live = SessionsView(self)  # 6, the live-session panel (docs/sessions.md)
         self.sensor_panel = SensorPanel(self)  # 7, worn sensor
         self.templates_view = TemplatesView(self.session, app=self)  # 8, the clinic lead's section
+        self.retest_panel = ReassessPanel(self)  # 9, retest and next block (docs/reassess.md)
+        self.outcomes_panel = OutcomesPanel(self)  # 10, the clinic's outcomes, for the lead
         self.clinic_settings = ClinicSettingsForm()  # asks for the clinic's name and phone once
         title = w.HTML("<h1 style='font-size:22px;margin:4px 0'>prescribe: bone-loading program builder</h1>"
                        "<p>Decision support for clinicians. Work down the page: person, screening, program, "
-                       "handout, save. Sections 6 to 8 open when you click their titles.</p>")
+                       "handout, save. Sections 6 to 10 open when you click their titles.</p>")
         self.top_cautions = cautions_box()  # the one always-visible box; sections add their own
         self.top_cautions.add_class("pr-cautions-always")
         self.widget = w.VBox([w.HTML(STYLE), title, self.errors.widget, self.top_cautions, self.clinic_settings.widget,
                               self.person_section, self.screening_section, self.program_section,
                               self.handout_section, self.store_section, self.live.widget,
-                              self.sensor_panel.widget, self.templates_view.widget])
+                              self.sensor_panel.widget, self.templates_view.widget, self.retest_panel.widget,
+                              self.outcomes_panel.widget])
         self.widget.add_class("pr-app")
         share_plain_models(self.widget)  # about half the models a page opens with (common.py)
         self.warm_thread: threading.Thread | None = None
@@ -178,3 +182,4 @@ class ClinicApp(PersonSection, ProgramSection, HandoutSection, StoreSection):
             self._refresh_store()
             self.clinic_settings.refresh()  # another page may have set the clinic meanwhile
         self.live.refresh()
+        self.retest_panel.refresh()

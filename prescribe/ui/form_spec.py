@@ -335,3 +335,45 @@ def form_values(record_dict: dict) -> dict:
         out[list_field] = [{k: _box_value(spec, item.get(k)) for k, spec in specs.items()}
                            for item in record_dict.get(list_field) or []]
     return out
+
+
+# -- the retest form (docs/reassess.md): from the retest's own field metadata ---------------
+
+def retest_fields() -> list[FieldSpec]:
+    """The inputs of the retest form, in the retest's field order (the patient comes from the open
+    person), then the DXA scores by site; limits, units and help from
+    :data:`prescribe.outcomes.retest.RETEST_FIELD_META` (the record's own, for the shared fields)."""
+    from ..outcomes.retest import RETEST_FIELD_META
+    specs: list[FieldSpec] = []
+    for name, meta in RETEST_FIELD_META.items():
+        if name in ("patient_id", "t_scores", "z_scores"):
+            continue
+        specs.append(FieldSpec(key=name, label=meta["label"], kind=meta["type"] or "string", unit=meta["unit"],
+                               help=meta["description"], allowed=meta["allowed"], required=meta["required"],
+                               soft_range=tuple(meta["soft_range"]) if meta["soft_range"] else None))
+    for group, def_name in (("t_scores", "TScores"), ("z_scores", "ZScores")):
+        for site in T_SCORE_SITES:
+            node = RECORD_SCHEMA["$defs"][def_name]["properties"][site]
+            node = next((o for o in node.get("anyOf", []) if o.get("type") != "null"), node) | \
+                {k: v for k, v in node.items() if k != "anyOf"}
+            specs.append(FieldSpec(key=f"{group}.{site}", label=node.get("label", site), kind="number",
+                                   unit=node.get("unit"), help=node.get("description", ""),
+                                   allowed=describe_allowed((group, site)), required=False,
+                                   soft_range=tuple(node["soft_range"]) if node.get("soft_range") else None))
+    return specs
+
+
+def retest_data(values: dict[str, Any], patient_id: str) -> dict:
+    """The retest dict from the form's raw values; empty boxes are left out (not measured)."""
+    kinds = {s.key: s.kind for s in retest_fields()}
+    data: dict[str, Any] = {"patient_id": patient_id}
+    for key, raw in values.items():
+        value = convert_text(raw, kinds.get(key, "string"))
+        if value is None:
+            continue
+        head, _, tail = key.partition(".")
+        if tail:
+            data.setdefault(head, {})[tail] = value
+        else:
+            data[key] = value
+    return data

@@ -1,0 +1,141 @@
+"""Retests (revision 0008): what was measured at a review and what it led to.
+
+A retest is stored in one transaction with everything it changes: the person's record
+takes the retest's measures (so the next screening and block are worked out on them;
+the replaced values are kept in the retest's row and in the audit entry, and the first
+row's are the intake values: the baseline is never lost), the re-screening, and the next
+block as a new program version when there is one.  Nothing is stored when any part is
+refused.
+"""
+
+from __future__ import annotations
+
+import json
+
+from sqlalchemy import func, select
+
+from ..errors import ConflictError, InputError
+from ..records import PatientRecord, ScreeningResult
+from ..planning.safety import assert_safe
+from . import models as m
+from .engine import StoreBase, now_utc
+from .people import _insert_screening
+from .programs import _checked_plan, _insert_program, _latest_program
+from .rows import _audit, _clinician, _dumps, _person
+
+
+class RetestsMixin(StoreBase):
+    """Retests and the caseload's outcomes."""
+
+    def save_retest(self, retest: dict, record: PatientRecord, screening: ScreeningResult, clinician: str, *,
+                    previous: dict, result: dict, based_on_record_version: int,
+                    plan: dict | None = None, based_on_version: int | None = None, plan_note: str = "",
+                    template: str | None = None, verdicts: dict | None = None) -> dict:
+        """Store a retest with the updated record, its screening and (optionally) the next block.
+
+        ``previous`` is the record's measures the retest replaces; ``result`` the comparison and
+        decision (as printed); ``based_on_record_version`` the record version the comparison was
+        worked out on (a change since is a :class:`ConflictError`); ``plan`` the next block,
+        saved as the version after ``based_on_version`` (the latest) once it passes the safety
+        check against the updated record.  A paused current program is never replaced
+        (InputError naming the program).
+
+        Returns ``{retest_id, record_version, screening_id, program_version}``.
+        """
+        clinician = _clinician(clinician, required=plan is not None)
+        pid = record.patient_id
+        if retest.get("patient_id") != pid:
+            raise InputError.single("patient_id", retest.get("patient_id"), f"the record's patient_id {pid!r}")
+        parsed = plan_json = summary_json = None
+        if plan is not None:
+            parsed, plan_json, summary_json = _checked_plan(pid, plan)
+            assert_safe(parsed, door=f"store: the next block of {pid!r}", record=record)
+        record_json = _dumps(record.model_dump(mode="json"), "record")
+        at = now_utc()
+        with self._write() as conn:
+            row = _person(conn, pid, lock=True)
+            if row.record_version != based_on_record_version:
+                raise ConflictError(f"the record of {pid!r} is now at version {row.record_version}, but the retest "
+                                    f"was compared against version {based_on_record_version}; nothing was stored: "
+                                    "run the retest again")
+            program_version = None
+            if plan is not None:
+                latest = _latest_program(conn, pid)
+                latest_version = latest.version if latest else None
+                if based_on_version != latest_version:
+                    raise ConflictError(f"the program of {pid!r} is now at version {latest_version}, but the next "
+                                        f"block was based on version {based_on_version}; nothing was stored: run "
+                                        "the retest again")
+                current = json.loads(conn.execute(
+                    select(m.program_versions.c.plan_json).where(m.program_versions.c.patient_id == pid,
+                                                                 m.program_versions.c.version == latest_version)
+                ).scalar() or "{}") if latest else {}
+                if current.get("paused"):
+                    raise InputError.single("program", f"version {latest_version} of {pid!r} (paused since "
+                                            f"{current['paused'].get('since')})",
+                                            "a program that is not paused: a paused program stays until a "
+                                            "clinician records the resumption; the retest was not stored")
+            old = json.loads(row.record_json)
+            new = json.loads(record_json)
+            changed = [k for k in new if old.get(k) != new[k]] + [k for k in old if k not in new]
+            version = row.record_version + (1 if changed else 0)
+            if changed:
+                conn.execute(m.people.update().where(m.people.c.patient_id == pid)
+                             .values(record_json=record_json, updated=at, record_version=version))
+                _audit(conn, at, "person_updated", pid, clinician,
+                       {"changed_fields": changed, "previous": {k: old.get(k) for k in changed},
+                        "record_version": version, "based_on_version": based_on_record_version,
+                        "by": "retest"})
+            screening_id = _insert_screening(conn, pid, at, clinician, screening.model_dump(mode="json"))
+            if plan is not None:
+                program_version = _insert_program(
+                    conn, pid, at, clinician, plan_json, summary_json, based_on_version, plan_note,
+                    action="program_next_block",
+                    audit_detail={"after_retest": retest.get("date"), "decision": result.get("decision")})
+            rid = conn.execute(m.retests.insert().values(
+                patient_id=pid, retest_date=retest["date"], created=at, clinician=clinician,
+                retest_json=_dumps(retest, "retest"), previous_json=_dumps(previous, "previous"),
+                result_json=_dumps({**result, "next_block": {**(result.get("next_block") or {}),
+                                                              "program_version": program_version}
+                                    if result.get("next_block") else None}, "result"),
+                decision=str(result.get("decision")), template=template,
+                verdicts_json=_dumps(verdicts or {}, "verdicts"),
+                program_version=program_version)).inserted_primary_key[0]
+            _audit(conn, at, "retest_saved", pid, clinician,
+                   {"retest_id": rid, "date": retest["date"], "decision": result.get("decision"),
+                    "program_version": program_version, "record_version": version})
+        return {"retest_id": int(rid), "record_version": version, "screening_id": screening_id,
+                "program_version": program_version}
+
+    def retests(self, patient_id: str) -> list[dict]:
+        """Every retest of one person, oldest first: {retest_id, date, created, clinician, retest,
+        previous, result, decision, program_version}."""
+        with self._read() as conn:
+            _person(conn, patient_id)
+            rows = conn.execute(select(m.retests).where(m.retests.c.patient_id == patient_id)
+                                .order_by(m.retests.c.retest_date, m.retests.c.id)).all()
+        return [_row(r) for r in rows]
+
+    def latest_retest_date(self, patient_id: str) -> str | None:
+        with self._read() as conn:
+            return conn.execute(select(func.max(m.retests.c.retest_date))
+                                .where(m.retests.c.patient_id == patient_id)).scalar()
+
+    def retest_verdicts(self) -> list[tuple[str, str | None, str]]:
+        """Each person's latest retest as (patient_id, template, verdicts JSON), by id, in one read
+        (the caseload's outcomes): every row in (patient_id, id) order, the last of each person kept."""
+        t = m.retests.c
+        with self._read() as conn:
+            rows = conn.execute(select(t.patient_id, t.template, t.verdicts_json)
+                                .order_by(t.patient_id, t.retest_date, t.id)).all()
+        latest: dict[str, tuple[str, str | None, str]] = {}
+        for r in rows:
+            latest[r[0]] = (r[0], r[1], r[2])
+        return list(latest.values())
+
+
+def _row(r) -> dict:
+    return {"retest_id": r.id, "date": r.retest_date, "created": r.created, "clinician": r.clinician,
+            "retest": json.loads(r.retest_json), "previous": json.loads(r.previous_json),
+            "result": json.loads(r.result_json), "decision": r.decision, "template": r.template,
+            "verdicts": json.loads(r.verdicts_json), "program_version": r.program_version}

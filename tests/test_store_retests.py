@@ -1,0 +1,132 @@
+"""Retests in the store (revision 0008), on SQLite and PostgreSQL: stored with the updated record,
+its screening and the next block in one transaction; the intake values stay the baseline; a
+paused program is never replaced; bundles carry retests.  Invented people only."""
+
+from __future__ import annotations
+
+import json
+from datetime import date, timedelta
+
+import pytest
+from sqlalchemy import create_engine, text
+
+from prescribe.clinic.reassess import reassess_person
+from prescribe.errors import ConflictError, InputError
+from prescribe.outcomes.retest import parse_retest
+from prescribe.store import HEAD_REVISION, open_store
+from session_support import person, plan_dict
+
+PID = "RT-STORE-1"
+
+
+def _store(where, weeks_ago=13):
+    s = open_store(where)
+    start = date.today() - timedelta(days=7 * weeks_ago)
+    s.save_patient(person(PID), None, "EP One", plan=plan_dict(PID, weeks=26, start=start))
+    return s, start
+
+
+def _retest(day, **fields):
+    data = {"patient_id": PID, "date": day.isoformat(), "falls_since_last": 0}
+    data.update(fields)
+    return parse_retest(data)
+
+
+def test_a_retest_is_stored_with_the_record_the_screening_and_the_next_block(new_db):
+    s, start = _store(new_db())
+    with s:
+        out = reassess_person(s, _retest(date.today() - timedelta(days=14), timed_up_and_go_s=6.0,
+                                         chair_stand_30s=18, height_cm=162.5), clinician="EP One")
+        assert out["decision"] == "continue"
+        assert out["next_block"]["program_version"] == 2 == s.latest_program_version(PID)
+        assert s.get_program(PID)["block"]["after_retest"] == out["date"]
+        assert s.get_patient(PID).timed_up_and_go_s == 6.0      # the record's current value
+        assert s.record_version(PID) == 2
+        rows = s.retests(PID)
+        assert rows[0]["previous"]["timed_up_and_go_s"] == 7.5  # the intake value is kept
+        assert rows[0]["program_version"] == 2 and rows[0]["verdicts"]["timed_up_and_go_s"] == "improved"
+        # a second retest compares with the intake baseline and with the first retest
+        out2 = reassess_person(s, _retest(date.today(), timed_up_and_go_s=7.4), clinician="EP One")
+        tug = next(m for m in out2["measures"] if m["measure"] == "timed_up_and_go_s")
+        assert (tug["baseline"], tug["previous"], tug["now"]) == (7.5, 6.0, 7.4)
+        assert tug["verdict"] == "no real change" and tug["verdict_since_previous"] == "worse"
+        assert out2["decision"] == "hold" and out2["next_block"] is None
+        assert s.latest_program_version(PID) == 2               # hold: nothing replaced
+        assert [a["action"] for a in s.audit(PID)].count("retest_saved") == 2
+        assert s.retest_verdicts() == [(PID, "standard", json.dumps(
+            {m["measure"]: m["verdict"] for m in out2["measures"]}))]
+
+
+def test_a_retest_before_the_last_one_is_refused_and_nothing_is_stored(new_db):
+    s, start = _store(new_db())
+    with s:
+        reassess_person(s, _retest(date.today()), clinician="EP One")
+        with pytest.raises(InputError, match="date must be a date on or after the last stored retest"):
+            reassess_person(s, _retest(date.today() - timedelta(days=3)), clinician="EP One")
+        assert len(s.retests(PID)) == 1
+
+
+def test_a_paused_program_is_not_replaced(new_db):
+    s, start = _store(new_db())
+    with s:
+        plan = s.get_program(PID)
+        plan["paused"] = {"from_week": 3, "since": (start + timedelta(days=15)).isoformat(), "reason": "dizziness"}
+        s.save_program(PID, plan, "EP One", 1)
+        out = reassess_person(s, _retest(date.today()), clinician="EP One")
+        assert out["decision"] == "hold" and out["next_block"] is None
+        assert any("paused since" in r["message"] for r in out["reasons"])
+        assert s.latest_program_version(PID) == 2
+        # the store itself refuses a next block over a paused program, storing nothing
+        from prescribe.clinic.reassess import assess_retest
+        res = assess_retest(s, _retest(date.today()))
+        with pytest.raises(InputError, match="program must be a program that is not paused"):
+            s.save_retest(_retest(date.today()).model_dump(mode="json"), res["_record"], res["_screening"], "EP One",
+                          previous={}, result={"decision": "continue"},
+                          based_on_record_version=res["_based_on_record_version"], plan=plan_dict(PID), based_on_version=2)
+        assert len(s.retests(PID)) == 1
+
+
+def test_a_record_changed_meanwhile_is_a_conflict(new_db):
+    s, _ = _store(new_db())
+    with s:
+        from prescribe.clinic.reassess import assess_retest
+        res = assess_retest(s, _retest(date.today()))
+        s.save_patient(person(PID, pain_score=2), None, "EP Two")
+        with pytest.raises(ConflictError, match="nothing was stored"):
+            s.save_retest(_retest(date.today()).model_dump(mode="json"), res["_record"], res["_screening"], "EP One",
+                          previous=res["_previous"], result={"decision": "hold"},
+                          based_on_record_version=res["_based_on_record_version"])
+        assert s.retests(PID) == []
+
+
+def test_bundles_carry_retests(new_db):
+    s, _ = _store(new_db("a"))
+    with s:
+        reassess_person(s, _retest(date.today(), chair_stand_30s=17), clinician="EP One")
+        bundle = s.export_patient(PID)
+    assert len(bundle["retests"]) == 1 and bundle["retests"][0]["retest"]["chair_stand_30s"] == 17
+    with open_store(new_db("b")) as t:
+        assert t.import_bundle(bundle)["retests"] == 1
+        assert t.export_patient(PID) == bundle | {"tool_version": bundle["tool_version"]}
+        assert t.retests(PID)[0]["previous"]["chair_stand_30s"] == 15
+    broken = json.loads(json.dumps(bundle))
+    broken["retests"][0]["retest"]["tandem_stance_s"] = 30
+    with open_store(new_db("c")) as u, pytest.raises(InputError, match=r"retests\[0\]\.retest\.tandem_stance_s"):
+        u.import_bundle(broken)
+
+
+def test_a_store_at_revision_0006_upgrades_and_keeps_its_rows(new_db):
+    from test_store import _alembic_upgrade
+    where = new_db("old")
+    _alembic_upgrade(where, "0006")
+    engine = create_engine(where if "://" in where else f"sqlite:///{where}")
+    rec = json.dumps(person(PID).model_dump(mode="json"))
+    with engine.begin() as conn:
+        conn.execute(text("INSERT INTO people (patient_id, record_json, created, updated, record_version) VALUES "
+                          "(:p, :rec, '2026-01-01T00:00:00+00:00', '2026-01-01T00:00:00+00:00', 1)"),
+                     {"p": PID, "rec": rec})
+    engine.dispose()
+    with open_store(where) as s:
+        assert s.revision() == HEAD_REVISION == "0008"
+        assert s.get_patient(PID) == person(PID)
+        assert s.retests(PID) == []
