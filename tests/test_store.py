@@ -226,7 +226,7 @@ def test_export_import_round_trip_is_exact(store, new_db):
     with open_store(new_db("other")) as other:
         out = other.import_bundle(wire)
         assert out == {"patient_id": "TEST-0001", "status": "imported", "screenings": 2, "program_versions": 2,
-                       "session_logs": 1, "sessions": 0, "sensor_summaries": 0,
+                       "session_logs": 1, "sessions": 0, "sensor_summaries": 0, "retests": 0,
                        "audit_entries": len(bundle["audit"])}
         assert other.export_patient("TEST-0001") == bundle
         assert other.program_versions("TEST-0001") == store.program_versions("TEST-0001")
