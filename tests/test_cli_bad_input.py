@@ -110,6 +110,10 @@ OUT_COMMANDS = {
     ("adjust",): ["adjust", "NTC-0012"],
     ("caseload", "export"): ["caseload", "export"],
     ("caseload", "whatif"): ["caseload", "whatif"],
+    ("caseload", "outcomes"): ["caseload", "outcomes"],
+    ("progress",): ["progress", "NTC-0012"],
+    ("fhir", "import"): ["fhir", "import", "bundle.json"],
+    ("fhir", "export"): ["fhir", "export", "NTC-0012"],
 }
 
 

@@ -223,6 +223,13 @@ def _check_one(record, options) -> dict:
             assert refused.value in options.step_up_weeks
             refusal_is_justified(record, screening, options, refused)
             return {"refused": "step_up_weeks"}
+        if refused.rule == "carer_led":
+            # A short carer-led program (Montero-Odasso et al. 2022, from memory; common practice):
+            # refused only for a carer-led person asking for more sessions than it holds.
+            assert screening.carer_led and refused.value > {"impact_sessions_per_week": 2,
+                                                             "resistance_sessions_per_week": 1,
+                                                             "balance_sessions_per_week": 2}[refused.field]
+            return {"refused": "carer_led"}
         # Otherwise only a start level above the cap may be refused, and it must say so (rule 1).
         vertebral = any(f.site == "vertebra" for f in record.fractures)
         name = options.template or ("post_vertebral_fracture" if vertebral else "standard")

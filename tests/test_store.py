@@ -524,7 +524,7 @@ def test_revision_0007_fills_the_record_schema_from_the_stored_records(new_db):
     engine.dispose()
     assert json.loads(json.dumps(rows["OLD-V2"].model_dump(mode="json")))["record_version"] == 2
     with open_store(where) as s:
-        assert s.revision() == HEAD_REVISION == "0007"
+        assert s.revision() == HEAD_REVISION  # 0007 and every revision after it applied
         listed = {r["patient_id"]: r for r in s.list_patients()}
         assert {p: r["record_schema"] for p, r in listed.items()} == {"OLD-V1": 1, "OLD-V2": 2}
         assert {p: r["record_version"] for p, r in listed.items()} == {"OLD-V1": 3, "OLD-V2": 3}  # untouched

@@ -377,7 +377,9 @@ def test_a_page_builds_only_what_a_first_visit_shows(tmp_db):
     app = ClinicApp(ClinicSession(store_url=tmp_db), warm_up=True)
     opened = _widget_models() - before
     assert not (app.live.section.built or app.sensor_panel.section.built or app.templates_view.section.built)
-    assert opened < 300, f"{opened} widget models at page open"
+    # The version-2 intake form (medicines, operations, cancer, Z-scores, the person's situation) and
+    # the record-system upload added about 40 models to the first page (was under 300 before them).
+    assert opened < 340, f"{opened} widget models at page open"
     app.templates_view.open()
     assert app.templates_view.section.built and _widget_models() - before > opened + 300
     assert "standard@1" in app.templates_view.list_box.value  # filled when opened

@@ -52,7 +52,7 @@ class _Builder(_Selection, _Progression, _Dosing, _Layout):
                 raise PlanRequestRefused("carer_led", f"{name} {given} is more than a short carer-led program "
                                          f"holds ({value}; at most {CARER_LED_MAX_DAYS} days a week)",
                                          field=name, value=given)
-            if name not in fixed:
+            if name not in fixed or given is None:     # None: the planner's choice
                 update[name] = value
         if update:
             self.options = options = options.model_copy(update=update)
