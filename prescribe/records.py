@@ -682,19 +682,25 @@ def record_json_schema() -> dict:
 
 RECORD_SCHEMA = PatientRecord.model_json_schema()
 
-#: Per top-level field: label, unit, bounds, typical range, step and help text, for forms.
-FIELD_META: dict[str, dict] = {}
-for _name, _node in RECORD_SCHEMA["properties"].items():
-    _r = _resolve(_node, RECORD_SCHEMA.get("$defs", {}))
-    FIELD_META[_name] = {
-        "label": _r.get("label", _node.get("label", _name.replace("_", " ").capitalize())),
-        "unit": _r.get("unit"),
-        "minimum": _r.get("minimum"),
-        "maximum": _r.get("maximum"),
-        "soft_range": _r.get("soft_range"),
-        "step": _r.get("step"),
-        "type": _r.get("type"),
-        "description": _node.get("description", _r.get("description", "")),
-        "required": _name in RECORD_SCHEMA.get("required", []),
-        "allowed": describe_allowed((_name,)),
+def field_meta(schema: dict, name: str, allowed: str) -> dict:
+    """Label, unit, bounds, typical range, step, help text and what is allowed of one top-level field
+    of a model's JSON schema (the record's, or another record's such as the retest's), for forms."""
+    node = schema["properties"][name]
+    r = _resolve(node, schema.get("$defs", {}))
+    return {
+        "label": r.get("label", node.get("label", name.replace("_", " ").capitalize())),
+        "unit": r.get("unit"),
+        "minimum": r.get("minimum"),
+        "maximum": r.get("maximum"),
+        "soft_range": r.get("soft_range"),
+        "step": r.get("step"),
+        "type": r.get("type"),
+        "description": node.get("description", r.get("description", "")),
+        "required": name in schema.get("required", []),
+        "allowed": allowed,
     }
+
+
+#: Per top-level field: label, unit, bounds, typical range, step and help text, for forms.
+FIELD_META: dict[str, dict] = {name: field_meta(RECORD_SCHEMA, name, describe_allowed((name,)))
+                               for name in RECORD_SCHEMA["properties"]}

@@ -24,7 +24,7 @@ from pydantic.fields import FieldInfo
 from pydantic_core import PydanticUndefined
 
 from ..errors import FieldProblem, InputError
-from ..records import FIELD_META, PatientRecord, TScores, ZScores, _meta, _resolve
+from ..records import FIELD_META, PatientRecord, TScores, ZScores, _meta, _resolve, field_meta
 
 __all__ = ["RetestRecord", "RETEST_MEASURES", "RETEST_FIELD_META", "RETEST_SCHEMA", "parse_retest",
            "check_retest_date"]
@@ -125,23 +125,12 @@ _OWN_ALLOWED = {
 #: Per top-level field: label, unit, bounds, typical range, step, help text and what is allowed,
 #: for the app's retest form (like :data:`prescribe.records.FIELD_META` for the intake form).
 RETEST_FIELD_META: dict[str, dict] = {}
-for _name, _node in RETEST_SCHEMA["properties"].items():
-    _r = _resolve(_node, RETEST_SCHEMA.get("$defs", {}))
+for _name in RETEST_SCHEMA["properties"]:
     _shared = FIELD_META.get(_name) if _name in RETEST_MEASURES or _name in ("patient_id", "t_scores", "z_scores") \
         else None
-    RETEST_FIELD_META[_name] = {
-        "label": _r.get("label", _node.get("label", _name.replace("_", " ").capitalize())),
-        "unit": _r.get("unit"),
-        "minimum": _r.get("minimum"),
-        "maximum": _r.get("maximum"),
-        "soft_range": _r.get("soft_range"),
-        "step": _r.get("step"),
-        "type": _r.get("type"),
-        "description": _node.get("description", _r.get("description", "")),
-        "required": _name in RETEST_SCHEMA.get("required", []),
-        "allowed": (_shared["allowed"] + (", or null when not measured" if _name in RETEST_MEASURES else "")
-                    if _shared else _OWN_ALLOWED.get(_name, "")),
-    }
+    RETEST_FIELD_META[_name] = field_meta(
+        RETEST_SCHEMA, _name, (_shared["allowed"] + (", or null when not measured" if _name in RETEST_MEASURES else "")
+                               if _shared else _OWN_ALLOWED.get(_name, "")))
 
 
 def _allowed(loc: tuple) -> str:
