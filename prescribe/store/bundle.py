@@ -260,36 +260,24 @@ def parse_bundle(data: Any, source: str | None = None) -> dict:
         if s.program_version is not None and s.program_version not in versions:
             problems.append(FieldProblem(f"session_logs[{i}].program_version", s.program_version,
                                          "a program version in this bundle, or null"))
-    from ..sessions.records import parse_session
-    for i, s in enumerate(bundle.sessions):
-        if s.program_version is not None and s.program_version not in versions:
-            problems.append(FieldProblem(f"sessions[{i}].program_version", s.program_version,
-                                         "a program version in this bundle, or null"))
-        try:
-            rec = parse_session(s.session)
-        except InputError as exc:
-            problems.extend(FieldProblem(f"sessions[{i}].session.{q.field}", q.value, q.allowed, q.kind)
-                            for q in exc.problems)
-            continue
-        if rec.patient_id != pid:
-            problems.append(FieldProblem(f"sessions[{i}].session.patient_id", rec.patient_id,
-                                         f"the bundle's patient_id {pid!r}"))
-        out["sessions"][i]["session"] = rec.model_dump(mode="json")
     from ..outcomes.retest import parse_retest
-    for i, r in enumerate(bundle.retests):
-        if r.program_version is not None and r.program_version not in versions:
-            problems.append(FieldProblem(f"retests[{i}].program_version", r.program_version,
-                                         "a program version in this bundle, or null"))
-        try:
-            rec = parse_retest(r.retest)
-        except InputError as exc:
-            problems.extend(FieldProblem(f"retests[{i}].retest.{q.field}", q.value, q.allowed, q.kind)
-                            for q in exc.problems)
-            continue
-        if rec.patient_id != pid:
-            problems.append(FieldProblem(f"retests[{i}].retest.patient_id", rec.patient_id,
-                                         f"the bundle's patient_id {pid!r}"))
-        out["retests"][i]["retest"] = rec.model_dump(mode="json")
+    from ..sessions.records import parse_session
+    # Sessions and retests: each names a program version of this bundle and is one of the person's own.
+    for key, inner, parse in (("sessions", "session", parse_session), ("retests", "retest", parse_retest)):
+        for i, item in enumerate(getattr(bundle, key)):
+            if item.program_version is not None and item.program_version not in versions:
+                problems.append(FieldProblem(f"{key}[{i}].program_version", item.program_version,
+                                             "a program version in this bundle, or null"))
+            try:
+                rec = parse(getattr(item, inner))
+            except InputError as exc:
+                problems.extend(FieldProblem(f"{key}[{i}].{inner}.{q.field}", q.value, q.allowed, q.kind)
+                                for q in exc.problems)
+                continue
+            if rec.patient_id != pid:
+                problems.append(FieldProblem(f"{key}[{i}].{inner}.patient_id", rec.patient_id,
+                                             f"the bundle's patient_id {pid!r}"))
+            out[key][i][inner] = rec.model_dump(mode="json")
     if problems:
         raise InputError(problems, source)
     return out
