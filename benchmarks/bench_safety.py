@@ -29,7 +29,7 @@ sys.path.insert(0, str(ROOT))
 sys.path.insert(0, str(ROOT / "benchmarks"))
 
 from bench_planner import invented_record  # noqa: E402
-from prescribe.planning import safety  # noqa: E402
+from prescribe import safety  # noqa: E402
 from prescribe.catalogue import default_catalogue  # noqa: E402
 from prescribe.plan_schema import parse_plan  # noqa: E402
 from prescribe.planning import PlanOptions, build_plan  # noqa: E402

@@ -30,7 +30,7 @@ sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "tests"))
 
 from prescribe.sessions.records import parse_session  # noqa: E402
 from prescribe.store import open_store  # noqa: E402
-from prescribe.store.adjust import adjust_person  # noqa: E402
+from prescribe.clinic.advice import adjust_person  # noqa: E402
 from session_support import person, plan_dict  # noqa: E402
 
 GOAL_MS = 20.0

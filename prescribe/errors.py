@@ -107,11 +107,11 @@ class PlanRequestRefused(PrescribeError):
 
 
 class UnsafeProgram(InputError, PlanRequestRefused):
-    """A program breaks a safety rule (:mod:`prescribe.planning.safety`): refused at every door.
+    """A program breaks a safety rule (:mod:`prescribe.safety`): refused at every door.
 
     Bad input (the command line exits 2); also a :class:`PlanRequestRefused`, so code
     that refuses an edit catches both.  ``violations`` holds every
-    :class:`~prescribe.planning.safety.SafetyViolation`; ``rule`` is the first one's rule id.
+    :class:`~prescribe.safety.SafetyViolation`; ``rule`` is the first one's rule id.
     The message names the door, then each broken rule with its week, its exercise and
     what is allowed.
     """

@@ -16,7 +16,7 @@ from prescribe.handout.content import person_cautions, person_name
 from prescribe.intensity import pct_1rm
 from prescribe.plan_schema import parse_plan
 from prescribe.planning import PlanOptions, build_plan
-from prescribe.planning.safety import assert_safe, check_program, is_draft, record_clearance
+from prescribe.safety import assert_safe, check_program, is_draft, record_clearance
 from prescribe.records import parse_record
 from prescribe.screening import screen
 

@@ -17,7 +17,7 @@ FORBIDDEN = ("ipywidgets", "bqplot", "voila")
 #: Modules that must exist: the checks below would be hollow without them.
 CORE = ("prescribe.records", "prescribe.errors", "prescribe.screening.rules", "prescribe.screening",
         "prescribe.catalogue", "prescribe.loading.dose", "prescribe.loading.mechanics", "prescribe.planning",
-        "prescribe.planning.safety", "prescribe.planning.options", "prescribe.clinic.caseload",
+        "prescribe.safety", "prescribe.planning.options", "prescribe.clinic.caseload",
         "prescribe.handout", "prescribe.store")
 
 
@@ -76,7 +76,7 @@ def _loaded_after_importing(modules: list[str], prefixes: tuple[str, ...]) -> st
 
 def test_the_domain_never_imports_the_store_the_handout_or_the_app():
     domain = [m for m in non_ui_modules() if not _under(m, ABOVE_DOMAIN + COMPOSERS)]
-    assert "prescribe.planning.safety" in domain and "prescribe.planning" in domain
+    assert "prescribe.safety" in domain and "prescribe.planning" in domain
     assert not any(_under(m, COMPOSERS) for m in domain)
     found = _loaded_after_importing(domain, ABOVE_DOMAIN)
     assert found == "", f"the domain imports {found}"
@@ -146,17 +146,22 @@ def test_no_two_store_modules_import_each_other_in_a_loop():
         if start != "prescribe.store":
             visit(start, [start])
     assert not loops, f"import loops in the store: {loops[0]}"
+
+
 def planning_modules() -> list[str]:
+    """The planner and the safety check's package (its own, imported by every door)."""
     import prescribe.planning
-    names = [m.name for m in pkgutil.walk_packages(prescribe.planning.__path__, "prescribe.planning.")]
-    return ["prescribe.planning", *sorted(names)]
+    import prescribe.safety
+    names = [m.name for pkg in (prescribe.planning, prescribe.safety)
+             for m in pkgutil.walk_packages(pkg.__path__, pkg.__name__ + ".")]
+    return ["prescribe.planning", "prescribe.safety", *sorted(names)]
 
 
 def test_planning_never_imports_pandas():
     """The planner and its safety check stay free of pandas: tables of a plan are built
     above them (prescribe.tables), so the planner loads fast in the app and at the command line."""
     modules = planning_modules()
-    assert {"prescribe.planning.builder", "prescribe.planning.safety", "prescribe.planning.options",
+    assert {"prescribe.planning.builder", "prescribe.safety", "prescribe.planning.options",
             "prescribe.planning.templates"} <= set(modules)
     code = ("import importlib, sys\n"
             f"for name in {modules!r}:\n"

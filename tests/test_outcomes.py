@@ -12,7 +12,7 @@ from prescribe.outcomes.decide import decide, next_block, stimulus_weeks
 from prescribe.outcomes.measures import compare, dxa_lsc_sd, height_loss_cm, measure_rules, snapshot
 from prescribe.outcomes.retest import RETEST_FIELD_META, RetestRecord, check_retest_date, parse_retest
 from prescribe.plan_schema import in_weak_window, program_week, week_start
-from prescribe.planning.safety import check_program, rescreen
+from prescribe.safety import check_program, rescreen
 from prescribe.records import FIELD_META, PatientRecord
 from session_support import START, person, plan_dict
 

@@ -22,7 +22,7 @@ from prescribe.sessions.engine import assess
 from prescribe.sessions.pause import REASON_MAX_CHARS, pause_caution
 from prescribe.sessions.records import parse_session
 from prescribe.store import open_store
-from prescribe.store.adjust import adjust_person, resume_person
+from prescribe.clinic.advice import adjust_person, resume_person
 from session_support import day_of, full_weeks, logged, person, plan_dict
 
 PID = "PAUSE-CLI-1"

@@ -135,7 +135,7 @@ def test_the_weak_window_is_weeks_3_to_5_after_each_step_up():
 def test_one_table_of_impact_level_labels():
     import prescribe.handout.content as content
     import prescribe.planning as planner
-    import prescribe.planning.safety as safety
+    import prescribe.safety as safety
     from prescribe.catalogue import IMPACT_LEVEL_LABELS
 
     assert IMPACT_LEVEL_LABELS == {0: "no impact", 1: "low impact", 2: "moderate impact", 3: "high impact"}

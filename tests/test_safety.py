@@ -1,4 +1,4 @@
-"""The one safety check (prescribe.planning.safety): each rule at its boundary, with its source.
+"""The one safety check (prescribe.safety): each rule at its boundary, with its source.
 
 Every person here is invented (pseudonymous ids of an invented clinic).  Plans are built by
 the planner and then edited the way a clinician might edit a plan file by hand; each check
@@ -14,7 +14,7 @@ from prescribe.errors import InputError, PlanRequestRefused, UnsafeProgram
 from prescribe.plan_schema import parse_plan
 from prescribe.planning import PlanOptions, build_plan, replace_exercise
 from prescribe.records import parse_record
-from prescribe.planning.safety import (RULES, SafetyViolation, assert_safe, check_program, is_draft, limits_for, pct_1rm,
+from prescribe.safety import (RULES, SafetyViolation, assert_safe, check_program, is_draft, limits_for, pct_1rm,
                               record_clearance, rpe_top, strictest_screening)
 from prescribe.screening import screen
 

@@ -210,7 +210,7 @@ def test_app_leaving_out_all_balance_work_is_refused(tmp_db):
 def test_every_app_edit_passes_the_safety_check(tmp_db, monkeypatch, edit):
     """Each edit goes through the one check: with a check that refuses everything, every
     edit is refused and the program kept; with the real check, it is applied."""
-    import prescribe.planning.safety as safety
+    import prescribe.safety as safety
 
     s = _session("falls", tmp_db)
     before = s.plan

@@ -32,7 +32,7 @@ from prescribe.catalogue import default_catalogue
 from prescribe.errors import InputError, PlanRequestRefused
 from prescribe.plan_schema import parse_plan
 from prescribe.planning import PlanOptions, build_plan, replace_exercise
-from prescribe.planning.safety import assert_safe, pct_1rm
+from prescribe.safety import assert_safe, pct_1rm
 from prescribe.screening import screen
 from test_planner_properties import seeded_options, seeded_record
 

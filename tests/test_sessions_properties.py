@@ -43,7 +43,7 @@ def _safety(plan: dict) -> list:
     parsed = parse_plan(plan)
     problems = list(check_plan(parsed))
     try:
-        from prescribe.planning.safety import check_program
+        from prescribe.safety import check_program
     except ImportError:
         return problems
     return problems + [v.message for v in check_program(parsed)]

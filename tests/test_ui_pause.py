@@ -16,7 +16,7 @@ import pytest
 from prescribe.plan_schema import parse_plan
 from prescribe.sessions.records import parse_session
 from prescribe.store import open_store
-from prescribe.store.adjust import adjust_person
+from prescribe.clinic.advice import adjust_person
 from prescribe.ui import ClinicApp, ClinicSession
 from session_support import person, plan_dict
 

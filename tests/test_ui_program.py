@@ -194,8 +194,8 @@ def test_a_harder_swap_in_weeks_3_to_5_of_a_running_program_is_refused_in_plain_
     from datetime import date, timedelta
 
     from prescribe.catalogue import default_catalogue
-    from prescribe.planning.safety.facts import _catalogue_entries
-    from prescribe.planning.safety.progression import harder_reason
+    from prescribe.safety.facts import _catalogue_entries
+    from prescribe.safety.progression import harder_reason
 
     assert app.session.set_start_date(date.today() - timedelta(days=14))  # today is week 3
     entries = _catalogue_entries(default_catalogue())

@@ -42,7 +42,7 @@ def run(args) -> int:
     plan = parse_plan(read_json_file(args.plan, "PLAN.json"), source=args.plan)
     # A plan file can be edited by hand: the one safety check runs before anything is
     # written (exit 2 and no file on a refusal; docs/safety.md).
-    from ..planning.safety import assert_safe
+    from ..safety import assert_safe
     assert_safe(plan, door=str(args.plan), record=_stored_record(args.db, plan.patient_id),
                 require_record=True)
     sensor = _sensor_summary(args.sensor, plan.patient_id) if args.sensor else None

@@ -131,7 +131,7 @@ def run(args) -> int:
     options = _options(args)
     start = date.today() if args.start_date is None else parse_day(args.start_date, "--start-date")
     record = load_record(args.patient)
-    from ..planning.safety import assert_safe, record_clearance
+    from ..safety import assert_safe, record_clearance
 
     try:
         # A clearance recorded with the plan lifts what the screening held until then (docs/safety.md).

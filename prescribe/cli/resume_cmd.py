@@ -13,7 +13,7 @@ from __future__ import annotations
 
 from ..errors import NotFoundError
 from ..sessions.pause import REASON_MAX_CHARS, checked_reason
-from ..store.adjust import resume_person
+from ..clinic.advice import resume_person
 from .output import emit_json
 from .session_cmd import DB_HELP, _open, _unknown, clinician_of
 

@@ -16,7 +16,7 @@ from pathlib import Path
 from ..errors import InputError, NotFoundError
 from ..fileio import write_atomically
 from ..records import read_json_file
-from ..store.adjust import adjust_person
+from ..clinic.advice import adjust_person
 from .output import emit_json, emit_table
 
 DB_HELP = ("the store: a file path or a database URL (default: $PRESCRIBE_DB, else "

@@ -148,7 +148,7 @@ def plan_key(record, screening) -> tuple:
     change no figure), and from the record whether there is a vertebral fracture, whether
     there are two or more low-trauma fractures, and marked thoracic kyphosis
     (``prescribe/planning/``); the safety check reads the same screening marks
-    (``prescribe/planning/safety/``); version 2 adds the heaviest load, carer-led sessions and
+    (``prescribe/safety/``); version 2 adds the heaviest load, carer-led sessions and
     the held volume from the screening, and from the record the frailty the planner reads (the
     chair stand) and the tandem stance held.  A test checks that cached and uncached what-ifs agree.
     """

@@ -116,7 +116,7 @@ def assess_retest(store, retest: RetestRecord, *, today: date | None = None, sou
     ``_previous``, ``_based_on_record_version``, ``_based_on_version``, ``_verdicts``,
     ``_template``) that :func:`reassess_person` stores.
     """
-    from ..planning.safety import check_program, rescreen
+    from ..safety import check_program, rescreen
 
     today = today or date.today()
     pid = retest.patient_id

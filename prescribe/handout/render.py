@@ -19,7 +19,7 @@ from ..cautions import PERSON_SHORT_CAUTION, SHORT_CAUTION
 from ..errors import InputError
 from ..fileio import write_atomically
 from ..plan_schema import PLAN_FORMAT_VERSION, Plan, parse_plan
-from ..planning.safety import is_draft
+from ..safety import is_draft
 from ..settings import Clinic, clinic as clinic_from_settings
 from . import charts, content, explain_figures, pdf
 from .sensor_chart import sensor_charts

@@ -160,7 +160,7 @@ def next_block(plan: dict, record: PatientRecord, retest_day: date, *, template=
     """
     from ..planning import PlanOptions, build_plan
     from ..planning.editing import fixed_options
-    from ..planning.safety import assert_safe, record_clearance
+    from ..safety import assert_safe, record_clearance
     weeks = plan.get("weeks") or []
     if not weeks:
         raise InputError.single("program", plan.get("patient_id"), "a stored program with at least one week")
@@ -190,7 +190,7 @@ def next_block(plan: dict, record: PatientRecord, retest_day: date, *, template=
     # Never above what the re-screened record and the template allow (a fall may lower the cap).
     from ..planning.builder import _default_template
     from ..planning.rules import load_template
-    from ..planning.safety import rescreen
+    from ..safety import rescreen
     tpl_obj = template if template is not None else load_template(options.get("template")
                                                                  or _default_template(record))
     cap = min(rescreen(record, cleared).max_impact_level, int(tpl_obj.impact["max_level"]))

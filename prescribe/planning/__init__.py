@@ -53,7 +53,7 @@ The package, one concern a module:
 - :mod:`.layout`: the days of a week and what each session holds;
 - :mod:`.builder`: :func:`build_plan` (the builder joining the above) and the thin :func:`check_plan`;
 - :mod:`.editing`: swaps (:func:`replace_exercise`) and the options and swaps a plan was made with;
-- :mod:`.safety`: the one safety check of every program, its rules one function each;
+- :mod:`prescribe.safety` (its own package): the one safety check of every program, its rules one function each;
 - :mod:`.templates`: the reference panel, template checks and comparison.
 
 The public names below are importable from ``prescribe.planning``; each is loaded from

@@ -5,7 +5,7 @@ patterns to avoid), then lets :class:`_Builder` choose the exercises
 (:mod:`.selection`), schedule the progression (:mod:`.progression`), dose the sessions
 (:mod:`.dosing`) and lay out the weeks (:mod:`.layout`), and assembles the plan with the
 sources it uses and its cautions.  :func:`check_plan` is the one safety check
-(:mod:`prescribe.planning.safety`) as text with the planner's rule numbers.
+(:mod:`prescribe.safety`) as text with the planner's rule numbers.
 """
 
 from __future__ import annotations
@@ -223,7 +223,7 @@ def build_plan(record: PatientRecord, screening: ScreeningResult | None = None,
     cleared : bool
         A clinician records the clearance with this program: the referral, caps and volume
         hold that the screening rules held until a clearance are lifted (the caller records
-        who and when with :func:`prescribe.planning.safety.record_clearance`).
+        who and when with :func:`prescribe.safety.record_clearance`).
     Returns
     -------
     Plan
@@ -244,7 +244,7 @@ def build_plan(record: PatientRecord, screening: ScreeningResult | None = None,
     J Exp Biol 204:3389-3399; Turner & Robling 2003, Exerc Sport Sci Rev 31(1):45-50.
     """
     options = options or PlanOptions()
-    from .safety import rescreen, strictest_screening
+    from ..safety import rescreen, strictest_screening
     if screening is None or (cleared and not screening.cleared):
         screening = rescreen(record, cleared)
     else:
@@ -290,7 +290,7 @@ def _assemble(data: dict) -> Plan:
     return Plan.model_validate({**data, "weeks": weeks})
 
 
-#: The rule number of docs/plan.md each rule of :mod:`prescribe.planning.safety` belongs to (for check_plan's text).
+#: The rule number of docs/plan.md each rule of :mod:`prescribe.safety` belongs to (for check_plan's text).
 _PLAN_RULE_NUMBER = {
     "impact_cap": "rule 1", "avoided_pattern": "rule 1", "week_level_matches": "rule 1",
     "one_level_at_a_time": "rule 2", "weak_window": "rule 3",
@@ -302,7 +302,7 @@ _PLAN_RULE_NUMBER = {
 def check_plan(plan: Plan, screening: ScreeningResult | None = None) -> list[str]:
     """The safety check's violations as text; empty when the plan is safe.
 
-    A thin wrapper of :func:`prescribe.planning.safety.check_program` (the one check, called at
+    A thin wrapper of :func:`prescribe.safety.check_program` (the one check, called at
     every door).  Each message starts with the rule: ``"rule 3: week 9 ..."`` for the
     planner's numbered rules 1-5 (docs/plan.md), or the safety rule's id for the others.
 
@@ -313,7 +313,7 @@ def check_plan(plan: Plan, screening: ScreeningResult | None = None) -> list[str
         A screening to hold the plan to, besides the one stored in the plan (the
         stricter of the two applies).
     """
-    from .safety import check_program
+    from ..safety import check_program
 
     return [f"{_PLAN_RULE_NUMBER.get(v.rule, v.rule)}: {v.message}" for v in check_program(plan, screening)]
 

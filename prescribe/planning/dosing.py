@@ -56,7 +56,7 @@ def _exercise(e: _Ex, **kw) -> dict:
          "directions": list(e.directions), "patterns": sorted(e.patterns),
          "rest_s": None, "bout_gap_hours": None, "notes": "", "supervised": False}
     d.update(kw)
-    # Supervised wherever 80% 1RM or more, or high impact, is prescribed (prescribe.planning.safety,
+    # Supervised wherever 80% 1RM or more, or high impact, is prescribed (prescribe.safety,
     # rule supervision: Watson et al. 2018; common practice for high impact).
     d["supervised"] = bool(d["supervised"] or d["impact_level"] >= 3
                            or (_pct_1rm(d["intensity"]) or 0) >= SUPERVISED_FROM_PCT_1RM)

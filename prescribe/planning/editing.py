@@ -1,7 +1,7 @@
 """Editing a built plan: swapping an exercise, and reading back the options and swaps a
 plan was made with, so a reopened program can be rebuilt with one change.
 
-Every edit passes the one safety check (:func:`prescribe.planning.safety.assert_safe`).
+Every edit passes the one safety check (:func:`prescribe.safety.assert_safe`).
 """
 
 from __future__ import annotations
@@ -48,7 +48,7 @@ def replace_exercise(plan: Plan, old_id: str, new_id: str, catalogue=None, *, we
     InputError
         ``old_id`` is not in the plan or ``new_id`` is not in the catalogue.
     UnsafeProgram
-        The swapped plan would break a rule of :func:`prescribe.planning.safety.check_program`
+        The swapped plan would break a rule of :func:`prescribe.safety.check_program`
         (an :class:`InputError` and a :class:`PlanRequestRefused`).
     """
     if catalogue is None:
@@ -85,7 +85,7 @@ def replace_exercise(plan: Plan, old_id: str, new_id: str, catalogue=None, *, we
         raise InputError.single("week", week, f"a week of the program, 1 to {len(plan.weeks)}")
     data["swaps"] = [*(data.get("swaps") or []), {"old": old_id, "new": new_id, "week": week}]
     new_plan = Plan.model_validate(data)
-    from .safety import assert_safe
+    from ..safety import assert_safe
     assert_safe(new_plan, door=f"replacing {old_id} with {new_id}", catalogue=catalogue)
     return new_plan
 

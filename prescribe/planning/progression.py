@@ -49,7 +49,7 @@ class _Progression:
         Impact and resistance are scheduled together: a new or larger stimulus of either
         kind (a step up in impact level, a move to the next resistance phase, and the start
         of the program) opens a window whose weeks 3 to 5 carry no escalation of any kind
-        (rule 3; prescribe.planning.safety rule weak_window).  There the impact level, its volume and
+        (rule 3; prescribe.safety rule weak_window).  There the impact level, its volume and
         the resistance phase are all held; a resistance phase that is due then starts after
         the window.
         """

@@ -140,7 +140,7 @@ def _spine_sparing(record: PatientRecord, screening: ScreeningResult, tpl: Templ
     spinal = sorted({"loaded_spinal_flexion", "loaded_spinal_twisting"} & set(screening.avoid))
     if spinal:
         # The safety check holds every program with a spinal pattern to avoid to spine-sparing
-        # loads (prescribe.planning.safety, rule spine_sparing_load): plan for them from the start.
+        # loads (prescribe.safety, rule spine_sparing_load): plan for them from the start.
         return True, "the screening asks to avoid " + " and ".join(p.replace("_", " ") for p in spinal)
     return False, ""
 

@@ -143,10 +143,10 @@ def random_records(n: int, seed: int = 2026) -> list[PatientRecord]:
 def safety_violations(plan, screening: ScreeningResult | None = None) -> list[dict]:
     """The safety rules a program breaks, each ``{rule, week, exercise_id, message, allowed, source}``.
 
-    One function, so the shared safety check (:func:`prescribe.planning.safety.check_program`)
+    One function, so the shared safety check (:func:`prescribe.safety.check_program`)
     is used wherever a template is reviewed.
     """
-    from .safety import check_program
+    from ..safety import check_program
 
     return [{"rule": str(v.rule), "week": v.week, "exercise_id": v.exercise_id, "message": str(v.message),
              "allowed": str(getattr(v, "allowed", "") or ""), "source": str(getattr(v, "source", "") or "")}

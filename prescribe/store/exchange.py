@@ -16,7 +16,7 @@ from ..cautions import STANDARD_CAUTIONS
 from ..errors import ConflictError, InputError, StoreError
 from ..plan_schema import parse_plan
 from ..records import parse_record
-from ..planning.safety import assert_safe
+from ..safety import assert_safe
 from . import models as m
 from .bundle import BUNDLE_FORMAT_VERSION, BUNDLE_KIND, has_display_name, parse_bundle, without_display_name
 from .engine import HEAD_REVISION, StoreBase, now_utc

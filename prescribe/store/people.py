@@ -15,7 +15,7 @@ from sqlalchemy.exc import IntegrityError
 
 from ..errors import ConflictError, InputError
 from ..records import PatientRecord, ScreeningResult, parse_record
-from ..planning.safety import assert_safe
+from ..safety import assert_safe
 from . import models as m
 from .engine import StoreBase, now_utc
 from .programs import _checked_plan, _insert_program, _latest_program

@@ -20,7 +20,7 @@ from sqlalchemy.engine import Connection
 from ..errors import ConflictError, InputError, NotFoundError, ProgramPaused
 from ..plan_schema import parse_plan
 from ..records import parse_record
-from ..planning.safety import assert_safe
+from ..safety import assert_safe
 from ..sessions.pause import active_pause, checked_reason, keeps_pause, lift_pause
 from . import models as m
 from .engine import StoreBase, now_utc

@@ -16,7 +16,7 @@ from sqlalchemy import func, select
 
 from ..errors import ConflictError, InputError
 from ..records import PatientRecord, ScreeningResult
-from ..planning.safety import assert_safe
+from ..safety import assert_safe
 from . import models as m
 from .engine import StoreBase, now_utc
 from .people import _insert_screening

@@ -36,7 +36,7 @@ def _planner():
 
 
 def _safety():
-    from ..planning import safety
+    from .. import safety
     return safety
 
 

@@ -367,7 +367,7 @@ class SessionsView(LazyPanel):
         self._advise()
 
     def _advise(self) -> None:
-        from ..store.adjust import adjust_person
+        from ..clinic.advice import adjust_person
         day = parse_day(self.date.value.strip(), "date") if self._date_ok() else date.today()
         self.advice = adjust_person(self.app.session.store, self.patient_id, today=min(day, date.today()))
         self.advice_view.value = advice_html(self.advice)
@@ -376,7 +376,7 @@ class SessionsView(LazyPanel):
 
     @guarded("Applying the advice")
     def on_apply(self) -> int | None:
-        from ..store.adjust import adjust_person
+        from ..clinic.advice import adjust_person
         if self.advice is None:
             raise InputError.single("advice", None, "advice worked out first (log a session or press Advise)")
         who = self.clinician.value.strip()
@@ -405,7 +405,7 @@ class SessionsView(LazyPanel):
         """Record the resumption of the paused program (the reason is required); the same
         function as ``prescribe resume``.  Returns the new program version, or None."""
         from ..settings import hub_login
-        from ..store.adjust import resume_person
+        from ..clinic.advice import resume_person
         if not self._ready():
             raise InputError.single("person", None, "a saved person with a saved program (open one first)")
         self.resume_msg.value = ""

@@ -14,7 +14,7 @@ from pathlib import Path
 
 from prescribe.sessions.records import parse_session
 from prescribe.store import open_store
-from prescribe.store.adjust import adjust_person
+from prescribe.clinic.advice import adjust_person
 
 from .conftest import open_app, shot, type_into
 

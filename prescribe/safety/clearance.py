@@ -5,7 +5,7 @@ from __future__ import annotations
 
 from typing import Iterator
 
-from ...plan_schema import Plan
+from ..plan_schema import Plan
 from .facts import _Facts
 from .model import SafetyViolation
 
@@ -40,7 +40,7 @@ def record_clearance(plan: Plan, cleared_by: str, cleared_at: str | None = None)
     """
     from datetime import datetime, timezone
 
-    from ...errors import InputError
+    from ..errors import InputError
 
     who = cleared_by.strip() if isinstance(cleared_by, str) else cleared_by
     if not isinstance(who, str) or not 1 <= len(who) <= 120 or not who.isprintable():

@@ -5,7 +5,7 @@ from __future__ import annotations
 
 from typing import Iterator
 
-from ...intensity import SUPERVISED_FROM_PCT_1RM, pct_1rm, rpe_top
+from ..intensity import SUPERVISED_FROM_PCT_1RM, pct_1rm, rpe_top
 from .facts import STRENGTH_CATEGORIES, _Facts
 from .model import SafetyViolation
 

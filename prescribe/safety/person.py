@@ -6,9 +6,9 @@ from __future__ import annotations
 
 from typing import Iterator
 
-from ...intensity import pct_1rm
-from ...records import FIELD_META
-from ..sources import (CARER_LED_MAX_DAYS, CARER_LED_MAX_EXERCISES, NARROW_STANCE_PATTERN, SRC_BALANCE_MEASURED,
+from ..intensity import pct_1rm
+from ..records import FIELD_META
+from ..planning.sources import (CARER_LED_MAX_DAYS, CARER_LED_MAX_EXERCISES, NARROW_STANCE_PATTERN, SRC_BALANCE_MEASURED,
                        SRC_CARER_LED, SRC_HOLD_VOLUME)
 from .facts import _Facts
 from .model import SafetyViolation

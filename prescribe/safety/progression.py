@@ -5,7 +5,7 @@ from __future__ import annotations
 
 from typing import Iterator
 
-from ...plan_schema import weak_window_weeks
+from ..plan_schema import weak_window_weeks
 from .facts import STRENGTH_CATEGORIES, _CatEntry, _Facts, pct_1rm, rpe_top
 from .model import SafetyViolation
 

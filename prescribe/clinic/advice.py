@@ -11,7 +11,7 @@ from __future__ import annotations
 from datetime import date
 
 from ..errors import InputError
-from .api import now_utc
+from ..store.api import now_utc
 
 
 def adjust_person(store, patient_id: str, *, today: date, apply: bool = False, clinician: str | None = None) -> dict:

@@ -5,9 +5,9 @@ from __future__ import annotations
 
 from typing import Iterable
 
-from ...plan_schema import Plan
-from ...records import PatientRecord, ScreeningResult
-from ...errors import UnsafeProgram
+from ..plan_schema import Plan
+from ..records import PatientRecord, ScreeningResult
+from ..errors import UnsafeProgram
 from .clearance import SRC_DRAFT, rule_draft_until_cleared
 from .facts import _Facts
 from .falls import SRC_BALANCE, SRC_FALLS_LIMITS, rule_balance_every_week, rule_falls_risk_limits
@@ -18,7 +18,7 @@ from .integrity import (SRC_CATALOGUE, SRC_FIGURES, SRC_SWAP, rule_catalogue_mat
 from .limits import limits_for
 from .person import (SRC_LOAD_CAP, rule_balance_within_measured, rule_carer_led, rule_hold_volume,
                      rule_load_cap)
-from ..sources import SRC_BALANCE_MEASURED, SRC_CARER_LED, SRC_HOLD_VOLUME
+from ..planning.sources import SRC_BALANCE_MEASURED, SRC_CARER_LED, SRC_HOLD_VOLUME
 from .model import Rule, SafetyViolation
 from .progression import SRC_ONE_LEVEL, SRC_REMODEL, rule_one_level_at_a_time, rule_weak_window
 from .strength import (SRC_RESISTANCE_DAYS, SRC_SPINE, SRC_SUPERVISION, rule_resistance_days,
@@ -87,7 +87,7 @@ def check_program(plan: Plan, screening: ScreeningResult | None = None, *, catal
         A subset of :data:`RULES` (default: all).
     """
     if catalogue is None:
-        from ...catalogue import default_catalogue
+        from ..catalogue import default_catalogue
         catalogue = default_catalogue()
     limits = limits_for(plan, screening, record=record)
     facts = _Facts(plan, limits, catalogue, record)

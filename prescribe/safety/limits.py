@@ -4,8 +4,8 @@ from __future__ import annotations
 
 from functools import lru_cache
 
-from ...plan_schema import Plan
-from ...records import PatientRecord, ScreeningResult
+from ..plan_schema import Plan
+from ..records import PatientRecord, ScreeningResult
 from .model import IMPACTS_CEILING, Limits
 
 SPINAL_PATTERNS = frozenset({"loaded_spinal_flexion", "loaded_spinal_twisting"})
@@ -113,6 +113,6 @@ def rescreen(record: PatientRecord, cleared: bool = False) -> ScreeningResult:
 
 @lru_cache(maxsize=256)
 def _rescreen_json(text: str, cleared: bool = False) -> ScreeningResult:
-    from ...records import PatientRecord as _Record
-    from ...screening import screen
+    from ..records import PatientRecord as _Record
+    from ..screening import screen
     return screen(_Record.model_validate_json(text), cleared=cleared)

@@ -6,7 +6,7 @@ from __future__ import annotations
 import math
 from typing import Iterator
 
-from ...catalogue import IMPACT_LEVEL_LABELS
+from ..catalogue import IMPACT_LEVEL_LABELS
 from .facts import _Facts
 from .model import SafetyViolation
 

@@ -10,9 +10,9 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from typing import Iterator
 
-from ...intensity import pct_1rm, rpe_top  # noqa: F401 - read by the rules through this module
-from ...plan_schema import Plan
-from ...records import PatientRecord
+from ..intensity import pct_1rm, rpe_top  # noqa: F401 - read by the rules through this module
+from ..plan_schema import Plan
+from ..records import PatientRecord
 from .model import Limits
 
 #: Categories of strength-type work (resistance, back extensors, posture).
