@@ -142,12 +142,8 @@ class UnsafeProgram(InputError, PlanRequestRefused):
 
 
 def _where(v) -> str:
-    parts = [f"rule {v.rule}"]
-    if v.week is not None:
-        parts.append(f"week {v.week}")
-    if v.exercise_id:
-        parts.append(f"exercise {v.exercise_id}")
-    return ", ".join(parts)
+    """Where a violation is (the violation's own words: :meth:`prescribe.safety.SafetyViolation.where`)."""
+    return v.where()
 
 
 class PlanFileError(InputError):

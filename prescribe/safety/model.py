@@ -30,14 +30,18 @@ class SafetyViolation:
     allowed: str
     source: str
 
+    def where(self) -> str:
+        """The rule, the week and the exercise, e.g. ``"rule weak_window, week 4, exercise box_step"``."""
+        parts = [f"rule {self.rule}"]
+        if self.week is not None:
+            parts.append(f"week {self.week}")
+        if self.exercise_id:
+            parts.append(f"exercise {self.exercise_id}")
+        return ", ".join(parts)
+
     def text(self) -> str:
         """One line naming the rule, the week, the exercise, the problem and what is allowed."""
-        where = [f"rule {self.rule}"]
-        if self.week is not None:
-            where.append(f"week {self.week}")
-        if self.exercise_id:
-            where.append(f"exercise {self.exercise_id}")
-        return f"{', '.join(where)}: {self.message}; allowed: {self.allowed}"
+        return f"{self.where()}: {self.message}; allowed: {self.allowed}"
 
     def as_dict(self) -> dict:
         return {"rule": self.rule, "week": self.week, "exercise_id": self.exercise_id,
