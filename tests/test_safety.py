@@ -653,5 +653,18 @@ def test_every_part_reads_intensity_text_with_the_one_reader():
         assert reader is intensity.pct_1rm
     # A hand-written range gives its top in every part (the check and the week figure agree).
     assert dosing.prescribed_pct_1rm([{"intensity": "80-85% 1RM"}, {"intensity": "70 % of 1 RM"}]) == 85
-    # LIFTMOR's supervised loads began at 80% 1RM (Watson et al. 2018, J Bone Miner Res 33:211-220).
-    assert program_model.SUPERVISED_FROM_PCT_1RM == intensity.SUPERVISED_FROM_PCT_1RM == 80
+    # LIFTMOR's supervised loads began at 80% 1RM (Watson et al. 2018, J Bone Miner Res 33:211-220);
+    # high impact (level 3) is supervised too (common practice).  The app, the planner and the check
+    # mark the same work as supervised, at and around both thresholds.
+    assert intensity.SUPERVISED_FROM_PCT_1RM == 80 and intensity.SUPERVISED_FROM_LEVEL == 3
+    from types import SimpleNamespace
+    for text, level, expected in (("80% 1RM", 0, True), ("79% 1RM", 0, False), ("75-80% 1RM", 0, True),
+                                  ("RPE 8", 2, False), ("", 3, True), ("RPE 5", 2, False)):
+        ex = SimpleNamespace(intensity=text, impact_level=level, supervised=False)
+        assert program_model.supervised(ex) is expected, text
+        assert intensity.needs_supervision(text, level) is expected, text
+    # One reader of an effort: "RPE 3 to 4" and "RPE 3-4" are the same range everywhere (Borg CR10).
+    for text in ("RPE 3-4", "RPE 3 to 4", "RPE 3\u20134"):
+        assert intensity.rpe_range(text) == (3.0, 4.0) and intensity.rpe_top(text) == 4.0, text
+        assert content.plain_intensity(text).startswith("effort 3 to 4 out of 10"), text
+        assert "moderate effort" in program_model.load_words(SimpleNamespace(intensity=text, load_kg=None)), text
