@@ -71,7 +71,7 @@ MOVEMENT_PATTERNS: dict[str, str] = {
 T_SCORE_SITES: tuple[str, ...] = ("lumbar_spine", "femoral_neck", "total_hip")
 
 #: Medicine classes the record accepts (``medications[].class``).  The vocabulary may grow;
-#: classes are never renamed.  What each class changes is in the rules (data/rules/medicines.toml).
+#: classes are never renamed.  What each class changes is in the rules (data/rules/screening/medication.toml).
 MEDICATION_CLASSES: dict[str, str] = {
     "denosumab": "Denosumab (an antiresorptive injection every 6 months).",
     "bisphosphonate": "A bisphosphonate (alendronate, risedronate, ibandronate, zoledronic acid).",

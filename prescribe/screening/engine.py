@@ -1,6 +1,6 @@
 """The screening engine: one rule library, two evaluators.
 
-The rules (:mod:`.rules`, data files under ``prescribe/data/rules``) are
+The rules (:mod:`.rules`, data files under ``prescribe/data/rules/screening``) are
 evaluated either for one person (:func:`screen`, a plain per-record evaluator) or
 for a whole caseload at once (:func:`screen_batch`, a vectorised numpy/pandas
 evaluator over a DataFrame of flattened records).  Both compute the same derived
