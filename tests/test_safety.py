@@ -646,10 +646,12 @@ def test_every_part_reads_intensity_text_with_the_one_reader():
     import prescribe.intensity as intensity
     from prescribe.handout import content
     from prescribe.planning import dosing
-    from prescribe.sessions import engine
+    from prescribe import stimulus
+    from prescribe.sessions import adjusted
     from prescribe.ui import program_model
 
-    for reader in (pct_1rm, content.pct_1rm, dosing._pct_1rm, engine.pct_1rm, program_model.pct_1rm):
+    for reader in (pct_1rm, content.pct_1rm, dosing._pct_1rm, adjusted.pct_1rm, program_model.pct_1rm,
+                   stimulus.pct_1rm):
         assert reader is intensity.pct_1rm
     # A hand-written range gives its top in every part (the check and the week figure agree).
     assert dosing.prescribed_pct_1rm([{"intensity": "80-85% 1RM"}, {"intensity": "70 % of 1 RM"}]) == 85

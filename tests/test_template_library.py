@@ -155,14 +155,13 @@ def test_a_program_records_template_and_version_and_says_when_it_is_retired(stor
     assert (plan.template.name, plan.template.version, plan.template_version) == ("riverside_standard", 1, 1)
     assert plan.template.origin == "clinic"
     assert check_plan(plan) == []
-    data = plan.model_dump(mode="json")
-    assert program_template_notice(data, store) is None
+    assert program_template_notice(plan, store) is None
     past = date.today() + timedelta(days=400)
-    assert "review was due" in program_template_notice(data, store, today=past)
+    assert "review was due" in program_template_notice(plan, store, today=past)
     store.retire_template("riverside_standard", 1, "Lead B")
-    assert "retired by Lead B" in program_template_notice(data, store)
+    assert "retired by Lead B" in program_template_notice(plan, store)
     # A shipped template is never flagged.
-    assert program_template_notice(build_plan(rec).model_dump(mode="json"), store) is None
+    assert program_template_notice(build_plan(rec), store) is None
 
 
 # -- field checks ------------------------------------------------------------------------

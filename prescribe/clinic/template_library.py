@@ -28,6 +28,7 @@ from typing import Any
 from ..errors import FieldProblem, InputError, NotFoundError
 from ..fileio import read_text_file
 from ..identifiers import check_identifier
+from ..plan_schema import Plan
 from ..planning.rules import TEMPLATE_DIR, Template, TemplateError, parse_template, template_names, template_problems
 
 SHIPPED_AUTHOR = "prescribe (shipped with the package)"
@@ -311,16 +312,12 @@ def document_text(tv: TemplateVersion) -> str:
     return dump_toml({**tv.body, "document": meta}, header)
 
 
-def program_template_notice(plan: dict | Any, store=None, today: date | None = None) -> str | None:
+def program_template_notice(plan: Plan, store=None, today: date | None = None) -> str | None:
     """A warning when a program's template version has since been retired or is past its
     review date (None when it is current, shipped, or not recorded)."""
-    tpl = plan.get("template") if isinstance(plan, dict) else getattr(plan, "template", None)
-    if tpl is None:
+    if plan.template is None:
         return None
-    tpl = tpl if isinstance(tpl, dict) else tpl.model_dump()
-    name, version = tpl.get("name"), tpl.get("version")
-    if isinstance(plan, dict):
-        version = plan.get("template_version", version)
+    name, version = plan.template.name, plan.template.version or plan.template_version
     if not name or not version or store is None or name in template_names():
         return None
     try:

@@ -33,6 +33,8 @@ from ..cautions import with_standard
 from ..errors import PlanRequestRefused, PrescribeError
 from .rules import Template
 from ..records import CONDITIONS, PatientRecord, ScreeningResult, parse_record
+from ..stimulus import weekly_osteogenic_index
+from .dosing import prescribed_pct_1rm
 
 # =========================================================================================
 # The reference panel: invented people
@@ -180,9 +182,9 @@ def plan_figures(plan, tpl: Template) -> dict:
         if w.impact_level == top and vol is not None and vol >= full:
             to_full = w.week
             break
-    pcts = [w.resistance_intensity_pct_1rm for w in weeks if w.resistance_intensity_pct_1rm is not None]
-    total = sum(sum(s.osteogenic_index for s in w.sessions) if w.weekly_osteogenic_index is None
-                else w.weekly_osteogenic_index for w in weeks)
+    # The load read from the exercises (as the tables and the handout read it), never a week's summary field.
+    pcts = [p for w in weeks if (p := prescribed_pct_1rm(x for s in w.sessions for x in s.exercises)) is not None]
+    total = sum(weekly_osteogenic_index(w) for w in weeks)
     return {"weeks": len(weeks), "top_impact_level": int(top), "weeks_to_full_volume": to_full,
             "peak_impacts": int(max(w.impacts_per_session for w in weeks)),
             "peak_intensity_pct_1rm": float(max(pcts)) if pcts else None,

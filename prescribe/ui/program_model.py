@@ -19,6 +19,7 @@ from typing import Any, Iterable
 
 from ..handout.content import DAY_NAMES, LEVEL_LABELS
 from ..intensity import needs_supervision, pct_1rm, rpe_range
+from ..stimulus import week_stages
 
 
 # ---------------------------------------------------------------------------------------
@@ -249,12 +250,13 @@ def strength_words(week: Any) -> str:
 def progression(plan: Any) -> list[StageRow]:
     """The whole program in a few rows: level, impact work, strength phase, weak window, reviews."""
     rows: list[StageRow] = []
-    for wk in sorted(plan.weeks, key=lambda w: w.week):
+    weeks = sorted(plan.weeks, key=lambda w: w.week)
+    for wk, stage in zip(weeks, week_stages(weeks)):
         row = StageRow(wk.week, wk.week, level_words(wk.impact_level), impact_work_words(wk),
-                       strength_words(wk), bool(wk.weak_window))
+                       strength_words(wk), stage.weak)
         last = rows[-1] if rows else None
         same = last is not None and (last.level, last.impact_work, last.strength, last.weak_window) == (
-            row.level, row.impact_work, row.strength, row.weak_window) and not wk.step_up
+            row.level, row.impact_work, row.strength, row.weak_window) and not stage.stimulus
         if same:
             last.last = wk.week
         else:
