@@ -211,7 +211,8 @@ def _set_impacts(d, week, total, bouts=1, gap=None):
 
 @pytest.mark.parametrize("total, allowed", [(100, True), (101, False)])
 def test_session_ceiling_at_100(plans, total, allowed):
-    # Clissold et al. 2022: programs of 10-100 jumps a day; at most 100 a session.
+    # Clissold et al. 2022, Arch Sports Med Physiother 7(1):7-15: programs of 10-100 jumps a day; the ceiling of
+    # 100 a session itself is common practice.
     _, plan = plans["osteopenia"]
     week = _impact_week(plan, 3).week
     found = check_program(edited(plan, lambda d: _set_impacts(d, week, total, bouts=3, gap=8.0)))

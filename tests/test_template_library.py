@@ -16,12 +16,12 @@ import pytest
 
 from prescribe.errors import FieldProblem, InputError
 from prescribe.planning import build_plan, check_plan
-from prescribe.planning.rules import CERTAINTY_LEVELS, TEMPLATE_DIR, template_fields, template_problems
+from prescribe.planning.templates import CERTAINTY_LEVELS, TEMPLATE_DIR, template_fields, template_problems
 from prescribe.records import parse_record
 from prescribe.store import open_store
 from prescribe.clinic.template_library import (add_document, check_document, document_text, list_versions, parse_document,
                                         parse_ref, program_template_notice, resolve)
-from prescribe.planning.templates import (REFERENCE_PANEL, compare_templates, field_differences, random_records,
+from prescribe.planning.templates.review import (REFERENCE_PANEL, compare_templates, field_differences, random_records,
                                        reference_records)
 
 
@@ -192,7 +192,7 @@ def test_shipped_templates_pass_the_field_check_and_certainty_vocabulary_is_grad
 
 
 def test_above_100_impacts_needs_a_reason():
-    # Clissold et al. 2022: programs of 10-100 jumps a day; the ceiling needs a reason to be passed.
+    # Clissold et al. 2022: programs of 10-100 jumps a day; the ceiling (common practice) needs a reason to be passed.
     doc = standard_doc()
     doc["impact"]["max_impacts_per_session"] = 120
     assert [p.field for p in template_problems(doc)] == ["impact.max_impacts_per_session"]
@@ -213,7 +213,7 @@ def test_check_document_passes_a_sound_draft_and_refuses_a_plan_that_breaks_a_ru
     assert report["ok"] and report["people_checked"] == 30 and report["refusals"] == []
     # A program that breaks a rule is refused with the rule, the person and the week: make
     # the safety check see a rule-3 violation in week 4 for one person.
-    import prescribe.planning.templates as review
+    import prescribe.planning.templates.review as review
     real = review.safety_violations
 
     def strict(plan, screening=None):
@@ -243,7 +243,7 @@ def test_compare_names_the_fields_that_differ_and_the_people_who_change():
     a = standard_doc()
     b = copy.deepcopy(a)
     b["impact"]["impacts_target_level2"] = 40
-    from prescribe.planning.rules import parse_template
+    from prescribe.planning.templates import parse_template
     result = compare_templates(parse_template(a), parse_template(b), a, b)
     assert result["fields_differ"] == [{"field": "impact.impacts_target_level2", "a": 50, "b": 40}]
     by_id = {p["patient_id"]: p for p in result["people"]}

@@ -163,7 +163,7 @@ def next_block(plan: Plan, record: PatientRecord, retest_day: date, *, template=
     cleared = bool(cleared_by)
     # Never above what the re-screened record and the template allow (a fall may lower the cap).
     from ..planning.builder import _default_template
-    from ..planning.rules import load_template
+    from ..planning.templates import load_template
     from ..safety import rescreen
     tpl_obj = template if template is not None else load_template(options.get("template")
                                                                  or _default_template(record))

@@ -13,7 +13,7 @@ from functools import lru_cache
 from typing import Any, Iterable
 
 from ..loading.dose import daily_osteogenic_index, osteogenic_index
-from .rules import ResistancePhase
+from .templates import ResistancePhase
 from ..intensity import needs_supervision, pct_1rm as _pct_1rm
 from .sources import CARER_LED_MAX_EXERCISES
 from .selection import _Ex

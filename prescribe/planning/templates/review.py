@@ -29,12 +29,12 @@ from typing import Any, Iterable
 
 import numpy as np
 
-from ..cautions import with_standard
-from ..errors import PlanRequestRefused, PrescribeError
-from .rules import Template
-from ..records import CONDITIONS, PatientRecord, ScreeningResult, parse_record
-from ..stimulus import weekly_osteogenic_index
-from .dosing import prescribed_pct_1rm
+from ...cautions import with_standard
+from ...errors import PlanRequestRefused, PrescribeError
+from ...records import CONDITIONS, PatientRecord, ScreeningResult, parse_record
+from ...stimulus import weekly_osteogenic_index
+from ..dosing import prescribed_pct_1rm
+from .document import Template
 
 # =========================================================================================
 # The reference panel: invented people
@@ -109,7 +109,7 @@ def random_records(n: int, seed: int = 2026) -> list[PatientRecord]:
     safety check meets combinations that the panel does not list.
     """
     if isinstance(n, bool) or not isinstance(n, int) or n < 0:
-        from ..errors import InputError
+        from ...errors import InputError
         raise InputError.single("random people", n, "a whole number of 0 or more")
     rng = np.random.default_rng(seed)
     sites = ("vertebra", "hip", "wrist", "humerus", "pelvis", "rib", "other")
@@ -148,7 +148,7 @@ def safety_violations(plan, screening: ScreeningResult | None = None) -> list[di
     One function, so the shared safety check (:func:`prescribe.safety.check_program`)
     is used wherever a template is reviewed.
     """
-    from ..safety import check_program
+    from ...safety import check_program
 
     return [{"rule": str(v.rule), "week": v.week, "exercise_id": v.exercise_id, "message": str(v.message),
              "allowed": str(getattr(v, "allowed", "") or ""), "source": str(getattr(v, "source", "") or "")}
@@ -211,11 +211,11 @@ def panel_outcomes(tpl: Template, records: Iterable[PatientRecord], screenings: 
     A program the planner refuses, or one that breaks a safety rule, gives refusals
     naming the rule, the person and the week; nothing raises for a clinical reason.
     """
-    from .builder import PlanOptions, build_plan
-    from ..screening import screen
+    from ..builder import PlanOptions, build_plan
+    from ...screening import screen
 
     if catalogue is None:
-        from ..catalogue import default_catalogue
+        from ...catalogue import default_catalogue
         catalogue = default_catalogue()
     screenings = {} if screenings is None else screenings
     options = PlanOptions(weeks=weeks)
