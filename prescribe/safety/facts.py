@@ -115,6 +115,7 @@ class _Facts:
         self.count_mismatch: list[tuple] = []        # (week, session, facts) whose impacts do not add up
         self.contexts: dict[tuple, tuple] = {}      # (id(x), kind, supervised) -> (week, session, x)
         cache: dict[tuple, _SessionFacts] = {}
+        week_loads: dict[tuple, Load] = {}  # a built plan repeats its weeks' sessions: one load each
         contexts = self.contexts
         get = cache.get
         for wk in plan.weeks:
@@ -141,7 +142,10 @@ class _Facts:
                     res_days.append(s.day)
                 if sf.impacts:
                     day_imp[s.day] = day_imp.get(s.day, 0) + sf.impacts
-            load = highest(sf.load for _, sf in pairs)
+            wkey = tuple(id(sf) for _, sf in pairs)
+            load = week_loads.get(wkey)
+            if load is None:
+                load = week_loads[wkey] = highest(sf.load for _, sf in pairs)
             self.week_sessions.append(pairs)
             self.balance_days.append(bal_days)
             self.resistance_days.append(res_days)

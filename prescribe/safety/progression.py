@@ -31,8 +31,11 @@ def rule_one_level_at_a_time(f: _Facts) -> Iterator[SafetyViolation]:
 def _stimulus_starts(f: _Facts) -> list[int]:
     """Indexes of weeks with a new or larger stimulus of either kind (:func:`prescribe.stimulus.new_stimulus`:
     the first week with any impact or resistance work; a rise in impact level; a rise in resistance
-    intensity, %1RM or effort)."""
-    return stimulus_weeks(f.loads)
+    intensity, %1RM or effort); worked out once per check."""
+    starts = getattr(f, "_stimulus_starts", None)
+    if starts is None:
+        starts = f._stimulus_starts = stimulus_weeks(f.loads)
+    return starts
 
 
 _MEASURES = (
