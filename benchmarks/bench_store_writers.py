@@ -109,7 +109,7 @@ def run_writers(url: str, writers: int = 8, seconds: float = 60.0, folder: str |
                     continue
                 if version not in stored:
                     lost += 1
-                elif store.get_program(pid, version)["marker"] != marker:
+                elif store.get_program(pid, version).marker != marker:
                     overwritten += 1
     if tmp is not None:
         tmp.cleanup()

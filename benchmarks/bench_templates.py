@@ -34,14 +34,14 @@ from bench_screening import frame_to_record_dicts, invented_caseload  # noqa: E4
 from prescribe.screening.batch_io import read_batch_csv, write_results_csv  # noqa: E402
 from prescribe.clinic.caseload import whatif, write_caseload_csv  # noqa: E402
 from prescribe.planning import PlanOptions, build_plan  # noqa: E402
-from prescribe.planning.rules import TEMPLATE_DIR, load_template  # noqa: E402
+from prescribe.planning.templates import TEMPLATE_DIR, load_template  # noqa: E402
 from prescribe.records import parse_record  # noqa: E402
 from prescribe.screening.rules import DEFAULT_RULES_DIR, load_rules  # noqa: E402
 from prescribe.screening import screen, screen_batch  # noqa: E402
 from prescribe.store import now_utc, open_store  # noqa: E402
 from prescribe.store import models as m  # noqa: E402
 from prescribe.clinic.template_library import add_document, resolve  # noqa: E402
-from prescribe.planning.templates import compare_templates, reference_records  # noqa: E402
+from prescribe.planning.templates.review import compare_templates, reference_records  # noqa: E402
 
 N = int(sys.argv[1]) if len(sys.argv) > 1 else 100_000
 M = int(sys.argv[2]) if len(sys.argv) > 2 else 10_000

@@ -21,6 +21,7 @@ from datetime import date, timedelta
 from .cautions import with_standard
 from .errors import PlanRequestRefused, PrescribeError
 from .records import parse_record
+from .plan_schema import Plan, start_day
 from .settings import Clinic
 
 #: An invented clinic (555-01xx numbers are reserved for fiction; example.invalid is not a real domain).
@@ -71,20 +72,20 @@ DEMO_WEEKS_DONE = 5
 DEMO_SESSIONS_FOR = "DEMO-0001"
 
 
-def _seed_sessions(store, pid: str, plan: dict) -> int:
+def _seed_sessions(store, pid: str, plan: Plan) -> int:
     """Log the first person's invented sessions of the weeks done (three session days a week,
     doses as prescribed, mild pain and moderate effort), so the live-session panel has a history."""
     from .sessions.records import parse_session
-    start = date.fromisoformat(plan["start_date"])
+    start = start_day(plan)
     n = 0
-    for week in plan["weeks"][:DEMO_WEEKS_DONE]:
-        days = sorted({s["day"] for s in week["sessions"]})[:4]
+    for week in plan.weeks[:DEMO_WEEKS_DONE]:
+        days = sorted({s.day for s in week.sessions})[:4]
         for day in days:
-            exercises = [{"exercise_id": x["exercise_id"], **({"minutes_done": x["minutes"]} if x.get("minutes") else {}),
-                          **({"sets_done": x["sets"]} if x.get("sets") else {}),
-                          **({"reps_done": x["reps"]} if x.get("reps") else {})}
-                         for s in week["sessions"] if s["day"] == day for x in s["exercises"]]
-            when = start + timedelta(days=7 * (week["week"] - 1) + day - 1)
+            exercises = [{"exercise_id": x.exercise_id, **({"minutes_done": x.minutes} if x.minutes else {}),
+                          **({"sets_done": x.sets} if x.sets else {}),
+                          **({"reps_done": x.reps} if x.reps else {})}
+                         for s in week.sessions if s.day == day for x in s.exercises]
+            when = start + timedelta(days=7 * (week.week - 1) + day - 1)
             store.add_session(parse_session({
                 "patient_id": pid, "session_date": when.isoformat(), "exercises": exercises,
                 "pain_during": 1 + (n % 3 == 0), "session_rpe": 5 + (n % 2), "note": "demo seed (invented)"}),
@@ -123,13 +124,13 @@ def seed(store) -> list[dict]:
             except PlanRequestRefused as exc:
                 line["program"] = f"not planned: {exc}"
             else:
-                plan_dict = plan.model_dump(mode="json") if hasattr(plan, "model_dump") else dict(plan)
-                plan_dict["start_date"] = (date.today() - timedelta(days=7 * DEMO_WEEKS_DONE)).isoformat()
-                line["program_version"] = store.save_program(pid, plan_dict, DEMO_CLINICIAN, None,
+                plan = plan.model_copy(update={
+                    "start_date": (date.today() - timedelta(days=7 * DEMO_WEEKS_DONE)).isoformat()})
+                line["program_version"] = store.save_program(pid, plan, DEMO_CLINICIAN, None,
                                                              note="demo seed: first program")
                 line["program"] = "created"
                 if pid == DEMO_SESSIONS_FOR:
-                    line["sessions"] = _seed_sessions(store, pid, plan_dict)
+                    line["sessions"] = _seed_sessions(store, pid, plan)
         done.append(line)
     return done
 

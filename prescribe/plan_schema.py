@@ -11,7 +11,7 @@ A plan file from another ``plan_format_version`` major is refused with a clear e
 from __future__ import annotations
 
 from datetime import date, timedelta
-from typing import Any, Iterable, Literal
+from typing import Any, Literal
 
 from pydantic import BaseModel, ConfigDict, Field, ValidationError, field_validator
 
@@ -21,25 +21,6 @@ from .records import PatientRecord, ScreeningResult, problems_from_validation
 PLAN_FORMAT_VERSION = "1.0"
 
 SessionKind = Literal["impact", "resistance", "balance", "mixed"]
-
-#: The weak window: weeks 3 to 5 counted from a new or larger stimulus (the step-up week
-#: is week 1), when bone is transiently weaker because resorption runs ahead of formation;
-#: no increase of any kind then (PRODUCT.md).  Remodelling sequence: Eriksen 1986, Endocr
-#: Rev 7:379 (resorption about 3 weeks); remodelling transient: Heaney, Yates & Santora
-#: 1997, J Bone Miner Res 12:1143.  First and last position, inclusive.
-WEAK_WINDOW_WEEKS: tuple[int, int] = (3, 5)
-
-
-def in_weak_window(position: int) -> bool:
-    """Whether the week at ``position`` after a step up (the step-up week is 1) is in the weak window."""
-    first, last = WEAK_WINDOW_WEEKS
-    return first <= position <= last
-
-
-def weak_window_weeks(step_up_weeks: Iterable[int]) -> set[int]:
-    """The weeks inside the weak window of any of ``step_up_weeks`` (week numbers, or 0-based indices)."""
-    first, last = WEAK_WINDOW_WEEKS
-    return {s + k - 1 for s in step_up_weeks for k in range(first, last + 1)}
 
 #: A figure written as a whole number or a decimal; kept as written (60 stays 60, 8.0 stays 8.0).
 Number = int | float
@@ -293,3 +274,10 @@ def program_week(start_date: date | str, on: date | str | None = None) -> int:
     day = date.today() if on is None else parse_day(on, "date")
     days = (day - start).days
     return 0 if days < 0 else days // 7 + 1
+
+
+def start_day(plan: Plan) -> date:
+    """The first day of week 1: the plan's ``start_date``; an older plan without one is taken to start
+    on the day it was created (the session log, the advice, the next block and the letter count
+    weeks from it)."""
+    return parse_day(plan.start_date or str(plan.created)[:10], "start_date")

@@ -15,7 +15,7 @@ from __future__ import annotations
 import math
 import re
 from pathlib import Path
-from typing import Any, Literal
+from typing import Any, Literal, Mapping
 
 from pydantic import BaseModel, ConfigDict, Field, ValidationError, field_validator, model_serializer, model_validator
 from pydantic_core import PydanticCustomError
@@ -71,7 +71,7 @@ MOVEMENT_PATTERNS: dict[str, str] = {
 T_SCORE_SITES: tuple[str, ...] = ("lumbar_spine", "femoral_neck", "total_hip")
 
 #: Medicine classes the record accepts (``medications[].class``).  The vocabulary may grow;
-#: classes are never renamed.  What each class changes is in the rules (data/rules/medicines.toml).
+#: classes are never renamed.  What each class changes is in the rules (data/rules/screening/medication.toml).
 MEDICATION_CLASSES: dict[str, str] = {
     "denosumab": "Denosumab (an antiresorptive injection every 6 months).",
     "bisphosphonate": "A bisphosphonate (alendronate, risedronate, ibandronate, zoledronic acid).",
@@ -184,6 +184,25 @@ class _Strict(BaseModel):
     model_config = ConfigDict(extra="forbid", strict=True, frozen=True)
 
 
+def lowest_score(scores: Mapping[str, float | None] | None) -> tuple[str, float] | None:
+    """The lowest DXA score of ``scores`` (T- or Z-scores by site) and its site, or None when no
+    site was measured; on a tie the first site in :data:`T_SCORE_SITES` order.
+
+    The one place the lowest measured site is chosen: the record's models, the screening's
+    per-record features and its result's site read it (the vectorised batch evaluator works the
+    same out over columns, held equal by the screening property test).  The lowest measured site
+    decides the density category (WHO 1994, Technical Report Series 843).
+    """
+    if not scores:
+        return None
+    best: tuple[str, float] | None = None
+    for site in T_SCORE_SITES:
+        value = scores.get(site)
+        if value is not None and (best is None or value < best[1]):
+            best = (site, value)
+    return best
+
+
 class TScores(_Strict):
     """T-scores by DXA site (standard deviations from the young-adult mean)."""
 
@@ -196,8 +215,7 @@ class TScores(_Strict):
 
     def lowest(self) -> tuple[str, float] | None:
         """The lowest T-score and its site, or None when no site was measured."""
-        known = [(site, getattr(self, site)) for site in T_SCORE_SITES if getattr(self, site) is not None]
-        return min(known, key=lambda kv: kv[1]) if known else None
+        return lowest_score(self.model_dump())
 
 
 class ZScores(_Strict):
@@ -212,8 +230,7 @@ class ZScores(_Strict):
 
     def lowest(self) -> tuple[str, float] | None:
         """The lowest Z-score and its site, or None when no site was measured."""
-        known = [(site, getattr(self, site)) for site in T_SCORE_SITES if getattr(self, site) is not None]
-        return min(known, key=lambda kv: kv[1]) if known else None
+        return lowest_score(self.model_dump())
 
 
 class Fracture(_Strict):

@@ -10,6 +10,7 @@ import pandas as pd
 
 from .plan_schema import Plan, review_dates
 from .planning.dosing import prescribed_pct_1rm
+from .stimulus import week_stages, weekly_osteogenic_index
 
 __all__ = ["weekly_summary", "SUMMARY_COLUMNS"]
 
@@ -25,14 +26,13 @@ def weekly_summary(plan: Plan) -> pd.DataFrame:
     rows = []
     # A review week is dated by its first day, counted from the plan's start_date (none without one).
     review_day = {week: when.isoformat() for week, when in review_dates(plan) if when is not None}
+    weak = {st.week: st.weak for st in week_stages(plan.weeks)}
     for w in plan.weeks:
-        weekly_oi = w.weekly_osteogenic_index
         rows.append({
             "week": w.week, "phase": w.phase, "impact_level": w.impact_level,
             "impacts_per_session": w.impacts_per_session, "sessions": len(w.sessions),
-            "weekly_osteogenic_index": round(sum(s.osteogenic_index for s in w.sessions), 2)
-            if weekly_oi is None else weekly_oi,
-            "weak_window": bool(w.weak_window), "reassessment": w.reassessment,
+            "weekly_osteogenic_index": weekly_osteogenic_index(w),
+            "weak_window": weak[w.week], "reassessment": w.reassessment,
             # Read from the exercises, so a week never states more than it prescribes.
             "resistance_intensity_pct_1rm": prescribed_pct_1rm(x for s in w.sessions for x in s.exercises),
             "review_date": review_day.get(w.week),

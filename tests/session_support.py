@@ -5,10 +5,10 @@ from __future__ import annotations
 from datetime import date, timedelta
 from functools import lru_cache
 
+from prescribe.plan_schema import Plan, parse_plan
 from prescribe.planning import PlanOptions, build_plan
 from prescribe.records import parse_record
-from prescribe.sessions.engine import LoggedSession
-from prescribe.sessions.records import parse_session
+from prescribe.sessions.records import LoggedSession, parse_session
 
 START = date(2026, 6, 1)  # a Monday
 PID = "SES-0001"
@@ -30,9 +30,15 @@ def _plan(pid: str, weeks: int, start: str) -> dict:
 
 
 def plan_dict(pid: str = PID, weeks: int = 26, start: date = START) -> dict:
-    """A planner-built program (a fresh copy each call)."""
+    """A planner-built program as plan JSON data (a fresh copy each call)."""
     import copy
     return copy.deepcopy(_plan(pid, weeks, start.isoformat()))
+
+
+@lru_cache(maxsize=8)
+def program(pid: str = PID, weeks: int = 26, start: date = START) -> Plan:
+    """A planner-built program, typed (shared: read it, change copies only)."""
+    return parse_plan(_plan(pid, weeks, start.isoformat()))
 
 
 def day_of(week: int, offset: int = 0, start: date = START) -> date:
@@ -46,11 +52,12 @@ def logged(week: int, offset: int = 0, *, pid: str = PID, version: int | None = 
     return LoggedSession(parse_session(data), week, version, sid)
 
 
-def full_weeks(weeks, plan: dict, pid: str = PID, **fields) -> list[LoggedSession]:
+def full_weeks(weeks, plan: Plan | dict, pid: str = PID, **fields) -> list[LoggedSession]:
     """Every planned session day of the given weeks done, with ``fields``."""
+    plan = plan if isinstance(plan, Plan) else parse_plan(plan)
     out = []
     for w in weeks:
-        days = sorted({s["day"] for s in plan["weeks"][w - 1]["sessions"]})
+        days = sorted({s.day for s in plan.weeks[w - 1].sessions})
         for d in days:
             out.append(logged(w, d - 1, pid=pid, sid=len(out) + 1, **fields))
     return out

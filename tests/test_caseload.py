@@ -16,12 +16,12 @@ import pytest
 
 from prescribe.screening.batch_io import read_batch_csv, records_to_frame
 from prescribe.clinic.caseload import PROGRAM_FIELDS, SCREENING_FIELDS, frame_from_dicts, whatif
-from prescribe.planning.rules import TEMPLATE_DIR
+from prescribe.planning.templates import TEMPLATE_DIR
 from prescribe.screening.rules import DEFAULT_RULES_DIR, load_rules
 from prescribe.screening import screen
 from prescribe.store import open_store
 from prescribe.clinic.template_library import add_document, resolve
-from prescribe.planning.templates import random_records, reference_records
+from prescribe.planning.templates.review import random_records, reference_records
 
 from conftest import run_cli
 

@@ -18,7 +18,7 @@ from prescribe.cli import main
 from prescribe.planning import build_plan
 from prescribe.records import parse_record
 from prescribe.screening import screen
-from prescribe.sensor.compare import planned_by_date, weak_weeks
+from prescribe.sensor.compare import planned_by_date
 from prescribe.sensor.readers import write_csv
 from prescribe.store import open_store
 from prescribe.store.api import HEAD_REVISION
@@ -55,9 +55,9 @@ def stored(tmp_db):
 
 
 def _week_with_impacts(plan, weak: bool) -> dict:
-    windows = weak_weeks(plan)
+    """A week with impact work that the plan itself labels (or not) as a weak window."""
     for w in plan["weeks"]:
-        if any(s["impacts"] for s in w["sessions"]) and (w["week"] in windows) == weak:
+        if any(s["impacts"] for s in w["sessions"]) and bool(w["weak_window"]) == weak:
             return w
     raise AssertionError("the plan has no such week")
 
@@ -134,11 +134,13 @@ def test_a_plan_without_start_date_is_dated_from_its_save_and_says_so(tmp_db, tm
 
 def test_planned_days_follow_the_weekday_of_each_session():
     # Week N runs from start_date + 7(N-1) days (PRODUCT.md); day 1 = Monday.
-    plan = {"weeks": [{"week": 1, "impact_level": 2, "sessions": [
-        {"day": 1, "kind": "impact", "impacts": 20, "osteogenic_index": 10.0},
-        {"day": 3, "kind": "impact", "impacts": 30, "osteogenic_index": 12.0}]},
-        {"week": 2, "impact_level": 2, "sessions": [{"day": 1, "kind": "impact", "impacts": 40,
-                                                     "osteogenic_index": 14.0}]}]}
+    from types import SimpleNamespace as NS  # a plan's weeks and sessions, as the typed Plan has them
+
+    def session(day, impacts, oi):
+        return NS(day=day, kind="impact", impacts=impacts, osteogenic_index=oi, exercises=[])
+
+    plan = NS(weeks=[NS(week=1, weak_window=None, sessions=[session(1, 20, 10.0), session(3, 30, 12.0)]),
+                     NS(week=2, weak_window=None, sessions=[session(1, 40, 14.0)])])
     by_date = planned_by_date(plan, date(2026, 3, 4))  # a Wednesday start
     assert by_date["2026-03-04"]["planned_impacts"] == 30  # Wednesday of week 1
     assert by_date["2026-03-09"]["planned_impacts"] == 20  # the Monday inside week 1 (4-10 March)

@@ -149,7 +149,7 @@ def test_adjust_prints_the_decision_and_apply_stores_a_version_based_on_the_old(
     assert new["paused"]["from_week"] == 7 and new["start_date"] == START.isoformat()
     with open_store(tmp_db) as store:
         stored = store.get_program(PID)
-        assert stored["adjustment"]["reasons"][0]["rule"] == "session.red_flag_cardiac"
+        assert stored.adjustment.reasons[0]["rule"] == "session.red_flag_cardiac"
         versions = store.program_versions(PID)
         assert versions[-1]["based_on_version"] == 1 and versions[-1]["clinician"] == "EP Rowan (invented)"
         entry = store.audit(PID)[-1]

@@ -13,7 +13,7 @@ from datetime import date, timedelta
 
 import pytest
 
-from prescribe.planning.rules import TEMPLATE_DIR
+from prescribe.planning.templates import TEMPLATE_DIR
 
 from conftest import run_cli
 

@@ -29,29 +29,52 @@ def _plan(start_date=None, **kw):
 
 # --- weak window, step-ups and loads -------------------------------------------------
 
-def test_weak_window_is_derived_as_weeks_3_to_5_after_each_rise_in_impact_level():
+def test_weak_window_is_derived_as_weeks_3_to_5_after_each_new_or_larger_stimulus():
     # Resorption runs ahead of formation for about 3 weeks after a new stimulus, so bone is
-    # transiently weaker in weeks 3-5 counted from the step-up (Eriksen 1986, Endocr Rev 7:379;
-    # Heaney, Yates & Santora 1997, J Bone Miner Res 12:1143).
-    facts = content.week_facts(_plan(weeks=26, step_ups=(9,), start_level=2))
-    assert [f.week for f in facts if f.step_up] == [9]
-    assert [f.week for f in facts if f.weak_window] == [11, 12, 13]
+    # transiently weaker in weeks 3-5 counted from the stimulus week (Eriksen 1986, Endocr Rev 7:379;
+    # Heaney, Yates & Santora 1997, J Bone Miner Res 12:1143).  The start counts as a new stimulus
+    # (PRODUCT.md: "weeks 3 to 5 after a new or larger stimulus").  The resistance load is held
+    # (70% 1RM throughout), so the impact level alone steps up, in week 9.
+    facts = content.week_facts(_plan(weeks=26, step_ups=(9,), start_level=2, resistance_pct=(70, 70)))
+    assert [f.week for f in facts if f.step_up] == [1, 9]
+    assert [f.week for f in facts if f.weak_window] == [3, 4, 5, 11, 12, 13]
+
+
+def test_a_rise_in_resistance_load_opens_a_window_as_the_check_holds_it():
+    # PRODUCT.md: no escalation of any kind in weeks 3-5 after a new or larger stimulus, impact or
+    # resistance.  The fixture raises the load by 5% 1RM every 4 weeks (70, 75, 80, 85% from weeks
+    # 1, 5, 9 and 13): each rise is a new stimulus, though the impact level stays at 2.
+    plan = _plan(weeks=20, step_ups=(), start_level=2, resistance_pct=(70, 85))
+    facts = content.week_facts(plan)
+    assert [f.week for f in facts if f.step_up] == [1]  # the triangle marks impact step-ups only
+    assert [f.week for f in facts if f.weak_window] == [3, 4, 5, 7, 8, 9, 11, 12, 13, 15, 16, 17]
+    # The page holds the weeks the safety check holds: a rise of the landings in week 16 (weeks 3-5
+    # after the rise to 85% in week 13) is refused by the check's rule weak_window.
+    from prescribe.safety import check_program
+    data = plan.model_dump(mode="json")
+    for s in data["weeks"][15]["sessions"]:
+        for x in s["exercises"]:
+            if x["impact_level"] >= 2:
+                x["impacts"] += 10
+        s["impacts"] = sum(x["impacts"] for x in s["exercises"] if x["impact_level"] >= 2)
+    data["weeks"][15]["impacts_per_session"] = max(s["impacts"] for s in data["weeks"][15]["sessions"])
+    assert any(v.rule == "weak_window" and v.week == 16 for v in check_program(parse_plan(data)))
 
 
 def test_two_step_ups_give_two_weak_windows():
-    facts = content.week_facts(_plan(weeks=30, step_ups=(5, 15), start_level=1))
-    assert [f.week for f in facts if f.step_up] == [5, 15]
-    assert [f.week for f in facts if f.weak_window] == [7, 8, 9, 17, 18, 19]
+    facts = content.week_facts(_plan(weeks=30, step_ups=(5, 15), start_level=1, resistance_pct=(70, 70)))
+    assert [f.week for f in facts if f.step_up] == [1, 5, 15]
+    assert [f.week for f in facts if f.weak_window] == [3, 4, 5, 7, 8, 9, 17, 18, 19]
 
 
-def test_planner_flags_are_used_when_present():
-    data = make_plan(weeks=12, step_ups=(5,), extra_weeks=True)
-    for week in data["weeks"]:  # the planner says the window is weeks 2-4 here: believe it
+def test_the_plans_own_window_labels_add_held_weeks_and_never_remove_one():
+    data = make_plan(weeks=12, step_ups=(5,), extra_weeks=True, resistance_pct=(70, 70))
+    for week in data["weeks"]:  # the plan labels week 2 too, and not week 9: a label only adds
         week["weak_window"] = week["week"] in (2, 3, 4)
         week["step_up"] = week["week"] == 1
     facts = content.week_facts(parse_plan(data))
-    assert [f.week for f in facts if f.weak_window] == [2, 3, 4]
-    assert [f.week for f in facts if f.step_up] == [1]
+    assert [f.week for f in facts if f.weak_window] == [2, 3, 4, 5, 7, 8, 9]
+    assert [f.week for f in facts if f.step_up] == [1, 5]
 
 
 def test_resistance_intensity_is_parsed_from_the_exercises_when_absent():
@@ -259,17 +282,17 @@ def _bar_count(root: ET.Element) -> int:
 
 
 def test_impacts_chart_is_accessible_and_hatches_each_weak_window():
-    plan = _plan(weeks=30, step_ups=(5, 15), start_level=1)
+    plan = _plan(weeks=30, step_ups=(5, 15), start_level=1, resistance_pct=(70, 70))
     chart = charts.impacts_chart(plan)
     root = _svg(chart.svg)
     assert root.find(f"{SVG}title").text.startswith("Landings (impacts) per session")
     assert chart.title == root.find(f"{SVG}title").text
-    assert "Hold weeks (weak window): 7-9, 17-19." in root.find(f"{SVG}desc").text
+    assert "Hold weeks (weak window): 3-5, 7-9, 17-19." in root.find(f"{SVG}desc").text
     hatched = [p for p in root.iter(f"{SVG}path") if p.get("class") == "hatch"]
-    assert len(hatched) == 2  # one per weak window
+    assert len(hatched) == 3  # one per weak window (after the start and after each step-up)
     assert all(p.get("d").count("M") >= 3 for p in hatched)  # lines, not a colour fill
     texts = [t.text for t in root.iter(f"{SVG}text")]
-    assert texts.count("hold") == 2 and "level 1" in texts
+    assert texts.count("hold") == 3 and "level 1" in texts
     # What the scales measure and the legend are printed beside the SVG, as page text.
     assert any("impacts per session" in s for s in chart.scales)
     assert any("impact level" in s for s in chart.scales) and any("week" in s for s in chart.scales)

@@ -16,10 +16,10 @@ import subprocess
 import pytest
 
 from prescribe.handout import render_html, render_pdf
-from prescribe.plan_schema import parse_plan
+from prescribe.plan_schema import PlanResume
 from prescribe.sessions.engine import assess
 from prescribe.settings import Clinic
-from session_support import day_of, full_weeks, logged, plan_dict
+from session_support import day_of, full_weeks, logged, program
 
 CLINIC = Clinic(name="Riverside Bone Health (invented)", contact="555-0142")
 PERSON_WORDS = "Do not do these exercises until your clinician tells you to start again"
@@ -28,15 +28,15 @@ needs_poppler = pytest.mark.skipif(shutil.which("pdftotext") is None and not __i
                                    reason="pdftotext (poppler-utils) is not installed")
 
 
-def _paused_plan(draft: bool = False) -> dict:
-    plan = plan_dict()
+def _paused_plan(draft: bool = False):
+    plan = program()
     sessions = full_weeks([6], plan)
     sessions[-1] = logged(6, 5, sid=9, fell_since_last=True)
-    program = assess(plan, sessions, today=day_of(7), program_version=1).program
-    assert program["paused"]["from_week"] == 7
+    paused = assess(plan, sessions, today=day_of(7), program_version=1).program
+    assert paused.paused.from_week == 7
     if draft:
-        program["draft"] = True  # a referred person not yet cleared: DRAFT too
-    return program
+        paused = paused.model_copy(update={"draft": True})  # a referred person not yet cleared: DRAFT too
+    return paused
 
 
 def _sizes_of(data: bytes, starts: tuple[str, ...]) -> list[float]:
@@ -92,7 +92,7 @@ def test_the_clinician_pages_state_the_pause_with_its_date_and_reason(tmp_path):
     out.write_bytes(render_pdf(plan, audience="clinician", clinic=CLINIC))
     pages = _pages(out)
     first = pages[0]
-    since = plan["paused"]["since"]
+    since = plan.paused.since
     assert "Program paused" in first and f"Paused since {since}, from week 7" in first
     assert "A fall since the last session: check for injury or fracture" in first and "prescribe resume" in first
     assert all(f"paused since {since}" in text for text in pages)
@@ -105,10 +105,9 @@ def test_paused_comes_before_everything_in_the_html_and_goes_once_resumed():
     body = html[html.index("<body"):]
     assert body.index("pause-mark") < body.index("draft-mark") < body.index("masthead")
     assert "PAUSED: Do not do these exercises" in body
-    resumed = {k: v for k, v in plan.items() if k not in ("paused", "draft")}
-    resumed["resumed"] = {"by": "Dr I. Vale (invented)", "at": "2026-07-20T09:00:00+00:00",
-                          "reason": "Assessed: no injury (invented)", "paused_version": 2,
-                          "paused_since": plan["paused"]["since"], "from_week": 7}
-    html = render_html(parse_plan(resumed), audience="both", clinic=CLINIC)
+    resumed = plan.model_copy(update={"paused": None, "draft": False, "resumed": PlanResume(
+        by="Dr I. Vale (invented)", at="2026-07-20T09:00:00+00:00", reason="Assessed: no injury (invented)",
+        paused_version=2, paused_since=plan.paused.since, from_week=7)})
+    html = render_html(resumed, audience="both", clinic=CLINIC)
     assert "PAUSED" not in html and "pause-mark" not in html
     assert "Program resumed" in html and "Assessed: no injury (invented)" in html

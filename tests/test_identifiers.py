@@ -50,7 +50,7 @@ BASE = {"patient_id": "NTC-0042", "age_years": 70, "sex": "female", "body_mass_k
 @pytest.mark.parametrize("ch", ["\x00", "\u202e", "\u2066", "\u200f"], ids=lambda c: f"U+{ord(c):04X}")
 def test_every_identifier_reader_refuses_them(ch, monkeypatch):
     from prescribe.clinic.template_library import parse_ref
-    from prescribe.planning.rules import template_problems
+    from prescribe.planning.templates import template_problems
     from prescribe.records import parse_record
     from prescribe.sessions.records import parse_session
     from prescribe.settings import current_clinician

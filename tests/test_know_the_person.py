@@ -2,7 +2,7 @@
 
 Every person is invented (an invented clinic's pseudonymous ids).  Each test names the published
 source the rule rests on, or says "common practice" / "from memory" as the rule file does
-(prescribe/data/rules/*.toml).
+(prescribe/data/rules/screening/*.toml).
 """
 
 from __future__ import annotations

@@ -8,13 +8,14 @@ from datetime import date, timedelta
 import pytest
 
 from prescribe.errors import InputError
-from prescribe.outcomes.decide import decide, next_block, stimulus_weeks
+from prescribe.outcomes.decide import decide, next_block
 from prescribe.outcomes.measures import compare, dxa_lsc_sd, height_loss_cm, measure_rules, snapshot
 from prescribe.outcomes.retest import RETEST_FIELD_META, RetestRecord, check_retest_date, parse_retest
-from prescribe.plan_schema import in_weak_window, program_week, week_start
+from prescribe.plan_schema import program_week, week_start
+from prescribe.stimulus import in_weak_window, week_stages
 from prescribe.safety import check_program, rescreen
 from prescribe.records import FIELD_META, PatientRecord
-from session_support import START, person, plan_dict
+from session_support import START, person, program
 
 
 def retest(**fields) -> RetestRecord:
@@ -138,7 +139,7 @@ def test_every_measure_has_a_source_and_a_status():
 def _decide(now: dict, falls: int = 0, base=None, plan=None):
     base = base or snapshot(person().model_dump(mode="json"))
     measures, _ = compare([base], now)
-    return decide(measures, falls, height_loss_cm([base], now), rescreen(person()), plan or plan_dict())
+    return decide(measures, falls, height_loss_cm([base], now), rescreen(person()), plan or program())
 
 
 def test_height_loss_of_two_cm_refers():
@@ -163,22 +164,27 @@ def test_a_worse_measure_or_more_pain_holds():
 
 
 def test_a_paused_program_holds():
-    plan = plan_dict()
-    plan["paused"] = {"from_week": 5, "since": "2026-07-01", "reason": "chest pain"}
+    from prescribe.plan_schema import PlanPause
+    plan = program().model_copy(update={"paused": PlanPause(from_week=5, since="2026-07-01", reason="chest pain")})
     d = _decide({}, plan=plan)
     assert d.decision == "hold" and "paused since 2026-07-01" in d.reasons[0]["message"]
 
 
 # -- the next block ---------------------------------------------------------------------------
 
+def _stimulus_weeks(plan) -> list[int]:
+    """The weeks of a new or larger stimulus, as the one derivation (prescribe.stimulus) finds them."""
+    return [st.week for st in week_stages(plan.weeks) if st.stimulus]
+
+
 def test_the_next_block_continues_from_the_current_levels_and_passes_the_safety_check():
     """Over retests in every week of a 26-week program and after it: the next block starts at the
     level and phase of the last week done (never week 1 again), never inside weeks 3-5 after the
     old program's last stimulus, and passes the one safety check.  Kohrt et al. 2004; the weak
     window: Eriksen 1986, Endocr Rev 7:379."""
-    plan = plan_dict(weeks=26)
+    plan = program(weeks=26)
     record = person()
-    ups = stimulus_weeks(plan["weeks"])
+    ups = _stimulus_weeks(plan)
     assert ups[0] == 1 and len(ups) >= 3
     continued_above_start = 0
     delayed = 0
@@ -192,10 +198,10 @@ def test_the_next_block_continues_from_the_current_levels_and_passes_the_safety_
         # the block starts after the weak window of the last stimulus before the retest
         assert not in_weak_window(old_week - last + 1), (week, old_week, last)
         delayed += starts > day
-        done = plan["weeks"][min(old_week - 1, 26) - 1]
-        assert new.weeks[0].impact_level == done["impact_level"]
-        assert new.weeks[0].resistance_phase == done["resistance_phase"]
-        continued_above_start += new.weeks[0].impact_level > plan["weeks"][0]["impact_level"]
+        done = plan.weeks[min(old_week - 1, 26) - 1]
+        assert new.weeks[0].impact_level == done.impact_level
+        assert new.weeks[0].resistance_phase == done.resistance_phase
+        continued_above_start += new.weeks[0].impact_level > plan.weeks[0].impact_level
         assert new.block.continues_from_week == min(old_week - 1, 26)
         assert check_program(new, record=record) == []
         assert new.start_date == info["starts_on"]
@@ -206,19 +212,19 @@ def test_the_next_block_continues_from_the_current_levels_and_passes_the_safety_
 def test_the_next_block_respects_a_lower_cap_after_rescreening():
     """Falls risk after a retest caps impact at level 2 (the screening rules): a block that stood at
     level 3 continues at 2, not above the re-screened cap."""
-    plan = plan_dict(weeks=26)
+    plan = program(weeks=26)
     record = person(falls_past_year=2)
     assert rescreen(record).max_impact_level < 3
     day = START + timedelta(days=7 * 26 + 2)
-    assert plan["weeks"][25]["impact_level"] == 3
+    assert plan.weeks[25].impact_level == 3
     new, info = next_block(plan, record, day)
     assert new.weeks[0].impact_level <= rescreen(record).max_impact_level
     assert check_program(new, record=record) == []
 
 
 def test_week_start_of_the_block_after_a_window():
-    plan = plan_dict(weeks=26)
-    ups = stimulus_weeks(plan["weeks"])
+    plan = program(weeks=26)
+    ups = _stimulus_weeks(plan)
     s = ups[1]
     day = START + timedelta(days=7 * (s + 2 - 1))     # week 3 after the step-up
     _, info = next_block(plan, person(), day)

@@ -17,13 +17,13 @@ import pytest
 
 from prescribe.cli import main
 from prescribe.errors import InputError, ProgramPaused
-from prescribe.plan_schema import parse_plan
+from prescribe.plan_schema import PlanResume, parse_plan
 from prescribe.sessions.engine import assess
 from prescribe.sessions.pause import REASON_MAX_CHARS, pause_caution
 from prescribe.sessions.records import parse_session
 from prescribe.store import open_store
 from prescribe.clinic.advice import adjust_person, resume_person
-from session_support import day_of, full_weeks, logged, person, plan_dict
+from session_support import day_of, full_weeks, logged, person, plan_dict, program
 
 PID = "PAUSE-CLI-1"
 PERSON = {"patient_id": PID, "age_years": 62, "sex": "female", "body_mass_kg": 63.0, "height_cm": 162.0,
@@ -115,11 +115,11 @@ def test_adjust_apply_while_paused_keeps_the_same_pause(cli, paused, tmp_db):
     out = cli("adjust", PID, "--apply", "--clinician", "EP Rowan (invented)").json
     assert out["decision"] == "stop_and_refer" and out["program_version"] == 3
     with open_store(tmp_db) as store:
-        first, again = store.get_program(PID, 2)["paused"], store.get_program(PID, 3)["paused"]
+        first, again = store.get_program(PID, 2).paused, store.get_program(PID, 3).paused
     # Same pause: from the same week and day, counting from the fall; the reason names both flags.
-    assert again["since"] == first["since"] and again["from_week"] == first["from_week"] == 7
-    assert again["counts_from"] == fall_day.isoformat()
-    assert "fall" in again["reason"] and "Warning symptoms" in again["reason"]
+    assert again.since == first.since and again.from_week == first.from_week == 7
+    assert again.counts_from == fall_day.isoformat()
+    assert "fall" in again.reason and "Warning symptoms" in again.reason
 
 
 def test_import_of_a_bundle_that_would_replace_a_paused_program_is_refused(cli, paused, tmp_db, tmp_path):
@@ -151,7 +151,7 @@ def test_resume_records_who_when_why_and_lifts_the_pause(cli, paused, tmp_db):
     assert out["resumed_at"][:10] == date.today().isoformat() and out["paused_from_week"] == 7
     assert any("does not replace clinical judgment" in c for c in out["cautions"])
     with open_store(tmp_db) as store:
-        plan = parse_plan(store.get_program(PID, 3))
+        plan = store.get_program(PID, 3)
         audit = [a for a in store.audit(PID) if a["action"] == "program_resumed"]
     assert plan.paused is None and plan.resumed.by == "Dr Ines Vale (invented)" and plan.resumed.reason == REASON
     assert plan.resumed.paused_version == 2 and plan.based_on_version == 2 and plan.adjustment is None
@@ -238,7 +238,7 @@ def test_every_store_door_refuses_to_replace_a_paused_program(new_db):
         # Keeping the same pause is not replacing it: the stored paused plan saved again is allowed.
         assert store.save_program(pid, store.get_program(pid), "EP (invented)", based_on_version=2) == 3
         out = resume_person(store, pid, clinician="EP (invented)", reason=REASON)
-        assert out["program_version"] == 4 and store.get_program(pid).get("paused") is None
+        assert out["program_version"] == 4 and store.get_program(pid).paused is None
         assert store.save_program(pid, original, "EP (invented)", based_on_version=4) == 5
     finally:
         store.close()
@@ -249,24 +249,23 @@ def test_every_store_door_refuses_to_replace_a_paused_program(new_db):
 # --------------------------------------------------------------------------------------
 
 def test_riebe_2015_red_flags_keep_counting_while_paused_and_only_later_ones_after_resumption():
-    plan = plan_dict()
+    plan = program()
     sessions = full_weeks([6], plan)
     sessions[-1] = logged(6, 5, sid=9, fell_since_last=True)
     paused = assess(plan, sessions, today=day_of(7), program_version=1).program
-    assert paused["paused"]["counts_from"] == day_of(6, 5).isoformat()
+    assert paused.paused.counts_from == day_of(6, 5).isoformat()
     # Two quiet sessions logged against the paused version (2): the fall still counts.
     later = sessions + [logged(7, 1, sid=10, version=2), logged(8, 0, sid=11, version=2)]
     advice = assess(paused, later, today=day_of(8), program_version=2)
     assert advice.decision == "stop_and_refer"
     assert {"session.fall", "session.paused"} <= {r["rule"] for r in advice.reasons}
     # Resumed (version 3 lifts the paused version 2): sessions of version 2 or before no longer count.
-    resumed = {k: v for k, v in paused.items() if k != "paused"}
-    resumed["resumed"] = {"by": "Dr I. Vale (invented)", "at": day_of(8).isoformat() + "T09:00:00+00:00",
-                          "reason": REASON, "paused_version": 2}
+    resumed = paused.model_copy(update={"paused": None, "resumed": PlanResume(
+        by="Dr I. Vale (invented)", at=day_of(8).isoformat() + "T09:00:00+00:00", reason=REASON, paused_version=2)})
     after = assess(resumed, later, today=day_of(8), program_version=3)
     assert after.decision != "stop_and_refer" and "session.fall" not in {r["rule"] for r in after.reasons}
     # The same when the plan saved after the resumption does not carry it: the store says so.
-    plain = {k: v for k, v in resumed.items() if k != "resumed"}
+    plain = resumed.model_copy(update={"resumed": None})
     assert assess(plain, later, today=day_of(8), program_version=4, counts_after_version=2).decision != \
         "stop_and_refer"
     fell_again = later + [logged(8, 2, sid=12, version=4, fell_since_last=True)]

@@ -19,7 +19,7 @@ from prescribe.errors import InputError, PlanRequestRefused
 from prescribe.plan_schema import parse_plan
 from prescribe.planning import PlanOptions, build_plan, check_plan, reassessment_weeks, replace_exercise
 from prescribe.tables import SUMMARY_COLUMNS, weekly_summary
-from prescribe.planning.rules import TemplateError, load_template, parse_template, template_names
+from prescribe.planning.templates import TemplateError, load_template, parse_template, template_names
 from prescribe.records import ScreeningResult, parse_record
 from prescribe.screening import screen
 
@@ -125,7 +125,7 @@ def test_osteopenia_progresses_to_high_impact_one_level_at_a_time(osteopenia):
 
 def test_osteopenia_impacts_build_toward_50_to_100(osteopenia):
     # About 50-100 impacts a session is the usual practical target (Jämsä et al. 2011:
-    # about 60 a day above 4 g; Clissold et al. 2022: 10-100 jumps a day); never above 100.
+    # about 60 a day above 4 g; Clissold et al. 2022: 10-100 jumps a day); never above 100 (common practice).
     _, _, plan = osteopenia
     counts = [w.impacts_per_session for w in plan.weeks]
     assert 50 <= max(counts) <= 100
@@ -412,7 +412,7 @@ def test_gentle_template_is_slower_and_lower():
 
 def _raw_template():
     import tomllib
-    from prescribe.planning.rules import TEMPLATE_DIR
+    from prescribe.planning.templates import TEMPLATE_DIR
     return tomllib.loads((TEMPLATE_DIR / "standard.toml").read_text(encoding="utf-8"))
 
 

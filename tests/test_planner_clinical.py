@@ -12,7 +12,7 @@ import pytest
 from prescribe.catalogue import default_catalogue
 from prescribe.planning import LIFT_PRACTICE_WEEKS, PlanOptions, build_plan, check_plan, prescribed_pct_1rm
 from prescribe.tables import weekly_summary
-from prescribe.planning.rules import template_names
+from prescribe.planning.templates import template_names
 from prescribe.records import parse_record
 from prescribe.screening import screen
 

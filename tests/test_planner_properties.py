@@ -7,7 +7,7 @@ the independent checks written out below, so a bug in one is caught by the other
 Sources of the rules: rule 1, the screening's own limits; rule 3, resorption precedes
 formation after a new stimulus (Eriksen 1986, Endocr Rev 7:379; Heaney, Yates &
 Santora 1997, J Bone Miner Res 12:1143); rule 4, about 50-100 impacts a session
-(Clissold et al. 2022, Arch Sports Med Physiother 7:7-15; Jämsä et al. 2011, Front
+(Clissold et al. 2022, Arch Sports Med Physiother 7(1):7-15, 10-100 jumps a day; Jämsä et al. 2011, Front
 Physiol 2:73) and bouts about 8 h apart (Robling, Burr & Turner 2001, J Exp Biol
 204:3389-3399; at least 4 h is our documented minimum, common practice); rule 5,
 varied loading directions (Turner 1998, Bone 23:399-407).
@@ -24,7 +24,7 @@ from hypothesis import strategies as st
 from prescribe.errors import PlanRequestRefused
 from prescribe.plan_schema import parse_plan
 from prescribe.planning import PlanOptions, build_plan, check_plan
-from prescribe.planning.rules import load_template
+from prescribe.planning.templates import load_template
 from prescribe.records import CONDITIONS, FRACTURE_SITES, parse_record
 from prescribe.screening import screen
 from strategies import valid_records

@@ -211,7 +211,8 @@ def _set_impacts(d, week, total, bouts=1, gap=None):
 
 @pytest.mark.parametrize("total, allowed", [(100, True), (101, False)])
 def test_session_ceiling_at_100(plans, total, allowed):
-    # Clissold et al. 2022: programs of 10-100 jumps a day; at most 100 a session.
+    # Clissold et al. 2022, Arch Sports Med Physiother 7(1):7-15: programs of 10-100 jumps a day; the ceiling of
+    # 100 a session itself is common practice.
     _, plan = plans["osteopenia"]
     week = _impact_week(plan, 3).week
     found = check_program(edited(plan, lambda d: _set_impacts(d, week, total, bouts=3, gap=8.0)))
@@ -646,12 +647,27 @@ def test_every_part_reads_intensity_text_with_the_one_reader():
     import prescribe.intensity as intensity
     from prescribe.handout import content
     from prescribe.planning import dosing
-    from prescribe.sessions import engine
+    from prescribe import stimulus
+    from prescribe.sessions import adjusted
     from prescribe.ui import program_model
 
-    for reader in (pct_1rm, content.pct_1rm, dosing._pct_1rm, engine.pct_1rm, program_model.pct_1rm):
+    for reader in (pct_1rm, content.pct_1rm, dosing._pct_1rm, adjusted.pct_1rm, program_model.pct_1rm,
+                   stimulus.pct_1rm):
         assert reader is intensity.pct_1rm
     # A hand-written range gives its top in every part (the check and the week figure agree).
     assert dosing.prescribed_pct_1rm([{"intensity": "80-85% 1RM"}, {"intensity": "70 % of 1 RM"}]) == 85
-    # LIFTMOR's supervised loads began at 80% 1RM (Watson et al. 2018, J Bone Miner Res 33:211-220).
-    assert program_model.SUPERVISED_FROM_PCT_1RM == intensity.SUPERVISED_FROM_PCT_1RM == 80
+    # LIFTMOR's supervised loads began at 80% 1RM (Watson et al. 2018, J Bone Miner Res 33:211-220);
+    # high impact (level 3) is supervised too (common practice).  The app, the planner and the check
+    # mark the same work as supervised, at and around both thresholds.
+    assert intensity.SUPERVISED_FROM_PCT_1RM == 80 and intensity.SUPERVISED_FROM_LEVEL == 3
+    from types import SimpleNamespace
+    for text, level, expected in (("80% 1RM", 0, True), ("79% 1RM", 0, False), ("75-80% 1RM", 0, True),
+                                  ("RPE 8", 2, False), ("", 3, True), ("RPE 5", 2, False)):
+        ex = SimpleNamespace(intensity=text, impact_level=level, supervised=False)
+        assert program_model.supervised(ex) is expected, text
+        assert intensity.needs_supervision(text, level) is expected, text
+    # One reader of an effort: "RPE 3 to 4" and "RPE 3-4" are the same range everywhere (Borg CR10).
+    for text in ("RPE 3-4", "RPE 3 to 4", "RPE 3\u20134"):
+        assert intensity.rpe_range(text) == (3.0, 4.0) and intensity.rpe_top(text) == 4.0, text
+        assert content.plain_intensity(text).startswith("effort 3 to 4 out of 10"), text
+        assert "moderate effort" in program_model.load_words(SimpleNamespace(intensity=text, load_kg=None)), text

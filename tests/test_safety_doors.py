@@ -111,7 +111,8 @@ def test_handout_of_a_plan_without_its_record_needs_the_store(cli, tmp_path, ver
     with open_store(str(db)) as store:
         store.save_patient(record)
     ok = cli("handout", plan_file, "--out", str(out), "--db", str(db))
-    assert ok.returncode == 0, ok.stderr and out.exists()
+    assert ok.returncode == 0, ok.stderr
+    assert out.exists() and data["patient_id"] in out.read_text(encoding="utf-8")  # the handout was written
     # The store's record holds the plan too: a hand edit is refused against it.
     unsafe_edit(data)
     bad = cli("handout", write_json(tmp_path / "bad.json", data), "--out", str(tmp_path / "b.html"),

@@ -15,7 +15,7 @@ Whatever gets through a door is then held to an independent oracle written out b
 the rules' wording, judged against the person's *true* record (never the plan's copy), so a
 bug in the check, or a hand edit it misses, fails the test.  Sources of the rules: the
 screening's limits (docs/rules.md); Eriksen 1986 and Heaney, Yates & Santora 1997 (weeks
-3-5); Clissold et al. 2022 (at most 100 a session); Robling, Burr & Turner 2001 (bouts);
+3-5); Clissold et al. 2022 (programs of 10-100 jumps a day; at most 100 a session: common practice); Robling, Burr & Turner 2001 (bouts);
 Giangregorio et al. 2014 and Brooke-Wavell et al. 2022 (spine-sparing limits, balance);
 Watson et al. 2018 (supervision at 80% 1RM); common practice where the docs say so.
 """

@@ -14,6 +14,8 @@ import math
 
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from prescribe.errors import InputError
 from prescribe.sensor import impacts as im
@@ -158,22 +160,65 @@ def test_neugebauer_regression_uses_the_published_coefficients():
     assert float(running) / bw == pytest.approx(2.2, abs=0.05)
 
 
-def test_above_running_the_force_is_the_resultant_acceleration_in_g():
-    # Beyond running (3.9 g net and up) the regression is not used: Newton's second law.
-    assert list(im.peak_grf_bw_from_net_g([3.9, 4.4, 8.0], 64.0)) == pytest.approx([4.9, 5.4, 9.0])
-    below = float(im.peak_grf_bw_from_net_g(3.8, 64.0)[()])
-    assert below == pytest.approx(math.exp(5.247 + 0.271 * 4.8 + 0.014 * 64 + 0.934 - 0.216 * 4.8) / (64 * 9.80665))
+def test_the_secondary_sources_walking_and_running_figures_come_out_of_the_estimate():
+    # Neugebauer, Collins & Hawkins 2014 (via a secondary source): about 1.0 BW walking at a hip
+    # peak of about 1.2 g and 2.2 BW running at about 3.0 g (gravity in; 70 kg; peaks from memory).
+    # The estimate is the walking equation there and the running equation here, exactly.
+    bw = 70.0 * 9.80665
+    walk, run = im.peak_grf_bw_from_net_g([0.2, 2.0], 70.0)
+    assert walk == pytest.approx(float(im.neugebauer_peak_grf_n(1.2, 70.0, False)) / bw, rel=1e-12)
+    assert run == pytest.approx(float(im.neugebauer_peak_grf_n(3.0, 70.0, True)) / bw, rel=1e-12)
+    assert walk == pytest.approx(1.0, abs=0.05) and run == pytest.approx(2.2, abs=0.05)
+
+
+@settings(max_examples=200, deadline=None)
+@given(mass=st.floats(25, 300), a=st.floats(0.3, 12.0), b=st.floats(0.3, 12.0))
+def test_the_force_estimate_rises_with_the_peak_for_every_body_mass(mass, a, b):
+    # A harder landing is never estimated as a smaller force (monotone in the peak).
+    lo, hi = sorted((a, b))
+    f_lo, f_hi = im.peak_grf_bw_from_net_g([lo, hi], mass)
+    assert f_lo <= f_hi + 1e-12
+    if hi - lo > 1e-6:
+        assert f_lo < f_hi
+
+
+@pytest.mark.parametrize("mass", [25.0, 45.0, 64.0, 100.0, 180.0, 300.0])
+def test_the_force_estimate_joins_at_its_breakpoints(mass):
+    # Continuity: on a 1 mg grid over every band no step is larger than the curve's steepest
+    # slope allows (at most 8 BW per g over the record's body masses), and at each breakpoint
+    # (1.1 g walking/blend, 2.0 g blend/running, 3.8 g running/beyond running) the two sides meet.
+    grid = np.arange(0.3, 12.0, 0.001)
+    f = im.peak_grf_bw_from_net_g(grid, mass)
+    assert np.all(np.diff(f) > 0) and np.max(np.diff(f)) < 8.0 * 0.001
+    for edge in (im.NEUGEBAUER_WALK_TO_NET_G, im.NEUGEBAUER_RUN_FROM_NET_G, im.NEUGEBAUER_VALID_TO_NET_G):
+        below, above = im.peak_grf_bw_from_net_g([edge - 1e-9, edge + 1e-9], mass)
+        assert abs(above - below) < 1e-6, edge
+    # Around the old jump: 3.8 and 3.9 g differ by a tenth of a g's worth of force, not 2.4 BW.
+    f38, f39 = im.peak_grf_bw_from_net_g([3.8, 3.9], mass)
+    assert f39 - f38 == pytest.approx(0.1, abs=1e-9)
+
+
+def test_beyond_running_each_further_g_adds_one_body_weight_and_never_passes_newtons_bound():
+    # Newton's second law for the body as one mass: F / BW = a / g (a with gravity).  Beyond the
+    # regression's range (above 3.8 g net) the increment is 1 BW a g; for adult body masses the whole
+    # estimate stays below the body-as-one-mass figure (a hip peak overstates the centre of mass's).
+    for mass in (50.0, 64.0, 80.0, 100.0):
+        g = np.array([3.8, 4.4, 5.4, 9.2])
+        f = im.peak_grf_bw_from_net_g(g, mass)
+        assert np.diff(f) == pytest.approx(np.diff(g), abs=1e-9)
+        assert np.all(f < g + 1.0)
 
 
 def test_daily_osteogenic_index_is_turners_index_per_band():
-    # Turner & Robling 2003: OI = G ln(N + 1).  60 impacts of 4.4 g net (band 3.9-5.3):
-    # G = 5.4 BW (Newton, above running), so OI = 5.4 ln 61 = 22.2.
+    # Turner & Robling 2003: OI = G ln(N + 1) per kind of loading, kinds add up; here each band is
+    # one kind and G its impacts' mean estimated force.  60 impacts of 4.4 g net (band 3.9-5.3).
+    g44, g60 = (float(x) for x in im.peak_grf_bw_from_net_g([4.4, 6.0], 64.0))
     t, acc = recording(100, [4.4] * 60, [2.0 + 1.5 * i for i in range(60)])
     s = count(t, acc, body_mass_kg=64.0)
-    assert s["days"][0]["osteogenic_index"] == pytest.approx(round(5.4 * math.log(61), 2))
-    # Two bands add up: 60 at 4.4 g and 10 at 6.0 g (7.0 BW): 5.4 ln 61 + 7.0 ln 11.
+    assert s["days"][0]["osteogenic_index"] == pytest.approx(round(g44 * math.log(61), 2))
+    # Two bands add up: 60 at 4.4 g and 10 at 6.0 g (band 5.4-9.2): G44 ln 61 + G60 ln 11.
     assert im.banded_osteogenic_index([4.4] * 60 + [6.0] * 10, 64.0) == pytest.approx(
-        5.4 * math.log(61) + 7.0 * math.log(11))
+        g44 * math.log(61) + g60 * math.log(11))
 
 
 def test_wrist_recordings_are_counted_but_get_no_force_or_index():

@@ -8,7 +8,7 @@ import numpy as np
 import pytest
 
 from prescribe.errors import InputError
-from prescribe.sessions.loads import brzycki_1rm, epley_1rm, round_load
+from prescribe.loading.one_rep_max import brzycki_1rm, epley_1rm, round_load
 from prescribe.sessions.records import SYMPTOMS, check_session_dates, check_session_exercises, parse_session
 
 GOOD = {"patient_id": "SES-0001", "session_date": "2026-06-03", "program_version": 1,
@@ -84,8 +84,9 @@ def test_epley_and_brzycki_against_their_formulas():
 
 
 def test_an_exercise_outside_the_catalogue_or_the_program_is_named_with_the_programs_ids():
-    plan = {"weeks": [{"sessions": [{"exercises": [{"exercise_id": "goblet_box_squat"},
-                                                   {"exercise_id": "brisk_walking"}]}]}]}
+    from types import SimpleNamespace as NS  # the program's weeks, sessions and exercises (as a Plan has them)
+    plan = NS(weeks=[NS(sessions=[NS(exercises=[NS(exercise_id="goblet_box_squat"),
+                                                NS(exercise_id="brisk_walking")])])])
     catalogue = {"goblet_box_squat", "brisk_walking", "back_squat"}
     ok = parse_session({"patient_id": "SES-1", "session_date": "2026-03-02", "pain_during": 0,
                         "exercises": [{"exercise_id": "brisk_walking"}]})

@@ -16,12 +16,12 @@ import pytest
 from prescribe.errors import RuleFileError
 from prescribe.sessions.engine import assess
 from prescribe.sessions.rules import DECISIONS, default_rules, parse_rules
-from session_support import day_of, full_weeks, logged, plan_dict
+from session_support import day_of, full_weeks, logged, program
 
 
 @pytest.fixture(scope="module")
 def plan():
-    return plan_dict()
+    return program()
 
 
 def _decide(plan, sessions, week, offset=0, **kw):
@@ -63,7 +63,7 @@ def test_warning_symptoms_stop_and_refer(plan, code):
     advice = _decide(plan, sessions, 7)
     assert advice.decision == "stop_and_refer" and _rules(advice)[0] == "session.red_flag_cardiac"
     assert "Riebe" in advice.reasons[0]["source"]
-    assert advice.program["paused"]["from_week"] == 7
+    assert advice.program.paused.from_week == 7
 
 
 def test_new_back_pain_stops_and_refers_as_a_possible_vertebral_fracture(plan):
@@ -145,7 +145,7 @@ def test_adherence_under_two_thirds_repeats_the_week(plan):
     (low,) = [r for r in none.reasons if r["rule"] == "session.adherence_low"]
     assert "0 of 5 planned sessions logged in week 6, between 6 and 12 July 2026 (none logged)" in low["message"]
     assert advice.changes[0].startswith("week 7 repeats the dose of week 6")
-    assert advice.program["weeks"][6]["dose_of_week"] == 6
+    assert advice.program.weeks[6].dose_of_week == 6
 
 
 def test_a_break_of_two_weeks_steps_back(plan):
@@ -163,8 +163,8 @@ def test_reps_beyond_target_in_two_sessions_add_two_to_ten_percent(plan):
     # ACSM 2009: add 2-10% when the person manages 1-2 reps beyond the target (two sessions: common practice).
     # Week 13 of this program has the back squat at 3 x 8, outside a weak window, as has week 14.
     week = 13
-    squat = [x for s in plan["weeks"][week - 1]["sessions"] for x in s["exercises"] if x["exercise_id"] == "back_squat"]
-    assert squat and squat[0]["reps"] == 8 and not plan["weeks"][week]["weak_window"]
+    squat = [x for s in plan.weeks[week - 1].sessions for x in s.exercises if x.exercise_id == "back_squat"]
+    assert squat and squat[0].reps == 8 and not plan.weeks[week].weak_window
     sessions = full_weeks([week], plan)
     ex = {"exercise_id": "back_squat", "load_kg": 30.0, "reps_done": 9, "sets_done": 3, "rpe": 6}  # target 8
     sessions[1] = logged(week, 1, sid=2, exercises=[ex])
@@ -175,9 +175,9 @@ def test_reps_beyond_target_in_two_sessions_add_two_to_ten_percent(plan):
     assert advice.decision == "progress" and _rules(advice) == ["session.load_progression"]
     new = advice.next_loads["back_squat"]
     assert 1.02 <= new / 30.0 <= 1.10
-    following = [x for s in advice.program["weeks"][week]["sessions"] for x in s["exercises"]
-                 if x["exercise_id"] == "back_squat"]
-    assert following and all(x["load_kg"] == new for x in following)
+    following = [x for s in advice.program.weeks[week].sessions for x in s.exercises
+                 if x.exercise_id == "back_squat"]
+    assert following and all(x.load_kg == new for x in following)
     # exactly at the target: no progression
     at_target = {**ex, "reps_done": 8}
     sessions[1] = logged(week, 1, sid=2, exercises=[at_target])
@@ -206,12 +206,31 @@ def test_no_progress_in_weeks_3_to_5_after_a_step_up(plan, week, in_window):
         assert advice.decision == "progress"
 
 
+@pytest.mark.parametrize("week,held", [(22, False), (23, True), (24, True), (25, True), (26, False)])
+def test_a_resistance_step_up_is_held_in_its_weeks_3_to_5_too(plan, week, held):
+    # PRODUCT.md: no escalation of any kind in weeks 3-5 after a new or larger stimulus, impact or
+    # resistance (Eriksen 1986, Endocr Rev 7:379; Heaney, Yates & Santora 1997, J Bone Miner Res
+    # 12:1143).  This program raises only its resistance load in week 21 (70% to 80% 1RM, the impact
+    # level stays at 3 since week 16): weeks 23-25 are that stimulus's weeks 3-5.
+    levels = [max(x.impact_level for s in w.sessions for x in s.exercises) for w in plan.weeks]
+    loads = [max((float(x.intensity.split("%")[0]) for s in w.sessions for x in s.exercises
+                  if x.intensity.endswith("% 1RM")), default=0.0) for w in plan.weeks]
+    assert levels[15:26] == [3] * 11 and loads[19] == 70 and loads[20] == 80 and loads[21:25] == [80] * 4
+    advice = _decide(plan, full_weeks([week - 1], plan), week)
+    if held:
+        assert advice.decision == "hold" and _rules(advice)[0] == "session.weak_window"
+        assert f"week {week - 20} after the new or larger stimulus (resistance load) of week 21" in \
+            advice.reasons[0]["message"]
+    else:
+        assert advice.decision == "progress" and _rules(advice) == ["session.as_planned"]
+
+
 def test_no_sessions_at_all(plan):
     advice = _decide(plan, [], 1)
     assert advice.decision == "hold" and _rules(advice) == ["session.no_sessions"]
     assert advice.changes[0].startswith("week 1 as written")
-    new_weeks = advice.program["weeks"]
-    assert new_weeks[0]["sessions"] == plan["weeks"][0]["sessions"] and len(new_weeks) >= len(plan["weeks"])
+    new_weeks = advice.program.weeks
+    assert new_weeks[0].sessions == plan.weeks[0].sessions and len(new_weeks) >= len(plan.weeks)
 
 
 def test_the_strongest_decision_wins_and_all_reasons_are_listed(plan):

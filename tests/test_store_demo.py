@@ -45,7 +45,7 @@ def test_seeding_twice_adds_nothing_twice(tmp_path):
             if planned.get("program") == "created":
                 assert [(v["version"], v["clinician"]) for v in versions] == [(1, DEMO_CLINICIAN)]
                 plan = store.get_program(person["patient_id"])
-                assert plan["patient_id"] == person["patient_id"] and plan["cautions"]
+                assert plan.patient_id == person["patient_id"] and plan.cautions
 
 
 def test_demo_command_prints_json_with_cautions(tmp_path, capsys, monkeypatch):

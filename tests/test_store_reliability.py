@@ -179,7 +179,7 @@ def test_writers_killed_with_sigkill_lose_no_reported_commit(tmp_path, new_db):
             assert versions <= set(stored), f"reported commits missing for {pid}"
             # At most one save per round can commit without being reported (killed before printing).
             assert len(stored) - max(versions) <= rounds
-            assert store.get_program(pid)["patient_id"] == pid
+            assert store.get_program(pid).patient_id == pid
     assert sum(len(v) for v in reported.values()) >= rounds * writers
 
 

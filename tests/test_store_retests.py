@@ -14,6 +14,7 @@ from prescribe.clinic.reassess import reassess_person
 from prescribe.errors import ConflictError, InputError
 from prescribe.outcomes.retest import parse_retest
 from prescribe.store import HEAD_REVISION, open_store
+from prescribe.plan_schema import PlanPause
 from session_support import person, plan_dict
 
 PID = "RT-STORE-1"
@@ -39,7 +40,7 @@ def test_a_retest_is_stored_with_the_record_the_screening_and_the_next_block(new
                                          chair_stand_30s=18, height_cm=162.5), clinician="EP One")
         assert out["decision"] == "continue"
         assert out["next_block"]["program_version"] == 2 == s.latest_program_version(PID)
-        assert s.get_program(PID)["block"]["after_retest"] == out["date"]
+        assert s.get_program(PID).block.after_retest == out["date"]
         assert s.get_patient(PID).timed_up_and_go_s == 6.0      # the record's current value
         assert s.record_version(PID) == 2
         rows = s.retests(PID)
@@ -69,8 +70,8 @@ def test_a_retest_before_the_last_one_is_refused_and_nothing_is_stored(new_db):
 def test_a_paused_program_is_not_replaced(new_db):
     s, start = _store(new_db())
     with s:
-        plan = s.get_program(PID)
-        plan["paused"] = {"from_week": 3, "since": (start + timedelta(days=15)).isoformat(), "reason": "dizziness"}
+        plan = s.get_program(PID).model_copy(update={"paused": PlanPause(
+            from_week=3, since=(start + timedelta(days=15)).isoformat(), reason="dizziness")})
         s.save_program(PID, plan, "EP One", 1)
         out = reassess_person(s, _retest(date.today()), clinician="EP One")
         assert out["decision"] == "hold" and out["next_block"] is None

@@ -16,12 +16,12 @@ import pytest
 
 from prescribe.errors import FieldProblem, InputError
 from prescribe.planning import build_plan, check_plan
-from prescribe.planning.rules import CERTAINTY_LEVELS, TEMPLATE_DIR, template_fields, template_problems
+from prescribe.planning.templates import CERTAINTY_LEVELS, TEMPLATE_DIR, template_fields, template_problems
 from prescribe.records import parse_record
 from prescribe.store import open_store
 from prescribe.clinic.template_library import (add_document, check_document, document_text, list_versions, parse_document,
                                         parse_ref, program_template_notice, resolve)
-from prescribe.planning.templates import (REFERENCE_PANEL, compare_templates, field_differences, random_records,
+from prescribe.planning.templates.review import (REFERENCE_PANEL, compare_templates, field_differences, random_records,
                                        reference_records)
 
 
@@ -155,14 +155,13 @@ def test_a_program_records_template_and_version_and_says_when_it_is_retired(stor
     assert (plan.template.name, plan.template.version, plan.template_version) == ("riverside_standard", 1, 1)
     assert plan.template.origin == "clinic"
     assert check_plan(plan) == []
-    data = plan.model_dump(mode="json")
-    assert program_template_notice(data, store) is None
+    assert program_template_notice(plan, store) is None
     past = date.today() + timedelta(days=400)
-    assert "review was due" in program_template_notice(data, store, today=past)
+    assert "review was due" in program_template_notice(plan, store, today=past)
     store.retire_template("riverside_standard", 1, "Lead B")
-    assert "retired by Lead B" in program_template_notice(data, store)
+    assert "retired by Lead B" in program_template_notice(plan, store)
     # A shipped template is never flagged.
-    assert program_template_notice(build_plan(rec).model_dump(mode="json"), store) is None
+    assert program_template_notice(build_plan(rec), store) is None
 
 
 # -- field checks ------------------------------------------------------------------------
@@ -193,7 +192,7 @@ def test_shipped_templates_pass_the_field_check_and_certainty_vocabulary_is_grad
 
 
 def test_above_100_impacts_needs_a_reason():
-    # Clissold et al. 2022: programs of 10-100 jumps a day; the ceiling needs a reason to be passed.
+    # Clissold et al. 2022: programs of 10-100 jumps a day; the ceiling (common practice) needs a reason to be passed.
     doc = standard_doc()
     doc["impact"]["max_impacts_per_session"] = 120
     assert [p.field for p in template_problems(doc)] == ["impact.max_impacts_per_session"]
@@ -214,7 +213,7 @@ def test_check_document_passes_a_sound_draft_and_refuses_a_plan_that_breaks_a_ru
     assert report["ok"] and report["people_checked"] == 30 and report["refusals"] == []
     # A program that breaks a rule is refused with the rule, the person and the week: make
     # the safety check see a rule-3 violation in week 4 for one person.
-    import prescribe.planning.templates as review
+    import prescribe.planning.templates.review as review
     real = review.safety_violations
 
     def strict(plan, screening=None):
@@ -228,6 +227,60 @@ def test_check_document_passes_a_sound_draft_and_refuses_a_plan_that_breaks_a_ru
     assert not report["ok"]
     assert report["refusals"] == [{"rule": "rule 3", "week": 4, "exercise_id": "jump_two_feet",
                                    "message": "escalation", "allowed": "", "source": "", "patient_id": "PANEL-03"}]
+
+
+def _panel_plan(doc: dict, patient_id: str):
+    """The program the template check builds for one reference person (as panel_outcomes builds it)."""
+    from prescribe.planning.templates import parse_template
+    from prescribe.screening import screen
+    rec = next(r for r in reference_records() if r.patient_id == patient_id)
+    return rec, build_plan(rec, screen(rec), created="2026-01-05T09:00:00+00:00", template=parse_template(doc))
+
+
+def test_a_template_whose_spine_sparing_phase_is_too_heavy_is_refused_by_the_real_check():
+    # A clinic template whose spine-sparing strength phase asks 5 sets of 5 at effort 9 of 10: for
+    # the people whose spine must be spared that breaks the spine-sparing limits (Giangregorio et
+    # al. 2014, Osteoporos Int 25:821-835: 8-12 repetitions; Brooke-Wavell et al. 2022, Br J Sports
+    # Med 56:837-846: up to 3 sets; effort at most 8 of 10, Giangregorio et al. 2015).  The real
+    # safety check, not a stand-in, refuses it over the reference panel.
+    doc = standard_doc()
+    doc["resistance"]["spine_sparing_phases"][-1] = {"name": "strength", "weeks": 0, "sets": 5, "reps": 5,
+                                                     "intensity": "RPE 9"}
+    assert template_problems(doc) == []  # every field within its bounds: only the panel can tell
+    report = check_document(doc, random_people=0)
+    assert not report["ok"] and report["refusals"]
+    assert {r["rule"] for r in report["refusals"]} == {"spine_sparing_load"}
+    # Each refusal checked independently: the person's program spares the spine, and the refused
+    # week really prescribes the exercise at more than 3 sets or above effort 8.
+    for refusal in report["refusals"][:5]:
+        _, plan = _panel_plan(doc, refusal["patient_id"])
+        assert plan.spine_sparing or {"loaded_spinal_flexion", "loaded_spinal_twisting"} & set(plan.screening.avoid)
+        doses = [(x.sets, x.intensity) for s in plan.weeks[refusal["week"] - 1].sessions for x in s.exercises
+                 if x.exercise_id == refusal["exercise_id"]]
+        assert any(sets > 3 or intensity == "RPE 9" for sets, intensity in doses), (refusal, doses)
+    # The shipped template, the same people: nothing refused.
+    assert check_document(standard_doc(), random_people=0)["refusals"] == []
+
+
+def test_a_template_that_changes_phase_every_week_is_refused_for_escalating_in_weeks_3_to_5():
+    # Resistance phases of one week each bring harder lifts in while bone is transiently weaker:
+    # no escalation of any kind in weeks 3-5 after a new or larger stimulus (PRODUCT.md; Eriksen
+    # 1986, Endocr Rev 7:379; Heaney, Yates & Santora 1997, J Bone Miner Res 12:1143).
+    doc = standard_doc()
+    for phase in doc["resistance"]["phases"][:-1]:
+        phase["weeks"] = 1
+    assert template_problems(doc) == []
+    report = check_document(doc, random_people=0)
+    assert not report["ok"] and report["refusals"]
+    assert {r["rule"] for r in report["refusals"]} == {"weak_window"}
+    # Each refusal checked independently: the exercise it names is present at the refused week and
+    # absent from one of the 3 weeks before it (the window's week 2 is 1 to 3 weeks before its weeks 3-5).
+    for refusal in report["refusals"]:
+        _, plan = _panel_plan(doc, refusal["patient_id"])
+        ids = [{x.exercise_id for s in w.sessions for x in s.exercises} for w in plan.weeks]
+        week = refusal["week"]
+        assert refusal["exercise_id"] in ids[week - 1]
+        assert any(refusal["exercise_id"] not in ids[w - 1] for w in range(max(1, week - 3), week)), refusal
 
 
 def test_bad_fields_stop_the_check_before_the_panel():
@@ -244,7 +297,7 @@ def test_compare_names_the_fields_that_differ_and_the_people_who_change():
     a = standard_doc()
     b = copy.deepcopy(a)
     b["impact"]["impacts_target_level2"] = 40
-    from prescribe.planning.rules import parse_template
+    from prescribe.planning.templates import parse_template
     result = compare_templates(parse_template(a), parse_template(b), a, b)
     assert result["fields_differ"] == [{"field": "impact.impacts_target_level2", "a": 50, "b": 40}]
     by_id = {p["patient_id"]: p for p in result["people"]}

@@ -94,7 +94,7 @@ def test_log_shows_the_advice_at_once_and_apply_stores_the_new_version(app, tmp_
     assert "stored as program version 2 (based on version 1)" in live.advice_view.value
     with open_store(tmp_db) as store:
         new = store.get_program(PID)
-        assert new["based_on_version"] == 1 and new["adjustment"]["decision"] == "step_back"
+        assert new.based_on_version == 1 and new.adjustment.decision == "step_back"
         assert store.audit(PID)[-1]["clinician"] == "EP Rowan (invented)"
     live.advise_button.click()  # advice again with no new session: shown, but not applicable twice
     assert "already applies the advice" in live.advice_view.value and live.apply_button.disabled is True

@@ -12,8 +12,8 @@ import tomllib
 
 import pytest
 
-from prescribe.planning.rules import TEMPLATE_DIR, template_fields
-from prescribe.planning.templates import random_records
+from prescribe.planning.templates import TEMPLATE_DIR, template_fields
+from prescribe.planning.templates.review import random_records
 from prescribe.ui import ClinicApp, ClinicSession
 from prescribe.ui.templates_view import TemplatesView
 

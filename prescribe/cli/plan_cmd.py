@@ -103,7 +103,7 @@ def resolve_template(ref: str | None, db: str | None):
     """
     if ref is None:
         return None, None
-    from ..planning.rules import template_names
+    from ..planning.templates import template_names
     from ..clinic.template_library import parse_ref, resolve
 
     name, _ = parse_ref(ref, "--template")

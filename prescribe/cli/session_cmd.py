@@ -148,8 +148,8 @@ def run_adjust(args) -> int:
         except NotFoundError:
             raise _unknown(args.patient_id, store) from None
     if args.out:
-        write_atomically(Path(args.out), json.dumps(result.pop("_program"), indent=2, ensure_ascii=False) + "\n",
-                         "--out")
+        program = result.pop("_program").model_dump(mode="json")
+        write_atomically(Path(args.out), json.dumps(program, indent=2, ensure_ascii=False) + "\n", "--out")
         result["out"] = args.out
     else:
         result.pop("_program")

@@ -115,7 +115,7 @@ def _named(ref: str, store):
 
 
 def _clinic_only(name: str, ref: str) -> None:
-    from ..planning.rules import template_names
+    from ..planning.templates import template_names
     if name in template_names():
         raise InputError.single("NAME@VERSION", ref, "a clinic template version (shipped templates are read-only)")
 
@@ -153,7 +153,7 @@ def run_show(args) -> int:
 
 
 def _shipped(name: str) -> bool:
-    from ..planning.rules import template_names
+    from ..planning.templates import template_names
     return name in template_names()
 
 
@@ -240,7 +240,7 @@ def _side(ref: str, store, field: str):
 
 
 def run_compare(args) -> int:
-    from ..planning.templates import compare_templates
+    from ..planning.templates.review import compare_templates
 
     store = _maybe_store(args)
     try:

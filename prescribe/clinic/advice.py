@@ -11,6 +11,7 @@ from __future__ import annotations
 from datetime import date
 
 from ..errors import InputError
+from ..plan_schema import PlanAdjustment
 from ..store.api import now_utc
 
 
@@ -18,7 +19,7 @@ def adjust_person(store, patient_id: str, *, today: date, apply: bool = False, c
     """The advice for one stored person (and, with ``apply``, the stored new version).
 
     Shared by the command line and the app.  The returned dict is the printed advice
-    plus ``_program`` (the adjusted plan).
+    plus ``_program`` (the adjusted :class:`prescribe.plan_schema.Plan`).
     """
     from ..sessions.engine import assess
     from ..sessions.gate import assert_program_safe
@@ -34,21 +35,22 @@ def adjust_person(store, patient_id: str, *, today: date, apply: bool = False, c
     # The current version already applies an adjustment worked out on the same day, with no
     # session logged against it since: applying again would move the program twice for
     # the same sessions.
-    done = plan.get("adjustment") or {}
-    repeat = done.get("as_of") == advice.as_of and not any(s.program_version == version for s in sessions)
+    done = plan.adjustment
+    repeat = (done is not None and done.as_of == advice.as_of
+              and not any(s.program_version == version for s in sessions))
     if repeat:
         out["already_applied"] = (f"program version {version} already applies the advice of {advice.as_of} "
-                                  f"({done.get('decision')}); log a session before adjusting again")
-    program = dict(advice.program)
-    program.update(based_on_version=version,
-                   adjustment={"decision": advice.decision, "week": advice.week, "as_of": advice.as_of,
-                               "reasons": advice.reasons, "changes": advice.changes,
-                               "session_ruleset_version": advice.ruleset_version})
+                                  f"({done.decision}); log a session before adjusting again")
+    program = advice.program.model_copy(update={
+        "based_on_version": version,
+        "adjustment": PlanAdjustment(decision=advice.decision, week=advice.week, as_of=advice.as_of,
+                                     reasons=advice.reasons, changes=advice.changes,
+                                     session_ruleset_version=advice.ruleset_version)})
     if apply:
         if repeat:
             raise InputError.single("--apply", patient_id, "a person whose current program does not already "
                                     f"apply today's advice: {out['already_applied']}")
-        program["created"] = now_utc()
+        program = program.model_copy(update={"created": now_utc()})
         # refused: exit 2, nothing stored
         assert_program_safe(program, door=f"prescribe adjust --apply {patient_id}", record=record)
         new_version = store.save_program(

@@ -36,7 +36,7 @@ from ..cautions import with_standard
 #: Screening fields a what-if compares (list fields as sorted lists); ``flags`` are rule ids.
 SCREENING_FIELDS = ("bone_density_category", "falls_risk", "max_impact_level", "avoid", "refer",
                     "balance_first", "supervision", "flags", "max_pct_1rm", "carer_led", "hold_volume")
-#: Program fields a what-if compares (see :func:`prescribe.planning.templates.plan_figures`).
+#: Program fields a what-if compares (see :func:`prescribe.planning.templates.review.plan_figures`).
 PROGRAM_FIELDS = ("top_impact_level", "weeks_to_full_volume", "peak_impacts", "peak_intensity_pct_1rm",
                   "total_osteogenic_index", "spine_sparing", "refusals")
 
@@ -168,7 +168,7 @@ def plan_key(record, screening) -> tuple:
 def _program_figures(record, screening, tpl, catalogue, cache: dict | None) -> dict:
     from ..errors import PlanRequestRefused, PrescribeError
     from ..planning import PlanOptions, build_plan
-    from ..planning.templates import plan_figures, safety_violations
+    from ..planning.templates.review import plan_figures, safety_violations
 
     key = None
     if cache is not None:
@@ -220,7 +220,7 @@ def whatif(store, *, rules=None, rules_label: str | None = None, template=None, 
             progress(total, total)
     else:
         from ..catalogue import default_catalogue
-        from ..planning.rules import load_template
+        from ..planning.templates import load_template
         from ..records import parse_record
         from .template_library import resolve
 

@@ -31,6 +31,7 @@ from ..errors import InputError, PlanRequestRefused
 from ..outcomes.decide import decide, needs_new_clearance, next_block
 from ..outcomes.measures import compare, height_loss_cm, snapshot
 from ..outcomes.retest import RetestRecord, check_retest_date
+from ..plan_schema import Plan, start_day
 from ..records import PatientRecord, parse_record
 
 __all__ = ["assess_retest", "reassess_person", "updated_record", "history_of"]
@@ -82,30 +83,13 @@ def _baseline_snapshot(record: PatientRecord) -> dict:
     return snap
 
 
-_PARSED: dict[tuple[str, str, int], tuple[dict, object]] = {}
-
-
-def _parsed(store, pid: str, version: int, plan: dict):
-    """The stored program version as a Plan, parsed once (a version never changes once stored)."""
-    key = (store.where, pid, version)
-    hit = _PARSED.get(key)
-    if hit is not None and hit[0] is plan:
-        return hit[1]
-    from ..plan_schema import parse_plan
-    parsed = parse_plan(plan, source=f"program version {version} of {pid!r}")
-    if len(_PARSED) >= 64:
-        _PARSED.clear()
-    _PARSED[key] = (plan, parsed)
-    return parsed
-
-
-def _template_of(store, plan: dict):
+def _template_of(store, plan: Plan):
     """The clinic template the plan was built from (resolved from the store), or None for a shipped one."""
-    tpl = plan.get("template") or {}
-    if tpl.get("origin") != "clinic" or not tpl.get("name"):
+    tpl = plan.template
+    if tpl is None or tpl.origin != "clinic" or not tpl.name:
         return None
     from .template_library import resolve
-    ref = f"{tpl['name']}@{tpl['version']}" if tpl.get("version") else tpl["name"]
+    ref = f"{tpl.name}@{tpl.version}" if tpl.version else tpl.name
     return resolve(ref, store, purpose="read", field="template").template()
 
 
@@ -129,7 +113,7 @@ def assess_retest(store, retest: RetestRecord, *, today: date | None = None, sou
     _, plan = store.program_for_reading(pid, version)   # shared, read-only: versions never change
     first = plan if version == 1 else store.program_for_reading(pid, 1)[1]
     # the program's start: the first version's (a next block starts later and may start after a retest)
-    start = date.fromisoformat(first.get("start_date") or str(first.get("created", ""))[:10])
+    start = start_day(first)
     check_retest_date(retest, start, today, source)
     rows = store.retests(pid)
     if rows and retest.date < rows[-1]["date"]:
@@ -141,13 +125,13 @@ def assess_retest(store, retest: RetestRecord, *, today: date | None = None, sou
     loss = height_loss_cm(history, now)
     new_record = updated_record(record, retest, rows, start)
     uncleared = rescreen(new_record, False)
-    keeps_clearance = bool(plan.get("cleared_by")) and not needs_new_clearance(uncleared, plan)
+    keeps_clearance = bool(plan.cleared_by) and not needs_new_clearance(uncleared, plan)
     screening = rescreen(new_record, True) if keeps_clearance else uncleared
     verdict = decide(measures, retest.falls_since_last, loss, uncleared, plan)
     decision, reasons = verdict.decision, verdict.reasons
-    cautions = list(plan.get("cautions") or [])
+    cautions = list(plan.cautions)
     out_plan, next_info = None, None
-    broken = check_program(_parsed(store, pid, version, plan), record=new_record)
+    broken = check_program(plan, record=new_record)
     if broken:
         first_v = broken[0]
         reasons.append({"rule": "reassess.current_program_unsafe", "decision": "hold",
@@ -162,8 +146,8 @@ def assess_retest(store, retest: RetestRecord, *, today: date | None = None, sou
     if decision == "continue":
         try:
             new_plan, info = next_block(plan, new_record, retest.day, template=_template_of(store, plan),
-                                        cleared_by=plan.get("cleared_by") if keeps_clearance else None,
-                                        cleared_at=plan.get("cleared_at") if keeps_clearance else None)
+                                        cleared_by=plan.cleared_by if keeps_clearance else None,
+                                        cleared_at=plan.cleared_at if keeps_clearance else None)
         except PlanRequestRefused as exc:  # the planner cannot continue at these levels: hold, say why
             decision = "hold"
             reasons = [{"rule": "reassess.next_block_refused", "decision": "hold",
@@ -171,8 +155,7 @@ def assess_retest(store, retest: RetestRecord, *, today: date | None = None, sou
                         "source": "the planner's rules (docs/plan.md) and the safety check (docs/safety.md)",
                         "status": "seen"}]
         else:
-            out_plan = new_plan.model_dump(mode="json")
-            out_plan["based_on_version"] = version
+            out_plan = new_plan.model_copy(update={"based_on_version": version})
             cautions = list(new_plan.cautions)
             next_info = {"program_version": version + 1, **info}
             if info["starts_on"] != retest.date:
@@ -201,7 +184,7 @@ def assess_retest(store, retest: RetestRecord, *, today: date | None = None, sou
     result.update(_record=new_record, _screening=screening, _plan=out_plan, _previous=_baseline_snapshot(record),
                   _based_on_record_version=record_version, _based_on_version=version,
                   _verdicts={m["measure"]: m["verdict"] for m in measures},
-                  _template=(plan.get("template") or {}).get("name"))
+                  _template=plan.template.name if plan.template else None)
     return result
 
 

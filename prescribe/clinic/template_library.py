@@ -12,7 +12,7 @@ versions can build programs (:func:`resolve` with ``purpose="plan"``); drafts an
 retired versions are refused with a message saying which versions can be used.
 
 This module sits beside the store (it reads and writes it); the domain checks it
-calls live in :mod:`prescribe.planning.rules` and :mod:`prescribe.planning.templates`.
+calls live in :mod:`prescribe.planning.templates.document` and :mod:`prescribe.planning.templates.review`.
 """
 
 from __future__ import annotations
@@ -28,7 +28,8 @@ from typing import Any
 from ..errors import FieldProblem, InputError, NotFoundError
 from ..fileio import read_text_file
 from ..identifiers import check_identifier
-from ..planning.rules import TEMPLATE_DIR, Template, TemplateError, parse_template, template_names, template_problems
+from ..plan_schema import Plan
+from ..planning.templates import TEMPLATE_DIR, Template, TemplateError, parse_template, template_names, template_problems
 
 SHIPPED_AUTHOR = "prescribe (shipped with the package)"
 _REF = re.compile(r"^([A-Za-z0-9_][A-Za-z0-9_.-]{0,119}?)(?:@(\d{1,6}))?$")
@@ -218,7 +219,7 @@ def check_document(doc: dict, *, random_people: int = 50, seed: int = 2026, sour
     not run over the panel (its problems say why).
     """
     from ..cautions import with_standard
-    from ..planning.templates import panel_outcomes, random_records, reference_records
+    from ..planning.templates.review import panel_outcomes, random_records, reference_records
 
     problems = field_problems(doc)
     report: dict = {"name": doc.get("name"), "source": source,
@@ -243,7 +244,7 @@ def check_document(doc: dict, *, random_people: int = 50, seed: int = 2026, sour
 
 
 def _auto_note(previous: TemplateVersion | None, body: dict) -> str:
-    from ..planning.templates import field_differences
+    from ..planning.templates.review import field_differences
 
     if previous is None:
         return "first version"
@@ -296,7 +297,7 @@ def add_document(store, doc: dict, clinician: str, note: str | None = None) -> T
 def document_text(tv: TemplateVersion) -> str:
     """The template as TOML: the shipped file's own text, or a stored version with a
     ``[document]`` table saying which version it is and who reviewed it."""
-    from ..planning.templates import dump_toml
+    from ..planning.templates.review import dump_toml
 
     if tv.origin == "shipped" and tv.text is not None:
         return tv.text
@@ -311,16 +312,12 @@ def document_text(tv: TemplateVersion) -> str:
     return dump_toml({**tv.body, "document": meta}, header)
 
 
-def program_template_notice(plan: dict | Any, store=None, today: date | None = None) -> str | None:
+def program_template_notice(plan: Plan, store=None, today: date | None = None) -> str | None:
     """A warning when a program's template version has since been retired or is past its
     review date (None when it is current, shipped, or not recorded)."""
-    tpl = plan.get("template") if isinstance(plan, dict) else getattr(plan, "template", None)
-    if tpl is None:
+    if plan.template is None:
         return None
-    tpl = tpl if isinstance(tpl, dict) else tpl.model_dump()
-    name, version = tpl.get("name"), tpl.get("version")
-    if isinstance(plan, dict):
-        version = plan.get("template_version", version)
+    name, version = plan.template.name, plan.template.version or plan.template_version
     if not name or not version or store is None or name in template_names():
         return None
     try:

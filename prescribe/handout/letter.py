@@ -17,6 +17,7 @@ from ..cautions import SHORT_CAUTION, with_standard
 from ..errors import InputError
 from ..outcomes.adherence import sessions_against_planned
 from ..outcomes.measures import measure_rules, snapshot
+from ..plan_schema import start_day
 from ..settings import Clinic, clinic as clinic_settings
 from .progress_chart import measure_svg
 
@@ -65,8 +66,7 @@ def letter_context(store, patient_id: str, *, today: date | None = None, clinic:
     result = latest["result"]
     versions = store.program_versions(patient_id)
     plans = [(v["created"], store.get_program(patient_id, v["version"])) for v in versions]
-    first_plan = plans[0][1]
-    start = first_plan.get("start_date") or str(first_plan.get("created", ""))[:10]
+    start = start_day(plans[0][1]).isoformat()
     # measures over time: the baseline (at the program's start), then each retest
     series = [(start, rows[0]["previous"])] + [(r["date"], snapshot(r["retest"])) for r in rows]
     by_measure = {m["measure"]: m for m in result["measures"]}
@@ -103,7 +103,8 @@ def letter_context(store, patient_id: str, *, today: date | None = None, clinic:
                       "level": f"{nb['start_level']} ({IMPACT_LEVEL_LABELS.get(nb['start_level'], '')})",
                       "phase": nb.get("start_phase") or "-", "version": nb.get("program_version"),
                       "week": nb["continues_from_week"], "template": nb.get("template") or "-"}
-    template = (first_plan.get("template") or {}).get("title") or (first_plan.get("template") or {}).get("name")
+    first_template = plans[0][1].template
+    template = (first_template.title or first_template.name) if first_template is not None else None
     record = store.get_patient(patient_id)
     sources = []
     for m in measures:

@@ -26,6 +26,7 @@ __all__ = [
     "osteogenic_index", "cycle_share", "recovered_sensitivity", "daily_osteogenic_index",
     "bout_contributions", "carter_daily_stimulus", "direction_variety", "session_dose",
     "RECOVERY_TAU_HOURS", "CARTER_M_DEFAULT", "MAX_CYCLES", "MAX_BOUTS", "MAX_GAP_HOURS",
+    "IMPACTS_PER_SESSION_MAX", "IMPACTS_PER_BOUT_MAX", "BOUT_GAP_MIN_H",
 ]
 
 #: Largest number of loading cycles in a session or a day the models accept.
@@ -33,6 +34,17 @@ MAX_CYCLES = 100_000
 #: Bouts a day may be split into, and the longest gap between bouts [h].
 MAX_BOUTS = 24
 MAX_GAP_HOURS = 24.0
+
+#: The practical ceiling of landings in one session: the jump programs that raised femoral-neck BMD
+#: used 10-100 jumps a day (Clissold, Cronin, De Souza & Winwood 2022, Arch Sports Med Physiother
+#: 7(1):7-15, review); roughly 60 to 100 a session is the usual target and more adds fatigue rather
+#: than adaptation (common practice).  A template may go above it only with a reason.
+IMPACTS_PER_SESSION_MAX = 100
+#: Landings in one bout at most; more in a day are split into bouts (common practice).
+IMPACTS_PER_BOUT_MAX = 50
+#: Shortest gap between bouts of impact work [h] (common practice; about 8 h restores
+#: mechanosensitivity fully: Robling, Burr & Turner 2001, see RECOVERY_TAU_HOURS).
+BOUT_GAP_MIN_H = 4.0
 
 #: Time constant of recovery of mechanosensitivity [h], chosen so that 8 h restores
 #: 95% (tau = 8 / ln 20 = 2.67 h): Robling, Burr & Turner 2001, J Exp Biol

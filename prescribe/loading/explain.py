@@ -51,8 +51,11 @@ MAX_EXTERNAL_LOAD_KG = 300.0
 FRICTION_COEFFICIENT = CARTILAGE_FRICTION["typical"]
 FRICTION_RANGE = (0.002, 0.03)
 
-#: Osteogenic thresholds of a landing: more than 3 BW and more than 43 BW/s (Clissold et al.
-#: 2019, Clin Biomech 73:1-8, and the papers of that group).
+#: Osteogenic thresholds of a landing: more than 3 BW and more than 43 BW/s, the "previously
+#: determined osteogenic thresholds" the jump-landings were held against in Clissold, Cronin,
+#: De Souza, Wilson & Winwood 2019, "Bilateral multidirectional jumps with reactive
+#: jump-landings achieve osteogenic thresholds with and without instruction in premenopausal
+#: women", Clin Biomech 73:1-8 (doi 10.1016/j.clinbiomech.2019.12.025; abstract checked).
 OSTEOGENIC_GRF_BW = 3.0
 OSTEOGENIC_RATE_BW_S = 43.0
 

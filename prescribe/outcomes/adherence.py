@@ -7,16 +7,12 @@ from __future__ import annotations
 
 from datetime import date, timedelta
 
-from ..plan_schema import program_week
+from ..plan_schema import Plan, program_week, start_day
 
 __all__ = ["sessions_against_planned"]
 
 
-def _start(plan: dict) -> date:
-    return date.fromisoformat(plan.get("start_date") or str(plan.get("created", ""))[:10])
-
-
-def sessions_against_planned(versions: list[tuple[str, dict]], session_dates: list[str], until: date) -> dict:
+def sessions_against_planned(versions: list[tuple[str, Plan]], session_dates: list[str], until: date) -> dict:
     """Planned session days from the first program's start to ``until`` (inclusive), and the days
     with a logged session.
 
@@ -29,10 +25,9 @@ def sessions_against_planned(versions: list[tuple[str, dict]], session_dates: li
         return {"planned": 0, "done": 0, "from": None, "until": until.isoformat(), "fraction": None}
     parsed = []
     for created, plan in versions:
-        weeks = plan.get("weeks") or []
-        days = [{int(s.get("day", 0)) for s in w.get("sessions", [])} for w in weeks]
-        pause = (plan.get("paused") or {}).get("from_week")
-        parsed.append((date.fromisoformat(str(created)[:10]), _start(plan), days, pause))
+        days = [{s.day for s in w.sessions} for w in plan.weeks]
+        pause = plan.paused.from_week if plan.paused is not None else None
+        parsed.append((date.fromisoformat(str(created)[:10]), start_day(plan), days, pause))
     first = min(p[1] for p in parsed)
     planned = 0
     d = first

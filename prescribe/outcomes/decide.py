@@ -20,12 +20,12 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from datetime import date
 
-from ..errors import InputError
-from ..plan_schema import WEAK_WINDOW_WEEKS, Plan, PlanBlock, program_week, week_start
+from ..plan_schema import Plan, PlanBlock, program_week, start_day, week_start
+from ..stimulus import WEAK_WINDOW_WEEKS, week_stages
 from ..records import PatientRecord, ScreeningResult
 from .measures import decision_rules, measure_rules
 
-__all__ = ["RANK", "Decision", "decide", "stimulus_weeks", "next_block", "cleared_rules", "needs_new_clearance"]
+__all__ = ["RANK", "Decision", "decide", "next_block", "cleared_rules", "needs_new_clearance"]
 
 #: Strength of each decision: the strongest finding wins.
 RANK: dict[str, int] = {"continue": 0, "hold": 1, "refer": 2}
@@ -48,14 +48,14 @@ def _fmt(x: float) -> str:
     return f"{x:+g}"
 
 
-def cleared_rules(plan: dict | None) -> set[str]:
+def cleared_rules(plan: Plan | None) -> set[str]:
     """The screening rules a recorded clearance of ``plan`` lifted."""
-    if not plan or not plan.get("cleared_by"):
+    if plan is None or not plan.cleared_by:
         return set()
-    return {f["rule"] for f in (plan.get("screening") or {}).get("flags", []) if f.get("lifted_by_clearance")}
+    return {f.rule for f in plan.screening.flags if f.lifted_by_clearance}
 
 
-def needs_new_clearance(screening: ScreeningResult, plan: dict | None) -> list[str]:
+def needs_new_clearance(screening: ScreeningResult, plan: Plan | None) -> list[str]:
     """Rules of ``screening`` (screened without a clearance) that ask for one the current program
     does not already hold: a referral or a cap that waits for a clinician's clearance."""
     done = cleared_rules(plan)
@@ -64,7 +64,7 @@ def needs_new_clearance(screening: ScreeningResult, plan: dict | None) -> list[s
 
 
 def decide(measures: list[dict], falls_since_last: int, height_loss: float | None, screening: ScreeningResult,
-           plan: dict | None) -> Decision:
+           plan: Plan | None) -> Decision:
     """continue | hold | refer, with the reasons (each with its source) and the red flags.
 
     ``screening`` is the re-screened record without a clearance: rules that wait for a
@@ -102,9 +102,9 @@ def decide(measures: list[dict], falls_since_last: int, height_loss: float | Non
         r = _reason("screening_refers", rules=", ".join(pending))
         reasons.append(r)
         flags.append({"flag": "screening_refers", "rules": pending, "message": r["message"], "source": r["source"]})
-    pause = (plan or {}).get("paused")
-    if pause:
-        reasons.append(_reason("paused", since=pause.get("since", "?"), reason=pause.get("reason") or "no reason given"))
+    pause = plan.paused if plan is not None else None
+    if pause is not None:
+        reasons.append(_reason("paused", since=pause.since, reason=pause.reason or "no reason given"))
     if not reasons:
         reasons.append(_reason("continue"))
     top = max(RANK[r["decision"]] for r in reasons)
@@ -122,27 +122,7 @@ def _height_mdc() -> float:
 # the next block
 # ---------------------------------------------------------------------------------------
 
-def stimulus_weeks(weeks: list[dict]) -> list[int]:
-    """Weeks (1-based) where a new or larger stimulus starts: the week's ``step_up`` where the
-    plan records it, else a rise in impact level or a change of resistance phase."""
-    out, prev_level, prev_phase = [], 0, None
-    for i, w in enumerate(weeks, start=1):
-        level, phase = w.get("impact_level", 0), w.get("resistance_phase")
-        if w.get("step_up") is not None:
-            if w["step_up"]:
-                out.append(i)
-        elif level > prev_level or (i > 1 and phase != prev_phase) or i == 1:
-            out.append(i)
-        prev_level, prev_phase = level, phase
-    return out
-
-
-def _start(plan: dict) -> date:
-    text = plan.get("start_date") or str(plan.get("created", ""))[:10]
-    return date.fromisoformat(text)
-
-
-def next_block(plan: dict, record: PatientRecord, retest_day: date, *, template=None, cleared_by: str | None = None,
+def next_block(plan: Plan, record: PatientRecord, retest_day: date, *, template=None, cleared_by: str | None = None,
                cleared_at: str | None = None, created: str | None = None) -> tuple[Plan, dict]:
     """The next program after a retest on ``retest_day``: (the plan, what it continues from).
 
@@ -151,23 +131,17 @@ def next_block(plan: dict, record: PatientRecord, retest_day: date, *, template=
     that window).  It starts at the impact level and in the resistance phase of the last
     week of the current program done before it (at most the re-screened cap), with the
     current program's template, weeks and fixed options.  ``template``: a resolved clinic
-    template (the template library's), else the shipped one the plan names.
-
-    Raises
-    ------
-    InputError
-        The current program has no weeks.
+    template (the template library's), else the shipped one the plan names.  The new or larger
+    stimuli of the current program are :func:`prescribe.stimulus.week_stages`'.
     """
     from ..planning import PlanOptions, build_plan
     from ..planning.editing import fixed_options
     from ..safety import assert_safe, record_clearance
-    weeks = plan.get("weeks") or []
-    if not weeks:
-        raise InputError.single("program", plan.get("patient_id"), "a stored program with at least one week")
-    start = _start(plan)
+    weeks = plan.weeks
+    start = start_day(plan)
     n = len(weeks)
     at_retest = max(program_week(start, retest_day), 1)
-    ups = [s for s in stimulus_weeks(weeks) if s <= min(at_retest, n)]
+    ups = [st.week for st in week_stages(weeks) if st.stimulus and st.week <= min(at_retest, n)]
     last_up = ups[-1] if ups else None
     first_after_window = (last_up + WEAK_WINDOW_WEEKS[1]) if last_up is not None else 1
     begin_week = max(at_retest, first_after_window)
@@ -176,20 +150,20 @@ def next_block(plan: dict, record: PatientRecord, retest_day: date, *, template=
     done = weeks[done_week - 1]
     options = fixed_options(plan)
     options.pop("step_up_weeks", None)
-    level = int(done.get("impact_level", 0))
-    phase = done.get("resistance_phase")
+    level = done.impact_level
+    phase = done.resistance_phase
     options.update(start_level=level, weeks=min(max(n, 8), 52))
     if phase:
         options["start_phase"] = phase
-    tpl_name = (plan.get("template") or {}).get("name") or (plan.get("options") or {}).get("template")
-    if template is None and tpl_name and (plan.get("template") or {}).get("origin") != "clinic":
+    tpl_name = (plan.template.name if plan.template else None) or (plan.options or {}).get("template")
+    if template is None and tpl_name and (plan.template is None or plan.template.origin != "clinic"):
         options["template"] = tpl_name
     else:
         options.pop("template", None)
     cleared = bool(cleared_by)
     # Never above what the re-screened record and the template allow (a fall may lower the cap).
     from ..planning.builder import _default_template
-    from ..planning.rules import load_template
+    from ..planning.templates import load_template
     from ..safety import rescreen
     tpl_obj = template if template is not None else load_template(options.get("template")
                                                                  or _default_template(record))

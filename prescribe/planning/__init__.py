@@ -45,7 +45,9 @@ reviewed by a licensed clinician.
 The package, one concern a module:
 
 - :mod:`.options`: the options the clinician fixes (:class:`PlanOptions`), their bounds and defaults;
-- :mod:`.rules`: the planner's rules table, as templates (``data/templates/*.toml``) with sources;
+- :mod:`.templates`: program templates in one place: :mod:`.templates.document` the planner's rules table as
+  template documents (``data/templates/*.toml``) with sources, :mod:`.templates.review` the reference panel,
+  template checks and comparison;
 - :mod:`.sources`: the sources a plan cites and the planner's fixed numbers;
 - :mod:`.selection`: which exercises (impact in two directions, resistance chains, balance);
 - :mod:`.progression`: week by week (impact levels and volumes, resistance phases, weeks 3-5);
@@ -53,8 +55,7 @@ The package, one concern a module:
 - :mod:`.layout`: the days of a week and what each session holds;
 - :mod:`.builder`: :func:`build_plan` (the builder joining the above) and the thin :func:`check_plan`;
 - :mod:`.editing`: swaps (:func:`replace_exercise`) and the options and swaps a plan was made with;
-- :mod:`prescribe.safety` (its own package): the one safety check of every program, its rules one function each;
-- :mod:`.templates`: the reference panel, template checks and comparison.
+- :mod:`prescribe.safety` (its own package): the one safety check of every program, its rules one function each.
 
 The public names below are importable from ``prescribe.planning``; each is loaded from
 its module when first used, so the options and the rules table can be read (forms, the

@@ -23,7 +23,7 @@ from .dosing import _Dosing
 from .layout import _Layout
 from .options import PlanOptions
 from .progression import _Progression
-from .rules import Template, load_template
+from .templates import Template, load_template
 from .selection import _Selection, _views, _views_by_id
 from .sources import (CARER_LED_MAX_DAYS, CARER_LED_MAX_EXERCISES, SRC_BECK, SRC_CADENCE, SRC_CARER_LED,
                       SRC_HOLD_VOLUME, SRC_KOHRT, SRC_REMODEL, SRC_ROBLING, SRC_TURNER_DIR, SRC_TURNER_OI,

@@ -13,8 +13,8 @@ from functools import lru_cache
 from typing import Any, Iterable
 
 from ..loading.dose import daily_osteogenic_index, osteogenic_index
-from .rules import ResistancePhase
-from ..intensity import SUPERVISED_FROM_PCT_1RM, pct_1rm as _pct_1rm
+from .templates import ResistancePhase
+from ..intensity import needs_supervision, pct_1rm as _pct_1rm
 from .sources import CARER_LED_MAX_EXERCISES
 from .selection import _Ex
 from .sources import (IMPACT_REST_S, IMPACTS_PER_SET, LIFT_PRACTICE_PCT, LIFT_PRACTICE_REPS, LIFT_PRACTICE_SETS,
@@ -58,8 +58,7 @@ def _exercise(e: _Ex, **kw) -> dict:
     d.update(kw)
     # Supervised wherever 80% 1RM or more, or high impact, is prescribed (prescribe.safety,
     # rule supervision: Watson et al. 2018; common practice for high impact).
-    d["supervised"] = bool(d["supervised"] or d["impact_level"] >= 3
-                           or (_pct_1rm(d["intensity"]) or 0) >= SUPERVISED_FROM_PCT_1RM)
+    d["supervised"] = bool(d["supervised"] or needs_supervision(d["intensity"], d["impact_level"]))
     return d
 
 

@@ -15,11 +15,10 @@ from .options import PlanOptions
 from .selection import _views
 
 
-def fixed_options(plan: Plan | dict) -> dict[str, Any]:
+def fixed_options(plan: Plan) -> dict[str, Any]:
     """The options the clinician fixed when the plan was built (its ``options.fixed``), as
-    :class:`PlanOptions` keywords, so the same program can be rebuilt with one change.
-    ``plan``: the model, or a stored plan dict (read without validating it again)."""
-    recorded = (plan.get("options") if isinstance(plan, dict) else plan.options) or {}
+    :class:`PlanOptions` keywords, so the same program can be rebuilt with one change."""
+    recorded = plan.options or {}
     out = {}
     for name in recorded.get("fixed") or ():
         if name in PlanOptions.model_fields and name in recorded:

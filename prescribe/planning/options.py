@@ -14,7 +14,7 @@ from typing import Any
 from pydantic import BaseModel, ConfigDict, Field, ValidationError
 
 from ..errors import FieldProblem, InputError
-from .rules import template_names
+from .templates import template_names
 
 __all__ = ["PlanOptions", "OPTION_RANGES", "OPTION_DEFAULTS", "option_range", "range_text"]
 

@@ -14,8 +14,8 @@ import math
 
 from ..catalogue import IMPACT_LEVEL_LABELS as IMPACT_LABELS
 from ..errors import PlanRequestRefused
-from ..plan_schema import in_weak_window
-from .rules import ResistancePhase
+from ..stimulus import in_weak_window
+from .templates import ResistancePhase
 from .sources import (BALANCE_FIRST_WEEKS, FRAIL_BODYWEIGHT_WEEKS, LIFT_LOAD_FROM_PCT, LIFT_PRACTICE_WEEKS,
                       PHASE_WAIT_WEEKS)
 

@@ -15,7 +15,7 @@ from typing import Iterable
 from ..catalogue import IMPACT_LEVEL_LABELS as IMPACT_LABELS
 from ..records import FIELD_META, PatientRecord, ScreeningResult
 from .progression import reassessment_weeks
-from .rules import Template
+from .templates import Template
 from .sources import (BALANCE_FIRST_WEEKS, BALANCE_STAGE_WEEKS, BALANCE_STAGE_WEEKS_FALLS, FRAIL_BODYWEIGHT_WEEKS,
                       NARROW_STANCE_PATTERN, NEVER_IN_RESISTANCE, RESISTANCE_CHAINS_MAX, SRC_ACSM_PROGRESSION,
                       SRC_BALANCE_MEASURED, SRC_BROOKE, SRC_GIANG)

@@ -7,6 +7,8 @@ set them.
 
 from __future__ import annotations
 
+from ..loading.dose import BOUT_GAP_MIN_H as MIN_BOUT_GAP_H
+
 # --- sources the plan cites (only those actually used go into plan.sources) --------------
 SRC_KOHRT = "Kohrt et al. 2004, Med Sci Sports Exerc 36:1985-1996 (ACSM position stand: weight-bearing 3-5 and resistance 2-3 times a week)"
 SRC_BECK = "Beck, Daly, Fiatarone Singh & Taaffe 2017, J Sci Med Sport 20(5):438-445 (ESSA position statement: impact plus progressive resistance training; loaded spine flexion not recommended)"
@@ -25,8 +27,6 @@ STEPS_PER_MINUTE = 100.0
 #: informed by Robling, Burr & Turner 2001: rest between cycles adds to the response).
 IMPACTS_PER_SET = 10
 IMPACT_REST_S = 15
-#: Minimum documented gap between bouts of impact work [h] (issue rule 4).
-MIN_BOUT_GAP_H = 4.0
 #: Weeks of the balance-first phase when falls risk is flagged: no step-up above
 #: low impact before it ends (Giangregorio et al. 2014; length common practice).
 BALANCE_FIRST_WEEKS = 4

@@ -13,6 +13,7 @@ from typing import Iterator
 from ..intensity import pct_1rm, rpe_top  # noqa: F401 - read by the rules through this module
 from ..plan_schema import Plan
 from ..records import PatientRecord
+from ..stimulus import Load, highest, session_load
 from .model import Limits
 
 #: Categories of strength-type work (resistance, back extensors, posture).
@@ -77,6 +78,7 @@ def _catalogue_entries(catalogue) -> dict[str, _CatEntry]:
 class _SessionFacts:
     """What the rules read of one session's exercises (computed once per distinct session)."""
 
+    load: Load              # what it asks of the skeleton (prescribe.stimulus.session_load)
     impacts: int            # level 2-3 landings, all exercises
     top: int                # highest impact level
     pct: float              # highest %1RM (0 if none)
@@ -100,6 +102,7 @@ class _Facts:
         self.catalogue = catalogue
         self.entries = _catalogue_entries(catalogue)
         self.weeks = plan.weeks
+        self.loads: list[Load] = []        # per week: its load (prescribe.stimulus.week_load)
         self.levels: list[int] = []        # per week: highest impact level
         self.session_max: list[int] = []   # per week: largest session's level 2-3 impacts
         self.res_pct: list[float] = []     # per week: highest %1RM
@@ -112,6 +115,7 @@ class _Facts:
         self.count_mismatch: list[tuple] = []        # (week, session, facts) whose impacts do not add up
         self.contexts: dict[tuple, tuple] = {}      # (id(x), kind, supervised) -> (week, session, x)
         cache: dict[tuple, _SessionFacts] = {}
+        week_loads: dict[tuple, Load] = {}  # a built plan repeats its weeks' sessions: one load each
         contexts = self.contexts
         get = cache.get
         for wk in plan.weeks:
@@ -138,28 +142,20 @@ class _Facts:
                     res_days.append(s.day)
                 if sf.impacts:
                     day_imp[s.day] = day_imp.get(s.day, 0) + sf.impacts
-            top = largest = vol = 0
-            pct = rpe = 0.0
-            for _, sf in pairs:
-                if sf.top > top:
-                    top = sf.top
-                if sf.impacts > largest:
-                    largest = sf.impacts
-                if sf.pct > pct:
-                    pct = sf.pct
-                if sf.rpe > rpe:
-                    rpe = sf.rpe
-                if sf.vol > vol:
-                    vol = sf.vol
+            wkey = tuple(id(sf) for _, sf in pairs)
+            load = week_loads.get(wkey)
+            if load is None:
+                load = week_loads[wkey] = highest(sf.load for _, sf in pairs)
             self.week_sessions.append(pairs)
             self.balance_days.append(bal_days)
             self.resistance_days.append(res_days)
             self.day_impacts.append(day_imp)
-            self.levels.append(top)
-            self.session_max.append(largest)
-            self.res_pct.append(pct)
-            self.res_rpe.append(rpe)
-            self.res_vol.append(vol)
+            self.loads.append(load)
+            self.levels.append(load.impact_level)
+            self.session_max.append(load.impacts)
+            self.res_pct.append(load.pct_1rm)
+            self.res_rpe.append(load.rpe)
+            self.res_vol.append(load.volume)
 
     def exercises(self) -> Iterator[tuple[int, object, object]]:
         """(first week, session, exercise) for each distinct exercise in its session's kind."""
@@ -167,29 +163,16 @@ class _Facts:
 
 
 def _session_facts(kind: str, xs) -> _SessionFacts:
-    impacts = top = vol = 0
-    pct = rpe = 0.0
+    load = session_load(kind, xs)
     balance = False
     dirs: set[str] = set()
     landing = []
-    in_res = kind == "resistance"
     for x in xs:
-        lv = x.impact_level
-        if lv > top:
-            top = lv
-        if lv >= 2:
-            impacts += x.impacts
+        if x.impact_level >= 2:
             dirs.update(x.directions)
             if x.impacts > 0:
                 landing.append(x)
-        p = pct_1rm(x.intensity)
-        if p is not None and p > pct:
-            pct = p
-        if in_res:
-            r = rpe_top(x.intensity)
-            if r is not None and r > rpe:
-                rpe = r
-            vol += (x.sets or 0) * (x.reps or 0)
         if x.category == "balance" and (x.minutes or x.sets or x.reps):
             balance = True
-    return _SessionFacts(impacts, top, pct, rpe, vol, balance, frozenset(dirs), tuple(landing))
+    return _SessionFacts(load, load.impacts, load.impact_level, load.pct_1rm, load.rpe, load.volume, balance,
+                         frozenset(dirs), tuple(landing))

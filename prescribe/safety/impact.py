@@ -7,22 +7,20 @@ import math
 from typing import Iterator
 
 from ..catalogue import IMPACT_LEVEL_LABELS
+from ..loading.dose import BOUT_GAP_MIN_H as MIN_BOUT_GAP_H, IMPACTS_PER_BOUT_MAX as MAX_BOUT_IMPACTS
 from .facts import _Facts
 from .model import SafetyViolation
 
 SRC_SCREENING = ("the screening's own limits (impact cap and patterns to avoid), from the rule files' sources "
                  "(docs/rules.md); impact training scaled to fracture risk: Beck, Daly, Fiatarone Singh & "
                  "Taaffe 2017, J Sci Med Sport 20(5):438-445")
-SRC_CEILING = ("Clissold et al. 2022, Arch Sports Med Physiother 7:7-15 (programs of 10-100 jumps a day); "
-               "Jämsä et al. 2011, Front Physiol 2:73 (about 60 impacts a day above 4 g)")
+SRC_CEILING = ("Clissold, Cronin, De Souza & Winwood 2022, Arch Sports Med Physiother 7(1):7-15 (the jump "
+               "programs that raised femoral-neck BMD used 10-100 jumps a day); Jämsä et al. 2011, Front Physiol "
+               "2:73 (about 60 impacts a day above 4 g); a ceiling of 100 a session: common practice")
 SRC_BOUTS = ("Robling, Burr & Turner 2001, J Exp Biol 204:3389-3399 (about 8 h of recovery restores "
              "mechanosensitivity); 50 impacts a bout and a 4 h minimum gap are common practice")
 SRC_DIRECTIONS = "Turner 1998, Bone 23:399-407 (unusual, varied loading directions are more osteogenic)"
 
-#: Impacts a bout at most; more in a day are split into bouts (common practice, see SRC_BOUTS).
-MAX_BOUT_IMPACTS = 50
-#: Minimum documented gap between bouts of impact work [h] (common practice, see SRC_BOUTS).
-MIN_BOUT_GAP_H = 4.0
 
 IMPACT_LABELS = IMPACT_LEVEL_LABELS  # the catalogue's, next to the level boundaries
 

@@ -17,8 +17,9 @@ def limits_for(plan: Plan, screening: ScreeningResult | None = None, *,
 
     Considered: ``screening`` (when given), the plan's embedded screening, and a fresh
     screening of ``record`` (the caller's copy of the person, e.g. the store's) with the
-    current rules.  The cap is the lowest, the patterns to avoid the union, falls risk,
-    refer and supervision are set if any says so.
+    current rules, merged by :func:`strictest_screening` (the one merge): the cap is the
+    lowest, the patterns to avoid the union, falls risk, refer and supervision are set if any
+    says so.
     """
     found: list[tuple[str, ScreeningResult]] = []
     # A clearance recorded on the plan (who and when) lifts what the rules held until then; a
@@ -34,27 +35,23 @@ def limits_for(plan: Plan, screening: ScreeningResult | None = None, *,
         found.append(("re-screened plan.record", rescreen(plan.record, cleared)))
     if record is not None:
         found.append(("re-screened record", rescreen(record, cleared)))
-    cap = min(s.max_impact_level for _, s in found)
+    merged = strictest_screening(*(scr for _, scr in found))
+    cap = merged.max_impact_level
     plan_cap = plan.max_impact_level
     if plan_cap is not None and 0 <= plan_cap < cap:
         cap = plan_cap  # the template's own cap can only lower the screening's
-    avoid = frozenset(p for _, s in found for p in s.avoid)
+    avoid = frozenset(merged.avoid)
     max_imp = plan.max_impacts_per_session
     if max_imp is None or max_imp < 0:
         max_imp = IMPACTS_CEILING
     if max_imp > IMPACTS_CEILING and not plan.max_impacts_reason:
         max_imp = IMPACTS_CEILING
-    pcts = [s.max_pct_1rm for _, s in found if s.max_pct_1rm is not None]
     return Limits(
-        max_pct_1rm=min(pcts) if pcts else None,
-        carer_led=any(s.carer_led for _, s in found),
-        hold_volume=any(s.hold_volume for _, s in found),
+        max_pct_1rm=merged.max_pct_1rm, carer_led=merged.carer_led, hold_volume=merged.hold_volume,
         cap=cap, avoid=avoid,
-        falls_risk=any(s.falls_risk or s.balance_first for _, s in found),
-        refer=any(s.refer for _, s in found),
-        supervision=any(s.supervision for _, s in found),
-        spine_sparing=bool(avoid & SPINAL_PATTERNS)
-        or plan.spine_sparing is True,
+        falls_risk=merged.falls_risk or merged.balance_first,
+        refer=merged.refer, supervision=merged.supervision,
+        spine_sparing=bool(avoid & SPINAL_PATTERNS) or plan.spine_sparing is True,
         max_impacts=max_imp,
         origins=tuple(name for name, _ in found),
     )

@@ -6,11 +6,12 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Callable, Iterable
 
+# Impacts a session at most, unless a template gives a reason (the loading science's ceiling, its source with it).
+from ..loading.dose import IMPACTS_PER_SESSION_MAX as IMPACTS_CEILING
+
 if TYPE_CHECKING:
     from .facts import _Facts
 
-#: Impacts a session at most, unless a template gives a reason (Clissold et al. 2022).
-IMPACTS_CEILING = 100
 
 
 @dataclass(frozen=True)

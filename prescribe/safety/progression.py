@@ -5,7 +5,7 @@ from __future__ import annotations
 
 from typing import Iterator
 
-from ..plan_schema import weak_window_weeks
+from ..stimulus import stimulus_weeks, weak_window_weeks
 from .facts import STRENGTH_CATEGORIES, _CatEntry, _Facts, pct_1rm, rpe_top
 from .model import SafetyViolation
 
@@ -29,20 +29,13 @@ def rule_one_level_at_a_time(f: _Facts) -> Iterator[SafetyViolation]:
 
 
 def _stimulus_starts(f: _Facts) -> list[int]:
-    """Indexes of weeks with a new or larger stimulus of either kind.
-
-    The first week with any impact or resistance work; a rise in impact level; a rise in
-    resistance intensity (%1RM or effort).
-    """
-    out = []
-    for i in range(len(f.weeks)):
-        if i == 0:
-            if f.levels[0] > 0 or f.res_pct[0] > 0 or f.res_rpe[0] > 0 or f.res_vol[0] > 0:
-                out.append(0)
-        elif (f.levels[i] > f.levels[i - 1] or f.res_pct[i] > f.res_pct[i - 1]
-              or f.res_rpe[i] > f.res_rpe[i - 1]):
-            out.append(i)
-    return out
+    """Indexes of weeks with a new or larger stimulus of either kind (:func:`prescribe.stimulus.new_stimulus`:
+    the first week with any impact or resistance work; a rise in impact level; a rise in resistance
+    intensity, %1RM or effort); worked out once per check."""
+    starts = getattr(f, "_stimulus_starts", None)
+    if starts is None:
+        starts = f._stimulus_starts = stimulus_weeks(f.loads)
+    return starts
 
 
 _MEASURES = (

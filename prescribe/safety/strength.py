@@ -5,7 +5,7 @@ from __future__ import annotations
 
 from typing import Iterator
 
-from ..intensity import SUPERVISED_FROM_PCT_1RM, pct_1rm, rpe_top
+from ..intensity import SUPERVISED_FROM_PCT_1RM, needs_supervision, pct_1rm, rpe_top
 from .facts import STRENGTH_CATEGORIES, _Facts
 from .model import SafetyViolation
 
@@ -87,9 +87,7 @@ def rule_supervision(f: _Facts) -> Iterator[SafetyViolation]:
     """Work at 80% 1RM or more, or at high impact (level 3), is marked supervised, with its session."""
     seen: set[tuple[int, int]] = set()
     for week, s, x in f.exercises():
-        pct = pct_1rm(x.intensity)
-        heavy = pct is not None and pct >= SUPERVISED_FROM_PCT_1RM
-        if not (heavy or x.impact_level >= 3):
+        if not needs_supervision(x.intensity, x.impact_level):
             continue
         if x.supervised and s.supervised:
             continue
@@ -97,7 +95,8 @@ def rule_supervision(f: _Facts) -> Iterator[SafetyViolation]:
         if key in seen:
             continue
         seen.add(key)
-        what = f"{pct:g}% 1RM" if heavy else "high impact (level 3)"
+        pct = pct_1rm(x.intensity)
+        what = f"{pct:g}% 1RM" if pct is not None and pct >= SUPERVISED_FROM_PCT_1RM else "high impact (level 3)"
         yield SafetyViolation(
             "supervision", week, x.exercise_id,
             f"{x.exercise_id} on day {s.day} is {what} but is not marked supervised"

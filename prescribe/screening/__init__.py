@@ -1,6 +1,6 @@
 """Screening: one rule library, two evaluators.
 
-- :mod:`.rules`: the rule files (``prescribe/data/rules/*.toml``) loaded and validated, and the
+- :mod:`.rules`: the rule files (``prescribe/data/rules/screening/*.toml``) loaded and validated, and the
   feature vocabulary a condition may test;
 - :mod:`.norms`: the norms a person is compared with (30-second chair stand);
 - :mod:`.features`: the derived features of one record and of a caseload frame;

@@ -1,6 +1,6 @@
 """The screening engine: one rule library, two evaluators.
 
-The rules (:mod:`.rules`, data files under ``prescribe/data/rules``) are
+The rules (:mod:`.rules`, data files under ``prescribe/data/rules/screening``) are
 evaluated either for one person (:func:`screen`, a plain per-record evaluator) or
 for a whole caseload at once (:func:`screen_batch`, a vectorised numpy/pandas
 evaluator over a DataFrame of flattened records).  Both compute the same derived
@@ -35,7 +35,7 @@ import pandas as pd
 
 from ..cautions import with_standard
 from ..errors import InputError
-from ..records import T_SCORE_SITES, Flag, PatientRecord, ScreeningResult
+from ..records import Flag, PatientRecord, ScreeningResult, lowest_score
 from .batch_columns import FractureColumns
 from .batch_io import records_to_frame
 from .conditions import compile_scalar, evaluate_vector
@@ -171,7 +171,7 @@ class Engine:
         feats = record_features(rec)
         out = self.outcome(self.fired_mask(feats), cleared)
         lowest = feats["lowest_t_score"]
-        site = _site_of(rec.get("t_scores"), lowest)
+        site = _site_of(rec.get("t_scores"))
         lowest_z = feats["lowest_z_score"]
         reference = feats["density_reference"]
         # The WHO categories are for T-scores; before the menopause and under 50 only a Z-score
@@ -183,7 +183,7 @@ class Engine:
                 "cautions": list(out.cautions), "lowest_t_score": lowest, "lowest_t_score_site": site,
                 "balance_first": out.balance_first, "supervision": out.supervision,
                 "ruleset_version": self.version, "density_reference": reference,
-                "lowest_z_score": lowest_z, "lowest_z_score_site": _site_of(rec.get("z_scores"), lowest_z),
+                "lowest_z_score": lowest_z, "lowest_z_score_site": _site_of(rec.get("z_scores")),
                 "max_pct_1rm": out.max_pct_1rm, "carer_led": out.carer_led, "hold_volume": out.hold_volume,
                 "person_notes": list(out.person_notes), "cleared": cleared, "lifted": out.lifted}
 
@@ -358,11 +358,10 @@ def _number_or_none(value: Any) -> float | None:
     return None if value is None or np.isnan(value) else float(value)
 
 
-def _site_of(scores: dict | None, lowest: float | None) -> str | None:
-    """The first site (T_SCORE_SITES order) whose score is ``lowest``; None when none was measured."""
-    if lowest is None:
-        return None
-    return next(s for s in T_SCORE_SITES if (scores or {}).get(s) == lowest)
+def _site_of(scores: dict | None) -> str | None:
+    """The site of the lowest score (:func:`prescribe.records.lowest_score`); None when none was measured."""
+    found = lowest_score(scores)
+    return None if found is None else found[0]
 
 
 def _text_or_none(value: Any) -> str | None:

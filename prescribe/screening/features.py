@@ -14,7 +14,7 @@ import numpy as np
 import pandas as pd
 
 from ..errors import FieldProblem, InputError
-from ..records import CONDITIONS, MEDICATION_CLASSES, SURGERY_PROCEDURES, T_SCORE_SITES
+from ..records import CONDITIONS, MEDICATION_CLASSES, SURGERY_PROCEDURES, T_SCORE_SITES, lowest_score
 from .batch_columns import (FRACTURES_ALLOWED, LIST_ALLOWED, LIST_COLUMNS, RECORD_COLUMNS, REQUIRED_COLUMNS,
                             FractureColumns, fracture_columns, parse_items)
 from .norms import chair_stand_norm_low, chair_stand_norms
@@ -44,9 +44,9 @@ def density_reference(age_years, sex, menopause) -> str:
     return "t_score"
 
 
-def _lowest_of(scores: dict | None):
-    values = [v for v in ((scores or {}).get(site) for site in T_SCORE_SITES) if v is not None]
-    return min(values) if values else None
+def _lowest_of(scores: dict | None) -> float | None:
+    found = lowest_score(scores)
+    return None if found is None else found[1]
 
 
 def v2_record_features(rec: dict) -> dict[str, Any]:
@@ -85,12 +85,7 @@ def record_features(rec: dict) -> dict[str, Any]:
 
     Missing numbers are ``None``.  See :data:`prescribe.screening.rules.FEATURES` for the vocabulary.
     """
-    ts = rec.get("t_scores") or {}
-    lowest = None
-    for site in T_SCORE_SITES:
-        v = ts.get(site)
-        if v is not None and (lowest is None or v < lowest):
-            lowest = v
+    lowest = _lowest_of(rec.get("t_scores"))
     fractures = rec.get("fractures") or ()
     lt_count = 0
     lt_vert = lt_hip = hip = False

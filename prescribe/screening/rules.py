@@ -1,6 +1,6 @@
 """Screening rules as data: loading, validating and the feature vocabulary.
 
-Each rule family lives in one TOML file under ``prescribe/data/rules/``.  A rule
+Each rule family lives in one TOML file under ``prescribe/data/rules/screening/``.  A rule
 names its condition as structured data (``all`` / ``any`` / ``not`` of leaf tests
 ``{feature, op, value}``) over a documented set of *derived features* (see
 :data:`FEATURES`).  No string is ever evaluated as code.  The same compiled rule
@@ -25,7 +25,7 @@ from ..records import (BONE_METASTASES, COGNITION_LEVELS, CONDITIONS, MEDICATION
                        MOVEMENT_PATTERNS, SEVERITIES, SURGERY_PROCEDURES)
 
 #: Where the shipped rule files live.
-DEFAULT_RULES_DIR = Path(__file__).parent.parent / "data" / "rules"
+DEFAULT_RULES_DIR = Path(__file__).parent.parent / "data" / "rules" / "screening"
 
 #: The release of the rule library; the hash of the files is appended at load time.
 RULESET_RELEASE = "2026.12-1"

@@ -20,6 +20,7 @@ from datetime import datetime, timezone
 from typing import Callable
 
 from ..errors import InputError
+from ..plan_schema import Plan
 from .readers import FORMATS, SensorReaderMissing, detect_format, open_recording
 from .summary import DEFAULT_BODY_MASS_KG, SITES, ImpactCounter
 
@@ -80,7 +81,7 @@ def summarise_file(path: str | os.PathLike, fmt: str | None = None, *, site: str
 
 def summarise_for_person(path: str | os.PathLike, fmt: str | None = None, *, site: str = "hip",
                          body_mass_kg: float | None = None, start: str | float | None = None,
-                         plan: dict | None = None, plan_saved_at: str | None = None,
+                         plan: Plan | None = None, plan_saved_at: str | None = None,
                          progress: Callable[[float], None] | None = None) -> dict:
     """:func:`summarise_file`, then the plan's figures for the same days (when there is a plan).
 
@@ -112,7 +113,7 @@ def summarise_for_person(path: str | os.PathLike, fmt: str | None = None, *, sit
         summary["plan"] = None
     else:
         summary["plan"] = compare_with_plan(summary, plan, start_day)
-        summary["plan"]["program_created"] = plan.get("created")
+        summary["plan"]["program_created"] = plan.created
         lift_plan_figures(summary)
     summary["person_notes"] = notes
     return summary

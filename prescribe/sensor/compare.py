@@ -14,44 +14,32 @@ counted impacts whose estimated peak force is 2 BW or more (``impacts_2bw_or_mor
 from __future__ import annotations
 
 from datetime import date, datetime, timedelta
+
 from ..errors import InputError
-from ..plan_schema import weak_window_weeks
+from ..plan_schema import Plan
+from ..stimulus import weak_weeks
 
 
-
-def weak_weeks(plan: dict) -> set[int]:
-    """Program weeks inside a weak window: the planner's flag, else weeks 3-5 after a step-up."""
-    weeks = sorted(plan.get("weeks") or [], key=lambda w: w["week"])
-    flagged = {w["week"] for w in weeks if w.get("weak_window")}
-    if any(w.get("weak_window") is not None for w in weeks):
-        return flagged
-    steps, previous = [], None
-    for w in weeks:
-        if w.get("step_up") or (previous is not None and w["impact_level"] > previous):
-            steps.append(w["week"])
-        previous = w["impact_level"]
-    return weak_window_weeks(steps)
-
-
-def planned_by_date(plan: dict, start: date) -> dict[str, dict]:
-    """Planned impacts and osteogenic index for every dated session of the plan."""
+def planned_by_date(plan: Plan, start: date) -> dict[str, dict]:
+    """Planned impacts and osteogenic index for every dated session of the plan (a week is in a weak
+    window as :func:`prescribe.stimulus.weak_weeks` says)."""
     out: dict[str, dict] = {}
-    weak = weak_weeks(plan)
-    for w in plan.get("weeks") or []:
-        first = start + timedelta(days=7 * (int(w["week"]) - 1))
-        for s in w.get("sessions") or []:
-            offset = (int(s["day"]) - first.isoweekday()) % 7
+    weak = weak_weeks(plan.weeks)
+    for w in plan.weeks:
+        first = start + timedelta(days=7 * (w.week - 1))
+        for s in w.sessions:
+            offset = (s.day - first.isoweekday()) % 7
             day = (first + timedelta(days=offset)).isoformat()
-            entry = out.setdefault(day, {"week": int(w["week"]), "planned_impacts": 0,
-                                         "planned_osteogenic_index": 0.0, "weak_window": int(w["week"]) in weak,
+            entry = out.setdefault(day, {"week": w.week, "planned_impacts": 0,
+                                         "planned_osteogenic_index": 0.0, "weak_window": w.week in weak,
                                          "sessions": []})
-            entry["planned_impacts"] += int(s.get("impacts") or 0)
-            entry["planned_osteogenic_index"] += float(s.get("osteogenic_index") or 0.0)
-            entry["sessions"].append(s.get("kind"))
+            entry["planned_impacts"] += s.impacts
+            entry["planned_osteogenic_index"] += s.osteogenic_index
+            entry["sessions"].append(s.kind)
     return out
 
 
-def compare_with_plan(summary: dict, plan: dict, start: date) -> dict:
+def compare_with_plan(summary: dict, plan: Plan, start: date) -> dict:
     """Add the planned figures to each day of ``summary`` and the delivered share.
 
     Returns a dict with ``days`` (one per recorded day: date, week, planned_impacts,
@@ -63,9 +51,8 @@ def compare_with_plan(summary: dict, plan: dict, start: date) -> dict:
     weak window they are marked for the clinician's attention).
     """
     planned = planned_by_date(plan, start)
-    n_weeks = len(plan.get("weeks") or [])
-    end = start + timedelta(days=7 * n_weeks - 1)
-    weak = weak_weeks(plan)
+    end = start + timedelta(days=7 * len(plan.weeks) - 1)
+    weak = weak_weeks(plan.weeks)
     days, flags = [], []
     for d in summary["days"]:
         if d.get("date") is None:
@@ -137,15 +124,11 @@ def compare_with_plan(summary: dict, plan: dict, start: date) -> dict:
     }
 
 
-def program_start(plan: dict, saved_at: str | None) -> tuple[date, str]:
+def program_start(plan: Plan, saved_at: str | None) -> tuple[date, str]:
     """The program's start date, and a note when it had to be taken from elsewhere."""
-    raw = plan.get("start_date")
-    if raw:
-        try:
-            return date.fromisoformat(str(raw)), ""
-        except ValueError:
-            raise InputError.single("start_date", raw, "a date as YYYY-MM-DD in the stored program") from None
-    for value, what in ((saved_at, "the day its program version was saved"), (plan.get("created"), "the day it was created")):
+    if plan.start_date:
+        return date.fromisoformat(plan.start_date), ""
+    for value, what in ((saved_at, "the day its program version was saved"), (plan.created, "the day it was created")):
         if value:
             try:
                 day = datetime.fromisoformat(str(value)).date()

@@ -24,8 +24,8 @@ from ..errors import InputError
 
 __all__ = [
     "BAND_EDGES_G", "BAND_LABELS", "IMPACT_THRESHOLD_G", "JAMSA_THRESHOLD_G", "DEERE_THRESHOLD_G",
-    "REFRACTORY_S", "EDGE_RESOLUTION_G", "NEUGEBAUER_COEF", "NEUGEBAUER_RUN_FROM_NET_G",
-    "NEUGEBAUER_VALID_TO_NET_G", "net_resultant_g", "candidate_peaks", "group_impacts",
+    "REFRACTORY_S", "EDGE_RESOLUTION_G", "NEUGEBAUER_COEF", "NEUGEBAUER_WALK_TO_NET_G",
+    "NEUGEBAUER_RUN_FROM_NET_G", "NEUGEBAUER_VALID_TO_NET_G", "net_resultant_g", "candidate_peaks", "group_impacts",
     "band_index", "band_counts", "count_above", "neugebauer_peak_grf_n", "peak_grf_bw_from_net_g",
     "banded_osteogenic_index", "still_axes", "nonwear_windows",
 ]
@@ -57,14 +57,18 @@ EDGE_RESOLUTION_G = 1e-6
 #: + b_acc_run ACC run, ACC the peak vertical acceleration [g, gravity included], run 0/1.
 #: Coefficients taken from a secondary source (quoted, not read in the paper itself).
 NEUGEBAUER_COEF = {"b0": 5.247, "b_acc": 0.271, "b_mass": 0.014, "b_run": 0.934, "b_acc_run": -0.216}
-#: Impacts from the second band (1.1 g net) on use the running equation, lower ones the
-#: walking equation (our choice: Vainionpaa's second band is where running begins).
-NEUGEBAUER_RUN_FROM_NET_G = 1.1
-#: The regression is used up to the top of the third band (3.8 g net; about the
-#: largest hip peaks of running, from memory); above it, beyond running, the peak
-#: force is taken by Newton's second law as the resultant acceleration in g (see
-#: :func:`peak_grf_bw_from_net_g`).
-NEUGEBAUER_VALID_TO_NET_G = 3.9
+#: Peaks up to the second band (1.1 g net) use the walking equation (our choice: Vainionpaa's
+#: second band is where running begins) ...
+NEUGEBAUER_WALK_TO_NET_G = 1.1
+#: ... peaks from 2.0 g net (a running hip peak of about 3.0 g with gravity, where the secondary
+#: source quotes the running equation's 2.2 BW; the 3.0 g is from memory) the running equation;
+#: in between, the equation's own ``run`` term goes linearly from 0 to 1 (our choice), so the two
+#: equations join at both ends (see :func:`peak_grf_bw_from_net_g`).
+NEUGEBAUER_RUN_FROM_NET_G = 2.0
+#: The regression is used up to the top of the third band (3.8 g net; about the largest hip
+#: peaks of running, from memory); above it, beyond running, each further g adds one body weight
+#: (Newton's second law for the body as one mass), starting from the regression's value there.
+NEUGEBAUER_VALID_TO_NET_G = 3.8
 
 
 def _micro_g(value) -> np.ndarray:
@@ -253,8 +257,9 @@ def neugebauer_peak_grf_n(acc_g, body_mass_kg, running):
         Peak vertical acceleration at the hip [g], gravity included.
     body_mass_kg : float or array_like
         Body mass [kg], 25-300.
-    running : bool or array_like
-        True for running, False for walking (r = 1 or 0).
+    running : bool, float or array_like
+        The model's ``run`` term: True (1) for running, False (0) for walking; a value in
+        between blends the two equations (:func:`peak_grf_bw_from_net_g`).
 
     Returns
     -------
@@ -277,12 +282,19 @@ def neugebauer_peak_grf_n(acc_g, body_mass_kg, running):
 def peak_grf_bw_from_net_g(peak_g, body_mass_kg):
     """Estimated peak ground reaction force of each impact [BW], from its peak [g net].
 
-    * below 1.1 g net: Neugebauer et al. 2014's walking equation;
-    * 1.1 to 3.8 g net: its running equation;
-    * 3.9 g net and more (beyond running, outside the regression's range): Newton's
-      second law for the body as one mass, F / BW = a / g with a the resultant
-      acceleration, gravity included (peak g net + 1).  A hip sensor moves more than
-      the body's centre of mass, so this is an upper estimate (common practice).
+    One continuous, increasing curve whose pieces join at their breakpoints:
+
+    * up to 1.1 g net: Neugebauer et al. 2014's walking equation (``run`` = 0);
+    * from 2.0 g net to 3.8 g net: its running equation (``run`` = 1);
+    * in between: the same equation with ``run`` going linearly from 0 at 1.1 g to 1 at 2.0 g
+      (our choice), so it meets the walking equation at 1.1 g and the running one at 2.0 g.
+      The log-force rises with the acceleration all the way (its slope is at least
+      b_acc + b_acc_run = 0.055 a g, and b_run + b_acc_run ACC stays above 0 below 4.3 g);
+    * above 3.8 g net (beyond running, outside the regression's range): the regression's
+      value at 3.8 g plus one body weight for each further g: Newton's second law for the
+      body as one mass (F / BW = a / g) applied to the increment.  A hip sensor moves more
+      than the body's centre of mass, so the increment is an upper estimate (common practice);
+      the whole stays below the body-as-one-mass bound a / g.
 
     Parameters
     ----------
@@ -299,15 +311,15 @@ def peak_grf_bw_from_net_g(peak_g, body_mass_kg):
     References
     ----------
     Neugebauer, Collins & Hawkins 2014, PLoS ONE 9(6):e99023 (coefficients from a
-    secondary source).
+    secondary source: about 1.0 BW walking at 1.2 g and 2.2 BW running at 3.0 g, 70 kg).
     """
     g = np.asarray(peak_g, dtype=float)
     m = float(body_mass(body_mass_kg))
-    acc = g + 1.0
-    micro = _micro_g(g)
-    running = micro >= _micro_g(NEUGEBAUER_RUN_FROM_NET_G)
-    regression = neugebauer_peak_grf_n(acc, m, running) / (m * G)
-    return np.where(micro >= _micro_g(NEUGEBAUER_VALID_TO_NET_G), acc, regression)
+    walk_to, run_from, valid_to = NEUGEBAUER_WALK_TO_NET_G, NEUGEBAUER_RUN_FROM_NET_G, NEUGEBAUER_VALID_TO_NET_G
+    within = np.minimum(g, valid_to)
+    run = np.clip((within - walk_to) / (run_from - walk_to), 0.0, 1.0)
+    regression = neugebauer_peak_grf_n(within + 1.0, m, run) / (m * G)
+    return regression + np.maximum(g - valid_to, 0.0)
 
 
 def banded_osteogenic_index(peak_g, body_mass_kg):

@@ -312,10 +312,11 @@ def method() -> dict:
         "above_4_2g": "peaks strictly above 4.2 g net (Deere et al. 2012)",
         "nonwear": "60-minute windows stepped by 15 minutes; non-wear where 2 of 3 axes have SD < 13 mg and "
                    "range < 50 mg (after van Hees et al. 2013; criteria from memory); peaks there are not counted",
-        "peak_grf": "Neugebauer et al. 2014 regression (walking equation below 1.1 g net, running equation "
-                    "1.1-3.8 g net; acceleration taken as net peak + 1 g; coefficients from a secondary source); "
-                    "from 3.9 g net, beyond running where the regression is not valid: peak GRF [BW] = resultant "
-                    "acceleration [g] (Newton's second law, an upper estimate)",
+        "peak_grf": "Neugebauer et al. 2014 regression (walking equation up to 1.1 g net, running equation "
+                    "2.0-3.8 g net, the equation's run term going linearly from 0 to 1 in between; acceleration "
+                    "taken as net peak + 1 g; coefficients from a secondary source); above 3.8 g net, beyond "
+                    "running where the regression is not valid: its value at 3.8 g plus 1 BW for each further g "
+                    "(Newton's second law, an upper estimate of the increment); one continuous, increasing curve",
         "osteogenic_index": "per day: sum over bands of mean peak GRF [BW] x ln(impacts + 1) (Turner & Robling "
                             "2003), impacts in wear time only",
         "impacts_2bw_or_more": "impacts whose estimated peak GRF is 2 BW or more: what a program's impacts count "

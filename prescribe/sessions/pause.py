@@ -7,7 +7,7 @@ reason, until, counts_from}.  Until a clinician records the resumption
 adjustment may replace it; the store refuses them in one place
 (:func:`prescribe.store.programs.refuse_replacing_pause`).
 
-Pure helpers over plan dicts: no store, no widgets.  Stopping after warning signs and
+Pure helpers over the typed plan (:class:`prescribe.plan_schema.Plan`): no store, no widgets.  Stopping after warning signs and
 referring for assessment before more exercise: Riebe D et al. 2015, Updating ACSM's
 recommendations for exercise preparticipation health screening, Med Sci Sports Exerc
 47(11):2473-2479; keeping the program stopped until a clinician records the decision to
@@ -19,24 +19,23 @@ from __future__ import annotations
 from typing import Any
 
 from ..errors import InputError
+from ..plan_schema import Plan, PlanPause, PlanResume
 
 #: Longest resumption reason accepted [characters]: a sentence or a short paragraph for the
 #: record, not a clinical letter.
 REASON_MAX_CHARS = 500
 
 
-def active_pause(plan: dict | None) -> dict | None:
+def active_pause(plan: Plan | None) -> PlanPause | None:
     """The plan's pause when it is paused, else None."""
-    pause = plan.get("paused") if isinstance(plan, dict) else None
-    return pause if isinstance(pause, dict) and pause else None
+    return plan.paused if plan is not None else None
 
 
-def keeps_pause(pause: dict, new_plan: dict | None) -> bool:
+def keeps_pause(pause: PlanPause, new_plan: Plan | None) -> bool:
     """Whether ``new_plan`` keeps the same pause (the advice paused it again): it is still
     paused, from the same week and since the same day."""
     new = active_pause(new_plan)
-    return (new is not None and new.get("since") == pause.get("since")
-            and new.get("from_week") == pause.get("from_week"))
+    return new is not None and new.since == pause.since and new.from_week == pause.from_week
 
 
 def pause_caution(week: int) -> str:
@@ -56,7 +55,7 @@ def checked_reason(reason: Any, field: str = "reason") -> str:
     return reason.strip()
 
 
-def lift_pause(plan: dict, *, by: str, at: str, reason: str, paused_version: int) -> dict:
+def lift_pause(plan: Plan, *, by: str, at: str, reason: str, paused_version: int) -> Plan:
     """The paused ``plan`` with its pause lifted: the next program version.
 
     The weeks stay as they were (the week the pause began is still marked for
@@ -67,11 +66,10 @@ def lift_pause(plan: dict, *, by: str, at: str, reason: str, paused_version: int
     pause = active_pause(plan)
     if pause is None:
         raise InputError.single("program", f"version {paused_version}", "a paused program")
-    new = {k: v for k, v in plan.items() if k not in ("paused", "adjustment", "resumed")}
-    drop = pause_caution(pause.get("from_week"))
-    new["cautions"] = [c for c in plan.get("cautions", []) if c != drop]
-    new["based_on_version"] = paused_version
-    new["created"] = at
-    new["resumed"] = {"by": by, "at": at, "reason": reason, "paused_version": paused_version,
-                      "paused_since": pause.get("since"), "from_week": pause.get("from_week")}
-    return new
+    drop = pause_caution(pause.from_week)
+    return plan.model_copy(update={
+        "paused": None, "adjustment": None,
+        "cautions": [c for c in plan.cautions if c != drop],
+        "based_on_version": paused_version, "created": at,
+        "resumed": PlanResume(by=by, at=at, reason=reason, paused_version=paused_version,
+                              paused_since=pause.since, from_week=pause.from_week)})

@@ -1,6 +1,6 @@
 """Planned against done, week by week: the figures the live-session charts draw.
 
-Pure domain code over a plan dict and logged sessions; no widgets.
+Pure domain code over the typed plan and logged sessions; no widgets.
 """
 
 from __future__ import annotations
@@ -9,8 +9,9 @@ import math
 from dataclasses import dataclass, field
 from statistics import mean
 
-from ..plan_schema import in_weak_window
-from .engine import LoggedSession, window_position
+from ..plan_schema import Plan
+from ..stimulus import week_stages
+from .records import LoggedSession
 
 
 @dataclass
@@ -33,25 +34,23 @@ def _avg(values: list[float]) -> float:
     return round(mean(values), 2) if values else math.nan
 
 
-def weekly_progress(plan: dict, sessions: list[LoggedSession]) -> WeeklyProgress:
+def weekly_progress(plan: Plan, sessions: list[LoggedSession]) -> WeeklyProgress:
     """Per program week: impacts, minutes and top load planned and done; mean pain and effort.
 
-    Weeks with no session have NaN for pain and effort (a gap in the line), 0 done.
+    Weeks with no session have NaN for pain and effort (a gap in the line), 0 done; a week is
+    in a weak window as :func:`prescribe.stimulus.week_stages` says.
     """
     out = WeeklyProgress()
     by_week: dict[int, list[LoggedSession]] = {}
     for s in sessions:
         by_week.setdefault(s.week, []).append(s)
-    weeks = plan.get("weeks", [])
-    for i, w in enumerate(weeks, start=1):
+    for i, (w, stage) in enumerate(zip(plan.weeks, week_stages(plan.weeks)), start=1):
+        exercises = [x for s in w.sessions for x in s.exercises]
         out.week.append(i)
-        _, pos = window_position(weeks, i)
-        out.weak_window.append(in_weak_window(pos))
-        out.impacts_planned.append(sum(int(s.get("impacts") or 0) for s in w.get("sessions", [])))
-        out.minutes_planned.append(round(sum(float(x.get("minutes") or 0) for s in w.get("sessions", [])
-                                             for x in s.get("exercises", [])), 1))
-        loads = [float(x["load_kg"]) for s in w.get("sessions", []) for x in s.get("exercises", [])
-                 if x.get("load_kg") is not None]
+        out.weak_window.append(stage.weak)
+        out.impacts_planned.append(sum(s.impacts for s in w.sessions))
+        out.minutes_planned.append(round(sum(float(x.minutes or 0) for x in exercises), 1))
+        loads = [float(x.load_kg) for x in exercises if x.load_kg is not None]
         out.load_planned_kg.append(max(loads) if loads else math.nan)
         done = by_week.get(i, [])
         out.sessions_done.append(len(done))

@@ -9,13 +9,17 @@ and symptoms live in the session, the intake's ``pain_score`` stays the baseline
 from __future__ import annotations
 
 import math
+from dataclasses import dataclass
 from datetime import date
-from typing import Any, Iterable, Literal
+from typing import TYPE_CHECKING, Any, Iterable, Literal
 
 from pydantic import BaseModel, ConfigDict, Field, ValidationError, field_validator
 
 from ..errors import FieldProblem, InputError
 from ..identifiers import IDENTIFIER_CHARACTERS, identifier_text
+
+if TYPE_CHECKING:
+    from ..plan_schema import Plan
 
 #: Symptom codes a session may carry (the vocabulary may grow; codes are never renamed).
 SYMPTOMS: dict[str, str] = {
@@ -169,17 +173,16 @@ def check_session_dates(session: SessionRecord, start_date: str | date | None, t
                                     f"a date on or after the program's start_date {start.isoformat()}", source)
 
 
-def check_session_exercises(session: SessionRecord, plan: dict, catalogue_ids: Iterable[str],
+def check_session_exercises(session: SessionRecord, plan: "Plan", catalogue_ids: Iterable[str],
                             version: int | None = None, source: str | None = None) -> None:
     """Refuse an exercise the catalogue does not have or the session's program version does not hold.
 
-    ``plan`` is the stored program version (a plan as JSON); every ``exercises[i].exercise_id``
+    ``plan`` is the stored program version; every ``exercises[i].exercise_id``
     must be one of its exercises (which are the catalogue's).  :class:`InputError` names each
     wrong id and the program's ids.
     """
     known = set(catalogue_ids)
-    planned = sorted({str(x.get("exercise_id")) for w in plan.get("weeks") or () for s in w.get("sessions") or ()
-                      for x in s.get("exercises") or ()})
+    planned = sorted({x.exercise_id for w in plan.weeks for s in w.sessions for x in s.exercises})
     program = (f"program version {version} of {session.patient_id!r}" if version is not None
                else f"the program of {session.patient_id!r}")
     problems = []
@@ -194,3 +197,13 @@ def check_session_exercises(session: SessionRecord, plan: dict, catalogue_ids: I
                                          f"an exercise of {program} ({where}): " + ", ".join(planned)))
     if problems:
         raise InputError(problems, source)
+
+
+@dataclass(frozen=True)
+class LoggedSession:
+    """A stored session: the record, its program week and the program version it was logged against."""
+
+    record: SessionRecord
+    week: int
+    program_version: int | None = None
+    session_id: int | None = None

@@ -1,4 +1,5 @@
-"""The next-step rules, read from ``prescribe/data/session_rules.toml``.
+"""The next-step rules, read from ``prescribe/data/rules/sessions.toml`` (beside the
+screening rules, ``data/rules/screening/``).
 
 Each rule is data: an id, the decision it asks for, a test ``kind`` with parameters,
 a message and a source.  The kinds (what the engine can test):
@@ -17,7 +18,8 @@ a message and a source.  The kinds (what the engine can test):
                            ``sessions_running`` sessions running, effort at most ``max_rpe``
 ``always``                 the default
 ``paused``                 the program is paused (until a clinician records the resumption: ``prescribe resume``)
-``weak_window``            next week is in weeks ``window_weeks`` after a step-up (turns progress into hold)
+``weak_window``            next week is held by prescribe.stimulus (weeks 3-5 after a new or larger stimulus of
+                          either kind, or labelled a window): turns progress into hold
 """
 
 from __future__ import annotations
@@ -37,7 +39,7 @@ RANK = {d: i for i, d in enumerate(DECISIONS)}
 KINDS = ("symptom_any", "fell", "pain_during_above", "pain_next_morning_above", "pain_not_settled", "pain_rising",
          "session_rpe_above", "adherence_below", "break_days_at_least", "no_sessions", "reps_beyond_target",
          "always", "weak_window", "paused")
-RULES_FILE = "session_rules.toml"
+RULES_FILE = "rules/sessions.toml"
 
 
 @dataclass(frozen=True)

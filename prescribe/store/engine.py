@@ -67,7 +67,7 @@ class StoreBase:
         self.path: Path | None = None
         # Program versions and session records never change once stored: parsed copies are
         # kept here for the session engine's reads (read-only; see program_for_reading).
-        self._plan_cache: dict[tuple[str, int], tuple[str, dict]] = {}
+        self._plan_cache: dict[tuple[str, int], tuple[str, Any]] = {}  # (created, Plan)
         self._session_cache: dict[tuple[int, str], Any] = {}
         revision: str | None | bool = False  # False: not known before connecting
         if self.is_sqlite:

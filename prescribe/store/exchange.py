@@ -14,7 +14,7 @@ from sqlalchemy.engine import Connection
 from .. import __version__
 from ..cautions import STANDARD_CAUTIONS
 from ..errors import ConflictError, InputError, StoreError
-from ..plan_schema import parse_plan
+from ..plan_schema import Plan, parse_plan
 from ..records import parse_record
 from ..safety import assert_safe
 from . import models as m
@@ -64,7 +64,7 @@ class ExchangeMixin(StoreBase):
         """
         b = parse_bundle(bundle)
         pid = b["person"]["patient_id"]
-        check_bundle_programs(b)
+        plans = check_bundle_programs(b)
         at = now_utc()
         with self._write() as conn:
             exists = conn.execute(select(m.people.c.patient_id).where(m.people.c.patient_id == pid)
@@ -77,7 +77,7 @@ class ExchangeMixin(StoreBase):
                     return {"patient_id": pid, "status": "unchanged", **_counts(b)}
                 # A bundle whose latest program would replace a paused one: refused as such (exit 2).
                 programs = sorted(b["programs"], key=lambda p: p["version"])
-                refuse_replacing_pause(conn, pid, programs[-1]["plan"] if programs else None,
+                refuse_replacing_pause(conn, pid, plans[programs[-1]["version"]] if programs else None,
                                        f"import of a bundle of {pid!r}")
                 raise ConflictError(
                     f"{pid!r} is already in the store at {self.where} with different content; importing "
@@ -93,7 +93,8 @@ class ExchangeMixin(StoreBase):
                 conn.execute(m.program_versions.insert().values(
                     patient_id=pid, version=p["version"], based_on_version=p["based_on_version"],
                     created=p["created"], clinician=p["clinician"], note=p["note"],
-                    summary_json=_dumps(plan_summary(p["plan"]), "plan"), plan_json=_dumps(p["plan"], "plan")))
+                    summary_json=_dumps(plan_summary(plans[p["version"]]), "plan"),
+                    plan_json=_dumps(p["plan"], "plan")))  # the bundle's plan JSON kept as exported
             for s in b["session_logs"]:
                 conn.execute(m.session_logs.insert().values(
                     patient_id=pid, program_version=s["program_version"], session_date=s["session_date"],
@@ -172,16 +173,20 @@ class ExchangeMixin(StoreBase):
                 "people": people, "program_versions": versions, "revision": HEAD_REVISION}
 
 
-def check_bundle_programs(b: dict) -> None:
-    """Every program version of a bundle passes the safety check against the bundle's record.
+def check_bundle_programs(b: dict) -> dict[int, Plan]:
+    """Every program version of a bundle, validated (the file boundary: once) and passed through
+    the safety check against the bundle's record: {version: plan}.
 
     Raises :class:`~prescribe.errors.UnsafeProgram` (nothing is stored) naming the version.
     """
     record = parse_record(b["person"]["record"], source="bundle person.record")
+    plans = {}
     for p in b["programs"]:
         plan = parse_plan(p["plan"], source=f"bundle program version {p['version']}")
         assert_safe(plan, door=f"bundle program version {p['version']} of {b['person']['patient_id']!r}",
                     record=record)
+        plans[p["version"]] = plan
+    return plans
 
 
 def _export(conn: Connection, pid: str) -> dict:

@@ -14,6 +14,7 @@ from sqlalchemy.engine import Connection
 from sqlalchemy.exc import IntegrityError
 
 from ..errors import ConflictError, InputError
+from ..plan_schema import Plan
 from ..records import PatientRecord, ScreeningResult, parse_record
 from ..safety import assert_safe
 from . import models as m
@@ -26,7 +27,7 @@ class PeopleMixin(StoreBase):
     """People and screenings."""
 
     def save_patient(self, record: PatientRecord, screening: ScreeningResult | None = None,
-                     clinician: str = "", *, plan: dict | None = None, plan_note: str = "",
+                     clinician: str = "", *, plan: Plan | dict | None = None, plan_note: str = "",
                      based_on_version: int | None = None) -> dict:
         """Create or update a person and, if given, append a screening and store ``plan`` as
         the person's next program version; one transaction (all of it or nothing).
@@ -108,7 +109,7 @@ class PeopleMixin(StoreBase):
             program_version = None
             if plan is not None:
                 latest = _latest_program(conn, pid)
-                program_version = _insert_program(conn, pid, at, plan_clinician, plan_json, summary_json,
+                program_version = _insert_program(conn, pid, at, plan_clinician, parsed, plan_json, summary_json,
                                                   latest.version if latest else None, plan_note)
         out = {"patient_id": pid, "status": status, "created": created, "updated": updated,
                "changed_fields": changed, "screening_id": screening_id, "record_version": version}

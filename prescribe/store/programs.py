@@ -18,7 +18,7 @@ from sqlalchemy import func, select
 from sqlalchemy.engine import Connection
 
 from ..errors import ConflictError, InputError, NotFoundError, ProgramPaused
-from ..plan_schema import parse_plan
+from ..plan_schema import Plan, parse_plan
 from ..records import parse_record
 from ..safety import assert_safe
 from ..sessions.pause import active_pause, checked_reason, keeps_pause, lift_pause
@@ -30,13 +30,14 @@ from .rows import _audit, _clinician, _dumps, _person, _text
 class ProgramsMixin(StoreBase):
     """Program versions."""
 
-    def save_program(self, patient_id: str, plan: dict, clinician: str, based_on_version: int | None,
+    def save_program(self, patient_id: str, plan: Plan | dict, clinician: str, based_on_version: int | None,
                      note: str = "", *, action: str = "program_saved", audit_detail: dict | None = None) -> int:
         """Save a new version of a person's program and return its number.
 
         ``based_on_version`` is the version the clinician started from (None for the
         first version).  When it is not the latest stored version the save is refused
-        with :class:`ConflictError` naming both versions: nothing is overwritten.
+        with :class:`ConflictError` naming both versions: nothing is overwritten.  ``plan`` is
+        the typed plan, or plan JSON data (validated here, once).
         """
         clinician = _clinician(clinician, required=True)
         note = _text(note, "note")
@@ -56,8 +57,8 @@ class ProgramsMixin(StoreBase):
             latest_version = latest.version if latest else None
             if based_on_version != latest_version:
                 raise _conflict(patient_id, based_on_version, latest)
-            return _insert_program(conn, patient_id, at, clinician, plan_json, summary_json, based_on_version,
-                                   note, action=action, audit_detail=audit_detail)
+            return _insert_program(conn, patient_id, at, clinician, parsed, plan_json, summary_json,
+                                   based_on_version, note, action=action, audit_detail=audit_detail)
 
     def resume_program(self, patient_id: str, clinician: str, reason: str) -> dict:
         """Record the resumption of a paused program: the next version, with the pause lifted.
@@ -87,7 +88,7 @@ class ProgramsMixin(StoreBase):
             if latest is None:
                 raise InputError.single("patient_id", patient_id, "a person with a stored program that is paused "
                                         "(this person has no stored program)")
-            plan = json.loads(latest.plan_json)
+            plan = _stored_plan(latest.plan_json, patient_id, latest.version)
             pause = active_pause(plan)
             if pause is None:
                 raise InputError.single("program", f"version {latest.version} of {patient_id!r} (not paused)",
@@ -98,14 +99,14 @@ class ProgramsMixin(StoreBase):
             assert_safe(parsed, door=f"store: resuming the program of {patient_id!r}",
                         record=parse_record(json.loads(row.record_json), source=f"store record {patient_id!r}"))
             version = _insert_program(
-                conn, patient_id, at, clinician, plan_json, summary_json, latest.version,
+                conn, patient_id, at, clinician, parsed, plan_json, summary_json, latest.version,
                 f"resumed: {reason}", action="program_resumed", lifts_pause=True,
                 audit_detail={"reason": reason, "paused_version": latest.version,
-                              "paused_since": pause.get("since"), "paused_from_week": pause.get("from_week"),
-                              "pause_reason": pause.get("reason", "")})
+                              "paused_since": pause.since, "paused_from_week": pause.from_week,
+                              "pause_reason": pause.reason})
         return {"patient_id": patient_id, "program_version": version, "based_on_version": latest.version,
                 "resumed_by": clinician, "resumed_at": at, "reason": reason,
-                "paused_since": pause.get("since"), "paused_from_week": pause.get("from_week")}
+                "paused_since": pause.since, "paused_from_week": pause.from_week}
 
     def last_resumption(self, patient_id: str) -> dict | None:
         """The latest recorded resumption of the person's program (its audit entry's detail
@@ -134,8 +135,8 @@ class ProgramsMixin(StoreBase):
             return conn.execute(select(func.max(m.program_versions.c.version))
                                 .where(m.program_versions.c.patient_id == patient_id)).scalar()
 
-    def get_program(self, patient_id: str, version: int | None = None) -> dict:
-        """The plan JSON of one version (the latest when ``version`` is None)."""
+    def get_program(self, patient_id: str, version: int | None = None) -> Plan:
+        """The plan of one version (the latest when ``version`` is None), validated from its row."""
         with self._read() as conn:
             _person(conn, patient_id)
             query = select(m.program_versions.c.plan_json).where(m.program_versions.c.patient_id == patient_id)
@@ -147,7 +148,7 @@ class ProgramsMixin(StoreBase):
         if row is None:
             what = "no saved program" if version is None else f"no program version {version}"
             raise NotFoundError(f"{patient_id!r} has {what} in the store")
-        return json.loads(row.plan_json)
+        return _stored_plan(row.plan_json, patient_id, version)
 
     def program_created(self, patient_id: str, version: int | None = None) -> str | None:
         """When a program version (the latest by default) was saved."""
@@ -172,12 +173,23 @@ class ProgramsMixin(StoreBase):
         return out
 
 
-def _checked_plan(patient_id: str, plan: dict):
-    """The parsed plan (for the safety check) and its stored JSON and summary."""
-    parsed = parse_plan(plan, source="program")
+def _checked_plan(patient_id: str, plan: Plan | dict):
+    """The typed plan (for the safety check) and its stored JSON and summary.
+
+    Plan JSON data (a plan file's, a bundle's) is validated here, once, and kept as it came; a
+    typed plan is kept as ``prescribe plan`` prints one (every field).
+    """
+    parsed = plan if isinstance(plan, Plan) else parse_plan(plan, source="program")
     if parsed.patient_id != patient_id:
         raise InputError.single("plan.patient_id", parsed.patient_id, f"the person's id {patient_id!r}")
-    return parsed, _dumps(plan, "plan"), _dumps(plan_summary(plan), "plan")
+    data = parsed.model_dump(mode="json") if isinstance(plan, Plan) else plan
+    return parsed, _dumps(data, "plan"), _dumps(plan_summary(parsed), "plan")
+
+
+def _stored_plan(text: str, patient_id: str, version: int | None) -> Plan:
+    """A stored program row's plan, validated: the one place a stored plan becomes a Plan."""
+    where = f"stored program of {patient_id!r}" + (f", version {version}" if version is not None else "")
+    return parse_plan(json.loads(text), source=where)
 
 
 def _latest_program(conn: Connection, pid: str):
@@ -187,7 +199,7 @@ def _latest_program(conn: Connection, pid: str):
                         .order_by(m.program_versions.c.version.desc()).limit(1)).first()
 
 
-def refuse_replacing_pause(conn: Connection, pid: str, new_plan: dict | None, door: str) -> None:
+def refuse_replacing_pause(conn: Connection, pid: str, new_plan: Plan | None, door: str) -> None:
     """Refuse (:class:`ProgramPaused`) a program that would replace the person's paused one.
 
     The one test of every door that stores a program (called inside its transaction, with
@@ -197,18 +209,18 @@ def refuse_replacing_pause(conn: Connection, pid: str, new_plan: dict | None, do
     row = conn.execute(select(m.program_versions.c.version, m.program_versions.c.plan_json)
                        .where(m.program_versions.c.patient_id == pid)
                        .order_by(m.program_versions.c.version.desc()).limit(1)).first()
-    if row is None or '"paused"' not in row.plan_json:
+    if row is None or '"paused": {' not in row.plan_json:  # a pause is an object; null or absent: none
         return
-    pause = active_pause(json.loads(row.plan_json))
+    pause = active_pause(_stored_plan(row.plan_json, pid, row.version))
     if pause is not None and not keeps_pause(pause, new_plan):
-        raise ProgramPaused(pid, row.version, pause, door)
+        raise ProgramPaused(pid, row.version, pause.model_dump(mode="json"), door)
 
 
-def _insert_program(conn: Connection, pid: str, at: str, clinician: str, plan_json: str, summary_json: str,
+def _insert_program(conn: Connection, pid: str, at: str, clinician: str, plan: Plan, plan_json: str, summary_json: str,
                     based_on_version: int | None, note: str, *, action: str = "program_saved",
                     audit_detail: dict | None = None, lifts_pause: bool = False) -> int:
     if not lifts_pause:  # only resume_program lifts a pause
-        refuse_replacing_pause(conn, pid, json.loads(plan_json), f"store: saving a program for {pid!r}")
+        refuse_replacing_pause(conn, pid, plan, f"store: saving a program for {pid!r}")
     latest = conn.execute(select(func.max(m.program_versions.c.version))
                           .where(m.program_versions.c.patient_id == pid)).scalar()
     version = (latest or 0) + 1
@@ -235,12 +247,10 @@ def _conflict(pid: str, based_on: int | None, latest) -> ConflictError:
     return err
 
 
-def plan_summary(plan: dict) -> dict:
+def plan_summary(plan: Plan) -> dict:
     """The few plan figures a version list shows."""
-    weeks = plan.get("weeks") or []
-    levels = [w.get("impact_level", 0) for w in weeks if isinstance(w, dict)]
-    return {"weeks": len(weeks), "max_impact_level": max(levels) if levels else None,
-            "ruleset_version": plan.get("ruleset_version"), "plan_created": plan.get("created"),
-            "plan_format_version": plan.get("plan_format_version"),
-            "template": tpl.get("name") if isinstance(tpl := plan.get("template"), dict) else None,
-            "template_version": plan.get("template_version")}
+    return {"weeks": len(plan.weeks), "max_impact_level": max((w.impact_level for w in plan.weeks), default=None),
+            "ruleset_version": plan.ruleset_version, "plan_created": plan.created,
+            "plan_format_version": plan.plan_format_version,
+            "template": plan.template.name if plan.template is not None else None,
+            "template_version": plan.template_version}

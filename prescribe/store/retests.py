@@ -15,12 +15,13 @@ import json
 from sqlalchemy import func, select
 
 from ..errors import ConflictError, InputError
+from ..plan_schema import Plan
 from ..records import PatientRecord, ScreeningResult
 from ..safety import assert_safe
 from . import models as m
 from .engine import StoreBase, now_utc
 from .people import _insert_screening
-from .programs import _checked_plan, _insert_program, _latest_program
+from .programs import _checked_plan, _insert_program, _latest_program, _stored_plan
 from .rows import _audit, _clinician, _dumps, _person
 
 
@@ -29,7 +30,7 @@ class RetestsMixin(StoreBase):
 
     def save_retest(self, retest: dict, record: PatientRecord, screening: ScreeningResult, clinician: str, *,
                     previous: dict, result: dict, based_on_record_version: int,
-                    plan: dict | None = None, based_on_version: int | None = None, plan_note: str = "",
+                    plan: Plan | dict | None = None, based_on_version: int | None = None, plan_note: str = "",
                     template: str | None = None, verdicts: dict | None = None) -> dict:
         """Store a retest with the updated record, its screening and (optionally) the next block.
 
@@ -66,13 +67,14 @@ class RetestsMixin(StoreBase):
                     raise ConflictError(f"the program of {pid!r} is now at version {latest_version}, but the next "
                                         f"block was based on version {based_on_version}; nothing was stored: run "
                                         "the retest again")
-                current = json.loads(conn.execute(
+                text = conn.execute(
                     select(m.program_versions.c.plan_json).where(m.program_versions.c.patient_id == pid,
                                                                  m.program_versions.c.version == latest_version)
-                ).scalar() or "{}") if latest else {}
-                if current.get("paused"):
+                ).scalar() if latest else None
+                pause = _stored_plan(text, pid, latest_version).paused if text else None
+                if pause is not None:
                     raise InputError.single("program", f"version {latest_version} of {pid!r} (paused since "
-                                            f"{current['paused'].get('since')})",
+                                            f"{pause.since})",
                                             "a program that is not paused: a paused program stays until a "
                                             "clinician records the resumption; the retest was not stored")
             old = json.loads(row.record_json)
@@ -89,7 +91,7 @@ class RetestsMixin(StoreBase):
             screening_id = _insert_screening(conn, pid, at, clinician, screening.model_dump(mode="json"))
             if plan is not None:
                 program_version = _insert_program(
-                    conn, pid, at, clinician, plan_json, summary_json, based_on_version, plan_note,
+                    conn, pid, at, clinician, parsed, plan_json, summary_json, based_on_version, plan_note,
                     action="program_next_block",
                     audit_detail={"after_retest": retest.get("date"), "decision": result.get("decision")})
             rid = conn.execute(m.retests.insert().values(

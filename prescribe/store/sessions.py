@@ -10,9 +10,11 @@ from sqlalchemy import func, select
 from sqlalchemy.engine import Connection
 
 from ..errors import InputError, NotFoundError
+from ..plan_schema import Plan, start_day
 from ..records import PatientRecord, parse_record
 from . import models as m
 from .engine import StoreBase, now_utc
+from .programs import _stored_plan
 from .rows import _audit, _clinician, _dumps, _iso_date, _person, _text
 
 if TYPE_CHECKING:
@@ -99,17 +101,11 @@ class SessionsMixin(StoreBase):
                     raise InputError.single("program_version", session.program_version,
                                             f"a stored program version of {pid!r} " +
                                             (f"(1 to {have})" if have else "(none is stored yet)"))
-            hit = self._plan_cache.get((pid, row.version))
-            if hit is not None and hit[0] == row.created:
-                plan = hit[1]
-            else:
-                plan = json.loads(conn.execute(select(m.program_versions.c.plan_json).where(
-                    m.program_versions.c.patient_id == pid, m.program_versions.c.version == row.version)).scalar())
-                self._plan_cache[(pid, row.version)] = (row.created, plan)
-            start = plan.get("start_date") or str(plan.get("created", ""))[:10] or None
+            _, plan = self._program_for_reading(conn, pid, row.version)
+            start = start_day(plan)
             check_session_dates(session, start, today)
             check_session_exercises(session, plan, _catalogue_ids(), row.version)
-            week = program_week(start, session.session_date) if start else None
+            week = program_week(start, session.session_date)
             sid = int(conn.execute(m.session_logs.insert().values(
                 patient_id=pid, program_version=row.version, session_date=session.session_date, done_json=done_json,
                 rpe=None if session.session_rpe is None else int(round(session.session_rpe)),
@@ -138,18 +134,18 @@ class SessionsMixin(StoreBase):
             _person(conn, patient_id)
             return self._logged_sessions(conn, patient_id)
 
-    def program_for_reading(self, patient_id: str, version: int | None = None) -> tuple[int, dict]:
+    def program_for_reading(self, patient_id: str, version: int | None = None) -> tuple[int, Plan]:
         """(version, plan) of one program version (the latest when ``version`` is None).
 
-        The plan is a shared parsed copy: read it, never change it (use :meth:`get_program`
+        The plan is a shared validated copy: read it, never change it (use :meth:`get_program`
         for a copy of your own).  Versions never change once stored, so repeated reads
-        (the session engine's) skip parsing the JSON again.
+        (the session engine's) skip validating the JSON again.
         """
         with self._read() as conn:
             _person(conn, patient_id)
             return self._program_for_reading(conn, patient_id, version)
 
-    def session_context(self, patient_id: str) -> tuple[PatientRecord, int | None, dict | None, list]:
+    def session_context(self, patient_id: str) -> tuple[PatientRecord, int | None, Plan | None, list]:
         """What the session engine needs, in one read: (record, latest program version, its plan
         (shared, read-only) or None, the logged sessions)."""
         with self._read() as conn:
@@ -163,8 +159,7 @@ class SessionsMixin(StoreBase):
         return record, version, plan, sessions
 
     def _logged_sessions(self, conn: Connection, patient_id: str) -> list:
-        from ..sessions.engine import LoggedSession
-        from ..sessions.records import SessionRecord
+        from ..sessions.records import LoggedSession, SessionRecord
         t = m.session_logs.c
         keys = conn.execute(select(t.id, t.created).where(t.patient_id == patient_id, t.session_json.is_not(None))
                             .order_by(t.session_date, t.id)).all()
@@ -177,7 +172,7 @@ class SessionsMixin(StoreBase):
                 self._session_cache[(r.id, r.created)] = LoggedSession(rec, r.week or 0, r.program_version, r.id)
         return [self._session_cache[(k.id, k.created)] for k in keys]
 
-    def _program_for_reading(self, conn: Connection, patient_id: str, version: int | None) -> tuple[int, dict]:
+    def _program_for_reading(self, conn: Connection, patient_id: str, version: int | None) -> tuple[int, Plan]:
         t = m.program_versions.c
         query = select(t.version, t.created).where(t.patient_id == patient_id)
         query = query.order_by(t.version.desc()).limit(1) if version is None else query.where(t.version == version)
@@ -188,8 +183,9 @@ class SessionsMixin(StoreBase):
         hit = self._plan_cache.get((patient_id, row.version))
         if hit is not None and hit[0] == row.created:
             return row.version, hit[1]
-        plan = json.loads(conn.execute(select(t.plan_json).where(t.patient_id == patient_id,
-                                                                 t.version == row.version)).scalar())
+        plan = _stored_plan(conn.execute(select(t.plan_json).where(t.patient_id == patient_id,
+                                                                   t.version == row.version)).scalar(),
+                            patient_id, row.version)
         self._plan_cache[(patient_id, row.version)] = (row.created, plan)
         return row.version, plan
 

@@ -18,7 +18,7 @@ HANDOUT_CAUTIONS = (
 )
 
 #: What the live-session panel asks of the clinician (common practice; the symptoms and falls
-#: that stop a session are the session rules' own, data/session_rules.toml).
+#: that stop a session are the session rules' own, data/rules/sessions.toml).
 LIVE_CAUTIONS = (
     "Any symptom ticked below means stop the session and assess the person before going on; "
     "a fall since the last session is assessed before any loading.",

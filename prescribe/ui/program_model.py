@@ -13,19 +13,13 @@ Sports Exerc 41:687-708: about 60-70% 1RM for novices, 80% and more is heavy).
 
 from __future__ import annotations
 
-import re
 from dataclasses import dataclass, field
 from datetime import date, datetime, timedelta
 from typing import Any, Iterable
 
 from ..handout.content import DAY_NAMES, LEVEL_LABELS
-from ..intensity import SUPERVISED_FROM_PCT_1RM, pct_1rm
-
-#: The supervision rule's thresholds (PRODUCT.md: supervision wherever 80% 1RM or more, or
-#: high impact, is prescribed): the load's is SUPERVISED_FROM_PCT_1RM (prescribe.intensity).
-SUPERVISED_FROM_LEVEL = 3
-
-_RPE = re.compile(r"RPE\s*(\d+(?:\.\d+)?)(?:\s*-\s*(\d+(?:\.\d+)?))?", re.IGNORECASE)
+from ..intensity import needs_supervision, pct_1rm, rpe_range
+from ..stimulus import week_stages
 
 
 # ---------------------------------------------------------------------------------------
@@ -68,12 +62,11 @@ def load_words(ex: Any) -> str:
     intensity = (getattr(ex, "intensity", "") or "").strip()
     parts: list[str] = []
     pct = pct_1rm(intensity)
-    rpe = _RPE.search(intensity)
+    rpe = rpe_range(intensity)
     if pct is not None:
         parts += [pct_words(pct), f"{pct:g}% 1RM"]
     elif rpe:
-        low = float(rpe.group(1))
-        high = float(rpe.group(2)) if rpe.group(2) else low
+        low, high = rpe
         words = effort_words(low) if effort_words(low) == effort_words(high) else \
             f"{effort_words(low)} to {effort_words(high)}"
         parts.append(f"{words} effort, {intensity}" if "(" in intensity else f"{words} effort ({intensity})")
@@ -121,12 +114,7 @@ def supervised(ex: Any, screening: Any = None) -> bool:
     impact, level 3), or a screening that asks for supervised sessions: any of them makes it
     supervised (the safe side; the safety check refuses a program whose marks break the rule).
     """
-    if ex.supervised:
-        return True
-    pct = pct_1rm(getattr(ex, "intensity", "") or "")
-    if pct is not None and pct >= SUPERVISED_FROM_PCT_1RM:
-        return True
-    if (getattr(ex, "impact_level", 0) or 0) >= SUPERVISED_FROM_LEVEL:
+    if ex.supervised or needs_supervision(getattr(ex, "intensity", "") or "", getattr(ex, "impact_level", 0)):
         return True
     return bool(getattr(screening, "supervision", False))
 
@@ -262,12 +250,13 @@ def strength_words(week: Any) -> str:
 def progression(plan: Any) -> list[StageRow]:
     """The whole program in a few rows: level, impact work, strength phase, weak window, reviews."""
     rows: list[StageRow] = []
-    for wk in sorted(plan.weeks, key=lambda w: w.week):
+    weeks = sorted(plan.weeks, key=lambda w: w.week)
+    for wk, stage in zip(weeks, week_stages(weeks)):
         row = StageRow(wk.week, wk.week, level_words(wk.impact_level), impact_work_words(wk),
-                       strength_words(wk), bool(wk.weak_window))
+                       strength_words(wk), stage.weak)
         last = rows[-1] if rows else None
         same = last is not None and (last.level, last.impact_work, last.strength, last.weak_window) == (
-            row.level, row.impact_work, row.strength, row.weak_window) and not wk.step_up
+            row.level, row.impact_work, row.strength, row.weak_window) and not stage.stimulus
         if same:
             last.last = wk.week
         else:

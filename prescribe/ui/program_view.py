@@ -16,6 +16,7 @@ import ipywidgets as w
 
 from ..errors import InputError
 from ..handout.content import review_weeks
+from ..stimulus import week_stages, weekly_osteogenic_index
 from . import program_model as pm
 from .common import own_layout, set_options
 from .wording import exercise_names, plain
@@ -72,10 +73,10 @@ def progression_html(plan: Any) -> str:
         return "<p><i>Nothing yet.</i></p>"
     rows = []
     dates = _review_words(plan)
-    for wk in sorted(plan.weeks, key=lambda w: w.week):
-        weak = bool(wk.weak_window)
-        oi = (sum(s.osteogenic_index for s in wk.sessions) if wk.weekly_osteogenic_index is None
-              else wk.weekly_osteogenic_index)
+    weeks = sorted(plan.weeks, key=lambda w: w.week)
+    for wk, stage in zip(weeks, week_stages(weeks)):
+        weak = stage.weak
+        oi = weekly_osteogenic_index(wk)
         rows.append(
             f'<tr class="{"pr-stage-weak" if weak else ""}"><td>{wk.week}</td><td>{_esc(pm.level_words(wk.impact_level))}</td>'
             f"<td>{_esc(pm.impact_work_words(wk))}</td><td>{_esc(pm.strength_words(wk))}</td>"

@@ -21,6 +21,7 @@ import ipywidgets as w
 
 from ..cautions import with_standard
 from ..errors import InputError, NotFoundError
+from ..plan_schema import start_day
 from .common import LazyPanel, LazySection, cautions_html, guarded
 from .form_spec import retest_data, retest_fields
 
@@ -221,8 +222,7 @@ class ReassessPanel(LazyPanel):
             self.charts.update([])
             return
         from ..outcomes.measures import snapshot
-        plan = session.store.get_program(session.record.patient_id, 1)
-        start = plan.get("start_date") or str(plan.get("created", ""))[:10]
+        start = start_day(session.store.get_program(session.record.patient_id, 1)).isoformat()
         series = [(start, rows[0]["previous"])] + [(r["date"], snapshot(r["retest"])) for r in rows]
         items = "".join(f"<li>{_esc(r['date'])}: {_esc(r['decision'])}"
                         + (f", program version {r['program_version']}" if r["program_version"] else "") + "</li>"

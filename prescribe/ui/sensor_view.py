@@ -168,10 +168,10 @@ class SensorPanel(LazyPanel):
         self.status.value = (f'<div class="pr-notice-box" role="status">Counted {_esc(name)}: '
                              f'{summary["impacts"]} impacts over {len(summary["days"])} day(s).{stored}</div>')
 
-    def _program(self, pid: str) -> tuple[dict | None, str | None]:
+    def _program(self, pid: str) -> tuple[Any, str | None]:
         session = self.app.session
         if session.plan is not None and session.saved_version is not None:
-            return session.plan.model_dump(mode="json"), session.store.program_created(pid, session.saved_version)
+            return session.plan, session.store.program_created(pid, session.saved_version)
         try:
             return session.store.get_program(pid), session.store.program_created(pid)
         except NotFoundError:

@@ -23,6 +23,7 @@ from ..cautions import with_standard
 from ..errors import ConflictError, InputError, NotFoundError, PlanRequestRefused, PrescribeError, ProgramPaused
 from ..records import PatientRecord, parse_record
 from ..settings import current_clinician, hub_login, require_role
+from ..stimulus import week_stages, weekly_osteogenic_index
 
 #: Our impact scale (PRODUCT.md): level -> "level - label", from the catalogue's labels.
 IMPACT_LABELS: dict[int, str] = {level: f"{level} - {label}" for level, label in IMPACT_LEVEL_LABELS.items()}
@@ -370,15 +371,13 @@ class ClinicSession:
 
     def chart_series(self) -> ChartSeries:
         """The per-week numbers of the program (empty lists before a program exists)."""
-        weeks = self.plan.weeks if self.plan else []
+        weeks = sorted(self.plan.weeks, key=lambda w: w.week) if self.plan else []
         return ChartSeries(
             week=[w.week for w in weeks],
             impacts_per_session=[w.impacts_per_session for w in weeks],
             impact_level=[w.impact_level for w in weeks],
-            osteogenic_index=[float(sum(s.osteogenic_index for s in w.sessions)
-                                    if w.weekly_osteogenic_index is None else w.weekly_osteogenic_index)
-                              for w in weeks],
-            weak_window=[bool(w.weak_window) for w in weeks],
+            osteogenic_index=[weekly_osteogenic_index(w) for w in weeks],
+            weak_window=[st.weak for st in week_stages(weeks)],
             impact_minutes=[float(max((x.minutes or 0.0 for s in w.sessions for x in s.exercises
                                        if x.category == "impact" and x.impact_level <= 1), default=0.0))
                             for w in weeks],
@@ -470,7 +469,7 @@ class ClinicSession:
         if self.plan is None:
             return None
         try:
-            version = self.store.save_program(self.record.patient_id, self.plan.model_dump(mode="json"), who,
+            version = self.store.save_program(self.record.patient_id, self.plan, who,
                                               self.saved_version, note=note)
         except ConflictError as exc:
             self.notice = f"Not saved: {exc}. This program stays open here."
@@ -535,8 +534,7 @@ class ClinicSession:
         latest = self.store.latest_program_version(patient_id)
         if latest is None:
             return
-        from ..plan_schema import parse_plan
-        self.plan = parse_plan(self.store.get_program(patient_id, version), source=f"saved program of {patient_id}")
+        self.plan = self.store.get_program(patient_id, version)
         # What the clinician chose for the saved program, so a change rebuilds that program
         # with one difference rather than the planner's defaults.
         self.options = dict(_planner().fixed_options(self.plan))

@@ -22,7 +22,7 @@ from typing import Any
 import ipywidgets as w
 
 from ..errors import InputError, NotFoundError
-from ..plan_schema import parse_day, program_week
+from ..plan_schema import Plan, PlannedExercise, parse_day, program_week, start_day
 from ..sessions.records import SYMPTOMS, parse_session
 from .cautions_view import LIVE_CAUTIONS
 from .common import ErrorArea, LazyPanel, LazySection, cautions_html, esc, guarded, set_options
@@ -61,19 +61,19 @@ def _show(value: Any) -> str:
 
 
 class _ExerciseRow:
-    def __init__(self, index: int, planned: dict) -> None:
-        self.exercise_id = planned["exercise_id"]
+    def __init__(self, index: int, planned: PlannedExercise) -> None:
+        self.exercise_id = planned.exercise_id
         self.done = w.Checkbox(value=True, description="", indent=False, layout=w.Layout(width="28px"))
         self.done.add_class("pr-live-done")
-        label = f"{planned.get('name', self.exercise_id)}"
-        dose = planned.get("intensity") or ""
-        if planned.get("load_note"):
-            dose += f" - {planned['load_note']}"
+        label = planned.name or self.exercise_id
+        dose = planned.intensity or ""
+        if planned.load_note:
+            dose += f" - {planned.load_note}"
         self.label = w.HTML(f"<b>{esc(label)}</b><br><small>{esc(dose)}</small>",
                             layout=w.Layout(width="260px"))
         self.inputs: dict[str, w.Text] = {}
         for key, short, _whole in EXERCISE_FIELDS:
-            planned_value = planned.get(PLANNED_OF.get(key, ""), None)
+            planned_value = getattr(planned, PLANNED_OF[key]) if key in PLANNED_OF else None
             if key == "impacts_done" and not planned_value:
                 planned_value = None
             box = w.Text(value=_show(planned_value), placeholder=short, description=short,
@@ -222,17 +222,16 @@ class SessionsView(LazyPanel):
         s = self.app.session
         return s.record is not None and s.plan is not None and s.saved_version is not None
 
-    def _plan(self) -> dict:
-        return self.app.session.plan.model_dump(mode="json")
+    def _plan(self) -> Plan:
+        return self.app.session.plan
 
     def current_week(self) -> int:
-        from ..sessions.engine import plan_start
         plan = self._plan()
         try:
             day = parse_day(self.date.value.strip(), "session_date")
         except InputError:
             day = date.today()
-        return min(max(program_week(plan_start(plan), day), 1), len(plan["weeks"]))
+        return min(max(program_week(start_day(plan), day), 1), len(plan.weeks))
 
     def refresh(self) -> None:
         """Follow the app's person and program (called by the app after every change).
@@ -253,22 +252,22 @@ class SessionsView(LazyPanel):
             return
         plan = self._plan()
         week = self.current_week()
-        wk = plan["weeks"][week - 1]
-        paused, resumed = plan.get("paused"), plan.get("resumed")
+        wk = plan.weeks[week - 1]
+        paused, resumed = plan.paused, plan.resumed
         self.resume_box.layout.display = None if paused else "none"
         self.status.value = (f"<p><b>{esc(self.patient_id)}</b>: program version {self.app.session.saved_version}, "
-                             f"started {esc(plan.get('start_date') or str(plan.get('created', ''))[:10])}; "
-                             f"<b>this week: week {week}</b> of {len(plan['weeks'])} "
-                             f"({esc(wk.get('phase', ''))})."
-                             + (f' <span class="pr-msg pr-live-paused">Paused from week {paused["from_week"]} '
-                                f'(since {esc(paused.get("since", ""))}): {esc(paused.get("reason", ""))}</span>'
+                             f"started {esc(start_day(plan).isoformat())}; "
+                             f"<b>this week: week {week}</b> of {len(plan.weeks)} "
+                             f"({esc(wk.phase)})."
+                             + (f' <span class="pr-msg pr-live-paused">Paused from week {paused.from_week} '
+                                f'(since {esc(paused.since)}): {esc(paused.reason)}</span>'
                                 if paused else "")
-                             + (f' <span class="pr-live-resumed">Resumed by {esc(resumed.get("by", ""))} at '
-                                f'{esc(resumed.get("at", ""))}: {esc(resumed.get("reason", ""))}</span>'
+                             + (f' <span class="pr-live-resumed">Resumed by {esc(resumed.by)} at '
+                                f'{esc(resumed.at)}: {esc(resumed.reason)}</span>'
                                 if resumed and not paused else "") + "</p>")
-        days = sorted({s["day"] for s in wk["sessions"]})
+        days = sorted({s.day for s in wk.sessions})
         names = {1: "Mon", 2: "Tue", 3: "Wed", 4: "Thu", 5: "Fri", 6: "Sat", 7: "Sun"}
-        options = [(f"day {d} ({names[d]}): " + " + ".join(s["kind"] for s in wk["sessions"] if s["day"] == d), d)
+        options = [(f"day {d} ({names[d]}): " + " + ".join(s.kind for s in wk.sessions if s.day == d), d)
                    for d in days]
         today = parse_day(self.date.value, "date").isoweekday() if self._date_ok() else None
         set_options(self.day, options, fallback=today)
@@ -296,8 +295,8 @@ class SessionsView(LazyPanel):
             return  # keep what the clinician has typed
         self._rows_key = key
         plan = self._plan()
-        wk = plan["weeks"][self.current_week() - 1]
-        exercises = [x for s in wk["sessions"] if s["day"] == self.day.value for x in s["exercises"]]
+        wk = plan.weeks[self.current_week() - 1]
+        exercises = [x for s in wk.sessions if s.day == self.day.value for x in s.exercises]
         self.rows = [_ExerciseRow(i, x) for i, x in enumerate(exercises)]
         self.rows_box.children = [r.widget for r in self.rows]
 

@@ -2,7 +2,7 @@
 
 - the template list (shipped and clinic versions: status, author, approver, review dates);
 - a template shown as a form built from the template's own field metadata
-  (:func:`prescribe.planning.rules.template_fields`: bounds, unit, help), each number with
+  (:func:`prescribe.planning.templates.template_fields`: bounds, unit, help), each number with
   its source and certainty; editable into a new draft version, each bad value named
   beside its field;
 - check (fields and the safety check over the reference panel), approve (never by the
@@ -96,7 +96,7 @@ class TemplatesView(LazyPanel):
 
     def _build(self) -> list:
         """The section's widgets (built the first time it is opened)."""
-        from ..planning.rules import CERTAINTY_LEVELS, template_fields
+        from ..planning.templates import CERTAINTY_LEVELS, template_fields
 
         session = self.session
         self.fields = template_fields()
@@ -494,7 +494,7 @@ class TemplatesView(LazyPanel):
 
     def _compare(self) -> dict:
         from ..clinic.template_library import resolve
-        from ..planning.templates import compare_templates
+        from ..planning.templates.review import compare_templates
 
         a = resolve(self.compare_a.value, self.store, purpose="read", field="A")
         b = resolve(self.compare_b.value, self.store, purpose="read", field="B")

@@ -62,5 +62,5 @@ def test_log_advise_apply_and_chart(app_page, app_server):
     shot(page, "live-02-applied", of=".pr-section-sessions")
     with open_store(str(app_server.db_path)) as store:
         assert len(store.sessions(PID)) == 1
-        assert store.get_program(PID)["paused"]["from_week"] == 7
+        assert store.get_program(PID).paused.from_week == 7
         assert store.audit(PID)[-1]["clinician"] == "EP Rowan (invented)"

@@ -63,6 +63,6 @@ def test_resume_a_paused_program_with_a_reason(app_page, app_server):
     with open_store(str(app_server.db_path)) as store:
         plan = store.get_program(PID)
         audit = store.audit(PID)[-1]
-    assert "paused" not in plan and plan["resumed"]["reason"] == REASON
-    assert plan["resumed"]["by"] == "Dr Ines Vale (invented)"
+    assert plan.paused is None and plan.resumed.reason == REASON
+    assert plan.resumed.by == "Dr Ines Vale (invented)"
     assert audit["action"] == "program_resumed" and audit["detail"]["reason"] == REASON

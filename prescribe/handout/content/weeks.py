@@ -1,8 +1,9 @@
 """A plan's figures week by week, as the charts, the tables and both audiences' pages read them.
 
-Fields the planner may add (``phase``, ``step_up``, ``weak_window``,
-``resistance_intensity_pct_1rm``, ``weekly_osteogenic_index``; per exercise ``rest_s``,
-``bout_gap_hours``, ``notes``) are used when present and derived when absent.
+The step-ups and the weak windows are :func:`prescribe.stimulus.week_stages`' (the check's and
+the advice's own), the resistance load is read from the exercises, and the weekly osteogenic
+index is :func:`prescribe.stimulus.weekly_osteogenic_index`; fields the planner may add
+(``phase``; per exercise ``rest_s``, ``bout_gap_hours``, ``notes``) are used when present.
 """
 
 from __future__ import annotations
@@ -11,7 +12,8 @@ import datetime as dt
 from dataclasses import dataclass
 
 from ...cautions import with_standard
-from ...plan_schema import Plan, PlannedWeek, review_dates, weak_window_weeks
+from ...plan_schema import Plan, PlannedWeek, review_dates
+from ...stimulus import week_stages, weekly_osteogenic_index
 from .wording import pct_1rm
 
 
@@ -35,40 +37,27 @@ class WeekFacts:
 
 
 def week_facts(plan: Plan) -> list[WeekFacts]:
-    """Per-week figures, with the weak window derived when absent and the resistance load
-    always read from the exercises.
+    """Per-week figures.
 
-    A step-up is a week whose impact level is higher than the week before (or a
-    week the planner marked ``step_up``).  Without the planner's ``weak_window``
-    flag, weeks 3 to 5 counted from each step-up (the step-up week is week 1) are
-    the weak window.
+    A step-up is a week whose impact level starts or rises; a week in the weak window is one
+    :attr:`prescribe.stimulus.WeekStage.weak` holds (weeks 3-5 after a new or larger stimulus
+    of impact or resistance, or labelled a window by the plan).  The resistance load is always
+    read from the exercises.
     """
     weeks = sorted(plan.weeks, key=lambda w: w.week)
-    steps: list[bool] = []
-    previous = None
-    for wk in weeks:
-        if wk.step_up is not None:
-            steps.append(wk.step_up)
-        else:
-            steps.append(previous is not None and wk.impact_level > previous)
-        previous = wk.impact_level
-    step_weeks = [wk.week for wk, s in zip(weeks, steps) if s]
-    derived_weak = weak_window_weeks(step_weeks)
     out = []
-    for wk, step in zip(weeks, steps):
-        weak = wk.weak_window if wk.weak_window is not None else wk.week in derived_weak
+    for wk, stage in zip(weeks, week_stages(weeks)):
         # The load is read from the week's exercises, never from the week's summary field: the
         # handout must not state a higher intensity than the program prescribes.
         found = [p for ex in week_exercises(wk) if (p := pct_1rm(ex.intensity)) is not None]
         pct = max(found) if found else None
         session_oi = [s.osteogenic_index for s in wk.sessions]
-        weekly = float(sum(session_oi) if wk.weekly_osteogenic_index is None else wk.weekly_osteogenic_index)
         loading = [ex for ex in week_exercises(wk) if ex.impact_level >= 1]
         directions = sorted({d for ex in loading for d in ex.directions})
         out.append(WeekFacts(
             week=wk.week, impact_level=wk.impact_level, impacts_per_session=wk.impacts_per_session,
-            step_up=step, weak_window=weak, resistance_pct_1rm=pct, reassessment=wk.reassessment,
-            phase=wk.phase, weekly_oi=weekly,
+            step_up=stage.impact_step_up, weak_window=stage.weak, resistance_pct_1rm=pct,
+            reassessment=wk.reassessment, phase=wk.phase, weekly_oi=weekly_osteogenic_index(wk),
             max_session_oi=max(session_oi, default=0.0),
             peak_grf_bw=max((ex.peak_grf_bw for ex in loading), default=0.0),
             directions=tuple(directions), sessions=len(wk.sessions)))

@@ -6,7 +6,7 @@ from __future__ import annotations
 import re
 
 from ...catalogue import IMPACT_LEVEL_LABELS
-from ...intensity import pct_1rm
+from ...intensity import pct_1rm, rpe_range
 from ...plan_schema import PlannedExercise
 
 DAY_NAMES = ("Monday", "Tuesday", "Wednesday", "Thursday", "Friday", "Saturday", "Sunday")
@@ -26,9 +26,6 @@ def days_text(days: tuple[int, ...]) -> str:
     """"Mon, Wed, Fri" (the days of the week an exercise is done)."""
     return ", ".join(DAY_SHORT[d - 1] for d in days)
 
-
-#: "RPE 3-4" or "RPE 6" (the Borg CR10 effort scale, 0-10).
-_RPE = re.compile(r"^\s*RPE\s*(\d+(?:\.\d+)?)(?:\s*(?:-|to)\s*(\d+(?:\.\d+)?))?\s*$", re.IGNORECASE)
 
 #: How an effort on the 0-10 scale feels, by the talk test (common practice; wording ours).
 _EFFORT_FEEL = ((4, "you can still talk"), (6, "you can talk, but not sing"), (8, "you can say only a few words"),
@@ -67,18 +64,20 @@ def plain_intensity(intensity: str) -> str:
     """
     text = (intensity or "").strip()
     aside = _WITH_ASIDE.match(text)  # "RPE 6-7 (about a 12RM load)": both parts in words
-    if aside:
+    if aside and rpe_range(aside.group(1), whole=True):
         return f"{plain_intensity(aside.group(1))} ({_plain_rm(aside.group(2))})"
-    rpe = _RPE.match(text)
+    rpe = rpe_range(text, whole=True)  # "RPE 3-4" or "RPE 6" (the Borg CR10 effort scale, 0-10)
     if rpe:
-        return effort_words(float(rpe.group(1)), float(rpe.group(2)) if rpe.group(2) else None)
+        low, high = rpe
+        return effort_words(low, None if high == low else high)
     pct = pct_1rm(text)
     if pct is not None:
         return weight_words(pct)
     return text.replace("maximal", "your hardest")
 
 
-_WITH_ASIDE = re.compile(r"^\s*(RPE\s*[\d.]+(?:\s*(?:-|to)\s*[\d.]+)?)\s*\((.+)\)\s*$", re.IGNORECASE)
+#: An intensity with an aside in brackets: "RPE 6-7 (about a 12RM load)".
+_WITH_ASIDE = re.compile(r"^\s*([^(]+?)\s*\((.+)\)\s*$")
 
 
 def _plain_rm(text: str) -> str:

@@ -14,13 +14,14 @@ from dataclasses import dataclass, field
 from functools import lru_cache
 from pathlib import Path
 
-from ..errors import InputError, PrescribeError
-from ..identifiers import identifier_problem
+from ...errors import InputError, PrescribeError
+from ...identifiers import identifier_problem
+from ...loading.dose import BOUT_GAP_MIN_H, IMPACTS_PER_BOUT_MAX, IMPACTS_PER_SESSION_MAX as IMPACTS_CEILING
 
-TEMPLATE_DIR = Path(__file__).resolve().parent.parent / "data" / "templates"
+TEMPLATE_DIR = Path(__file__).resolve().parents[2] / "data" / "templates"
 
-#: Above this many impacts a session a template must give a reason (issue 4, rule 4).
-IMPACTS_CEILING = 100
+#: Above IMPACTS_CEILING impacts a session (prescribe.loading.dose.IMPACTS_PER_SESSION_MAX) a template must give
+#: a reason; its bouts hold at most IMPACTS_PER_BOUT_MAX impacts, at least BOUT_GAP_MIN_H apart.
 
 _IMPACT_INT_KEYS = {
     "default_start_level": (0, 3), "max_level": (0, 3),
@@ -244,8 +245,8 @@ _FIELD_TEXT: dict[str, tuple[str, str]] = {
 #: Bounds of the numbers in a resistance phase (those :func:`_phases` checks).
 PHASE_BOUNDS: dict[str, tuple[float, float]] = {"weeks": (0, 52), "sets": (1, 10), "reps": (1, 30),
                                                 "pct_1rm": (20, 90)}
-BOUT_GAP_BOUNDS: tuple[float, float] = (4, 24)
-BOUT_SPLIT_MAX = 50
+BOUT_GAP_BOUNDS: tuple[float, float] = (BOUT_GAP_MIN_H, 24)
+BOUT_SPLIT_MAX = IMPACTS_PER_BOUT_MAX
 
 
 @dataclass(frozen=True)
@@ -297,7 +298,7 @@ def template_problems(data) -> list:
     Empty for a template :func:`parse_template` accepts.  Unlike :func:`parse_template`,
     which stops at the first problem, this names them all (``prescribe template check``).
     """
-    from ..errors import FieldProblem
+    from ...errors import FieldProblem
 
     if not isinstance(data, dict):
         return [FieldProblem("template", data, "a TOML document with name, [impact], [resistance], [balance] "

@@ -29,10 +29,12 @@ from typing import Any, Iterable
 
 import numpy as np
 
-from ..cautions import with_standard
-from ..errors import PlanRequestRefused, PrescribeError
-from .rules import Template
-from ..records import CONDITIONS, PatientRecord, ScreeningResult, parse_record
+from ...cautions import with_standard
+from ...errors import PlanRequestRefused, PrescribeError
+from ...records import CONDITIONS, PatientRecord, ScreeningResult, parse_record
+from ...stimulus import weekly_osteogenic_index
+from ..dosing import prescribed_pct_1rm
+from .document import Template
 
 # =========================================================================================
 # The reference panel: invented people
@@ -107,7 +109,7 @@ def random_records(n: int, seed: int = 2026) -> list[PatientRecord]:
     safety check meets combinations that the panel does not list.
     """
     if isinstance(n, bool) or not isinstance(n, int) or n < 0:
-        from ..errors import InputError
+        from ...errors import InputError
         raise InputError.single("random people", n, "a whole number of 0 or more")
     rng = np.random.default_rng(seed)
     sites = ("vertebra", "hip", "wrist", "humerus", "pelvis", "rib", "other")
@@ -146,7 +148,7 @@ def safety_violations(plan, screening: ScreeningResult | None = None) -> list[di
     One function, so the shared safety check (:func:`prescribe.safety.check_program`)
     is used wherever a template is reviewed.
     """
-    from ..safety import check_program
+    from ...safety import check_program
 
     return [{"rule": str(v.rule), "week": v.week, "exercise_id": v.exercise_id, "message": str(v.message),
              "allowed": str(getattr(v, "allowed", "") or ""), "source": str(getattr(v, "source", "") or "")}
@@ -180,9 +182,9 @@ def plan_figures(plan, tpl: Template) -> dict:
         if w.impact_level == top and vol is not None and vol >= full:
             to_full = w.week
             break
-    pcts = [w.resistance_intensity_pct_1rm for w in weeks if w.resistance_intensity_pct_1rm is not None]
-    total = sum(sum(s.osteogenic_index for s in w.sessions) if w.weekly_osteogenic_index is None
-                else w.weekly_osteogenic_index for w in weeks)
+    # The load read from the exercises (as the tables and the handout read it), never a week's summary field.
+    pcts = [p for w in weeks if (p := prescribed_pct_1rm(x for s in w.sessions for x in s.exercises)) is not None]
+    total = sum(weekly_osteogenic_index(w) for w in weeks)
     return {"weeks": len(weeks), "top_impact_level": int(top), "weeks_to_full_volume": to_full,
             "peak_impacts": int(max(w.impacts_per_session for w in weeks)),
             "peak_intensity_pct_1rm": float(max(pcts)) if pcts else None,
@@ -209,11 +211,11 @@ def panel_outcomes(tpl: Template, records: Iterable[PatientRecord], screenings: 
     A program the planner refuses, or one that breaks a safety rule, gives refusals
     naming the rule, the person and the week; nothing raises for a clinical reason.
     """
-    from .builder import PlanOptions, build_plan
-    from ..screening import screen
+    from ..builder import PlanOptions, build_plan
+    from ...screening import screen
 
     if catalogue is None:
-        from ..catalogue import default_catalogue
+        from ...catalogue import default_catalogue
         catalogue = default_catalogue()
     screenings = {} if screenings is None else screenings
     options = PlanOptions(weeks=weeks)
