@@ -13,7 +13,7 @@ import pytest
 from conftest import run_cli
 from prescribe.cli import main
 from prescribe.store import HEAD_REVISION, open_store
-from test_store_support import plan, sha256
+from test_store_support import plan, sha256, with_record
 
 
 class _Result:

@@ -7,6 +7,7 @@ from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Callable, Iterable
 
 if TYPE_CHECKING:
+    from ..plan_schema import PlanLimits
     from .facts import _Facts
 
 #: Impacts a session at most, unless a template gives a reason (Clissold et al. 2022).
@@ -60,6 +61,8 @@ class Limits:
     hold_volume: bool = False           # the starting dose held until the clearance
     #: Where the limits come from, e.g. ("plan.screening", "re-screened plan.record").
     origins: tuple[str, ...] = ()
+    #: The derivation they were read from (:func:`prescribe.safety.derive_limits`), with its reasons.
+    derived: "PlanLimits | None" = field(default=None, compare=False, repr=False)
 
 
 @dataclass(frozen=True)

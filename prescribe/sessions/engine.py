@@ -458,6 +458,22 @@ def _annotate_loads(weeks: list[dict], start: int, decision: str, e1rm: dict, li
             s["exercises"] = new_ex
 
 
+#: Why an adjusted week holds the dose it does (the session rules' sources are in data/session_rules.toml).
+SRC_ADJUSTED = ("the session advice from the logged sessions (docs/sessions.md; each decision's rule and source is "
+                "listed with the adjustment)")
+
+
+def _why_moved(week: dict, dose_of_week: int, decision: str) -> None:
+    """The week reason of each exercise of ``week`` (a copy) says it now gives the dose of another week."""
+    what = {"hold": "the advice was to hold", "step_back": "the advice was to step back",
+            "progress": "the program moved on as planned"}.get(decision, decision.replace("_", " "))
+    reason = {"reason": f"Gives the dose of week {dose_of_week} of the earlier version: {what} after the logged "
+                        "sessions", "source": SRC_ADJUSTED, "about": "week"}
+    for s in week["sessions"]:
+        s["exercises"] = [{**x, "why": [*(w for w in x.get("why") or () if w.get("about") != "week"), reason]}
+                          for x in s["exercises"]]
+
+
 def _copy_week(week: dict) -> dict:
     """A copy of a week that can be changed without touching the original (exercise dicts are
     shared and never changed in place)."""
@@ -497,6 +513,7 @@ def _adjusted(plan: dict, week: int, decision: str, reasons: list[dict], e1rm: d
             w["week"] = k
             if k >= week and i + 1 != k:
                 w["dose_of_week"] = i + 1
+                _why_moved(w, i + 1, decision)
             weeks.append(w)
         ups = set(step_up_weeks(weeks))
         for k, w in enumerate(weeks, start=1):
