@@ -29,9 +29,12 @@ sys.path.insert(0, str(ROOT))
 from prescribe.plan_schema import parse_plan  # noqa: E402
 from prescribe.planning import build_plan  # noqa: E402
 from prescribe.records import CONDITIONS, FRACTURE_SITES, parse_record  # noqa: E402
+from prescribe.planning.templates import load_template  # noqa: E402
+from prescribe.safety import TemplateCaps, derive_limits  # noqa: E402
 from prescribe.screening import screen  # noqa: E402
 
 GOAL_MS = 5.0
+GOAL_WHY_RATIO = 1.25
 
 
 def invented_record(rnd: random.Random, i: int):
@@ -64,11 +67,21 @@ def main(argv: list[str] | None = None) -> int:
     build_plan(people[0], screenings[0])  # warm-up: catalogue, templates, imports
 
     clock = time.process_time
-    build_s, base_s = [], []
+    build_s, base_s, bare_s, limits_s = [], [], [], []
     for i, (person, screening) in enumerate(zip(people, screenings)):
+        # Interleaved, so the machine's load falls on both alike: the plan as built today (limits and
+        # a why on every exercise), and the plan without the reasons and without the limits' derivation.
         t0 = clock()
         plan = build_plan(person, screening, created="2026-12-01T00:00:00+00:00")
         build_s.append(clock() - t0)
+        t0 = clock()
+        build_plan(person, screening, created="2026-12-01T00:00:00+00:00", _explain=False)
+        bare = clock() - t0
+        t0 = clock()
+        derive_limits(person, TemplateCaps.of(load_template(plan.template.name)), screenings=(screening,),
+                      screened=True)   # as the builder derives them (build_plan has just screened the record)
+        limits_s.append(clock() - t0)
+        bare_s.append(bare - limits_s[-1])
         if i % args.baseline_every == 0:
             data = plan.model_dump(mode="json")
             t0 = clock()
@@ -76,10 +89,15 @@ def main(argv: list[str] | None = None) -> int:
             base_s.append(clock() - t0)
     median = statistics.median(build_s) * 1e3
     base = statistics.median(base_s) * 1e3
+    bare = statistics.median(bare_s) * 1e3
     p90 = statistics.quantiles(build_s, n=10)[-1] * 1e3
     print(f"plans built: {len(build_s)}")
     print(f"median build_plan: {median:.2f} ms (90th percentile {p90:.2f} ms); goal < {GOAL_MS:g} ms: "
           f"{'met' if median < GOAL_MS else 'NOT met'}")
+    print(f"median limits derivation alone: {statistics.median(limits_s) * 1e3:.2f} ms")
+    print(f"median plan without limits and why (the plan as it was built before them): {bare:.2f} ms")
+    print(f"ratio plan + limits + why / plan without them: {median / bare:.2f}x (goal: within "
+          f"{GOAL_WHY_RATIO:g}x) -> {'MET' if median / bare <= GOAL_WHY_RATIO else 'NOT MET'}")
     print(f"baseline, median parse_plan of the same plans' JSON: {base:.2f} ms")
     print(f"ratio build / baseline: {median / base:.2f}")
     return 0

@@ -11,7 +11,7 @@ A plan file from another ``plan_format_version`` major is refused with a clear e
 from __future__ import annotations
 
 from datetime import date, timedelta
-from typing import Any, Literal
+from typing import Any, ClassVar, Iterable, Literal
 
 from pydantic import BaseModel, ConfigDict, Field, ValidationError, field_validator
 
@@ -30,6 +30,58 @@ class _Open(BaseModel):
     # Unknown fields of a plan file (another tool's) are kept and written back unchanged;
     # prescribe itself reads and writes only the typed fields (docs/plan.md, "Unknown fields").
     model_config = ConfigDict(extra="allow")
+
+
+class Why(_Open):
+    """One reason behind a planned exercise, with its source (PRODUCT.md "One derivation")."""
+
+    reason: str = Field(min_length=1, description="In plain clinical words.")
+    source: str = Field(min_length=1, description='Its citation, or "common practice".')
+    about: Literal["chosen", "dose", "week"] | None = Field(
+        None, description="chosen: why this exercise; dose: why this dose; week: why it changes or holds this week.")
+
+
+class LimitReason(_Open):
+    """Why one limit has its value: the rule (screening rule id, template, or the planner's own) and its source."""
+
+    limit: str
+    value: Any = None
+    rule: str
+    source: str
+    reason: str = Field("", description="The reason in plain clinical words (the rule's title).")
+
+
+class PlanLimits(_Open):
+    """The limits a program is held to, worked out by one function from the plan's record
+    (:func:`prescribe.safety.derive_limits`); every door works them out again and refuses a
+    plan whose limits differ (rule ``limits_match``)."""
+
+    max_impact_level: int = Field(ge=0, le=3)
+    max_impacts_per_session: int = Field(ge=0)
+    max_pct_1rm: Number | None = Field(None, ge=0, le=100, description="The heaviest resistance load allowed "
+                                                                      "[% 1RM]; null: no limit beyond the phases.")
+    avoid: list[str] = Field(default_factory=list)
+    spine_sparing: bool = False
+    balance_first: bool = False
+    supervision: bool = Field(False, description="Supervised sessions advised for this person (the screening), "
+                                                 "besides the heavy and high-impact work that is always supervised.")
+    refer: bool = False
+    carer_led: bool = False
+    hold_volume: bool = False
+    cleared: bool = Field(False, description="Worked out with a recorded clearance (what waited for it lifted).")
+    supervised_from_pct_1rm: Number = Field(80, description="Resistance work at this % 1RM or more is supervised.")
+    supervised_from_impact_level: int = Field(3, description="Impact work at this level or more is supervised.")
+    template: str | None = Field(None, description="The template whose own caps were applied.")
+    template_max_level: int | None = Field(None, ge=0, le=3, description="The template's own impact cap.")
+    reasons: list[LimitReason] = Field(default_factory=list)
+
+    #: The fields compared at every door (the reasons are printed, not compared: their wording may change).
+    COMPARED: ClassVar[tuple[str, ...]] = (
+        "max_impact_level", "max_impacts_per_session", "max_pct_1rm", "avoid", "spine_sparing", "balance_first",
+        "supervision", "refer", "carer_led", "hold_volume", "cleared")
+
+    def reasons_for(self, limit: str) -> list[LimitReason]:
+        return [r for r in self.reasons if r.limit == limit]
 
 
 class PlannedExercise(_Open):
@@ -55,6 +107,8 @@ class PlannedExercise(_Open):
     load_kg: Number | None = Field(None, ge=0, description="Working load from the logged sessions [kg] "
                                                            "(an adjusted program; docs/sessions.md).")
     load_note: str | None = Field(None, description="How the working load was found.")
+    why: list[Why] = Field(default_factory=list, description="Why it was chosen, why this dose and why this "
+                                                             "week changes or holds, each with its source.")
 
 
 class PlannedSession(_Open):
@@ -215,6 +269,8 @@ class Plan(_Open):
     resumed: PlanResume | None = Field(None, description="The recorded resumption that lifted the last pause.")
     # A next block after a retest (docs/reassess.md).
     block: PlanBlock | None = None
+    # The limits the plan is held to, with their reasons (null in older plan files: worked out at the door).
+    limits: PlanLimits | None = None
 
 
 def parse_plan(data: Any, source: str | None = None) -> Plan:

@@ -13,7 +13,7 @@ import pytest
 from conftest import run_cli
 from prescribe.cli import main
 from prescribe.store import HEAD_REVISION, open_store
-from test_store_support import plan, sha256
+from test_store_support import plan, sha256, with_record
 
 
 class _Result:
@@ -261,8 +261,7 @@ def test_export_leaves_the_handouts_name_out_unless_asked_and_import_keeps_the_s
     v2_file.write_text(json.dumps(PERSON_V2))
     _ok(cli_here("save", str(v2_file), "--clinician", "AB"))
     with open_store(store_db) as store:
-        p = plan("CLI-V2-01")
-        p["record"] = store.get_patient("CLI-V2-01").model_dump(mode="json")
+        p = with_record(plan("CLI-V2-01"), store.get_patient("CLI-V2-01"))
         store.save_program("CLI-V2-01", p, "AB", None, note="start")
     plain = _ok(cli_here("export", "CLI-V2-01"))
     assert "Nell" not in json.dumps(plain) and "display_name" not in json.dumps(plain)

@@ -18,7 +18,7 @@ from prescribe.errors import ConflictError, InputError, NotFoundError, StoreErro
 from prescribe.store import HEAD_REVISION, open_store, parse_bundle
 from prescribe.store import api as store_api
 from prescribe.store import models
-from test_store_support import plan, record, screening, sha256
+from test_store_support import plan, record, screening, sha256, with_record
 
 
 @pytest.fixture
@@ -489,9 +489,7 @@ V2_FIELDS = {"display_name": "Rosa", "menopause": "postmenopausal", "z_scores": 
 
 
 def _v2_plan(pid: str, rec) -> dict:
-    p = plan(pid)
-    p["record"] = rec.model_dump(mode="json")
-    return p
+    return with_record(plan(pid), rec)
 
 
 def test_a_version_2_record_saves_reads_and_carries_its_schema_version(store):

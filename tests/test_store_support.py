@@ -57,6 +57,17 @@ def plan(pid: str = "TEST-0001", weeks: int = 2, marker: str = "") -> dict:
     }
 
 
+def with_record(p: dict, rec) -> dict:
+    """Plan dict ``p`` for the person of record ``rec``: the record and a screening that holds the
+    person back no less than the record does (every door screens the record again and refuses a
+    plan whose embedded screening is looser; PRODUCT.md "One derivation")."""
+    from prescribe.safety import rescreen, strictest_screening
+    from prescribe.records import ScreeningResult as _S
+    p["record"] = rec.model_dump(mode="json")
+    p["screening"] = strictest_screening(_S.model_validate(p["screening"]), rescreen(rec)).model_dump(mode="json")
+    return p
+
+
 def sha256(path) -> str:
     return hashlib.sha256(Path(path).read_bytes()).hexdigest()
 

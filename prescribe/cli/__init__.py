@@ -33,6 +33,7 @@ COMMAND_MODULES = (
     "template_cmd",   # prescribe template list|show|check|add|approve|retire|compare
     "caseload_cmd",   # prescribe caseload export|whatif
     "explain_cmd",    # prescribe explain
+    "why_cmd",        # prescribe why
     "sensor_cmd",     # prescribe sensor
     "fhir_cmd",       # prescribe fhir import|export
 )

@@ -115,6 +115,7 @@ def handout_context(plan: Plan, audience: str, paper: str, clinic: Clinic, senso
         "dose_rows": content.dose_rows(plan) if clinician else None,
         "evidence": content.evidence(plan) if clinician else None,
         "explanations": explain_figures.plan_explanations(plan) if clinician else None,
+        **(_limits_and_why(plan) if clinician else {"limits": None}),
         "screening": plan.screening, "level_labels": content.LEVEL_LABELS, "if_hard_general": content.IF_HARD_GENERAL,
         "versions": [("Tool version (plan)", plan.tool_version), ("Rule-set version", plan.ruleset_version),
                      ("Template", _template_text(plan)),
@@ -130,6 +131,29 @@ def handout_context(plan: Plan, audience: str, paper: str, clinic: Clinic, senso
         "minutes_only": any(f.impact_level >= 1 and not f.impacts_per_session for f in facts),
         "sensor_charts": sensor_charts(sensor_summary) if clinician else [],
     }
+
+
+def _limits_and_why(plan: Plan) -> dict:
+    """The clinician's pages: the plan's limits with their reasons, and each exercise's reasons,
+    the sources numbered once (prescribe.planning.why prints the same rows for `prescribe why`)."""
+    from ..planning.why import limit_rows, why_by_exercise
+    from ..safety import limits_of_plan
+    limits = plan.limits or limits_of_plan(plan)
+    numbers: dict[str, int] = {}
+
+    def cite(source: str) -> int:
+        return numbers.setdefault(source, len(numbers) + 1)
+
+    lrows = limit_rows(limits)
+    for row in lrows:
+        for r in row["reasons"]:
+            r["n"] = cite(r["source"])
+    wrows = why_by_exercise(plan)
+    for row in wrows:
+        for w in (*row["chosen"], *(w for d in row["doses"] for w in d["why"])):
+            w["n"] = cite(w["source"])
+    return {"limits": limits, "limit_rows": lrows, "why_rows": wrows,
+            "why_sources": sorted(numbers, key=numbers.get)}
 
 
 def render_html(plan: Plan | dict, audience: str = "both", paper: str = "a4",

@@ -25,6 +25,7 @@ from .options import PlanOptions
 from .progression import _Progression
 from .templates import Template, load_template
 from .selection import _Selection, _views, _views_by_id
+from .why import _Why
 from .sources import (CARER_LED_MAX_DAYS, CARER_LED_MAX_EXERCISES, SRC_BECK, SRC_CADENCE, SRC_CARER_LED,
                       SRC_HOLD_VOLUME, SRC_KOHRT, SRC_REMODEL, SRC_ROBLING, SRC_TURNER_DIR, SRC_TURNER_OI,
                       SRC_WATSON)
@@ -34,7 +35,7 @@ __all__ = ["build_plan", "check_plan", "IMPACT_LABELS"]
 IMPACT_LABELS = IMPACT_LEVEL_LABELS  # the catalogue's, next to the level boundaries
 
 
-class _Builder(_Selection, _Progression, _Dosing, _Layout):
+class _Builder(_Selection, _Progression, _Dosing, _Layout, _Why):
     """Holds one plan's choices; :meth:`build` lays them out week by week and assembles the plan."""
 
     def _fit_carer_led(self, options: PlanOptions) -> None:
@@ -58,8 +59,10 @@ class _Builder(_Selection, _Progression, _Dosing, _Layout):
             self.options = options = options.model_copy(update=update)
 
     def __init__(self, record: PatientRecord, screening: ScreeningResult, options: PlanOptions,
-                 catalogue, tpl: Template):
+                 catalogue, tpl: Template, explain: bool = True):
         self.record, self.screening, self.options, self.tpl = record, screening, options, tpl
+        self.explain = explain
+        self.whys: dict[int, list] = {}
         self.cautions: list[str] = []
         self.sources: list[str] = [SRC_KOHRT, SRC_BECK, SRC_REMODEL, SRC_TURNER_OI]
         views = _views(catalogue)
@@ -69,9 +72,14 @@ class _Builder(_Selection, _Progression, _Dosing, _Layout):
             if unknown:
                 raise InputError.single(field, unknown[0] if len(unknown) == 1 else unknown,
                                         "exercise ids from the catalogue (list them with `prescribe exercises`)")
+        # The limits: one derivation from the record, the screening and the template's own caps
+        # (prescribe.safety.derive_limits); the plan carries them and every door works them out again.
+        from ..safety import TemplateCaps, derive_limits
+        self.limits = derive_limits(record, TemplateCaps.of(tpl), cleared=bool(screening.cleared),
+                                    screenings=(screening,), screened=True)   # build_plan screened it
         self.screen_cap = int(screening.max_impact_level)
-        self.cap = min(self.screen_cap, tpl.impact["max_level"])
-        self.avoid = frozenset(screening.avoid)
+        self.cap = self.limits.max_impact_level
+        self.avoid = frozenset(self.limits.avoid)
         for x in options.include:
             e = by_id[x]
             bad = sorted(e.patterns & self.avoid)
@@ -87,12 +95,12 @@ class _Builder(_Selection, _Progression, _Dosing, _Layout):
             raise PlanRequestRefused("rule 1", f"start_level {options.start_level} is above {why} "
                                      f"({self.cap}); the plan may not exceed it", field="start_level",
                                      value=options.start_level)
-        self.falls = bool(screening.falls_risk or screening.balance_first)
+        self.falls = self.limits.balance_first
         # Version-2 limits (docs/plan.md "What the screening holds back"): the heaviest load,
         # a short carer-led program, and the starting dose held until the clearance.
-        self.max_pct_1rm = screening.max_pct_1rm
-        self.carer_led = bool(screening.carer_led)
-        self.hold_volume = bool(screening.hold_volume)
+        self.max_pct_1rm = self.limits.max_pct_1rm
+        self.carer_led = self.limits.carer_led
+        self.hold_volume = self.limits.hold_volume
         if self.carer_led:
             self._fit_carer_led(options)
         options = self.options
@@ -107,6 +115,8 @@ class _Builder(_Selection, _Progression, _Dosing, _Layout):
     def build(self, created: str) -> dict:
         opts, tpl = self.options, self.tpl
         weeks, used, used_l23 = self.lay_out_weeks()
+        if self.explain:
+            self.explain_weeks(weeks)   # why on every exercise (prescribe.planning.why)
         # LIFTMOR is cited only where the program really prescribes its lifts or loads.
         lift_ids = {e.exercise_id for e in self.pool if e.loaded_by_1rm}
         if any(x["exercise_id"] in lift_ids for lst in used["resistance"] for x in lst) or \
@@ -129,10 +139,10 @@ class _Builder(_Selection, _Progression, _Dosing, _Layout):
         if used_l23:
             self.cautions.append("Impact work: land with control on a firm, non-slip surface in supportive "
                                  "shoes; more than 50 impacts in a day are split into bouts at least 4 h apart.")
-        if self.screening.refer:
+        if self.limits.refer:
             self.cautions.insert(0, "Screening asks that a clinician clear this person before any loading: "
                                     "do not start this program until then.")
-        if self.screening.supervision and not self.carer_led:
+        if self.limits.supervision and not self.carer_led:
             self.cautions.append("Supervised sessions are advised for this person, at least at first.")
         if self.carer_led:
             self.sources.append(SRC_CARER_LED)
@@ -181,7 +191,8 @@ class _Builder(_Selection, _Progression, _Dosing, _Layout):
             # current rules and holds the plan to the stricter result (docs/safety.md).
             "record": self.record,
             # A person the screening refers is given a draft until a clinician clears it.
-            "draft": bool(self.screening.refer),
+            "draft": bool(self.limits.refer),
+            "limits": self.limits,
             "cleared_by": None,
             "cleared_at": None,
         }
@@ -201,7 +212,7 @@ def _default_template(record: PatientRecord) -> str:
 
 def build_plan(record: PatientRecord, screening: ScreeningResult | None = None,
                options: PlanOptions | None = None, catalogue=None, created: str | None = None,
-               *, template: Template | None = None, cleared: bool = False) -> Plan:
+               *, template: Template | None = None, cleared: bool = False, _explain: bool = True) -> Plan:
     """Build the graded program for one person.
 
     Parameters
@@ -257,11 +268,13 @@ def build_plan(record: PatientRecord, screening: ScreeningResult | None = None,
         catalogue = default_catalogue()
     tpl = template if template is not None else load_template(options.template or _default_template(record))
     created = created or datetime.now(timezone.utc).replace(microsecond=0).isoformat()
-    data = _Builder(record, screening, options, catalogue, tpl).build(created)
-    return _assemble(data)
+    # _explain=False: without the reasons (benchmarks/bench_planner.py times their cost against it).
+    builder = _Builder(record, screening, options, catalogue, tpl, _explain)
+    data = builder.build(created)
+    return _assemble(data, builder.whys)
 
 
-def _assemble(data: dict) -> Plan:
+def _assemble(data: dict, whys: dict[int, list] | None = None) -> Plan:
     """The validated Plan model from the builder's dicts.
 
     The builder shares each exercise dict between the sessions of a week and between
@@ -271,12 +284,24 @@ def _assemble(data: dict) -> Plan:
     change in the app.  Treat a plan as a value: edit it through
     :func:`~prescribe.planning.editing.replace_exercise` or a deep ``model_copy``, not in place.
     """
+    whys = whys or {}
     ex_cache: dict[int, list] = {}
+    one_cache: dict[int, PlannedExercise] = {}
+
+    def one(x: dict) -> PlannedExercise:
+        got = one_cache.get(id(x))
+        if got is None:
+            got = one_cache[id(x)] = PlannedExercise.model_validate(x)
+            why = whys.get(id(x))
+            if why:   # the reasons (validated Why models of prescribe.planning.why) join the fresh model
+                got.__dict__["why"] = why
+                got.__pydantic_fields_set__.add("why")
+        return got
 
     def exercises(lst: list[dict]) -> list:
         got = ex_cache.get(id(lst))
         if got is None:
-            got = ex_cache[id(lst)] = [PlannedExercise.model_validate(x) for x in lst]
+            got = ex_cache[id(lst)] = [one(x) for x in lst]
         return got
 
     weeks = []

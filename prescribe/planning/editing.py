@@ -58,6 +58,16 @@ def replace_exercise(plan: Plan, old_id: str, new_id: str, catalogue=None, *, we
         raise InputError.single("new_id", new_id, "an exercise id from the catalogue")
     new = by_id[new_id]
     data = plan.model_dump(mode="python")
+    # Why the new exercise is there: its own reasons, the swap, and the dose and week reasons of
+    # the one it replaces (it keeps that dose); prescribe.planning.why.
+    from ..safety import limits_of_plan
+    from .why import SRC_SWAPPED, chosen_why
+    limits = plan.limits or limits_of_plan(plan)
+    old_name = next((x.name for w in plan.weeks for s in w.sessions for x in s.exercises if x.exercise_id == old_id),
+                    old_id)
+    new_chosen = [w.model_dump() for w in chosen_why(new, limits, falls=limits.balance_first)]
+    swapped = {"reason": f"Swapped in for {old_name} by the clinician, at the same dose", "source": SRC_SWAPPED,
+               "about": "chosen"}
     found = False
     for w in data["weeks"]:
         for s in w["sessions"]:
@@ -65,9 +75,11 @@ def replace_exercise(plan: Plan, old_id: str, new_id: str, catalogue=None, *, we
                 if x["exercise_id"] != old_id:
                     continue
                 found = True
+                kept = [w for w in x.get("why") or () if w.get("about") in ("dose", "week")]
                 x.update(exercise_id=new.exercise_id, name=new.name, category=new.category,
                          impact_level=new.impact_level, peak_grf_bw=new.peak_grf_bw,
-                         directions=list(new.directions), patterns=sorted(new.patterns))
+                         directions=list(new.directions), patterns=sorted(new.patterns),
+                         why=[*new_chosen, swapped, *kept])
                 if new.impact_level >= 2 and not x["impacts"]:
                     x["impacts"] = int(x.get("reps") or 0) * int(x.get("sets") or 1)
                 if new.impact_level < 2:

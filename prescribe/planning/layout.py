@@ -53,6 +53,7 @@ class _Layout:
         c_bal: dict[tuple, tuple] = {}
         used_l23 = False
         schedule = self.impact_schedule()
+        self.week_lists: list[tuple[list, list, list]] = []
         self._time_lifts(schedule)
         for w, (level, vol, step_up, weak, text, ph) in enumerate(schedule, start=1):
             b_stage = (w - 1) // (BALANCE_STAGE_WEEKS_FALLS if self.falls else BALANCE_STAGE_WEEKS)
@@ -77,6 +78,7 @@ class _Layout:
                 for x in (*imp, *res, *bal):
                     x["supervised"] = True
             used_l23 = used_l23 or n_imp > 0
+            self.week_lists.append((imp, res, bal))   # read by prescribe.planning.why
             sup_i, sup_r, sup_b = (any(x["supervised"] for x in lst) for lst in (imp, res, bal))
             sessions = []
             for d in sorted(set(impact_days) | set(bal_days) | set(res_days)):

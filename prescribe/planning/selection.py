@@ -126,25 +126,6 @@ def _views_by_id(pool: Iterable[_Ex], ids: set[str]) -> list[_Ex]:
     return [e for e in pool if e.exercise_id in ids]
 
 
-def _spine_sparing(record: PatientRecord, screening: ScreeningResult, tpl: Template) -> tuple[bool, str]:
-    if tpl.spine_sparing:
-        return True, f"template {tpl.name}"
-    if any(f.site == "vertebra" for f in record.fractures):
-        return True, "vertebral fracture on record"
-    if screening.bone_density_category == "severe_osteoporosis":
-        return True, "severe osteoporosis"
-    if sum(1 for f in record.fractures if f.low_trauma) >= 2:
-        return True, "two or more fragility fractures (high vertebral risk)"
-    if "thoracic_kyphosis" in record.conditions:
-        return True, "marked thoracic kyphosis"
-    spinal = sorted({"loaded_spinal_flexion", "loaded_spinal_twisting"} & set(screening.avoid))
-    if spinal:
-        # The safety check holds every program with a spinal pattern to avoid to spine-sparing
-        # loads (prescribe.safety, rule spine_sparing_load): plan for them from the start.
-        return True, "the screening asks to avoid " + " and ".join(p.replace("_", " ") for p in spinal)
-    return False, ""
-
-
 def _frail(record: PatientRecord, screening: ScreeningResult) -> bool:
     """Frail for the planner: a 30-s chair stand below the normal range for age and sex.
 
@@ -210,7 +191,9 @@ class _Selection:
         self.start, self.top = start, top
 
     def _choose_resistance(self) -> None:
-        self.spine_sparing, why = _spine_sparing(self.record, self.screening, self.tpl)
+        # The one derivation (prescribe.safety.derive_limits) says whether and why.
+        self.spine_sparing = self.limits.spine_sparing
+        why = next((r.reason for r in self.limits.reasons if r.limit == "spine_sparing"), "")
         self.phases = _phases_within(self.tpl.spine_sparing_phases if self.spine_sparing
                                      else self.tpl.resistance_phases, self.max_pct_1rm)
         wanted = self.options.start_phase

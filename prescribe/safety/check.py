@@ -15,6 +15,7 @@ from .impact import (SRC_BOUTS, SRC_CEILING, SRC_DIRECTIONS, SRC_SCREENING, rule
                      rule_impact_cap, rule_session_ceiling, rule_two_directions)
 from .integrity import (SRC_CATALOGUE, SRC_FIGURES, SRC_SWAP, rule_catalogue_match, rule_impact_counts,
                         rule_same_person, rule_swap_same_kind, rule_week_figures)
+from .derivation import SRC_DERIVATION, rule_limits_match, rule_screening_matches
 from .limits import limits_for
 from .person import (SRC_LOAD_CAP, rule_balance_within_measured, rule_carer_led, rule_hold_volume,
                      rule_load_cap)
@@ -64,6 +65,9 @@ RULES: tuple[Rule, ...] = (
     Rule("draft_until_cleared", "A draft until a clinician clears a referred person", SRC_DRAFT,
          rule_draft_until_cleared),
     Rule("same_person", "The records are the plan's own person's", SRC_FIGURES, rule_same_person),
+    Rule("screening_matches", "The plan's screening is its record's, screened again", SRC_DERIVATION,
+         rule_screening_matches),
+    Rule("limits_match", "The plan's limits are the ones its record gives", SRC_DERIVATION, rule_limits_match),
 )
 
 

@@ -53,7 +53,12 @@ def record_clearance(plan: Plan, cleared_by: str, cleared_at: str | None = None)
             datetime.fromisoformat(str(cleared_at))
         except ValueError:
             raise InputError.single("cleared_at", cleared_at, "an ISO 8601 date and time") from None
-    return plan.model_copy(update={"draft": False, "cleared_by": who, "cleared_at": str(cleared_at)})
+    cleared = plan.model_copy(update={"draft": False, "cleared_by": who, "cleared_at": str(cleared_at)})
+    if plan.limits is not None:
+        # With the clearance recorded, what waited for it is lifted: the limits are worked out again.
+        from .limits import limits_of_plan
+        cleared = cleared.model_copy(update={"limits": limits_of_plan(cleared)})
+    return cleared
 
 
 def is_draft(plan: Plan) -> bool:

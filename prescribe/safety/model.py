@@ -10,6 +10,7 @@ from typing import TYPE_CHECKING, Callable, Iterable
 from ..loading.dose import IMPACTS_PER_SESSION_MAX as IMPACTS_CEILING
 
 if TYPE_CHECKING:
+    from ..plan_schema import PlanLimits
     from .facts import _Facts
 
 
@@ -65,6 +66,8 @@ class Limits:
     hold_volume: bool = False           # the starting dose held until the clearance
     #: Where the limits come from, e.g. ("plan.screening", "re-screened plan.record").
     origins: tuple[str, ...] = ()
+    #: The derivation they were read from (:func:`prescribe.safety.derive_limits`), with its reasons.
+    derived: "PlanLimits | None" = field(default=None, compare=False, repr=False)
 
 
 @dataclass(frozen=True)

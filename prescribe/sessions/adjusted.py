@@ -20,7 +20,7 @@ from datetime import date
 from ..cautions import with_standard
 from ..intensity import pct_1rm
 from ..loading.one_rep_max import round_load
-from ..plan_schema import Plan, PlanPause, PlannedWeek
+from ..plan_schema import Plan, PlanPause, PlannedWeek, Why
 from ..stimulus import Load, in_weak_window, new_stimulus, week_load, week_stages
 from .pause import active_pause, pause_caution
 
@@ -144,6 +144,25 @@ def _paused(plan: Plan, week: int, reasons: list[dict], today: date, counts_from
     return update, weeks, changes
 
 
+#: Why an adjusted week holds the dose it does (each decision's rule and source is listed with the adjustment).
+SRC_ADJUSTED = ("the session advice from the logged sessions (docs/sessions.md; each decision's rule and source is "
+                "listed with the adjustment)")
+_MOVED = {"hold": "the advice was to hold", "step_back": "the advice was to step back",
+          "progress": "the program moved on as planned"}
+
+
+def _why_moved(week: PlannedWeek, dose_of_week: int, decision: str) -> PlannedWeek:
+    """``week`` with each exercise's week reason saying it now gives the dose of another week."""
+    what = _MOVED.get(decision, decision.replace("_", " "))
+    reason = Why(reason=f"Gives the dose of week {dose_of_week} of the earlier version: {what} after the logged "
+                        "sessions", source=SRC_ADJUSTED, about="week")
+    return week.model_copy(update={"sessions": [
+        s.model_copy(update={"exercises": [
+            x.model_copy(update={"why": [*(w for w in x.why if w.about != "week"), reason]})
+            for x in s.exercises]})
+        for s in week.sessions]})
+
+
 def adjusted_program(plan: Plan, week: int, decision: str, reasons: list[dict], e1rm: dict, lifts: dict,
                      last_loads: dict[str, float], today: date, counts_from: str | None = None,
                      pause_rules: frozenset[str] = frozenset()) -> tuple[Plan, list[str]]:
@@ -155,8 +174,8 @@ def adjusted_program(plan: Plan, week: int, decision: str, reasons: list[dict], 
         update, changes = {"paused": None}, []
         back = STEP[decision] if week > 1 else 0
         seq, notes = compose_weeks(old, week, back)
-        weeks = [old[i].model_copy(update={"week": k, **({"dose_of_week": i + 1} if k >= week and i + 1 != k
-                                                          else {})})
+        weeks = [_why_moved(old[i].model_copy(update={"week": k, "dose_of_week": i + 1}), i + 1, decision)
+                 if k >= week and i + 1 != k else old[i].model_copy(update={"week": k})
                  for k, (i, _) in enumerate(seq, start=1)]
         loads = _loads(old)
         stages = week_stages(weeks, [loads[i] for i, _ in seq])
