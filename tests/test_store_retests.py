@@ -11,7 +11,7 @@ import pytest
 from sqlalchemy import create_engine, text
 
 from prescribe.clinic.reassess import reassess_person
-from prescribe.errors import ConflictError, InputError
+from prescribe.errors import ConflictError, InputError, ProgramPaused
 from prescribe.outcomes.retest import parse_retest
 from prescribe.store import HEAD_REVISION, open_store
 from session_support import person, plan_dict
@@ -76,14 +76,25 @@ def test_a_paused_program_is_not_replaced(new_db):
         assert out["decision"] == "hold" and out["next_block"] is None
         assert any("paused since" in r["message"] for r in out["reasons"])
         assert s.latest_program_version(PID) == 2
-        # the store itself refuses a next block over a paused program, storing nothing
+        # the store itself refuses a next block over a paused program with its one pause check
+        # (docs/sessions.md: a paused program binds at every door), storing nothing
         from prescribe.clinic.reassess import assess_retest
         res = assess_retest(s, _retest(date.today()))
-        with pytest.raises(InputError, match="program must be a program that is not paused"):
+        before = (s.retests(PID), s.record_version(PID), s.latest_program_version(PID), len(s.audit(PID)))
+        with pytest.raises(ProgramPaused) as refused:
             s.save_retest(_retest(date.today()).model_dump(mode="json"), res["_record"], res["_screening"], "EP One",
                           previous={}, result={"decision": "continue"},
                           based_on_record_version=res["_based_on_record_version"], plan=plan_dict(PID), based_on_version=2)
-        assert len(s.retests(PID)) == 1
+        assert refused.value.exit_code == 2 and refused.value.version == 2
+        assert refused.value.pause["reason"] == "dizziness"
+        assert (s.retests(PID), s.record_version(PID), s.latest_program_version(PID), len(s.audit(PID))) == before
+        # the same words as the program door's refusal, only the door named differently
+        with pytest.raises(ProgramPaused) as program_door:
+            s.save_program(PID, plan_dict(PID), "EP One", 2)
+        def words(err):
+            return str(err.value).split(": refused: ", 1)[1]
+        assert words(refused) == words(program_door)
+        assert str(refused.value).startswith("store: the next block after the retest of ")
 
 
 def test_a_record_changed_meanwhile_is_a_conflict(new_db):

@@ -20,7 +20,7 @@ from ..safety import assert_safe
 from . import models as m
 from .engine import StoreBase, now_utc
 from .people import _insert_screening
-from .programs import _checked_plan, _insert_program, _latest_program
+from .programs import _checked_plan, _insert_program, _latest_program, refuse_replacing_pause
 from .rows import _audit, _clinician, _dumps, _person
 
 
@@ -35,10 +35,11 @@ class RetestsMixin(StoreBase):
 
         ``previous`` is the record's measures the retest replaces; ``result`` the comparison and
         decision (as printed); ``based_on_record_version`` the record version the comparison was
-        worked out on (a change since is a :class:`ConflictError`); ``plan`` the next block,
-        saved as the version after ``based_on_version`` (the latest) once it passes the safety
-        check against the updated record.  A paused current program is never replaced
-        (InputError naming the program).
+        worked out on (a change since is a :class:`ConflictError`); ``plan`` the next block, saved
+        as the version after ``based_on_version`` (the latest) once it passes the safety check
+        against the updated record.  A paused current program is never replaced: the store's one
+        pause check (:func:`~prescribe.store.programs.refuse_replacing_pause`) refuses it with
+        :class:`~prescribe.errors.ProgramPaused` (exit 2) as at every door, and nothing is stored.
 
         Returns ``{retest_id, record_version, screening_id, program_version}``.
         """
@@ -60,21 +61,16 @@ class RetestsMixin(StoreBase):
                                     "run the retest again")
             program_version = None
             if plan is not None:
+                # The store's one pause check, the same at every door (before the version check: a program
+                # paused meanwhile is refused for its pause, with the store's words, not as a conflict).
+                refuse_replacing_pause(conn, pid, plan, f"store: the next block after the retest of "
+                                                             f"{retest.get('date')} for {pid!r}")
                 latest = _latest_program(conn, pid)
                 latest_version = latest.version if latest else None
                 if based_on_version != latest_version:
                     raise ConflictError(f"the program of {pid!r} is now at version {latest_version}, but the next "
                                         f"block was based on version {based_on_version}; nothing was stored: run "
                                         "the retest again")
-                current = json.loads(conn.execute(
-                    select(m.program_versions.c.plan_json).where(m.program_versions.c.patient_id == pid,
-                                                                 m.program_versions.c.version == latest_version)
-                ).scalar() or "{}") if latest else {}
-                if current.get("paused"):
-                    raise InputError.single("program", f"version {latest_version} of {pid!r} (paused since "
-                                            f"{current['paused'].get('since')})",
-                                            "a program that is not paused: a paused program stays until a "
-                                            "clinician records the resumption; the retest was not stored")
             old = json.loads(row.record_json)
             new = json.loads(record_json)
             changed = [k for k in new if old.get(k) != new[k]] + [k for k in old if k not in new]
