@@ -85,14 +85,58 @@ def _baseline_snapshot(record: PatientRecord) -> dict:
 _PARSED: dict[tuple[str, str, int], tuple[dict, object]] = {}
 
 
+def _shared_exercises(plan: dict) -> dict:
+    """``plan`` with each distinct session and exercise entry validated once, and the same model
+    shared wherever the entry repeats (as the planner's own plans share their exercises; the
+    safety check then works each distinct session out once).
+
+    Entries are shared only when they are equal as JSON values (a session equal to the one at
+    the same place in the week before, an exercise equal to one already seen under its id); a
+    figure written 8 in one and 8.0 in the other counts as equal, which only the safety check
+    reads here (this parsed copy is never written out).
+    """
+    from ..plan_schema import PlannedExercise, PlannedSession
+    seen: dict[str, list[tuple[dict, PlannedExercise]]] = {}
+
+    def exercise(x: dict) -> PlannedExercise:
+        alike = seen.setdefault(str(x.get("exercise_id")), [])
+        for raw, model in alike:
+            if raw == x:
+                return model
+        model = PlannedExercise.model_validate(x)
+        alike.append((x, model))
+        return model
+
+    weeks, before = [], []
+    for week in plan.get("weeks") or []:
+        now = []
+        for i, session in enumerate(week.get("sessions") or []):
+            if i < len(before) and before[i][0] == session:
+                now.append(before[i])
+                continue
+            now.append((session, PlannedSession.model_validate(
+                {**session, "exercises": [exercise(x) for x in session.get("exercises") or []]})))
+        weeks.append({**week, "sessions": [model for _, model in now]})
+        before = now
+    return {**plan, "weeks": weeks}
+
+
 def _parsed(store, pid: str, version: int, plan: dict):
-    """The stored program version as a Plan, parsed once (a version never changes once stored)."""
+    """The stored program version as a Plan, parsed once (a version never changes once stored), its
+    repeated exercise entries sharing one model each (:func:`_shared_exercises`).  A stored plan that
+    does not validate is parsed again the usual way, for the usual message."""
     key = (store.where, pid, version)
     hit = _PARSED.get(key)
     if hit is not None and hit[0] is plan:
         return hit[1]
+    from pydantic import ValidationError
+
     from ..plan_schema import parse_plan
-    parsed = parse_plan(plan, source=f"program version {version} of {pid!r}")
+    source = f"program version {version} of {pid!r}"
+    try:
+        parsed = parse_plan(_shared_exercises(plan), source=source)
+    except (ValidationError, InputError, AttributeError, TypeError):
+        parsed = parse_plan(plan, source=source)
     if len(_PARSED) >= 64:
         _PARSED.clear()
     _PARSED[key] = (plan, parsed)
@@ -112,9 +156,10 @@ def _template_of(store, plan: dict):
 def assess_retest(store, retest: RetestRecord, *, today: date | None = None, source: str | None = None) -> dict:
     """Everything a retest leads to, worked out without writing.
 
-    Returns the printed result plus private keys (``_record``, ``_screening``, ``_plan``,
-    ``_previous``, ``_based_on_record_version``, ``_based_on_version``, ``_verdicts``,
-    ``_template``) that :func:`reassess_person` stores.
+    Returns the printed result plus private keys (``_record``, ``_screening``, ``_plan`` (the
+    next block as a :class:`~prescribe.plan_schema.Plan`, or None), ``_previous``,
+    ``_based_on_record_version``, ``_based_on_version``, ``_verdicts``, ``_template``) that
+    :func:`reassess_person` stores.
     """
     from ..safety import check_program, rescreen
 
@@ -171,8 +216,7 @@ def assess_retest(store, retest: RetestRecord, *, today: date | None = None, sou
                         "source": "the planner's rules (docs/plan.md) and the safety check (docs/safety.md)",
                         "status": "seen"}]
         else:
-            out_plan = new_plan.model_dump(mode="json")
-            out_plan["based_on_version"] = version
+            out_plan = new_plan.model_copy(update={"based_on_version": version})  # dumped only when stored
             cautions = list(new_plan.cautions)
             next_info = {"program_version": version + 1, **info}
             if info["starts_on"] != retest.date:

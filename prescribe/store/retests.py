@@ -15,12 +15,13 @@ import json
 from sqlalchemy import func, select
 
 from ..errors import ConflictError, InputError
+from ..plan_schema import Plan
 from ..records import PatientRecord, ScreeningResult
 from ..safety import assert_safe
 from . import models as m
 from .engine import StoreBase, now_utc
 from .people import _insert_screening
-from .programs import _checked_plan, _insert_program, _latest_program, refuse_replacing_pause
+from .programs import _checked_plan, _insert_program, _latest_program, plan_summary, refuse_replacing_pause
 from .rows import _audit, _clinician, _dumps, _person
 
 
@@ -29,13 +30,14 @@ class RetestsMixin(StoreBase):
 
     def save_retest(self, retest: dict, record: PatientRecord, screening: ScreeningResult, clinician: str, *,
                     previous: dict, result: dict, based_on_record_version: int,
-                    plan: dict | None = None, based_on_version: int | None = None, plan_note: str = "",
+                    plan: dict | Plan | None = None, based_on_version: int | None = None, plan_note: str = "",
                     template: str | None = None, verdicts: dict | None = None) -> dict:
         """Store a retest with the updated record, its screening and (optionally) the next block.
 
         ``previous`` is the record's measures the retest replaces; ``result`` the comparison and
         decision (as printed); ``based_on_record_version`` the record version the comparison was
-        worked out on (a change since is a :class:`ConflictError`); ``plan`` the next block, saved
+        worked out on (a change since is a :class:`ConflictError`); ``plan`` the next block (a
+        plan file's JSON, or a :class:`~prescribe.plan_schema.Plan` built in this process), saved
         as the version after ``based_on_version`` (the latest) once it passes the safety check
         against the updated record.  A paused current program is never replaced: the store's one
         pause check (:func:`~prescribe.store.programs.refuse_replacing_pause`) refuses it with
@@ -47,9 +49,18 @@ class RetestsMixin(StoreBase):
         pid = record.patient_id
         if retest.get("patient_id") != pid:
             raise InputError.single("patient_id", retest.get("patient_id"), f"the record's patient_id {pid!r}")
-        parsed = plan_json = summary_json = None
-        if plan is not None:
+        parsed = plan_json = summary_json = plan_dict = None
+        if isinstance(plan, Plan):
+            # Built in this process (validated field by field when built): stored as it dumps,
+            # not dumped and validated a second time.
+            if plan.patient_id != pid:
+                raise InputError.single("plan.patient_id", plan.patient_id, f"the person's id {pid!r}")
+            parsed, plan_dict = plan, plan.model_dump(mode="json")
+            plan_json, summary_json = _dumps(plan_dict, "plan"), _dumps(plan_summary(plan_dict), "plan")
+        elif plan is not None:
             parsed, plan_json, summary_json = _checked_plan(pid, plan)
+            plan_dict = plan
+        if parsed is not None:
             assert_safe(parsed, door=f"store: the next block of {pid!r}", record=record)
         record_json = _dumps(record.model_dump(mode="json"), "record")
         at = now_utc()
@@ -63,7 +74,7 @@ class RetestsMixin(StoreBase):
             if plan is not None:
                 # The store's one pause check, the same at every door (before the version check: a program
                 # paused meanwhile is refused for its pause, with the store's words, not as a conflict).
-                refuse_replacing_pause(conn, pid, plan, f"store: the next block after the retest of "
+                refuse_replacing_pause(conn, pid, plan_dict, f"store: the next block after the retest of "
                                                              f"{retest.get('date')} for {pid!r}")
                 latest = _latest_program(conn, pid)
                 latest_version = latest.version if latest else None
