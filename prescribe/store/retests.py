@@ -12,7 +12,7 @@ from __future__ import annotations
 
 import json
 
-from sqlalchemy import func, select
+from sqlalchemy import and_, exists, func, or_, select
 
 from ..errors import ConflictError, InputError
 from ..plan_schema import Plan
@@ -129,16 +129,16 @@ class RetestsMixin(StoreBase):
                                 .where(m.retests.c.patient_id == patient_id)).scalar()
 
     def retest_verdicts(self) -> list[tuple[str, str | None, str]]:
-        """Each person's latest retest as (patient_id, template, verdicts JSON), by id, in one read
-        (the caseload's outcomes): every row in (patient_id, id) order, the last of each person kept."""
+        """Each person's latest retest (by date, then by id) as (patient_id, template, verdicts JSON),
+        in one read (the caseload's outcomes): the database keeps only the rows no later retest of
+        the same person follows, through the (patient_id, retest_date, id) index."""
         t = m.retests.c
+        later = m.retests.alias("later")
+        query = select(t.patient_id, t.template, t.verdicts_json).where(~exists().where(
+            later.c.patient_id == t.patient_id,
+            or_(later.c.retest_date > t.retest_date, and_(later.c.retest_date == t.retest_date, later.c.id > t.id))))
         with self._read() as conn:
-            rows = conn.execute(select(t.patient_id, t.template, t.verdicts_json)
-                                .order_by(t.patient_id, t.retest_date, t.id)).all()
-        latest: dict[str, tuple[str, str | None, str]] = {}
-        for r in rows:
-            latest[r[0]] = (r[0], r[1], r[2])
-        return list(latest.values())
+            return [tuple(r) for r in conn.execute(query)]
 
 
 def _row(r) -> dict:
