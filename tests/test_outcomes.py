@@ -62,6 +62,22 @@ def test_the_date_is_not_in_the_future_nor_before_the_start():
         check_retest_date(r, "2026-09-02", today=date(2026, 9, 30))
 
 
+@pytest.mark.parametrize("text", ["20260901", "2026-W36-2", "2026-9-1", "2026-09-31", "２０２６-09-01", " 2026-09-01"])
+def test_a_day_is_written_yyyy_mm_dd_in_the_retest_and_the_session_alike(text):
+    """One check of a written day (prescribe/records.py ``day_text``) for the retest's ``date`` and the
+    session record's ``session_date``: the same refusal, naming each field (ISO 8601 calendar date,
+    extended format; common practice for a form's dates)."""
+    from prescribe.sessions.records import parse_session
+    with pytest.raises(InputError) as by_retest:
+        parse_retest({"patient_id": "RT-DAY-1", "date": text, "falls_since_last": 0})
+    with pytest.raises(InputError) as by_session:
+        parse_session({"patient_id": "RT-DAY-1", "session_date": text, "pain_during": 0})
+    assert [(p.field, p.value) for p in by_retest.value.problems] == [("date", text)]
+    assert [(p.field, p.value) for p in by_session.value.problems] == [("session_date", text)]
+    assert "a date as YYYY-MM-DD" in str(by_retest.value) and "a date as YYYY-MM-DD" in str(by_session.value)
+    assert parse_retest({"patient_id": "RT-DAY-1", "date": "2026-09-01", "falls_since_last": 0}).day == date(2026, 9, 1)
+
+
 # -- each measure against its MDC -------------------------------------------------------------
 
 BASE = {"timed_up_and_go_s": 10.0, "chair_stand_30s": 12, "tandem_stance_s": 6.0, "pain_score": 4,

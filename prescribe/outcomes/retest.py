@@ -15,7 +15,6 @@ Validation happens once, at the boundary (:func:`parse_retest`); a bad retest ra
 
 from __future__ import annotations
 
-import math
 from datetime import date
 from typing import Any
 
@@ -24,7 +23,8 @@ from pydantic.fields import FieldInfo
 from pydantic_core import PydanticUndefined
 
 from ..errors import FieldProblem, InputError
-from ..records import FIELD_META, PatientRecord, TScores, ZScores, _meta, _resolve, field_meta
+from ..records import (FIELD_META, PatientRecord, TScores, ZScores, _meta, _resolve, day_text, field_meta,
+                       finite_number)
 
 __all__ = ["RetestRecord", "RETEST_MEASURES", "RETEST_FIELD_META", "RETEST_SCHEMA", "parse_retest",
            "check_retest_date"]
@@ -82,22 +82,9 @@ class RetestRecord(BaseModel):
     note: str = Field("", max_length=NOTE_MAX, description="What the clinician noted at the retest.",
                       json_schema_extra=_meta(label="Note"))
 
-    @field_validator("timed_up_and_go_s", "tandem_stance_s", "body_mass_kg", "height_cm")
-    @classmethod
-    def _finite(cls, value: float | None) -> float | None:
-        if value is not None and not math.isfinite(value):
-            raise ValueError("not a finite number")
-        return value
-
-    @field_validator("date")
-    @classmethod
-    def _day(cls, value: str) -> str:
-        try:
-            if len(value) != 10:
-                raise ValueError
-            return date.fromisoformat(value).isoformat()
-        except ValueError:
-            raise ValueError("a date as YYYY-MM-DD") from None
+    # the record's own checks of a measure and of a day (prescribe/records.py), as the session record's
+    _finite = field_validator("timed_up_and_go_s", "tandem_stance_s", "body_mass_kg", "height_cm")(finite_number)
+    _day = field_validator("date")(day_text)
 
     @property
     def day(self) -> date:

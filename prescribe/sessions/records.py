@@ -8,7 +8,6 @@ and symptoms live in the session, the intake's ``pain_score`` stays the baseline
 
 from __future__ import annotations
 
-import math
 from datetime import date
 from typing import Any, Iterable, Literal
 
@@ -16,6 +15,7 @@ from pydantic import BaseModel, ConfigDict, Field, ValidationError, field_valida
 
 from ..errors import FieldProblem, InputError
 from ..identifiers import IDENTIFIER_CHARACTERS, identifier_text
+from ..records import day_text, finite_number
 
 #: Symptom codes a session may carry (the vocabulary may grow; codes are never renamed).
 SYMPTOMS: dict[str, str] = {
@@ -53,10 +53,6 @@ ALLOWED: dict[str, str] = {
 }
 
 
-def _finite(value: float | None) -> float | None:
-    if value is not None and not math.isfinite(value):
-        raise ValueError("not a finite number")
-    return value
 
 
 class ExerciseDone(BaseModel):
@@ -72,7 +68,7 @@ class ExerciseDone(BaseModel):
     load_kg: float | None = Field(None, ge=0, le=500, description="External load of the working sets [kg].")
     rpe: float | None = Field(None, ge=0, le=10, description="Effort of the exercise, Borg CR10 (0-10).")
 
-    _f = field_validator("minutes_done", "load_kg", "rpe")(_finite)
+    _f = field_validator("minutes_done", "load_kg", "rpe")(finite_number)
     _id = field_validator("exercise_id")(identifier_text)
 
 
@@ -92,18 +88,10 @@ class SessionRecord(BaseModel):
     fell_since_last: bool = False
     note: str = Field("", max_length=2000)
 
-    _f = field_validator("session_rpe")(_finite)
+    _f = field_validator("session_rpe")(finite_number)
     _id = field_validator("patient_id")(identifier_text)
 
-    @field_validator("session_date")
-    @classmethod
-    def _day(cls, value: str) -> str:
-        try:
-            if len(value) != 10:
-                raise ValueError
-            return date.fromisoformat(value).isoformat()
-        except ValueError:
-            raise ValueError("a date as YYYY-MM-DD") from None
+    _day = field_validator("session_date")(day_text)
 
     @field_validator("symptoms")
     @classmethod
