@@ -239,3 +239,25 @@ def test_week_start_of_the_block_after_a_window():
     day = START + timedelta(days=7 * (s + 2 - 1))     # week 3 after the step-up
     _, info = next_block(plan, person(), day)
     assert info["starts_on"] == week_start(START, s + 5).isoformat()
+
+
+def test_measure_series_baseline_first_then_each_retest_in_the_data_files_order():
+    """The values the app's charts and the progress letter draw (one function for both): the intake
+    values kept in the first retest's row at the program's start, then each retest's own; a measure
+    never taken is left out, one taken once has a single point (common practice: no chart without
+    two values)."""
+    from prescribe.outcomes.measures import measure_series
+    rows = [{"date": "2026-09-01", "previous": {"timed_up_and_go_s": 7.5, "pain_score": 2, "height_cm": 162.0},
+             "retest": {"timed_up_and_go_s": 6.9, "chair_stand_30s": 16, "t_scores": {"femoral_neck": -2.2}}},
+            {"date": "2026-12-01", "previous": {"timed_up_and_go_s": 6.9},
+             "retest": {"timed_up_and_go_s": 6.4, "pain_score": None, "height_cm": 161.5}}]
+    series = measure_series("2026-06-01", rows)
+    assert series == {
+        "timed_up_and_go_s": [("2026-06-01", 7.5), ("2026-09-01", 6.9), ("2026-12-01", 6.4)],
+        "chair_stand_30s": [("2026-09-01", 16)],
+        "pain_score": [("2026-06-01", 2)],
+        "height_cm": [("2026-06-01", 162.0), ("2026-12-01", 161.5)],
+        "t_scores.femoral_neck": [("2026-09-01", -2.2)]}
+    order = list(measure_rules())
+    assert list(series) == sorted(series, key=order.index)
+    assert measure_series("2026-06-01", []) == {}

@@ -32,6 +32,7 @@ from ..outcomes.decide import decide, needs_new_clearance, next_block
 from ..outcomes.measures import compare, height_loss_cm, snapshot
 from ..outcomes.retest import RetestRecord, check_retest_date
 from ..records import PatientRecord, parse_record
+from ..sessions.engine import plan_start
 
 __all__ = ["assess_retest", "reassess_person", "updated_record", "history_of"]
 
@@ -174,7 +175,7 @@ def assess_retest(store, retest: RetestRecord, *, today: date | None = None, sou
     _, plan = store.program_for_reading(pid, version)   # shared, read-only: versions never change
     first = plan if version == 1 else store.program_for_reading(pid, 1)[1]
     # the program's start: the first version's (a next block starts later and may start after a retest)
-    start = date.fromisoformat(first.get("start_date") or str(first.get("created", ""))[:10])
+    start = plan_start(first)
     check_retest_date(retest, start, today, source)
     rows = store.retests(pid)
     if rows and retest.date < rows[-1]["date"]:

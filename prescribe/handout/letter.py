@@ -16,7 +16,8 @@ from ..catalogue import IMPACT_LEVEL_LABELS
 from ..cautions import SHORT_CAUTION, with_standard
 from ..errors import InputError
 from ..outcomes.adherence import sessions_against_planned
-from ..outcomes.measures import measure_rules, snapshot
+from ..outcomes.measures import measure_rules, measure_series
+from ..sessions.engine import plan_start
 from ..settings import Clinic, clinic as clinic_settings
 from .progress_chart import measure_svg
 
@@ -66,14 +67,13 @@ def letter_context(store, patient_id: str, *, today: date | None = None, clinic:
     versions = store.program_versions(patient_id)
     plans = [(v["created"], store.get_program(patient_id, v["version"])) for v in versions]
     first_plan = plans[0][1]
-    start = first_plan.get("start_date") or str(first_plan.get("created", ""))[:10]
-    # measures over time: the baseline (at the program's start), then each retest
-    series = [(start, rows[0]["previous"])] + [(r["date"], snapshot(r["retest"])) for r in rows]
+    start = plan_start(first_plan).isoformat()
+    series = measure_series(start, rows)   # the baseline (at the program's start), then each retest
     by_measure = {m["measure"]: m for m in result["measures"]}
     rules = measure_rules()
     measures = []
     for name, rule in rules.items():
-        points = [(d, snap[name]) for d, snap in series if snap.get(name) is not None]
+        points = series.get(name, [])
         m = by_measure.get(name)
         if m is None:
             continue

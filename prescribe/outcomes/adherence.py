@@ -8,12 +8,9 @@ from __future__ import annotations
 from datetime import date, timedelta
 
 from ..plan_schema import program_week
+from ..sessions.engine import plan_start
 
 __all__ = ["sessions_against_planned"]
-
-
-def _start(plan: dict) -> date:
-    return date.fromisoformat(plan.get("start_date") or str(plan.get("created", ""))[:10])
 
 
 def sessions_against_planned(versions: list[tuple[str, dict]], session_dates: list[str], until: date) -> dict:
@@ -32,7 +29,7 @@ def sessions_against_planned(versions: list[tuple[str, dict]], session_dates: li
         weeks = plan.get("weeks") or []
         days = [{int(s.get("day", 0)) for s in w.get("sessions", [])} for w in weeks]
         pause = (plan.get("paused") or {}).get("from_week")
-        parsed.append((date.fromisoformat(str(created)[:10]), _start(plan), days, pause))
+        parsed.append((date.fromisoformat(str(created)[:10]), plan_start(plan), days, pause))
     first = min(p[1] for p in parsed)
     planned = 0
     d = first

@@ -23,6 +23,7 @@ from datetime import date
 from ..errors import InputError
 from ..plan_schema import WEAK_WINDOW_WEEKS, Plan, PlanBlock, program_week, week_start
 from ..records import PatientRecord, ScreeningResult
+from ..sessions.engine import plan_start
 from .measures import decision_rules, measure_rules
 
 __all__ = ["RANK", "Decision", "decide", "stimulus_weeks", "next_block", "cleared_rules", "needs_new_clearance"]
@@ -137,11 +138,6 @@ def stimulus_weeks(weeks: list[dict]) -> list[int]:
     return out
 
 
-def _start(plan: dict) -> date:
-    text = plan.get("start_date") or str(plan.get("created", ""))[:10]
-    return date.fromisoformat(text)
-
-
 def next_block(plan: dict, record: PatientRecord, retest_day: date, *, template=None, cleared_by: str | None = None,
                cleared_at: str | None = None, created: str | None = None) -> tuple[Plan, dict]:
     """The next program after a retest on ``retest_day``: (the plan, what it continues from).
@@ -164,7 +160,7 @@ def next_block(plan: dict, record: PatientRecord, retest_day: date, *, template=
     weeks = plan.get("weeks") or []
     if not weeks:
         raise InputError.single("program", plan.get("patient_id"), "a stored program with at least one week")
-    start = _start(plan)
+    start = plan_start(plan)
     n = len(weeks)
     at_retest = max(program_week(start, retest_day), 1)
     ups = [s for s in stimulus_weeks(weeks) if s <= min(at_retest, n)]

@@ -23,6 +23,7 @@ from pydantic.fields import FieldInfo
 from pydantic_core import PydanticUndefined
 
 from ..errors import FieldProblem, InputError
+from ..sessions.records import check_day_in_program
 from ..records import (FIELD_META, PatientRecord, TScores, ZScores, _meta, _resolve, day_text, field_meta,
                        finite_number)
 
@@ -160,13 +161,6 @@ def parse_retest(data: Any, source: str | None = None) -> RetestRecord:
 
 def check_retest_date(retest: RetestRecord, start_date: str | date | None, today: date | None = None,
                       source: str | None = None) -> None:
-    """Refuse a retest in the future or before the program's start date (InputError naming ``date``)."""
-    today = today or date.today()
-    if retest.day > today:
-        raise InputError.single("date", retest.date, f"a date not in the future (today is {today.isoformat()})",
-                                source)
-    if start_date is not None:
-        start = start_date if isinstance(start_date, date) else date.fromisoformat(str(start_date))
-        if retest.day < start:
-            raise InputError.single("date", retest.date,
-                                    f"a date on or after the program's start_date {start.isoformat()}", source)
+    """Refuse a retest in the future or before the program's start date (InputError naming ``date``),
+    with the session record's own check."""
+    check_day_in_program("date", retest.day, start_date, today, source)

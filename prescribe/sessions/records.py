@@ -142,19 +142,25 @@ def parse_session(data: Any, source: str | None = None) -> SessionRecord:
         raise InputError(problems, source) from None
 
 
-def check_session_dates(session: SessionRecord, start_date: str | date | None, today: date | None = None,
-                        source: str | None = None) -> None:
-    """Refuse a session in the future or before the program's start date (InputError naming session_date)."""
+def check_day_in_program(field: str, day: date, start_date: str | date | None, today: date | None = None,
+                         source: str | None = None) -> None:
+    """Refuse a day in the future or before the program's start date (InputError naming ``field``):
+    the one check of a session's and a retest's day."""
     today = today or date.today()
-    day = session.day
     if day > today:
-        raise InputError.single("session_date", session.session_date,
-                                f"a date not in the future (today is {today.isoformat()})", source)
+        raise InputError.single(field, day.isoformat(), f"a date not in the future (today is {today.isoformat()})",
+                                source)
     if start_date is not None:
         start = start_date if isinstance(start_date, date) else date.fromisoformat(str(start_date))
         if day < start:
-            raise InputError.single("session_date", session.session_date,
+            raise InputError.single(field, day.isoformat(),
                                     f"a date on or after the program's start_date {start.isoformat()}", source)
+
+
+def check_session_dates(session: SessionRecord, start_date: str | date | None, today: date | None = None,
+                        source: str | None = None) -> None:
+    """Refuse a session in the future or before the program's start date (InputError naming session_date)."""
+    check_day_in_program("session_date", session.day, start_date, today, source)
 
 
 def check_session_exercises(session: SessionRecord, plan: dict, catalogue_ids: Iterable[str],
