@@ -79,3 +79,42 @@ def test_the_pdf_has_no_empty_chart_and_at_most_two_pages(fell_twice):
     printed = re.sub(r"\s+", " ", " ".join(p.extract_text() for p in pdf.pages))
     assert "Larkfield Bone Clinic (invented)" in printed and "Page 1 of" in printed
     assert "licensed" in printed and not ISO_DAY.search(printed)
+
+
+def test_a_full_letter_still_fits_two_pages(tmp_db):
+    """The longest letter the demo clinic writes: after a vertebral fracture (the most cautions), every
+    DXA site as T- and Z-scores (twelve charts; the Z-scores first taken at the first retest), a worn
+    sensor's summary and two retests."""
+    from prescribe.demo import DEMO_RECORDS
+    from prescribe.planning import build_plan
+    from prescribe.records import parse_record
+
+    data = dict(next(r for r in DEMO_RECORDS if r["patient_id"] == "DEMO-0002"))
+    record = parse_record(data)
+    plan = build_plan(record).model_dump(mode="json")
+    plan["start_date"] = (date.today() - timedelta(days=7 * 9)).isoformat()
+    pid = record.patient_id
+    with open_store(tmp_db) as s:
+        s.save_patient(record, None, "EP Letter (invented)", plan=plan)
+        s.add_sensor_summary(pid, {"file": "hip.csv", "site": "hip", "impacts": 2310, "days": ["d"] * 7,
+                                   "start": (date.today() - timedelta(days=9)).isoformat(),
+                                   "end": (date.today() - timedelta(days=2)).isoformat()}, "EP Letter (invented)")
+        for days_ago, shift in ((21, 0.0), (0, 0.1)):
+            reassess_person(s, parse_retest({
+                "patient_id": pid, "date": (date.today() - timedelta(days=days_ago)).isoformat(),
+                "falls_since_last": 0, "timed_up_and_go_s": 10.2 - 5 * shift, "chair_stand_30s": 11,
+                "tandem_stance_s": 10, "pain_score": 2, "body_mass_kg": 54.2, "height_cm": 156.0,
+                "t_scores": {"lumbar_spine": -3.0 + shift, "femoral_neck": -2.6 + shift, "total_hip": -2.4},
+                "z_scores": {"lumbar_spine": -1.2 + shift, "femoral_neck": -0.9 + shift, "total_hip": -0.8}}),
+                clinician="EP Letter (invented)")
+        ctx = letter_context(s, pid, clinic=CLINIC)
+    html = render_letter_html(ctx)
+    assert len(re.findall(r"<svg[^>]*measure-chart", html)) == 12 and ctx["sensor"]["impacts"] == 2310
+    assert len(ctx["cautions"]) > len(STANDARD_CAUTIONS) + 3
+    assert len(PdfReader(io.BytesIO(html_to_pdf(html))).pages) <= 2
+    # the Z-scores were first taken at the first retest: the letter says from when their baseline counts
+    z = next(m for m in ctx["measures"] if m["label"].startswith("Lumbar spine Z"))
+    t = next(m for m in ctx["measures"] if m["label"].startswith("Lumbar spine T"))
+    first = date.today() - timedelta(days=21)
+    assert z["since"] == f"{first.day} {first.strftime('%B %Y')}" and t["since"] is None
+    assert f"(first, {z['since']})" in _visible(html)

@@ -62,7 +62,8 @@ def test_the_date_is_not_in_the_future_nor_before_the_start():
         check_retest_date(r, "2026-09-02", today=date(2026, 9, 30))
 
 
-@pytest.mark.parametrize("text", ["20260901", "2026-W36-2", "2026-9-1", "2026-09-31", "２０２６-09-01", " 2026-09-01"])
+@pytest.mark.parametrize("text", ["20260901", "2026-W36-2", "2026-9-1", "2026-09-31", "２０２６-09-01",
+                                  " 2026-09-01"])
 def test_a_day_is_written_yyyy_mm_dd_in_the_retest_and_the_session_alike(text):
     """One check of a written day (prescribe/records.py ``day_text``) for the retest's ``date`` and the
     session record's ``session_date``: the same refusal, naming each field (ISO 8601 calendar date,

@@ -97,7 +97,9 @@ def letter_context(store, patient_id: str, *, today: date | None = None, clinic:
             "change": ("+" if m["change"] > 0 else "") + _fmt(m["change"]), "mdc": _fmt(m["mdc"]),
             "verdict": _VERDICT_WORDS[m["verdict"]], "status": m["mdc_status"],
             "svg": measure_svg(rule.label, rule.unit, points, m["baseline"], m["mdc"], _bounds(name)),
-            "source": m["mdc_source"]})
+            "source": m["mdc_source"],
+            # a measure first taken at a retest: its first value is the baseline, from that day
+            "since": _long_date(points[0][0]) if points and points[0][0] != start else None})
     sessions = store.sessions(patient_id)
     adherence = sessions_against_planned(plans, [s["session_date"] for s in sessions],
                                          date.fromisoformat(latest["date"]))
