@@ -273,8 +273,47 @@ class Plan(_Open):
     limits: PlanLimits | None = None
 
 
-def parse_plan(data: Any, source: str | None = None) -> Plan:
-    """Validate a plan (parsed JSON); refuse another format major version."""
+def _shared_entries(data: dict) -> dict:
+    """``data`` with each distinct session and exercise entry validated once and the same model
+    shared wherever the entry repeats (as the planner's own plans share theirs, so the safety
+    check works each distinct session out once).  Entries are shared only when equal as JSON
+    values: a session equal to the one at the same place in the week before, an exercise equal to
+    one already seen under its id."""
+    seen: dict[str, list[tuple[dict, PlannedExercise]]] = {}
+
+    def exercise(x: Any) -> Any:
+        if not isinstance(x, dict):
+            return x
+        alike = seen.setdefault(str(x.get("exercise_id")), [])
+        for raw, model in alike:
+            if raw == x:
+                return model
+        model = PlannedExercise.model_validate(x)
+        alike.append((x, model))
+        return model
+
+    weeks, before = [], []
+    for week in data.get("weeks") or []:
+        if not isinstance(week, dict):
+            return data
+        now = []
+        for i, session in enumerate(week.get("sessions") or []):
+            if i < len(before) and before[i][0] == session:
+                now.append(before[i])
+                continue
+            now.append((session, PlannedSession.model_validate(
+                {**session, "exercises": [exercise(x) for x in session.get("exercises") or []]})))
+        weeks.append({**week, "sessions": [model for _, model in now]})
+        before = now
+    return {**data, "weeks": weeks}
+
+
+def parse_plan(data: Any, source: str | None = None, *, share: bool = False) -> Plan:
+    """Validate a plan (parsed JSON); refuse another format major version.
+
+    ``share``: repeated session and exercise entries become one shared model each (for plans that
+    are read, never changed: the store's stored versions); a plan that does not validate that way
+    is validated again the usual way, for the usual message."""
     if not isinstance(data, dict):
         raise PlanFileError([FieldProblem("plan", data, "a JSON object as printed by `prescribe plan`")], source)
     version = data.get("plan_format_version")
@@ -283,6 +322,11 @@ def parse_plan(data: Any, source: str | None = None) -> Plan:
                                           f"a plan of format version {PLAN_FORMAT_VERSION.split('.')[0]}.x "
                                           f"(made by this version of prescribe; rebuild the plan with `prescribe plan`)")],
                             source)
+    if share:
+        try:
+            return Plan.model_validate(_shared_entries(data))
+        except (ValidationError, AttributeError, TypeError):
+            pass
     try:
         return Plan.model_validate(data)
     except ValidationError as err:

@@ -14,6 +14,7 @@ from __future__ import annotations
 
 import math
 import re
+from datetime import date
 from pathlib import Path
 from typing import Any, Literal, Mapping
 
@@ -178,6 +179,29 @@ def _meta(unit: str | None = None, soft: tuple[float, float] | None = None, labe
     if step:
         extra["step"] = step
     return extra
+
+
+def finite_number(value: float | None) -> float | None:
+    """Pydantic validator of the records: a number that is finite (NaN and infinity are no
+    measurement), or None.  The patient record, the session record and the retest use it."""
+    if value is not None and not math.isfinite(value):
+        raise ValueError("not a finite number")
+    return value
+
+
+_DAY = re.compile(r"[0-9]{4}-[0-9]{2}-[0-9]{2}")
+
+
+def day_text(value: str) -> str:
+    """Pydantic validator of the records: a day written as YYYY-MM-DD and nothing else (Python
+    alone would also read ``20261205`` and the week date ``2026-W49-6``).  The session record's
+    ``session_date`` and the retest's ``date`` use it."""
+    try:
+        if not _DAY.fullmatch(value):
+            raise ValueError
+        return date.fromisoformat(value).isoformat()
+    except ValueError:
+        raise ValueError("a date as YYYY-MM-DD") from None
 
 
 class _Strict(BaseModel):
@@ -393,12 +417,7 @@ class PatientRecord(_Strict):
             raise ValueError("a condition code is listed twice")
         return value
 
-    @field_validator("body_mass_kg", "height_cm", "timed_up_and_go_s", "tandem_stance_s")
-    @classmethod
-    def _finite(cls, value: float | None) -> float | None:
-        if value is not None and not math.isfinite(value):
-            raise ValueError("not a finite number")
-        return value
+    _finite = field_validator("body_mass_kg", "height_cm", "timed_up_and_go_s", "tandem_stance_s")(finite_number)
 
     @field_validator("display_name")
     @classmethod

@@ -101,3 +101,49 @@ def test_progress_letter_and_caseload_outcomes(stored, tmp_path):
 def test_progress_without_a_retest_exits_2(stored, tmp_path):
     proc = run_cli("progress", PID, "--out", str(tmp_path / "l.pdf"))
     assert proc.returncode == 2 and "at least one stored retest" in proc.stderr
+
+
+def test_a_next_block_over_a_program_paused_meanwhile_exits_2_with_the_stores_words(stored, tmp_path, capsys,
+                                                                                     monkeypatch):
+    """A colleague logs a fall and applies the session advice (the program pauses) while this retest's
+    next block is being worked out: the store's one pause check refuses the block, the command exits
+    2 with the words every door uses, and nothing of the retest is stored (docs/sessions.md: a paused
+    program stays paused until a clinician records the resumption)."""
+    from prescribe.cli import main
+    from prescribe.clinic import reassess
+    from prescribe.clinic.advice import adjust_person
+    from prescribe.sessions.records import parse_session
+
+    db, _ = stored
+    real = reassess.assess_retest
+
+    def assess_while_a_colleague_pauses(store, retest, **kw):
+        out = real(store, retest, **kw)
+        assert out["decision"] == "continue" and out["_plan"] is not None   # a next block was built
+        with open_store(db) as other:                                      # the colleague's own connection
+            other.add_session(parse_session({"patient_id": PID, "session_date": date.today().isoformat(),
+                                             "pain_during": 0, "fell_since_last": True}), "EP Other (invented)")
+            advice = adjust_person(other, PID, today=date.today(), apply=True, clinician="EP Other (invented)")
+            assert advice["decision"] == "stop_and_refer" and other.get_program(PID).paused
+        return out
+
+    monkeypatch.setattr(reassess, "assess_retest", assess_while_a_colleague_pauses)
+    with open_store(db) as s:
+        record_version = s.record_version(PID)
+    f = _write(tmp_path, "r.json", {"patient_id": PID, "date": date.today().isoformat(), "falls_since_last": 0,
+                                    "timed_up_and_go_s": 6.4, "chair_stand_30s": 17})
+    capsys.readouterr()
+    code = main(["reassess", f, "--clinician", "EP Cli", "--db", db])
+    out, err = capsys.readouterr()
+    assert code == 2 and out == ""
+    assert "store: the next block after the retest of" in err
+    assert f"the program of {PID!r} (version 2) has been paused since" in err and "Nothing was stored" in err
+    assert f"prescribe resume {PID} --clinician NAME --reason TEXT" in err and "Traceback" not in err
+    with open_store(db) as s:
+        assert s.retests(PID) == [] and s.record_version(PID) == record_version
+        assert s.latest_program_version(PID) == 2 and s.get_program(PID).paused   # the pause, not a block
+        # the same refusal as the program door's for the same paused program
+        from prescribe.errors import ProgramPaused
+        with pytest.raises(ProgramPaused) as program_door:
+            s.save_program(PID, plan_dict(PID), "EP Cli", 2)
+    assert str(program_door.value).split(": refused: ", 1)[1] in err

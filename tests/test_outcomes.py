@@ -63,6 +63,23 @@ def test_the_date_is_not_in_the_future_nor_before_the_start():
         check_retest_date(r, "2026-09-02", today=date(2026, 9, 30))
 
 
+@pytest.mark.parametrize("text", ["20260901", "2026-W36-2", "2026-9-1", "2026-09-31", "２０２６-09-01",
+                                  " 2026-09-01"])
+def test_a_day_is_written_yyyy_mm_dd_in_the_retest_and_the_session_alike(text):
+    """One check of a written day (prescribe/records.py ``day_text``) for the retest's ``date`` and the
+    session record's ``session_date``: the same refusal, naming each field (ISO 8601 calendar date,
+    extended format; common practice for a form's dates)."""
+    from prescribe.sessions.records import parse_session
+    with pytest.raises(InputError) as by_retest:
+        parse_retest({"patient_id": "RT-DAY-1", "date": text, "falls_since_last": 0})
+    with pytest.raises(InputError) as by_session:
+        parse_session({"patient_id": "RT-DAY-1", "session_date": text, "pain_during": 0})
+    assert [(p.field, p.value) for p in by_retest.value.problems] == [("date", text)]
+    assert [(p.field, p.value) for p in by_session.value.problems] == [("session_date", text)]
+    assert "a date as YYYY-MM-DD" in str(by_retest.value) and "a date as YYYY-MM-DD" in str(by_session.value)
+    assert parse_retest({"patient_id": "RT-DAY-1", "date": "2026-09-01", "falls_since_last": 0}).day == date(2026, 9, 1)
+
+
 # -- each measure against its MDC -------------------------------------------------------------
 
 BASE = {"timed_up_and_go_s": 10.0, "chair_stand_30s": 12, "tandem_stance_s": 6.0, "pain_score": 4,
@@ -229,3 +246,25 @@ def test_week_start_of_the_block_after_a_window():
     day = START + timedelta(days=7 * (s + 2 - 1))     # week 3 after the step-up
     _, info = next_block(plan, person(), day)
     assert info["starts_on"] == week_start(START, s + 5).isoformat()
+
+
+def test_measure_series_baseline_first_then_each_retest_in_the_data_files_order():
+    """The values the app's charts and the progress letter draw (one function for both): the intake
+    values kept in the first retest's row at the program's start, then each retest's own; a measure
+    never taken is left out, one taken once has a single point (common practice: no chart without
+    two values)."""
+    from prescribe.outcomes.measures import measure_series
+    rows = [{"date": "2026-09-01", "previous": {"timed_up_and_go_s": 7.5, "pain_score": 2, "height_cm": 162.0},
+             "retest": {"timed_up_and_go_s": 6.9, "chair_stand_30s": 16, "t_scores": {"femoral_neck": -2.2}}},
+            {"date": "2026-12-01", "previous": {"timed_up_and_go_s": 6.9},
+             "retest": {"timed_up_and_go_s": 6.4, "pain_score": None, "height_cm": 161.5}}]
+    series = measure_series("2026-06-01", rows)
+    assert series == {
+        "timed_up_and_go_s": [("2026-06-01", 7.5), ("2026-09-01", 6.9), ("2026-12-01", 6.4)],
+        "chair_stand_30s": [("2026-09-01", 16)],
+        "pain_score": [("2026-06-01", 2)],
+        "height_cm": [("2026-06-01", 162.0), ("2026-12-01", 161.5)],
+        "t_scores.femoral_neck": [("2026-09-01", -2.2)]}
+    order = list(measure_rules())
+    assert list(series) == sorted(series, key=order.index)
+    assert measure_series("2026-06-01", []) == {}

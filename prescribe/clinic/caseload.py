@@ -298,6 +298,20 @@ def text_progress(stream) -> Progress:
 OUTCOME_COLUMNS = ("template", "measure", "label", "improved", "no real change", "worse", "people")
 
 
+def _read_verdicts(texts: list[str]) -> dict[str, tuple]:
+    """Each verdicts JSON text as its (measure, verdict) pairs: read in one parse of the texts
+    joined as one JSON array (one call instead of one a text), or one by one where the joined
+    parse does not give one object a text."""
+    import json as _json
+    try:
+        objects = _json.loads("[" + ",".join(texts) + "]")
+    except ValueError:
+        objects = None
+    if objects is None or len(objects) != len(texts) or not all(isinstance(o, dict) for o in objects):
+        objects = [_json.loads(t) for t in texts]
+    return {t: tuple(o.items()) for t, o in zip(texts, objects)}
+
+
 def outcomes(store) -> dict:
     """Per measure and template, how many people improved, did not change, or worsened.
 
@@ -307,30 +321,34 @@ def outcomes(store) -> dict:
     people}], cautions}``; rows in the data file's measure order, then by template, with an
     ``(all)`` row per measure over every template.
     """
-    import json as _json
+    from collections import Counter, defaultdict
 
     from ..outcomes.measures import VERDICTS, measure_rules
 
     rules = measure_rules()
     order = {name: i for i, name in enumerate(rules)}
-    from collections import Counter
-
-    counts: dict[tuple[str, str], list[int]] = {}
     rows = store.retest_verdicts()
     people = len(rows)
-    # Many people share the same verdicts: each distinct (template, verdicts) is read once.
-    groups = Counter((template, verdicts_json) for _pid, template, verdicts_json in rows)
+    # Many people share the same verdicts: each distinct (template, verdicts text) is counted once,
+    # and each distinct verdicts text read once.
+    groups = Counter((r[1], r[2]) for r in rows)
+    texts = list({verdicts_json for _template, verdicts_json in groups})
+    read = _read_verdicts(texts)
+    tally: dict[tuple[str | None, str, str], int] = defaultdict(int)
     for (template, verdicts_json), n in groups.items():
+        for measure, verdict in read[verdicts_json]:
+            tally[(template, measure, verdict)] += n
+    counts: dict[tuple[str, str], list[int]] = {}
+    for (template, measure, verdict), n in tally.items():
+        if measure not in order or verdict not in VERDICTS:
+            continue
         tpl = template or "(none recorded)"
-        for measure, verdict in _json.loads(verdicts_json).items():
-            if measure not in order or verdict not in VERDICTS:
-                continue
-            k = VERDICTS.index(verdict)
-            for key in ((tpl, measure), ("(all)", measure)):
-                row = counts.get(key)
-                if row is None:
-                    row = counts[key] = [0, 0, 0]
-                row[k] += n
+        k = VERDICTS.index(verdict)
+        for key in ((tpl, measure), ("(all)", measure)):
+            row = counts.get(key)
+            if row is None:
+                row = counts[key] = [0, 0, 0]
+            row[k] += n
     rows = []
     for (tpl, measure), (imp, same, worse) in sorted(counts.items(),
                                                      key=lambda kv: (order[kv[0][1]], kv[0][0] != "(all)", kv[0][0])):

@@ -96,9 +96,10 @@ def _template_of(store, plan: Plan):
 def assess_retest(store, retest: RetestRecord, *, today: date | None = None, source: str | None = None) -> dict:
     """Everything a retest leads to, worked out without writing.
 
-    Returns the printed result plus private keys (``_record``, ``_screening``, ``_plan``,
-    ``_previous``, ``_based_on_record_version``, ``_based_on_version``, ``_verdicts``,
-    ``_template``) that :func:`reassess_person` stores.
+    Returns the printed result plus private keys (``_record``, ``_screening``, ``_plan`` (the
+    next block as a :class:`~prescribe.plan_schema.Plan`, or None), ``_previous``,
+    ``_based_on_record_version``, ``_based_on_version``, ``_verdicts``, ``_template``) that
+    :func:`reassess_person` stores.
     """
     from ..safety import check_program, rescreen
 
@@ -152,7 +153,8 @@ def assess_retest(store, retest: RetestRecord, *, today: date | None = None, sou
             decision = "hold"
             reasons = [{"rule": "reassess.next_block_refused", "decision": "hold",
                         "message": f"The next block could not continue from the current levels: {exc}",
-                        "source": "the planner's rules (docs/plan.md) and the safety check (docs/safety.md)",
+                        "source": "the planner's progression rules and the safety check, each rule with its "
+                                  "own source",
                         "status": "seen"}]
         else:
             out_plan = new_plan.model_copy(update={"based_on_version": version})
@@ -165,7 +167,8 @@ def assess_retest(store, retest: RetestRecord, *, today: date | None = None, sou
                                            "a new or larger stimulus carry no increase; until then the current "
                                            "program goes on.",
                                 "source": "Eriksen 1986, Endocr Rev 7:379; Heaney, Yates & Santora 1997, "
-                                          "J Bone Miner Res 12:1143 (the weak window, docs/plan.md)",
+                                          "J Bone Miner Res 12:1143 (bone is transiently weaker in weeks 3-5 "
+                                          "after a new or larger stimulus)",
                                 "status": "seen"})
     result = {
         "patient_id": pid, "date": retest.date,

@@ -9,6 +9,7 @@ cautions.  Jinja2 (``templates/progress_letter.html.j2``) and WeasyPrint, like t
 
 from __future__ import annotations
 
+import re
 from datetime import date
 from pathlib import Path
 
@@ -16,9 +17,10 @@ from ..catalogue import IMPACT_LEVEL_LABELS
 from ..cautions import SHORT_CAUTION, with_standard
 from ..errors import InputError
 from ..outcomes.adherence import sessions_against_planned
-from ..outcomes.measures import measure_rules, snapshot
+from ..outcomes.measures import measure_rules, measure_series
 from ..plan_schema import start_day
 from ..settings import Clinic, clinic as clinic_settings
+from .content.weeks import day_words
 from .progress_chart import measure_svg
 
 __all__ = ["letter_context", "render_letter_html", "write_letter", "LETTER_SUFFIXES"]
@@ -36,10 +38,23 @@ def _fmt(v) -> str:
 
 
 def _long_date(text: str | None) -> str:
+    """A stored day (``YYYY-MM-DD``, or a timestamp that starts with one) as the pages print it."""
     if not text:
         return "-"
-    d = date.fromisoformat(str(text)[:10])
-    return f"{d.day} {d.strftime('%B %Y')}"
+    return day_words(date.fromisoformat(str(text)[:10]))
+
+
+_ISO_DAY = re.compile(r"\b(\d{4}-\d{2}-\d{2})(?:T[0-9:.]+(?:Z|[+-]\d{2}:\d{2})?)?\b")
+
+
+def _prose(text: str) -> str:
+    """A stored reason for the reader: its days (and any timestamp) written as the pages write days."""
+    def one(match: re.Match) -> str:
+        try:
+            return _long_date(match.group(1))
+        except ValueError:
+            return match.group(0)
+    return _ISO_DAY.sub(one, text)
 
 
 def _bounds(name: str) -> tuple[float | None, float | None]:
@@ -67,13 +82,12 @@ def letter_context(store, patient_id: str, *, today: date | None = None, clinic:
     versions = store.program_versions(patient_id)
     plans = [(v["created"], store.get_program(patient_id, v["version"])) for v in versions]
     start = start_day(plans[0][1]).isoformat()
-    # measures over time: the baseline (at the program's start), then each retest
-    series = [(start, rows[0]["previous"])] + [(r["date"], snapshot(r["retest"])) for r in rows]
+    series = measure_series(start, rows)   # the baseline (at the program's start), then each retest
     by_measure = {m["measure"]: m for m in result["measures"]}
     rules = measure_rules()
     measures = []
     for name, rule in rules.items():
-        points = [(d, snap[name]) for d, snap in series if snap.get(name) is not None]
+        points = series.get(name, [])
         m = by_measure.get(name)
         if m is None:
             continue
@@ -82,7 +96,9 @@ def letter_context(store, patient_id: str, *, today: date | None = None, clinic:
             "change": ("+" if m["change"] > 0 else "") + _fmt(m["change"]), "mdc": _fmt(m["mdc"]),
             "verdict": _VERDICT_WORDS[m["verdict"]], "status": m["mdc_status"],
             "svg": measure_svg(rule.label, rule.unit, points, m["baseline"], m["mdc"], _bounds(name)),
-            "source": m["mdc_source"]})
+            "source": m["mdc_source"],
+            # a measure first taken at a retest: its first value is the baseline, from that day
+            "since": _long_date(points[0][0]) if points and points[0][0] != start else None})
     sessions = store.sessions(patient_id)
     adherence = sessions_against_planned(plans, [s["session_date"] for s in sessions],
                                          date.fromisoformat(latest["date"]))
@@ -106,10 +122,13 @@ def letter_context(store, patient_id: str, *, today: date | None = None, clinic:
     first_template = plans[0][1].template
     template = (first_template.title or first_template.name) if first_template is not None else None
     record = store.get_patient(patient_id)
-    sources = []
-    for m in measures:
-        if m["source"] not in sources:
-            sources.append(m["source"])
+    reasons = [{**r, "message": _prose(r["message"])} for r in result.get("reasons") or []]
+    # every threshold and every reason printed, each source once
+    sources = list(dict.fromkeys([m["source"] for m in measures] + [r["source"] for r in reasons if r.get("source")]))
+    screening = dict(result.get("screening") or {})
+    if screening.get("max_impact_level") is not None:
+        level = screening["max_impact_level"]
+        screening["level_words"] = f"{level} ({IMPACT_LEVEL_LABELS.get(level, '')})"
     return {
         "clinic": clinic, "today": _long_date(today.isoformat()), "patient_id": patient_id,
         "age": record.age_years, "sex": record.sex,
@@ -118,11 +137,12 @@ def letter_context(store, patient_id: str, *, today: date | None = None, clinic:
         "measures": measures, "first_measured": result.get("first_measured") or [],
         "adherence": adherence, "adherence_pct": (round(100 * adherence["fraction"])
                                                   if adherence["fraction"] is not None else None),
-        "sensor": sensor, "decision": result["decision"], "reasons": result.get("reasons") or [],
+        "sensor": sensor, "decision": result["decision"], "reasons": reasons,
         "next_block": next_block, "flags": result.get("flags") or [],
         "falls": result.get("falls_since_last", 0), "height_loss": result.get("height_loss_cm"),
-        "screening": result.get("screening") or {},
-        "cautions": with_standard(), "short_caution": SHORT_CAUTION, "sources": sources,
+        "screening": screening,
+        # the retest's own: the standard ones, a referral's, and those of the person's program
+        "cautions": with_standard(result.get("cautions") or []), "short_caution": SHORT_CAUTION, "sources": sources,
         "clinician": latest.get("clinician") or "",
     }
 

@@ -21,6 +21,11 @@ def _fmt(v: float) -> str:
     return f"{v:g}" if abs(v) >= 10 or float(v).is_integer() else f"{v:.1f}"
 
 
+def _day(d: date) -> str:
+    """A day under a chart: ``5 Dec 2026``."""
+    return f"{d.day} {d.strftime('%b %Y')}"
+
+
 def measure_svg(label: str, unit: str, points: list[tuple[str, float]], baseline: float, mdc: float,
                 bounds: tuple[float | None, float | None] = (None, None)) -> str | None:
     """The chart of one measure: ``points`` (date text, value), oldest first; None with fewer than two.
@@ -65,8 +70,8 @@ def measure_svg(label: str, unit: str, points: list[tuple[str, float]], baseline
         parts.append(f'<circle cx="{x(d):.1f}" cy="{y(v):.1f}" r="3" fill="{INK}"/>')
         anchor = "start" if i == 0 else "end" if i == len(values) - 1 else "middle"
         parts.append(f'<text x="{x(d):.1f}" y="{y(v) - 6:.1f}" text-anchor="{anchor}">{escape(_fmt(v))}</text>')
-    parts.append(f'<text x="{LEFT}" y="{HEIGHT - 6}" text-anchor="start">{escape(days[0].strftime("%d %b %Y"))}</text>')
+    parts.append(f'<text x="{LEFT}" y="{HEIGHT - 6}" text-anchor="start">{escape(_day(days[0]))}</text>')
     parts.append(f'<text x="{LEFT + plot_w}" y="{HEIGHT - 6}" text-anchor="end">'
-                 f'{escape(days[-1].strftime("%d %b %Y"))}</text>')
+                 f'{escape(_day(days[-1]))}</text>')
     parts.append("</svg>")
     return "".join(parts)

@@ -99,7 +99,9 @@ def decide(measures: list[dict], falls_since_last: int, height_loss: float | Non
         flags.append({"flag": flag, "measure": m["measure"], "message": r["message"], "source": r["source"]})
     pending = needs_new_clearance(screening, plan)
     if pending:
-        r = _reason("screening_refers", rules=", ".join(pending))
+        fired = [f for f in screening.flags if f.rule in pending]
+        r = _reason("screening_refers", rules="; ".join(f.title or f.rule for f in fired))
+        r["source"] = "; ".join(dict.fromkeys(f.source for f in fired)) or r["source"]  # each rule's own
         reasons.append(r)
         flags.append({"flag": "screening_refers", "rules": pending, "message": r["message"], "source": r["source"]})
     pause = plan.paused if plan is not None else None

@@ -22,7 +22,7 @@ from ..records import T_SCORE_SITES
 from .retest import RETEST_MEASURES
 
 __all__ = ["VERDICTS", "MeasureRule", "measure_rules", "dxa_lsc_sd", "verdict", "snapshot", "compare",
-           "measure_label", "decision_rules", "height_loss_cm"]
+           "measure_label", "decision_rules", "height_loss_cm", "measure_series"]
 
 #: The verdicts, in the contract's words.
 VERDICTS: tuple[str, ...] = ("improved", "no real change", "worse")
@@ -125,6 +125,23 @@ def snapshot(values: dict[str, Any]) -> dict[str, float]:
         for site, value in (values.get(group) or {}).items():
             if value is not None:
                 out[f"{group}.{site}"] = value
+    return out
+
+
+def measure_series(start: str, rows: list[dict]) -> dict[str, list[tuple[str, float]]]:
+    """Each measure's values over time, oldest first, in the data file's order of measures: the
+    baseline (the record's values the first retest replaced, dated ``start``, the program's first
+    day), then each stored retest's (``rows``, oldest first, as the store gives them).  A measure
+    never measured is left out; one measured once has one point (the app's and the letter's
+    charts draw only those with two or more)."""
+    if not rows:
+        return {}
+    taken = [(str(start)[:10], rows[0]["previous"])] + [(r["date"], snapshot(r["retest"])) for r in rows]
+    out: dict[str, list[tuple[str, float]]] = {}
+    for name in measure_rules():
+        points = [(day, snap[name]) for day, snap in taken if snap.get(name) is not None]
+        if points:
+            out[name] = points
     return out
 
 

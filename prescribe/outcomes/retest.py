@@ -15,7 +15,6 @@ Validation happens once, at the boundary (:func:`parse_retest`); a bad retest ra
 
 from __future__ import annotations
 
-import math
 from datetime import date
 from typing import Any
 
@@ -24,7 +23,9 @@ from pydantic.fields import FieldInfo
 from pydantic_core import PydanticUndefined
 
 from ..errors import FieldProblem, InputError
-from ..records import FIELD_META, PatientRecord, TScores, ZScores, _meta, _resolve, field_meta
+from ..sessions.records import check_day_in_program
+from ..records import (FIELD_META, PatientRecord, TScores, ZScores, _meta, _resolve, day_text, field_meta,
+                       finite_number)
 
 __all__ = ["RetestRecord", "RETEST_MEASURES", "RETEST_FIELD_META", "RETEST_SCHEMA", "parse_retest",
            "check_retest_date"]
@@ -82,22 +83,9 @@ class RetestRecord(BaseModel):
     note: str = Field("", max_length=NOTE_MAX, description="What the clinician noted at the retest.",
                       json_schema_extra=_meta(label="Note"))
 
-    @field_validator("timed_up_and_go_s", "tandem_stance_s", "body_mass_kg", "height_cm")
-    @classmethod
-    def _finite(cls, value: float | None) -> float | None:
-        if value is not None and not math.isfinite(value):
-            raise ValueError("not a finite number")
-        return value
-
-    @field_validator("date")
-    @classmethod
-    def _day(cls, value: str) -> str:
-        try:
-            if len(value) != 10:
-                raise ValueError
-            return date.fromisoformat(value).isoformat()
-        except ValueError:
-            raise ValueError("a date as YYYY-MM-DD") from None
+    # the record's own checks of a measure and of a day (prescribe/records.py), as the session record's
+    _finite = field_validator("timed_up_and_go_s", "tandem_stance_s", "body_mass_kg", "height_cm")(finite_number)
+    _day = field_validator("date")(day_text)
 
     @property
     def day(self) -> date:
@@ -173,13 +161,6 @@ def parse_retest(data: Any, source: str | None = None) -> RetestRecord:
 
 def check_retest_date(retest: RetestRecord, start_date: str | date | None, today: date | None = None,
                       source: str | None = None) -> None:
-    """Refuse a retest in the future or before the program's start date (InputError naming ``date``)."""
-    today = today or date.today()
-    if retest.day > today:
-        raise InputError.single("date", retest.date, f"a date not in the future (today is {today.isoformat()})",
-                                source)
-    if start_date is not None:
-        start = start_date if isinstance(start_date, date) else date.fromisoformat(str(start_date))
-        if retest.day < start:
-            raise InputError.single("date", retest.date,
-                                    f"a date on or after the program's start_date {start.isoformat()}", source)
+    """Refuse a retest in the future or before the program's start date (InputError naming ``date``),
+    with the session record's own check."""
+    check_day_in_program("date", retest.day, start_date, today, source)

@@ -8,7 +8,6 @@ and symptoms live in the session, the intake's ``pain_score`` stays the baseline
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass
 from datetime import date
 from typing import TYPE_CHECKING, Any, Iterable, Literal
@@ -17,6 +16,7 @@ from pydantic import BaseModel, ConfigDict, Field, ValidationError, field_valida
 
 from ..errors import FieldProblem, InputError
 from ..identifiers import IDENTIFIER_CHARACTERS, identifier_text
+from ..records import day_text, finite_number
 
 if TYPE_CHECKING:
     from ..plan_schema import Plan
@@ -57,10 +57,6 @@ ALLOWED: dict[str, str] = {
 }
 
 
-def _finite(value: float | None) -> float | None:
-    if value is not None and not math.isfinite(value):
-        raise ValueError("not a finite number")
-    return value
 
 
 class ExerciseDone(BaseModel):
@@ -76,7 +72,7 @@ class ExerciseDone(BaseModel):
     load_kg: float | None = Field(None, ge=0, le=500, description="External load of the working sets [kg].")
     rpe: float | None = Field(None, ge=0, le=10, description="Effort of the exercise, Borg CR10 (0-10).")
 
-    _f = field_validator("minutes_done", "load_kg", "rpe")(_finite)
+    _f = field_validator("minutes_done", "load_kg", "rpe")(finite_number)
     _id = field_validator("exercise_id")(identifier_text)
 
 
@@ -96,18 +92,10 @@ class SessionRecord(BaseModel):
     fell_since_last: bool = False
     note: str = Field("", max_length=2000)
 
-    _f = field_validator("session_rpe")(_finite)
+    _f = field_validator("session_rpe")(finite_number)
     _id = field_validator("patient_id")(identifier_text)
 
-    @field_validator("session_date")
-    @classmethod
-    def _day(cls, value: str) -> str:
-        try:
-            if len(value) != 10:
-                raise ValueError
-            return date.fromisoformat(value).isoformat()
-        except ValueError:
-            raise ValueError("a date as YYYY-MM-DD") from None
+    _day = field_validator("session_date")(day_text)
 
     @field_validator("symptoms")
     @classmethod
@@ -158,19 +146,25 @@ def parse_session(data: Any, source: str | None = None) -> SessionRecord:
         raise InputError(problems, source) from None
 
 
-def check_session_dates(session: SessionRecord, start_date: str | date | None, today: date | None = None,
-                        source: str | None = None) -> None:
-    """Refuse a session in the future or before the program's start date (InputError naming session_date)."""
+def check_day_in_program(field: str, day: date, start_date: str | date | None, today: date | None = None,
+                         source: str | None = None) -> None:
+    """Refuse a day in the future or before the program's start date (InputError naming ``field``):
+    the one check of a session's and a retest's day."""
     today = today or date.today()
-    day = session.day
     if day > today:
-        raise InputError.single("session_date", session.session_date,
-                                f"a date not in the future (today is {today.isoformat()})", source)
+        raise InputError.single(field, day.isoformat(), f"a date not in the future (today is {today.isoformat()})",
+                                source)
     if start_date is not None:
         start = start_date if isinstance(start_date, date) else date.fromisoformat(str(start_date))
         if day < start:
-            raise InputError.single("session_date", session.session_date,
+            raise InputError.single(field, day.isoformat(),
                                     f"a date on or after the program's start_date {start.isoformat()}", source)
+
+
+def check_session_dates(session: SessionRecord, start_date: str | date | None, today: date | None = None,
+                        source: str | None = None) -> None:
+    """Refuse a session in the future or before the program's start date (InputError naming session_date)."""
+    check_day_in_program("session_date", session.day, start_date, today, source)
 
 
 def check_session_exercises(session: SessionRecord, plan: "Plan", catalogue_ids: Iterable[str],

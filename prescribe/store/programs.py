@@ -189,7 +189,7 @@ def _checked_plan(patient_id: str, plan: Plan | dict):
 def _stored_plan(text: str, patient_id: str, version: int | None) -> Plan:
     """A stored program row's plan, validated: the one place a stored plan becomes a Plan."""
     where = f"stored program of {patient_id!r}" + (f", version {version}" if version is not None else "")
-    return parse_plan(json.loads(text), source=where)
+    return parse_plan(json.loads(text), source=where, share=True)   # stored versions are read, never changed
 
 
 def _latest_program(conn: Connection, pid: str):

@@ -12,7 +12,7 @@ from __future__ import annotations
 
 import json
 
-from sqlalchemy import func, select
+from sqlalchemy import and_, exists, func, or_, select
 
 from ..errors import ConflictError, InputError
 from ..plan_schema import Plan
@@ -21,7 +21,7 @@ from ..safety import assert_safe
 from . import models as m
 from .engine import StoreBase, now_utc
 from .people import _insert_screening
-from .programs import _checked_plan, _insert_program, _latest_program, _stored_plan
+from .programs import _checked_plan, _insert_program, _latest_program, refuse_replacing_pause
 from .rows import _audit, _clinician, _dumps, _person
 
 
@@ -36,10 +36,12 @@ class RetestsMixin(StoreBase):
 
         ``previous`` is the record's measures the retest replaces; ``result`` the comparison and
         decision (as printed); ``based_on_record_version`` the record version the comparison was
-        worked out on (a change since is a :class:`ConflictError`); ``plan`` the next block,
-        saved as the version after ``based_on_version`` (the latest) once it passes the safety
-        check against the updated record.  A paused current program is never replaced
-        (InputError naming the program).
+        worked out on (a change since is a :class:`ConflictError`); ``plan`` the next block (a
+        plan file's JSON, or a :class:`~prescribe.plan_schema.Plan` built in this process), saved
+        as the version after ``based_on_version`` (the latest) once it passes the safety check
+        against the updated record.  A paused current program is never replaced: the store's one
+        pause check (:func:`~prescribe.store.programs.refuse_replacing_pause`) refuses it with
+        :class:`~prescribe.errors.ProgramPaused` (exit 2) as at every door, and nothing is stored.
 
         Returns ``{retest_id, record_version, screening_id, program_version}``.
         """
@@ -49,6 +51,7 @@ class RetestsMixin(StoreBase):
             raise InputError.single("patient_id", retest.get("patient_id"), f"the record's patient_id {pid!r}")
         parsed = plan_json = summary_json = None
         if plan is not None:
+            # A Plan built in this process is stored as it dumps, not validated a second time.
             parsed, plan_json, summary_json = _checked_plan(pid, plan)
             assert_safe(parsed, door=f"store: the next block of {pid!r}", record=record)
         record_json = _dumps(record.model_dump(mode="json"), "record")
@@ -61,22 +64,16 @@ class RetestsMixin(StoreBase):
                                     "run the retest again")
             program_version = None
             if plan is not None:
+                # The store's one pause check, the same at every door (before the version check: a program
+                # paused meanwhile is refused for its pause, with the store's words, not as a conflict).
+                refuse_replacing_pause(conn, pid, parsed, f"store: the next block after the retest of "
+                                                             f"{retest.get('date')} for {pid!r}")
                 latest = _latest_program(conn, pid)
                 latest_version = latest.version if latest else None
                 if based_on_version != latest_version:
                     raise ConflictError(f"the program of {pid!r} is now at version {latest_version}, but the next "
                                         f"block was based on version {based_on_version}; nothing was stored: run "
                                         "the retest again")
-                text = conn.execute(
-                    select(m.program_versions.c.plan_json).where(m.program_versions.c.patient_id == pid,
-                                                                 m.program_versions.c.version == latest_version)
-                ).scalar() if latest else None
-                pause = _stored_plan(text, pid, latest_version).paused if text else None
-                if pause is not None:
-                    raise InputError.single("program", f"version {latest_version} of {pid!r} (paused since "
-                                            f"{pause.since})",
-                                            "a program that is not paused: a paused program stays until a "
-                                            "clinician records the resumption; the retest was not stored")
             old = json.loads(row.record_json)
             new = json.loads(record_json)
             changed = [k for k in new if old.get(k) != new[k]] + [k for k in old if k not in new]
@@ -124,16 +121,16 @@ class RetestsMixin(StoreBase):
                                 .where(m.retests.c.patient_id == patient_id)).scalar()
 
     def retest_verdicts(self) -> list[tuple[str, str | None, str]]:
-        """Each person's latest retest as (patient_id, template, verdicts JSON), by id, in one read
-        (the caseload's outcomes): every row in (patient_id, id) order, the last of each person kept."""
+        """Each person's latest retest (by date, then by id) as (patient_id, template, verdicts JSON),
+        in one read (the caseload's outcomes): the database keeps only the rows no later retest of
+        the same person follows, through the (patient_id, retest_date, id) index."""
         t = m.retests.c
+        later = m.retests.alias("later")
+        query = select(t.patient_id, t.template, t.verdicts_json).where(~exists().where(
+            later.c.patient_id == t.patient_id,
+            or_(later.c.retest_date > t.retest_date, and_(later.c.retest_date == t.retest_date, later.c.id > t.id))))
         with self._read() as conn:
-            rows = conn.execute(select(t.patient_id, t.template, t.verdicts_json)
-                                .order_by(t.patient_id, t.retest_date, t.id)).all()
-        latest: dict[str, tuple[str, str | None, str]] = {}
-        for r in rows:
-            latest[r[0]] = (r[0], r[1], r[2])
-        return list(latest.values())
+            return [tuple(r) for r in conn.execute(query)]
 
 
 def _row(r) -> dict:

@@ -67,20 +67,22 @@ class MeasureCharts:
         self.box = w.VBox([])
         self.box.add_class("pr-retest-charts")
 
-    def update(self, series: list[tuple[str, dict]]) -> int:
+    def update(self, series: dict[str, list[tuple[str, float]]]) -> int:
+        """Draw ``series`` (:func:`prescribe.outcomes.measures.measure_series`); returns the charts drawn."""
         import bqplot as bq
+        import numpy as np
 
         from ..outcomes.measures import measure_rules
+        rules = measure_rules()
         figures = []
-        for name, rule in measure_rules().items():
-            points = [(d, snap[name]) for d, snap in series if snap.get(name) is not None]
+        for name, points in series.items():
             if len(points) < 2:
                 continue  # no empty charts
+            rule = rules[name]
             x = bq.DateScale()
             y = bq.LinearScale()
-            days = [date.fromisoformat(d) for d, _ in points]
-            import numpy as np
-            line = bq.Lines(x=np.array(days, dtype="datetime64[D]").astype("datetime64[ms]"), y=[float(v) for _, v in points],
+            days = np.array([date.fromisoformat(d) for d, _ in points], dtype="datetime64[D]")
+            line = bq.Lines(x=days.astype("datetime64[ms]"), y=[float(v) for _, v in points],
                             scales={"x": x, "y": y}, marker="circle", colors=["#1f3b57"])
             fig = bq.Figure(title=f"{rule.label} ({rule.unit})", marks=[line],
                             axes=[bq.Axis(scale=x, tick_format="%b %Y"), bq.Axis(scale=y, side="left")],
@@ -92,14 +94,20 @@ class MeasureCharts:
         return len(figures)
 
 
-class ReassessPanel(LazyPanel):
-    """Retest, compare, apply the next block, see the measures over time, download the letter."""
+def _cautions_box(lines: list[str]) -> w.HTML:
+    """The cautions of a section: its own lines, then the standard ones."""
+    box = w.HTML(cautions_html(with_standard(lines), "Cautions for this part"))
+    box.add_class("pr-cautions-box")
+    return box
 
-    def __init__(self, app) -> None:
+
+class _Panel(LazyPanel):
+    """A section of the app built when opened, redrawn by :meth:`refresh` once built; its errors
+    and lock are the app's."""
+
+    def __init__(self, app, title: str, css: str) -> None:
         self.app = app
-        self.result: dict | None = None
-        self.section = LazySection("9. Retest, outcome and next block", "pr-section-retest", self._build,
-                                   after=self.refresh)
+        self.section = LazySection(title, css, self._build, after=self.refresh)
 
     @property
     def lock(self):
@@ -108,6 +116,14 @@ class ReassessPanel(LazyPanel):
     @property
     def errors(self):
         return self.app.errors
+
+
+class ReassessPanel(_Panel):
+    """Retest, compare, apply the next block, see the measures over time, download the letter."""
+
+    def __init__(self, app) -> None:
+        self.result: dict | None = None
+        super().__init__(app, "9. Retest, outcome and next block", "pr-section-retest")
 
     def _build(self) -> list:
         self.specs = retest_fields()
@@ -142,11 +158,9 @@ class ReassessPanel(LazyPanel):
         self.charts = MeasureCharts()
         self.history = w.HTML("")
         self.history.add_class("pr-retest-history")
-        cautions = w.HTML(cautions_html(with_standard(
-            ["A verdict compares a measure with its published minimal detectable change; judge it with the "
-             "person in front of you.", "The next block passes the same safety check as every program."]),
-            "Cautions for this part"))
-        cautions.add_class("pr-cautions-box")
+        cautions = _cautions_box(["A verdict compares a measure with its published minimal detectable change; judge "
+                                  "it with the person in front of you.",
+                                  "The next block passes the same safety check as every program."])
         grid = w.GridBox(rows, layout=w.Layout(grid_template_columns="repeat(2, 440px)"))
         return [w.HTML("<p>The retest of the open, saved person. Leave a box empty when the measure was not "
                        "taken. Hover over a box for what it accepts.</p>"), grid, self.clinician,
@@ -219,33 +233,22 @@ class ReassessPanel(LazyPanel):
                 rows = []
         if not rows:
             self.history.value = "<p class='pr-retest-none'>No retest stored for this person yet.</p>"
-            self.charts.update([])
+            self.charts.update({})
             return
-        from ..outcomes.measures import snapshot
+        from ..outcomes.measures import measure_series
         start = start_day(session.store.get_program(session.record.patient_id, 1)).isoformat()
-        series = [(start, rows[0]["previous"])] + [(r["date"], snapshot(r["retest"])) for r in rows]
         items = "".join(f"<li>{_esc(r['date'])}: {_esc(r['decision'])}"
                         + (f", program version {r['program_version']}" if r["program_version"] else "") + "</li>"
                         for r in rows)
         self.history.value = f"<p><b>Stored retests</b></p><ul class='pr-retest-list'>{items}</ul>"
-        self.charts.update(series)
+        self.charts.update(measure_series(start, rows))
 
 
-class OutcomesPanel(LazyPanel):
+class OutcomesPanel(_Panel):
     """The clinic lead's view: per measure, improved / no real change / worse, by template."""
 
     def __init__(self, app) -> None:
-        self.app = app
-        self.section = LazySection("10. Clinic outcomes (for the lead)", "pr-section-outcomes", self._build,
-                                   after=self.refresh)
-
-    @property
-    def lock(self):
-        return self.app.lock
-
-    @property
-    def errors(self):
-        return self.app.errors
+        super().__init__(app, "10. Clinic outcomes (for the lead)", "pr-section-outcomes")
 
     def _build(self) -> list:
         import bqplot as bq
@@ -269,10 +272,8 @@ class OutcomesPanel(LazyPanel):
         self.table = w.HTML("")
         self.table.add_class("pr-outcomes-table")
         self.result: dict | None = None
-        cautions = w.HTML(cautions_html(with_standard(
-            ["Counts of people, not proof that a template works: medicines, illness and season change these "
-             "measures too."]), "Cautions for this part"))
-        cautions.add_class("pr-cautions-box")
+        cautions = _cautions_box(["Counts of people, not proof that a template works: medicines, illness and season "
+                                  "change these measures too."])
         return [w.HBox([self.template, self.refresh_button]), self.figure, self.table, cautions]
 
     def refresh(self) -> None:
