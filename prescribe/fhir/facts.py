@@ -50,6 +50,17 @@ def _not_used(ref: str, why: str) -> list:
     return [["not_used", ref, why]]
 
 
+def _mapped(codings: list[tuple[str, str]], find, ref: str, where: str) -> tuple[C.Mapping | None, list]:
+    """The mapping line of the first coding ``find`` knows, or ``(None, facts saying it was not
+    used)``; bad input when every coding is of a code system no mapping reads."""
+    for system, code in codings:
+        hit = find(system, code)
+        if hit is not None:
+            return hit, []
+    _check_systems(codings, where)
+    return None, _not_used(ref, "code not in the mapping: " + (", ".join(f"{s}|{c}" for s, c in codings) or "no code"))
+
+
 def _day(text: Any, where: str) -> str | None:
     if text is None:
         return None
@@ -82,12 +93,10 @@ def _number(value: Any, where: str) -> float:
 
 
 def observation_facts(res: dict, ref: str) -> list:
-    codings = _codings(res.get("code"))
     table = C.observation_codes()
-    hit = next((table[k] for k in codings if k in table), None)
+    hit, unused = _mapped(_codings(res.get("code")), lambda s, c: table.get((s, c)), ref, f"{ref}.code.coding")
     if hit is None:
-        _check_systems(codings, f"{ref}.code.coding")
-        return _not_used(ref, "code not in the mapping: " + (", ".join(f"{s}|{c}" for s, c in codings) or "no code"))
+        return unused
     if res.get("status") in _STATUS_NOT_USED:
         return _not_used(ref, f"status {res.get('status')}")
     when = _effective(res, ref)
@@ -126,15 +135,9 @@ def observation_facts(res: dict, ref: str) -> list:
 
 
 def condition_facts(res: dict, ref: str) -> list:
-    codings = _codings(res.get("code"))
-    hit = None
-    for s, c in codings:
-        hit = C.find_condition(s, c)
-        if hit:
-            break
+    hit, unused = _mapped(_codings(res.get("code")), C.find_condition, ref, f"{ref}.code.coding")
     if hit is None:
-        _check_systems(codings, f"{ref}.code.coding")
-        return _not_used(ref, "code not in the mapping: " + (", ".join(f"{s}|{c}" for s, c in codings) or "no code"))
+        return unused
     verification = {c for _, c in _codings(res.get("verificationStatus"))}
     clinical = {c for _, c in _codings(res.get("clinicalStatus"))}
     code = f"{hit.system}|{hit.code}"
@@ -171,15 +174,9 @@ def medication_facts(res: dict, ref: str) -> list:
     concept = res.get("medicationCodeableConcept")
     if concept is None and "medicationReference" in res:
         return _not_used(ref, "medicationReference (only medicationCodeableConcept is read)")
-    codings = _codings(concept)
-    hit = None
-    for s, c in codings:
-        hit = C.find_medicine(s, c)
-        if hit:
-            break
+    hit, unused = _mapped(_codings(concept), C.find_medicine, ref, f"{ref}.medicationCodeableConcept.coding")
     if hit is None:
-        _check_systems(codings, f"{ref}.medicationCodeableConcept.coding")
-        return _not_used(ref, "code not in the mapping: " + (", ".join(f"{s}|{c}" for s, c in codings) or "no code"))
+        return unused
     period = res.get("effectivePeriod") or {}
     start = _day(period.get("start"), f"{ref}.effectivePeriod.start")
     end = _day(period.get("end"), f"{ref}.effectivePeriod.end")
@@ -222,11 +219,10 @@ def procedure_facts(res: dict, ref: str) -> list:
     if res.get("status") not in (None, "completed"):
         return _not_used(ref, f"status {res.get('status')}")
     table = C.procedure_codes()
-    codings = _codings(res.get("code"))
-    hit = next((table[k] for k in codings if k in table and table[k].field == "procedure"), None)
+    hit, unused = _mapped(_codings(res.get("code")), lambda s, c: _procedure(table.get((s, c))), ref,
+                          f"{ref}.code.coding")
     if hit is None:
-        _check_systems(codings, f"{ref}.code.coding")
-        return _not_used(ref, "code not in the mapping: " + (", ".join(f"{s}|{c}" for s, c in codings) or "no code"))
+        return unused
     side = "none"
     for site in res.get("bodySite") or []:
         for k in _codings(site):
@@ -243,6 +239,11 @@ def procedure_facts(res: dict, ref: str) -> list:
         when = _day(p.get("end") or p.get("start"), f"{ref}.performedPeriod")
     cleared = bool(_ext(res, "surgeon-cleared-impact"))
     return [["surgery", hit.value, side, when, cleared, ref, f"{hit.system}|{hit.code}"]]
+
+
+def _procedure(m: C.Mapping | None) -> C.Mapping | None:
+    """An operation's line of procedures.csv (its other lines are the sides of a bodySite)."""
+    return m if m is not None and m.field == "procedure" else None
 
 
 def patient_facts(res: dict, ref: str, with_name: bool) -> list:
