@@ -14,8 +14,9 @@ from datetime import date
 from typing import Any, Iterable
 
 from ..errors import FieldProblem, InputError
-from ..records import PatientRecord, parse_record
+from ..records import CONDITIONS, PatientRecord, parse_record
 from .r4 import age_on, months_between, parse_fhir_date
+
 
 @dataclass
 class ImportResult:
@@ -35,6 +36,8 @@ class ImportResult:
         return sorted({p["field"].split(".")[0].split("[")[0] for p in self.provenance})
 
 
+_CONDITION_ORDER = {code: i for i, code in enumerate(CONDITIONS)}
+
 #: What each required field is called in FHIR's terms.
 REQUIRED_IN_FHIR = {
     "patient_id": ("Patient.identifier", "an identifier (or an id) on the Patient resource"),
@@ -48,6 +51,8 @@ REQUIRED_IN_FHIR = {
 
 def _latest(values: list, field: str, notes: list[str]) -> list:
     """The most recent of several facts for one field (undated ones count as oldest), with a note."""
+    if len(values) == 1:
+        return values[0]
     ranked = sorted(values, key=lambda f: f[3] or "")
     chosen = ranked[-1]
     if len({repr(v[2]) for v in values}) > 1:
@@ -57,43 +62,56 @@ def _latest(values: list, field: str, notes: list[str]) -> list:
     return chosen
 
 
+@dataclass
+class Fields:
+    """One person's record fields as read from FHIR, not yet validated as a record."""
+
+    data: dict[str, Any]
+    provenance: list[dict]
+    not_used: list[dict]
+    notes: list[str]
+
+    def validated(self, source: str | None = None) -> ImportResult:
+        """The record (InputError naming each bad field's resource and the record's field)."""
+        try:
+            record = parse_record(self.data, source)
+        except InputError as err:
+            where = {p["field"].split("[")[0]: p["resource"] for p in self.provenance}
+            raise InputError([FieldProblem(f"{_resource_of(where, p.field)} ({p.field})", p.value, p.allowed, p.kind)
+                              for p in err.problems], source) from None
+        return ImportResult(record, self.provenance, self.not_used, self.notes)
+
+
+def _resource_of(where: dict[str, str], field: str) -> str:
+    return where.get(field.split("[")[0].split(".")[0], where.get(field.split("[")[0], "Bundle"))
+
+
 def assemble(facts: Iterable[list], as_of: date | None = None, source: str | None = None) -> ImportResult:
     """One person's facts -> an :class:`ImportResult` (raises InputError naming FHIR's and the record's terms)."""
+    return assemble_fields(facts, as_of, source).validated(source)
+
+
+def assemble_fields(facts: Iterable[list], as_of: date | None = None, source: str | None = None) -> Fields:
+    """One person's facts -> the record's fields (:class:`Fields`), checked for what FHIR's side
+    decides (one person, one birth date and gender, the required fields, dates not after ``as_of``)
+    but not yet validated as a record."""
     as_of = as_of or date.today()
     notes: list[str] = []
     prov: list[dict] = []
-    not_used: list[dict] = []
-    scalars: dict[str, list] = {}
-    ids, births, genders, names = [], [], [], []
-    fractures, conditions, meds, glucos, surgeries, cancers, metastases = [], [], [], [], [], [], []
+    kinds: dict[str, list] = {}
     for f in facts:
-        kind = f[0]
-        if kind == "scalar":
-            scalars.setdefault(f[1], []).append(f)
-        elif kind == "patient_id":
-            ids.append(f)
-        elif kind == "birthDate":
-            births.append(f)
-        elif kind == "gender":
-            genders.append(f)
-        elif kind == "name":
-            names.append(f)
-        elif kind == "fracture":
-            fractures.append(f)
-        elif kind == "condition":
-            conditions.append(f)
-        elif kind == "medication":
-            meds.append(f)
-        elif kind == "glucocorticoid":
-            glucos.append(f)
-        elif kind == "surgery":
-            surgeries.append(f)
-        elif kind == "cancer":
-            cancers.append(f)
-        elif kind == "metastases":
-            metastases.append(f)
-        elif kind == "not_used":
-            not_used.append({"resource": f[1], "why": f[2]})
+        kinds.setdefault(f[0], []).append(f)
+    scalars: dict[str, list] = {}
+    for f in kinds.get("scalar", ()):
+        scalars.setdefault(f[1], []).append(f)
+    ids, births, genders, names = (kinds.get(k, []) for k in ("patient_id", "birthDate", "gender", "name"))
+    fractures, conditions, meds, glucos, surgeries, cancers, metastases = (
+        kinds.get(k, []) for k in ("fracture", "condition", "medication", "glucocorticoid", "surgery", "cancer",
+                                   "metastases"))
+    not_used = [{"resource": f[1], "why": f[2]} for f in kinds.get("not_used", ())]
+    not_used += [{"resource": f[3], "why": f"medicationReference {f[1]}: no Medication with that id (contained in "
+                                           "the statement, in the Bundle or in the export)"}
+                 for f in kinds.get("medication_ref", ())]
 
     def months_ago(day: str | None, where: str) -> float | None:
         if day is None:
@@ -180,7 +198,8 @@ def assemble(facts: Iterable[list], as_of: date | None = None, source: str | Non
     if fx_out:
         data["fractures"] = fx_out
     seen_conditions = []
-    for f in conditions:
+    # In the vocabulary's order, whatever order the resources came in (a bulk export's lines are in none).
+    for f in sorted(conditions, key=lambda f: (_CONDITION_ORDER.get(f[1], len(_CONDITION_ORDER)), f[1], f[2])):
         if f[1] not in seen_conditions:
             seen_conditions.append(f[1])
             prov.append({"field": f"conditions[{len(seen_conditions) - 1}]", "resource": f[2], "element": "code",
@@ -200,7 +219,7 @@ def assemble(facts: Iterable[list], as_of: date | None = None, source: str | Non
     # Medicines
     med_out = []
     for f in sorted(meds, key=lambda f: f[4]):
-        _, cls, start, end, ref, code = f
+        _, cls, start, end, ref, code, element = f
         item: dict[str, Any] = {"class": cls}
         if start is not None:
             s = date.fromisoformat(start)
@@ -209,22 +228,21 @@ def assemble(facts: Iterable[list], as_of: date | None = None, source: str | Non
         item["months_since_last_dose"] = months_ago(end, f"{ref}.effectivePeriod.end")
         med_out.append(item)
         prov.append({"field": f"medications[{len(med_out) - 1}]", "resource": ref,
-                     "element": "medicationCodeableConcept, effectivePeriod", "code": code})
+                     "element": element, "code": code})
     if med_out:
         data["medications"] = med_out
     if glucos:
         chosen = sorted(glucos, key=lambda f: (f[3] or as_of.isoformat(), f[2] or ""))[-1]
         if len(glucos) > 1:
             notes.append(f"glucocorticoids: {len(glucos)} statements with a dose; took the most recent, {chosen[4]}")
-        _, mg, start, end, ref, code = chosen
+        _, mg, start, end, ref, code, element = chosen
         if start is None:
             not_used.append({"resource": ref, "why": "glucocorticoid dose without effectivePeriod.start "
                                                      "(months taken unknown)"})
         else:
             data["glucocorticoids"] = {"mg_per_day": mg, "months": months_between(date.fromisoformat(start),
                                                                                    date.fromisoformat(end) if end else as_of)}
-            prov.append({"field": "glucocorticoids", "resource": ref, "element": "dosage, effectivePeriod",
-                         "code": code})
+            prov.append({"field": "glucocorticoids", "resource": ref, "element": element, "code": code})
     # Procedures
     surg_out = []
     for f in sorted(surgeries, key=lambda f: (f[3] or "", f[5])):
@@ -238,11 +256,4 @@ def assemble(facts: Iterable[list], as_of: date | None = None, source: str | Non
                      "element": "code, bodySite, performedDateTime", "code": code})
     if surg_out:
         data["surgeries"] = surg_out
-    try:
-        record = parse_record(data, source)
-    except InputError as err:
-        where = {p["field"].split("[")[0]: p["resource"] for p in prov}
-        raise InputError([FieldProblem(f"{where.get(p.field.split('[')[0].split('.')[0], where.get(p.field.split('[')[0], 'Bundle'))} "
-                                       f"({p.field})", p.value, p.allowed, p.kind) for p in err.problems],
-                         source) from None
-    return ImportResult(record, prov, not_used, notes)
+    return Fields(data, prov, not_used, notes)

@@ -16,7 +16,7 @@ from typing import Any
 from ..errors import InputError
 from ..records import COGNITION_LEVELS, MENOPAUSE_STATUSES, VERTEBRAL_LEVEL_PATTERN
 from . import codes as C
-from .r4 import check_version, parse_fhir_date, ref_of
+from .r4 import check_version, fhir_day_text, normal_reference, parse_fhir_date, ref_of
 
 #: Resource types whose content becomes record fields.
 READ_TYPES = ("Patient", "Observation", "Condition", "MedicationStatement", "Procedure")
@@ -61,19 +61,17 @@ def _mapped(codings: list[tuple[str, str]], find, ref: str, where: str) -> tuple
     return None, _not_used(ref, "code not in the mapping: " + (", ".join(f"{s}|{c}" for s, c in codings) or "no code"))
 
 
-def _day(text: Any, where: str) -> str | None:
-    if text is None:
-        return None
-    return parse_fhir_date(text, where)[0].isoformat()
+def _day(text: Any, ref: str, element: str) -> str | None:
+    return None if text is None else fhir_day_text(text, ref, element)
 
 
 def _effective(resource: dict, ref: str) -> str | None:
     for key in ("effectiveDateTime", "effectiveInstant", "issued"):
         if resource.get(key) is not None:
-            return _day(resource[key], f"{ref}.{key}")
+            return _day(resource[key], ref, key)
     period = resource.get("effectivePeriod")
     if isinstance(period, dict) and (period.get("end") or period.get("start")):
-        return _day(period.get("end") or period.get("start"), f"{ref}.effectivePeriod")
+        return _day(period.get("end") or period.get("start"), ref, "effectivePeriod")
     return None
 
 
@@ -120,6 +118,8 @@ def observation_facts(res: dict, ref: str) -> list:
         value, element = _number(res["valueInteger"], f"{ref}.valueInteger"), "valueInteger"
     elif "valueBoolean" in res:
         value, element = res["valueBoolean"], "valueBoolean"
+        if not isinstance(value, bool):
+            raise InputError.single(f"{ref}.valueBoolean", value, "true or false (a JSON boolean)")
     elif "valueCodeableConcept" in res:
         vocab = {"menopause": MENOPAUSE_STATUSES, "cognition": COGNITION_LEVELS}.get(field, {})
         value = next((c for s, c in _codings(res["valueCodeableConcept"]) if s == C.LOCAL and c in vocab), None)
@@ -158,7 +158,7 @@ def condition_facts(res: dict, ref: str) -> list:
     onset = None
     for key in ("onsetDateTime", "recordedDate"):
         if res.get(key) is not None:
-            onset = _day(res[key], f"{ref}.{key}")
+            onset = _day(res[key], ref, key)
             break
     low = _ext(res, "low-trauma")
     low = hit.low_trauma if low is None else low
@@ -168,26 +168,63 @@ def condition_facts(res: dict, ref: str) -> list:
     return [["fracture", hit.value, onset, low, level, ref, code]]
 
 
-def medication_facts(res: dict, ref: str) -> list:
+def medication_facts(res: dict, ref: str, medicines: dict[str, dict] | None = None) -> list:
+    """A MedicationStatement's medicine class and dates.  The medicine is its
+    ``medicationCodeableConcept``, or the ``code`` of the Medication its ``medicationReference``
+    names: one ``contained`` in the statement (``#id``), or one of ``medicines`` (the Bundle's or the
+    export's Medication resources by reference).  A reference found in neither gives a
+    ``medication_ref`` fact, resolved later (a bulk export's Medications may come after the
+    statement) or listed as not used by :func:`~prescribe.fhir.assemble.assemble`."""
     if res.get("status") in _STATUS_NOT_USED:
         return _not_used(ref, f"status {res.get('status')}")
     concept = res.get("medicationCodeableConcept")
+    element = "medicationCodeableConcept"
     if concept is None and "medicationReference" in res:
-        return _not_used(ref, "medicationReference (only medicationCodeableConcept is read)")
-    hit, unused = _mapped(_codings(concept), C.find_medicine, ref, f"{ref}.medicationCodeableConcept.coding")
+        name = medication_reference(res)
+        if name is None:
+            link = res["medicationReference"]
+            raise InputError.single(f"{ref}.medicationReference.reference",
+                                    link.get("reference") if isinstance(link, dict) else link,
+                                    "a reference to a Medication ('#id' of a contained one, or 'Medication/id')")
+        medication = _referenced_medication(res, name, medicines)
+        if medication is None:
+            return [["medication_ref", name, res, ref]]
+        concept, element = medication.get("code"), f"medicationReference ({ref_of(medication)}.code)"
+        hit, unused = _mapped(_codings(concept), C.find_medicine, ref, f"{ref}.{element}.coding")
+    else:
+        hit, unused = _mapped(_codings(concept), C.find_medicine, ref, f"{ref}.medicationCodeableConcept.coding")
     if hit is None:
         return unused
     period = res.get("effectivePeriod") or {}
-    start = _day(period.get("start"), f"{ref}.effectivePeriod.start")
-    end = _day(period.get("end"), f"{ref}.effectivePeriod.end")
+    start = _day(period.get("start"), ref, "effectivePeriod.start")
+    end = _day(period.get("end"), ref, "effectivePeriod.end")
     if res.get("effectiveDateTime") is not None and end is None:
-        end = _day(res["effectiveDateTime"], f"{ref}.effectiveDateTime")
+        end = _day(res["effectiveDateTime"], ref, "effectiveDateTime")
     code = f"{hit.system}|{hit.code}"
     if hit.value == "glucocorticoid":
         dose = _daily_dose_mg(res, ref)
         if dose is not None:
-            return [["glucocorticoid", round(dose * (hit.factor or 1.0), 3), start, end, ref, code]]
-    return [["medication", hit.value, start, end, ref, code]]
+            return [["glucocorticoid", round(dose * (hit.factor or 1.0), 3), start, end, ref, code,
+                     f"{element}, dosage, effectivePeriod"]]
+    return [["medication", hit.value, start, end, ref, code, f"{element}, effectivePeriod"]]
+
+
+def medication_reference(res: dict) -> str | None:
+    """The Medication a MedicationStatement's ``medicationReference`` names, in normal form
+    (``#id`` for one contained in the statement, else ``Medication/id`` or a urn), or None."""
+    link = res.get("medicationReference")
+    target = link.get("reference") if isinstance(link, dict) else None
+    if not isinstance(target, str) or not target:
+        return None
+    return target if target.startswith("#") else normal_reference(target)
+
+
+def _referenced_medication(res: dict, name: str, medicines: dict[str, dict] | None) -> dict | None:
+    """The Medication ``name`` is: one contained in the statement, else one of ``medicines``."""
+    if name.startswith("#"):
+        return next((inner for inner in res.get("contained") or [] if isinstance(inner, dict)
+                     and inner.get("resourceType") == "Medication" and inner.get("id") == name[1:]), None)
+    return (medicines or {}).get(name)
 
 
 def _daily_dose_mg(res: dict, ref: str) -> float | None:
@@ -233,10 +270,10 @@ def procedure_facts(res: dict, ref: str) -> list:
             side = text
     when = None
     if res.get("performedDateTime") is not None:
-        when = _day(res["performedDateTime"], f"{ref}.performedDateTime")
+        when = _day(res["performedDateTime"], ref, "performedDateTime")
     elif isinstance(res.get("performedPeriod"), dict):
         p = res["performedPeriod"]
-        when = _day(p.get("end") or p.get("start"), f"{ref}.performedPeriod")
+        when = _day(p.get("end") or p.get("start"), ref, "performedPeriod")
     cleared = bool(_ext(res, "surgeon-cleared-impact"))
     return [["surgery", hit.value, side, when, cleared, ref, f"{hit.system}|{hit.code}"]]
 
@@ -256,10 +293,16 @@ def patient_facts(res: dict, ref: str, with_name: bool) -> list:
         first = next((i for i in res.get("identifier") or [] if isinstance(i, dict) and i.get("value")), None)
         pid = (first["value"], "identifier[0].value") if first else (res.get("id"), "id") if res.get("id") else None
     if pid:
+        if not isinstance(pid[0], str):
+            element = "identifier.value" if pid[1] == "identifier (prescribe)" else pid[1]
+            raise InputError.single(f"{ref}.{element} (patient_id)", pid[0], "text (a FHIR string)")
         facts.append(["patient_id", pid[0], ref, pid[1]])
     if "birthDate" in res:
+        parse_fhir_date(res["birthDate"], f"{ref}.birthDate (age_years)")
         facts.append(["birthDate", res["birthDate"], ref])
     if "gender" in res:
+        if not isinstance(res["gender"], str):
+            raise InputError.single(f"{ref}.gender (sex)", res["gender"], "'female' or 'male'")
         facts.append(["gender", res["gender"], ref])
     if with_name:
         for name in res.get("name") or []:
@@ -271,8 +314,12 @@ def patient_facts(res: dict, ref: str, with_name: bool) -> list:
     return facts
 
 
-def resource_facts(res: Any, where: str, with_name: bool = False) -> list:
-    """The facts of one resource (see the module's docstring); bad input raises InputError."""
+def resource_facts(res: Any, where: str, with_name: bool = False, medicines: dict[str, dict] | None = None) -> list:
+    """The facts of one resource (see the module's docstring); bad input raises InputError.
+
+    ``medicines``: the Medication resources a MedicationStatement's reference may name (by
+    ``Medication/id`` and by fullUrl).  A Medication itself gives no facts: it is read through the
+    statements that name it."""
     check_version(res, where)
     rtype = res["resourceType"]
     ref = ref_of(res)
@@ -283,7 +330,9 @@ def resource_facts(res: Any, where: str, with_name: bool = False) -> list:
     if rtype == "Condition":
         return condition_facts(res, ref)
     if rtype == "MedicationStatement":
-        return medication_facts(res, ref)
+        return medication_facts(res, ref, medicines)
     if rtype == "Procedure":
         return procedure_facts(res, ref)
+    if rtype == "Medication":
+        return []
     return _not_used(ref, f"{rtype} is not read")

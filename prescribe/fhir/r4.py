@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import re
 from datetime import date
+from functools import lru_cache
 from typing import Any
 
 from ..errors import InputError
@@ -47,25 +48,47 @@ def r4_resource_types() -> frozenset[str]:
 # Dates
 # ---------------------------------------------------------------------------
 
+_DATE_ALLOWED = "a FHIR date or dateTime (YYYY, YYYY-MM, YYYY-MM-DD or YYYY-MM-DDThh:mm:ss+zz:zz)"
+
+
 def parse_fhir_date(text: Any, where: str) -> tuple[date, bool]:
     """A FHIR date or dateTime as a day; ``True`` when only a year or a month was given
     (the middle of that period is taken)."""
-    if not isinstance(text, str):
-        raise InputError.single(where, text, "a FHIR date or dateTime (YYYY, YYYY-MM, YYYY-MM-DD or "
-                                "YYYY-MM-DDThh:mm:ss+zz:zz)")
+    day = _fhir_day(text) if isinstance(text, str) else None
+    if day is None:
+        raise InputError.single(where, text, _DATE_ALLOWED)
+    return day
+
+
+def fhir_day_text(text: Any, ref: str, element: str) -> str:
+    """:func:`parse_fhir_date`'s day as ``YYYY-MM-DD`` (the form the facts carry); bad input names
+    ``ref.element``."""
+    day = _fhir_day(text) if isinstance(text, str) else None
+    if day is None:
+        raise InputError.single(f"{ref}.{element}", text, _DATE_ALLOWED)
+    return _iso(day[0])
+
+
+@lru_cache(maxsize=4096)
+def _fhir_day(text: str) -> tuple[date, bool] | None:
+    """The day of a date text, or None when it is not one (cached: a caseload repeats its dates)."""
     m = _DATE.match(text)
+    if not m:
+        return None
+    year = int(m.group(1))
     try:
-        if not m:
-            raise ValueError
-        year = int(m.group(1))
         if m.group(5):
             return date(year, int(m.group(3)), int(m.group(5))), False
         if m.group(3):
             return date(year, int(m.group(3)), 15), True
         return date(year, 7, 1), True
     except ValueError:
-        raise InputError.single(where, text, "a FHIR date or dateTime (YYYY, YYYY-MM, YYYY-MM-DD or "
-                                "YYYY-MM-DDThh:mm:ss+zz:zz)") from None
+        return None
+
+
+@lru_cache(maxsize=4096)
+def _iso(day: date) -> str:
+    return day.isoformat()
 
 
 def months_between(earlier: date, later: date) -> float:
@@ -103,6 +126,17 @@ def subject_key(resource: dict) -> str | None:
     return normal_reference(subject.get("reference")) if isinstance(subject, dict) else None
 
 
+@lru_cache(maxsize=1)
+def _other_elements() -> dict[str, dict[str, str]]:
+    """Resource type -> {element: the release it belongs to}, for elements not in R4."""
+    out: dict[str, dict[str, str]] = {}
+    for (kind, name), version in C.other_versions().items():
+        if kind == "element":
+            rtype, _, element = name.partition(".")
+            out.setdefault(rtype, {})[element] = version
+    return out
+
+
 def check_version(resource: Any, where: str) -> None:
     """Refuse what is not an R4 resource: not a JSON object with a resourceType, a declared
     fhirVersion other than 4.0.x, a type or an element only found in another release."""
@@ -110,21 +144,21 @@ def check_version(resource: Any, where: str) -> None:
         raise InputError.single(f"{where}.resourceType", resource if not isinstance(resource, dict) else None,
                                 "a FHIR resource: a JSON object with a resourceType (this is not FHIR)")
     rtype = resource["resourceType"]
-    for key, holder in (("fhirVersion", resource), ("meta.fhirVersion", resource.get("meta") or {})):
-        declared = holder.get("fhirVersion") if isinstance(holder, dict) else None
+    meta = resource.get("meta")
+    for key, holder in (("fhirVersion", resource), ("meta.fhirVersion", meta if isinstance(meta, dict) else {})):
+        declared = holder.get("fhirVersion")
         if declared is not None and not str(declared).startswith("4.0"):
             raise InputError.single(f"{where} {rtype}.{key}", declared, f"FHIR R4 ({FHIR_VERSION}); this file "
                                     "is from another FHIR release")
-    versions = C.other_versions()
-    other = versions.get(("resource", rtype))
+    other = C.other_versions().get(("resource", rtype))
     if other:
         raise InputError.single(f"{where}.resourceType", rtype, f"a resource type of FHIR R4 ({FHIR_VERSION}); "
                                 f"{rtype} is a FHIR {other} resource: the file is from another FHIR release")
-    for key in resource:
-        other = versions.get(("element", f"{rtype}.{key}"))
-        if other:
-            raise InputError.single(f"{where} {rtype}.{key}", resource[key], f"FHIR R4 ({FHIR_VERSION}) elements; "
-                                    f"{rtype}.{key} is FHIR {other}: the file is from another FHIR release")
+    foreign = _other_elements().get(rtype)
+    if foreign and not foreign.keys().isdisjoint(resource):
+        key = next(k for k in resource if k in foreign)
+        raise InputError.single(f"{where} {rtype}.{key}", resource[key], f"FHIR R4 ({FHIR_VERSION}) elements; "
+                                f"{rtype}.{key} is FHIR {foreign[key]}: the file is from another FHIR release")
     if rtype not in r4_resource_types():
         raise InputError.single(f"{where}.resourceType", rtype, f"a resource type of FHIR R4 ({FHIR_VERSION})")
 

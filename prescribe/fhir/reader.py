@@ -18,7 +18,7 @@ from typing import Any
 
 from ..errors import InputError
 from .assemble import REQUIRED_IN_FHIR, ImportResult, assemble
-from .facts import READ_TYPES, resource_facts
+from .facts import READ_TYPES, medication_reference, resource_facts
 from .r4 import (DAYS_PER_MONTH, FHIR_VERSION, age_on, check_version, months_between, normal_reference,
                  parse_fhir_date, r4_resource_types, ref_of, subject_key)
 
@@ -64,15 +64,30 @@ def read_bundle(bundle: Any, as_of: date | None = None, with_name: bool = False,
         aliases.add(f"Patient/{r.get('id')}")
         if url:
             aliases.add(url if url.startswith("urn:") else normal_reference(url))
+    # The Medications a statement's medicationReference may name: by Medication/id and by fullUrl.
+    medicines: dict[str, dict] = {}
+    for _w, r, url in entries:
+        if r.get("resourceType") == "Medication":
+            medicines[ref_of(r)] = r
+            if url:
+                medicines[url if url.startswith("urn:") else normal_reference(url)] = r
+    named: set[int] = set()
     facts: list = []
     try:
         for where, res, _url in entries:
-            one = resource_facts(res, where, with_name)
+            one = resource_facts(res, where, with_name, medicines)
             key = subject_key(res)
             if res.get("resourceType") in READ_TYPES[1:] and key is not None and aliases and key not in aliases:
                 facts.append(["not_used", ref_of(res), f"about another person ({key})"])
                 continue
+            if res.get("resourceType") == "MedicationStatement":
+                found = medicines.get(medication_reference(res) or "")
+                if found is not None:
+                    named.add(id(found))
             facts.extend(one)
     except InputError as err:
         raise InputError(err.problems, source) from None
+    for _w, r, _url in entries:
+        if r.get("resourceType") == "Medication" and id(r) not in named:
+            facts.append(["not_used", ref_of(r), "no MedicationStatement of the person names this Medication"])
     return assemble(facts, as_of, source)
