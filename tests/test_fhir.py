@@ -132,6 +132,33 @@ def test_vertebral_level_from_icd10cm_and_fragility_from_m80():
     assert any("Condition/c" in n and "confirm" in n for n in result.notes)
 
 
+def test_falls_and_physical_tests_by_their_loinc_codes():
+    """LOINC term pages (loinc.org, LOINC 2.80): 75856-5 Number of falls in the past 12 months
+    [Reported] (example unit /a); 89423-8 Time to rise from chair, walk 10 feet and back, and return to
+    sitting [TUG] (s), in panel 89422-0; 66247-8 Sit to stand frequency in 30 seconds. No LOINC term
+    for a tandem stance hold time was found: the local code stays (docs/fhir.md)."""
+    b = bundle(obs("f", "75856-5", 2, unit="/a"), obs("tug", "89423-8", 13.5, unit="s"),
+               obs("cs", "66247-8", 9, unit="{#}/(30.s)"),
+               obs("ts", "tandem-stance", 4.5, unit="s", system=C.LOCAL))
+    result = read_bundle(b, as_of=AS_OF)
+    r = result.record
+    assert (r.falls_past_year, r.timed_up_and_go_s, r.chair_stand_30s, r.tandem_stance_s) == (2, 13.5, 9, 4.5)
+    codes = {p["field"]: p.get("code") for p in result.provenance}
+    assert codes["falls_past_year"] == "http://loinc.org|75856-5"
+    assert codes["timed_up_and_go_s"] == "http://loinc.org|89423-8"
+    assert codes["chair_stand_30s"] == "http://loinc.org|66247-8"
+    # The modified test with the arms (LOINC 93125-3) is another measure: not read as the chair stand.
+    other = read_bundle(bundle(obs("m", "93125-3", 12)), as_of=AS_OF)
+    assert other.record.chair_stand_30s is None and [n["resource"] for n in other.not_used] == ["Observation/m"]
+    # Earlier exports carried local codes: still read.
+    old = read_bundle(bundle(obs("f", "falls-past-year", 1, system=C.LOCAL)), as_of=AS_OF)
+    assert old.record.falls_past_year == 1
+    # The export writes the LOINC codes.
+    assert [C.export_code("observation", f, f).code for f in ("falls_past_year", "timed_up_and_go_s",
+                                                               "chair_stand_30s", "tandem_stance_s")] == \
+        ["75856-5", "89423-8", "66247-8", "tandem-stance"]
+
+
 def _statement(sid, reference, **more):
     return {"resourceType": "MedicationStatement", "id": sid, "status": "active", "subject": {"reference": PID},
             "medicationReference": {"reference": reference}, "effectivePeriod": {"start": "2024-12-05"}, **more}
