@@ -273,6 +273,15 @@ def test_a_referenced_medication_in_a_code_system_not_read_names_the_statements_
         in broken["problem"] and "http://example.invalid/product|123" in broken["problem"]
 
 
+def test_a_byte_order_mark_opening_a_file_is_not_a_broken_line(tmp_path):
+    """A UTF-8 byte-order mark (Unicode 15.0, section 23.8) some Windows tools write at a file's start."""
+    for i in (1, 2):
+        text = "".join(json.dumps(r) + "\n" for r in _person_lines(i))
+        (tmp_path / f"part{i}.ndjson").write_bytes(b"\xef\xbb\xbf" + text.encode("utf-8"))
+    summary = bulk_to_caseload(tmp_path, tmp_path / "c.csv", as_of=AS_OF)
+    assert summary.broken_count == 0 and summary.written == 2
+
+
 def test_ten_megabytes_of_ndjson_with_one_broken_line(tmp_path):
     src = tmp_path / "big.ndjson"
     n = 0

@@ -18,6 +18,7 @@ not read) is named by its file and number and the rest is read.
 
 from __future__ import annotations
 
+import codecs
 import gc
 import json
 import marshal
@@ -106,14 +107,19 @@ class _Progress:
 
 
 def _lines(files, progress: _Progress) -> Iterator[tuple[str, int, str | None, bytes]]:
+    """Each file's lines with its name and number; a UTF-8 byte-order mark opening a file is dropped."""
     for path, expected in files:
         name = path.name
         with open(path, "rb") as fh:
+            first = fh.readline()
+            progress.add(len(first))
+            if first:
+                yield name, 1, expected, first.removeprefix(codecs.BOM_UTF8)
             if not progress.on:
-                for number, line in enumerate(fh, start=1):
+                for number, line in enumerate(fh, start=2):
                     yield name, number, expected, line
                 continue
-            for number, line in enumerate(fh, start=1):
+            for number, line in enumerate(fh, start=2):
                 progress.add(len(line))
                 yield name, number, expected, line
 
@@ -146,10 +152,10 @@ def bulk_to_caseload(path: str | Path, out: str | Path, as_of: date | None = Non
                         continue
                     chunk.append((person, facts, fields))
                     if len(chunk) >= chunk_people:
-                        _write_chunk(writer, chunk, summary, as_of)
+                        _write_chunk(writer, chunk, summary)
                         chunk = []
                 if chunk:
-                    _write_chunk(writer, chunk, summary, as_of)
+                    _write_chunk(writer, chunk, summary)
         finally:
             db.close()
     return summary
@@ -232,7 +238,7 @@ def _store(db: sqlite3.Connection, pending: dict[str, list], seq: int) -> None:
     pending.clear()
 
 
-def _write_chunk(writer, chunk: list[tuple[str, list, Fields]], summary: BulkSummary, as_of: date) -> None:
+def _write_chunk(writer, chunk: list[tuple[str, list, Fields]], summary: BulkSummary) -> None:
     """Validate a chunk of people's fields a column at a time and write the valid rows in order;
     a row with a problem is validated again as one record (the problem names its resource) and
     left out."""
