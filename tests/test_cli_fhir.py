@@ -9,8 +9,6 @@ from __future__ import annotations
 import base64
 import json
 
-from prescribe.fhir import codes as C
-
 from test_fhir import PID, bundle, obs
 
 

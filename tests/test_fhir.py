@@ -1,4 +1,4 @@
-"""FHIR R4 exchange: import of one Bundle, bulk NDJSON to the caseload CSV, export validated as R4.
+"""FHIR R4 exchange: import of one Bundle and export validated as R4 (bulk NDJSON: tests/test_fhir_bulk.py).
 
 Sources named beside the checks:
 - HL7 FHIR R4, version 4.0.1 (2019): the resources, their required elements and value sets
@@ -6,7 +6,9 @@ Sources named beside the checks:
 - LOINC codes: 38267-1 (DXA lumbar spine T-score), 38264-8 (DXA hip T-score), 85394-5 (DXA lumbar
   spine Z-score), as listed with their long common names in the OHDSI THEMIS convention table
   "negative value_as_number" (ratified 2018; LOINC table version not stated there); 29463-7 body
-  weight and 8302-2 body height from the FHIR R4 Vital Signs profile; 30525-0 (age) from memory.
+  weight and 8302-2 body height from the FHIR R4 Vital Signs profile; 30525-0 (age) from memory;
+  75856-5 (falls in the past 12 months), 89423-8 (TUG) and 66247-8 (30-s sit to stand) from their
+  LOINC term pages (loinc.org, LOINC 2.80).
 - ICD-10 categories (S72.0 neck of femur, S32.0 lumbar vertebra) and ATC codes (M05BX04 denosumab)
   from memory, as marked in prescribe/data/fhir.
 Every person here is invented.
@@ -15,7 +17,6 @@ Every person here is invented.
 from __future__ import annotations
 
 import copy
-import csv
 import json
 from datetime import date
 from functools import lru_cache
@@ -25,12 +26,10 @@ from hypothesis import HealthCheck, given, settings, strategies as st
 
 from prescribe.errors import InputError
 from prescribe.fhir import codes as C
-from prescribe.fhir.bulk import bulk_to_caseload
 from prescribe.fhir.reader import read_bundle
 from prescribe.fhir.writer import ExportInvalid, program_bundle, validate_r4
 from prescribe.records import (BONE_METASTASES, COGNITION_LEVELS, MEDICATION_CLASSES, SURGERY_PROCEDURES,
                                SURGERY_SIDES, parse_record)
-from prescribe.screening.batch_io import RECORD_COLUMNS, read_batch_csv
 
 from strategies import record_dicts
 
@@ -469,7 +468,7 @@ def _round_trip_plan():
 
 
 # ---------------------------------------------------------------------------
-# Bulk: NDJSON -> caseload CSV
+# People for the bulk tests (tests/test_fhir_bulk.py, tests/test_cli_fhir.py)
 # ---------------------------------------------------------------------------
 
 def _person_lines(i: int) -> list[dict]:
