@@ -104,10 +104,12 @@ def assemble_fields(facts: Iterable[list], as_of: date | None = None, source: st
     scalars: dict[str, list] = {}
     for f in kinds.get("scalar", ()):
         scalars.setdefault(f[1], []).append(f)
-    ids, births, genders, names = (kinds.get(k, []) for k in ("patient_id", "birthDate", "gender", "name"))
-    fractures, conditions, meds, glucos, surgeries, cancers, metastases = (
-        kinds.get(k, []) for k in ("fracture", "condition", "medication", "glucocorticoid", "surgery", "cancer",
-                                   "metastases"))
+    none: list = []
+    ids, births, genders, names = (kinds.get("patient_id", none), kinds.get("birthDate", none),
+                                   kinds.get("gender", none), kinds.get("name", none))
+    fractures, conditions, meds, glucos = (kinds.get("fracture", none), kinds.get("condition", none),
+                                           kinds.get("medication", none), kinds.get("glucocorticoid", none))
+    surgeries, cancers, metastases = kinds.get("surgery", none), kinds.get("cancer", none), kinds.get("metastases", none)
     not_used = [{"resource": f[1], "why": f[2]} for f in kinds.get("not_used", ())]
     not_used += [{"resource": f[3], "why": f"medicationReference {f[1]}: no Medication with that id (contained in "
                                            "the statement, in the Bundle or in the export)"}

@@ -253,7 +253,7 @@ def _write_chunk(writer, chunk: list[tuple[str, list, Fields]], summary: BulkSum
         data = chunk[i][2].data
         row = dict_to_row(data)
         # The record model's own rule (PatientRecord.version): a version-2 field given makes it version 2.
-        if any(name in data for name in RECORD_V2_FIELDS):
+        if not data.keys().isdisjoint(RECORD_V2_FIELDS):
             row["record_version"] = "2"
         rows.append(row)
     columns = zip(*map(itemgetter(*RECORD_COLUMNS), rows)) if rows else [()] * len(RECORD_COLUMNS)

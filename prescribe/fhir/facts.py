@@ -50,14 +50,15 @@ def _not_used(ref: str, why: str) -> list:
     return [["not_used", ref, why]]
 
 
-def _mapped(codings: list[tuple[str, str]], find, ref: str, where: str) -> tuple[C.Mapping | None, list]:
+def _mapped(codings: list[tuple[str, str]], find, ref: str, element: str) -> tuple[C.Mapping | None, list]:
     """The mapping line of the first coding ``find`` knows, or ``(None, facts saying it was not
-    used)``; bad input when every coding is of a code system no mapping reads."""
+    used)``; bad input (naming ``ref.element.coding``) when every coding is of a code system no
+    mapping reads."""
     for system, code in codings:
         hit = find(system, code)
         if hit is not None:
             return hit, []
-    _check_systems(codings, where)
+    _check_systems(codings, f"{ref}.{element}.coding")
     return None, _not_used(ref, "code not in the mapping: " + (", ".join(f"{s}|{c}" for s, c in codings) or "no code"))
 
 
@@ -90,9 +91,12 @@ def _number(value: Any, where: str) -> float:
     return value
 
 
+def _observation_line(system: str, code: str) -> C.Mapping | None:
+    return C.observation_codes().get((system, code))
+
+
 def observation_facts(res: dict, ref: str) -> list:
-    table = C.observation_codes()
-    hit, unused = _mapped(_codings(res.get("code")), lambda s, c: table.get((s, c)), ref, f"{ref}.code.coding")
+    hit, unused = _mapped(_codings(res.get("code")), _observation_line, ref, "code")
     if hit is None:
         return unused
     if res.get("status") in _STATUS_NOT_USED:
@@ -135,7 +139,7 @@ def observation_facts(res: dict, ref: str) -> list:
 
 
 def condition_facts(res: dict, ref: str) -> list:
-    hit, unused = _mapped(_codings(res.get("code")), C.find_condition, ref, f"{ref}.code.coding")
+    hit, unused = _mapped(_codings(res.get("code")), C.find_condition, ref, "code")
     if hit is None:
         return unused
     verification = {c for _, c in _codings(res.get("verificationStatus"))}
@@ -190,9 +194,7 @@ def medication_facts(res: dict, ref: str, medicines: dict[str, dict] | None = No
         if medication is None:
             return [["medication_ref", name, res, ref]]
         concept, element = medication.get("code"), f"medicationReference ({ref_of(medication)}.code)"
-        hit, unused = _mapped(_codings(concept), C.find_medicine, ref, f"{ref}.{element}.coding")
-    else:
-        hit, unused = _mapped(_codings(concept), C.find_medicine, ref, f"{ref}.medicationCodeableConcept.coding")
+    hit, unused = _mapped(_codings(concept), C.find_medicine, ref, element)
     if hit is None:
         return unused
     period = res.get("effectivePeriod") or {}
@@ -256,8 +258,7 @@ def procedure_facts(res: dict, ref: str) -> list:
     if res.get("status") not in (None, "completed"):
         return _not_used(ref, f"status {res.get('status')}")
     table = C.procedure_codes()
-    hit, unused = _mapped(_codings(res.get("code")), lambda s, c: _procedure(table.get((s, c))), ref,
-                          f"{ref}.code.coding")
+    hit, unused = _mapped(_codings(res.get("code")), lambda s, c: _procedure(table.get((s, c))), ref, "code")
     if hit is None:
         return unused
     side = "none"

@@ -114,6 +114,8 @@ def normal_reference(ref: Any) -> str | None:
         return None
     if ref.startswith("urn:"):
         return ref
+    if ref.count("/") == 1 and not ref.endswith("/"):      # already "Type/id"
+        return ref
     parts = ref.split("/_history/")[0].rstrip("/").split("/")
     return "/".join(parts[-2:]) if len(parts) >= 2 else ref
 
@@ -126,40 +128,49 @@ def subject_key(resource: dict) -> str | None:
     return normal_reference(subject.get("reference")) if isinstance(subject, dict) else None
 
 
-@lru_cache(maxsize=1)
-def _other_elements() -> dict[str, dict[str, str]]:
-    """Resource type -> {element: the release it belongs to}, for elements not in R4."""
-    out: dict[str, dict[str, str]] = {}
-    for (kind, name), version in C.other_versions().items():
-        if kind == "element":
-            rtype, _, element = name.partition(".")
-            out.setdefault(rtype, {})[element] = version
-    return out
+_TABLES: tuple[frozenset[str], dict[str, dict[str, str]]] | None = None
+
+
+def _tables() -> tuple[frozenset[str], dict[str, dict[str, str]]]:
+    """The R4 resource types not listed as another release's, and per resource type {element:
+    the release it belongs to} for elements not in R4 (other_versions.csv), worked out once."""
+    global _TABLES
+    if _TABLES is None:
+        elements: dict[str, dict[str, str]] = {}
+        for (kind, name), version in C.other_versions().items():
+            if kind == "element":
+                rtype, _, element = name.partition(".")
+                elements.setdefault(rtype, {})[element] = version
+        other_types = {name for (kind, name) in C.other_versions() if kind == "resource"}
+        _TABLES = frozenset(r4_resource_types() - other_types), elements
+    return _TABLES
 
 
 def check_version(resource: Any, where: str) -> None:
     """Refuse what is not an R4 resource: not a JSON object with a resourceType, a declared
     fhirVersion other than 4.0.x, a type or an element only found in another release."""
-    if not isinstance(resource, dict) or not isinstance(resource.get("resourceType"), str):
+    rtype = resource.get("resourceType") if isinstance(resource, dict) else None
+    if not isinstance(rtype, str):
         raise InputError.single(f"{where}.resourceType", resource if not isinstance(resource, dict) else None,
                                 "a FHIR resource: a JSON object with a resourceType (this is not FHIR)")
-    rtype = resource["resourceType"]
-    meta = resource.get("meta")
-    for key, holder in (("fhirVersion", resource), ("meta.fhirVersion", meta if isinstance(meta, dict) else {})):
-        declared = holder.get("fhirVersion")
-        if declared is not None and not str(declared).startswith("4.0"):
-            raise InputError.single(f"{where} {rtype}.{key}", declared, f"FHIR R4 ({FHIR_VERSION}); this file "
-                                    "is from another FHIR release")
+    if "fhirVersion" in resource or "meta" in resource:
+        meta = resource.get("meta")
+        for key, holder in (("fhirVersion", resource), ("meta.fhirVersion", meta if isinstance(meta, dict) else {})):
+            declared = holder.get("fhirVersion")
+            if declared is not None and not str(declared).startswith("4.0"):
+                raise InputError.single(f"{where} {rtype}.{key}", declared, f"FHIR R4 ({FHIR_VERSION}); this file "
+                                        "is from another FHIR release")
+    r4_types, other_elements = _TABLES or _tables()
+    foreign = other_elements.get(rtype)
+    if rtype in r4_types and not foreign:
+        return
     other = C.other_versions().get(("resource", rtype))
     if other:
         raise InputError.single(f"{where}.resourceType", rtype, f"a resource type of FHIR R4 ({FHIR_VERSION}); "
                                 f"{rtype} is a FHIR {other} resource: the file is from another FHIR release")
-    foreign = _other_elements().get(rtype)
     if foreign and not foreign.keys().isdisjoint(resource):
         key = next(k for k in resource if k in foreign)
         raise InputError.single(f"{where} {rtype}.{key}", resource[key], f"FHIR R4 ({FHIR_VERSION}) elements; "
                                 f"{rtype}.{key} is FHIR {foreign[key]}: the file is from another FHIR release")
-    if rtype not in r4_resource_types():
+    if rtype not in r4_types:
         raise InputError.single(f"{where}.resourceType", rtype, f"a resource type of FHIR R4 ({FHIR_VERSION})")
-
-
