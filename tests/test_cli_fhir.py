@@ -9,9 +9,7 @@ from __future__ import annotations
 import base64
 import json
 
-from prescribe.fhir import codes as C
-
-from test_fhir import bundle, obs
+from test_fhir import PID, bundle, obs
 
 
 def _write(tmp_path, name, data) -> str:
@@ -66,10 +64,10 @@ def test_bulk_import_writes_the_caseload_that_screen_batch_reads(cli, tmp_path):
     src = _write(tmp_path, "export.ndjson", "\n".join(lines) + "\n")
     out = tmp_path / "caseload.csv"
     r = cli("fhir", "import", src, "--out", str(out), "--as-of", "2026-12-05")
-    assert r.returncode == 0, r.stderr
+    assert r.returncode == 2, r.stderr          # bad input named; everyone else written
     summary = json.loads(r.stdout)
     assert summary["written"] == 5 and summary["broken_lines"][0]["line"] == 4
-    assert "export.ndjson line 4 not read" in r.stderr
+    assert "export.ndjson line 4 not read" in r.stderr and "5 written" in r.stderr
     screened = cli("screen", "--batch", str(out), "--out", str(tmp_path / "results.csv"))
     assert screened.returncode == 0, screened.stderr
     r = cli("fhir", "import", src, "--out", str(tmp_path / "x.json"))
@@ -105,3 +103,51 @@ def test_export_of_a_saved_program_with_the_handout(cli, tmp_path):
         record.patient_id, record.age_years, record.body_mass_kg)
     r = cli("fhir", "export", "NOBODY-1", "--db", db)
     assert r.returncode != 0 and "NOBODY-1" in r.stderr
+
+
+def test_each_bad_bundle_exits_2_naming_the_problem(cli, tmp_path):
+    """The bad-input cases of a Bundle, through the entry point (HL7 FHIR R4 4.0.1)."""
+    cases = {
+        # not FHIR: no resourceType
+        "notfhir.json": ({"entry": [{"resource": {"id": "p1"}}]}, ["resourceType", "not FHIR"]),
+        # the wrong FHIR version: an R5 resource type (MedicationUsage replaced MedicationStatement)
+        "r5type.json": ({**bundle(), "entry": bundle()["entry"] + [{"resource": {
+            "resourceType": "MedicationUsage", "id": "u", "status": "recorded"}}]},
+            ["MedicationUsage is a FHIR R5 resource", "R4 (4.0.1)"]),
+        # a resource of the wrong type: a lone Patient instead of a Bundle
+        "patient.json": ({"resourceType": "Patient", "id": "p1", "gender": "female"},
+                         ["resourceType must be 'Bundle'", "'Patient'"]),
+        # a code system no mapping reads (UK Read v2, from memory)
+        "readv2.json": (bundle({"resourceType": "Condition", "id": "r", "subject": {"reference": PID},
+                                "code": {"coding": [{"system": "http://read.info/readv2", "code": "N331."}]}}),
+                        ["Condition/r.code.coding", "http://read.info/readv2|N331."]),
+        # two Patient resources for the person that disagree on the birth date
+        "twobirths.json": (bundle({"resourceType": "Patient", "id": "p1", "identifier": [{"value": "OAK-101"}],
+                                   "birthDate": "1952-03-09", "gender": "female"}),
+                           ["Patient.birthDate (age_years)", "1951-03-09", "1952-03-09"]),
+    }
+    for name, (data, words) in cases.items():
+        r = cli("fhir", "import", _write(tmp_path, name, data), "--as-of", "2026-12-05")
+        assert r.returncode == 2, (name, r.stderr)
+        assert all(w in r.stderr for w in words), (name, r.stderr)
+        assert "Traceback" not in r.stderr and r.stdout == "", name
+
+
+def test_ten_megabytes_of_ndjson_with_one_broken_line_exits_2_naming_it(cli, tmp_path):
+    from test_fhir import _person_lines
+    src = tmp_path / "big.ndjson"
+    people = 0
+    with open(src, "w") as fh:
+        while fh.tell() < 10 * 1024 * 1024:
+            people += 1
+            for r in _person_lines(people):
+                fh.write(json.dumps(r) + "\n")
+            if people == 1000:
+                fh.write('{"resourceType": "Observation", "id": "cut\n')    # line 4001
+    out = tmp_path / "caseload.csv"
+    r = cli("fhir", "import", str(src), "--out", str(out), "--as-of", "2026-12-05")
+    assert r.returncode == 2
+    assert "big.ndjson line 4001 not read" in r.stderr and f"{people} written" in r.stderr
+    summary = json.loads(r.stdout)
+    assert summary["broken_line_count"] == 1 and summary["written"] == people
+    assert sum(1 for _ in open(out, encoding="utf-8")) == people + 1      # the rest was read: header + everyone

@@ -1,4 +1,4 @@
-"""FHIR R4 exchange: import of one Bundle, bulk NDJSON to the caseload CSV, export validated as R4.
+"""FHIR R4 exchange: import of one Bundle and export validated as R4 (bulk NDJSON: tests/test_fhir_bulk.py).
 
 Sources named beside the checks:
 - HL7 FHIR R4, version 4.0.1 (2019): the resources, their required elements and value sets
@@ -6,7 +6,9 @@ Sources named beside the checks:
 - LOINC codes: 38267-1 (DXA lumbar spine T-score), 38264-8 (DXA hip T-score), 85394-5 (DXA lumbar
   spine Z-score), as listed with their long common names in the OHDSI THEMIS convention table
   "negative value_as_number" (ratified 2018; LOINC table version not stated there); 29463-7 body
-  weight and 8302-2 body height from the FHIR R4 Vital Signs profile; 30525-0 (age) from memory.
+  weight and 8302-2 body height from the FHIR R4 Vital Signs profile; 30525-0 (age) from memory;
+  75856-5 (falls in the past 12 months), 89423-8 (TUG) and 66247-8 (30-s sit to stand) from their
+  LOINC term pages (loinc.org, LOINC 2.80).
 - ICD-10 categories (S72.0 neck of femur, S32.0 lumbar vertebra) and ATC codes (M05BX04 denosumab)
   from memory, as marked in prescribe/data/fhir.
 Every person here is invented.
@@ -15,7 +17,6 @@ Every person here is invented.
 from __future__ import annotations
 
 import copy
-import csv
 import json
 from datetime import date
 from functools import lru_cache
@@ -25,12 +26,10 @@ from hypothesis import HealthCheck, given, settings, strategies as st
 
 from prescribe.errors import InputError
 from prescribe.fhir import codes as C
-from prescribe.fhir.bulk import bulk_to_caseload
 from prescribe.fhir.reader import read_bundle
 from prescribe.fhir.writer import ExportInvalid, program_bundle, validate_r4
 from prescribe.records import (BONE_METASTASES, COGNITION_LEVELS, MEDICATION_CLASSES, SURGERY_PROCEDURES,
                                SURGERY_SIDES, parse_record)
-from prescribe.screening.batch_io import RECORD_COLUMNS, read_batch_csv
 
 from strategies import record_dicts
 
@@ -130,6 +129,84 @@ def test_vertebral_level_from_icd10cm_and_fragility_from_m80():
     assert got == [("vertebra", "", True), ("vertebra", "L1", True)]
     # S32.010A says nothing of the mechanism: taken as low trauma, with a note to confirm.
     assert any("Condition/c" in n and "confirm" in n for n in result.notes)
+
+
+def test_falls_and_physical_tests_by_their_loinc_codes():
+    """LOINC term pages (loinc.org, LOINC 2.80): 75856-5 Number of falls in the past 12 months
+    [Reported] (example unit /a); 89423-8 Time to rise from chair, walk 10 feet and back, and return to
+    sitting [TUG] (s), in panel 89422-0; 66247-8 Sit to stand frequency in 30 seconds. No LOINC term
+    for a tandem stance hold time was found: the local code stays (docs/fhir.md)."""
+    b = bundle(obs("f", "75856-5", 2, unit="/a"), obs("tug", "89423-8", 13.5, unit="s"),
+               obs("cs", "66247-8", 9, unit="{#}/(30.s)"),
+               obs("ts", "tandem-stance", 4.5, unit="s", system=C.LOCAL))
+    result = read_bundle(b, as_of=AS_OF)
+    r = result.record
+    assert (r.falls_past_year, r.timed_up_and_go_s, r.chair_stand_30s, r.tandem_stance_s) == (2, 13.5, 9, 4.5)
+    codes = {p["field"]: p.get("code") for p in result.provenance}
+    assert codes["falls_past_year"] == "http://loinc.org|75856-5"
+    assert codes["timed_up_and_go_s"] == "http://loinc.org|89423-8"
+    assert codes["chair_stand_30s"] == "http://loinc.org|66247-8"
+    # The modified test with the arms (LOINC 93125-3) is another measure: not read as the chair stand.
+    other = read_bundle(bundle(obs("m", "93125-3", 12)), as_of=AS_OF)
+    assert other.record.chair_stand_30s is None and [n["resource"] for n in other.not_used] == ["Observation/m"]
+    # Earlier exports carried local codes: still read.
+    old = read_bundle(bundle(obs("f", "falls-past-year", 1, system=C.LOCAL)), as_of=AS_OF)
+    assert old.record.falls_past_year == 1
+    # The export writes the LOINC codes.
+    assert [C.export_code("observation", f, f).code for f in ("falls_past_year", "timed_up_and_go_s",
+                                                               "chair_stand_30s", "tandem_stance_s")] == \
+        ["75856-5", "89423-8", "66247-8", "tandem-stance"]
+
+
+def _statement(sid, reference, **more):
+    return {"resourceType": "MedicationStatement", "id": sid, "status": "active", "subject": {"reference": PID},
+            "medicationReference": {"reference": reference}, "effectivePeriod": {"start": "2024-12-05"}, **more}
+
+
+DENOSUMAB = {"coding": [{"system": C.ATC, "code": "M05BX04"}]}     # ATC M05BX04: denosumab (WHO ATC index)
+
+
+def test_medication_reference_to_a_contained_medication_or_one_in_the_bundle():
+    """FHIR R4 MedicationStatement.medication[x]: a Reference(Medication), '#id' for a contained one."""
+    b = bundle(_statement("m1", "#d", contained=[{"resourceType": "Medication", "id": "d", "code": DENOSUMAB}]),
+               _statement("m2", "Medication/bis"),
+               _statement("m3", "urn:uuid:6f1c3a52-0000-4000-8000-000000000001"),
+               {"resourceType": "Medication", "id": "bis",
+                "code": {"coding": [{"system": C.ATC, "code": "M05BA04"}]}})   # ATC M05BA: bisphosphonates
+    b["entry"].append({"fullUrl": "urn:uuid:6f1c3a52-0000-4000-8000-000000000001",
+                       "resource": {"resourceType": "Medication", "id": "x", "code": DENOSUMAB}})
+    result = read_bundle(b, as_of=AS_OF)
+    assert sorted(m.class_ for m in result.record.medications) == ["bisphosphonate", "denosumab", "denosumab"]
+    assert all(m.months_on == 24.0 for m in result.record.medications)
+    elements = {p["resource"]: p["element"] for p in result.provenance if p["field"].startswith("medications")}
+    assert elements["MedicationStatement/m1"] == "medicationReference (Medication/d.code), effectivePeriod"
+    assert elements["MedicationStatement/m2"] == "medicationReference (Medication/bis.code), effectivePeriod"
+    assert result.not_used == []
+
+
+def test_a_medication_reference_that_cannot_be_resolved_is_listed_as_not_used_naming_it():
+    b = bundle(_statement("m1", "Medication/elsewhere"), _statement("m2", "#missing"),
+               {"resourceType": "Medication", "id": "spare", "code": DENOSUMAB})
+    result = read_bundle(b, as_of=AS_OF)
+    assert result.record.medications == []
+    why = {n["resource"]: n["why"] for n in result.not_used}
+    assert "medicationReference Medication/elsewhere" in why["MedicationStatement/m1"]
+    assert "medicationReference #missing" in why["MedicationStatement/m2"]
+    assert "no MedicationStatement" in why["Medication/spare"]          # a Medication no statement names
+
+
+def test_a_referenced_medication_coded_only_in_a_system_not_read_is_bad_input():
+    b = bundle(_statement("m1", "Medication/p"),
+               {"resourceType": "Medication", "id": "p",       # a national product code system (invented)
+                "code": {"coding": [{"system": "http://example.invalid/product", "code": "123"}]}})
+    with pytest.raises(InputError) as exc:
+        read_bundle(b, as_of=AS_OF)
+    assert "MedicationStatement/m1.medicationReference (Medication/p.code).coding" in problem(exc)
+    assert "http://example.invalid/product|123" in problem(exc)
+    b = bundle({**_statement("m2", "x"), "medicationReference": {"display": "denosumab"}})
+    with pytest.raises(InputError) as exc:
+        read_bundle(b, as_of=AS_OF)
+    assert "MedicationStatement/m2.medicationReference.reference" in problem(exc)
 
 
 # ---------------------------------------------------------------------------
@@ -338,7 +415,7 @@ def v2_records(draw):
 def _comparable(record) -> dict:
     d = record.model_dump(mode="json")
     d.pop("record_version", None)
-    for key in ("fractures", "medications", "surgeries"):
+    for key in ("fractures", "medications", "surgeries", "conditions"):   # lists whose order says nothing
         d[key] = sorted(d.get(key) or [], key=lambda x: json.dumps(x, sort_keys=True))
     return d
 
@@ -391,7 +468,7 @@ def _round_trip_plan():
 
 
 # ---------------------------------------------------------------------------
-# Bulk: NDJSON -> caseload CSV
+# People for the bulk tests (tests/test_fhir_bulk.py, tests/test_cli_fhir.py)
 # ---------------------------------------------------------------------------
 
 def _person_lines(i: int) -> list[dict]:
@@ -402,57 +479,3 @@ def _person_lines(i: int) -> list[dict]:
             obs(f"w{i}", "29463-7", 55 + i % 30, unit="kg", subject=ref),
             obs(f"h{i}", "8302-2", 150 + i % 30, unit="cm", subject=ref),
             obs(f"t{i}", "38264-8", -1.0 - (i % 20) / 10, subject=ref)]  # LOINC 38264-8: DXA hip T-score
-
-
-def test_mixed_ndjson_becomes_the_caseload_csv_and_a_broken_line_is_named(tmp_path):
-    lines = [json.dumps(r) for i in range(1, 41) for r in _person_lines(i)]
-    lines.insert(17, '{"resourceType": "Observation", "id": "cut')        # a broken line: number 18
-    lines.append(json.dumps(obs("orphan", "38267-1", -2.0, subject="Patient/nobody")))
-    src = tmp_path / "export.ndjson"
-    src.write_text("\n".join(lines) + "\n")
-    out = tmp_path / "caseload.csv"
-    summary = bulk_to_caseload(src, out, as_of=AS_OF, chunk_lines=7, chunk_people=6)
-    assert summary.written == 40 and summary.broken_count == 1
-    assert summary.broken_lines[0]["line"] == 18 and summary.broken_lines[0]["file"] == "export.ndjson"
-    assert [p["person"] for p in summary.people_left_out] == ["Patient/nobody"]
-    with open(out, newline="") as fh:
-        header = next(csv.reader(fh))
-    assert tuple(header) == RECORD_COLUMNS
-    frame = read_batch_csv(out)  # the screening's own reader accepts it
-    assert len(frame) == 40
-    row = frame.set_index("patient_id").loc["OAK-0003"]
-    assert row["t_score_total_hip"] == pytest.approx(-1.3) and row["sex"] == "female"
-
-
-def test_a_bulk_folder_of_per_type_files(tmp_path):
-    by_type: dict[str, list[str]] = {}
-    for i in range(1, 11):
-        for r in _person_lines(i):
-            by_type.setdefault(r["resourceType"], []).append(json.dumps(r))
-    by_type["Observation"].append(json.dumps(_person_lines(99)[0]))  # a Patient in the Observation file
-    for rtype, lines in by_type.items():
-        (tmp_path / f"{rtype}.ndjson").write_text("\n".join(lines) + "\n")
-    out = tmp_path / "caseload.csv"
-    summary = bulk_to_caseload(tmp_path, out, as_of=AS_OF)
-    assert summary.written == 10
-    assert summary.broken_count == 1 and "'Observation'" in summary.broken_lines[0]["problem"]
-    assert summary.broken_lines[0]["file"] == "Observation.ndjson"
-
-
-def test_ten_megabytes_of_ndjson_with_one_broken_line(tmp_path):
-    src = tmp_path / "big.ndjson"
-    n = 0
-    with open(src, "w") as fh:
-        i = 0
-        while fh.tell() < 10 * 1024 * 1024:
-            i += 1
-            for r in _person_lines(i):
-                n += 1
-                fh.write(json.dumps(r) + "\n")
-                if n == 5000:
-                    fh.write('{"resourceType": "Patient", "id": \n')  # line 5001
-                    n += 1
-    summary = bulk_to_caseload(src, tmp_path / "c.csv", as_of=AS_OF)
-    assert src.stat().st_size >= 10 * 1024 * 1024
-    assert summary.broken_count == 1 and summary.broken_lines[0]["line"] == 5001
-    assert summary.written == i

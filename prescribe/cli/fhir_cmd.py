@@ -71,7 +71,14 @@ def run_import(args) -> int:
         for line in summary.broken_lines:
             print(f"prescribe fhir import: {line['file']} line {line['line']} not read: {line['problem']}",
                   file=sys.stderr)
+        for person in summary.people_left_out:
+            print(f"prescribe fhir import: {person['person']} left out: {person['why']}", file=sys.stderr)
         emit_json(summary.as_dict())
+        if summary.broken_count or summary.left_out_count:
+            # Bad input: the caseload holds everyone else, and the exit status says something was not read.
+            print(f"prescribe fhir import: {summary.broken_count} line(s) not read and {summary.left_out_count} "
+                  f"person(s) left out; {summary.written} written to {args.out}", file=sys.stderr)
+            return 2
         return 0
     if args.out and not args.out.lower().endswith(".json"):
         raise InputError.single("--out", args.out, "a PATIENT.json path for one Bundle (a caseload CSV comes from "
