@@ -83,6 +83,25 @@ class PlanLimits(_Open):
     def reasons_for(self, limit: str) -> list[LimitReason]:
         return [r for r in self.reasons if r.limit == limit]
 
+    def supervises(self, exercise: "PlannedExercise") -> bool:
+        """Whether ``exercise`` is done only with a clinician, trainer or carer there: the one rule
+        the screen, the person's pages and the clinician's pages all mark by.  Its own mark, the
+        heavy or high-impact work that is always supervised, or a person for whom the limits ask
+        for supervised (or carer-led) sessions."""
+        from .intensity import needs_supervision
+        return (exercise.supervised or self.supervision or self.carer_led
+                or needs_supervision(exercise.intensity, exercise.impact_level))
+
+    def supervision_words(self, plan: "Plan") -> str:
+        """Who is there when the person exercises, in the words every page uses."""
+        if self.carer_led:
+            return "every session with your carer or clinician there"
+        if self.supervision:
+            return "your sessions with your clinician or trainer there, at least at first"
+        if any(self.supervises(x) for w in plan.weeks for s in w.sessions for x in s.exercises):
+            return "the exercises marked supervised only with your clinician or trainer there"
+        return ""
+
 
 class PlannedExercise(_Open):
     exercise_id: str

@@ -327,7 +327,7 @@ def test_export_validates_as_r4_and_carries_the_program():
         assert rep["periodUnit"] == "wk" and 1 <= rep["frequency"] <= 7 and rep["dayOfWeek"]
         assert "Week 1" in a["detail"]["description"] or "week" in a["detail"]["description"].lower()
     notes = " ".join(n["text"] for n in care["note"])
-    assert f"Highest impact level allowed: {plan.screening.max_impact_level}" in notes
+    assert f"Highest impact level allowed: {plan.limits.max_impact_level}" in notes
     doc = next(e["resource"] for e in b["entry"] if e["resource"]["resourceType"] == "DocumentReference")
     assert doc["content"][0]["attachment"]["contentType"] == "application/pdf"
     prov = next(e["resource"] for e in b["entry"] if e["resource"]["resourceType"] == "Provenance")

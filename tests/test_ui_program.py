@@ -13,7 +13,7 @@ import re
 
 import pytest
 
-from prescribe.plan_schema import PlannedExercise
+from prescribe.plan_schema import PlanLimits, PlannedExercise
 from prescribe.ui import ClinicApp, ClinicSession
 from prescribe.ui import program_model as pm
 from prescribe.ui.charts import band_outline, weak_bands, whole_ticks
@@ -84,8 +84,11 @@ def test_supervision_follows_the_products_rule():
     assert pm.supervised(_ex(intensity="75% 1RM")) is False
     assert pm.supervised(_ex(category="impact", impact_level=3, peak_grf_bw=4.5)) is True
     assert pm.supervised(_ex(category="impact", impact_level=2, peak_grf_bw=3.0)) is False
-    # A screening asking for supervised sessions makes every exercise supervised.
-    assert pm.supervised(_ex(), type("S", (), {"supervision": True})()) is True
+    # Limits asking for supervised (or carer-led) sessions make every exercise supervised.
+    limits = PlanLimits(max_impact_level=2, max_impacts_per_session=40, supervision=True)
+    assert pm.supervised(_ex(), limits) is True
+    assert pm.supervised(_ex(), limits.model_copy(update={"supervision": False, "carer_led": True})) is True
+    assert pm.supervised(_ex(), limits.model_copy(update={"supervision": False})) is False
     # The program's own mark counts too; an unmarked heavy lift is still shown supervised.
     assert pm.supervised(_ex(intensity="RPE 3-4", supervised=True)) is True
     assert pm.supervised(_ex(intensity="85% 1RM", supervised=False)) is True

@@ -154,9 +154,13 @@ def run(args) -> int:
     out = sys.stdout
     tpl = plan.template
     tpl_text = "?" if tpl is None else tpl.name + (f"@{tpl.version}" if tpl.version else "")
+    from ..planning.why import limit_rows
+    from ..safety import plan_limits
     out.write(f"Program for {plan.patient_id}: {len(plan.weeks)} weeks from {plan.start_date}, template "
-              f"{tpl_text}, highest impact level allowed "
-              f"{plan.screening.max_impact_level} (screening rule set {plan.ruleset_version})\n\n")
+              f"{tpl_text} (screening rule set {plan.ruleset_version})\nLimits (`prescribe why` gives the reasons):\n")
+    for row in limit_rows(plan_limits(plan)):
+        out.write(f"  {row['label']}: {row['value']}\n")
+    out.write("\n")
     table = weekly_summary(plan)
     rows = table.astype(object).where(table.notna(), None).to_dict("records")
     emit_table(rows, list(table.columns), out)

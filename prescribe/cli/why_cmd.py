@@ -25,7 +25,7 @@ def register(sub) -> None:
 def run(args) -> int:
     from ..errors import InputError
     from ..planning.why import limit_rows, why_rows, why_text
-    from ..safety import assert_safe, limits_of_plan
+    from ..safety import assert_safe, plan_limits
     from .output import emit_json
 
     plan = parse_plan(read_json_file(args.plan, "PLAN.json"), source=args.plan)
@@ -33,7 +33,7 @@ def run(args) -> int:
         raise InputError.single("--week", args.week, f"a week of the program, 1 to {len(plan.weeks)}")
     # The reasons are printed only for a plan that passes the one check (its limits as its record gives them).
     assert_safe(plan, door=str(args.plan), require_record=True)
-    limits = plan.limits or limits_of_plan(plan)
+    limits = plan_limits(plan)
     if args.json:
         emit_json({"patient_id": plan.patient_id, "week": args.week, "limits": limit_rows(limits),
                    "exercises": why_rows(plan, args.week),

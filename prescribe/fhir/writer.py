@@ -237,17 +237,15 @@ def _activities(plan: Plan) -> list[dict]:
 
 
 def _limits(plan: Plan) -> list[dict]:
-    s = plan.screening
-    notes = [f"Highest impact level allowed: {s.max_impact_level}."]
-    if s.avoid:
-        notes.append("Movement patterns avoided: " + ", ".join(p.replace("_", " ") for p in s.avoid) + ".")
-    if s.max_pct_1rm is not None:
-        notes.append(f"Heaviest resistance load: {s.max_pct_1rm}% 1RM.")
-    if s.supervision:
-        notes.append("Supervised sessions.")
-    if s.balance_first:
-        notes.append("Balance work first.")
-    for f in s.flags:
+    """The plan's limits with their reasons and sources (the rows the clinician's pages and
+    ``prescribe why`` print), then the screening's flags, the clearance and the cautions."""
+    from ..planning.why import limit_rows
+    from ..safety import plan_limits
+    notes = []
+    for row in limit_rows(plan_limits(plan)):
+        because = "; ".join(f"{r['reason']} (source: {r['source']})" for r in row["reasons"])
+        notes.append(f"{row['label']}: {row['value']}." + (f" Because {because}." if because else ""))
+    for f in plan.screening.flags:
         notes.append(f"Limit {f.rule} ({f.severity}): {f.title or f.rule}. {f.message} Source: {f.source}")
     if plan.draft:
         notes.append("DRAFT: the screening refers this person; the program waits for a clinician to record the "

@@ -137,8 +137,8 @@ def _limits_and_why(plan: Plan) -> dict:
     """The clinician's pages: the plan's limits with their reasons, and each exercise's reasons,
     the sources numbered once (prescribe.planning.why prints the same rows for `prescribe why`)."""
     from ..planning.why import limit_rows, why_by_exercise
-    from ..safety import limits_of_plan
-    limits = plan.limits or limits_of_plan(plan)
+    from ..safety import plan_limits
+    limits = plan_limits(plan)
     numbers: dict[str, int] = {}
 
     def cite(source: str) -> int:

@@ -60,9 +60,9 @@ def replace_exercise(plan: Plan, old_id: str, new_id: str, catalogue=None, *, we
     data = plan.model_dump(mode="python")
     # Why the new exercise is there: its own reasons, the swap, and the dose and week reasons of
     # the one it replaces (it keeps that dose); prescribe.planning.why.
-    from ..safety import limits_of_plan
+    from ..safety import plan_limits
     from .why import SRC_SWAPPED, chosen_why
-    limits = plan.limits or limits_of_plan(plan)
+    limits = plan_limits(plan)
     old_name = next((x.name for w in plan.weeks for s in w.sessions for x in s.exercises if x.exercise_id == old_id),
                     old_id)
     new_chosen = [w.model_dump() for w in chosen_why(new, limits, falls=limits.balance_first)]

@@ -26,13 +26,13 @@ from .check import RULES, assert_safe, check_program
 from .clearance import is_draft, record_clearance
 from .facts import pct_1rm, rpe_top
 from .impact import IMPACT_LABELS, MAX_BOUT_IMPACTS, MIN_BOUT_GAP_H
-from .limits import (TemplateCaps, _rescreen_json, derive_limits, limits_for, limits_of_plan, rescreen,  # noqa: F401
+from .limits import (TemplateCaps, _rescreen_json, derive_limits, limits_for, limits_of_plan, plan_limits, rescreen,  # noqa: F401
                      spine_sparing_reason, strictest_screening)  # (_rescreen_json: benchmarks)
 from .model import IMPACTS_CEILING, Limits, Rule, SafetyViolation
 from .strength import SUPERVISED_FROM_PCT_1RM
 
 __all__ = ["SafetyViolation", "Limits", "Rule", "RULES", "check_program", "assert_safe", "limits_for",
-           "strictest_screening", "rescreen", "derive_limits", "limits_of_plan", "TemplateCaps",
+           "strictest_screening", "rescreen", "derive_limits", "limits_of_plan", "plan_limits", "TemplateCaps",
            "spine_sparing_reason", "pct_1rm", "rpe_top", "SUPERVISED_FROM_PCT_1RM",
            "record_clearance", "is_draft",
            "MAX_BOUT_IMPACTS", "MIN_BOUT_GAP_H", "IMPACTS_CEILING", "IMPACT_LABELS"]

@@ -232,6 +232,13 @@ def limits_of_plan(plan: Plan, screening: ScreeningResult | None = None, *,
                          screenings=(screening, plan.screening), records=(record,))
 
 
+def plan_limits(plan: Plan) -> PlanLimits:
+    """The limits every reader prints for ``plan``: its own (the doors refuse a plan whose limits
+    differ from its record's, rule ``limits_match``), or, for a plan file made before plans carried
+    them, worked out again the same way."""
+    return plan.limits if plan.limits is not None else limits_of_plan(plan)
+
+
 def limits_for(plan: Plan, screening: ScreeningResult | None = None, *,
                record: PatientRecord | None = None) -> Limits:
     """The limits the safety check holds ``plan`` to: :func:`limits_of_plan` as the rules read them."""

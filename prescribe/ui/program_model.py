@@ -19,6 +19,7 @@ from typing import Any, Iterable
 
 from ..handout.content import DAY_NAMES, LEVEL_LABELS
 from ..intensity import needs_supervision, pct_1rm, rpe_range
+from ..plan_schema import Plan
 from ..stimulus import week_stages
 
 
@@ -107,16 +108,14 @@ def level_words(level: int) -> str:
     return f"{level} - {LEVEL_LABELS.get(level, '?')}"
 
 
-def supervised(ex: Any, screening: Any = None) -> bool:
-    """Whether this exercise is done supervised.
-
-    The program's own ``supervised`` mark, or the product's rule (80% 1RM or more, or high
-    impact, level 3), or a screening that asks for supervised sessions: any of them makes it
-    supervised (the safe side; the safety check refuses a program whose marks break the rule).
-    """
-    if ex.supervised or needs_supervision(getattr(ex, "intensity", "") or "", getattr(ex, "impact_level", 0)):
-        return True
-    return bool(getattr(screening, "supervision", False))
+def supervised(ex: Any, limits: Any = None) -> bool:
+    """Whether this exercise is done supervised: the limits' one rule
+    (:meth:`prescribe.plan_schema.PlanLimits.supervises`, the rule the person's pages use too);
+    without limits, the exercise's own mark or the product's rule (80% 1RM or more, or high
+    impact, level 3)."""
+    if limits is not None:
+        return limits.supervises(ex)
+    return bool(ex.supervised or needs_supervision(getattr(ex, "intensity", "") or "", getattr(ex, "impact_level", 0)))
 
 
 def readable_time(value: Any) -> str:
@@ -180,12 +179,14 @@ def current_week(plan: Any, today: date | None = None) -> int:
     return min(max(1, days // 7 + 1), n)
 
 
-def week_days(plan: Any, week: int, screening: Any = None) -> list[DayPlan]:
+def week_days(plan: Any, week: int, limits: Any = None) -> list[DayPlan]:
     """The days of program week ``week``, each with its exercises in the order they are done."""
     wk = next((w for w in plan.weeks if w.week == week), None)
     if wk is None:
         return []
-    screening = screening if screening is not None else getattr(plan, "screening", None)
+    if limits is None and isinstance(plan, Plan):
+        from ..safety import plan_limits
+        limits = plan_limits(plan)
     start = getattr(plan, "start_date", None)
     first = date.fromisoformat(start) + timedelta(days=7 * (week - 1)) if start else None
     days: dict[int, DayPlan] = {}
@@ -199,7 +200,7 @@ def week_days(plan: Any, week: int, screening: Any = None) -> list[DayPlan]:
             day.kinds.append(session.kind)
         for ex in session.exercises:
             day.lines.append(ExerciseLine(ex.exercise_id, ex.name, dose_words(ex), load_words(ex),
-                                          level_words(ex.impact_level), supervised(ex, screening),
+                                          level_words(ex.impact_level), supervised(ex, limits),
                                           str(ex.notes or "")))
     return [days[d] for d in sorted(days, key=lambda d: (days[d].date or date.min, d))]
 

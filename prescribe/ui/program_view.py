@@ -290,7 +290,7 @@ class ProgramView:
         if s.plan is None or self.week_select.value is None:
             self.days.value = pm_days_empty()
             return
-        self.days.value = days_html(pm.week_days(s.plan, self.week_select.value, s.screening))
+        self.days.value = days_html(pm.week_days(s.plan, self.week_select.value))
 
 
 def pm_days_empty() -> str:

@@ -17,21 +17,24 @@ def goals(plan: Plan) -> list[str]:
     """The plan's ``goals`` when the planner gives them, else plain goals from its content."""
     if plan.goals:
         return list(plan.goals)
+    from ...safety import plan_limits
+    limits = plan_limits(plan)   # what the program is held to (never the screening alone)
     kinds = {s.kind for w in plan.weeks for s in w.sessions}
     out = []
-    if plan.screening.max_impact_level >= 2 and any(w.impacts_per_session for w in plan.weeks):
+    if limits.max_impact_level >= 2 and any(w.impacts_per_session for w in plan.weeks):
         out.append("Make your hip and spine bones stronger with short bursts of landings, "
                    "built up slowly.")
     if kinds & {"resistance", "mixed"}:
         out.append("Make your muscles stronger two or three times a week. This helps your bones too.")
-    if plan.screening.falls_risk or "balance" in kinds:
+    if limits.balance_first or "balance" in kinds:
         out.append("Get better balance and stronger legs, so you are less likely to fall.")
-    if {"loaded_spinal_flexion", "loaded_spinal_twisting"} & set(plan.screening.avoid):
+    if limits.spine_sparing:
         out.append("Keep your back safe: do not bend forward or twist when you lift, carry or push.")
-    if any(x.supervised for w in plan.weeks for ses in w.sessions for x in ses.exercises):
-        # Never "on your own" where supervision is prescribed (docs/safety.md, rule supervision).
-        out.append("Do the exercises marked supervised only with your clinician or trainer there. "
-                   "Know when to stop and ask for advice.")
+    # Never "on your own" where supervision is prescribed: the limits' one rule (PlanLimits.supervises),
+    # the same the screen marks each line by.
+    who = limits.supervision_words(plan)
+    if who:
+        out.append(f"Do {who}. Know when to stop and ask for advice.")
     else:
         out.append("Exercise safely on your own, and know when to stop and ask for advice.")
     return out
