@@ -219,15 +219,9 @@ def _settings_data() -> dict:
 def clinic() -> Clinic:
     name = os.environ.get("PRESCRIBE_CLINIC_NAME")
     contact = os.environ.get("PRESCRIBE_CLINIC_CONTACT")
-    path = os.environ.get("PRESCRIBE_SETTINGS") or (str(settings_path()) if settings_path().exists() else None)
-    if path:
-        try:
-            data = tomllib.loads(Path(path).read_text(encoding="utf-8"))
-        except (OSError, tomllib.TOMLDecodeError) as exc:
-            raise InputError.single("PRESCRIBE_SETTINGS", path, f"a readable TOML settings file ({exc})") from None
-        table = data.get("clinic", {})
-        name = name or table.get("name")
-        contact = contact or table.get("contact")
+    table = _settings_data().get("clinic", {})
+    name = name or table.get("name")
+    contact = contact or table.get("contact")
     return Clinic(name=name or Clinic.name, contact=contact or "")
 
 

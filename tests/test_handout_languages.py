@@ -456,3 +456,19 @@ def test_the_spanish_pdf_reads_in_spanish_and_the_clinicians_part_in_english():
     assert "Su plan de ejercicio para tener huesos fuertes" in person and "página 1 de" in person
     assert "Your exercise plan" not in person and "page 1 of" not in person
     assert "Person's pages: Spanish (es)." in clinician and "page 1 of" in clinician
+
+
+@pytest.mark.parametrize("paper", ["a4", "letter"])
+@pytest.mark.parametrize("language", TRANSLATED)
+@pytest.mark.parametrize("who", ["man-78-vertebral", "rosa-new-hip-blood-thinner", "overdue-injection"])
+def test_both_charts_share_one_page_in_every_language(who, language, paper):
+    # As in English (common practice: a figure and its key are read together, on one page), with
+    # the longer Spanish words, a notes box or a two-line DRAFT mark above them.
+    lang = i18n.Language(language)
+    data = render_pdf(_plan(PEOPLE[who]), audience="person", paper=paper, clinic=CLINIC, language=language)
+    pages = subprocess.run(["pdftotext", "-enc", "UTF-8", "-", "-"], input=data, capture_output=True,
+                           check=True).stdout.decode("utf-8").split("\f")
+    titles = (lang.gettext("Landings (impacts) per session, week by week"),
+              lang.gettext("Strength exercise load, week by week"))
+    where = [[i for i, page in enumerate(pages) if title in page.replace("\n", "")] for title in titles]
+    assert len(where[0]) == 1 and where[0] == where[1], where
