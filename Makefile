@@ -24,9 +24,10 @@ HUB_SPAWNER ?= systemd
 HUB_ADMINS ?=
 HUB_LEADS ?=
 
-.PHONY: install install-sensors system-deps pg-deps hub-deps app seed test test-fast bench lock clean hub
+.PHONY: install install-sensors system-deps pg-deps hub-deps app seed test test-fast bench lock clean hub \
+        translations translations-update
 
-install: $(STAMP)
+install: $(STAMP) translations
 
 $(STAMP): pyproject.toml requirements.lock
 	@test -x $(BIN)/python || $(PYTHON) -m venv $(VENV)
@@ -43,18 +44,40 @@ $(SENSORS_STAMP): $(STAMP) requirements-sensors.lock
 	@touch $@
 
 # chromium drives the browser tests; poppler-utils turns handout PDFs into text and PNG;
-# DejaVu Sans is the handouts' first font (Liberation Sans the fallback).
+# DejaVu Sans is the handouts' first font (Liberation Sans the fallback); WenQuanYi Micro Hei
+# (fonts-wqy-microhei) sets the Chinese person's pages, and the PDF embeds it.
+SYSTEM_PACKAGES := chromium fonts-dejavu-core fonts-liberation fonts-wqy-microhei poppler-utils
 system-deps:
 	@if [ -x /usr/bin/chromium ] && command -v pdftoppm >/dev/null && command -v pdftotext >/dev/null \
-	  && [ -f /usr/share/fonts/truetype/dejavu/DejaVuSans.ttf ]; then :; \
+	  && [ -f /usr/share/fonts/truetype/dejavu/DejaVuSans.ttf ] && [ -f /usr/share/fonts/truetype/wqy/wqy-microhei.ttc ]; then :; \
 	elif [ "$$(id -u)" = 0 ] && command -v apt-get >/dev/null; then \
 	  echo "Installing chromium, the handout fonts and poppler-utils from Debian's packages"; \
 	  DEBIAN_FRONTEND=noninteractive apt-get update -qq && \
-	  DEBIAN_FRONTEND=noninteractive apt-get install -y -qq --no-install-recommends chromium fonts-dejavu-core fonts-liberation poppler-utils >/dev/null; \
+	  DEBIAN_FRONTEND=noninteractive apt-get install -y -qq --no-install-recommends $(SYSTEM_PACKAGES) >/dev/null; \
 	else \
-	  echo "The tests need Debian's chromium, fonts-dejavu-core, fonts-liberation and poppler-utils:"; \
-	  echo "  sudo apt-get install --no-install-recommends chromium fonts-dejavu-core fonts-liberation poppler-utils"; exit 1; \
+	  echo "The tests need Debian's $(SYSTEM_PACKAGES):"; \
+	  echo "  sudo apt-get install --no-install-recommends $(SYSTEM_PACKAGES)"; exit 1; \
 	fi
+
+# The person's pages in other languages (docs/languages.md): the message catalogues are
+# prescribe/handout/locale/<language>/LC_MESSAGES/person.po, compiled here to person.mo.
+# `make translations-update` extracts every text of the person's pages (babel.cfg) into
+# person.pot and merges it into each language's .po: new texts arrive untranslated, and the
+# tests fail until each is translated.
+LOCALE := prescribe/handout/locale
+PO_FILES := $(wildcard $(LOCALE)/*/LC_MESSAGES/person.po)
+MO_FILES := $(PO_FILES:.po=.mo)
+
+translations: $(MO_FILES)
+
+$(LOCALE)/%/LC_MESSAGES/person.mo: $(LOCALE)/%/LC_MESSAGES/person.po $(STAMP)
+	$(BIN)/pybabel compile --statistics -D person -i $< -o $@
+
+translations-update: $(STAMP)
+	PYTHONPATH=$(CURDIR) $(BIN)/pybabel extract -F babel.cfg -k N_ -k pgettext:1c,2 --no-wrap --sort-by-file \
+	  --project=prescribe --version=0.1.0 --copyright-holder="prescribe developers" \
+	  --msgid-bugs-address="the prescribe developers" -o $(LOCALE)/person.pot .
+	$(BIN)/pybabel update --no-wrap --no-fuzzy-matching --ignore-obsolete -D person -i $(LOCALE)/person.pot -d $(LOCALE)
 
 # Debian's PostgreSQL server binaries: the store's tests run on SQLite and on a private
 # PostgreSQL server they start themselves (tests/pg_server.py).  In CI (CI=true) a
@@ -123,4 +146,4 @@ lock:
 	  /tmp/prescribe-lock/bin/pip freeze --exclude-editable | grep -v '^-e' | grep -vxFf requirements.lock ) > requirements-sensors.lock
 
 clean:
-	rm -rf $(VENV) var test-artifacts .pytest_cache .hypothesis
+	rm -rf $(VENV) var test-artifacts .pytest_cache .hypothesis $(MO_FILES)

@@ -7,12 +7,15 @@ machine has a second processor); (c) the same PDF with the parts rendered one af
 the other (``parallel=False``, what a one-processor machine or a notebook kernel
 gets); (d) the large-print edition (``large_print=True``: the person's pages in large
 print, the clinician's as usual), both audiences; and (e) a baseline: WeasyPrint turning
-a trivial one-paragraph HTML page into PDF.  Every exercise guide carries its drawing.  Runs alternate so machine load hits all of them alike.  It prints best and
+a trivial one-paragraph HTML page into PDF; (f) the same PDF as (b) with the person's
+pages in Spanish and (g) in Simplified Chinese (``language="es"``, ``"zh-Hans"``).  Every
+exercise guide carries its drawing.  Runs alternate so machine load hits all of them alike.  It prints best and
 median wall times, CPU time (this process plus its children: wall time on a shared
 machine includes other processes' work, and the side-by-side PDF spends CPU in a
 child), the PDF's page count, the ratio of the handout PDF to the baseline, and the
 goals: the PDF in under 1.5 s (issue 6, drawings included since issue 19) and the
-large-print PDF in under 2.5 s (issue 19).  Exits 0 either way (a benchmark, not a
+large-print PDF in under 2.5 s (issue 19), a Spanish or Chinese PDF within 1.2 x the English
+one's time, medians of the same run (issue 30).  Exits 0 either way (a benchmark, not a
 test).  Run: ``.venv/bin/python benchmarks/bench_handout.py [--runs 7] [--weeks 26]``.
 """
 
@@ -37,6 +40,9 @@ from prescribe.settings import Clinic  # noqa: E402
 
 GOAL_PDF_S = 1.5
 GOAL_LARGE_PRINT_S = 2.5
+#: Another language's PDF against the English PDF of the same plan, same run (issue 30).
+GOAL_LANGUAGE_RATIO = 1.2
+LANGUAGES = (("pdf_es", "es", "render_pdf, Spanish"), ("pdf_zh", "zh-Hans", "render_pdf, Chinese"))
 CLINIC = Clinic("Riverside Bone Health Clinic (demo)", "555-0100")
 #: An invented person; no real record.
 RECORD = {"patient_id": "NTC-0042", "age_years": 67, "sex": "female", "body_mass_kg": 61, "height_cm": 162,
@@ -69,7 +75,9 @@ def main() -> int:
     HTML(string=TRIVIAL).write_pdf()
 
     render_pdf(plan, clinic=CLINIC, large_print=True)
-    names = ("html", "pdf", "sequential", "large", "baseline")
+    for _key, language, _label in LANGUAGES:  # the catalogue and the language's fonts, once
+        render_pdf(plan, clinic=CLINIC, language=language)
+    names = ("html", "pdf", "sequential", "large", "baseline", *(key for key, _, _ in LANGUAGES))
     times: dict[str, list[float]] = {name: [] for name in names}
     cpu: dict[str, list[float]] = {name: [] for name in names}
     for _ in range(args.runs):
@@ -77,7 +85,9 @@ def main() -> int:
                          ("pdf", lambda: render_pdf(plan, clinic=CLINIC)),
                          ("sequential", lambda: render_pdf(plan, clinic=CLINIC, parallel=False)),
                          ("large", lambda: render_pdf(plan, clinic=CLINIC, large_print=True)),
-                         ("baseline", lambda: HTML(string=TRIVIAL).write_pdf())):
+                         ("baseline", lambda: HTML(string=TRIVIAL).write_pdf()),
+                         *((key, lambda language=language: render_pdf(plan, clinic=CLINIC, language=language))
+                           for key, language, _ in LANGUAGES)):
             _, wall, used = _timed(fn)
             times[name].append(wall)
             cpu[name].append(used)
@@ -89,7 +99,7 @@ def main() -> int:
           f"{args.runs} runs each; {os.cpu_count()} processors; parts side by side here: {'yes' if side_by_side() else 'no, in turn'}")
     for name, label in (("html", "render_html"), ("pdf", "render_pdf"),
                         ("sequential", "render_pdf, in turn"), ("large", "large print PDF"),
-                        ("baseline", "trivial HTML -> PDF")):
+                        ("baseline", "trivial HTML -> PDF"), *((key, label) for key, _, label in LANGUAGES)):
         print(f"  {label:22s} best {min(times[name]):6.3f} s   median {statistics.median(times[name]):6.3f} s"
               f"   (CPU median {statistics.median(cpu[name]):6.3f} s)")
     large = render_pdf(plan, clinic=CLINIC, large_print=True)
@@ -108,6 +118,14 @@ def main() -> int:
     print(f"  goal: large-print PDF under {GOAL_LARGE_PRINT_S} s -> median {large_median:.3f} s {verdict} it "
           f"(best {min(times['large']):.3f} s, CPU median {statistics.median(cpu['large']):.3f} s; "
           f"{large_median / statistics.median(times['baseline']):.1f} x the baseline)")
+    for key, language, label in LANGUAGES:
+        data = render_pdf(plan, clinic=CLINIC, language=language)
+        ratio = statistics.median(times[key]) / pdf_median
+        verdict = "meets" if ratio <= GOAL_LANGUAGE_RATIO else "misses"
+        print(f"  goal: {label} within {GOAL_LANGUAGE_RATIO} x the English PDF -> {ratio:.2f} x {verdict} it "
+              f"(median {statistics.median(times[key]):.3f} s, CPU median {statistics.median(cpu[key]):.3f} s, "
+              f"{len(PdfReader(io.BytesIO(data)).pages)} pages; CPU ratio "
+              f"{statistics.median(cpu[key]) / statistics.median(cpu['pdf']):.2f} x)")
     return 0
 
 

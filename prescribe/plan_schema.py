@@ -92,14 +92,16 @@ class PlanLimits(_Open):
         return (exercise.supervised or self.supervision or self.carer_led
                 or needs_supervision(exercise.intensity, exercise.impact_level))
 
-    def supervision_words(self, plan: "Plan") -> str:
-        """Who is there when the person exercises, in the words every page uses."""
+    def supervision_kind(self, plan: "Plan") -> str:
+        """Who is there when the person exercises: "carer" (every session led by a carer or
+        clinician), "advised" (supervised sessions, at least at first), "marked" (the exercises
+        marked supervised) or "" (on their own); every page words it from this."""
         if self.carer_led:
-            return "every session with your carer or clinician there"
+            return "carer"
         if self.supervision:
-            return "your sessions with your clinician or trainer there, at least at first"
+            return "advised"
         if any(self.supervises(x) for w in plan.weeks for s in w.sessions for x in s.exercises):
-            return "the exercises marked supervised only with your clinician or trainer there"
+            return "marked"
         return ""
 
 

@@ -28,6 +28,7 @@ Who is working, and in which role (see docs/deploy.md):
 
 from __future__ import annotations
 
+import datetime as _dt
 import os
 import tomllib
 from dataclasses import dataclass
@@ -141,18 +142,86 @@ def save_clinic(name: str, contact: str, path: str | os.PathLike | None = None) 
     return target
 
 
+@dataclass(frozen=True)
+class TranslationReview:
+    """Whether a qualified translator has reviewed a language's text of the person's pages.
+
+    Recorded in the clinic settings (the ``PRESCRIBE_SETTINGS`` file)::
+
+        [translations.es]
+        reviewed_by = "A. Name, certified medical translator (NAATI 12345)"
+        reviewed_on = 2027-01-15
+
+    Without such a table the language counts as not reviewed: the translations shipped with
+    prescribe were written by its developers and no qualified translator has reviewed them.
+    """
+
+    language: str
+    reviewed_by: str = ""
+    reviewed_on: _dt.date | None = None
+
+    @property
+    def reviewed(self) -> bool:
+        return bool(self.reviewed_by) and self.reviewed_on is not None
+
+
+def translation_review(language: str) -> TranslationReview:
+    """The clinic's record of a translator's review of ``language`` (none by default).
+
+    A malformed record raises :class:`InputError` naming the setting, the value and what
+    is allowed: a review is never assumed from half a record.
+    """
+    from .languages import LANGUAGES, check_language
+
+    check_language(language)
+    table = _settings_data().get("translations", {})
+    where = "PRESCRIBE_SETTINGS [translations]"
+    if not isinstance(table, dict):
+        raise InputError.single(where, table, "a table of languages, e.g. [translations.es]")
+    for key in table:
+        if key not in LANGUAGES:
+            raise InputError.single(f"{where} {key}", key, "one of " + ", ".join(LANGUAGES))
+    entry = table.get(language, {})
+    where = f"PRESCRIBE_SETTINGS [translations.{language}]"
+    if not isinstance(entry, dict):
+        raise InputError.single(where, entry, "a table with reviewed_by and reviewed_on")
+    unknown = sorted(set(entry) - {"reviewed_by", "reviewed_on"})
+    if unknown:
+        raise InputError.single(f"{where} {unknown[0]}", entry[unknown[0]], "only reviewed_by and reviewed_on")
+    by, on = entry.get("reviewed_by", ""), entry.get("reviewed_on")
+    if not isinstance(by, str) or (entry and not by.strip()):
+        raise InputError.single(f"{where} reviewed_by", by, "the reviewing translator's name and qualification")
+    if isinstance(on, str):
+        try:
+            on = _dt.date.fromisoformat(on)
+        except ValueError:
+            raise InputError.single(f"{where} reviewed_on", on, "a date (YYYY-MM-DD)") from None
+    if isinstance(on, _dt.datetime):
+        on = on.date()
+    if entry and not isinstance(on, _dt.date):
+        raise InputError.single(f"{where} reviewed_on", on, "the date of the review (YYYY-MM-DD)")
+    if on is not None and on > _dt.date.today():
+        raise InputError.single(f"{where} reviewed_on", on.isoformat(), "a date not after today")
+    return TranslationReview(language, by.strip(), on)
+
+
+def _settings_data() -> dict:
+    """The clinic settings file's tables ({} without a file)."""
+    path = os.environ.get("PRESCRIBE_SETTINGS") or (str(settings_path()) if settings_path().exists() else None)
+    if not path:
+        return {}
+    try:
+        return tomllib.loads(Path(path).read_text(encoding="utf-8"))
+    except (OSError, tomllib.TOMLDecodeError) as exc:
+        raise InputError.single("PRESCRIBE_SETTINGS", path, f"a readable TOML settings file ({exc})") from None
+
+
 def clinic() -> Clinic:
     name = os.environ.get("PRESCRIBE_CLINIC_NAME")
     contact = os.environ.get("PRESCRIBE_CLINIC_CONTACT")
-    path = os.environ.get("PRESCRIBE_SETTINGS") or (str(settings_path()) if settings_path().exists() else None)
-    if path:
-        try:
-            data = tomllib.loads(Path(path).read_text(encoding="utf-8"))
-        except (OSError, tomllib.TOMLDecodeError) as exc:
-            raise InputError.single("PRESCRIBE_SETTINGS", path, f"a readable TOML settings file ({exc})") from None
-        table = data.get("clinic", {})
-        name = name or table.get("name")
-        contact = contact or table.get("contact")
+    table = _settings_data().get("clinic", {})
+    name = name or table.get("name")
+    contact = contact or table.get("contact")
     return Clinic(name=name or Clinic.name, contact=contact or "")
 
 

@@ -47,6 +47,8 @@ def test_html_handout_for_the_person_only(cli, plan_file, tmp_path):
     (["--out", "{tmp}/h.pdf", "--paper", "a5"], "--paper must be one of a4, letter, not 'a5'."),
     (["--out", "{tmp}/h.pdf", "--audience", "family"],
      "--audience must be one of person, clinician, both, not 'family'."),
+    (["--out", "{tmp}/h.pdf", "--language", "fr"], "--language must be one of en, es, zh-Hans, not 'fr'."),
+    (["--out", "{tmp}/h.html", "--language", "zh-CN"], "--language must be one of en, es, zh-Hans, not 'zh-CN'."),
 ])
 def test_bad_options_exit_2_naming_the_option(cli, plan_file, tmp_path, args, message):
     result = cli("handout", str(plan_file), *[a.format(tmp=tmp_path) for a in args])
@@ -114,3 +116,23 @@ def test_large_print_pdf_for_the_person(cli, plan_file, tmp_path):
     result = cli("handout", str(plan_file), "--out", str(html), "--large-print", "--audience", "both")
     assert result.returncode == 0 and json.loads(result.stdout)["audience"] == "both"
     assert 'class="paper-a4 audience-both large-print"' in html.read_text(encoding="utf-8")
+
+
+@pytest.mark.parametrize("language, person_words, page_words", [
+    ("es", "Su plan de ejercicio para tener huesos fuertes", "página 1 de"),
+    ("zh-Hans", "您的强健骨骼锻炼计划", "第1页，共"),
+])
+def test_the_persons_pages_in_another_language(cli, plan_file, tmp_path, language, person_words, page_words):
+    # `prescribe handout PLAN.json --language es|zh-Hans` (PRODUCT.md, "The person's language"):
+    # the person's pages in that language, the clinician's in English with the translator line.
+    out = tmp_path / "handout.pdf"
+    result = cli("handout", str(plan_file), "--out", str(out), "--language", language, env=DEMO_ENV)
+    assert result.returncode == 0, result.stderr
+    assert json.loads(result.stdout)["language"] == language
+    text = subprocess.run(["pdftotext", "-enc", "UTF-8", str(out), "-"], capture_output=True, check=True).stdout
+    person, clinician = text.decode("utf-8").split("Clinician page", 1)
+    assert person_words in person and page_words in person and "Your exercise plan" not in person
+    assert "No qualified translator has reviewed the" in " ".join(clinician.split())
+    english = tmp_path / "english.html"
+    result = cli("handout", str(plan_file), "--out", str(english), env=DEMO_ENV)
+    assert json.loads(result.stdout)["language"] == "en" and "Your exercise plan" in english.read_text()

@@ -75,3 +75,24 @@ def test_large_print_choice_gives_the_large_print_handout(app):
     app.pdf_button.click()
     match = re.search(r'href="data:application/pdf;base64,([^"]+)"', app.download.value)
     assert _body_pt(base64.b64decode(match.group(1))) < 14.0
+
+
+def test_the_language_choice_beside_the_handout_gives_the_persons_pages_in_that_language(app):
+    # PRODUCT.md, "The person's language": the app offers the same choice as --language.
+    assert [v for _, v in app.language.options] == ["en", "es", "zh-Hans"] and app.language.value == "en"
+    app.audience.value = "both"
+    assert app.language_note.value == ""
+    app.language.value = "es"
+    assert "The Spanish text has not been reviewed by a qualified translator" in app.language_note.value
+    app.preview_button.click()
+    preview = html.unescape(app.preview.value)
+    assert "Su plan de ejercicio para tener huesos fuertes" in preview
+    assert "No qualified translator has reviewed the Spanish text yet" in preview  # the clinician's page
+    app.html_button.click()
+    match = re.search(r'download="([^"]+)" href="data:text/html;base64,([^"]+)"', app.download.value)
+    assert match, app.errors.last
+    assert match.group(1).endswith("-es.html")
+    assert '<section class="person lang-es" lang="es"' in base64.b64decode(match.group(2)).decode("utf-8")
+    app.language.value = "en"
+    app.preview_button.click()
+    assert "Your exercise plan for strong bones" in html.unescape(app.preview.value)

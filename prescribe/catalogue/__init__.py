@@ -26,6 +26,7 @@ import numpy as np
 from pydantic import BaseModel, ConfigDict, Field, ValidationError, model_validator
 
 from ..errors import CatalogueError, InputError
+from ..languages import N_
 from .poses import Pose
 from ..records import MOVEMENT_PATTERNS
 
@@ -42,8 +43,8 @@ DIRECTIONS: tuple[str, ...] = ("vertical", "forward_back", "side_to_side", "rota
 DOSE_UNITS: tuple[str, ...] = ("impacts", "reps", "seconds", "minutes")
 BALANCE_DEMANDS: tuple[str, ...] = ("none", "low", "moderate", "high")
 SOURCE_KINDS: tuple[str, ...] = ("force_plate", "model", "estimate")
-IMPACT_LEVEL_LABELS: dict[int, str] = {0: "no impact", 1: "low impact", 2: "moderate impact",
-                                       3: "high impact"}
+IMPACT_LEVEL_LABELS: dict[int, str] = {0: N_("no impact"), 1: N_("low impact"), 2: N_("moderate impact"),
+                                       3: N_("high impact")}
 
 #: Band edges of the impact levels [BW]: below LOW -> 1; LOW..HIGH inclusive -> 2; above HIGH -> 3.
 LEVEL_2_FROM_BW = 2.0

@@ -115,10 +115,11 @@ def _top(posture: Posture, view: str) -> float:
     return max(max(y for _, y in pts.values()), pts["head"][1] + HEAD_RADIUS, 0.3)
 
 
-def pose_svg(pose: Pose, title: str = "") -> str:
+def pose_svg(pose: Pose, title: str = "", label: str | None = None) -> str:
     """The start (left) and end (right) positions of ``pose`` as one small SVG.
 
-    ``title`` (escaped) names the exercise for screen readers.
+    ``title`` (escaped) names the exercise for screen readers; ``label``, when given, is
+    the whole accessible label instead (the person's pages give it in the person's language).
     """
     top = max(_top(pose.start, pose.view), _top(pose.end, pose.view))
     floor_y = PAD + top * UNIT + 4
@@ -133,7 +134,9 @@ def pose_svg(pose: Pose, title: str = "") -> str:
     # An arrow from start to end, between the panels.
     ax, ay = PANEL_W + 4, floor_y - min(0.5, top / 2) * UNIT
     props.append(f"M{ax:.1f},{ay:.1f}h{GAP - 8:.1f}m-6,-5l6,5l-6,5")
-    label = escape(f"{title}: start and end position" if title else "Start and end position")
+    if label is None:
+        label = f"{title}: start and end position" if title else "Start and end position"
+    label = escape(label)
     return (f'<svg xmlns="http://www.w3.org/2000/svg" class="pose" viewBox="0 0 {width:.0f} {height:.0f}" '
             f'role="img" fill="none" stroke-linecap="round" stroke-linejoin="round"><title>{label}</title>'
             f'<path class="props" d="{"".join(props)}" stroke="{PROP}" stroke-width="2.5"/>'

@@ -3,8 +3,9 @@
 from __future__ import annotations
 
 from ..cautions import STANDARD_CAUTIONS
-from ..plan_schema import parse_plan
 from ..fileio import read_json_file
+from ..languages import LANGUAGES, SOURCE_LANGUAGE
+from ..plan_schema import parse_plan
 from .output import emit_json
 
 
@@ -23,6 +24,9 @@ def register(sub) -> None:
     p.add_argument("--large-print", action="store_true",
                    help="the large-print edition of the person's pages (body text 15 pt, larger headings); "
                         "prints the person's pages only unless --audience says otherwise")
+    p.add_argument("--language", default=SOURCE_LANGUAGE, metavar="|".join(LANGUAGES),
+                   help="the language of the person's pages (default en); the clinician's pages stay in English "
+                        "and say whether a qualified translator has reviewed that language's text")
     p.add_argument("--sensor", metavar="SUMMARY.json", help="a worn-sensor summary printed by `prescribe sensor "
                                                            "--patient`: the clinician page shows planned against delivered")
     p.add_argument("--db", default=None,
@@ -38,7 +42,7 @@ def run(args) -> int:
     check_out_path(args.out)  # refuse a bad --out before reading the plan
     # The large-print edition is the person's: without --audience it holds their pages only.
     audience = args.audience or ("person" if args.large_print else "both")
-    check_options(audience, args.paper, ("--audience", "--paper"))
+    check_options(audience, args.paper, ("--audience", "--paper", "--language"), args.language)
     plan = parse_plan(read_json_file(args.plan, "PLAN.json"), source=args.plan)
     # A plan file can be edited by hand: the one safety check runs before anything is
     # written (exit 2 and no file on a refusal; docs/safety.md).
@@ -47,11 +51,12 @@ def run(args) -> int:
                 require_record=True)
     sensor = _sensor_summary(args.sensor, plan.patient_id) if args.sensor else None
     out = write_handout(plan, args.out, audience=audience, paper=args.paper, large_print=args.large_print,
-                        sensor_summary=sensor)
+                        sensor_summary=sensor, language=args.language)
     emit_json({
         "out": str(out), "format": out.suffix.lower().lstrip("."), "bytes": out.stat().st_size,
         "patient_id": plan.patient_id, "audience": audience, "paper": args.paper,
-        "weeks": len(plan.weeks), "large_print": args.large_print, "cautions": list(STANDARD_CAUTIONS),
+        "weeks": len(plan.weeks), "large_print": args.large_print, "language": args.language,
+        "cautions": list(STANDARD_CAUTIONS),
     })
     return 0
 

@@ -21,10 +21,13 @@ from typing import Sequence
 
 from ..plan_schema import Plan
 from .content import WeekFacts, week_facts
+from ..languages import N_
+from .i18n import gettext as _, ngettext, percent, pgettext, sentence_space
 
 WIDTH, HEIGHT = 760, 330
 LEFT, RIGHT, TOP, BOTTOM = 66, 40, 32, 40
-FONT = "DejaVu Sans, Liberation Sans, Arial, sans-serif"
+#: WenQuanYi Micro Hei (Debian's fonts-wqy-microhei) draws the Chinese pages' labels.
+FONT = "DejaVu Sans, Liberation Sans, WenQuanYi Micro Hei, Arial, sans-serif"
 INK, GRID, BAR = "#000000", "#bdbdbd", "#8c8c8c"
 #: Tick-label size in SVG units: the chart prints about 140 mm wide (0.19 mm a unit), so
 #: 20 units is about 10.5 pt, and the bold labels (18 units) about 9.5 pt.
@@ -97,7 +100,8 @@ def _runs(flags: Sequence[bool]) -> list[tuple[int, int]]:
 
 
 def _span_text(facts: list[WeekFacts], runs: list[tuple[int, int]]) -> str:
-    return ", ".join(f"{facts[a].week}-{facts[b].week}" if a != b else f"{facts[a].week}" for a, b in runs)
+    return pgettext("list", ", ").join(f"{facts[a].week}-{facts[b].week}" if a != b else f"{facts[a].week}"
+                                       for a, b in runs)
 
 
 @dataclass(frozen=True)
@@ -159,10 +163,13 @@ class _Frame:
         for a, b in _runs([f.weak_window for f in self.facts]):
             x0, x1 = self.x(a), self.x(b + 1)
             self.parts.append(hatch(x0, TOP, x1 - x0, self.ph))
-            if x1 - x0 >= 48:
-                self.parts.append(f'<rect x="{(x0 + x1) / 2 - 24:.1f}" y="{TOP + 3}" width="48" height="23" '
-                                  f'fill="#ffffff"/>')
-                self.parts.append(_text((x0 + x1) / 2, TOP + 20, "hold", size=LABEL, weight="bold"))
+            label = _("hold")
+            # The label's white box: about 0.6 em a letter (a wide CJK character counts two), at least 48.
+            box = max(48.0, 0.6 * LABEL * sum(2 if ord(ch) > 0x2E80 else 1 for ch in label) + 4)
+            if x1 - x0 >= box:
+                self.parts.append(f'<rect x="{(x0 + x1) / 2 - box / 2:.1f}" y="{TOP + 3}" width="{box:g}" '
+                                  f'height="23" fill="#ffffff"/>')
+                self.parts.append(_text((x0 + x1) / 2, TOP + 20, label, size=LABEL, weight="bold"))
 
     def left_axis(self, top: float, step: float, fmt=lambda v: f"{v:g}") -> None:
         v, grid, labels = 0.0, [], []
@@ -195,16 +202,17 @@ class _Frame:
         for i, f in enumerate(self.facts):
             if f.step_up:
                 cx = self.x(i) + self.band / 2
+                title = escape(_("step-up in week %(week)s") % {"week": f.week})
                 self.parts.append(f'<path d="M{cx - 7:.1f},{TOP - 4} L{cx + 7:.1f},{TOP - 4} L{cx:.1f},'
-                                  f'{TOP - 16} Z" fill="{INK}"><title>step-up in week {f.week}</title></path>')
+                                  f'{TOP - 16} Z" fill="{INK}"><title>{title}</title></path>')
 
     def weak_legend(self) -> list[tuple[str, str]]:
         items = []
         if any(f.weak_window for f in self.facts):
             items.append((swatch(hatch(0, 0, 26, 14, spacing=6)),
-                          "hatched, \u201chold\u201d: bone briefly weaker (weeks 3-5 after a step-up)"))
+                          _("hatched, \u201chold\u201d: bone briefly weaker (weeks 3-5 after a step-up)")))
         if any(f.step_up for f in self.facts):
-            items.append((swatch(f'<path d="M6,14 L20,14 L13,2 Z" fill="{INK}"/>'), "step-up in impact level"))
+            items.append((swatch(f'<path d="M6,14 L20,14 L13,2 Z" fill="{INK}"/>'), _("step-up in impact level")))
         return items
 
     def chart(self, scales: Sequence[str], legend: Sequence[tuple[str, str]]) -> Chart:
@@ -216,13 +224,14 @@ def _describe_weeks(facts: list[WeekFacts]) -> str:
     steps = [str(f.week) for f in facts if f.step_up]
     text = []
     if steps:
-        text.append(f"Step-ups in week {', '.join(steps)}.")
+        text.append(ngettext("Step-ups in week %(weeks)s.", "Step-ups in week %(weeks)s.", len(steps))
+                    % {"weeks": pgettext("list", ", ").join(steps)})
     if weak:
-        text.append(f"Hold weeks (weak window): {_span_text(facts, weak)}.")
-    return " ".join(text)
+        text.append(_("Hold weeks (weak window): %(weeks)s.") % {"weeks": _span_text(facts, weak)})
+    return sentence_space().join(text)
 
 
-WEEK_SCALE = "Bottom: week of the program."
+WEEK_SCALE = N_("Bottom: week of the program.")
 
 
 def impacts_chart(plan) -> Chart:
@@ -233,11 +242,13 @@ def impacts_chart(plan) -> Chart:
     """
     facts = week_facts(_coerce(plan))
     first, last = facts[0], facts[-1]
-    desc = (f"Impacts per session go from {first.impacts_per_session} in week {first.week} to "
-            f"{last.impacts_per_session} in week {last.week}, at most "
-            f"{max(f.impacts_per_session for f in facts)}; impact level from {first.impact_level} "
-            f"to {last.impact_level} on a scale of 0 to 3. " + _describe_weeks(facts))
-    frame = _Frame(facts, "chart-impacts", "Landings (impacts) per session, week by week", desc)
+    desc = sentence_space().join(t for t in (_(
+        "Impacts per session go from %(first)s in week %(first_week)s to %(last)s in week %(last_week)s, "
+        "at most %(most)s; impact level from %(first_level)s to %(last_level)s on a scale of 0 to 3.") % {
+            "first": first.impacts_per_session, "first_week": first.week, "last": last.impacts_per_session,
+            "last_week": last.week, "most": max(f.impacts_per_session for f in facts),
+            "first_level": first.impact_level, "last_level": last.impact_level}, _describe_weeks(facts)) if t)
+    frame = _Frame(facts, "chart-impacts", _("Landings (impacts) per session, week by week"), desc)
     top, step = _nice_max(max(f.impacts_per_session for f in facts) * 1.05)
     frame.weak_windows()
     frame.left_axis(top, step)
@@ -271,16 +282,16 @@ def impacts_chart(plan) -> Chart:
             cx, yy = frame.x(i) + frame.band / 2, frame.y(f.impact_level, 3)
             frame.parts.append(f'<rect x="{cx - 5:.1f}" y="{yy - 5:.1f}" width="10" height="10" '
                                f'fill="#ffffff" stroke="{INK}" stroke-width="2"/>')
-            frame.parts.append(_text(cx + 8, yy - 9, f"level {f.impact_level}", size=LABEL,
-                                     anchor="start", weight="bold"))
+            frame.parts.append(_text(cx + 8, yy - 9, _("level %(level)s") % {"level": f.impact_level},
+                                     size=LABEL, anchor="start", weight="bold"))
     frame.week_axis()
     frame.step_marks()
     return frame.chart(
-        ("Left: impacts per session.", "Right: impact level (0-3).", WEEK_SCALE),
+        (_("Left: impacts per session."), _("Right: impact level (0-3)."), _(WEEK_SCALE)),
         [(swatch(f'<rect x="4" y="0" width="18" height="14" fill="{BAR}" stroke="{INK}"/>'),
-          "grey bar: impacts per session"),
+          _("grey bar: impacts per session")),
          (swatch(f'<line x1="0" y1="7" x2="26" y2="7" stroke="{INK}" stroke-width="3" stroke-dasharray="9 4"/>'),
-          "dashed line: impact level (right-hand scale)"),
+          _("dashed line: impact level (right-hand scale)")),
          *frame.weak_legend()])
 
 
@@ -294,17 +305,19 @@ def intensity_chart(plan) -> Chart:
     values = [f.resistance_pct_1rm for f in facts]
     known = [v for v in values if v is not None]
     if known:
-        desc = (f"Resistance load from {known[0]:g}% to {known[-1]:g}% of the one-repetition maximum, "
-                f"highest {max(known):g}%. " + _describe_weeks(facts))
+        desc = sentence_space().join(t for t in (_(
+            "Resistance load from %(first)s to %(last)s of the one-repetition maximum, highest %(most)s.") % {
+                "first": percent(known[0]), "last": percent(known[-1]), "most": percent(max(known))},
+            _describe_weeks(facts)) if t)
     else:
-        desc = "The strength exercises in this program are set by effort, not by a weight."
-    frame = _Frame(facts, "chart-intensity", "Strength exercise load, week by week", desc)
+        desc = _("The strength exercises in this program are set by effort, not by a weight.")
+    frame = _Frame(facts, "chart-intensity", _("Strength exercise load, week by week"), desc)
     frame.weak_windows()
     top = 100.0
-    frame.left_axis(top, 20, fmt=lambda v: f"{v:g}%")
+    frame.left_axis(top, 20, fmt=percent)
     if not known:
         frame.parts.append(_text(LEFT + frame.pw / 2, TOP + frame.ph / 2,
-                                 "Strength work here is set by effort, not by a weight.", size=15))
+                                 _("Strength work here is set by effort, not by a weight."), size=15))
     run: list[str] = []
     segments = []
     for i, v in enumerate([*values, None]):
@@ -323,17 +336,17 @@ def intensity_chart(plan) -> Chart:
         cx, yy = frame.x(i) + frame.band / 2, frame.y(v, top)
         marks.append(f"M{cx - 4:.1f},{yy:.1f}a4,4 0 1,0 8,0a4,4 0 1,0 -8,0Z")
         if i == 0 or values[i - 1] != v:
-            frame.parts.append(_text(cx, yy - 10, f"{v:g}%", size=LABEL, weight="bold"))
+            frame.parts.append(_text(cx, yy - 10, percent(v), size=LABEL, weight="bold"))
     if marks:
         frame.parts.append(f'<path class="marks" d="{"".join(marks)}" fill="#ffffff" stroke="{INK}" '
                            f'stroke-width="2"/>')
     frame.week_axis()
     frame.step_marks()
     return frame.chart(
-        ("Left: weight, as a % of the most you could lift once.", WEEK_SCALE),
+        (_("Left: weight, as a %% of the most you could lift once.") % {}, _(WEEK_SCALE)),
         [(swatch(f'<line x1="0" y1="7" x2="26" y2="7" stroke="{INK}" stroke-width="3"/>'
                  f'<circle cx="13" cy="7" r="4" fill="#ffffff" stroke="{INK}" stroke-width="2"/>'),
-          "line with circles: how heavy"),
+          _("line with circles: how heavy")),
          *frame.weak_legend()])
 
 

@@ -6,7 +6,10 @@ values that go into print CSS (page headers) are escaped as CSS strings.
 
 from __future__ import annotations
 
+import datetime as dt
 import os
+import re
+from dataclasses import dataclass
 from functools import lru_cache
 from pathlib import Path
 from typing import Any
@@ -18,10 +21,11 @@ from .. import __version__
 from ..cautions import PERSON_SHORT_CAUTION, SHORT_CAUTION
 from ..errors import InputError
 from ..fileio import write_atomically
+from ..languages import LANGUAGE_NAMES, N_, SOURCE_LANGUAGE, check_language
 from ..plan_schema import PLAN_FORMAT_VERSION, Plan, parse_plan
-from ..safety import is_draft
-from ..settings import Clinic, clinic as clinic_from_settings
-from . import charts, content, explain_figures, pdf
+from ..safety import is_draft, plan_limits
+from ..settings import Clinic, clinic as clinic_from_settings, translation_review
+from . import charts, content, explain_figures, i18n, pdf
 from .sensor_chart import sensor_charts
 
 AUDIENCES = ("person", "clinician", "both")
@@ -31,12 +35,14 @@ SUFFIXES = (".html", ".pdf")
 TEMPLATES = Path(__file__).with_name("templates")
 
 
-def check_options(audience: str, paper: str, names: tuple[str, str] = ("audience", "paper")) -> None:
-    """Refuse an unknown audience or paper size with an :class:`InputError` naming the option."""
+def check_options(audience: str, paper: str, names: tuple[str, ...] = ("audience", "paper", "language"),
+                  language: str = SOURCE_LANGUAGE) -> None:
+    """Refuse an unknown audience, paper size or language with an :class:`InputError` naming the option."""
     if audience not in AUDIENCES:
         raise InputError.single(names[0], audience, "one of " + ", ".join(AUDIENCES))
     if paper not in PAPERS:
         raise InputError.single(names[1], paper, "one of " + ", ".join(PAPERS))
+    check_language(language, names[2] if len(names) > 2 else "language")
 
 
 def check_out_path(out_path: str | os.PathLike) -> Path:
@@ -62,82 +68,176 @@ def css_string(value: Any) -> Markup:
 @lru_cache(maxsize=1)
 def _environment() -> Environment:
     env = Environment(loader=FileSystemLoader(str(TEMPLATES)), autoescape=True,
-                      undefined=StrictUndefined, trim_blocks=True, lstrip_blocks=True)
+                      undefined=StrictUndefined, trim_blocks=True, lstrip_blocks=True,
+                      extensions=["jinja2.ext.i18n"])
     env.filters["css_string"] = css_string
+    # The person's pages ask the language being rendered (prescribe.handout.i18n.using) for
+    # every text; the clinician's part of the template asks for none.  Whitespace inside a
+    # {% trans %} block is collapsed, as the extraction does (babel.cfg: trimmed).
+    env.policies["ext.i18n.trimmed"] = True
+    env.install_gettext_callables(i18n.gettext, i18n.ngettext, newstyle=True, pgettext=i18n.pgettext)
     return env
 
 
 #: The mark on every page of a draft program's handout.
-DRAFT_TEXT = "DRAFT: do not start this program until a clinician has cleared you for it"
+DRAFT_TEXT = N_("DRAFT: do not start this program until a clinician has cleared you for it")
 
 #: The word first on every page of the person's pages of a paused program (before the DRAFT mark).
-PAUSED_WORD = "PAUSED"
+PAUSED_WORD = N_("PAUSED")
 
 
 def person_pause_text(clinic: Clinic) -> str:
     """What a paused program's person's pages say first, in the person's own plain words
-    (never the clinician's reason); the clinic's contact from the settings when set."""
-    call = f"Call the clinic: {clinic.contact}." if clinic.contact else "Call the clinic."
-    return (f"{PAUSED_WORD}: Do not do these exercises until your clinician tells you to start again. {call} "
-            "Keep to your usual daily activities.")
+    (never the clinician's reason); the clinic's contact from the settings when set.  In the
+    current language."""
+    _ = i18n.gettext
+    call = (_("Call the clinic: %(contact)s.") % {"contact": clinic.contact} if clinic.contact
+            else _("Call the clinic."))
+    return _("%(paused)s: Do not do these exercises until your clinician tells you to start again. %(call)s "
+             "Keep to your usual daily activities.") % {"paused": _(PAUSED_WORD), "call": call}
+
+
+def css_page_counter(text: str) -> Markup:
+    """"page %(page)s of %(pages)s" (translated) as CSS content: strings and page counters."""
+    parts = []
+    for piece in re.split(r"(%\((?:page|pages)\)s)", text):
+        if piece == "%(page)s":
+            parts.append("counter(page)")
+        elif piece == "%(pages)s":
+            parts.append("counter(pages)")
+        elif piece:
+            parts.append(css_string(piece))
+    return Markup(" ".join(parts))
+
+
+@dataclass(frozen=True)
+class LanguageNote:
+    """What the clinician's page says about the language of the person's pages."""
+
+    tag: str
+    name: str
+    review: str
+    mark: str
+    untranslated: tuple[str, ...] = ()
+
+
+def language_note(language: str, untranslated: list[str] | tuple[str, ...] = ()) -> LanguageNote:
+    """The clinician's line on the person's pages' language: whether a qualified translator has
+    reviewed that language's text (the clinic settings), and any text printed untranslated."""
+    name = LANGUAGE_NAMES[language][0]
+    if language == SOURCE_LANGUAGE:
+        return LanguageNote(language, name, "The text is written in English, the clinic's language; "
+                                            "nothing is translated.", "")
+    review = translation_review(language)
+    revised = i18n.revision_date(language)
+    if review.reviewed:
+        text = (f"A qualified translator has reviewed the {name} text: {review.reviewed_by}, on "
+                f"{review.reviewed_on.isoformat()} (clinic settings).")
+        if revised is not None and revised > review.reviewed_on:
+            text += (f" The translation has changed since (revised on {revised.isoformat()}): have the changes "
+                     "reviewed before relying on them.")
+    else:
+        text = (f"No qualified translator has reviewed the {name} text yet. It was written by the developers "
+                "of prescribe; check it with a qualified medical translator or a clinician who reads "
+                f"{name} before the person relies on it. Record a review in the clinic settings "
+                f"([translations.{language}] reviewed_by and reviewed_on).")
+    with i18n.using(language) as lang:
+        mark = lang.gettext(i18n.IN_ENGLISH)
+    return LanguageNote(language, name, text, mark, tuple(untranslated))
 
 
 def handout_context(plan: Plan, audience: str, paper: str, clinic: Clinic, sensor_summary: dict | None = None,
-                    large_print: bool = False) -> dict:
+                    large_print: bool = False, language: str | i18n.Language = SOURCE_LANGUAGE,
+                    untranslated: list[str] | tuple[str, ...] = ()) -> dict:
     """Everything the template shows, worked out from the plan.
 
     What only the person's pages show (charts, tables, guides) or only the clinician's
     (dose rows, evidence) is worked out only when those pages are printed; a PDF for both
-    audiences renders each audience's page on its own.
+    audiences renders each audience's page on its own.  The person's pages are worked out
+    in ``language``, the clinician's in the clinic's language (English); ``untranslated``
+    names the texts the person's pages printed in English (a PDF's clinician part is laid
+    out on its own and is told them).
     """
     facts = content.week_facts(plan)
     person, clinician = audience in ("person", "both"), audience in ("clinician", "both")
     larger = charts.with_larger_text if large_print else (lambda chart: chart)
-    return {
-        "plan": plan, "audience": audience, "paper": paper, "page_size": PAPERS[paper],
-        "large_print": bool(large_print),
-        "person": person, "clinician": clinician,
-        "clinic": clinic, "short_caution": SHORT_CAUTION, "cautions": content.all_cautions(plan),
-        "person_cautions": content.person_cautions(plan) if person else None,
-        "person_notes": plan.screening.person_notes,
-        # Carer-led (screening carer_led): the person's pages speak to whoever helps (docs/handout.md).
-        "carer": bool(plan.screening.carer_led), "person_name": content.person_name(plan),
-        "person_short_caution": PERSON_SHORT_CAUTION,
-        "glance": content.at_a_glance(plan, facts),
-        "goals": content.goals(plan) if person else None,
-        "next_review": content.next_review(plan) if person else None,
-        "reviews": content.review_weeks(plan) if person else None,
-        "table": content.week_table(plan) if person else None,
-        "guides": content.exercise_guides(plan) if person else None,
-        "bouts": content.bout_advice(plan) if person else None,
-        "impacts_chart": larger(charts.impacts_chart(plan)) if person else None,
-        "intensity_chart": larger(charts.intensity_chart(plan)) if person else None,
-        "dose_rows": content.dose_rows(plan) if clinician else None,
-        "evidence": content.evidence(plan) if clinician else None,
-        "explanations": explain_figures.plan_explanations(plan) if clinician else None,
-        **(_limits_and_why(plan) if clinician else {"limits": None}),
-        "screening": plan.screening, "level_labels": content.LEVEL_LABELS, "if_hard_general": content.IF_HARD_GENERAL,
-        "versions": [("Tool version (plan)", plan.tool_version), ("Rule-set version", plan.ruleset_version),
-                     ("Template", _template_text(plan)),
-                     ("Plan format", plan.plan_format_version), ("Plan created", plan.created),
-                     ("Handout made by", f"prescribe {__version__}, plan format {PLAN_FORMAT_VERSION}")],
-        "has_weak": any(f.weak_window for f in facts),
-        # A referred person's program not yet cleared: DRAFT on every page (docs/safety.md).
-        "draft": is_draft(plan), "draft_text": DRAFT_TEXT,
-        # A paused program (docs/sessions.md): PAUSED first on every page of the person's pages,
-        # in their own words; the clinician's pages give the date, week and reason.
-        "pause": plan.paused, "resumed": plan.resumed, "paused_word": PAUSED_WORD,
-        "person_pause_text": person_pause_text(clinic),
-        "minutes_only": any(f.impact_level >= 1 and not f.impacts_per_session for f in facts),
-        "sensor_charts": sensor_charts(sensor_summary) if clinician else [],
-    }
+    with i18n.using(SOURCE_LANGUAGE):  # the clinician's pages, whatever the person's language
+        ctx = {
+            "plan": plan, "audience": audience, "paper": paper, "page_size": PAPERS[paper],
+            "large_print": bool(large_print),
+            "person": person, "clinician": clinician,
+            "clinic": clinic, "short_caution": SHORT_CAUTION, "cautions": content.all_cautions(plan),
+            # Carer-led (screening carer_led): the person's pages speak to whoever helps (docs/handout.md).
+            "carer": bool(plan_limits(plan).carer_led), "person_name": content.person_name(plan),
+            "glance": content.at_a_glance(plan, facts),
+            "dose_rows": content.dose_rows(plan) if clinician else None,
+            "evidence": content.evidence(plan) if clinician else None,
+            "explanations": explain_figures.plan_explanations(plan) if clinician else None,
+            **(_limits_and_why(plan) if clinician else {"limits": None}),
+            "screening": plan.screening, "level_labels": content.LEVEL_LABELS,
+            "versions": [("Tool version (plan)", plan.tool_version), ("Rule-set version", plan.ruleset_version),
+                         ("Template", _template_text(plan)),
+                         ("Plan format", plan.plan_format_version), ("Plan created", plan.created),
+                         ("Handout made by", f"prescribe {__version__}, plan format {PLAN_FORMAT_VERSION}")],
+            "has_weak": any(f.weak_window for f in facts),
+            # A referred person's program not yet cleared: DRAFT on every page (docs/safety.md).
+            "draft": is_draft(plan),
+            # A paused program (docs/sessions.md): PAUSED first on every page of the person's pages,
+            # in their own words; the clinician's pages give the date, week and reason.
+            "pause": plan.paused, "resumed": plan.resumed,
+            "minutes_only": any(f.impact_level >= 1 and not f.impacts_per_session for f in facts),
+            "sensor_charts": sensor_charts(sensor_summary) if clinician else [],
+            "clinician_page_counter": css_page_counter("page %(page)s of %(pages)s"),
+        }
+    with i18n.using(language) as lang:  # the person's pages
+        _ = i18n.gettext
+        name = ctx["person_name"]
+        ctx.update({
+            "language": lang.tag, "html_lang": lang.tag if person else SOURCE_LANGUAGE,
+            "document_title": (_("Exercise program for %(name)s") % {"name": name} if person and not clinician
+                               else f"Exercise program for {plan.patient_id}"),
+            "person_cautions": content.person_cautions(plan) if person else None,
+            "person_notes": [i18n.translate(text) for text in plan.screening.person_notes],
+            "person_short_caution": i18n.translate(PERSON_SHORT_CAUTION),
+            "person_header": _("Program for %(name)s") % {"name": name},
+            "page_counter": css_page_counter(_("page %(page)s of %(pages)s")),
+            "person_glance": content.at_a_glance(plan, facts) if person else None,
+            "made_on": content.weeks.day_words(_created_day(plan)) if person else None,
+            "goals": content.goals(plan) if person else None,
+            "next_review": content.next_review(plan) if person else None,
+            "reviews": content.review_weeks(plan) if person else None,
+            "table": content.week_table(plan) if person else None,
+            "guides": content.exercise_guides(plan) if person else None,
+            "bouts": content.bout_advice(plan) if person else None,
+            "impacts_chart": larger(charts.impacts_chart(plan)) if person else None,
+            "intensity_chart": larger(charts.intensity_chart(plan)) if person else None,
+            "if_hard_general": _(content.IF_HARD_GENERAL),
+            "hold_note": _(content.tables.HOLD_NOTE),
+            "paused_word": _(PAUSED_WORD) if person else PAUSED_WORD,
+            "person_pause_text": person_pause_text(clinic),
+            # Punctuation as the language writes it (Chinese: full-width, no spaces).
+            "stop": i18n.pgettext("end of sentence", "."), "colon": i18n.pgettext("label colon", ":"),
+            "name_join": i18n.pgettext("sentence join", ". "), "sentence_space": i18n.sentence_space(),
+            "in_brackets": lambda text: _("(%(text)s)") % {"text": text},
+        })
+        draft_text = _(DRAFT_TEXT) if person else DRAFT_TEXT
+    if person and clinician and not lang.english:
+        draft_text += " / " + DRAFT_TEXT  # one HTML page for both: the mark in both languages
+    ctx["draft_text"] = draft_text
+    ctx["person_language"] = lang
+    ctx["language_note"] = language_note(lang.tag, [*untranslated, *lang.missing]) if clinician else None
+    return ctx
+
+
+def _created_day(plan: Plan) -> dt.date:
+    """The day the plan was made (its ``created`` stamp's date)."""
+    return dt.date.fromisoformat(plan.created[:10])
 
 
 def _limits_and_why(plan: Plan) -> dict:
     """The clinician's pages: the plan's limits with their reasons, and each exercise's reasons,
     the sources numbered once (prescribe.planning.why prints the same rows for `prescribe why`)."""
     from ..planning.why import limit_rows, why_by_exercise
-    from ..safety import plan_limits
     limits = plan_limits(plan)
     numbers: dict[str, int] = {}
 
@@ -157,56 +257,74 @@ def _limits_and_why(plan: Plan) -> dict:
 
 
 def render_html(plan: Plan | dict, audience: str = "both", paper: str = "a4",
-                clinic: Clinic | None = None, sensor_summary: dict | None = None, large_print: bool = False) -> str:
+                clinic: Clinic | None = None, sensor_summary: dict | None = None, large_print: bool = False,
+                language: str = SOURCE_LANGUAGE) -> str:
     """The handout as one self-contained HTML page (print CSS and inline SVG charts).
 
-    ``audience`` is person, clinician or both; ``paper`` is a4 or letter.  The
+    ``audience`` is person, clinician or both; ``paper`` is a4 or letter; ``language`` one of
+    :data:`prescribe.languages.LANGUAGES` (the person's pages; the clinician's stay in English).  The
     clinic's name and contact come from :func:`prescribe.settings.clinic` unless given.
     ``large_print`` sets the person's pages in the large-print edition (body text 15 pt,
     headings larger, the same content reflowed); the clinician's pages stay as they are.
     """
-    check_options(audience, paper)
+    return _render_html(plan, audience, paper, clinic, sensor_summary, large_print, language)[0]
+
+
+def _render_html(plan, audience, paper, clinic, sensor_summary, large_print, language,
+                 untranslated: tuple[str, ...] = ()) -> tuple[str, list[str]]:
+    """The HTML and the texts of the person's pages that had no translation (printed in English)."""
+    check_options(audience, paper, language=language)
     plan = as_plan(plan)
     clinic = clinic if clinic is not None else clinic_from_settings()
-    return _environment().get_template("handout.html.j2").render(
-        **handout_context(plan, audience, paper, clinic, sensor_summary, large_print))
+    ctx = handout_context(plan, audience, paper, clinic, sensor_summary, large_print, language, untranslated)
+    lang = ctx["person_language"]
+    with i18n.using(lang):
+        html = _environment().get_template("handout.html.j2").render(**ctx)
+    return html, list(lang.missing)
 
 
 def render_pdf(plan: Plan | dict, audience: str = "both", paper: str = "a4",
                clinic: Clinic | None = None, parallel: bool | None = None,
-               sensor_summary: dict | None = None, large_print: bool = False) -> bytes:
+               sensor_summary: dict | None = None, large_print: bool = False,
+               language: str = SOURCE_LANGUAGE) -> bytes:
     """The handout as PDF bytes (WeasyPrint), with page numbers and the short caution on every page.
 
     For both audiences the person's pages and the clinician's pages are two documents,
     each numbered on its own, joined into one file; they are laid out side by side
     when the machine allows (``parallel`` None decides; see :mod:`prescribe.handout.pdf`).
+    The person's pages are in ``language``; the clinician's part is told which of their texts
+    had no translation.
     """
-    check_options(audience, paper)
+    check_options(audience, paper, language=language)
     plan = as_plan(plan)
     clinic = clinic if clinic is not None else clinic_from_settings()
     audiences = ("person", "clinician") if audience == "both" else (audience,)
-    htmls = [render_html(plan, audience=a, paper=paper, clinic=clinic, sensor_summary=sensor_summary,
-                         large_print=large_print) for a in audiences]
+    htmls, missing = [], []
+    for part in audiences:
+        html, missed = _render_html(plan, part, paper, clinic, sensor_summary, large_print, language, tuple(missing))
+        htmls.append(html)
+        missing += [text for text in missed if text not in missing]
     return pdf.join_pdfs(pdf.render_parts(htmls, base_url=str(TEMPLATES), parallel=parallel))
 
 
 def write_handout(plan: Plan | dict, out_path: str | os.PathLike, audience: str = "both",
                   paper: str = "a4", clinic: Clinic | None = None, sensor_summary: dict | None = None,
-                  large_print: bool = False) -> Path:
-    """Write the handout as HTML or PDF, chosen by the suffix of ``out_path``.
+                  large_print: bool = False, language: str = SOURCE_LANGUAGE) -> Path:
+    """Write the handout as HTML or PDF, chosen by the suffix of ``out_path``; the person's pages in
+    ``language``.
 
     The file is written to a temporary name first and then renamed, so an existing
     file is never left half written.
     """
     out = check_out_path(out_path)
     suffix = out.suffix.lower()
-    check_options(audience, paper, ("--audience", "--paper"))
+    check_options(audience, paper, ("--audience", "--paper", "--language"), language)
     if suffix == ".pdf":
         data = render_pdf(plan, audience=audience, paper=paper, clinic=clinic, sensor_summary=sensor_summary,
-                          large_print=large_print)
+                          large_print=large_print, language=language)
     else:
         data = render_html(plan, audience=audience, paper=paper, clinic=clinic,
-                           sensor_summary=sensor_summary, large_print=large_print).encode("utf-8")
+                           sensor_summary=sensor_summary, large_print=large_print, language=language).encode("utf-8")
     directory = out.parent if str(out.parent) else Path(".")
     if not directory.is_dir():
         raise InputError.single("--out", str(out_path), "a file in an existing folder")

@@ -17,6 +17,7 @@ from .. import __version__
 from ..cautions import with_standard
 from ..catalogue import IMPACT_LEVEL_LABELS
 from ..errors import InputError, PlanRequestRefused
+from ..languages import N_
 from ..plan_schema import PLAN_FORMAT_VERSION, Plan, PlannedExercise, PlannedSession, PlannedWeek
 from ..records import PatientRecord, ScreeningResult
 from .dosing import _Dosing
@@ -128,34 +129,37 @@ class _Builder(_Selection, _Progression, _Dosing, _Layout, _Why):
                 self.sources.append(SRC_ROBLING)
         if any(w["impact_volume_unit"] == "minutes" for w in weeks):
             self.sources.append(SRC_CADENCE)
-        self.cautions.append("Weeks 3 to 5 after each step up in impact or in strength work (and after the "
-                             "start) are a consolidation window: do not add impacts, raise the level or add "
-                             "weight then.")
+        # Every caution is also printed on the person's pages, in the person's language: marked
+        # with N_ for the translations, figures as named placeholders (prescribe.languages).
+        self.cautions.append(N_("Weeks 3 to 5 after each step up in impact or in strength work (and after the "
+                                "start) are a consolidation window: do not add impacts, raise the level or add "
+                                "weight then."))
         if any(x["supervised"] for lst in (*used["impact"], *used["resistance"]) for x in lst):
             # Supervised: 80% 1RM or more, or high impact (docs/safety.md); said in plain words
             # because the plan's cautions are printed on the person's pages too.
-            self.cautions.append("Exercises marked supervised (heavy lifts and the hardest jumps) are done only "
-                                 "with a clinician or trainer present.")
+            self.cautions.append(N_("Exercises marked supervised (heavy lifts and the hardest jumps) are done "
+                                    "only with a clinician or trainer present."))
         if used_l23:
-            self.cautions.append("Impact work: land with control on a firm, non-slip surface in supportive "
-                                 "shoes; more than 50 impacts in a day are split into bouts at least 4 h apart.")
+            self.cautions.append(N_("Impact work: land with control on a firm, non-slip surface in supportive "
+                                    "shoes; more than 50 impacts in a day are split into bouts at least 4 h apart."))
         if self.limits.refer:
-            self.cautions.insert(0, "Screening asks that a clinician clear this person before any loading: "
-                                    "do not start this program until then.")
+            self.cautions.insert(0, N_("Screening asks that a clinician clear this person before any loading: "
+                                       "do not start this program until then."))
         if self.limits.supervision and not self.carer_led:
-            self.cautions.append("Supervised sessions are advised for this person, at least at first.")
+            self.cautions.append(N_("Supervised sessions are advised for this person, at least at first."))
         if self.carer_led:
             self.sources.append(SRC_CARER_LED)
-            self.cautions.append("Every session is done with a clinician or a carer present: a short program on "
-                                 f"at most {CARER_LED_MAX_DAYS} days a week, {CARER_LED_MAX_EXERCISES} exercises a "
-                                 "session.")
+            self.cautions.append(N_("Every session is done with a clinician or a carer present: a short program "
+                                    "on at most %(days)s days a week, %(exercises)s exercises a session.")
+                                 % {"days": CARER_LED_MAX_DAYS, "exercises": CARER_LED_MAX_EXERCISES})
         if self.hold_volume:
             self.sources.append(SRC_HOLD_VOLUME)
-            self.cautions.append("The program stays at its starting dose (no rise in volume, level or load) until "
-                                 "a clinician records the clearance after the medical and dietetic review.")
+            self.cautions.append(N_("The program stays at its starting dose (no rise in volume, level or load) "
+                                    "until a clinician records the clearance after the medical and dietetic review."))
         if self.max_pct_1rm is not None:
-            self.cautions.append(f"No resistance load above {self.max_pct_1rm}% 1RM until a clinician records "
-                                 "that the reason for this limit has gone (see the screening flags).")
+            self.cautions.append(N_("No resistance load above %(pct)s%% 1RM until a clinician records that the "
+                                    "reason for this limit has gone (see the screening flags).")
+                                 % {"pct": self.max_pct_1rm})
         used_ids = {x["exercise_id"] for lst in (*used["impact"], *used["resistance"], *used["balance"])
                     for x in lst}
         ex_sources = [e.source for e in _views_by_id(self.pool, used_ids)]

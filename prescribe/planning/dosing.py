@@ -12,6 +12,7 @@ import math
 from functools import lru_cache
 from typing import Any, Iterable
 
+from ..languages import N_
 from ..loading.dose import daily_osteogenic_index, osteogenic_index
 from .templates import ResistancePhase
 from ..intensity import needs_supervision, pct_1rm as _pct_1rm
@@ -47,6 +48,10 @@ def _rpe_for(pct: float | None, fallback: str) -> str:
     if pct < 80:
         return "RPE 6-7"
     return "RPE 7-8"
+
+
+#: The intensity of high-impact work (the person's pages say "your hardest controlled effort").
+MAXIMAL_EFFORT = "maximal controlled effort"
 
 
 def _exercise(e: _Ex, **kw) -> dict:
@@ -98,11 +103,11 @@ class _Dosing:
             chosen = chosen[:CARER_LED_MAX_EXERCISES - 2]
         if level == 0:
             return [_exercise(e, sets=2, reps=vol, rest_s=60, intensity="RPE 3-4",
-                              notes="Weight-bearing, feet on the ground; hold a support if needed.")
+                              notes=N_("Weight-bearing, feet on the ground; hold a support if needed."))
                     for e in chosen]
         if level == 1:
             return [_exercise(e, minutes=float(vol), intensity="RPE 3-4",
-                              notes="Steady pace; firm, even footfalls.") for e in chosen]
+                              notes=N_("Steady pace; firm, even footfalls.")) for e in chosen]
         split = self.tpl.impact["bout_split_above"]
         bouts = max(1, math.ceil(vol / split))
         gap = self.tpl.impact["bout_gap_hours"] if bouts > 1 else None
@@ -111,12 +116,16 @@ class _Dosing:
         out = []
         for i, e in enumerate(chosen[:k]):
             n = base + (1 if i < extra else 0)
-            note = (f"Sets of about {IMPACTS_PER_SET} with {IMPACT_REST_S} s rest; land with control.")
+            # The planner's notes are printed on the person's pages, in the person's language
+            # (prescribe.languages: N_ and named placeholders).
+            figures = {"reps": IMPACTS_PER_SET, "rest": IMPACT_REST_S}
+            note = N_("Sets of about %(reps)s with %(rest)s s rest; land with control.") % figures
             if bouts > 1:
-                note += (f" Split into {bouts} bouts at least {MIN_BOUT_GAP_H:g} h apart "
-                         f"(about {gap:g} h is best).")
+                note = N_("Sets of about %(reps)s with %(rest)s s rest; land with control. Split into %(bouts)s "
+                          "bouts at least %(min_gap)s h apart (about %(gap)s h is best).") % {
+                    **figures, "bouts": bouts, "min_gap": f"{MIN_BOUT_GAP_H:g}", "gap": f"{gap:g}"}
             out.append(_exercise(e, sets=math.ceil(n / IMPACTS_PER_SET), reps=None, impacts=n, bouts=bouts,
-                                 intensity="maximal controlled effort" if e.impact_level == 3 else "RPE 5-6",
+                                 intensity=MAXIMAL_EFFORT if e.impact_level == 3 else "RPE 5-6",
                                  rest_s=IMPACT_REST_S, bout_gap_hours=gap, notes=note))
         return out
 
@@ -124,10 +133,11 @@ class _Dosing:
         ph, lifts, practice, bodyweight = self.resistance_mode(week, ph)
         rest = 60 if ph.pct_1rm is None else (90 if ph.pct_1rm < 80 else 150)
         by_effort = ph.pct_1rm is None and ph.name != "technique"
-        note = f"{ph.name} phase: smooth, controlled lifting; breathe out on effort."
+        note = N_("%(phase)s phase: smooth, controlled lifting; breathe out on effort.") % {"phase": ph.name}
         if by_effort:
-            note += (" Progress by effort: when every set feels easier than the effort asked in two sessions "
-                     "running, add 2-10% to the load.")
+            note = N_("%(phase)s phase: smooth, controlled lifting; breathe out on effort. Progress by effort: "
+                      "when every set feels easier than the effort asked in two sessions running, add 2-10%% to "
+                      "the load.") % {"phase": ph.name}
         out = []
         for chain in self.chains:
             if bodyweight:
@@ -146,8 +156,8 @@ class _Dosing:
                 sets, reps = LIFT_PRACTICE_SETS, LIFT_PRACTICE_REPS
                 pct = LIFT_PRACTICE_PCT if pct is None else min(pct, LIFT_PRACTICE_PCT)
                 ex_rest = 90
-                ex_note = ("Light practice of this lift: learn the movement with a light load, supervised, "
-                           "before it is loaded more heavily.")
+                ex_note = N_("Light practice of this lift: learn the movement with a light load, supervised, "
+                             "before it is loaded more heavily.")
             elif pct is not None and pct >= 80 and not e.loaded_by_1rm:
                 # 5 x 5 at 80-85% 1RM is for the main barbell lifts (Watson et al. 2018);
                 # accessory work stays at 3 x 8 (Brooke-Wavell et al. 2022).
@@ -167,7 +177,7 @@ class _Dosing:
         for e in extra:
             out.append(_exercise(e, sets=2, reps=8 if ph.name == "technique" else 10,
                                  intensity="RPE 3-4" if ph.name == "technique" else "RPE 5-6", rest_s=60,
-                                 notes="Spine long and neutral throughout."))
+                                 notes=N_("Spine long and neutral throughout.")))
         return out, ph
 
     def balance_exercises(self, week: int, minutes: float) -> list[dict]:
@@ -176,8 +186,9 @@ class _Dosing:
             return []
         each = max(1.0, round(2 * minutes / len(chosen)) / 2)
         _, held = self._stance_limit()
-        hold = ("hold 10-30 s at a time" if held is None else
-                f"hold up to {max(5, int(held)) if held < 30 else 30} s at a time (as long as held at the test)")
-        return [_exercise(e, minutes=each, rest_s=30, intensity="challenging but safe",
-                          notes=f"Near a counter or stable support; {hold}.") for e in chosen]
+        hold = (N_("hold 10-30 s at a time") if held is None else
+                N_("hold up to %(seconds)s s at a time (as long as held at the test)")
+                % {"seconds": max(5, int(held)) if held < 30 else 30})
+        return [_exercise(e, minutes=each, rest_s=30, intensity=N_("challenging but safe"),
+                          notes=N_("Near a counter or stable support; %(hold)s.") % {"hold": hold}) for e in chosen]
 

@@ -13,6 +13,7 @@ from dataclasses import dataclass, replace
 from typing import Iterable
 
 from ..catalogue import IMPACT_LEVEL_LABELS as IMPACT_LABELS
+from ..languages import N_
 from ..records import FIELD_META, PatientRecord, ScreeningResult
 from .progression import reassessment_weeks
 from .templates import Template
@@ -178,16 +179,17 @@ class _Selection:
         while start > 0 and not self.sets_by_level.get(start):
             start -= 1
         if self.options.start_level is not None and start < self.options.start_level:
-            self.cautions.append(f"The start level was lowered from {self.options.start_level} to {start}: "
-                                 "too few allowed exercises at that level (from moderate impact on they must "
-                                 "load the skeleton in at least two directions).")
+            self.cautions.append(N_("The start level was lowered from %(asked)s to %(start)s: too few allowed "
+                                    "exercises at that level (from moderate impact on they must load the skeleton "
+                                    "in at least two directions).") % {"asked": self.options.start_level,
+                                                                       "start": start})
         top = start
         while top + 1 <= self.cap and self.sets_by_level.get(top + 1):
             top += 1
         if top < self.cap:
-            self.cautions.append(f"Impact work stops at level {top} ({IMPACT_LABELS[top]}), below the allowed "
-                                 f"{self.cap}: too few allowed exercises above it to load the skeleton in at "
-                                 "least two directions.")
+            self.cautions.append(N_("Impact work stops at level %(top)s (%(label)s), below the allowed %(cap)s: "
+                                    "too few allowed exercises above it to load the skeleton in at least two "
+                                    "directions.") % {"top": top, "label": IMPACT_LABELS[top], "cap": self.cap})
         self.start, self.top = start, top
 
     def _choose_resistance(self) -> None:
@@ -205,8 +207,9 @@ class _Selection:
                 self.phases = tuple(self.phases[names.index(wanted):])
                 self.continuing = names.index(wanted) > 0
             else:
-                self.cautions.append(f"Resistance work starts from the first phase ({names[0]}): this program's "
-                                     f"phases ({', '.join(names)}) do not include {wanted!r}, the phase asked for.")
+                self.cautions.append(N_("Resistance work starts from the first phase (%(first)s): this program's "
+                                        "phases (%(phases)s) do not include %(asked)s, the phase asked for.")
+                                     % {"first": names[0], "phases": ", ".join(names), "asked": repr(wanted)})
         self.frail = _frail(self.record, self.screening)
         allowed = {e.exercise_id for e in self.pool
                    if not (e.patterns & NEVER_IN_RESISTANCE) and e.impact_level == 0
@@ -220,15 +223,16 @@ class _Selection:
             if (self.spine_sparing or "thoracic_kyphosis" in self.record.conditions) else []
         if self.spine_sparing:
             self.sources.append(SRC_GIANG)
-            self.cautions.append(f"Spine-sparing program ({why}): keep the spine long and neutral; no loaded "
-                                 "or repeated forward bending or twisting of the spine, and moderate loads only.")
+            self.cautions.append(N_("Spine-sparing program (%(why)s): keep the spine long and neutral; no loaded "
+                                    "or repeated forward bending or twisting of the spine, and moderate loads only.")
+                                 % {"why": why})
         if any(ph.pct_1rm is None and ph.name != "technique" for ph in self.phases):
             self.sources.append(SRC_ACSM_PROGRESSION)
         if self.frail:
-            self.cautions.append("Weak legs for age (30-s chair stand below the norm): supervised sessions; "
-                                 "sit-to-stand from a chair comes before any loaded squat, and body-weight "
-                                 f"forms of the strength exercises are used for at least the first "
-                                 f"{FRAIL_BODYWEIGHT_WEEKS} weeks.")
+            self.cautions.append(N_("Weak legs for age (30-s chair stand below the norm): supervised sessions; "
+                                    "sit-to-stand from a chair comes before any loaded squat, and body-weight "
+                                    "forms of the strength exercises are used for at least the first %(weeks)s "
+                                    "weeks.") % {"weeks": FRAIL_BODYWEIGHT_WEEKS})
         self.sources.append(SRC_BROOKE)
 
     def _choose_balance(self) -> None:
@@ -237,16 +241,18 @@ class _Selection:
         narrow_from, held = self._stance_limit()
         if held is not None and any(NARROW_STANCE_PATTERN in e.patterns for e in self.balance_pool):
             self.sources.append(SRC_BALANCE_MEASURED)
-            self.cautions.append(f"Tandem stance was held for {held:g} s of {TANDEM_TEST_FULL_S:g}: balance work "
-                                 "starts with feet together and stepping, holds no longer than the person held, and "
-                                 f"heel-to-toe or one-leg stance waits for the review (from week {narrow_from}).")
+            self.cautions.append(N_("Tandem stance was held for %(held)s s of %(full)s: balance work starts with "
+                                    "feet together and stepping, holds no longer than the person held, and "
+                                    "heel-to-toe or one-leg stance waits for the review (from week %(week)s).")
+                                 % {"held": f"{held:g}", "full": f"{TANDEM_TEST_FULL_S:g}", "week": narrow_from})
         if self.falls:
             self.sources.append(SRC_GIANG)
-            impact = (f"impact work does not step above low impact in the first {BALANCE_FIRST_WEEKS} weeks"
-                      if self.start <= 1 else
-                      f"the clinician chose to start impact work at level {self.start} ({IMPACT_LABELS[self.start]})")
-            self.cautions.append("Falls risk: balance work comes first in each session and is practised "
-                                 f"next to a stable support, supervised at first; {impact}.")
+            impact = (N_("impact work does not step above low impact in the first %(weeks)s weeks")
+                      % {"weeks": BALANCE_FIRST_WEEKS} if self.start <= 1 else
+                      N_("the clinician chose to start impact work at level %(level)s (%(label)s)")
+                      % {"level": self.start, "label": IMPACT_LABELS[self.start]})
+            self.cautions.append(N_("Falls risk: balance work comes first in each session and is practised next to "
+                                    "a stable support, supervised at first; %(impact)s.") % {"impact": impact})
 
     def _stance_limit(self) -> tuple[int, float | None]:
         """(first week narrow-base stance may be used, seconds held) where the person could not hold

@@ -14,6 +14,7 @@ from functools import lru_cache
 from typing import Iterable
 
 from ..intensity import SUPERVISED_FROM_PCT_1RM
+from ..languages import N_
 from ..plan_schema import LimitReason, Plan, PlanLimits
 from ..records import PatientRecord, ScreeningResult
 from .model import IMPACTS_CEILING, Limits
@@ -97,6 +98,15 @@ def _effect(flag, cleared: bool):
     return eff
 
 
+#: Why a program is spine-sparing when the screening asks to avoid loaded spinal movements.
+_AVOID_SPINAL = {
+    ("loaded_spinal_flexion",): N_("the screening asks to avoid loaded spinal flexion"),
+    ("loaded_spinal_twisting",): N_("the screening asks to avoid loaded spinal twisting"),
+    ("loaded_spinal_flexion", "loaded_spinal_twisting"):
+        N_("the screening asks to avoid loaded spinal flexion and loaded spinal twisting"),
+}
+
+
 def spine_sparing_reason(records: Iterable[PatientRecord], screening: ScreeningResult,
                          caps: TemplateCaps) -> tuple[str, str] | None:
     """Why the program is spine-sparing throughout, with its source; None when it is not.
@@ -104,23 +114,23 @@ def spine_sparing_reason(records: Iterable[PatientRecord], screening: ScreeningR
     The one place the decision is made: the planner chooses spine-sparing variants and phases
     from it, the safety check holds strength work to spine-sparing loads from it.
     """
+    # The reasons reach the person's pages inside the spine-sparing caution: marked for translation.
     if caps.spine_sparing:
-        return f"the {caps.name} template is spine-sparing", caps.spine_source
+        return N_("the %(name)s template is spine-sparing") % {"name": caps.name}, caps.spine_source
     for record in records:
         if any(f.site == "vertebra" for f in record.fractures):
-            return "a vertebral fracture is on record", SRC_SPINE_SPARING
+            return N_("a vertebral fracture is on record"), SRC_SPINE_SPARING
         if sum(1 for f in record.fractures if f.low_trauma) >= 2:
-            return "two or more fragility fractures (high vertebral fracture risk)", SRC_SPINE_SPARING
+            return N_("two or more fragility fractures (high vertebral fracture risk)"), SRC_SPINE_SPARING
         if "thoracic_kyphosis" in record.conditions:
-            return "marked thoracic kyphosis", SRC_SPINE_SPARING
+            return N_("marked thoracic kyphosis"), SRC_SPINE_SPARING
         if any(s.procedure in SPINAL_PROCEDURES for s in getattr(record, "surgeries", None) or ()):
-            return "spinal surgery on record", SRC_SPINAL_SURGERY
+            return N_("spinal surgery on record"), SRC_SPINAL_SURGERY
     if screening.bone_density_category == "severe_osteoporosis":
-        return "severe osteoporosis", SRC_SPINE_SPARING
-    spinal = sorted(SPINAL_PATTERNS & set(screening.avoid))
+        return N_("severe osteoporosis"), SRC_SPINE_SPARING
+    spinal = tuple(sorted(SPINAL_PATTERNS & set(screening.avoid)))
     if spinal:
-        return ("the screening asks to avoid " + " and ".join(p.replace("_", " ") for p in spinal),
-                SRC_SPINE_SPARING)
+        return _AVOID_SPINAL[spinal], SRC_SPINE_SPARING
     return None
 
 

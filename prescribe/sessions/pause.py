@@ -19,7 +19,7 @@ from __future__ import annotations
 from typing import Any
 
 from ..errors import InputError
-from ..plan_schema import Plan, PlanPause, PlanResume
+from ..languages import N_
 
 #: Longest resumption reason accepted [characters]: a sentence or a short paragraph for the
 #: record, not a clinical letter.
@@ -41,8 +41,8 @@ def keeps_pause(pause: PlanPause, new_plan: Plan | None) -> bool:
 def pause_caution(week: int) -> str:
     """The caution a paused program carries (the clinician's words; the person's pages say it
     in their own words, first on every page)."""
-    return (f"Paused from week {week}: do not continue this program until a clinician has assessed the "
-            "person.")
+    return N_("Paused from week %(week)s: do not continue this program until a clinician has assessed the "
+              "person.") % {"week": week}
 
 
 def checked_reason(reason: Any, field: str = "reason") -> str:

@@ -408,10 +408,11 @@ class ClinicSession:
 
     # -- handout ----------------------------------------------------------------
     def handout(self, fmt: str = "html", audience: str = "both", paper: str = "a4",
-                large_print: bool = False) -> bytes:
+                large_print: bool = False, language: str = "en") -> bytes:
         """The handout of the current program as HTML (UTF-8 bytes) or PDF bytes.
 
-        ``large_print`` gives the large-print edition of the person's pages.
+        ``large_print`` gives the large-print edition of the person's pages; ``language`` the
+        language of the person's pages (prescribe.languages.LANGUAGES).
         """
         if self.plan is None:
             raise InputError.single("program", None, "a built program (check the person's details first)")
@@ -420,9 +421,9 @@ class ClinicSession:
         sensor = self.latest_sensor_summary()  # the clinician's page shows it when there is one
         if fmt == "pdf":
             return _handout().render_pdf(self.plan, audience=audience, paper=paper, sensor_summary=sensor,
-                                                 large_print=large_print)
+                                         large_print=large_print, language=language)
         html = _handout().render_html(self.plan, audience=audience, paper=paper, sensor_summary=sensor,
-                                              large_print=large_print)
+                                      large_print=large_print, language=language)
         return html.encode("utf-8") if isinstance(html, str) else html
 
     def latest_sensor_summary(self) -> dict | None:

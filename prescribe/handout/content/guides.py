@@ -9,20 +9,22 @@ from typing import Callable
 from ...catalogue import Exercise, default_catalogue
 from ...errors import CatalogueError, InputError
 from ...plan_schema import Plan
+from ...languages import N_
+from ..i18n import gettext as _, translate
 from .weeks import week_exercises
-from .wording import LEVEL_LABELS, dose_text, short_name, week_spans
+from .wording import dose_text, exercise_name, full_stop, level_label, sentences, short_name, week_spans
 
 #: Fallback wording when the catalogue has no entry (common practice; wording ours).
 _FEEL_FALLBACK = {
-    "impact": "Firm, quick landings that you feel through your heels and hips, but that do not hurt. "
-              "You may be a little out of breath.",
-    "resistance": "The last two repetitions of each set feel hard, but you can still keep good form "
-                  "and breathe normally.",
-    "balance": "A little wobbly but in control. Stand next to a kitchen counter or a wall you can hold.",
+    "impact": N_("Firm, quick landings that you feel through your heels and hips, but that do not hurt. "
+                 "You may be a little out of breath."),
+    "resistance": N_("The last two repetitions of each set feel hard, but you can still keep good form "
+                     "and breathe normally."),
+    "balance": N_("A little wobbly but in control. Stand next to a kitchen counter or a wall you can hold."),
 }
-_FEEL_DEFAULT = "Comfortable effort: you can still talk in short sentences."
-_IF_HARD_FALLBACK = ("Do fewer, or go back to last week's amount. Make the movement smaller and slower. "
-                     "If it still hurts or you feel unsteady, stop and call the clinic.")
+_FEEL_DEFAULT = N_("Comfortable effort: you can still talk in short sentences.")
+_IF_HARD_FALLBACK = N_("Do fewer, or go back to last week's amount. Make the movement smaller and slower. "
+                       "If it still hurts or you feel unsteady, stop and call the clinic.")
 
 
 def _catalogue_lookup() -> Callable[[str], Exercise | None]:
@@ -61,7 +63,8 @@ class ExerciseGuide:
 #: At most this many of the planner's notes are shown per exercise.
 MAX_NOTES = 1
 
-#: Shown once above the exercise guides (common practice; wording ours).
+#: Shown once above the exercise guides (common practice; wording ours); in English (the
+#: template shows it in the person's language).
 IF_HARD_GENERAL = _IF_HARD_FALLBACK
 
 
@@ -75,31 +78,36 @@ def exercise_guides(plan: Plan, lookup: Callable[[str], Exercise | None] | None 
     notes: dict[str, list[str]] = {}
     for wk in sorted(plan.weeks, key=lambda w: w.week):
         for ex in week_exercises(wk):
-            if ex.notes and ex.notes not in notes.setdefault(ex.exercise_id, []):
-                notes[ex.exercise_id].append(ex.notes)
+            if ex.notes and (note := translate(ex.notes)) not in notes.setdefault(ex.exercise_id, []):
+                notes[ex.exercise_id].append(note)
             if ex.exercise_id in seen:
                 continue
             entry = lookup(ex.exercise_id)
-            how = entry.instructions if entry is not None else None
-            feel = entry.should_feel if entry is not None else None
+            how = translate(entry.instructions) if entry is not None and entry.instructions else None
+            feel = translate(entry.should_feel) if entry is not None and entry.should_feel else None
             if_hard = None
             if entry is not None and entry.regression:
                 easier = lookup(entry.regression)
                 if easier is not None:
-                    if_hard = f"Do this instead: {easier.name}. {easier.instructions}"
-                    if not if_hard.endswith("."):
-                        if_hard += "."
+                    if_hard = _("Do this instead: %(name)s. %(how)s") % {
+                        "name": exercise_name(easier.name), "how": translate(easier.instructions)}
+                    if not if_hard.endswith(full_stop()):
+                        if_hard += full_stop()
                 else:
-                    if_hard = f"Do the easier version your clinician showed you ({entry.regression.replace('_', ' ')})."
+                    if_hard = _("Do the easier version your clinician showed you (%(name)s).") % {
+                        "name": entry.regression.replace("_", " ")}
             category = ex.category.lower()
             pose = entry.pose if entry is not None else None
+            name = exercise_name(ex.name)
             seen[ex.exercise_id] = ExerciseGuide(
-                exercise_id=ex.exercise_id, name=ex.name, category=ex.category,
-                level=f"{ex.impact_level}: {LEVEL_LABELS.get(ex.impact_level, '')}",
-                how_to=how or f"As your clinician showed you. {ex.name}: {dose_text(ex)}.",
-                feel=feel or _FEEL_FALLBACK.get(category, _FEEL_DEFAULT),
-                if_hard=if_hard or _IF_HARD_FALLBACK, notes=(), weeks="",
-                drawing=_drawing(pose, short_name(ex.name)) if pose is not None else "")
+                exercise_id=ex.exercise_id, name=name, category=ex.category,
+                level=_("%(level)s: %(label)s") % {"level": ex.impact_level, "label": level_label(ex.impact_level)},
+                how_to=how or sentences(_("As your clinician showed you"),
+                                        _("%(name)s: %(dose)s.") % {"name": name, "dose": dose_text(ex)}),
+                feel=feel or _(_FEEL_FALLBACK.get(category, _FEEL_DEFAULT)),
+                if_hard=if_hard or _(_IF_HARD_FALLBACK), notes=(), weeks="",
+                drawing=_drawing(pose, _("%(name)s: start and end position") % {"name": short_name(name)})
+                if pose is not None else "")
     used: dict[str, list[int]] = {}
     for wk in plan.weeks:
         for ex in week_exercises(wk):
@@ -110,6 +118,6 @@ def exercise_guides(plan: Plan, lookup: Callable[[str], Exercise | None] | None 
 
 
 @lru_cache(maxsize=256)
-def _drawing(pose, title: str) -> str:
+def _drawing(pose, label: str) -> str:
     from ...catalogue.drawings import pose_svg
-    return pose_svg(pose, title)
+    return pose_svg(pose, label=label)

@@ -6,8 +6,10 @@ from __future__ import annotations
 from dataclasses import dataclass, field, replace
 
 from ...plan_schema import Plan, PlannedExercise, PlannedWeek
+from ...languages import N_
+from ..i18n import gettext as _, ngettext, pgettext
 from .weeks import WeekFacts, week_facts
-from .wording import days_text, dose_text, short_name, week_range
+from .wording import days_text, dose_text, exercise_name, short_name, week_range
 
 
 @dataclass(frozen=True)
@@ -41,13 +43,18 @@ class WeekGroup:
         f = self.facts
         notes = []
         if f.step_up:
-            notes.append(f"Step up to level {f.impact_level}")
+            notes.append(_("Step up to level %(level)s") % {"level": f.impact_level})
         if f.weak_window:
-            notes.append("Hold: add nothing")
+            notes.append(_(HOLD_NOTE))
         if self.reviews:
-            notes.append(("Review: week " if len(self.reviews) == 1 else "Review: weeks ")
-                         + ", ".join(str(w) for w in self.reviews))
+            weeks = pgettext("list", ", ").join(str(w) for w in self.reviews)
+            notes.append(ngettext("Review: week %(weeks)s", "Review: weeks %(weeks)s", len(self.reviews))
+                         % {"weeks": weeks})
         return notes
+
+
+#: The note on a row of weeks in the weak window (the template marks it with a dashed box).
+HOLD_NOTE = N_("Hold: add nothing")
 
 
 def week_lines(week: PlannedWeek) -> list[Line]:
@@ -62,12 +69,14 @@ def week_lines(week: PlannedWeek) -> list[Line]:
             days = by_key.setdefault(key, [])
             if session.day not in days:
                 days.append(session.day)
-    return [Line(ex.exercise_id, short_name(ex.name), dose_text(ex), days_text(tuple(by_key[key])), column_of(ex))
+    return [Line(ex.exercise_id, short_name(exercise_name(ex.name)), dose_text(ex), days_text(tuple(by_key[key])),
+                 column_of(ex))
             for key, ex in first.items()]
 
 
 #: Columns of the week-by-week table: (key, heading).
-COLUMNS = (("impact", "Impact and walking"), ("resistance", "Strength"), ("balance", "Balance and posture"))
+COLUMNS = (("impact", N_("Impact and walking")), ("resistance", N_("Strength")),
+           ("balance", N_("Balance and posture")))
 
 
 def column_of(ex: PlannedExercise) -> str:
@@ -134,8 +143,10 @@ def cells(lines: list[Line], names: bool = True) -> list[Cell]:
                 groups.append(tuple(group))
         if largest is not None:
             count = len(doses[largest])
-            who = f"each of the {count} exercises" if len(doses) == 1 else f"each of the other {count} exercises"
-            items.append(("", f"{largest}, {who}"))
+            who = (ngettext("each of the %(num)s exercises", "each of the %(num)s exercises", count)
+                   if len(doses) == 1 else
+                   ngettext("each of the other %(num)s exercises", "each of the other %(num)s exercises", count))
+            items.append(("", pgettext("between parts", ", ").join((largest, who % {"num": count}))))
             groups.append(tuple(doses[largest]))
         out.append(Cell(days, tuple(items), tuple(groups)))
     return out
@@ -183,7 +194,8 @@ class WeekTable:
 
     @property
     def columns(self) -> tuple[tuple[str, str], ...]:
-        return COLUMNS
+        """(key, heading) of each column, the heading in the current language."""
+        return tuple((key, _(heading)) for key, heading in COLUMNS)
 
 
 def _row(label: str, notes, weak: bool, lines: list[Line], names: bool, impacts: int = 0) -> TableRow:
@@ -250,4 +262,4 @@ def week_table(plan: Plan) -> WeekTable:
     rows = [_row(g.label, g.notes, g.facts.weak_window, [ln for ln in g.lines if ln not in common], True,
                  g.facts.impacts_per_session) for g in groups]
     rows = [replace(row, every_week=every_names) for row in without_repeats(rows)]
-    return WeekTable(routine_rows(plan), _row("Every week", (), False, every, True) if every else None, rows)
+    return WeekTable(routine_rows(plan), _row(_("Every week"), (), False, every, True) if every else None, rows)

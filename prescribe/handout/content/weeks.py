@@ -14,6 +14,7 @@ from dataclasses import dataclass
 from ...cautions import with_standard
 from ...plan_schema import Plan, PlannedWeek, review_dates
 from ...stimulus import week_stages, weekly_osteogenic_index
+from ..i18n import long_date, translate
 from .wording import pct_1rm
 
 
@@ -80,8 +81,8 @@ def review_weeks(plan: Plan) -> list[tuple[int, str | None]]:
 
 
 def day_words(day: dt.date) -> str:
-    """A day as the pages print it: ``20 April 2026``."""
-    return f"{day.day} {day.strftime('%B %Y')}"
+    """A day as the pages print it: ``20 April 2026`` (in the current language's conventions)."""
+    return long_date(day)
 
 
 def all_cautions(plan: Plan) -> list[str]:
@@ -92,9 +93,10 @@ def all_cautions(plan: Plan) -> list[str]:
 def person_cautions(plan: Plan) -> list[str]:
     """The cautions of the person's pages: the standard ones, what the screening's rules say to the
     person (``person_notes``), then the planner's own; never the screening's clinician-facing texts
-    (they are on the clinician's pages)."""
+    (they are on the clinician's pages).  In the current language."""
     for_clinician = set(plan.screening.cautions)
-    return with_standard([*plan.screening.person_notes, *(c for c in plan.cautions if c not in for_clinician)])
+    texts = with_standard([*plan.screening.person_notes, *(c for c in plan.cautions if c not in for_clinician)])
+    return [translate(text) for text in texts]
 
 
 def person_name(plan: Plan) -> str:
