@@ -35,6 +35,7 @@ COMMAND_MODULES = (
     "explain_cmd",    # prescribe explain
     "sensor_cmd",     # prescribe sensor
     "fhir_cmd",       # prescribe fhir import|export
+    "clinician_cmd",  # prescribe clinician passphrase|list
 )
 
 
