@@ -14,18 +14,37 @@ from ..errors import InputError
 from ..store.api import now_utc
 
 
-def adjust_person(store, patient_id: str, *, today: date, apply: bool = False, clinician: str | None = None) -> dict:
+def adjust_person(store, patient_id: str, *, today: date, apply: bool = False, clinician: str | None = None,
+                  draft=None) -> dict:
     """The advice for one stored person (and, with ``apply``, the stored new version).
 
     Shared by the command line and the app.  The returned dict is the printed advice
-    plus ``_program`` (the adjusted plan).
+    plus ``_program`` (the adjusted plan) and ``changes_program``: whether the adjusted
+    program differs from the stored one in any week (applying advice that changes nothing
+    stores no new version).
+
+    ``draft`` is a session not stored (a validated
+    :class:`~prescribe.sessions.records.SessionRecord`, the app's "advise without logging"):
+    the advice counts it as the newest session, and nothing can be applied from it.
     """
-    from ..sessions.engine import assess
+    from ..plan_schema import program_week
+    from ..sessions.engine import LoggedSession, assess, plan_start
     from ..sessions.gate import assert_program_safe
     record, version, plan, sessions = store.session_context(patient_id)  # NotFoundError names the id
     if version is None:
         raise InputError.single("patient_id", patient_id, "a person with a stored program (store one with "
                                                           "`prescribe save PATIENT.json --plan PLAN.json`)")
+    if draft is not None:
+        if apply:
+            raise InputError.single("draft", patient_id, "a logged session: advice from a session not stored "
+                                                         "is not applied (log the session first)")
+        if draft.patient_id != patient_id:
+            raise InputError.single("patient_id", draft.patient_id, f"the person advised ({patient_id})")
+        from ..sessions.records import check_session_dates
+        check_session_dates(draft, plan_start(plan), today)  # the same dates a logged session may have
+        week = program_week(plan_start(plan), date.fromisoformat(draft.session_date))
+        newest = max((s.session_id or 0 for s in sessions), default=0) + 1  # after every stored session that day
+        sessions = [*sessions, LoggedSession(draft, week, version, newest)]
     resumed = store.last_resumption(patient_id)  # after a resumption only later sessions count
     advice = assess(plan, sessions, today=today, baseline_pain=record.pain_score, program_version=version,
                     counts_after_version=(resumed or {}).get("paused_version"))
@@ -59,8 +78,19 @@ def adjust_person(store, patient_id: str, *, today: date, apply: bool = False, c
         out["program_version"] = new_version
         out["based_on_version"] = version
         out["applied_by"] = clinician
+    out["changes_program"] = _prescribed(program) != _prescribed(plan) or bool(program.get("paused")) != \
+        bool(plan.get("paused"))
     out["_program"] = program
     return out
+
+
+#: Week fields the engine works out again from the rest (not a change of what the person does).
+_DERIVED_WEEK_FIELDS = ("weak_window",)
+
+
+def _prescribed(plan: dict) -> list[dict]:
+    """What a program asks the person to do, week by week (the weeks without their derived marks)."""
+    return [{k: v for k, v in w.items() if k not in _DERIVED_WEEK_FIELDS} for w in plan.get("weeks") or []]
 
 
 def resume_person(store, patient_id: str, *, clinician: str | None, reason: str) -> dict:
