@@ -45,6 +45,7 @@ STYLE = """
 .pr-flag-clear_first { border-left: 4px solid #a4161a; padding-left: 6px; margin: 4px 0; }
 .pr-flag-adapt { border-left: 4px solid #b35c00; padding-left: 6px; margin: 4px 0; }
 .pr-flag-note { border-left: 4px solid #6b7785; padding-left: 6px; margin: 4px 0; }
+.pr-app table.pr-table tr.pr-history-shown td { background: #e8f1fb; font-weight: bold; }
 </style>
 """
 
@@ -302,41 +303,6 @@ def share_plain_models(root: w.Widget) -> int:
     if not closed:
         plain_layout.close()
     return closed
-
-
-class SharedName:
-    """The clinician's name, typed once: the page's clinician fields (save, live session,
-    templates) follow each other.
-
-    A field follows a change made in another while it is empty or held the same name as the
-    other before the change; a field holding another name keeps it.  Fields of sections built
-    when opened start from the name already typed.  Under JupyterHub every field
-    is the login and cannot be changed, so nothing follows.
-    """
-
-    def __init__(self) -> None:
-        self.fields: list[w.Text] = []
-        self._busy = False
-
-    def add(self, field: w.Text) -> w.Text:
-        if not field.value:
-            typed = next((f.value for f in self.fields if f.value), "")
-            if typed:
-                field.value = typed
-        field.observe(self._changed, names="value")
-        self.fields.append(field)
-        return field
-
-    def _changed(self, change: dict) -> None:
-        if self._busy:
-            return
-        self._busy = True
-        try:
-            for field in self.fields:
-                if field is not change["owner"] and not field.disabled and field.value in ("", change["old"]):
-                    field.value = change["new"]
-        finally:
-            self._busy = False
 
 
 _FIRST = object()
