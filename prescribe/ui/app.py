@@ -24,11 +24,11 @@ import ipywidgets as w
 
 from .cautions_view import section_cautions
 from .clinic_view import ClinicSettingsForm
-from .common import (STYLE, ErrorArea, SharedName, cautions_box, cautions_html, guarded, section_box,
-                     share_plain_models)
+from .common import STYLE, ErrorArea, cautions_box, cautions_html, guarded, section_box, share_plain_models
 from .explain_view import ExplainView
 from .fhir_view import FhirPanel
 from .handout_section import HandoutSection
+from .identity import SignedIn, SignInPanel
 from .intake_view import IntakeForm, screening_html
 from .person_section import PersonSection
 from .program_section import ProgramSection
@@ -61,9 +61,12 @@ class ClinicApp(PersonSection, ProgramSection, HandoutSection, StoreSection):
         self.section_caution_boxes: dict[str, w.HTML] = {}
         self.errors = ErrorArea()
         self._syncing = False
-        self.names = SharedName()  # the clinician's name, typed once for the page's fields
+        # Who vouches for approvals, clearances and resumptions: the hub login, or a passphrase sign-in.
+        self.signed = SignedIn(login=self.session.login)
+        self.signin = SignInPanel(self.signed, lambda: self.session.store)
         self.intake = IntakeForm(self.errors)
         self._build_person_section()
+        self._snapshot_form()  # the empty form: nothing typed yet
         self.screening_view = w.HTML("")
         self.screening_view.add_class("pr-screening")
         self.screening_section = self._section("2. Screening", "pr-section-screening", [self.screening_view])
@@ -78,7 +81,6 @@ class ClinicApp(PersonSection, ProgramSection, HandoutSection, StoreSection):
         at = next((i + 1 for i, k in enumerate(kids) if self.load_select in getattr(k, "children", ())), len(kids))
         self.person_section.children = tuple(kids[:at] + [self.fhir.import_widget] + kids[at:])
         self.store_section.children += (self.fhir.export_widget,)
-        self.new_button.on_click(lambda _b: self.fhir.clear_marks())
         self.live = SessionsView(self)  # 6, the live-session panel (docs/sessions.md)
         self.sensor_panel = SensorPanel(self)  # 7, worn sensor
         self.templates_view = TemplatesView(self.session, app=self)  # 8, the clinic lead's section
@@ -90,7 +92,8 @@ class ClinicApp(PersonSection, ProgramSection, HandoutSection, StoreSection):
                        "handout, save. Sections 6 to 10 open when you click their titles.</p>")
         self.top_cautions = cautions_box()  # the one always-visible box; sections add their own
         self.top_cautions.add_class("pr-cautions-always")
-        self.widget = w.VBox([w.HTML(STYLE), title, self.errors.widget, self.top_cautions, self.clinic_settings.widget,
+        self.widget = w.VBox([w.HTML(STYLE), title, self.errors.widget, self.top_cautions, self.signin.widget,
+                              self.clinic_settings.widget,
                               self.person_section, self.screening_section, self.program_section,
                               self.handout_section, self.store_section, self.live.widget,
                               self.sensor_panel.widget, self.templates_view.widget, self.retest_panel.widget,

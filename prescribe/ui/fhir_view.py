@@ -72,7 +72,12 @@ class FhirPanel:
         except UnicodeDecodeError:
             raise InputError.single(name, "not UTF-8 text", "a FHIR R4 Bundle in JSON (UTF-8)") from None
         result = read_bundle(parse_json_text(text, name), source=name)
-        self.app.on_new()
+        self.app.ask_before_losing(f"Bring in {result.record.patient_id} from {name}",
+                                   lambda: self._fill(result, name))
+
+    def _fill(self, result, name: str) -> None:
+        """Start a new person and fill the form from the Bundle's record (nothing asked: the caller asks)."""
+        self.app.start_new()
         self.app.intake.fill(result.record.model_dump(mode="json"))
         self._mark(sorted({p["field"].split("[")[0] for p in result.provenance}))
         self.last_import = result
