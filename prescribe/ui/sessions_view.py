@@ -561,7 +561,7 @@ class SessionsView(LazyPanel):
 def advice_html(advice: dict) -> str:
     """The advice as the panel shows it: the decision, its reasons with sources, what changes
     (exercises by name, dates and times as the app writes them; no rule ids)."""
-    from .wording import label, plain
+    from .wording import dates_in_words, label, plain
     decision = advice["decision"]
     reasons = "".join(f"<li>{esc(plain(r['message']))} <small>(source: {esc(r['source'])})</small></li>"
                       for r in advice["reasons"])
@@ -578,13 +578,7 @@ def advice_html(advice: dict) -> str:
             f'<p><b>Next step for week {advice["week"]}: {esc(DECISION_TEXT.get(decision, decision))}</b></p>'
             + entries + f"<p>Why:</p><ul>{reasons}</ul><p>What the adjusted program changes:</p><ul>{changes}</ul>"
             + (f"<p>Working loads:</p><ul>{loads}</ul>" if loads else "") + unchanged
-            + (f'<p class="pr-live-already">{esc(_dated(already))}.</p>' if already else "") + "</div>")
-
-
-def _dated(text: str) -> str:
-    """Dates (YYYY-MM-DD) in a sentence of the engine's as the app writes dates."""
-    import re
-    return re.sub(r"\b\d{4}-\d{2}-\d{2}\b", lambda m: readable_date(m.group(0)), str(text))
+            + (f'<p class="pr-live-already">{esc(dates_in_words(already))}.</p>' if already else "") + "</div>")
 
 
 class SessionCharts:

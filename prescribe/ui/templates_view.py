@@ -113,12 +113,13 @@ def program_notice_html(session) -> str:
     if plan is None or getattr(session, "store_url", None) is None:
         return ""
     from ..clinic.template_library import program_template_notice
-    from .wording import plain
+    from .wording import dates_in_words, plain
     try:
         text = program_template_notice(plan, session.store)
     except PrescribeError:
         return ""
-    return f'<div class="pr-notice-box pr-template-notice" role="status">{_esc(plain(text))}</div>' if text else ""
+    return (f'<div class="pr-notice-box pr-template-notice" role="status">{_esc(dates_in_words(plain(text)))}</div>'
+            if text else "")
 
 
 def _box(css: str) -> w.HTML:

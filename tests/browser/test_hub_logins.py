@@ -152,10 +152,14 @@ def test_each_save_is_recorded_under_its_login_and_only_a_lead_approves(hub, hub
         _open_templates(clinician)
         assert "clinician" in clinician.locator(".pr-template-role").inner_text()
         _approve(clinician)
-        clinician.locator(".pr-error .pr-error-box").wait_for(state="visible", timeout=30_000)
-        refusal = clinician.locator(".pr-error .pr-error-box").inner_text()
-        assert CLINICIAN in refusal and "clinic lead" in refusal
-        assert "Not approved" in clinician.locator(".pr-template-status").inner_text()
+        # Refused beside the Approve button (not at the top of the page), naming who may.
+        clinician.locator(".pr-template-status .pr-error-box").wait_for(state="visible", timeout=30_000)
+        refusal = clinician.locator(".pr-template-status .pr-error-box").inner_text()
+        assert "Not approved" in refusal and CLINICIAN in refusal and "clinic lead" in refusal
+        assert clinician.locator(".pr-error .pr-error-box").count() == 0
+        # Signed in through the hub: no passphrase asked, no sign-out.
+        assert CLINICIAN in clinician.locator(".pr-signin-status").inner_text()
+        assert clinician.locator(".pr-signin-name input").first.is_hidden()
         shot(clinician, "hub-11-clinician-refused", of=".pr-section-templates")
 
         # The lead (a member of the hub's clinic-leads group) may.
