@@ -250,18 +250,20 @@ def own_layout(widget: w.Widget) -> w.Widget:
     return widget
 
 
-def share_plain_models(root: w.Widget) -> int:
-    """Let the widgets under ``root`` with a default layout or style share one of each.
+def share_plain_models(root: w.Widget, *more: w.Widget, shared: dict | None = None) -> int:
+    """Let the widgets under ``root`` (and ``more`` roots) with a default layout or style share one of each.
 
     Every ipywidget brings its own Layout and Style models even when nothing is set on them:
     about half of the models a page opens with.  Each model is work for the server and,
     mostly, for the browser when the page opens, so widgets whose layout and style are the
     defaults share one model per kind and the unused ones are closed.  A widget whose layout
     the code changes later is marked with :func:`own_layout` and keeps its own.  Returns the
-    number of models closed.
+    number of models closed.  ``shared`` (a dict kept by the caller) carries the shared models
+    over to a later call, for widgets built after the page (a section built when needed).
     """
-    plain_layout = w.Layout()
-    shared_styles: dict[type, w.Widget] = {}
+    shared = {} if shared is None else shared
+    plain_layout = shared.setdefault("layout", w.Layout())
+    shared_styles: dict[type, w.Widget] = shared.setdefault("styles", {})
     closed = 0
     seen: set[str] = set()
 
@@ -299,9 +301,13 @@ def share_plain_models(root: w.Widget) -> int:
             if isinstance(child, w.Widget):
                 visit(child)
 
-    visit(root)
-    if not closed:
+    for top in (root, *more):
+        visit(top)
+    if closed:
+        shared["used"] = True
+    elif not shared.get("used"):  # nobody shares it yet: not a model the page needs
         plain_layout.close()
+        shared.pop("layout")
     return closed
 
 

@@ -141,7 +141,7 @@ class FhirPanel:
             version = store.latest_program_version(pid)
         except NotFoundError:
             raise InputError.single("program", pid, "a saved program (press Save person and program first)") from None
-        who = current_clinician(self.app.clinician.value.strip() if hasattr(self.app, "clinician") else None)
+        who = current_clinician(self.app.clinician.value.strip() if getattr(self.app, "work_built", False) else None)
         bundle = program_bundle(plan, record, who, version=version)
         data = json.dumps(bundle, indent=2, ensure_ascii=False).encode("utf-8")
         name = f"fhir-{pid}-v{version}.json"

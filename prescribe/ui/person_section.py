@@ -191,7 +191,8 @@ class PersonSection:
             fhir.clear_marks()  # no box is marked as filled from the record system any more
         self._snapshot_form()
         self.intake_status.value = ""
-        self.store_status.value = ""
+        if self.work_built:
+            self.store_status.value = ""
         self.refresh()
 
     @guarded("Opening the saved person")

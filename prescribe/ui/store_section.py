@@ -96,13 +96,18 @@ class StoreSection:
     def _refresh_store(self) -> None:
         try:
             people = self.session.saved_people_rows()
-            versions = self.session.versions()
+            versions = self.session.versions() if self.work_built else []
         except PrescribeError as exc:
-            self.history.value = f'<p class="pr-msg">The store could not be read: {esc(exc)}</p>'
+            if self.work_built:
+                self.history.value = f'<p class="pr-msg">The store could not be read: {esc(exc)}</p>'
+            else:
+                self.people_count.value = f'<span class="pr-msg">The store could not be read: {esc(exc)}</span>'
             return
         self.sensor_panel.show_latest()
         self.set_people(people)
+        self.templates_view.refresh()  # the drafts waiting for review, once the section is open
+        if not self.work_built:
+            return
         self.history.value = history_html(versions, shown=self.session.opened_version or self.session.saved_version) \
             + program_notice_html(self.session)
         self._refresh_versions(versions)
-        self.templates_view.refresh()  # the drafts waiting for review, once the section is open

@@ -113,6 +113,9 @@ def _save_person(page, patient_id: str) -> str:
     page.locator(".pr-intake-submit").click()
     page.wait_for_function("() => { const e = document.querySelector('.pr-week-table');"
                            " return e && e.innerText.includes('impacts per session'); }", timeout=60_000)
+    # The clinician field shows the login and cannot be edited.
+    box = page.locator(".pr-store-clinician input").first
+    assert box.input_value() == page.locator(".pr-signed-name").inner_text() and box.is_disabled()
     page.locator(".pr-store-save").click()
     page.wait_for_function("() => { const e = document.querySelector('.pr-store-status');"
                            " return e && e.innerText.includes('Saved'); }", timeout=60_000)
@@ -139,10 +142,9 @@ def test_each_save_is_recorded_under_its_login_and_only_a_lead_approves(hub, hub
         ctx_l, lead, outside_l = _login(hub_browser, hub, LEAD)
         contexts.append(ctx_l)
 
-        # The clinician field shows the login and cannot be edited.
+        # Signed in as the login, with no passphrase (the save's clinician field: _save_person).
         for page, user in ((clinician, CLINICIAN), (lead, LEAD)):
-            box = page.locator(".pr-store-clinician input").first
-            assert box.input_value() == user and box.is_disabled()
+            assert page.locator(".pr-signed-name").inner_text() == user
 
         assert "Saved DEMO-HUB-1" in _save_person(clinician, "DEMO-HUB-1")
         assert "Saved DEMO-HUB-2" in _save_person(lead, "DEMO-HUB-2")
