@@ -43,7 +43,7 @@ HUB_ROLE_ENV = "PRESCRIBE_HUB_ROLE"
 LEADS_ENV = "PRESCRIBE_CLINIC_LEADS"
 ROLES = ("lead", "clinician")
 #: What each role may do beyond the common work (saving people, programs, sessions).
-ROLE_ACTIONS = {"approve_template": "lead", "retire_template": "lead"}
+ROLE_ACTIONS = {"approve_template": "lead", "retire_template": "lead", "set_passphrase": "lead"}
 MAX_CLINICIAN_LEN = 200
 
 

@@ -139,7 +139,7 @@ def test_a_store_at_revision_0006_upgrades_and_keeps_its_rows(new_db):
                      {"p": PID, "rec": rec})
     engine.dispose()
     with open_store(where) as s:
-        assert s.revision() == HEAD_REVISION == "0008"
+        assert s.revision() == HEAD_REVISION and int(HEAD_REVISION) >= 8  # 0008 or a later revision
         assert s.get_patient(PID) == person(PID)
         assert s.retests(PID) == []
 

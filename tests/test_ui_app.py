@@ -144,7 +144,8 @@ def test_save_needs_a_clinician_then_keeps_every_version(app, tmp_db):
     assert "program version 2" in app.store_status.value
     rows = app.session.versions()
     assert [r["version"] for r in rows] == [1, 2] and rows[1]["based_on_version"] == 1
-    assert app.history.value.count("<tr>") == 3
+    assert app.history.value.count("<tr") == 3  # the heading and two versions, the one on the page marked
+    assert app.history.value.count("pr-history-shown") == 1
     # A new app over the same store lists and reopens the person with the latest program.
     other = make_app(tmp_db)
     assert "DEMO-UI-1" in [v for _, v in other.load_select.options]
@@ -173,6 +174,8 @@ def test_a_stale_save_is_refused_and_the_program_stays_open(app, tmp_db):
 
 
 def test_new_person_clears_the_form_and_the_program(app):
+    app.clinician.value = "AB"
+    app.save_button.click()  # saved: nothing would be lost, so nothing is asked
     app.new_button.click()
     assert app.session.record is None and app.session.plan is None
     assert app.intake.inputs["patient_id"].value == ""
@@ -329,8 +332,10 @@ def test_a_clinician_may_not_approve_a_template_and_a_lead_may(tmp_db, monkeypat
     assert "role: <b class='pr-role'>clinician</b>" in panel.role.value
     panel.drafts.value = "Osteopenia start (invented clinic)@1"
     panel.approve_draft_button.click()
-    assert "mara.teal" in app.errors.last and "clinic lead" in app.errors.last
-    assert "Not approved" in panel.draft_status.value
+    # Refused beside the button pressed (not at the top of the page), naming who may.
+    refusal = html.unescape(panel.draft_status.value)
+    assert "Not approved" in refusal and "mara.teal" in refusal and "clinic lead" in refusal
+    assert app.errors.last == ""
     assert [t["status"] for t in app.session.store.templates()] == ["draft"]
     monkeypatch.setenv("JUPYTERHUB_USER", "lena.vos")
     monkeypatch.setenv("PRESCRIBE_HUB_ROLE", "lead")
@@ -382,7 +387,7 @@ def test_a_page_builds_only_what_a_first_visit_shows(tmp_db):
     assert opened < 340, f"{opened} widget models at page open"
     app.templates_view.open()
     assert app.templates_view.section.built and _widget_models() - before > opened + 300
-    assert "standard@1" in app.templates_view.list_box.value  # filled when opened
+    assert "Standard graded program" in app.templates_view.list_box.value  # filled when opened
 
 
 def test_opening_a_saved_program_opens_the_live_session_and_sensor_sections(app):
@@ -453,3 +458,91 @@ def test_a_list_refreshed_with_its_options_keeps_the_clinicians_pick():
     assert set_options(week, [("Week 1", 1), ("Week 2", 2), ("Week 3", 3)]) and week.value == 2  # still offered
     assert set_options(week, [("Week 1", 1), ("Week 3", 3)], fallback=3) and week.value == 3  # gone: the fallback
     assert set_options(week, [("Week 4", 4), ("Week 5", 5)], fallback=9) and week.value == 4  # no fallback: first
+
+
+def test_unsaved_work_is_never_lost_without_a_word(app, tmp_db):
+    from prescribe.store import open_store
+    with open_store(tmp_db) as store:
+        from prescribe.records import parse_record
+        other = parse_record({"patient_id": "DEMO-UI-2", "age_years": 70, "sex": "female", "body_mass_kg": 60,
+                              "height_cm": 160, "t_scores": {"femoral_neck": -2.0}})
+        store.save_patient(other, None, "AB")
+    app.refresh()
+    # Checked but never saved: opening another person asks first; Keep working keeps it all.
+    app.load_select.value = "DEMO-UI-2"
+    app.load_button.click()
+    assert "DEMO-UI-1, checked but never saved" in app.discard_text.value
+    assert app.session.record.patient_id == "DEMO-UI-1"
+    app.keep_button.click()
+    assert app.pending.question == "" and app.session.record.patient_id == "DEMO-UI-1"
+    # Saved, then changed: asked again, naming the change; Discard and continue opens the other.
+    app.clinician.value = "AB"
+    app.save_button.click()
+    app.load_button.click()
+    assert app.session.record.patient_id == "DEMO-UI-2"  # nothing unsaved: opened at once
+    app.load_select.value = "DEMO-UI-1"
+    app.load_button.click()
+    app.start_level.value = 0
+    app.intake.inputs["age_years"].value = "63"  # typed, not checked
+    app.new_button.click()
+    question = app.discard_text.value
+    assert "changes to DEMO-UI-1 since program version 1" in question and "not yet checked" in question
+    app.discard_button.click()
+    assert app.session.record is None and app.pending.question == ""
+
+
+def test_the_search_finds_people_by_id_or_by_the_name_on_the_handout(app, tmp_db):
+    from prescribe.records import parse_record
+    from prescribe.store import open_store
+    with open_store(tmp_db) as store:
+        for pid, name in (("OAK-101", "Marta Quill (invented)"), ("OAK-102", None), ("ELM-7", None)):
+            data = {"patient_id": pid, "age_years": 70, "sex": "female", "body_mass_kg": 60, "height_cm": 160,
+                    "t_scores": {"femoral_neck": -2.0}}
+            if name:
+                data.update(record_version=2, display_name=name)
+            store.save_patient(parse_record(data), None, "AB")
+    app.refresh()
+    ids = lambda: [v for _, v in app.load_select.options]  # noqa: E731
+    assert set(ids()) == {None, "OAK-101", "OAK-102", "ELM-7"}
+    app.search.value = "oak"
+    assert sorted(ids()) == ["OAK-101", "OAK-102"] and "2 of 3" in app.people_count.value
+    app.search.value = "QUILL"
+    assert ids() == ["OAK-101"] and app.load_select.value == "OAK-101"
+    app.search.value = "nobody"
+    assert ids() == [None]
+    app.search.value = ""
+    assert len(ids()) == 4
+
+
+def test_an_earlier_version_opens_again_and_saves_as_the_next(app):
+    app.clinician.value = "AB"
+    app.save_button.click()
+    app.weeks.value = "20"
+    app.save_button.click()
+    assert app.session.saved_version == 2 and len(app.session.plan.weeks) == 20
+    assert [v for _, v in app.version_select.options] == [2, 1]
+    app.version_select.value = 1
+    app.version_button.click()
+    s = app.session
+    assert s.opened_version == 1 and len(s.plan.weeks) == 26 and s.unsaved
+    assert "On the page: program version 1" in app.version_status.value
+    assert '<tr class="pr-history-shown"><td>1</td>' in app.history.value
+    assert not app.live._ready()  # sessions are logged against the program in force only
+    app.save_button.click()
+    assert s.saved_version == 3 and s.opened_version is None and not s.unsaved
+    rows = s.versions()
+    assert [r["version"] for r in rows] == [1, 2, 3] and rows[-1]["based_on_version"] == 2
+    assert rows[-1]["weeks"] == 26
+
+
+def test_the_replacement_offered_first_is_never_already_in_the_program(app):
+    in_program = {i for i, _ in app.session.plan_exercises()}
+    for exercise_id, _ in app.session.plan_exercises():
+        app.exercise_select.value = exercise_id
+        offered = [v for _, v in app.replacement_select.options]
+        free = [c for c in offered if c not in in_program]
+        assert app.replacement_select.value in free or not free, exercise_id
+        # Those already in the program come last and say so.
+        assert offered == free + [c for c in offered if c in in_program]
+        labels = dict((v, k) for k, v in app.replacement_select.options)
+        assert all(labels[c].endswith("already in the program") for c in offered if c in in_program)

@@ -83,7 +83,7 @@ def test_a_changed_program_keeps_the_choice_or_moves_to_one_still_there(app):
     view.select.value = chosen
     app.on_option_change()  # a rebuild with the same options keeps the choice
     assert view.select.value == chosen
-    app.on_new()
+    app.start_new()  # a new person (the page's New person asks first about unsaved work)
     assert view.select.options == () and view.result is None
     assert "Build a program" in view.status.value
 

@@ -36,8 +36,10 @@ def test_a_bundle_fills_the_form_marks_the_boxes_and_waits_for_the_clinician(tmp
     assert app.session.screening is None               # nothing screened until the clinician confirms
     app.submit_button.click()
     assert app.session.screening is not None and app.session.record.patient_id == "OAK-101"
-    app.new_button.click()
-    assert app.fhir.marked_keys() == []
+    app.new_button.click()  # checked but never saved: asked first, nothing cleared yet
+    assert "never saved" in app.discard_text.value and app.fhir.marked_keys() != []
+    app.discard_button.click()
+    assert app.fhir.marked_keys() == [] and app.session.record is None
 
 
 def test_a_bad_bundle_shows_the_problem_and_fills_nothing(tmp_db):

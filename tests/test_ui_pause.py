@@ -19,6 +19,7 @@ from prescribe.store import open_store
 from prescribe.clinic.advice import adjust_person
 from prescribe.ui import ClinicApp, ClinicSession
 from session_support import person, plan_dict
+from signin_support import give_passphrase, sign_in
 
 PID = "UI-PAUSE-1"
 REASON = "Assessed after the fall: no injury; cleared to continue (invented)"
@@ -44,26 +45,32 @@ def _versions(tmp_db) -> list[int]:
         return [v["version"] for v in store.program_versions(PID)]
 
 
-def test_the_paused_program_shows_resume_which_needs_a_reason_and_a_name(app, tmp_db, monkeypatch):
+def test_the_paused_program_shows_resume_which_needs_a_signed_in_clinician_and_a_reason(app, tmp_db,
+                                                                                        monkeypatch):
     monkeypatch.delenv("JUPYTERHUB_USER", raising=False)
     live = app.live
     live.open()
     assert "Paused from week 7" in live.status.value and live.resume_box.layout.display is None
+    # A typed name proves nothing: nobody is signed in, so the resumption is refused beside its button.
     live.clinician.value = "Dr Ines Vale (invented)"
-    live.resume_reason.value = "   "
-    assert live.resume_button.click() is None
-    assert "Nothing was saved" in live.resume_msg.value and "reason must be" in live.resume_msg.value
-    live.clinician.value = ""
     live.resume_reason.value = REASON
+    assert live.resume_button.click() is None
+    assert "Nothing was saved" in live.resume_msg.value and "signed-in clinician" in live.resume_msg.value
+    assert _versions(tmp_db) == [1, 2]
+    # Signed in, a blank reason is still refused.
+    give_passphrase(tmp_db, "Dr Ines Vale (invented)")
+    sign_in(app, "Dr Ines Vale (invented)")
+    live.resume_reason.value = "   "
     live.resume_button.click()
-    assert "name or initials" in live.msgs["clinician"].value
+    assert "Nothing was saved" in live.resume_msg.value and "reason must be" in live.resume_msg.value
     assert _versions(tmp_db) == [1, 2]
 
 
 def test_resume_records_it_and_the_page_shows_the_program_resumed(app, tmp_db):
     live = app.live
     live.open()
-    live.clinician.value = "Dr Ines Vale (invented)"
+    give_passphrase(tmp_db, "Dr Ines Vale (invented)")
+    sign_in(app, "Dr Ines Vale (invented)")
     live.resume_reason.value = REASON
     live.resume_button.click()
     assert app.errors.last == ""
@@ -75,7 +82,7 @@ def test_resume_records_it_and_the_page_shows_the_program_resumed(app, tmp_db):
     assert "stored as program version 3" in live.advice_view.value
     # The advice no longer counts the fall from before the resumption (only later sessions count).
     live.advise_button.click()
-    assert "session.fall" not in live.advice_view.value
+    assert "Next step for week 7" in live.advice_view.value and "Stop and refer" not in live.advice_view.value
     assert "PAUSED" not in app.session.handout("html").decode("utf-8")
 
 

@@ -208,7 +208,8 @@ def test_a_harder_swap_in_weeks_3_to_5_of_a_running_program_is_refused_in_plain_
     assert app.session.swap(old, new) is False
     assert app.session.plan is before
     refusal = app.session.refusal
-    assert "[rule weak_window]" in refusal and "week 3" in refusal and new in refusal
+    assert "safety rule: No escalation in weeks 3-5" in refusal and "week 3" in refusal and new in refusal
+    assert "weak_window" not in refusal  # the rule by its title, never its id
 
 
 def test_cancel_changes_nothing(app):

@@ -123,3 +123,15 @@ def test_an_unsaved_person_can_be_counted_without_storing(tmp_db):
     app.sensor_panel.count_button.click()
     assert app.errors.last == "", app.errors.last
     assert app.sensor_panel.summary["stored"] is False and app.sensor_panel.summary["impacts"] == 3
+
+
+def test_a_count_axis_reads_whole_numbers_once_however_small_the_counts():
+    # A week chart of 0 planned and 1 delivered impact used to read "0 0 0 0 0 1 1 1" (a
+    # fractional scale printed as whole numbers): its ticks are now whole numbers, each once.
+    from prescribe.ui.sensor_view import PlannedDeliveredChart
+    chart = PlannedDeliveredChart("Impacts per program week", "pr-test-chart")
+    for planned, delivered in (([0.0], [1.0]), ([0.0, 0.0], [0.0, 0.0]), ([3.0, 40.0], [7.0, 12.0])):
+        chart.update([f"week {i + 1}" for i in range(len(planned))], planned, delivered)
+        ticks = [int(t) for t in chart.y_axis.tick_values]
+        assert ticks == sorted(set(ticks)) and ticks[0] == 0 and ticks[-1] >= max(planned + delivered)
+        assert chart.y.max >= ticks[-1]

@@ -16,6 +16,14 @@ from prescribe.planning.templates import TEMPLATE_DIR, template_fields
 from prescribe.planning.templates.review import random_records
 from prescribe.ui import ClinicApp, ClinicSession
 from prescribe.ui.templates_view import TemplatesView
+from signin_support import PASSPHRASE, give_passphrase
+
+
+def as_clinician(view, name: str) -> None:
+    """Sign ``name`` in to the section's page (the passphrase set first, as a lead would)."""
+    give_passphrase(view.session.store_url, name)
+    view.signed.sign_out()
+    assert view.signed.sign_in(view.session.store, name, PASSPHRASE).ok
 
 
 @pytest.fixture
@@ -32,10 +40,14 @@ def text(widget) -> str:
 
 def test_the_list_shows_shipped_templates_and_the_form_follows_the_metadata(view):
     listing = text(view.list_box)
-    for name in ("standard@1", "gentle@1", "post_vertebral_fracture@1"):
-        assert name in listing
+    for title in ("Standard graded program", "Gentle graded program", "After a vertebral fracture"):
+        assert title in listing
+    assert "shipped with the tool" in listing
     # One input a number of the template, labelled with its bounds and unit from the metadata.
     assert set(view.inputs) == {f.path for f in template_fields()}
+    # Labelled in words from the template's own metadata, never by its keys.
+    form = text(view.form.children[3].children[0].children[0])
+    assert "impact.default_start_level" not in form and "Impact level impact work starts at" in form
     view.select.value = "standard@1"
     view.open_button.click()
     shipped = tomllib.loads((TEMPLATE_DIR / "standard.toml").read_text())
@@ -48,15 +60,17 @@ def test_the_list_shows_shipped_templates_and_the_form_follows_the_metadata(view
 def test_a_bad_value_is_named_beside_its_field_and_nothing_is_saved(view):
     view.select.value = "standard@1"
     view.open_button.click()
-    view.clinician.value = "Lead A"
+    as_clinician(view, "Lead A")
     view.inputs["impact.impacts_step"].value = "lots"
     view.inputs["impact.bout_gap_hours"].value = "2"
     view.sources["impact.hold_weeks_at_full"].value = ""
     assert view.on_save() is None
-    assert "impact.impacts_step must be a whole number from 0 to 100 [impacts], not 'lots'." in \
+    # Beside its box, the value is "this value" (the box's label says which), never the template's key.
+    assert "This value must be a whole number from 0 to 100 [impacts], not 'lots'." in \
         text(view.messages["impact.impacts_step"])
     assert "4 to 24" in text(view.messages["impact.bout_gap_hours"])
-    assert "sources.hold_weeks_at_full" in text(view.messages["impact.hold_weeks_at_full"])
+    assert "Its source" in text(view.messages["impact.hold_weeks_at_full"])
+    assert "sources.hold_weeks_at_full" not in text(view.messages["impact.hold_weeks_at_full"])
     assert text(view.messages["impact.impacts_start"]) == ""
     assert "Not saved: 3 fields" in text(view.status)
     assert view.session.store.templates() == []
@@ -65,18 +79,20 @@ def test_a_bad_value_is_named_beside_its_field_and_nothing_is_saved(view):
 def test_save_approve_by_another_and_retire(view):
     view.select.value = "standard@1"
     view.open_button.click()
-    view.clinician.value = "Lead A"
+    assert view.on_save() is None  # nobody signed in: the author would be a typed name
+    assert "signed-in clinician" in text(view.status) and view.session.store.templates() == []
+    as_clinician(view, "Lead A")
     view.inputs["impact.impacts_target_level2"].value = "40"
     view.certainty["impact.impacts_target_level2"].value = "moderate"
     view.note.value = "Lower moderate target for our older caseload"
     tv = view.on_save()
     assert (tv.ref, tv.status, tv.author) == ("clinic_standard@1", "draft", "Lead A")
     assert tv.body["certainty"]["impacts_target_level2"] == "moderate"
-    assert "clinic_standard@1" in text(view.list_box)
-    # Four eyes: the author's approval is refused, in the page.
+    assert "<td>clinic_standard</td><td>1</td><td>draft</td>" in text(view.list_box)
+    # Four eyes: the author's approval is refused, beside the button pressed.
     assert view.on_approve() is None
-    assert "never its author" in text(view.error)
-    view.clinician.value = "Lead B"
+    assert "never its author" in text(view.status) and text(view.error) == ""
+    as_clinician(view, "Lead B")
     row = view.on_approve()
     assert row["status"] == "approved" and row["approved_by"] == "Lead B"
     assert "approved by Lead B" in text(view.doc_status)
@@ -99,10 +115,21 @@ def test_compare_draws_charts_over_the_panel(view):
     view.compare_a.value, view.compare_b.value = "standard@1", "gentle@1"
     result = view.on_compare()
     assert len(result["people"]) == 20
-    assert "PANEL-01" in text(view.compare_table) and "impact.max_level" in text(view.compare_fields)
+    assert "PANEL-01" in text(view.compare_table)
+    # Fields and figures in words, never the template's keys or the comparison's metric names.
+    assert "Highest impact level this template ever reaches" in text(view.compare_fields)
+    assert "impact.max_level" not in text(view.compare_fields)
+    assert "weeks_to_full_volume" not in text(view.compare_table) and "weeks to full volume, A" in \
+        text(view.compare_table)
     oi_a = [p["a"]["total_osteogenic_index"] for p in result["people"]]
     assert [float(v) for v in view.oi_bars.y[0]] == pytest.approx(oi_a)
     assert len(view.chart_box.children) == 2
+    # Every scale has its whole domain (a bar scale without a maximum drew nothing) and the
+    # impacts axis has whole-number ticks, each once.
+    assert view.y_oi.max >= max(max(view.oi_bars.y[0]), max(view.oi_bars.y[1]))
+    assert view.y_impacts.max >= max(max(view.impact_bars.y[0]), max(view.impact_bars.y[1]))
+    ticks = list(view.impacts_axis.tick_values)
+    assert ticks == sorted(set(ticks)) and all(float(t).is_integer() for t in ticks)
 
 
 def test_whatif_fills_the_progress_bar_and_lists_only_who_changes(view):
@@ -124,9 +151,9 @@ def test_the_app_has_the_section_and_marks_a_program_from_a_retired_version(tmp_
     tv.widget.selected_index = 0
     tv.select.value = "standard@1"
     tv.open_button.click()
-    tv.clinician.value = "Lead A"
+    as_clinician(tv, "Lead A")
     tv.on_save()
-    tv.clinician.value = "Lead B"
+    as_clinician(tv, "Lead B")
     tv.on_approve()
     # A program built from clinic_standard@1, saved, then the version retired.
     from prescribe.planning import build_plan
@@ -153,9 +180,9 @@ def test_a_program_from_a_clinic_template_keeps_it_when_changed_in_the_app(tmp_d
     view.widget.selected_index = 0
     view.select.value = "standard@1"
     view.open_button.click()
-    view.clinician.value = "Lead A"
+    as_clinician(view, "Lead A")
     view.on_save()
-    view.clinician.value = "Lead B"
+    as_clinician(view, "Lead B")
     view.on_approve()
     store = session.store
     rec = random_records(1, seed=3)[0]

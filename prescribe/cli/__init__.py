@@ -36,6 +36,7 @@ COMMAND_MODULES = (
     "why_cmd",        # prescribe why
     "sensor_cmd",     # prescribe sensor
     "fhir_cmd",       # prescribe fhir import|export
+    "clinician_cmd",  # prescribe clinician passphrase|list
 )
 
 

@@ -15,18 +15,38 @@ from ..plan_schema import PlanAdjustment
 from ..store.api import now_utc
 
 
-def adjust_person(store, patient_id: str, *, today: date, apply: bool = False, clinician: str | None = None) -> dict:
+def adjust_person(store, patient_id: str, *, today: date, apply: bool = False, clinician: str | None = None,
+                  draft=None) -> dict:
     """The advice for one stored person (and, with ``apply``, the stored new version).
 
     Shared by the command line and the app.  The returned dict is the printed advice
-    plus ``_program`` (the adjusted :class:`prescribe.plan_schema.Plan`).
+    plus ``_program`` (the adjusted :class:`prescribe.plan_schema.Plan`) and ``changes_program``: whether the adjusted
+    program differs from the stored one in any week (applying advice that changes nothing
+    stores no new version).
+
+    ``draft`` is a session not stored (a validated
+    :class:`~prescribe.sessions.records.SessionRecord`, the app's "advise without logging"):
+    the advice counts it as the newest session, and nothing can be applied from it.
     """
-    from ..sessions.engine import assess
+    from ..plan_schema import program_week
+    from ..plan_schema import start_day as plan_start
+    from ..sessions.engine import LoggedSession, assess
     from ..sessions.gate import assert_program_safe
     record, version, plan, sessions = store.session_context(patient_id)  # NotFoundError names the id
     if version is None:
         raise InputError.single("patient_id", patient_id, "a person with a stored program (store one with "
                                                           "`prescribe save PATIENT.json --plan PLAN.json`)")
+    if draft is not None:
+        if apply:
+            raise InputError.single("draft", patient_id, "a logged session: advice from a session not stored "
+                                                         "is not applied (log the session first)")
+        if draft.patient_id != patient_id:
+            raise InputError.single("patient_id", draft.patient_id, f"the person advised ({patient_id})")
+        from ..sessions.records import check_session_dates
+        check_session_dates(draft, plan_start(plan), today)  # the same dates a logged session may have
+        week = program_week(plan_start(plan), date.fromisoformat(draft.session_date))
+        newest = max((s.session_id or 0 for s in sessions), default=0) + 1  # after every stored session that day
+        sessions = [*sessions, LoggedSession(draft, week, version, newest)]
     resumed = store.last_resumption(patient_id)  # after a resumption only later sessions count
     advice = assess(plan, sessions, today=today, baseline_pain=record.pain_score, program_version=version,
                     counts_after_version=(resumed or {}).get("paused_version"))
@@ -61,8 +81,19 @@ def adjust_person(store, patient_id: str, *, today: date, apply: bool = False, c
         out["program_version"] = new_version
         out["based_on_version"] = version
         out["applied_by"] = clinician
+    out["changes_program"] = (_prescribed(program) != _prescribed(plan)
+                              or (program.paused is None) != (plan.paused is None))
     out["_program"] = program
     return out
+
+
+#: Week fields the engine works out again from the rest (not a change of what the person does).
+_DERIVED_WEEK_FIELDS = ("weak_window", "step_up")
+
+
+def _prescribed(plan) -> list:
+    """What a program asks the person to do, week by week (the weeks without their derived marks)."""
+    return [w.model_copy(update={k: None for k in _DERIVED_WEEK_FIELDS}) for w in plan.weeks]
 
 
 def resume_person(store, patient_id: str, *, clinician: str | None, reason: str) -> dict:

@@ -20,6 +20,7 @@ from typing import Any
 
 from ..errors import InputError
 from ..languages import N_
+from ..plan_schema import Plan, PlanPause, PlanResume
 
 #: Longest resumption reason accepted [characters]: a sentence or a short paragraph for the
 #: record, not a clinical letter.

@@ -19,7 +19,7 @@ version it started from is refused the same way when someone changed the record
 in between.  An update keeps the replaced values in its audit entry.
 
 The methods live by table (:mod:`.people`, :mod:`.programs`, :mod:`.sessions`,
-:mod:`.templates`, :mod:`.sensors`, :mod:`.retests`, :mod:`.exchange`) over the plumbing in
+:mod:`.templates`, :mod:`.sensors`, :mod:`.retests`, :mod:`.clinicians`, :mod:`.exchange`) over the plumbing in
 :mod:`.engine`; this module assembles them into :class:`Store` and keeps every name
 other modules import from here.
 """
@@ -29,6 +29,7 @@ from __future__ import annotations
 from ..settings import db_url
 from .engine import (BUSY_TIMEOUT_MS, HEAD_REVISION, KNOWN_REVISIONS, MIGRATIONS_DIR, SQLITE_MAGIC,
                      SQLITE_SYNCHRONOUS, now_utc)
+from .clinicians import CliniciansMixin
 from .exchange import LOCAL_ONLY_ACTIONS, ExchangeMixin, check_bundle_programs
 from .people import PeopleMixin
 from .programs import ProgramsMixin, plan_summary
@@ -60,5 +61,5 @@ def open_store(url: str | None = None, *, create: bool = True) -> "Store":
 
 
 class Store(PeopleMixin, ProgramsMixin, SessionsMixin, TemplatesMixin, SensorsMixin, RetestsMixin,
-            ExchangeMixin):
+            CliniciansMixin, ExchangeMixin):
     """One clinic's records.  Open it with :func:`open_store`; close it with :meth:`close`."""

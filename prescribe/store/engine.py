@@ -33,13 +33,14 @@ from ..errors import ConflictError, InputError, StoreError
 from . import models as m
 
 #: The newest schema revision this version knows (a test checks it against Alembic's head).
-HEAD_REVISION = "0008"
+HEAD_REVISION = "0009"
 #: Every revision this version can open, oldest first, with the tables each has.
 KNOWN_REVISIONS: dict[str, tuple[str, ...]] = {"0001": m.TABLES_0001, "0002": m.TABLES_0002,
                                                "0003": m.TABLES_0003, "0004": m.TABLES_0004,
                                                "0005": m.TABLES_0005, "0006": m.TABLES_0005,
                                                "0007": m.TABLES_0005,
-                                               "0008": m.TABLES_0009}
+                                               "0008": m.TABLES_0009,
+                                               "0009": m.TABLES_REV0009}
 MIGRATIONS_DIR = Path(__file__).with_name("migrations")
 
 #: SQLite settings on every connection (see docs/store.md for why FULL).

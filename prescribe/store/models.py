@@ -165,3 +165,21 @@ retests = Table(
 )
 
 TABLES_0009 = TABLES_0005 + ("retests",)
+
+# -- revision 0009: clinicians' passphrases (docs/app.md, "Who approves, clears and resumes") ------
+
+#: One row a clinician who may sign in to the single-user app: a salted scrypt hash of the
+#: passphrase a clinic lead set (never the passphrase), and the count of wrong attempts.
+clinician_passphrases = Table(
+    "clinician_passphrases", metadata,
+    Column("clinician", String(200), primary_key=True),
+    Column("scheme", String(80), nullable=False),
+    Column("salt_hex", String(128), nullable=False),
+    Column("hash_hex", String(256), nullable=False),
+    Column("set_by", Text, nullable=False),
+    Column("set_at", String(40), nullable=False),
+    Column("failed_attempts", Integer, nullable=False, server_default=text("0")),
+    Column("locked_until", String(40), nullable=True),
+)
+
+TABLES_REV0009 = TABLES_0009 + ("clinician_passphrases",)

@@ -24,11 +24,11 @@ import ipywidgets as w
 
 from .cautions_view import section_cautions
 from .clinic_view import ClinicSettingsForm
-from .common import (STYLE, ErrorArea, SharedName, cautions_box, cautions_html, guarded, section_box,
-                     share_plain_models)
+from .common import STYLE, ErrorArea, cautions_box, cautions_html, guarded, section_box, share_plain_models
 from .explain_view import ExplainView
 from .fhir_view import FhirPanel
 from .handout_section import HandoutSection
+from .identity import SignedIn, SignInPanel
 from .intake_view import IntakeForm, screening_html
 from .person_section import PersonSection
 from .program_section import ProgramSection
@@ -61,24 +61,21 @@ class ClinicApp(PersonSection, ProgramSection, HandoutSection, StoreSection):
         self.section_caution_boxes: dict[str, w.HTML] = {}
         self.errors = ErrorArea()
         self._syncing = False
-        self.names = SharedName()  # the clinician's name, typed once for the page's fields
+        # Who vouches for approvals, clearances and resumptions: the hub login, or a passphrase sign-in.
+        self.signed = SignedIn(login=self.session.login)
+        self.signin = SignInPanel(self.signed, lambda: self.session.store)
         self.intake = IntakeForm(self.errors)
         self._build_person_section()
+        self._snapshot_form()  # the empty form: nothing typed yet
         self.screening_view = w.HTML("")
         self.screening_view.add_class("pr-screening")
         self.screening_section = self._section("2. Screening", "pr-section-screening", [self.screening_view])
-        self._build_program_section()
-        self.explain_view = ExplainView(self)  # the loads explained, beside the program
-        self.program_section.children += (self.explain_view.widget,)
-        self._build_handout_section()
-        self._build_store_section()
         # The record system (FHIR R4): bring a person in (section 1), send the saved program (section 5).
         self.fhir = FhirPanel(self)
         kids = list(self.person_section.children)
         at = next((i + 1 for i, k in enumerate(kids) if self.load_select in getattr(k, "children", ())), len(kids))
         self.person_section.children = tuple(kids[:at] + [self.fhir.import_widget] + kids[at:])
-        self.store_section.children += (self.fhir.export_widget,)
-        self.new_button.on_click(lambda _b: self.fhir.clear_marks())
+        self.work_built = False  # sections 3 to 5: built once a person is on the page (build_work)
         self.live = SessionsView(self)  # 6, the live-session panel (docs/sessions.md)
         self.sensor_panel = SensorPanel(self)  # 7, worn sensor
         self.templates_view = TemplatesView(self.session, app=self)  # 8, the clinic lead's section
@@ -90,13 +87,21 @@ class ClinicApp(PersonSection, ProgramSection, HandoutSection, StoreSection):
                        "handout, save. Sections 6 to 10 open when you click their titles.</p>")
         self.top_cautions = cautions_box()  # the one always-visible box; sections add their own
         self.top_cautions.add_class("pr-cautions-always")
-        self.widget = w.VBox([w.HTML(STYLE), title, self.errors.widget, self.top_cautions, self.clinic_settings.widget,
-                              self.person_section, self.screening_section, self.program_section,
-                              self.handout_section, self.store_section, self.live.widget,
+        # Sections 3 to 5 (program, handout, save) are built and shown once a person is on the page:
+        # a first page sends and draws the intake form alone, which is most of what opening a page
+        # costs (benchmarks/bench_app_load.py).  Built at once where nothing is warmed up later.
+        self.work_box = w.VBox([w.HTML("<p><i>Sections 3 (program), 4 (handout) and 5 (save and history) "
+                                       "appear once the person's details are checked or a saved person is "
+                                       "opened.</i></p>")])
+        self.work_box.add_class("pr-work-sections")
+        self.widget = w.VBox([w.HTML(STYLE), title, self.errors.widget, self.top_cautions, self.signin.widget,
+                              self.clinic_settings.widget,
+                              self.person_section, self.screening_section, self.work_box, self.live.widget,
                               self.sensor_panel.widget, self.templates_view.widget, self.retest_panel.widget,
                               self.outcomes_panel.widget])
         self.widget.add_class("pr-app")
-        share_plain_models(self.widget)  # about half the models a page opens with (common.py)
+        self._shared_models: dict = {}
+        share_plain_models(self.widget, shared=self._shared_models)  # about half the models a page opens with
         self.warm_thread: threading.Thread | None = None
         self._warm_lock = threading.Lock()
         if warm_up:
@@ -108,6 +113,7 @@ class ClinicApp(PersonSection, ProgramSection, HandoutSection, StoreSection):
             timer.daemon = True
             timer.start()
         else:
+            self.build_work()
             self.warm_up()
 
     def start_warm_up(self) -> None:
@@ -147,8 +153,26 @@ class ClinicApp(PersonSection, ProgramSection, HandoutSection, StoreSection):
     def warm_up(self) -> None:
         """Load the charts, the engines and the list of saved people."""
         self.session.load_engines()
-        self._ensure_charts()
+        from . import charts  # noqa: F401 - the charting library, loaded before it is needed
+        if self.work_built:
+            self._ensure_charts()
         self.refresh()
+
+    def build_work(self) -> None:
+        """Build sections 3 to 5 (program, handout, save and history), once, and show them."""
+        with self.lock:
+            if self.work_built:
+                return
+            self._build_program_section()
+            self.explain_view = ExplainView(self)  # the loads explained, beside the program
+            self.program_section.children += (self.explain_view.widget,)
+            self._build_handout_section()
+            self._build_store_section()
+            self.store_section.children += (self.fhir.export_widget,)  # send the saved program
+            self.work_sections = (self.program_section, self.handout_section, self.store_section)
+            share_plain_models(*self.work_sections, shared=self._shared_models)
+            self.work_built = True
+            self.work_box.children = self.work_sections
 
     # -- building ------------------------------------------------------------------
     def _section(self, title: str, css: str, children: list) -> w.VBox:
@@ -171,13 +195,17 @@ class ClinicApp(PersonSection, ProgramSection, HandoutSection, StoreSection):
 
     def _refresh(self, store: bool) -> None:
         s = self.session
-        self._refresh_program()  # the program and its charts first: what the clinician watches
+        if s.record is not None:
+            self.build_work()  # shown from the first person on, and kept
+        if self.work_built:
+            self._refresh_program()  # the program and its charts first: what the clinician watches
         self.screening_view.value = screening_html(s.screening)
         for css, items in section_cautions(s).items():  # the standard ones are in the box on top
             if css in self.section_caution_boxes:
                 self.section_caution_boxes[css].value = cautions_html(items, "Cautions for this part")
-        self.explain_view.refresh()
-        self._refresh_handout()
+        if self.work_built:
+            self.explain_view.refresh()
+            self._refresh_handout()
         if store:
             self._refresh_store()
             self.clinic_settings.refresh()  # another page may have set the clinic meanwhile

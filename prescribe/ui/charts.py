@@ -68,6 +68,16 @@ def weak_bands(weeks: list[int], weak: list[bool]) -> list[tuple[float, float]]:
     return bands
 
 
+def set_points(mark, x, y) -> None:
+    """Give ``mark`` new points without a moment where it has more weeks than values (the browser
+    draws each change as it arrives and reports every point it cannot place): a growing mark gets
+    its values first, a shrinking one its weeks first."""
+    if len(x) >= len(mark.x):
+        mark.y, mark.x = y, x
+    else:
+        mark.x, mark.y = x, y
+
+
 def _shade_mark(x_scale: bq.LinearScale) -> bq.Lines:
     return bq.Lines(x=[], y=[], scales={"x": x_scale, "y": bq.LinearScale(min=0.0, max=1.0)}, colors=[SHADE],
                     fill="bottom", fill_colors=[SHADE], fill_opacities=[0.35], opacities=[0.0],
@@ -150,5 +160,4 @@ class ProgramCharts:
                            (self.impact_bars, weeks, impacts), (self.minute_bars, weeks, minutes),
                            (self.level_line, weeks, np.asarray(series.impact_level, dtype=float)),
                            (self.oi_line, weeks, np.asarray(series.osteogenic_index, dtype=float))):
-            with mark.hold_sync():
-                mark.x, mark.y = x, y
+            set_points(mark, x, y)

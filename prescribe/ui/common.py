@@ -45,6 +45,7 @@ STYLE = """
 .pr-flag-clear_first { border-left: 4px solid #a4161a; padding-left: 6px; margin: 4px 0; }
 .pr-flag-adapt { border-left: 4px solid #b35c00; padding-left: 6px; margin: 4px 0; }
 .pr-flag-note { border-left: 4px solid #6b7785; padding-left: 6px; margin: 4px 0; }
+.pr-app table.pr-table tr.pr-history-shown td { background: #e8f1fb; font-weight: bold; }
 </style>
 """
 
@@ -249,18 +250,20 @@ def own_layout(widget: w.Widget) -> w.Widget:
     return widget
 
 
-def share_plain_models(root: w.Widget) -> int:
-    """Let the widgets under ``root`` with a default layout or style share one of each.
+def share_plain_models(root: w.Widget, *more: w.Widget, shared: dict | None = None) -> int:
+    """Let the widgets under ``root`` (and ``more`` roots) with a default layout or style share one of each.
 
     Every ipywidget brings its own Layout and Style models even when nothing is set on them:
     about half of the models a page opens with.  Each model is work for the server and,
     mostly, for the browser when the page opens, so widgets whose layout and style are the
     defaults share one model per kind and the unused ones are closed.  A widget whose layout
     the code changes later is marked with :func:`own_layout` and keeps its own.  Returns the
-    number of models closed.
+    number of models closed.  ``shared`` (a dict kept by the caller) carries the shared models
+    over to a later call, for widgets built after the page (a section built when needed).
     """
-    plain_layout = w.Layout()
-    shared_styles: dict[type, w.Widget] = {}
+    shared = {} if shared is None else shared
+    plain_layout = shared.setdefault("layout", w.Layout())
+    shared_styles: dict[type, w.Widget] = shared.setdefault("styles", {})
     closed = 0
     seen: set[str] = set()
 
@@ -298,45 +301,14 @@ def share_plain_models(root: w.Widget) -> int:
             if isinstance(child, w.Widget):
                 visit(child)
 
-    visit(root)
-    if not closed:
+    for top in (root, *more):
+        visit(top)
+    if closed:
+        shared["used"] = True
+    elif not shared.get("used"):  # nobody shares it yet: not a model the page needs
         plain_layout.close()
+        shared.pop("layout")
     return closed
-
-
-class SharedName:
-    """The clinician's name, typed once: the page's clinician fields (save, live session,
-    templates) follow each other.
-
-    A field follows a change made in another while it is empty or held the same name as the
-    other before the change; a field holding another name keeps it.  Fields of sections built
-    when opened start from the name already typed.  Under JupyterHub every field
-    is the login and cannot be changed, so nothing follows.
-    """
-
-    def __init__(self) -> None:
-        self.fields: list[w.Text] = []
-        self._busy = False
-
-    def add(self, field: w.Text) -> w.Text:
-        if not field.value:
-            typed = next((f.value for f in self.fields if f.value), "")
-            if typed:
-                field.value = typed
-        field.observe(self._changed, names="value")
-        self.fields.append(field)
-        return field
-
-    def _changed(self, change: dict) -> None:
-        if self._busy:
-            return
-        self._busy = True
-        try:
-            for field in self.fields:
-                if field is not change["owner"] and not field.disabled and field.value in ("", change["old"]):
-                    field.value = change["new"]
-        finally:
-            self._busy = False
 
 
 _FIRST = object()

@@ -72,7 +72,12 @@ class FhirPanel:
         except UnicodeDecodeError:
             raise InputError.single(name, "not UTF-8 text", "a FHIR R4 Bundle in JSON (UTF-8)") from None
         result = read_bundle(parse_json_text(text, name), source=name)
-        self.app.on_new()
+        self.app.ask_before_losing(f"Bring in {result.record.patient_id} from {name}",
+                                   lambda: self._fill(result, name))
+
+    def _fill(self, result, name: str) -> None:
+        """Start a new person and fill the form from the Bundle's record (nothing asked: the caller asks)."""
+        self.app.start_new()
         self.app.intake.fill(result.record.model_dump(mode="json"))
         self._mark(sorted({p["field"].split("[")[0] for p in result.provenance}))
         self.last_import = result
@@ -136,7 +141,7 @@ class FhirPanel:
             version = store.latest_program_version(pid)
         except NotFoundError:
             raise InputError.single("program", pid, "a saved program (press Save person and program first)") from None
-        who = current_clinician(self.app.clinician.value.strip() if hasattr(self.app, "clinician") else None)
+        who = current_clinician(self.app.clinician.value.strip() if getattr(self.app, "work_built", False) else None)
         bundle = program_bundle(plan, record, who, version=version)
         data = json.dumps(bundle, indent=2, ensure_ascii=False).encode("utf-8")
         name = f"fhir-{pid}-v{version}.json"

@@ -20,15 +20,16 @@ def _template(value) -> str:
     return str(value) if value else ""
 
 
-def history_html(rows: list[dict]) -> str:
-    """The versions table (oldest first), or a line saying there is none yet."""
+def history_html(rows: list[dict], shown: int | None = None) -> str:
+    """The versions table (oldest first), or a line saying there is none yet; the row of the
+    version ``shown`` on the page is marked."""
     if not rows:
         return "<p><i>No saved version yet.</i></p>"
     head = ("<tr><th>Version</th><th>Made from version</th><th>Saved by</th><th>Saved on</th><th>Weeks</th>"
             "<th>Highest impact level</th><th>Template</th><th>Note</th></tr>")
     body = "".join(
-        "<tr>"
-        f"<td>{_esc(r.get('version'))}</td><td>{_esc(r.get('based_on_version') or '')}</td>"
+        ('<tr class="pr-history-shown">' if shown is not None and r.get("version") == shown else "<tr>")
+        + f"<td>{_esc(r.get('version'))}</td><td>{_esc(r.get('based_on_version') or '')}</td>"
         f"<td>{_esc(r.get('clinician'))}</td><td>{_esc(readable_time(r.get('saved')))}</td>"
         f"<td>{_esc(r.get('weeks') or '')}</td>"
         f"<td>{_esc(level_words(r['max_impact_level']) if r.get('max_impact_level') is not None else '')}</td>"

@@ -327,9 +327,10 @@ def screening_html(screening) -> str:
            ' <b class="pr-until-cleared">Holds until a clinician records the clearance.</b>' if f.until_cleared
            else "")
         + f'<br><small>Source: {esc(f.source)}</small></div>' for f in s.flags) or "<p>No rule fired.</p>"
-    version = f"<p><small>Rule set {esc(s.ruleset_version)}</small></p>" if s.ruleset_version else ""
+    # The rule set's version is kept with the screening in the store and printed on the clinician's
+    # pages; the page itself names the rules by their titles only.
     return (f'<table class="pr-table pr-glance">{rows}</table><h3>Flags ({len(s.flags)})</h3>'
-            f'<div class="pr-flags">{flags}</div>{version}')
+            f'<div class="pr-flags">{flags}</div>')
 
 
 #: A record path inside a rule's message ("cancer.bone_metastases", "surgeries[].surgeon_cleared_impact").

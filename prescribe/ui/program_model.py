@@ -13,6 +13,7 @@ Sports Exerc 41:687-708: about 60-70% 1RM for novices, 80% and more is heavy).
 
 from __future__ import annotations
 
+import re
 from dataclasses import dataclass, field
 from datetime import date, datetime, timedelta
 from typing import Any, Iterable
@@ -118,10 +119,27 @@ def supervised(ex: Any, limits: Any = None) -> bool:
     return bool(ex.supervised or needs_supervision(getattr(ex, "intensity", "") or "", getattr(ex, "impact_level", 0)))
 
 
-def readable_time(value: Any) -> str:
-    """An ISO timestamp as a readable local date and time ("2 Dec 2026, 09:41"); other text unchanged."""
+def readable_date(value: Any) -> str:
+    """An ISO date (or the date of a timestamp) as the app writes dates ("2 Dec 2026"); other text unchanged."""
     if value in (None, ""):
         return ""
+    if isinstance(value, datetime) or (isinstance(value, str) and len(value) > 10):
+        return readable_time(value).split(",")[0]
+    try:
+        day = value if isinstance(value, date) else date.fromisoformat(str(value))
+    except ValueError:
+        return str(value)
+    return f"{day.day} {day:%b %Y}"
+
+
+def readable_time(value: Any) -> str:
+    """An ISO timestamp as a readable local date and time ("2 Dec 2026, 09:41"); a date alone as a
+    date ("2 Dec 2026"); other text unchanged."""
+    if value in (None, ""):
+        return ""
+    if isinstance(value, date) and not isinstance(value, datetime) or (
+            isinstance(value, str) and re.fullmatch(r"\d{4}-\d{2}-\d{2}", value.strip())):
+        return readable_date(value)
     try:
         when = value if isinstance(value, datetime) else datetime.fromisoformat(str(value).replace("Z", "+00:00"))
     except ValueError:

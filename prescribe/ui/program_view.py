@@ -173,19 +173,25 @@ class SwapPanel:
         current = self.exercise_select.value
         candidates = self.app.session.swap_candidates(current) if current else []
         entries = self._entries()
+        in_program = set(pm.exercise_ids(self.app.session.plan)) if self.app.session.plan is not None else set()
+        # Exercises not yet in the program first: a swap into one the program already has is refused
+        # (it would merge the two), so such an entry is never the one chosen by default.
+        candidates = sorted(candidates, key=lambda c: c[0] in in_program)
         options = []
         for cid, name in candidates:
             e = entries.get(cid)
             detail = (f" (level {pm.level_words(e.impact_level)}; about {e.peak_grf_bw:g} x body weight)"
                       if e is not None else "")
-            options.append((f"{name}{detail}", cid))
+            options.append((f"{name}{detail}" + (" - already in the program" if cid in in_program else ""), cid))
         keep = prefer or self.replacement_select.value
+        free = [cid for cid, _ in candidates if cid not in in_program]
         ids = [cid for _, cid in options]
         self._refreshing = True
         try:
             if list(self.replacement_select.options) != options:
                 self.replacement_select.options = options
-            self.replacement_select.value = keep if keep in ids else (ids[0] if ids else None)
+            # The clinician's pick stays; otherwise the first exercise not yet in the program.
+            self.replacement_select.value = keep if keep in ids else (free[0] if free else (ids[0] if ids else None))
         finally:
             self._refreshing = False
 

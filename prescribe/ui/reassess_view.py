@@ -24,6 +24,7 @@ from ..errors import InputError, NotFoundError
 from ..plan_schema import start_day
 from .common import LazyPanel, LazySection, cautions_html, guarded
 from .form_spec import retest_data, retest_fields
+from .identity import bind_name_field
 
 VERDICT_CSS = {"improved": "pr-verdict-improved", "no real change": "pr-verdict-same", "worse": "pr-verdict-worse"}
 
@@ -137,10 +138,10 @@ class ReassessPanel(_Panel):
             self.inputs[spec.key] = box
             rows.append(box)
         self.inputs["date"].value = date.today().isoformat()
-        self.clinician = w.Text(value=getattr(self.app.session, "clinician", ""), description="Clinician *",
-                                style={"description_width": "190px"}, layout=w.Layout(width="430px"))
+        self.clinician = w.Text(value="", description="Clinician *", style={"description_width": "190px"},
+                                layout=w.Layout(width="430px"))
         self.clinician.add_class("pr-retest-clinician")
-        self.app.names.add(self.clinician)
+        bind_name_field(self.app.signed, self.clinician)  # the signed-in name, else typed here
         self.compare_button = w.Button(description="Compare and propose", layout=w.Layout(width="auto"))
         self.compare_button.add_class("pr-retest-compare")
         self.compare_button.on_click(lambda _b: self.on_compare())

@@ -40,20 +40,24 @@ class PlannedDeliveredChart:
         self.x = bq.OrdinalScale()
         self.y = bq.LinearScale(min=0.0, max=1.0)
         self.bars = bq.Bars(x=[], y=[[], []], scales={"x": self.x, "y": self.y}, type="grouped",
-                            colors=[SHADE, INK], labels=["planned", "delivered"], display_legend=True,
-                            padding=0.25, tooltip=bq.Tooltip(fields=["x", "y"], labels=["", "impacts"]))
+                            colors=[SHADE, INK], padding=0.25,
+                            tooltip=bq.Tooltip(fields=["x", "y"], labels=["", "impacts"]))
+        # Whole-number ticks, each once (a count axis of 0-1 would otherwise read "0 0 0 0 0 1 1 1").
+        self.y_axis = bq.Axis(scale=self.y, side="left", label="impacts (2 BW or more)", tick_format="d",
+                              tick_values=[0, 1])
         self.figure = bq.Figure(
-            title=title, marks=[self.bars],
-            axes=[bq.Axis(scale=self.x, label=""), bq.Axis(scale=self.y, side="left", label="impacts (2 BW or more)",
-                                                           tick_format="d")],
-            legend_location="top-left", fig_margin={"top": 40, "bottom": 50, "left": 60, "right": 20},
+            title=title + ": planned (light), delivered (dark)", marks=[self.bars],
+            axes=[bq.Axis(scale=self.x, label=""), self.y_axis],
+            fig_margin={"top": 40, "bottom": 50, "left": 60, "right": 20},
             layout={"width": "100%", "height": "260px"})
         self.figure.add_class(css)
 
     def update(self, labels: list[str], planned: list[float], delivered: list[float]) -> None:
-        top = max([1.0, *planned, *delivered])
+        from .charts import whole_ticks
+        ticks = whole_ticks(max([0.0, *planned, *delivered]))
         with self.bars.hold_sync():
-            self.y.max = top * 1.15
+            self.y.max = float(ticks[-1]) * 1.05
+            self.y_axis.tick_values = ticks
             self.bars.x = labels
             self.bars.y = [planned, delivered]
 
@@ -218,7 +222,7 @@ class SensorPanel(LazyPanel):
         days = plan.get("days") or [{"date": d.get("date") or f"day {d['day']}", "planned_impacts": 0,
                                      "delivered_impacts": d.get("impacts_2bw_or_more") or 0,
                                      "weak_window": False} for d in summary["days"]]
-        self.day_chart.update([d["date"] for d in days], [float(d["planned_impacts"]) for d in days],
+        self.day_chart.update([_day_label(d["date"]) for d in days], [float(d["planned_impacts"]) for d in days],
                               [float(d["delivered_impacts"]) for d in days])
         weeks = plan.get("weeks") or []
         self.week_chart.update([f"week {k['week']}" for k in weeks], [float(k["planned_impacts"]) for k in weeks],
@@ -226,8 +230,16 @@ class SensorPanel(LazyPanel):
         self.table.value = summary_html(summary)
 
 
+def _day_label(value) -> str:
+    """A recorded day as the charts name it ("2 Nov"); a day without a date keeps its own words."""
+    from .program_model import readable_date
+    text = readable_date(value)
+    return text.rsplit(" ", 1)[0] if text != str(value) else text
+
+
 def summary_html(summary: dict) -> str:
     """The recording's figures, the days' table, the flags and the notes as HTML."""
+    from .program_model import readable_date
     share = summary.get("delivered_share")
     head = (f'<p class="pr-sensor-figures">File <b>{_esc(summary.get("file"))}</b> &middot; '
             f'{_esc(summary.get("sample_rate_hz"))} Hz &middot; {_esc(summary.get("samples"))} samples &middot; '
@@ -239,7 +251,7 @@ def summary_html(summary: dict) -> str:
     cols = ["date", "wear h", *[f"{b} g" for b in bands], "OI", "planned", "delivered", "planned OI", "note"]
     rows = []
     for d in summary["days"]:
-        cells = [d.get("date") or f"day {d['day']}", d.get("wear_time_h"), *[d["impacts_by_band"][b] for b in bands],
+        cells = [readable_date(d.get("date")) or f"day {d['day']}", d.get("wear_time_h"), *[d["impacts_by_band"][b] for b in bands],
                  d.get("osteogenic_index"), d.get("planned_impacts", ""), d.get("delivered_impacts", ""),
                  d.get("planned_osteogenic_index", ""),
                  ("beyond plan" + (", weak window" if d.get("weak_window") else "")) if d.get("beyond_plan") else ""]
@@ -249,6 +261,7 @@ def summary_html(summary: dict) -> str:
              + "</tr></thead><tbody>" + "".join(rows) + "</tbody></table>")
     flags = (summary.get("plan") or {}).get("flags") or []
     flag_html = "".join(f'<div class="pr-flag pr-flag-{"clear_first" if f["severity"] == "attention" else "note"} '
-                        f'pr-sensor-flag"><b>{_esc(f["date"])}</b>: {_esc(f["message"])}</div>' for f in flags)
+                        f'pr-sensor-flag"><b>{_esc(readable_date(f["date"]))}</b>: {_esc(f["message"])}</div>'
+                        for f in flags)
     notes = "".join(f"<li>{_esc(n)}</li>" for n in summary.get("notes") or [])
     return head + table + flag_html + (f'<ul class="pr-sensor-notes">{notes}</ul>' if notes else "")

@@ -109,6 +109,27 @@ class ClinicSession:
         self.clearance: tuple[str, str] | None = None  # (who, when) a clinician cleared a referred person
         #: The first day of week 1 (YYYY-MM-DD) chosen for the program; None: today, as on the command line.
         self.start_date: str | None = None
+        #: The stored program version on the page when it is not the latest (an earlier version reopened).
+        self.opened_version: int | None = None
+        self._saved_fingerprint: str | None = None  # what the store holds of this person, to tell unsaved work
+
+    def _fingerprint(self) -> str | None:
+        """The person's record and program as they would be saved (the build time left out)."""
+        if self.record is None:
+            return None
+        import json
+        plan = None
+        if self.plan is not None:
+            plan = self.plan.model_dump(mode="json")
+            plan.pop("created", None)
+        return json.dumps([self.record.model_dump(mode="json"), plan], sort_keys=True, default=str)
+
+    @property
+    def unsaved(self) -> bool:
+        """True when the record or the program on the page differs from what the store holds
+        for this person (a new person not saved yet, a change since the last save or open, an
+        earlier version reopened and not saved again)."""
+        return self.record is not None and self._fingerprint() != self._saved_fingerprint
 
     @property
     def cautions(self) -> list[str]:
@@ -293,14 +314,20 @@ class ClinicSession:
             text = v.message if "_" in first else v.message[0].upper() + v.message[1:]
             return (f"Refused: {text}. Allowed: {v.allowed}."
                     + (f" ({more} more problem{'s' if more != 1 else ''} of the same change.)" if more else "")
-                    + f" [rule {v.rule}]" + kept)
+                    + f" (safety rule: {self._rule_title(v.rule)})" + kept)
         if exc.field == "start_level" and self.screening is not None:
             cap = self.screening.max_impact_level
             label = IMPACT_LEVEL_LABELS[cap]
             if exc.value is not None and exc.value > cap:
                 return f"Refused: Start level {exc.value} is above what the screening allows ({cap}, {label})." + kept
             return f"Refused: Start level {exc.value} is above what the program's template allows: {exc.reason}." + kept
-        return f"Refused: {exc.reason} [{exc.rule}]." + kept
+        return f"Refused: {exc.reason}." + kept
+
+    @staticmethod
+    def _rule_title(rule_id: str) -> str:
+        """A safety rule by its title, as the clinician reads it (the id stays in the store and logs)."""
+        rule = next((r for r in _safety().RULES if r.rule_id == rule_id), None)
+        return rule.title if rule is not None else rule_id.replace("_", " ")
 
     # -- clearance of a referred person -------------------------------------------
     @property
@@ -468,6 +495,7 @@ class ClinicSession:
         self.record_version = int(saved["record_version"])
         self.notice = None
         if self.plan is None:
+            self._saved_fingerprint = self._fingerprint()
             return None
         try:
             version = self.store.save_program(self.record.patient_id, self.plan, who,
@@ -483,6 +511,8 @@ class ClinicSession:
                            "this program stays open here.")
             return None
         self.saved_version = int(version)
+        self.opened_version = None
+        self._saved_fingerprint = self._fingerprint()
         return self.saved_version
 
     def draft_templates(self) -> list[dict]:
@@ -503,7 +533,15 @@ class ClinicSession:
 
     def saved_people(self) -> list[str]:
         """Patient ids in the store, most recently updated first."""
-        return [row["patient_id"] for row in self.store.list_patients()]
+        return [row["patient_id"] for row in self.saved_people_rows()]
+
+    def saved_people_rows(self) -> list[dict]:
+        """The store's people, most recently updated first (id, latest category, latest program version)."""
+        return self.store.list_patients()
+
+    def people_names(self) -> dict[str, str]:
+        """Each saved person's name on the handout (the record's display_name; empty where none)."""
+        return {pid: str(record.get("display_name") or "") for pid, record in self.store.caseload()}
 
     def versions(self) -> list[dict]:
         """The program's version history for the current person (oldest first), one flat row each."""
@@ -526,7 +564,11 @@ class ClinicSession:
         return out
 
     def load(self, patient_id: str, version: int | None = None) -> None:
-        """Open a saved person: their record, a fresh screening and their program (latest by default)."""
+        """Open a saved person: their record, a fresh screening and their program (latest by default).
+
+        An earlier ``version`` is opened as it was saved; it is not the program in force until it
+        is saved again (as the next version, based on the latest): ``opened_version`` says which
+        version is on the page, and ``unsaved`` is True until then."""
         record_version = self.store.record_version(patient_id)  # first: a later change means a conflict
         record = self.store.get_patient(patient_id)
         self.reset()
@@ -534,6 +576,7 @@ class ClinicSession:
         self.record_version = record_version
         latest = self.store.latest_program_version(patient_id)
         if latest is None:
+            self._saved_fingerprint = self._fingerprint()
             return
         self.plan = self.store.get_program(patient_id, version)
         # What the clinician chose for the saved program, so a change rebuilds that program
@@ -547,6 +590,9 @@ class ClinicSession:
             self.screening = _screening().screen(self.record, cleared=True)
         self.start_date = self.plan.start_date
         self.refusal = None
+        self.opened_version = int(version) if version is not None and int(version) != int(latest) else None
+        if self.opened_version is None:
+            self._saved_fingerprint = self._fingerprint()
         try:  # a stored program from an older version may break a rule added since: say so
             _safety().assert_safe(self.plan, self.screening, door="saved program", record=self.record)
         except PlanRequestRefused as exc:

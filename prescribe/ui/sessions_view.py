@@ -15,7 +15,9 @@ Widgets carry stable CSS classes (``pr-live-...``) for browser tests.
 
 from __future__ import annotations
 
+import math
 import threading
+from contextlib import contextmanager
 from datetime import date
 from typing import Any
 
@@ -25,7 +27,10 @@ from ..errors import InputError, NotFoundError
 from ..plan_schema import Plan, PlannedExercise, parse_day, program_week, start_day
 from ..sessions.records import SYMPTOMS, parse_session
 from .cautions_view import LIVE_CAUTIONS
+from . import program_model as pm
 from .common import ErrorArea, LazyPanel, LazySection, cautions_html, esc, guarded, set_options
+from .identity import bind_name_field
+from .program_model import readable_date, readable_time
 
 #: The per-exercise entries, in the order shown: (record field, label, integer?).
 EXERCISE_FIELDS = (("sets_done", "sets", True), ("reps_done", "reps", True), ("impacts_done", "impacts", True),
@@ -106,6 +111,9 @@ class SessionsView(LazyPanel):
         self.errors = ErrorArea()
         self.rows: list[_ExerciseRow] = []
         self.advice: dict | None = None
+        self._advice_for: tuple | None = None  # (person, program version) the advice shown was worked out for
+        self._rows_key: tuple | None = None
+        self._quieting = False
         self.charts = None
         self.section = LazySection("6. Live session: log, advise, adjust", "pr-section-sessions", self._build,
                                    after=self.refresh)
@@ -140,10 +148,9 @@ class SessionsView(LazyPanel):
         self.note.add_class("pr-live-note")
         for key in ("symptoms", "fell_since_last", "note", "session_date", "exercises", "clinician"):
             self.msgs[key] = self._msg(key)
-        self.clinician = w.Text(value=getattr(self.app.session, "clinician", ""), description="Clinician *",
-                                placeholder="your name or initials")
+        self.clinician = w.Text(value="", description="Clinician *", placeholder="your name or initials")
         self.clinician.add_class("pr-live-clinician")
-        self.app.names.add(self.clinician)
+        bind_name_field(self.app.signed, self.clinician)  # the signed-in name, else typed here
         self.log_button = w.Button(description="Log session and advise", button_style="primary",
                                    layout=w.Layout(width="auto"))
         self.log_button.add_class("pr-live-log")
@@ -220,7 +227,9 @@ class SessionsView(LazyPanel):
 
     def _ready(self) -> bool:
         s = self.app.session
-        return s.record is not None and s.plan is not None and s.saved_version is not None
+        # The program in force: an earlier version reopened is read, not logged against.
+        return (s.record is not None and s.plan is not None and s.saved_version is not None
+                and getattr(s, "opened_version", None) is None)
 
     def _plan(self) -> Plan:
         return self.app.session.plan
@@ -246,33 +255,47 @@ class SessionsView(LazyPanel):
             self.status.value = ("<p><i>Open a saved person with a saved program (section 1, or save it in "
                                  "section 5) to log sessions here.</i></p>")
             self.rows_box.children = []
-            self.day.options = []
-            self.apply_button.disabled = True
+            self.rows = []
+            self._rows_key = None  # the next person (or the same one reopened) gets their rows built
+            with self._quiet():
+                self.day.options = []
+            self._clear_advice()
             self.resume_box.layout.display = "none"
             return
+        if self._advice_for != (self.patient_id, self.app.session.saved_version):
+            self._clear_advice()  # advice worked out for another person or version is not shown beside this one
         plan = self._plan()
         week = self.current_week()
         wk = plan.weeks[week - 1]
         paused, resumed = plan.paused, plan.resumed
         self.resume_box.layout.display = None if paused else "none"
         self.status.value = (f"<p><b>{esc(self.patient_id)}</b>: program version {self.app.session.saved_version}, "
-                             f"started {esc(start_day(plan).isoformat())}; "
+                             f"started {esc(readable_date(start_day(plan).isoformat()))}; "
                              f"<b>this week: week {week}</b> of {len(plan.weeks)} "
                              f"({esc(wk.phase)})."
                              + (f' <span class="pr-msg pr-live-paused">Paused from week {paused.from_week} '
-                                f'(since {esc(paused.since)}): {esc(paused.reason)}</span>'
+                                f'(since {esc(readable_time(paused.since))}): {esc(paused.reason)}</span>'
                                 if paused else "")
-                             + (f' <span class="pr-live-resumed">Resumed by {esc(resumed.by)} at '
-                                f'{esc(resumed.at)}: {esc(resumed.reason)}</span>'
+                             + (f' <span class="pr-live-resumed">Resumed by {esc(resumed.by)} on '
+                                f'{esc(readable_time(resumed.at))}: {esc(resumed.reason)}</span>'
                                 if resumed and not paused else "") + "</p>")
-        days = sorted({s.day for s in wk.sessions})
-        names = {1: "Mon", 2: "Tue", 3: "Wed", 4: "Thu", 5: "Fri", 6: "Sat", 7: "Sun"}
-        options = [(f"day {d} ({names[d]}): " + " + ".join(s.kind for s in wk.sessions if s.day == d), d)
-                   for d in days]
+        # The days as the program's week view names them ("Monday, 7 Dec: impact work and strength").
+        days = pm.week_days(plan, week)
+        options = [(d.heading, d.day) for d in days]
         today = parse_day(self.date.value, "date").isoweekday() if self._date_ok() else None
-        set_options(self.day, options, fallback=today)
+        with self._quiet():  # one build of the rows below, not one for each step of the list's change
+            set_options(self.day, options, fallback=today)
         self._build_rows()
         self._refresh_charts()
+
+    @contextmanager
+    def _quiet(self):
+        """Changes of the day list inside this block do not rebuild the rows (the caller does, once)."""
+        self._quieting = True
+        try:
+            yield
+        finally:
+            self._quieting = False
 
     def _date_ok(self) -> bool:
         try:
@@ -284,9 +307,12 @@ class SessionsView(LazyPanel):
     def _on_date(self) -> None:
         if self._ready() and self._date_ok():
             self.refresh()
+            weekday = parse_day(self.date.value, "date").isoweekday()
+            if weekday in [v for _, v in self.day.options] and self.day.value != weekday:
+                self.day.value = weekday  # the session of the date typed, where that day has one
 
     def _on_day(self) -> None:
-        if self._ready():
+        if self._ready() and not self._quieting:
             self._build_rows()
 
     def _build_rows(self, force: bool = False) -> None:
@@ -334,43 +360,99 @@ class SessionsView(LazyPanel):
             box = self.msgs.get(key) or self.msgs["session_date"]
             box.value = f'<span class="pr-msg">{esc(p.message)}</span>'
 
+    def _clear_advice(self) -> None:
+        """No advice on the page: it was for other entries, another person or another version."""
+        self.advice = None
+        self._advice_for = None
+        self.advice_view.value = ""
+        self.apply_button.disabled = True
+
+    def _entries(self):
+        """The session as entered, validated (a parse_session record); None with each problem shown
+        beside its field (and no advice left on the page from earlier entries)."""
+        try:
+            return parse_session(self.data())
+        except InputError as exc:
+            self._show_problems(exc.problems)
+            self._clear_advice()
+            return None
+
     @guarded("Logging the session")
     def on_log(self) -> bool:
         self._clear_messages()
+        self.log_status.value = ""
         if not self._ready():
             raise InputError.single("person", None, "a saved person with a saved program (open one first)")
         who = self.clinician.value.strip()
         if not who:
+            self._clear_advice()
             self.msgs["clinician"].value = '<span class="pr-msg">Enter your name or initials: every session ' \
                                            'records who logged it. Nothing was saved.</span>'
             return False
-        try:
-            record = parse_session(self.data())
-            store = self.app.session.store
-            out = store.add_session(record, who)
-        except InputError as exc:
-            self._show_problems(exc.problems)
+        record = self._entries()
+        if record is None:
             self.log_status.value = ('<span class="pr-msg">Nothing was saved: correct the entries marked '
                                      'beside the fields.</span>')
             return False
-        self.app.session.clinician = who
+        try:
+            out = self.app.session.store.add_session(record, who)
+        except InputError as exc:
+            self._show_problems(exc.problems)
+            self._clear_advice()
+            self.log_status.value = ('<span class="pr-msg">Nothing was saved: correct the entries marked '
+                                     'beside the fields.</span>')
+            return False
         self.log_status.value = (f"<span>Session {out['session_id']} logged for week {out['week']} "
-                                 f"({esc(record.session_date)}).</span>")
+                                 f"({esc(readable_date(record.session_date))}). The form is ready for the next "
+                                 "session.</span>")
         self._advise()
+        self._reset_entries()  # logged: these entries are in the store now, never counted twice
         return True
 
+    def _reset_entries(self) -> None:
+        """The form as for a new session: this day's exercises as prescribed, no pain, symptom or note."""
+        self._input("pain_during").value = "0"
+        self._input("pain_next_morning").value = ""
+        self._input("session_rpe").value = ""
+        for box in self.symptoms.values():
+            box.value = False
+        self.fell.value = False
+        self.note.value = ""
+        self._build_rows(force=True)
+
     @guarded("Working out the advice")
-    def on_advise(self) -> None:
+    def on_advise(self) -> bool:
+        """The advice from the entries on the form as if they were logged; nothing is stored, and
+        advice from entries not logged cannot be applied."""
+        self._clear_messages()
+        self.log_status.value = ""
         if not self._ready():
             raise InputError.single("person", None, "a saved person with a saved program (open one first)")
-        self._advise()
+        record = self._entries()
+        if record is None:
+            self.log_status.value = ('<span class="pr-msg">No advice: correct the entries marked beside the '
+                                     'fields.</span>')
+            return False
+        try:
+            self._advise(draft=record)
+        except InputError as exc:  # a date the session could not have (in the future, before the start)
+            self._show_problems(exc.problems)
+            self._clear_advice()
+            self.log_status.value = ('<span class="pr-msg">No advice: correct the entries marked beside the '
+                                     'fields.</span>')
+            return False
+        return True
 
-    def _advise(self) -> None:
+    def _advise(self, draft=None) -> None:
         from ..clinic.advice import adjust_person
         day = parse_day(self.date.value.strip(), "date") if self._date_ok() else date.today()
-        self.advice = adjust_person(self.app.session.store, self.patient_id, today=min(day, date.today()))
+        self.advice = adjust_person(self.app.session.store, self.patient_id, today=min(day, date.today()),
+                                    draft=draft)
+        self.advice["from_entries"] = draft is not None
+        self._advice_for = (self.patient_id, self.app.session.saved_version)
         self.advice_view.value = advice_html(self.advice)
-        self.apply_button.disabled = bool(self.advice.get("already_applied"))
+        self.apply_button.disabled = bool(draft is not None or self.advice.get("already_applied")
+                                          or not self.advice.get("changes_program", True))
         self._refresh_charts()
 
     @guarded("Applying the advice")
@@ -378,6 +460,15 @@ class SessionsView(LazyPanel):
         from ..clinic.advice import adjust_person
         if self.advice is None:
             raise InputError.single("advice", None, "advice worked out first (log a session or press Advise)")
+        if self.advice.get("from_entries"):
+            raise InputError.single("advice", "from entries not logged", "advice from a logged session (press "
+                                    "Log session and advise first)")
+        if not self.advice.get("changes_program", True):
+            self.apply_button.disabled = True
+            self.advice_view.value = (advice_html(self.advice) + '<p class="pr-live-nothing">Nothing to apply: the '
+                                      f'advice keeps program version {self.app.session.saved_version} as it is; '
+                                      'no new version was stored.</p>')
+            return None
         who = self.clinician.value.strip()
         if not who:
             self.msgs["clinician"].value = ('<span class="pr-msg">Enter your name or initials: the change is '
@@ -387,11 +478,11 @@ class SessionsView(LazyPanel):
         out = adjust_person(self.app.session.store, self.patient_id, today=day, apply=True, clinician=who)
         version = out["program_version"]
         self.app.session.load(self.patient_id)  # the program section and the handout follow the new version
-        self.advice = None
-        self.apply_button.disabled = True
+        self._clear_advice()
         self.advice_view.value = (advice_html(out) +
                                   f'<p class="pr-live-applied"><b>Applied</b>: stored as program version {version} '
                                   f'(based on version {out["based_on_version"]}) by {esc(who)}.</p>')
+        self._advice_for = (self.patient_id, version)  # the note stays beside the version it made
         refresh = getattr(self.app, "refresh", None)
         if refresh is not None:
             refresh()
@@ -401,20 +492,16 @@ class SessionsView(LazyPanel):
 
     @guarded("Recording the resumption")
     def on_resume(self) -> int | None:
-        """Record the resumption of the paused program (the reason is required); the same
-        function as ``prescribe resume``.  Returns the new program version, or None."""
-        from ..settings import hub_login
+        """Record the resumption of the paused program (the reason is required) under the signed-in
+        clinician (the hub login, or a passphrase sign-in; never a typed name); the same function as
+        ``prescribe resume``.  Returns the new program version, or None."""
         from ..clinic.advice import resume_person
         if not self._ready():
             raise InputError.single("person", None, "a saved person with a saved program (open one first)")
         self.resume_msg.value = ""
-        who = self.clinician.value.strip()
-        if not who and hub_login() is None:
-            self.msgs["clinician"].value = ('<span class="pr-msg">Enter your name or initials: the resumption is '
-                                            'recorded with who made it. Nothing was saved.</span>')
-            return None
         try:
-            out = resume_person(self.app.session.store, self.patient_id, clinician=who or None,
+            who = self.app.signed.who("resume")
+            out = resume_person(self.app.session.store, self.patient_id, clinician=who,
                                 reason=self.resume_reason.value)
         except InputError as exc:
             self.resume_msg.value = ('<span class="pr-msg">Nothing was saved: '
@@ -423,13 +510,13 @@ class SessionsView(LazyPanel):
         version = out["program_version"]
         self.app.session.load(self.patient_id)  # the program section and the handout follow the new version
         self.resume_reason.value = ""
-        self.advice = None
-        self.apply_button.disabled = True
+        self._clear_advice()
         self.advice_view.value = (f'<p class="pr-live-resumed-note"><b>Resumed</b>: stored as program version '
                                   f'{version} (based on version {out["based_on_version"]}, paused since '
-                                  f'{esc(out["paused_since"])}) by {esc(out["resumed_by"])}. Reason: '
+                                  f'{esc(readable_time(out["paused_since"]))}) by {esc(out["resumed_by"])}. Reason: '
                                   f'{esc(out["reason"])}. Press Advise for the next step before the next '
                                   f'session.</p>')
+        self._advice_for = (self.patient_id, version)  # the note stays beside the version it made
         refresh = getattr(self.app, "refresh", None)
         if refresh is not None:
             refresh()
@@ -439,14 +526,26 @@ class SessionsView(LazyPanel):
 
     # -- charts -----------------------------------------------------------------------------------
     def series(self):
+        """Planned against done per week (prescribe.sessions.progress), with the weak windows the
+        program itself marks (every window after every new or larger stimulus, from the domain's
+        one reading of a plan's windows), and nothing "done" yet for the weeks still to come."""
         from ..sessions.progress import weekly_progress
+        from ..stimulus import weak_weeks
         if not self._ready():
             return None
         try:
             sessions = self.app.session.store.logged_sessions(self.patient_id)
         except NotFoundError:
             sessions = []
-        return weekly_progress(self._plan(), sessions)
+        plan = self._plan()
+        p = weekly_progress(plan, sessions)
+        weak = weak_weeks(plan.weeks)
+        p.weak_window = [w in weak for w in p.week]
+        now = self.current_week()
+        for name in ("impacts_done", "minutes_done", "load_done_kg"):
+            values = getattr(p, name)
+            setattr(p, name, [v if w <= now else math.nan for w, v in zip(p.week, values)])
+        return p
 
     def _refresh_charts(self) -> None:
         series = self.series()
@@ -459,77 +558,88 @@ class SessionsView(LazyPanel):
 
 
 def advice_html(advice: dict) -> str:
-    """The advice as the panel shows it: the decision, its reasons with sources, what changes."""
+    """The advice as the panel shows it: the decision, its reasons with sources, what changes
+    (exercises by name, dates and times as the app writes them; no rule ids)."""
+    from .wording import dates_in_words, label, plain
     decision = advice["decision"]
-    reasons = "".join(f"<li>{esc(r['message'])} <small>[{esc(r['rule'])}; source: {esc(r['source'])}]</small></li>"
+    reasons = "".join(f"<li>{esc(plain(r['message']))} <small>(source: {esc(r['source'])})</small></li>"
                       for r in advice["reasons"])
-    changes = "".join(f"<li>{esc(c)}</li>" for c in advice["changes"])
-    loads = "".join(f"<li>{esc(e)}: about {esc(v['kg'])} kg estimated 1RM ({esc(v['method'])})</li>"
+    changes = "".join(f"<li>{esc(plain(c))}</li>" for c in advice["changes"])
+    loads = "".join(f"<li>{esc(label(e))}: about {esc(v['kg'])} kg estimated 1RM ({esc(v['method'])})</li>"
                     for e, v in advice.get("estimated_1rm", {}).items() if v.get("kg"))
+    entries = ('<p class="pr-live-from-entries"><i>Advice from the entries above, not logged: nothing was '
+               "stored, and it cannot be applied. Log the session to keep it and apply the advice.</i></p>"
+               if advice.get("from_entries") else "")
+    unchanged = ('<p class="pr-live-unchanged">The advice keeps the program as it is: there is nothing to '
+                 "apply.</p>" if not advice.get("changes_program", True) and not advice.get("from_entries") else "")
+    already = advice.get("already_applied")
     return (f'<div class="pr-live-decision pr-live-decision-{decision.replace("_", "-")}">'
             f'<p><b>Next step for week {advice["week"]}: {esc(DECISION_TEXT.get(decision, decision))}</b></p>'
-            f"<p>Why:</p><ul>{reasons}</ul><p>What the adjusted program changes:</p><ul>{changes}</ul>"
-            + (f"<p>Working loads:</p><ul>{loads}</ul>" if loads else "")
-            + (f'<p class="pr-live-already">{esc(advice["already_applied"])}.</p>'
-               if advice.get("already_applied") else "") + "</div>")
+            + entries + f"<p>Why:</p><ul>{reasons}</ul><p>What the adjusted program changes:</p><ul>{changes}</ul>"
+            + (f"<p>Working loads:</p><ul>{loads}</ul>" if loads else "") + unchanged
+            + (f'<p class="pr-live-already">{esc(dates_in_words(already))}.</p>' if already else "") + "</div>")
 
 
 class SessionCharts:
     """Three bqplot figures over :class:`prescribe.sessions.progress.WeeklyProgress`: impacts
     planned and done; minutes planned and done with the top load lifted; pain and effort.
-    The weak windows (weeks 3-5 after a step-up; Eriksen 1986, Endocr Rev 7:379) are shaded."""
+
+    The weak windows the program marks (weeks 3-5 after each new or larger stimulus;
+    Eriksen 1986, Endocr Rev 7:379) are shaded as continuous bands.  Weeks still to come show
+    what is planned and nothing done.  No legend box over the data: each title says which
+    mark is which.  Every value scale has a full domain and whole-number ticks where it
+    counts; the kilogram axis is drawn only when the program or the sessions have a load.
+    """
 
     def __init__(self) -> None:
         import bqplot as bq
-        from .charts import ACCENT, INK, SHADE
+        from .charts import ACCENT, INK, SHADE, _shade_mark
         self.bq = bq
         self.x = bq.LinearScale()
         self.shades = []
 
         def shade():
-            mark = bq.Bars(x=[], y=[], scales={"x": self.x, "y": bq.LinearScale(min=0.0, max=1.0)},
-                           colors=[SHADE], opacities=[0.3], padding=0.0, stroke=None)
+            mark = _shade_mark(self.x)
             self.shades.append(mark)
             return mark
 
         def axis_x():
             return bq.Axis(scale=self.x, label="week", tick_format="d")
 
-        margin = {"top": 40, "bottom": 45, "left": 55, "right": 60}
-        self.y_imp = bq.LinearScale(min=0.0)
+        margin = {"top": 50, "bottom": 45, "left": 60, "right": 60}
+        self.y_imp = bq.LinearScale(min=0.0, max=1.0)
+        self.impacts_axis = bq.Axis(scale=self.y_imp, side="left", label="impacts", tick_format="d",
+                                    tick_values=[0, 1])
         self.impacts = bq.Bars(x=[], y=[], scales={"x": self.x, "y": self.y_imp}, type="grouped",
-                               colors=["#c9d3dd", INK], labels=["planned", "done"], display_legend=True, padding=0.2)
+                               colors=["#c9d3dd", INK], padding=0.2)
         self.impacts_figure = bq.Figure(
-            title="Impacts a week: planned (light) and done (dark); shaded: weak window",
-            marks=[shade(), self.impacts], axes=[axis_x(), bq.Axis(scale=self.y_imp, side="left",
-                                                                   label="impacts", tick_format="d")],
-            fig_margin=margin, legend_location="top-left", layout={"width": "100%", "height": "250px"})
+            title="Impacts a week: planned (light bars), done (dark bars); shaded: weak window",
+            marks=[shade(), self.impacts], axes=[axis_x(), self.impacts_axis],
+            fig_margin=margin, layout={"width": "100%", "height": "250px"})
         self.impacts_figure.add_class("pr-live-chart-impacts")
-        self.y_min = bq.LinearScale(min=0.0)
-        self.y_kg = bq.LinearScale(min=0.0)
-        self.minutes = bq.Lines(x=[], y=[], scales={"x": self.x, "y": self.y_min}, colors=["#9aa5b1", INK],
-                                labels=["minutes planned", "minutes done"], display_legend=True, marker="circle",
-                                marker_size=20)
-        self.loads = bq.Lines(x=[], y=[], scales={"x": self.x, "y": self.y_kg}, colors=["#e0b080", ACCENT],
-                              labels=["load planned (kg)", "load lifted (kg)"], display_legend=True,
-                              marker="square", marker_size=20, line_style="dashed")
+        self.y_min = bq.LinearScale(min=0.0, max=1.0)
+        self.y_kg = bq.LinearScale(min=0.0, max=1.0)
+        self.minutes_axis = bq.Axis(scale=self.y_min, side="left", label="minutes", tick_format="d",
+                                    tick_values=[0, 1])
+        self.kg_axis = bq.Axis(scale=self.y_kg, side="right", label="kg", color=ACCENT, tick_format="d",
+                               tick_values=[0, 1])
+        self.minutes = _DottedLines(bq, self.x, self.y_min, ["#9aa5b1", INK], "circle")
+        self.loads = _DottedLines(bq, self.x, self.y_kg, ["#e0b080", ACCENT], "square", line_style="dashed")
         self.dose_figure = bq.Figure(
-            title="Minutes a week and top load: planned and done",
-            marks=[shade(), self.minutes, self.loads],
-            axes=[axis_x(), bq.Axis(scale=self.y_min, side="left", label="minutes", tick_format="d"),
-                  bq.Axis(scale=self.y_kg, side="right", label="kg", color=ACCENT)],
-            fig_margin=margin, legend_location="top-left", layout={"width": "100%", "height": "250px"})
+            title="Minutes a week: planned (grey), done (dark); top load (right, kg): planned (light orange), "
+                  "lifted (orange)",
+            marks=[shade(), *self.minutes.marks, *self.loads.marks],
+            axes=[axis_x(), self.minutes_axis],
+            fig_margin=margin, layout={"width": "100%", "height": "250px"})
         self.dose_figure.add_class("pr-live-chart-dose")
         self.y_pain = bq.LinearScale(min=0.0, max=10.0)
-        self.pain = bq.Lines(x=[], y=[], scales={"x": self.x, "y": self.y_pain},
-                             colors=["#a4161a", "#e07a7a", INK],
-                             labels=["pain during", "pain next morning", "effort (CR10)"], display_legend=True,
-                             marker="circle", marker_size=20)
+        self.pain = _DottedLines(bq, self.x, self.y_pain, ["#a4161a", "#e07a7a", INK], "circle")
         self.pain_figure = bq.Figure(
-            title="Pain and effort (0-10) by week; shaded: weak window",
-            marks=[shade(), self.pain],
-            axes=[axis_x(), bq.Axis(scale=self.y_pain, side="left", label="0-10", tick_format="d")],
-            fig_margin=margin, legend_location="top-left", layout={"width": "100%", "height": "250px"})
+            title="Pain during (red), pain next morning (pink) and effort (dark), 0-10, by week; shaded: weak window",
+            marks=[shade(), *self.pain.marks],
+            axes=[axis_x(), bq.Axis(scale=self.y_pain, side="left", label="0-10", tick_format="d",
+                                    tick_values=list(range(0, 11, 2)))],
+            fig_margin=margin, layout={"width": "100%", "height": "250px"})
         self.pain_figure.add_class("pr-live-chart-pain")
 
     @property
@@ -538,22 +648,76 @@ class SessionCharts:
 
     def update(self, p) -> None:
         import numpy as np
+        from .charts import band_outline, set_points, whole_ticks
+
+        def top(*series) -> float:
+            values = [float(v) for s in series for v in s if v is not None and not math.isnan(float(v))]
+            return max(values, default=0.0)
+
         x = np.asarray(p.week, dtype=float)
         if len(x):
             self.x.min, self.x.max = float(x.min()) - 0.5, float(x.max()) + 0.5
-        shade_y = np.asarray([1.0 if v else 0.0 for v in p.weak_window])
+        sx, sy = band_outline(list(p.week), list(p.weak_window))
         for mark in self.shades:
-            with mark.hold_sync():
-                mark.x, mark.y = x, shade_y
-        with self.impacts.hold_sync():
-            self.impacts.x = x
-            self.impacts.y = np.asarray([p.impacts_planned, p.impacts_done], dtype=float)
-        with self.minutes.hold_sync():
-            self.minutes.x = x
-            self.minutes.y = np.asarray([p.minutes_planned, p.minutes_done], dtype=float)
-        with self.loads.hold_sync():
-            self.loads.x = x
-            self.loads.y = np.asarray([p.load_planned_kg, p.load_done_kg], dtype=float)
-        with self.pain.hold_sync():
-            self.pain.x = x
-            self.pain.y = np.asarray([p.pain_during, p.pain_next_morning, p.session_rpe], dtype=float)
+            set_points(mark, sx, sy)
+        ticks = whole_ticks(top(p.impacts_planned, p.impacts_done))
+        self.y_imp.max, self.impacts_axis.tick_values = float(ticks[-1]) * 1.05, ticks
+        # A bar of a week still to come is empty (height 0), never a NaN the browser cannot draw.
+        set_points(self.impacts, x, np.nan_to_num(np.asarray([p.impacts_planned, p.impacts_done], dtype=float)))
+        ticks = whole_ticks(top(p.minutes_planned, p.minutes_done))
+        self.y_min.max, self.minutes_axis.tick_values = float(ticks[-1]) * 1.05, ticks
+        self.minutes.update(x, [p.minutes_planned, p.minutes_done])
+        heaviest = top(p.load_planned_kg, p.load_done_kg)
+        ticks = whole_ticks(heaviest)
+        self.y_kg.max, self.kg_axis.tick_values = float(ticks[-1]) * 1.05, ticks
+        # No kilogram axis where nothing is lifted or planned in kg (an axis made invisible still
+        # makes the browser place it, and it cannot: the axis is left out of the figure instead).
+        axes = [a for a in self.dose_figure.axes if a is not self.kg_axis] + ([self.kg_axis] if heaviest > 0 else [])
+        if list(self.dose_figure.axes) != axes:
+            self.dose_figure.axes = axes
+        self.loads.update(x, [p.load_planned_kg, p.load_done_kg])
+        self.pain.update(x, [p.pain_during, p.pain_next_morning, p.session_rpe])
+
+
+class _DottedLines:
+    """Lines with a dot at each week that has a value.  A week without one (no session, a week
+    still to come) is a gap in its line and has no dot; a series with no value at all is not
+    drawn.  The browser reports every point it cannot place (a dot or a path at a missing
+    value, or a dot whose week arrives before its value), so each series is its own line,
+    dots are drawn from the weeks with values only, and a growing set of dots gets its values
+    before its weeks (a shrinking one its weeks first)."""
+
+    def __init__(self, bq, x_scale, y_scale, colors: list[str], marker: str, **line_style) -> None:
+        self.lines = [bq.Lines(x=[], y=[], scales={"x": x_scale, "y": y_scale}, colors=[c], **line_style)
+                      for c in colors]
+        self.dots = [bq.Scatter(x=[], y=[], scales={"x": x_scale, "y": y_scale}, colors=[c], marker=marker,
+                                default_size=28, stroke=c, display_names=False) for c in colors]
+
+    @property
+    def marks(self) -> list:
+        return [*self.lines, *self.dots]
+
+    def values(self, weeks) -> "np.ndarray":
+        """The values each line draws at ``weeks``, one row a series (NaN where a week has none)."""
+        import numpy as np
+        out = np.full((len(self.lines), len(weeks)), np.nan)
+        for i, line in enumerate(self.lines):
+            at = {float(w): v for w, v in zip(line.x, line.y)}
+            out[i] = [at.get(float(w), np.nan) for w in weeks]
+        return out
+
+    def update(self, x, series: list[list[float]]) -> None:
+        import numpy as np
+        from .charts import set_points
+        x = np.asarray(x, dtype=float)
+        for line, dot, values in zip(self.lines, self.dots, series):
+            y = np.asarray(values, dtype=float)
+            keep = np.isfinite(y)
+            line.visible = bool(keep.any())
+            # The line runs from its first week with a value to its last (the browser places a
+            # line's end at its last point, which must have a value); gaps inside stay gaps.
+            ends = np.flatnonzero(keep)
+            span = slice(ends[0], ends[-1] + 1) if len(ends) else slice(0, 0)
+            set_points(line, x[span], y[span])
+            set_points(dot, x[keep], y[keep])
+

@@ -78,6 +78,15 @@ def plain(text: object) -> str:
     return _SNAKE.sub(lambda m: label(m.group(0)), out)
 
 
+_DATE = re.compile(r"\b\d{4}-\d{2}-\d{2}\b")
+
+
+def dates_in_words(text: object) -> str:
+    """Dates (YYYY-MM-DD) in a sentence of the engines' as the app writes dates ("5 Dec 2026")."""
+    from .program_model import readable_date
+    return _DATE.sub(lambda m: readable_date(m.group(0)), str(text))
+
+
 _PATH = re.compile(r"\b([a-z][a-z0-9_]*)((?:\[\d*\])?(?:\.[a-z][a-z0-9_]*)*)")
 
 

@@ -186,3 +186,44 @@ def type_into(page, css_class: str, text: str) -> None:
 def choose(page, css_class: str, label: str) -> None:
     """Pick a dropdown entry by the text it shows (ipywidgets options carry their labels)."""
     page.locator(f".{css_class} select, select.{css_class}").first.select_option(label=label)
+
+
+def sign_in(page, app_server, name: str) -> None:
+    """Give ``name`` the tests' invented passphrase in the app's store (as a lead would at the
+    command line) and sign in with it through the page's sign-in panel."""
+    sys.path.insert(0, str(ROOT / "tests"))
+    from signin_support import PASSPHRASE, give_passphrase
+    give_passphrase(str(app_server.db_path), name)
+    page.locator(".pr-signin-name input").first.fill(name)
+    page.locator(".pr-signin-passphrase input").first.fill(PASSPHRASE)
+    page.locator(".pr-signin-passphrase input").first.press("Tab")
+    page.locator(".pr-signin-button").click()
+    page.wait_for_function(
+        "(name) => { const e = document.querySelector('.pr-signed-name'); return e && e.innerText === name; }",
+        arg=name, timeout=30_000)
+
+
+def sign_out(page) -> None:
+    page.locator(".pr-signout-button").click()
+    page.locator(".pr-signin-name input").first.wait_for(state="visible")
+
+
+def axis_ticks(page, figure_css: str, label: str) -> list[str] | None:
+    """The tick labels drawn on the axis called ``label`` of a bqplot figure (None when that axis
+    is not drawn: hidden axes have no width on the page)."""
+    return page.evaluate(
+        """([css, label]) => {
+             const f = document.querySelector(css);
+             if (!f) return null;
+             const axis = Array.from(f.querySelectorAll('g.axis')).find(
+                 a => a.querySelector('.axislabel') && a.querySelector('.axislabel').textContent === label);
+             if (!axis || axis.getBoundingClientRect().width === 0) return null;
+             return Array.from(axis.querySelectorAll('.tick text')).map(t => t.textContent);
+           }""", [figure_css, label])
+
+
+def console_errors(page) -> list[str]:
+    """Start recording the page's console errors; returns the list they are added to."""
+    errors: list[str] = []
+    page.on("console", lambda m: errors.append(m.text) if m.type == "error" else None)
+    return errors

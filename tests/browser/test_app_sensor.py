@@ -14,7 +14,7 @@ import pytest
 from prescribe.sensor.readers import write_csv
 from prescribe.store import open_store
 
-from .conftest import choose, open_app, shot, type_into
+from .conftest import axis_ticks, choose, open_app, shot, type_into
 
 pytestmark = pytest.mark.browser
 
@@ -76,6 +76,10 @@ def test_upload_a_recording_and_see_planned_against_delivered(app_page, app_serv
     assert "20 impacts over 3 day(s)" in status and "Stored with the person" in status
     # The two bqplot charts are drawn with one planned and one delivered bar per day / week.
     page.wait_for_function("() => document.querySelectorAll('.pr-sensor-chart-days rect.bar').length >= 6")
+    # A count axis reads whole numbers, each once (the week chart's used to read "0 0 0 0 0 1 1 1").
+    for chart in (".pr-sensor-chart-weeks", ".pr-sensor-chart-days"):
+        ticks = axis_ticks(page, chart, "impacts (2 BW or more)")
+        assert ticks and len(ticks) == len(set(ticks)) and all(t.isdigit() for t in ticks), (chart, ticks)
     table = page.locator(".pr-sensor-table").inner_text()
     assert "three_days.csv" in table and "delivered" in table
     # The standard cautions stay in view at the top of the page (the sections add their own).

@@ -113,6 +113,9 @@ def _save_person(page, patient_id: str) -> str:
     page.locator(".pr-intake-submit").click()
     page.wait_for_function("() => { const e = document.querySelector('.pr-week-table');"
                            " return e && e.innerText.includes('impacts per session'); }", timeout=60_000)
+    # The clinician field shows the login and cannot be edited.
+    box = page.locator(".pr-store-clinician input").first
+    assert box.input_value() == page.locator(".pr-signed-name").inner_text() and box.is_disabled()
     page.locator(".pr-store-save").click()
     page.wait_for_function("() => { const e = document.querySelector('.pr-store-status');"
                            " return e && e.innerText.includes('Saved'); }", timeout=60_000)
@@ -139,10 +142,9 @@ def test_each_save_is_recorded_under_its_login_and_only_a_lead_approves(hub, hub
         ctx_l, lead, outside_l = _login(hub_browser, hub, LEAD)
         contexts.append(ctx_l)
 
-        # The clinician field shows the login and cannot be edited.
+        # Signed in as the login, with no passphrase (the save's clinician field: _save_person).
         for page, user in ((clinician, CLINICIAN), (lead, LEAD)):
-            box = page.locator(".pr-store-clinician input").first
-            assert box.input_value() == user and box.is_disabled()
+            assert page.locator(".pr-signed-name").inner_text() == user
 
         assert "Saved DEMO-HUB-1" in _save_person(clinician, "DEMO-HUB-1")
         assert "Saved DEMO-HUB-2" in _save_person(lead, "DEMO-HUB-2")
@@ -152,10 +154,14 @@ def test_each_save_is_recorded_under_its_login_and_only_a_lead_approves(hub, hub
         _open_templates(clinician)
         assert "clinician" in clinician.locator(".pr-template-role").inner_text()
         _approve(clinician)
-        clinician.locator(".pr-error .pr-error-box").wait_for(state="visible", timeout=30_000)
-        refusal = clinician.locator(".pr-error .pr-error-box").inner_text()
-        assert CLINICIAN in refusal and "clinic lead" in refusal
-        assert "Not approved" in clinician.locator(".pr-template-status").inner_text()
+        # Refused beside the Approve button (not at the top of the page), naming who may.
+        clinician.locator(".pr-template-status .pr-error-box").wait_for(state="visible", timeout=30_000)
+        refusal = clinician.locator(".pr-template-status .pr-error-box").inner_text()
+        assert "Not approved" in refusal and CLINICIAN in refusal and "clinic lead" in refusal
+        assert clinician.locator(".pr-error .pr-error-box").count() == 0
+        # Signed in through the hub: no passphrase asked, no sign-out.
+        assert CLINICIAN in clinician.locator(".pr-signin-status").inner_text()
+        assert clinician.locator(".pr-signin-name input").first.is_hidden()
         shot(clinician, "hub-11-clinician-refused", of=".pr-section-templates")
 
         # The lead (a member of the hub's clinic-leads group) may.

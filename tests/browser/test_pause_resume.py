@@ -16,7 +16,7 @@ from prescribe.sessions.records import parse_session
 from prescribe.store import open_store
 from prescribe.clinic.advice import adjust_person
 
-from .conftest import open_app, shot, type_into
+from .conftest import open_app, shot, sign_in, type_into
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 from session_support import person, plan_dict  # noqa: E402
@@ -44,13 +44,23 @@ def test_resume_a_paused_program_with_a_reason(app_page, app_server):
     page.locator(".pr-load-button").click()
     _wait_text(page, ".pr-live-paused", "Paused from week 7")
     page.locator(".pr-live-resume").wait_for(state="visible")
-    # No reason: refused beside the button, nothing stored.
+    # A typed name proves nothing: nobody signed in, refused beside the button, nothing stored.
     type_into(page, "pr-live-clinician", "Dr Ines Vale (invented)")
+    reason = page.locator(".pr-live-resume-reason textarea").first
+    reason.fill(REASON)
+    reason.press("Tab")
     page.locator(".pr-live-resume").click()
-    _wait_text(page, ".pr-live-resume-msg", "Nothing was saved")
+    _wait_text(page, ".pr-live-resume-msg", "signed-in clinician")
     with open_store(str(app_server.db_path)) as store:
         assert [v["version"] for v in store.program_versions(PID)] == [1, 2]
-    reason = page.locator(".pr-live-resume-reason textarea").first
+    # Signed in, but no reason: refused beside the button, nothing stored.
+    sign_in(page, app_server, "Dr Ines Vale (invented)")
+    reason.fill("")
+    reason.press("Tab")
+    page.locator(".pr-live-resume").click()
+    _wait_text(page, ".pr-live-resume-msg", "reason must be")
+    with open_store(str(app_server.db_path)) as store:
+        assert [v["version"] for v in store.program_versions(PID)] == [1, 2]
     reason.fill(REASON)
     reason.press("Tab")
     shot(page, "pause-01-paused", of=".pr-section-sessions")

@@ -1,4 +1,4 @@
-"""The safety check in a real browser: a refused swap, and a draft cleared by a named clinician.
+"""The safety check in a real browser: a refused swap, and a draft cleared by a signed-in clinician.
 
 The person is invented: a woman of 79 with two falls last year and a Timed Up and Go of
 14 s (at or above 12 s: at risk of falling, CDC STEADI), whom the screening refers to a
@@ -12,7 +12,7 @@ import pytest
 
 from prescribe.catalogue import default_catalogue
 
-from .conftest import choose, open_app, shot, type_into
+from .conftest import choose, open_app, shot, sign_in, type_into
 
 pytestmark = pytest.mark.browser
 
@@ -86,7 +86,13 @@ def test_refused_swap_and_clearance_of_a_draft(app_page, app_server):
 
     # The draft's handout says DRAFT; once a clinician records the clearance it does not.
     _preview_shows(page, "DRAFT: do not start this program", True)
-    type_into(page, "pr-clearance-name", "Dr A. Example")
+    # A clearance vouches for the person: nobody signed in, it is refused beside its button.
+    page.locator(".pr-clearance-record").click()
+    refused = _wait_text(page, ".pr-clearance-msg", "Not cleared")
+    assert "signed-in clinician" in refused and "typed name proves nothing" in refused
+    assert "DRAFT" in page.locator(".pr-draft-status").inner_text()
+    sign_in(page, app_server, "Dr A. Example")
+    _wait_text(page, ".pr-clearance-who", "Dr A. Example")
     page.locator(".pr-clearance-record").click()
     cleared = _wait_text(page, ".pr-draft-status", "Cleared by Dr A. Example")
     assert "DRAFT" not in cleared
