@@ -350,6 +350,46 @@ def intensity_chart(plan) -> Chart:
          *frame.weak_legend()])
 
 
+def minutes_chart(plan) -> Chart:
+    """Minutes of walking-type work (impact level 1) per session, week by week: the picture of a
+    program that builds up in minutes, not in landings (bars only where there are minutes)."""
+    facts = week_facts(_coerce(plan))
+    values = [f.walking_minutes for f in facts]
+    first, last = facts[0], facts[-1]
+    desc = (_("Minutes of walking in one session go from %(first)s in week %(w1)s to %(last)s in week %(w2)s.")
+            % {"first": f"{values[0]:g}", "w1": first.week, "last": f"{values[-1]:g}", "w2": last.week}
+            + " " + _describe_weeks(facts))
+    frame = _Frame(facts, "chart-minutes", _("Minutes of walking in one session, week by week"), desc)
+    top, step = _nice_max(max(values) * 1.05)
+    frame.weak_windows()
+    frame.left_axis(top, step)
+    bar_w = frame.band * 0.62
+    bars = [f"M{frame.x(i) + (frame.band - bar_w) / 2:.1f},{TOP + frame.ph:.0f}V{frame.y(v, top):.1f}"
+            f"h{bar_w:.1f}V{TOP + frame.ph:.0f}Z" for i, v in enumerate(values) if v]
+    frame.parts.append(f'<path class="bars" d="{"".join(bars)}" fill="{BAR}" stroke="{INK}" stroke-width="0.8"/>')
+    frame.week_axis()
+    frame.step_marks()
+    return frame.chart(
+        (_("Left: minutes of walking in one session."), _(WEEK_SCALE)),
+        [(swatch(f'<rect x="4" y="0" width="18" height="14" fill="{BAR}" stroke="{INK}"/>'),
+          _("grey bar: minutes of walking in one session")), *frame.weak_legend()])
+
+
+def person_charts(plan) -> list[tuple[str, Chart]]:
+    """The charts the person's pages print, each only where it has something to draw:
+    ("impacts", ...) where there are landings, else ("minutes", ...) where there is walking-type
+    work; ("intensity", ...) where a strength load is set as a share of 1RM."""
+    facts = week_facts(_coerce(plan))
+    out = []
+    if any(f.impacts_per_session for f in facts):
+        out.append(("impacts", impacts_chart(plan)))
+    elif any(f.walking_minutes for f in facts):
+        out.append(("minutes", minutes_chart(plan)))
+    if any(f.resistance_pct_1rm is not None for f in facts):
+        out.append(("intensity", intensity_chart(plan)))
+    return out
+
+
 def impacts_chart_svg(plan) -> str:
     """The impacts chart's SVG alone (see :func:`impacts_chart`)."""
     return impacts_chart(plan).svg

@@ -209,8 +209,8 @@ def handout_context(plan: Plan, audience: str, paper: str, clinic: Clinic, senso
             "table": content.week_table(plan) if person else None,
             "guides": content.exercise_guides(plan) if person else None,
             "bouts": content.bout_advice(plan) if person else None,
-            "impacts_chart": larger(charts.impacts_chart(plan)) if person else None,
-            "intensity_chart": larger(charts.intensity_chart(plan)) if person else None,
+            # Each chart only where it has something to draw (a level-1 program: its minutes).
+            "person_charts": [(kind, larger(chart)) for kind, chart in charts.person_charts(plan)] if person else [],
             "if_hard_general": _(content.IF_HARD_GENERAL),
             "hold_note": _(content.tables.HOLD_NOTE),
             "paused_word": _(PAUSED_WORD) if person else PAUSED_WORD,

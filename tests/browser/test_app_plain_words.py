@@ -20,7 +20,7 @@ import pytest
 
 from prescribe.catalogue import default_catalogue
 from prescribe.planning.templates import template_fields
-from prescribe.planning.templates import COMPARED_FIGURES
+from prescribe.planning.templates.review import COMPARED_FIGURES
 from prescribe.records import FIELD_META, RECORD_SCHEMA
 from prescribe.safety import RULES
 from prescribe.screening import load_rules

@@ -35,6 +35,8 @@ class WeekFacts:
     peak_grf_bw: float
     directions: tuple[str, ...]
     sessions: int
+    #: Minutes of walking-type work (impact level 1, dosed in minutes) in one session, at most.
+    walking_minutes: float = 0.0
 
 
 def week_facts(plan: Plan) -> list[WeekFacts]:
@@ -61,7 +63,9 @@ def week_facts(plan: Plan) -> list[WeekFacts]:
             reassessment=wk.reassessment, phase=wk.phase, weekly_oi=weekly_osteogenic_index(wk),
             max_session_oi=max(session_oi, default=0.0),
             peak_grf_bw=max((ex.peak_grf_bw for ex in loading), default=0.0),
-            directions=tuple(directions), sessions=len(wk.sessions)))
+            directions=tuple(directions), sessions=len(wk.sessions),
+            walking_minutes=max((sum(ex.minutes or 0 for ex in ses.exercises if ex.impact_level == 1 and not ex.impacts)
+                                 for ses in wk.sessions), default=0.0)))
     return out
 
 
