@@ -394,3 +394,18 @@ def test_a_rebuild_never_replays_a_swap_into_an_exercise_the_program_already_has
 
 def test_an_effort_with_its_own_note_reads_without_nested_brackets():
     assert pm.load_words(_ex(intensity="RPE 7-8 (an 8-12RM load)")) == "very hard effort, RPE 7-8 (an 8-12RM load)"
+
+
+def test_each_line_of_the_week_says_why_with_its_sources():
+    # The plan's own reasons (prescribe.planning.why), the same the clinician's pages print.
+    from handout_fixtures import planner_plan
+    from prescribe.ui.program_view import days_html
+    plan = planner_plan(26)
+    days = pm.week_days(plan, 4)
+    assert days and all(line.why for d in days for line in d.lines)
+    page = days_html(days)
+    assert page.count("<tr>") - len(days) == sum(len(d.lines) for d in days)   # one row a line (and a heading row a day)
+    assert page.count("Chosen:") >= sum(len(d.lines) for d in days)
+    assert "This week:" in page and "<summary>Sources</summary>" in page
+    sources = {src for d in days for line in d.lines for _a, _r, src in line.why}
+    assert all(html.escape(src, quote=True) in page for src in sources)

@@ -174,6 +174,7 @@ def handout_context(plan: Plan, audience: str, paper: str, clinic: Clinic, senso
             "evidence": content.evidence(plan) if clinician else None,
             "explanations": explain_figures.plan_explanations(plan) if clinician else None,
             **(_limits_and_why(plan) if clinician else {"limits": None}),
+            "created_on": content.weeks.day_words(_created_day(plan)),   # a day in words, not a timestamp
             "screening": plan.screening, "level_labels": content.LEVEL_LABELS,
             "versions": [("Tool version (plan)", plan.tool_version), ("Rule-set version", plan.ruleset_version),
                          ("Template", _template_text(plan)),

@@ -169,6 +169,9 @@ class ExerciseLine:
     level: str
     supervised: bool
     note: str = ""
+    #: Why it is in the program, at this dose, this week: (about, reason, source) each
+    #: (the plan's own ``why``, the reasons the clinician's pages and `prescribe why` print).
+    why: tuple[tuple[str, str, str], ...] = ()
 
 
 @dataclass
@@ -219,7 +222,8 @@ def week_days(plan: Any, week: int, limits: Any = None) -> list[DayPlan]:
         for ex in session.exercises:
             day.lines.append(ExerciseLine(ex.exercise_id, ex.name, dose_words(ex), load_words(ex),
                                           level_words(ex.impact_level), supervised(ex, limits),
-                                          str(ex.notes or "")))
+                                          str(ex.notes or ""),
+                                          tuple((y.about or "", y.reason, y.source) for y in ex.why)))
     return [days[d] for d in sorted(days, key=lambda d: (days[d].date or date.min, d))]
 
 

@@ -29,6 +29,8 @@ CSS = """
 .pr-day table { border-collapse: collapse; font-size: 13px; width: 100%; }
 .pr-day td, .pr-day th { border-bottom: 1px solid #e3e6ea; padding: 2px 4px; text-align: left; vertical-align: top; }
 .pr-supervised { font-weight: bold; color: #7a2e00; }
+.pr-why { font-size: 85%; max-width: 32em; }
+.pr-why-source { color: #4a4f55; font-size: 90%; }
 .pr-stage-weak { background: #e6e9ed; }
 .pr-swap-confirm-box { background: #fff; border: 2px solid #1f3b57; padding: 4px 10px; margin: 4px 0; }
 </style>
@@ -39,6 +41,21 @@ def _esc(value: Any) -> str:
     return html.escape(str(value), quote=True)
 
 
+#: The heading of each kind of reason, as the clinician's pages print it.
+WHY_WORDS = {"chosen": "Chosen", "dose": "This dose", "week": "This week", "": "Because"}
+
+
+def why_html(line: pm.ExerciseLine) -> str:
+    """The reasons of one line, then their sources behind a "Sources" toggle (long citations would
+    crowd the week's table; the clinician's pages print the same reasons numbered)."""
+    if not line.why:
+        return "<i>no reasons kept (a plan made before reasons were kept: rebuild it)</i>"
+    reasons = "".join(f'<div class="pr-why-line"><b>{_esc(WHY_WORDS.get(about, "Because"))}:</b> {_esc(reason)}</div>'
+                      for about, reason, _source in line.why)
+    sources = "".join(f"<li>{_esc(source)}</li>" for source in dict.fromkeys(src for _a, _r, src in line.why))
+    return (f'{reasons}<details class="pr-why-sources"><summary>Sources</summary><ul>{sources}</ul></details>')
+
+
 def days_html(days: list[pm.DayPlan]) -> str:
     if not days:
         return "<p><i>No program yet: check the person's details first.</i></p>"
@@ -47,10 +64,11 @@ def days_html(days: list[pm.DayPlan]) -> str:
         rows = "".join(
             f"<tr><td><b>{_esc(line.name)}</b></td><td>{_esc(line.dose)}</td><td>{_esc(line.load)}</td>"
             f"<td>{_esc(line.level)}</td><td>"
-            + ('<span class="pr-supervised">supervised</span>' if line.supervised else "on own") + "</td></tr>"
+            + ('<span class="pr-supervised">supervised</span>' if line.supervised else "on own") + "</td>"
+            + f'<td class="pr-why">{why_html(line)}</td></tr>'
             for line in day.lines)
         out.append(f'<div class="pr-day"><h4>{_esc(day.heading)}</h4><table><thead><tr><th>Exercise</th>'
-                   f"<th>Dose</th><th>Load</th><th>Impact level</th><th>Supervision</th></tr></thead>"
+                   f"<th>Dose</th><th>Load</th><th>Impact level</th><th>Supervision</th><th>Why</th></tr></thead>"
                    f"<tbody>{rows}</tbody></table></div>")
     return '<div class="pr-days">' + "".join(out) + "</div>"
 

@@ -58,6 +58,14 @@ def test_new_person_to_printed_program_saved_and_reopened(app_page, app_server, 
     page.wait_for_function(f"({LEVEL_LINE_JS})().length > 20")
     before = page.evaluate(LEVEL_LINE_JS)
     shot(page, "12-program-built", of=".pr-section-program")
+    # Beside each line of the week, why it is there, at this dose, this week, with its sources.
+    days = _wait_text(page, ".pr-days", "Chosen:")
+    assert "This dose:" in days and "This week:" in days
+    page.locator(".pr-why-sources summary").first.click()
+    sources = page.locator(".pr-why-sources").first.locator("li")
+    sources.first.wait_for(state="visible")
+    assert sources.count() >= 1 and all(len(t.strip()) > 10 for t in sources.all_inner_texts())
+    shot(page, "12b-why-beside-each-line", of=".pr-days")
 
     # 4. Changing the start level redraws the chart.
     choose(page, "pr-option-start_level", "2 - moderate impact")
