@@ -135,5 +135,7 @@ def test_both_charts_share_one_page_on_either_paper(tmp_path, paper):
     pages = _text(path).split("\f")
     first = [i for i, page in enumerate(pages) if "Landings (impacts) per session, week by week" in page]
     second = [i for i, page in enumerate(pages) if "Strength exercise load, week by week" in page]
-    assert len(first) == 1 and first == second
+    plan = planner_plan(26)
+    loaded = any(x.intensity and "1RM" in x.intensity for w in plan.weeks for s in w.sessions for x in s.exercises)
+    assert len(first) == 1 and second == (first if loaded else [])   # no chart without a load to draw
     assert "hold" in pages[first[0]] and "step-up in impact level" in pages[first[0]]

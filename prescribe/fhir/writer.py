@@ -172,22 +172,9 @@ def _clinical(code: str) -> dict:
 
 
 def _dose_text(x) -> str:
-    parts = []
-    if x.sets and x.reps:
-        parts.append(f"{x.sets} x {x.reps}")
-    elif x.reps:
-        parts.append(f"{x.reps} reps")
-    if x.minutes:
-        parts.append(f"{x.minutes:g} min")
-    if x.impacts:
-        parts.append(f"{x.impacts} impacts" + (f" in {x.bouts} bouts" if x.bouts > 1 else ""))
-    if x.intensity:
-        parts.append(f"at {x.intensity}")
-    if x.load_kg:
-        parts.append(f"{x.load_kg:g} kg")
-    if x.supervised:
-        parts.append("supervised")
-    return " ".join(parts) or "as in the handout"
+    """The dose in the clinician's words (planning.why.exercise_dose, the clinician's pages' own)."""
+    from ..planning.why import exercise_dose
+    return exercise_dose(x) + (" supervised" if x.supervised else "")
 
 
 def _activities(plan: Plan) -> list[dict]:

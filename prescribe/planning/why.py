@@ -332,16 +332,22 @@ def limit_rows(limits: PlanLimits) -> list[dict]:
 
 
 def exercise_dose(x) -> str:
-    """The dose of a planned exercise in plain words ("3 x 8 at 80% 1RM", "20 min", "40 impacts")."""
+    """The dose of a planned exercise in the clinician's plain words ("3 x 8 at 80% 1RM 42.5 kg",
+    "20 min at RPE 3-4", "40 impacts in 2 bouts"): the clinician's pages, `prescribe why` and the
+    FHIR CarePlan's activities print it."""
     parts = []
     if x.impacts:
         parts.append(f"{x.impacts} impacts" + (f" in {x.bouts} bouts" if x.bouts > 1 else ""))
     elif x.sets and x.reps:
         parts.append(f"{x.sets} x {x.reps}")
+    elif x.reps:
+        parts.append(f"{x.reps} reps")
     if x.minutes and not x.impacts:
         parts.append(f"{x.minutes:g} min")
     if x.intensity:
         parts.append(f"at {x.intensity}")
+    if x.load_kg:
+        parts.append(f"{x.load_kg:g} kg")
     return " ".join(parts) or "as in the guide"
 
 
