@@ -121,4 +121,4 @@ def test_find_open_versions_and_never_lose_work(app_page, app_server):
         versions = store.program_versions(FIRST)
         plan = store.get_program(FIRST)
     assert [v["version"] for v in versions] == [1, 2, 3] and versions[-1]["based_on_version"] == 2
-    assert len(plan["weeks"]) == 26
+    assert len(plan.weeks) == 26
