@@ -29,7 +29,9 @@ CSS = """
 .pr-day table { border-collapse: collapse; font-size: 13px; width: 100%; }
 .pr-day td, .pr-day th { border-bottom: 1px solid #e3e6ea; padding: 2px 4px; text-align: left; vertical-align: top; }
 .pr-supervised { font-weight: bold; color: #7a2e00; }
-.pr-why { font-size: 85%; max-width: 32em; }
+.pr-why { font-size: 85%; line-height: 1.35; min-width: 16em; max-width: 32em; }
+.pr-why-line { margin-bottom: 3px; }
+.pr-why-sources li { line-height: 1.3; }
 .pr-why-source { color: #4a4f55; font-size: 90%; }
 .pr-stage-weak { background: #e6e9ed; }
 .pr-swap-confirm-box { background: #fff; border: 2px solid #1f3b57; padding: 4px 10px; margin: 4px 0; }
