@@ -21,6 +21,7 @@ from prescribe.plan_schema import parse_plan
 from prescribe.records import parse_record
 from prescribe.ui import ClinicApp, ClinicSession
 
+from signin_support import give_passphrase, sign_in
 from test_safety import PEOPLE, catalogue_fields, exercises, person, recount
 
 BALANCE_IDS = [e.exercise_id for e in default_catalogue().all() if e.category == "balance"]
@@ -251,7 +252,9 @@ def test_app_clearance_control_records_who_and_when(tmp_db):
     assert app.session.screening.refer and app.session.is_draft
     assert "DRAFT" in app.clearance.status.value and app.clearance.controls.layout.display is None
     assert "DRAFT" in app.session.handout("html").decode("utf-8")
-    app.clearance.name.value = "Dr A. Example"
+    # The clearance is recorded under the signed-in clinician, never a typed name.
+    give_passphrase(tmp_db, "Dr A. Example")
+    sign_in(app, "Dr A. Example")
     app.clearance.button.click()
     assert not app.session.is_draft
     assert "Cleared by Dr A. Example" in html.unescape(app.clearance.status.value)
