@@ -198,6 +198,16 @@ class _Frame:
                 self.parts.append(_text(cx, base + 26, str(f.week)))
         self.parts.append(f'<path class="ticks" d="{"".join(ticks)}" stroke="{INK}" fill="none"/>')
 
+    def bars(self, values: Sequence[float], top: float) -> None:
+        """A grey bar a week for each value above zero, all as one path (one element to parse and
+        paint instead of one per week); nothing where no week has a value."""
+        bar_w = self.band * 0.62
+        bars = [f"M{self.x(i) + (self.band - bar_w) / 2:.1f},{TOP + self.ph:.0f}V{self.y(v, top):.1f}"
+                f"h{bar_w:.1f}V{TOP + self.ph:.0f}Z" for i, v in enumerate(values) if v]
+        if bars:
+            self.parts.append(f'<path class="bars" d="{"".join(bars)}" fill="{BAR}" stroke="{INK}" '
+                              f'stroke-width="0.8"/>')
+
     def step_marks(self) -> None:
         for i, f in enumerate(self.facts):
             if f.step_up:
@@ -252,17 +262,7 @@ def impacts_chart(plan) -> Chart:
     top, step = _nice_max(max(f.impacts_per_session for f in facts) * 1.05)
     frame.weak_windows()
     frame.left_axis(top, step)
-    bar_w = frame.band * 0.62
-    # All bars as one path: one element to parse and paint instead of one per week.
-    bars = []
-    for i, f in enumerate(facts):
-        if f.impacts_per_session:
-            yy = frame.y(f.impacts_per_session, top)
-            bars.append(f"M{frame.x(i) + (frame.band - bar_w) / 2:.1f},{TOP + frame.ph:.0f}V{yy:.1f}"
-                        f"h{bar_w:.1f}V{TOP + frame.ph:.0f}Z")
-    if bars:
-        frame.parts.append(f'<path class="bars" d="{"".join(bars)}" fill="{BAR}" stroke="{INK}" '
-                           f'stroke-width="0.8"/>')
+    frame.bars([f.impacts_per_session for f in facts], top)
     # Impact level on the right-hand axis, 0-3, as a stepped line with square markers.
     for level in range(4):
         yy = frame.y(level, 3)
@@ -363,10 +363,7 @@ def minutes_chart(plan) -> Chart:
     top, step = _nice_max(max(values) * 1.05)
     frame.weak_windows()
     frame.left_axis(top, step)
-    bar_w = frame.band * 0.62
-    bars = [f"M{frame.x(i) + (frame.band - bar_w) / 2:.1f},{TOP + frame.ph:.0f}V{frame.y(v, top):.1f}"
-            f"h{bar_w:.1f}V{TOP + frame.ph:.0f}Z" for i, v in enumerate(values) if v]
-    frame.parts.append(f'<path class="bars" d="{"".join(bars)}" fill="{BAR}" stroke="{INK}" stroke-width="0.8"/>')
+    frame.bars(values, top)
     frame.week_axis()
     frame.step_marks()
     return frame.chart(
